@@ -1,1 +1,125 @@
-//! TODO
+//! Result storage: the HDF5 file of a run and the per-record parts it is built from.
+//!
+//! Stages produce plain Rust values; the run turns each record's results into a
+//! [`Group`] tree (attributes, 1-D datasets, sub-groups) that is
+//! - saved as a JSON *part* file per record as soon as the record is done, so an
+//!   interrupted run keeps every finished record and a re-run can resume, and
+//! - assembled into `results.h5` at the end of the run, written to a temporary
+//!   file and renamed on success so no reader ever sees a half-written file.
+//!
+//! The layout of `results.h5` is documented in `docs/results-h5.md` at the
+//! repository root.
+
+pub mod h5;
+pub mod tree;
+
+pub use h5::write_results;
+pub use tree::{Attr, Data, Dataset, Group};
+
+use std::path::{Path, PathBuf};
+
+/// Errors of the store, each naming the file concerned.
+#[derive(Debug, thiserror::Error)]
+pub enum StoreError {
+    #[error("{path}: {source}")]
+    Io {
+        path: PathBuf,
+        #[source]
+        source: std::io::Error,
+    },
+    #[error("{path}: HDF5 error: {message}")]
+    Hdf5 { path: PathBuf, message: String },
+    #[error("{path}: {message}")]
+    Invalid { path: PathBuf, message: String },
+}
+
+/// Write `bytes` to `path` atomically: a temporary sibling file, fsync, rename.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), StoreError> {
+    use std::io::Write;
+    let io = |source| StoreError::Io {
+        path: path.to_path_buf(),
+        source,
+    };
+    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    std::fs::create_dir_all(dir).map_err(io)?;
+    let tmp = tmp_sibling(path);
+    {
+        let mut f = std::fs::File::create(&tmp).map_err(io)?;
+        f.write_all(bytes).map_err(io)?;
+        f.sync_all().map_err(io)?;
+    }
+    std::fs::rename(&tmp, path).map_err(io)
+}
+
+/// The temporary name used while `path` is being written (`.<name>.tmp-<pid>`).
+pub fn tmp_sibling(path: &Path) -> PathBuf {
+    let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    path.with_file_name(format!(".{name}.tmp-{}", std::process::id()))
+}
+
+/// A finished record as kept between runs: the key it was computed under and its tree.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Part {
+    /// Record name (the HDF5 group name under `/records`).
+    pub record: String,
+    /// Hash of tool version, config and input checksums; a part is reused only when it matches.
+    pub key: String,
+    pub group: Group,
+}
+
+impl Part {
+    /// Save atomically as JSON.
+    pub fn save(&self, path: &Path) -> Result<(), StoreError> {
+        let bytes = serde_json::to_vec(self).map_err(|e| StoreError::Invalid {
+            path: path.to_path_buf(),
+            message: e.to_string(),
+        })?;
+        write_atomic(path, &bytes)
+    }
+
+    /// Load a part; a missing file is `Ok(None)`, a damaged one an error.
+    pub fn load(path: &Path) -> Result<Option<Part>, StoreError> {
+        match std::fs::read(path) {
+            Ok(bytes) => serde_json::from_slice(&bytes).map(Some).map_err(|e| StoreError::Invalid {
+                path: path.to_path_buf(),
+                message: format!("damaged part file: {e}"),
+            }),
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => Ok(None),
+            Err(source) => Err(StoreError::Io {
+                path: path.to_path_buf(),
+                source,
+            }),
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn atomic_write_leaves_no_temporary() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path().join("a/b.txt");
+        write_atomic(&p, b"hello").unwrap();
+        assert_eq!(std::fs::read(&p).unwrap(), b"hello");
+        let names: Vec<_> = std::fs::read_dir(p.parent().unwrap()).unwrap().collect();
+        assert_eq!(names.len(), 1);
+    }
+
+    #[test]
+    fn part_round_trip_and_damage_detected() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path().join("r.json");
+        let mut g = Group::default();
+        g.attr("fs", Attr::Float(250.0));
+        g.dataset("x", Data::I64(vec![1, 2, 3]));
+        let part = Part { record: "r".into(), key: "k".into(), group: g };
+        part.save(&p).unwrap();
+        assert_eq!(Part::load(&p).unwrap(), Some(part));
+        assert_eq!(Part::load(&d.path().join("none.json")).unwrap(), None);
+        std::fs::write(&p, b"{not json").unwrap();
+        let e = Part::load(&p).unwrap_err().to_string();
+        assert!(e.contains("r.json") && e.contains("damaged"), "{e}");
+    }
+}
