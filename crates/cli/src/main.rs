@@ -1,1 +1,152 @@
-fn main() {}
+//! `tendline`: the command line. It parses arguments, builds the validated
+//! configuration, hands work to the library stages and reports; nothing else.
+
+mod config;
+mod inputs;
+mod measures;
+mod pipeline;
+mod run;
+mod tables;
+mod validate;
+
+use anyhow::{Context, Result};
+use clap::{Parser, Subcommand};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+#[derive(Parser)]
+#[command(name = "tendline", version, about = "ECG wave boundaries, QT and QTc at research scale, with validation against annotated databases")]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Process records: filter, detect beats, delineate waves, measure QT/QTc; write results to --out.
+    Run(RunArgs),
+    /// Score a run's annotation files against reference annotations and write a report.
+    Validate(validate::ValidateArgs),
+    /// Print the effective configuration (defaults, --config file and --set overrides) after validation.
+    Config {
+        /// Configuration file (TOML); default: the built-in pipeline.toml.
+        #[arg(long)]
+        config: Option<PathBuf>,
+        /// Override one key, e.g. `--set detect.refractory_ms=200` (repeatable).
+        #[arg(long = "set", value_name = "KEY=VALUE")]
+        set: Vec<String>,
+    },
+}
+
+#[derive(clap::Args)]
+struct RunArgs {
+    /// Folders, RECORDS lists, or record paths (.hea, .edf, .csv, or a WFDB record name).
+    #[arg(required = true)]
+    inputs: Vec<PathBuf>,
+    /// Output folder (created if needed; re-runs skip records already complete).
+    #[arg(long)]
+    out: PathBuf,
+    /// Configuration file (TOML); default: the built-in pipeline.toml.
+    #[arg(long)]
+    config: Option<PathBuf>,
+    /// Override one configuration key, e.g. `--set measure.window_s=5` (repeatable).
+    #[arg(long = "set", value_name = "KEY=VALUE")]
+    set: Vec<String>,
+    /// Subjects CSV (record, subject, sex, age, timepoint); default: subjects.csv in an input folder.
+    #[arg(long)]
+    subjects: Option<PathBuf>,
+    /// Worker threads (default: all cores).
+    #[arg(long)]
+    jobs: Option<usize>,
+    /// Redo records even when complete results under the same config and inputs exist.
+    #[arg(long)]
+    force: bool,
+    /// No progress output.
+    #[arg(long)]
+    quiet: bool,
+    /// Sampling rate (Hz) for CSV records that do not state one.
+    #[arg(long, value_name = "HZ")]
+    csv_fs: Option<f64>,
+}
+
+fn cmd_run(a: RunArgs) -> Result<ExitCode> {
+    let config = config::load(a.config.as_deref(), &a.set)?;
+    let records = inputs::resolve(&a.inputs)?;
+    if records.is_empty() {
+        anyhow::bail!("no records found in the inputs given");
+    }
+    let subjects_file = a.subjects.clone().or_else(|| inputs::folder_subjects(&a.inputs));
+    let subjects = match &subjects_file {
+        Some(p) => tendline_formats::subjects::read_subjects(p).with_context(|| format!("--subjects {}", p.display()))?,
+        None => Default::default(),
+    };
+    if let Some(csv_fs) = a.csv_fs {
+        if !(csv_fs.is_finite() && csv_fs > 0.0) {
+            anyhow::bail!("--csv-fs: allowed a positive sampling rate in Hz, got {csv_fs}");
+        }
+    }
+    let jobs = match a.jobs {
+        Some(0) => anyhow::bail!("--jobs: allowed 1 or more threads, got 0"),
+        Some(n) => n,
+        None => std::thread::available_parallelism().map_or(1, |n| n.get()),
+    };
+    let opts = run::RunOptions {
+        records,
+        out: a.out,
+        config,
+        subjects,
+        subjects_file,
+        jobs,
+        force: a.force,
+        quiet: a.quiet,
+        csv_fs: a.csv_fs,
+    };
+    let report = run::run(&opts)?;
+    let subj = tables::subject_results(&report.parts, &opts.config.measure.subject);
+    if !subj.is_empty() {
+        tables::write_subjects(&opts.out, &subj)?;
+    }
+    if !a.quiet {
+        println!("{}", tables::print_table(&report.parts, &subj, opts.config.measure.preferred_formula.as_str()));
+    }
+    let failures = report.failures();
+    let done = report.outcomes.len() - failures.len();
+    if !a.quiet {
+        eprintln!(
+            "{} of {} records complete in {:.1} s; results in {}",
+            done,
+            report.outcomes.len(),
+            report.seconds,
+            opts.out.display()
+        );
+    }
+    if failures.is_empty() {
+        Ok(ExitCode::SUCCESS)
+    } else {
+        eprintln!("\n{} record(s) failed:", failures.len());
+        eprintln!("{:<20} error", "record");
+        for (r, e) in &failures {
+            eprintln!("{:<20} {}", r.name, e);
+        }
+        Ok(ExitCode::from(1))
+    }
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Run(a) => cmd_run(a),
+        Command::Validate(a) => validate::cmd_validate(a),
+        Command::Config { config, set } => config::load(config.as_deref(), &set).map(|c| {
+            print!("{}", c.to_toml());
+            ExitCode::SUCCESS
+        }),
+    };
+    match result {
+        Ok(code) => code,
+        Err(e) => {
+            eprintln!("error: {e:#}");
+            ExitCode::from(2)
+        }
+    }
+}

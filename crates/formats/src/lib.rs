@@ -6,20 +6,28 @@
 //! Annotation files (WFDB) are read and written by [`annotation`].
 //!
 //! Conventions: sample indices are 0-based from the first sample of the record;
-//! time in seconds is `sample / fs`.
+//! time in seconds is `sample / fs`. Physical values are converted to millivolts
+//! when the input units are `uV`/`μV`/`µV` (÷1000), `mV` or `V` (×1000); other units
+//! (e.g. `mmHg`, `NU`) are kept unconverted and named in [`Lead::units`]. Missing
+//! samples that a format marks as invalid become NaN.
+//!
+//! Entry point: [`read_record`] picks the reader from the file extension.
 
 pub mod annotation;
 pub mod csv;
 pub mod edf;
 pub mod error;
 pub mod meta;
+pub mod subjects;
 pub mod wfdb;
 
 pub use annotation::Annotation;
 pub use error::FormatError;
 pub use meta::{Metadata, Sex};
 
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
+
+use serde::{Deserialize, Serialize};
 
 /// One lead of a record.
 #[derive(Debug, Clone, PartialEq)]
@@ -45,11 +53,58 @@ pub struct Record {
     pub meta: Metadata,
     /// Every file the record was read from (for input checksums).
     pub files: Vec<PathBuf>,
+    /// Problems that did not prevent reading (e.g. a WFDB header checksum that
+    /// does not match the samples); empty for a clean input.
+    pub warnings: Vec<String>,
 }
 
 impl Record {
     /// Number of samples per lead (all leads have the same length).
     pub fn n_samples(&self) -> usize {
         self.leads.first().map_or(0, |l| l.samples.len())
+    }
+}
+
+/// Options of [`read_record`] (TOML table `input`).
+#[derive(Deserialize, Serialize, Clone, Debug, PartialEq)]
+#[serde(deny_unknown_fields, default)]
+pub struct ReadOptions {
+    /// Sampling rate in Hz for CSV files; overrides a rate given in the file.
+    /// Default: none (the CSV must state it, see [`csv`]).
+    pub csv_fs: Option<f64>,
+}
+
+impl Default for ReadOptions {
+    fn default() -> Self {
+        ReadOptions { csv_fs: None }
+    }
+}
+
+impl ReadOptions {
+    /// Check value ranges; keys are reported under the `input` table.
+    pub fn validate(&self) -> Result<(), Vec<tendline_params::ParamError>> {
+        let mut c = tendline_params::Checker::new("input");
+        if let Some(fs) = self.csv_fs {
+            c.range("csv_fs", fs, 1e-6, 1e6, "Hz");
+        }
+        c.finish()
+    }
+}
+
+/// Read a record, choosing the reader by extension: `.hea` (or a path without
+/// extension that has a sibling `.hea`) → WFDB, `.edf` → EDF/EDF+, `.csv` → CSV.
+pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatError> {
+    let ext = path.extension().map(|e| e.to_string_lossy().to_ascii_lowercase());
+    match ext.as_deref() {
+        Some("hea") => wfdb::read_record(path),
+        Some("edf") => edf::read_edf(path),
+        Some("csv") => csv::read_csv(path, opts.csv_fs),
+        _ if wfdb::header_path_of(path).is_file() => wfdb::read_record(path),
+        _ => Err(FormatError::Invalid {
+            path: path.to_path_buf(),
+            message: "unknown input type: expected a .hea, .edf or .csv file, or a WFDB record path \
+                      with a sibling .hea"
+                .into(),
+        }),
     }
 }

@@ -1,0 +1,133 @@
+//! The measurement stage's results as store groups: `windows/` columns, the
+//! median beats with their marks, and record-level summary attributes.
+
+use crate::pipeline::marks_group;
+use tendline_measure::{MeasureConfig, RecordMeasures};
+use tendline_store::{Attr, Data, Group};
+
+fn opt(v: Option<f64>) -> f64 {
+    v.unwrap_or(f64::NAN)
+}
+
+/// Add `windows/` and the summary attributes to a record group.
+pub fn windows_group(g: &mut Group, m: &RecordMeasures, names: &[String], fs: f64, cfg: &MeasureConfig) {
+    let w = &m.windows;
+    let wg = g.group("windows");
+    let col = |f: &dyn Fn(&tendline_measure::WindowMeasure) -> Option<f64>| Data::F64(w.iter().map(|x| opt(f(x))).collect());
+    wg.dataset_with_units("start_s", Data::F64(w.iter().map(|x| x.start_s).collect()), "s");
+    wg.dataset_with_units("end_s", Data::F64(w.iter().map(|x| x.end_s).collect()), "s");
+    wg.dataset("n_beats", Data::I64(w.iter().map(|x| x.n_beats as i64).collect()));
+    wg.dataset_with_units("rr_ms", col(&|x| x.rr_ms), "ms");
+    wg.dataset_with_units("hr_bpm", col(&|x| x.hr_bpm), "bpm");
+    wg.dataset_with_units("qt_ms", col(&|x| x.qt_ms), "ms");
+    wg.dataset(
+        "qt_lead",
+        Data::Text(w.iter().map(|x| x.qt_lead.map(|i| names[i].clone()).unwrap_or_default()).collect()),
+    );
+    wg.dataset("qt_lead_index", Data::I64(w.iter().map(|x| x.qt_lead.map_or(-1, |i| i as i64)).collect()));
+    wg.dataset_with_units("qt_longest_ms", col(&|x| x.qt_longest_ms), "ms");
+    wg.dataset_with_units("qt_superimposed_ms", col(&|x| x.qt_superimposed_ms), "ms");
+    wg.dataset_with_units("qrs_ms", col(&|x| x.qrs_ms), "ms");
+    wg.dataset_with_units("pr_ms", col(&|x| x.pr_ms), "ms");
+    wg.dataset_with_units("jt_ms", col(&|x| x.jt_ms), "ms");
+    wg.dataset_with_units("qtc_bazett_ms", col(&|x| x.qtc_bazett_ms), "ms");
+    wg.dataset_with_units("qtc_fridericia_ms", col(&|x| x.qtc_fridericia_ms), "ms");
+    wg.dataset_with_units("qtc_framingham_ms", col(&|x| x.qtc_framingham_ms), "ms");
+    wg.dataset_with_units("qtc_hodges_ms", col(&|x| x.qtc_hodges_ms), "ms");
+    wg.dataset_with_units("qtc_ms", col(&|x| x.qtc_ms), "ms");
+    wg.dataset("qtc_flag", Data::Text(w.iter().map(|x| x.qtc_flag.as_str().to_string()).collect()));
+    wg.dataset("flags", Data::Text(w.iter().map(|x| window_flags(x).join(";")).collect()));
+    wg.dataset("classification", Data::Text(w.iter().map(|x| x.classification.text.clone()).collect()));
+    wg.attr("qt_rule", Attr::Text(cfg.qt_rule.as_str().into()));
+    wg.attr("preferred_formula", Attr::Text(cfg.preferred_formula.as_str().into()));
+    wg.attr("caution", Attr::Text(tendline_measure::classify::CAUTION.into()));
+    for (k, x) in w.iter().enumerate() {
+        let mg = wg.group("medians").group(&format!("{k:03}"));
+        mg.attr("fiducial", Attr::Int(x.median.fiducial as i64));
+        mg.attr("fs", Attr::Float(fs));
+        mg.attr("start_s", Attr::Float(x.start_s));
+        let len = x.median.per_lead.first().map_or(0, Vec::len);
+        let values: Vec<f32> = x.median.per_lead.iter().flatten().copied().collect();
+        mg.dataset_with_units("beat", Data::F32Matrix { cols: len, values }, "mV");
+        mg.dataset("beats_used", Data::I64(x.beats.iter().map(|&b| b as i64).collect()));
+        for (i, lm) in x.leads.iter().enumerate() {
+            let lg = mg.group("leads").group(&format!("{i:02}"));
+            lg.attr("lead", Attr::Text(names[i].clone()));
+            lg.attr("usable", Attr::Int(lm.usable as i64));
+            lg.attr("qt_accepted", Attr::Int(lm.qt_accepted as i64));
+            for (n, v) in [("qt_ms", lm.qt_ms), ("qrs_ms", lm.qrs_ms), ("pr_ms", lm.pr_ms)] {
+                lg.attr(n, Attr::Float(opt(v)));
+            }
+            marks_group(lg, std::slice::from_ref(&lm.marks));
+        }
+    }
+    let s = &m.summary;
+    for (n, v) in [
+        ("rr_ms", s.rr_ms),
+        ("hr_bpm", s.hr_bpm),
+        ("qt_ms", s.qt_ms),
+        ("qt_superimposed_ms", s.qt_superimposed_ms),
+        ("qrs_ms", s.qrs_ms),
+        ("pr_ms", s.pr_ms),
+        ("jt_ms", s.jt_ms),
+        ("qtc_bazett_ms", s.qtc_bazett_ms),
+        ("qtc_fridericia_ms", s.qtc_fridericia_ms),
+        ("qtc_framingham_ms", s.qtc_framingham_ms),
+        ("qtc_hodges_ms", s.qtc_hodges_ms),
+        ("qtc_ms", s.qtc_ms),
+    ] {
+        g.attr(n, Attr::Float(opt(v)));
+    }
+    g.attr("n_windows", Attr::Int(s.n_windows as i64));
+    g.attr("n_windows_measured", Attr::Int(s.n_measured as i64));
+    g.attr("n_windows_irregular", Attr::Int(s.n_irregular as i64));
+    g.attr("qt_rule", Attr::Text(s.qt_rule.as_str().into()));
+    g.attr("qtc_formula", Attr::Text(s.formula.as_str().into()));
+    g.attr("qtc_flag", Attr::Text(s.qtc_flag.as_str().into()));
+    g.attr("classification", Attr::Text(s.classification.text.clone()));
+    g.attr("flags", Attr::Text(summary_flags(m).join(";")));
+    g.attr("caution", Attr::Text(s.caution.into()));
+}
+
+fn window_flags(x: &tendline_measure::WindowMeasure) -> Vec<&'static str> {
+    let f = &x.flags;
+    let mut v = Vec::new();
+    for (on, name) in [
+        (f.irregular, "irregular"),
+        (f.wide_qrs, "wide_qrs"),
+        (f.unknown_sex, "sex_unknown"),
+        (f.high_risk, "qtc_above_500"),
+        (f.unreadable, "unreadable"),
+        (f.too_few_beats, "too_few_beats"),
+    ] {
+        if on {
+            v.push(name);
+        }
+    }
+    v
+}
+
+/// Record-level flags: the QTc class when not normal, then conditions seen in any window.
+pub fn summary_flags(m: &RecordMeasures) -> Vec<String> {
+    let s = &m.summary;
+    let mut v: Vec<String> = Vec::new();
+    if s.qtc_flag.as_str() != "normal" {
+        v.push(s.qtc_flag.as_str().to_string());
+    }
+    if s.any_high_risk {
+        v.push("qtc_above_500".into());
+    }
+    if s.any_wide_qrs {
+        v.push("wide_qrs".into());
+    }
+    if s.n_irregular > 0 {
+        v.push("irregular".into());
+    }
+    if s.unknown_sex {
+        v.push("sex_unknown".into());
+    }
+    if m.windows.iter().any(|w| w.flags.unreadable) {
+        v.push("unreadable".into());
+    }
+    v
+}

@@ -1,0 +1,257 @@
+//! One record through every stage: read, condition, detect, delineate, measure;
+//! then its results as a store tree and as WFDB annotation files.
+
+use crate::config::PipelineConfig;
+use crate::inputs::RecordInput;
+use anyhow::{bail, Context as _, Result};
+use std::path::Path;
+use tendline_delineate::{BeatMarks, Mark, TEndMethod, TMorphology};
+use tendline_detect::Detection;
+use tendline_dsp::filter::FilterCache;
+use tendline_formats::annotation::{code_of, write_annotations, Annotation};
+use tendline_formats::subjects::SubjectRow;
+use tendline_formats::Record;
+use tendline_store::{Attr, Data, Group};
+
+/// What every record shares: the config and the filter designs (one per sampling rate).
+pub struct Context {
+    pub config: PipelineConfig,
+    pub config_toml: String,
+    pub config_sha256: String,
+    pub filters: FilterCache,
+    pub csv_fs: Option<f64>,
+}
+
+impl Context {
+    pub fn new(config: &PipelineConfig, csv_fs: Option<f64>) -> Result<Self> {
+        Ok(Self {
+            config: config.clone(),
+            config_toml: config.to_toml(),
+            config_sha256: config.sha256(),
+            filters: FilterCache::new(config.filter.clone()),
+            csv_fs,
+        })
+    }
+}
+
+/// A processed record: its store tree and its annotations.
+pub struct Processed {
+    pub group: Group,
+    pub marks: Vec<Annotation>,
+    pub leadmarks: Vec<Annotation>,
+    pub n_samples: u64,
+}
+
+/// Reject records no stage can work on, naming the problem.
+fn check_record(rec: &Record, path: &Path) -> Result<()> {
+    if rec.leads.is_empty() {
+        bail!("{}: record has no signals", path.display());
+    }
+    if !(rec.fs.is_finite() && rec.fs > 0.0) {
+        bail!("{}: sampling frequency must be positive, got {}", path.display(), rec.fs);
+    }
+    let n = rec.n_samples();
+    if n == 0 {
+        bail!("{}: record is empty (0 samples)", path.display());
+    }
+    for (i, l) in rec.leads.iter().enumerate() {
+        if l.samples.len() != n {
+            bail!("{}: lead {} `{}` has {} samples, lead 0 has {n}", path.display(), i, l.name, l.samples.len());
+        }
+        if let Some(k) = l.samples.iter().position(|v| !v.is_finite()) {
+            bail!("{}: lead {} `{}` has a non-finite value (NaN or infinity) at sample {k}", path.display(), i, l.name);
+        }
+    }
+    Ok(())
+}
+
+/// Run every stage on one record.
+pub fn process_record(
+    input: &RecordInput,
+    ctx: &Context,
+    subject: Option<&SubjectRow>,
+    checksums: &[(String, String)],
+) -> Result<Processed> {
+    let opts = tendline_formats::ReadOptions { csv_fs: ctx.csv_fs };
+    let mut rec = tendline_formats::read_record(&input.path, &opts)
+        .with_context(|| format!("reading {}", input.path.display()))?;
+    check_record(&rec, &input.path)?;
+    if let Some(s) = subject {
+        s.apply(&mut rec.meta);
+    }
+    let cfg = &ctx.config;
+    let filter = ctx.filters.get(rec.fs).with_context(|| format!("{}: filter design", input.name))?;
+    let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
+    let (cond, notch) = filter.apply_record(&raw);
+    let leads: Vec<&[f64]> = cond.iter().map(Vec::as_slice).collect();
+    let det = tendline_detect::detect(&leads, rec.fs, &cfg.detect)
+        .with_context(|| format!("{}: beat detection", input.name))?;
+    let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
+    let del = tendline_delineate::delineate(&leads, rec.fs, &qrs, &cfg.delineate);
+    let names: Vec<String> = rec.leads.iter().map(|l| l.name.clone()).collect();
+    let meas = tendline_measure::measure_record(&leads, &names, rec.fs, &det, rec.meta.sex, &cfg.measure, &cfg.delineate)
+        .map_err(|e| anyhow::anyhow!("{}: measurement: {e}", input.name))?;
+
+    let mut g = Group::default();
+    record_attrs(&mut g, &rec, checksums, notch, &det);
+    beats_group(g.group("beats"), &det);
+    unreadable_group(g.group("unreadable"), &det);
+    let marks = g.group("marks");
+    marks_group(marks.group("global"), &del.global);
+    for (i, lead) in del.per_lead.iter().enumerate() {
+        let lg = marks.group("leads").group(&format!("{i:02}"));
+        lg.attr("lead", Attr::Text(names[i].clone()));
+        lg.attr("channel", Attr::Int(i as i64));
+        marks_group(lg, lead);
+    }
+    crate::measures::windows_group(&mut g, &meas, &names, rec.fs, &cfg.measure);
+
+    let labels: Vec<&str> = det.beats.iter().map(|b| b.label.symbol()).collect();
+    let marks = beat_annotations(&del.global, &qrs, &labels, 0);
+    let mut leadmarks: Vec<Annotation> = del
+        .per_lead
+        .iter()
+        .enumerate()
+        .flat_map(|(i, l)| beat_annotations(l, &qrs, &labels, i as u8))
+        .collect();
+    leadmarks.sort_by_key(|a| (a.sample, a.chan));
+    Ok(Processed {
+        group: g,
+        marks,
+        leadmarks,
+        n_samples: (rec.n_samples() * rec.leads.len()) as u64,
+    })
+}
+
+fn record_attrs(g: &mut Group, rec: &Record, checksums: &[(String, String)], notch: Option<f64>, det: &Detection) {
+    g.attr("fs", Attr::Float(rec.fs));
+    g.attr("n_samples", Attr::Int(rec.n_samples() as i64));
+    g.attr("duration_s", Attr::Float(rec.n_samples() as f64 / rec.fs));
+    g.attr("leads", Attr::Texts(rec.leads.iter().map(|l| l.name.clone()).collect()));
+    g.attr("units", Attr::Texts(rec.leads.iter().map(|l| l.units.clone()).collect()));
+    if let Some(s) = rec.meta.sex {
+        g.attr("sex", Attr::Text(s.code().into()));
+    }
+    if let Some(a) = rec.meta.age {
+        g.attr("age", Attr::Float(a));
+    }
+    if let Some(s) = &rec.meta.subject {
+        g.attr("subject", Attr::Text(s.clone()));
+    }
+    if let Some(t) = &rec.meta.timepoint {
+        g.attr("timepoint", Attr::Text(t.clone()));
+    }
+    g.attr("input_files", Attr::Texts(checksums.iter().map(|c| c.0.clone()).collect()));
+    g.attr("input_sha256", Attr::Texts(checksums.iter().map(|c| c.1.clone()).collect()));
+    g.attr("powerline_notch_hz", Attr::Float(notch.unwrap_or(0.0)));
+    g.attr("lead_quality", Attr::Floats(det.lead_quality.clone()));
+    g.attr("n_beats", Attr::Int(det.beats.len() as i64));
+}
+
+fn beats_group(g: &mut Group, det: &Detection) {
+    g.dataset_with_units("qrs_peak", Data::I64(det.beats.iter().map(|b| b.sample as i64).collect()), "sample");
+    g.dataset("label", Data::Text(det.beats.iter().map(|b| b.label.symbol().to_string()).collect()));
+}
+
+fn unreadable_group(g: &mut Group, det: &Detection) {
+    g.dataset_with_units("start", Data::I64(det.unreadable.iter().map(|s| s.start as i64).collect()), "sample");
+    g.dataset_with_units("end", Data::I64(det.unreadable.iter().map(|s| s.end as i64).collect()), "sample");
+    g.dataset("reason", Data::Text(det.unreadable.iter().map(|s| s.reason.clone()).collect()));
+}
+
+/// Names and accessors of every stored fiducial, in the order written.
+pub const FIDUCIALS: [(&str, fn(&BeatMarks) -> Option<Mark>); 12] = [
+    ("p_on", |b| b.p_on),
+    ("p_peak", |b| b.p_peak),
+    ("p_end", |b| b.p_end),
+    ("qrs_on", |b| b.qrs_on),
+    ("qrs_peak", |b| b.qrs_peak),
+    ("qrs_end", |b| b.qrs_end),
+    ("t_on", |b| b.t_on),
+    ("t_peak", |b| b.t_peak),
+    ("t_end", |b| b.t_end),
+    ("t_end_wavelet", |b| b.t_end_wavelet),
+    ("t_end_tangent", |b| b.t_end_tangent),
+    ("t_end_area", |b| b.t_end_area),
+];
+
+pub fn method_name(m: TEndMethod) -> &'static str {
+    match m {
+        TEndMethod::Wavelet => "wavelet",
+        TEndMethod::Tangent => "tangent",
+        TEndMethod::Area => "area",
+    }
+}
+
+pub fn morphology_name(m: TMorphology) -> &'static str {
+    match m {
+        TMorphology::Absent => "absent",
+        TMorphology::Upright => "upright",
+        TMorphology::Inverted => "inverted",
+        TMorphology::BiphasicPosNeg => "biphasic+-",
+        TMorphology::BiphasicNegPos => "biphasic-+",
+    }
+}
+
+/// Marks as columns: sample index (−1 = absent) and confidence (NaN = absent).
+pub fn marks_group(g: &mut Group, beats: &[BeatMarks]) {
+    for (name, get) in FIDUCIALS {
+        g.dataset_with_units(name, Data::I64(beats.iter().map(|b| get(b).map_or(-1, |m| m.sample as i64)).collect()), "sample");
+        g.dataset(
+            &format!("{name}_confidence"),
+            Data::F32(beats.iter().map(|b| get(b).map_or(f32::NAN, |m| m.confidence)).collect()),
+        );
+    }
+    g.dataset("t_end_method", Data::Text(beats.iter().map(|b| method_name(b.t_end_method).to_string()).collect()));
+    g.dataset("t_morphology", Data::Text(beats.iter().map(|b| morphology_name(b.t_morphology).to_string()).collect()));
+}
+
+fn ann(sample: usize, symbol: &str, chan: u8, aux: Option<&str>) -> Annotation {
+    Annotation {
+        sample: sample as i64,
+        code: code_of(symbol).expect("standard WFDB symbol"),
+        subtype: 0,
+        chan,
+        num: 0,
+        aux: aux.map(|s| s.as_bytes().to_vec()),
+    }
+}
+
+/// The open databases' boundary convention: `(` onset, peak mark, `)` end, per wave.
+pub fn beat_annotations(beats: &[BeatMarks], qrs: &[usize], labels: &[&str], chan: u8) -> Vec<Annotation> {
+    let mut out = Vec::new();
+    for (i, b) in beats.iter().enumerate() {
+        let waves: [(Option<Mark>, Option<Mark>, Option<Mark>, &str, Option<&str>); 3] = [
+            (b.p_on, b.p_peak, b.p_end, "p", None),
+            (
+                b.qrs_on,
+                b.qrs_peak.or(Some(Mark { sample: qrs[i], confidence: 0.0 })),
+                b.qrs_end,
+                labels[i],
+                None,
+            ),
+            (b.t_on, b.t_peak, b.t_end, "t", Some(method_name(b.t_end_method))),
+        ];
+        for (on, peak, end, sym, end_aux) in waves {
+            let Some(peak) = peak else { continue };
+            if let Some(on) = on {
+                out.push(ann(on.sample, "(", chan, None));
+            }
+            out.push(ann(peak.sample, sym, chan, None));
+            if let Some(end) = end {
+                out.push(ann(end.sample, ")", chan, end_aux));
+            }
+        }
+    }
+    // Waves of neighbouring beats can overlap at fast rates; the format needs time order.
+    out.sort_by_key(|a| a.sample);
+    out
+}
+
+/// Write `<record>.mark` and `<record>.leadmark` into `dir`.
+pub fn write_record_annotations(dir: &Path, name: &str, p: &Processed) -> Result<()> {
+    std::fs::create_dir_all(dir).with_context(|| format!("{}: cannot create", dir.display()))?;
+    write_annotations(&dir.join(format!("{name}.mark")), &p.marks)?;
+    write_annotations(&dir.join(format!("{name}.leadmark")), &p.leadmarks)?;
+    Ok(())
+}

@@ -1,0 +1,267 @@
+//! The batch: records in parallel, progress, resume, failure isolation, outputs.
+//!
+//! Output folder layout (all files written atomically):
+//! - `parts/<record>.json`: a finished record's results and the key they were
+//!   computed under (tool version, config, input checksums); reused on re-runs;
+//! - `annotations/<record>.mark` and `.leadmark`: WFDB annotation files;
+//! - `results.h5`, `summary.csv`, `windows.csv`, `failures.csv`, `run.json`:
+//!   rebuilt at the end of every run from the parts of the records named on the
+//!   command line.
+
+use crate::config::PipelineConfig;
+use crate::inputs::RecordInput;
+use crate::pipeline::{self, Context};
+use crate::tables;
+use anyhow::{Context as _, Result};
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+use rayon::prelude::*;
+use sha2::{Digest, Sha256};
+use std::collections::BTreeMap;
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::Mutex;
+use std::time::Instant;
+use tendline_formats::subjects::SubjectRow;
+use tendline_store::{Attr, Group, Part};
+
+/// What the user asked for, already validated.
+pub struct RunOptions {
+    pub records: Vec<RecordInput>,
+    pub out: PathBuf,
+    pub config: PipelineConfig,
+    pub subjects: BTreeMap<String, SubjectRow>,
+    pub subjects_file: Option<PathBuf>,
+    pub jobs: usize,
+    pub force: bool,
+    pub quiet: bool,
+    pub csv_fs: Option<f64>,
+}
+
+/// How one record ended.
+#[derive(Debug, Clone)]
+pub enum Outcome {
+    Done { seconds: f64, samples: u64 },
+    Reused,
+    Failed { error: String },
+}
+
+/// The run's result, for the caller to print and set the exit code.
+pub struct RunReport {
+    pub outcomes: Vec<(RecordInput, Outcome)>,
+    pub parts: Vec<Part>,
+    pub seconds: f64,
+}
+
+impl RunReport {
+    pub fn failures(&self) -> Vec<(&RecordInput, &str)> {
+        self.outcomes
+            .iter()
+            .filter_map(|(r, o)| match o {
+                Outcome::Failed { error } => Some((r, error.as_str())),
+                _ => None,
+            })
+            .collect()
+    }
+}
+
+/// SHA-256 of a file, streamed.
+pub fn sha256_file(path: &Path) -> Result<String> {
+    use std::io::Read;
+    let mut f = std::fs::File::open(path).with_context(|| format!("{}: cannot open", path.display()))?;
+    let mut h = Sha256::new();
+    let mut buf = vec![0u8; 1 << 16];
+    loop {
+        let n = f.read(&mut buf).with_context(|| format!("{}: read error", path.display()))?;
+        if n == 0 {
+            break;
+        }
+        h.update(&buf[..n]);
+    }
+    Ok(hex::encode(h.finalize()))
+}
+
+/// The files a record is made of, found without decoding it (for checksums and resume keys).
+fn input_files(input: &RecordInput) -> Vec<PathBuf> {
+    let mut files = vec![input.path.clone()];
+    if input.path.extension().is_some_and(|e| e.eq_ignore_ascii_case("hea")) {
+        if let Ok(text) = std::fs::read_to_string(&input.path) {
+            let dir = input.path.parent().unwrap_or(Path::new("."));
+            let mut lines = text.lines().map(str::trim).filter(|l| !l.is_empty() && !l.starts_with('#'));
+            let _record_line = lines.next();
+            for l in lines {
+                if let Some(f) = l.split_whitespace().next() {
+                    let p = dir.join(f);
+                    if f != "~" && !files.contains(&p) && p.is_file() {
+                        files.push(p);
+                    }
+                }
+            }
+        }
+    }
+    files
+}
+
+fn record_key(ctx: &Context, checksums: &[(String, String)], subject: Option<&SubjectRow>) -> String {
+    let mut h = Sha256::new();
+    h.update(env!("CARGO_PKG_VERSION").as_bytes());
+    h.update(ctx.config_toml.as_bytes());
+    for (f, s) in checksums {
+        h.update(f.as_bytes());
+        h.update(s.as_bytes());
+    }
+    h.update(format!("{subject:?}").as_bytes());
+    hex::encode(h.finalize())
+}
+
+fn panic_text(p: Box<dyn std::any::Any + Send>) -> String {
+    if let Some(s) = p.downcast_ref::<&str>() {
+        s.to_string()
+    } else if let Some(s) = p.downcast_ref::<String>() {
+        s.clone()
+    } else {
+        "unknown panic".into()
+    }
+}
+
+fn process_one(input: &RecordInput, ctx: &Context, opts: &RunOptions, samples: &AtomicU64) -> (Outcome, Option<Part>) {
+    let t0 = Instant::now();
+    let part_path = opts.out.join("parts").join(format!("{}.json", input.name));
+    let result = (|| -> Result<(Outcome, Part)> {
+        let files = input_files(input);
+        let checksums: Vec<(String, String)> = files
+            .iter()
+            .map(|f| Ok((f.file_name().unwrap_or_default().to_string_lossy().into_owned(), sha256_file(f)?)))
+            .collect::<Result<_>>()?;
+        let subject = opts.subjects.get(&input.name);
+        let key = record_key(ctx, &checksums, subject);
+        let ann_dir = opts.out.join("annotations");
+        if !opts.force {
+            if let Ok(Some(part)) = Part::load(&part_path) {
+                let anns_present = ann_dir.join(format!("{}.mark", input.name)).is_file()
+                    && ann_dir.join(format!("{}.leadmark", input.name)).is_file();
+                if part.key == key && anns_present {
+                    return Ok((Outcome::Reused, part));
+                }
+            }
+        }
+        let processed = pipeline::process_record(input, ctx, subject, &checksums)?;
+        samples.fetch_add(processed.n_samples, Ordering::Relaxed);
+        pipeline::write_record_annotations(&ann_dir, &input.name, &processed)?;
+        let part = Part {
+            record: input.name.clone(),
+            key,
+            group: processed.group,
+        };
+        part.save(&part_path)?;
+        Ok((
+            Outcome::Done {
+                seconds: t0.elapsed().as_secs_f64(),
+                samples: processed.n_samples,
+            },
+            part,
+        ))
+    })();
+    match result {
+        Ok((o, p)) => (o, Some(p)),
+        Err(e) => (Outcome::Failed { error: format!("{e:#}") }, None),
+    }
+}
+
+fn progress_bar(n: usize, quiet: bool) -> ProgressBar {
+    if quiet || !std::io::stderr().is_terminal() {
+        return ProgressBar::with_draw_target(Some(n as u64), ProgressDrawTarget::hidden());
+    }
+    let pb = ProgressBar::new(n as u64);
+    pb.set_style(
+        ProgressStyle::with_template("{bar:30} {pos}/{len} records  {msg}  ETA {eta}")
+            .expect("static template"),
+    );
+    pb
+}
+
+/// Run the whole batch. Never stops at a bad record.
+pub fn run(opts: &RunOptions) -> Result<RunReport> {
+    let t0 = Instant::now();
+    std::fs::create_dir_all(&opts.out).with_context(|| format!("--out {}: cannot create", opts.out.display()))?;
+    let ctx = Context::new(&opts.config, opts.csv_fs)?;
+    let pool = rayon::ThreadPoolBuilder::new()
+        .num_threads(opts.jobs)
+        .build()
+        .context("cannot start worker threads")?;
+    let n = opts.records.len();
+    let pb = progress_bar(n, opts.quiet);
+    let plain = !opts.quiet && !std::io::stderr().is_terminal();
+    let samples = AtomicU64::new(0);
+    let done = AtomicU64::new(0);
+    let log = Mutex::new(());
+    let results: Vec<(Outcome, Option<Part>)> = pool.install(|| {
+        opts.records
+            .par_iter()
+            .map(|input| {
+                let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+                    process_one(input, &ctx, opts, &samples)
+                }))
+                .unwrap_or_else(|p| {
+                    (
+                        Outcome::Failed {
+                            error: format!("internal error (panic): {}", panic_text(p)),
+                        },
+                        None,
+                    )
+                });
+                let k = done.fetch_add(1, Ordering::Relaxed) + 1;
+                let rate = samples.load(Ordering::Relaxed) as f64 / t0.elapsed().as_secs_f64().max(1e-9);
+                pb.set_message(format!("{:.1} M samples/s", rate / 1e6));
+                pb.inc(1);
+                if plain {
+                    let _g = log.lock();
+                    let what = match &r.0 {
+                        Outcome::Done { seconds, samples } => format!("done, {samples} samples in {seconds:.2} s"),
+                        Outcome::Reused => "unchanged, kept".to_string(),
+                        Outcome::Failed { error } => format!("FAILED: {error}"),
+                    };
+                    eprintln!("[{k}/{n}] {}: {what}", input.name);
+                }
+                r
+            })
+            .collect()
+    });
+    pb.finish_and_clear();
+    let mut outcomes = Vec::with_capacity(n);
+    let mut parts = Vec::new();
+    for (input, (o, p)) in opts.records.iter().zip(results) {
+        outcomes.push((input.clone(), o));
+        parts.extend(p);
+    }
+    let report = RunReport {
+        outcomes,
+        parts,
+        seconds: t0.elapsed().as_secs_f64(),
+    };
+    write_run_outputs(opts, &ctx, &report)?;
+    Ok(report)
+}
+
+fn write_run_outputs(opts: &RunOptions, ctx: &Context, report: &RunReport) -> Result<()> {
+    let mut root = Group::default();
+    root.attr("tool", Attr::Text("tendline".into()));
+    root.attr("tool_version", Attr::Text(env!("CARGO_PKG_VERSION").into()));
+    root.attr("config_toml", Attr::Text(ctx.config_toml.clone()));
+    root.attr("config_sha256", Attr::Text(ctx.config_sha256.clone()));
+    root.attr("created_utc", Attr::Text(tables::utc_now()));
+    root.attr("caution", Attr::Text(tendline_measure::classify::CAUTION.into()));
+    if let Some(s) = &opts.subjects_file {
+        root.attr("subjects_file", Attr::Text(s.display().to_string()));
+        root.attr("subjects_sha256", Attr::Text(sha256_file(s)?));
+    }
+    let recs = root.group("records");
+    for p in &report.parts {
+        recs.groups.insert(p.record.clone(), p.group.clone());
+    }
+    tendline_store::write_results(&opts.out.join("results.h5"), &root)?;
+    tables::write_csvs(&opts.out, &report.parts)?;
+    tables::write_failures(&opts.out, &report.failures())?;
+    tables::write_manifest(&opts.out, ctx, report)?;
+    Ok(())
+}

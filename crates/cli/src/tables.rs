@@ -1,0 +1,359 @@
+//! Flat outputs of a run built from the records' store trees: `summary.csv`,
+//! `windows.csv`, `subjects.csv` (per-subject correction and ΔQTc),
+//! `failures.csv`, `run.json`, and the table printed at the end of a run.
+
+use crate::pipeline::Context;
+use crate::run::{Outcome, RunReport};
+use anyhow::Result;
+use std::collections::BTreeMap;
+use std::fmt::Write as _;
+use std::path::Path;
+use tendline_measure::subject::{QtRr, SubjectConfig, SubjectRecord, SubjectResult};
+use tendline_store::{write_atomic, Attr, Data, Group, Part};
+
+/// Current UTC time as ISO 8601 (`2026-12-02T06:05:44Z`), without a date crate.
+pub fn utc_now() -> String {
+    let secs = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map(|d| d.as_secs() as i64)
+        .unwrap_or(0);
+    iso_from_unix(secs)
+}
+
+fn iso_from_unix(secs: i64) -> String {
+    let (days, rem) = (secs.div_euclid(86_400), secs.rem_euclid(86_400));
+    // Civil-from-days (H. Hinnant's public-domain algorithm).
+    let z = days + 719_468;
+    let era = z.div_euclid(146_097);
+    let doe = z - era * 146_097;
+    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
+    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+    let mp = (5 * doy + 2) / 153;
+    let d = doy - (153 * mp + 2) / 5 + 1;
+    let m = if mp < 10 { mp + 3 } else { mp - 9 };
+    let y = yoe + era * 400 + i64::from(m <= 2);
+    format!("{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z", rem / 3600, rem % 3600 / 60, rem % 60)
+}
+
+pub fn attr_f(g: &Group, k: &str) -> Option<f64> {
+    match g.attrs.get(k) {
+        Some(Attr::Float(v)) if v.is_finite() => Some(*v),
+        Some(Attr::Int(v)) => Some(*v as f64),
+        _ => None,
+    }
+}
+
+pub fn attr_s<'a>(g: &'a Group, k: &str) -> Option<&'a str> {
+    match g.attrs.get(k) {
+        Some(Attr::Text(s)) => Some(s),
+        _ => None,
+    }
+}
+
+fn fmt_f(v: Option<f64>, digits: usize) -> String {
+    v.map(|x| format!("{x:.digits$}")).unwrap_or_default()
+}
+
+fn csv_cell(s: &str) -> String {
+    if s.contains([',', '"', '\n']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+const SUMMARY_NUM: [&str; 13] = [
+    "duration_s",
+    "rr_ms",
+    "hr_bpm",
+    "qt_ms",
+    "qt_superimposed_ms",
+    "qrs_ms",
+    "pr_ms",
+    "jt_ms",
+    "qtc_bazett_ms",
+    "qtc_fridericia_ms",
+    "qtc_framingham_ms",
+    "qtc_hodges_ms",
+    "qtc_ms",
+];
+
+const WINDOW_COLS: [&str; 17] = [
+    "start_s",
+    "end_s",
+    "n_beats",
+    "rr_ms",
+    "hr_bpm",
+    "qt_ms",
+    "qt_lead",
+    "qt_longest_ms",
+    "qt_superimposed_ms",
+    "qrs_ms",
+    "pr_ms",
+    "jt_ms",
+    "qtc_bazett_ms",
+    "qtc_fridericia_ms",
+    "qtc_framingham_ms",
+    "qtc_hodges_ms",
+    "qtc_flag",
+];
+
+fn cell_of(d: &Data, i: usize) -> String {
+    match d {
+        Data::I64(v) => v.get(i).map(|x| x.to_string()).unwrap_or_default(),
+        Data::F64(v) => v.get(i).filter(|x| x.is_finite()).map(|x| format!("{x:.1}")).unwrap_or_default(),
+        Data::F32(v) => v.get(i).filter(|x| x.is_finite()).map(|x| format!("{x:.3}")).unwrap_or_default(),
+        Data::Text(v) => v.get(i).map(|s| csv_cell(s)).unwrap_or_default(),
+        Data::F32Matrix { .. } => String::new(),
+    }
+}
+
+/// `summary.csv` (one row per record) and `windows.csv` (one row per window).
+pub fn write_csvs(out: &Path, parts: &[Part]) -> Result<()> {
+    let mut s = String::from("record,subject,timepoint,sex,age,fs,n_leads,n_beats,n_windows");
+    for k in SUMMARY_NUM {
+        write!(s, ",{k}")?;
+    }
+    s.push_str(",qt_rule,qtc_formula,qtc_flag,flags\n");
+    let mut w = String::from("record,window");
+    for k in WINDOW_COLS {
+        write!(w, ",{k}")?;
+    }
+    w.push_str(",flags\n");
+    for p in parts {
+        let g = &p.group;
+        let n_leads = match g.attrs.get("leads") {
+            Some(Attr::Texts(v)) => v.len(),
+            _ => 0,
+        };
+        write!(
+            s,
+            "{},{},{},{},{},{},{},{},{}",
+            csv_cell(&p.record),
+            csv_cell(attr_s(g, "subject").unwrap_or("")),
+            csv_cell(attr_s(g, "timepoint").unwrap_or("")),
+            attr_s(g, "sex").unwrap_or(""),
+            fmt_f(attr_f(g, "age"), 0),
+            fmt_f(attr_f(g, "fs"), 3),
+            n_leads,
+            fmt_f(attr_f(g, "n_beats"), 0),
+            fmt_f(attr_f(g, "n_windows"), 0),
+        )?;
+        for k in SUMMARY_NUM {
+            write!(s, ",{}", fmt_f(attr_f(g, k), 1))?;
+        }
+        writeln!(
+            s,
+            ",{},{},{},{}",
+            attr_s(g, "qt_rule").unwrap_or(""),
+            attr_s(g, "qtc_formula").unwrap_or(""),
+            attr_s(g, "qtc_flag").unwrap_or(""),
+            csv_cell(attr_s(g, "flags").unwrap_or(""))
+        )?;
+        if let Some(wg) = g.groups.get("windows") {
+            let n = wg.datasets.get("start_s").map_or(0, |d| d.data.rows());
+            for i in 0..n {
+                write!(w, "{},{i}", csv_cell(&p.record))?;
+                for k in WINDOW_COLS.iter().chain(std::iter::once(&"flags")) {
+                    let c = wg.datasets.get(*k).map(|d| cell_of(&d.data, i)).unwrap_or_default();
+                    write!(w, ",{c}")?;
+                }
+                w.push('\n');
+            }
+        }
+    }
+    write_atomic(&out.join("summary.csv"), s.as_bytes())?;
+    write_atomic(&out.join("windows.csv"), w.as_bytes())?;
+    Ok(())
+}
+
+/// `failures.csv`: one row per record that failed (header only when none did).
+pub fn write_failures(out: &Path, failures: &[(&crate::inputs::RecordInput, &str)]) -> Result<()> {
+    let mut s = String::from("record,path,error\n");
+    for (r, e) in failures {
+        writeln!(s, "{},{},{}", csv_cell(&r.name), csv_cell(&r.path.display().to_string()), csv_cell(e))?;
+    }
+    write_atomic(&out.join("failures.csv"), s.as_bytes())?;
+    Ok(())
+}
+
+/// `run.json`: what ran, under which config, with which outcome per record.
+pub fn write_manifest(out: &Path, ctx: &Context, report: &RunReport) -> Result<()> {
+    let records: Vec<serde_json::Value> = report
+        .outcomes
+        .iter()
+        .map(|(r, o)| {
+            let (status, detail) = match o {
+                Outcome::Done { seconds, .. } => ("done", format!("{seconds:.3} s")),
+                Outcome::Reused => ("reused", String::new()),
+                Outcome::Failed { error } => ("failed", error.clone()),
+            };
+            serde_json::json!({"record": r.name, "path": r.path.display().to_string(), "status": status, "detail": detail})
+        })
+        .collect();
+    let v = serde_json::json!({
+        "tool": "tendline",
+        "tool_version": env!("CARGO_PKG_VERSION"),
+        "finished_utc": utc_now(),
+        "config_sha256": ctx.config_sha256,
+        "config_toml": ctx.config_toml,
+        "seconds": report.seconds,
+        "records": records,
+    });
+    write_atomic(&out.join("run.json"), serde_json::to_string_pretty(&v)?.as_bytes())?;
+    Ok(())
+}
+
+fn windows_qt_rr(g: &Group) -> Vec<QtRr> {
+    let Some(wg) = g.groups.get("windows") else { return Vec::new() };
+    let col = |k: &str| match wg.datasets.get(k).map(|d| &d.data) {
+        Some(Data::F64(v)) => v.clone(),
+        _ => Vec::new(),
+    };
+    col("qt_ms")
+        .into_iter()
+        .zip(col("rr_ms"))
+        .filter(|(q, r)| q.is_finite() && r.is_finite())
+        .map(|(qt_ms, rr_ms)| QtRr { qt_ms, rr_ms })
+        .collect()
+}
+
+/// Per-subject correction and ΔQTc over the records that have a subject.
+pub fn subject_results(parts: &[Part], cfg: &SubjectConfig) -> Vec<SubjectResult> {
+    let recs: Vec<SubjectRecord> = parts
+        .iter()
+        .filter_map(|p| {
+            let g = &p.group;
+            Some(SubjectRecord {
+                subject: attr_s(g, "subject")?.to_string(),
+                record: p.record.clone(),
+                timepoint: attr_s(g, "timepoint").map(str::to_string),
+                windows: windows_qt_rr(g),
+                qtc_ms: attr_f(g, "qtc_ms"),
+            })
+        })
+        .collect();
+    tendline_measure::subject::analyse(&recs, cfg)
+}
+
+/// `subjects.csv` in the output: per subject and record, fit, corrected QTc and deltas.
+pub fn write_subjects(out: &Path, results: &[SubjectResult]) -> Result<()> {
+    let mut s = String::from(
+        "subject,record,timepoint,baseline_record,qt_ms,rr_ms,qtc_ms,delta_qtc_ms,linear_slope_ms_per_s,loglog_exponent,qtci_linear_ms,qtci_loglog_ms,delta_qtci_linear_ms,delta_qtci_loglog_ms,note\n",
+    );
+    for r in results {
+        for rec in &r.records {
+            writeln!(
+                s,
+                "{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}",
+                csv_cell(&r.subject),
+                csv_cell(&rec.record),
+                csv_cell(rec.timepoint.as_deref().unwrap_or("")),
+                csv_cell(r.baseline_record.as_deref().unwrap_or("")),
+                fmt_f(rec.qt_ms, 1),
+                fmt_f(rec.rr_ms, 1),
+                fmt_f(rec.qtc_ms, 1),
+                fmt_f(rec.delta_qtc_ms, 1),
+                fmt_f(r.fit.linear.map(|f| f.slope), 1),
+                fmt_f(r.fit.loglog.map(|f| f.slope), 3),
+                fmt_f(rec.qtci_linear_ms, 1),
+                fmt_f(rec.qtci_loglog_ms, 1),
+                fmt_f(rec.delta_qtci_linear_ms, 1),
+                fmt_f(rec.delta_qtci_loglog_ms, 1),
+                csv_cell(r.fit.note.as_deref().unwrap_or("")),
+            )?;
+        }
+    }
+    write_atomic(&out.join("subjects.csv"), s.as_bytes())?;
+    Ok(())
+}
+
+/// The table printed at the end of a run: per subject and timepoint when subjects
+/// are known, otherwise per record; always followed by the caution.
+pub fn print_table(parts: &[Part], subjects: &[SubjectResult], formula: &str) -> String {
+    let by_name: BTreeMap<&str, &Group> = parts.iter().map(|p| (p.record.as_str(), &p.group)).collect();
+    let mut s = String::new();
+    let qtc = format!("QTc{}", formula_letter(formula));
+    if subjects.is_empty() {
+        let _ = writeln!(s, "{:<16} {:>6} {:>7} {:>7} {:>8}  flags", "record", "HR", "QT", qtc, "QRS");
+        for p in parts {
+            let g = &p.group;
+            let _ = writeln!(
+                s,
+                "{:<16} {:>6} {:>7} {:>7} {:>8}  {}",
+                p.record,
+                fmt_f(attr_f(g, "hr_bpm"), 0),
+                fmt_f(attr_f(g, "qt_ms"), 0),
+                fmt_f(attr_f(g, "qtc_ms"), 0),
+                fmt_f(attr_f(g, "qrs_ms"), 0),
+                attr_s(g, "flags").unwrap_or("")
+            );
+        }
+    } else {
+        let _ = writeln!(
+            s,
+            "{:<8} {:<3} {:<14} {:>6} {:>7} {:>7} {:>7}  flags",
+            "subject", "sex", "timepoint", "HR", "QT", qtc, &format!("Δ{qtc}")
+        );
+        for r in subjects {
+            for rec in &r.records {
+                let g = by_name.get(rec.record.as_str());
+                let sex = g.and_then(|g| attr_s(g, "sex")).unwrap_or("?");
+                let hr = g.and_then(|g| attr_f(g, "hr_bpm"));
+                let flags = g.and_then(|g| attr_s(g, "flags")).unwrap_or("");
+                let _ = writeln!(
+                    s,
+                    "{:<8} {:<3} {:<14} {:>6} {:>7} {:>7} {:>7}  {}",
+                    r.subject,
+                    sex,
+                    rec.timepoint.as_deref().unwrap_or("-"),
+                    fmt_f(hr, 0),
+                    fmt_f(rec.qt_ms, 0),
+                    fmt_f(rec.qtc_ms, 0),
+                    rec.delta_qtc_ms.map(|d| format!("{d:+.0}")).unwrap_or_default(),
+                    flags
+                );
+            }
+        }
+    }
+    let _ = writeln!(s, "\nCaution: {}", tendline_measure::classify::CAUTION);
+    s
+}
+
+fn formula_letter(f: &str) -> &'static str {
+    match f {
+        "bazett" => "B",
+        "fridericia" => "F",
+        "framingham" => "Fram",
+        "hodges" => "H",
+        _ => "",
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn unix_times_convert_to_calendar_dates() {
+        // POSIX epoch and a leap day, both fixed by definition of Unix time (common practice).
+        assert_eq!(iso_from_unix(0), "1970-01-01T00:00:00Z");
+        assert_eq!(iso_from_unix(951_782_400), "2000-02-29T00:00:00Z");
+        assert_eq!(iso_from_unix(951_868_799), "2000-02-29T23:59:59Z");
+        assert_eq!(iso_from_unix(951_868_800), "2000-03-01T00:00:00Z");
+    }
+
+    #[test]
+    fn utc_now_is_iso_8601() {
+        let t = utc_now();
+        assert_eq!(t.len(), 20, "{t}");
+        assert!(t.ends_with('Z') && t.as_bytes()[10] == b'T', "{t}");
+    }
+
+    #[test]
+    fn csv_cells_are_quoted_when_needed() {
+        assert_eq!(csv_cell("a,b"), "\"a,b\"");
+        assert_eq!(csv_cell("say \"x\""), "\"say \"\"x\"\"\"");
+        assert_eq!(csv_cell("plain"), "plain");
+    }
+}
