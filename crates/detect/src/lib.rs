@@ -4,8 +4,49 @@
 //! Input: leads already passed through the run's conditioning filter
 //! (baseline and power-line removed), in mV, all at sampling rate `fs`.
 //! Output sample indices are 0-based indices into those same arrays.
+//!
+//! # Method
+//!
+//! * **Per lead** (Pan and Tompkins, IEEE Trans Biomed Eng 1985;32:230-236):
+//!   zero-phase Butterworth band-pass 5–15 Hz, central derivative (mV/s),
+//!   squaring, 150 ms moving-window mean, then the paper's decision rules:
+//!   dual adaptive thresholds on the integrated (`SPKI/NPKI`) and filtered
+//!   (`SPKF/NPKF`) signals, a learning phase on the first 2 s, search-back with
+//!   halved thresholds when no QRS is seen for 166 % of the regular RR average,
+//!   a 200 ms refractory period, and the slope test against T waves within
+//!   360 ms. See [`detect_lead`].
+//! * **Fusion** ([`detect`]): each lead's integrated signal is divided by its
+//!   local beat level (median of 2 s block maxima over 10 s), and the leads are
+//!   averaged with local quality weights; the same decision rules run once on
+//!   this combined signal. Lead quality per 2 s block is zero where the lead is
+//!   flat or saturated, and otherwise grows with the ratio between its
+//!   integrated signal at the beats of a first pass and its mean away from
+//!   them. A bad lead therefore neither adds peaks nor dilutes the good one.
+//! * **Fiducial point**: the maximum, within ±half the integration window
+//!   around the integrated-signal peak, of the combined band-passed energy
+//!   `Σ w_i · bp_i² / s_i²` (`s_i` = the lead's local band-passed beat level);
+//!   for one lead that is the extremum of `|bp|`. With zero-phase filtering it
+//!   sits on the main QRS deflection, close to the R peak.
+//! * **Labels**: correlation with the dominant beat shape, QRS width relative to
+//!   the dominant beats and prematurity (see [`label`]).
+//! * **Unreadable stretches**: where every lead is flat, saturated or noise;
+//!   beats inside are dropped, never guessed.
+//!
+//! # Conventions
+//!
+//! Every constant of [`DetectConfig`] is in physical units and converted to
+//! samples with `round(ms * fs / 1000)`, so 250, 360, 500 and 1000 Hz give
+//! the same beats. Derivatives are in mV/s and the integration is a mean, so
+//! thresholds do not depend on `fs` either. Filters extend the ends by odd
+//! reflection (see [`filter`]).
 
 use serde::{Deserialize, Serialize};
+use tendline_params::{Checker, ParamError};
+
+pub mod filter;
+mod fuse;
+pub mod label;
+mod pt;
 
 /// Beat class, with its standard WFDB beat code.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -54,3 +95,318 @@ pub struct Detection {
     /// Quality per lead in 0..=1 (0 = unusable), same order as the input leads.
     pub lead_quality: Vec<f64>,
 }
+
+/// Bad input to [`detect`].
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum DetectError {
+    #[error("detect: no leads given")]
+    NoLeads,
+    #[error("detect: sampling rate must be finite and at least 100 Hz, got {0}")]
+    BadSampleRate(f64),
+    #[error("detect: lead {lead} has {len} samples but lead 0 has {expected}")]
+    LengthMismatch { lead: usize, len: usize, expected: usize },
+    #[error("detect: band-pass upper edge {hi_hz} Hz must be below half the sampling rate {fs} Hz")]
+    BandAboveNyquist { hi_hz: f64, fs: f64 },
+    #[error("detect: invalid configuration: {}", .0.iter().map(|e| e.to_string()).collect::<Vec<_>>().join("; "))]
+    Config(Vec<ParamError>),
+}
+
+/// Parameters of QRS detection (`[detect]` table of `pipeline.toml`).
+///
+/// Defaults follow Pan and Tompkins (1985) where the paper gives a value; the
+/// others are this crate's choices, documented per field.
+#[derive(Deserialize, Serialize, Clone, Debug, PartialEq)]
+#[serde(deny_unknown_fields, default)]
+pub struct DetectConfig {
+    /// Band-pass lower edge (Hz). Paper: 5 Hz.
+    pub bandpass_low_hz: f64,
+    /// Band-pass upper edge (Hz). Paper: passband about 5–15 Hz.
+    pub bandpass_high_hz: f64,
+    /// Butterworth order of each edge (2 or 4), applied forward and backward.
+    pub bandpass_order: usize,
+    /// Moving-window integration width (ms). Paper: 150 ms.
+    pub mwi_window_ms: f64,
+    /// Refractory period after a QRS (ms). Paper: 200 ms.
+    pub refractory_ms: f64,
+    /// Interval after a QRS in which a candidate must pass the slope test (ms). Paper: 360 ms.
+    pub t_wave_window_ms: f64,
+    /// A candidate in the T-wave window whose largest slope is below this
+    /// fraction of the previous QRS's is a T wave. Paper: 0.5.
+    pub t_wave_slope_ratio: f64,
+    /// Search back when no QRS for this multiple of the regular RR average. Paper: 1.66.
+    pub searchback_rr_fraction: f64,
+    /// Second threshold as a fraction of the first (used in search-back). Paper: 0.5.
+    pub searchback_threshold_factor: f64,
+    /// First threshold = noise level + this fraction of (signal − noise). Paper: 0.25.
+    pub threshold_fraction: f64,
+    /// Weight of a new peak in the signal level update. Paper: 0.125.
+    pub signal_peak_weight: f64,
+    /// Weight of a search-back peak in the signal level update. Paper: 0.25.
+    pub searchback_peak_weight: f64,
+    /// Weight of a new peak in the noise level update. Paper: 0.125.
+    pub noise_peak_weight: f64,
+    /// Thresholds are multiplied by this when the rhythm is irregular. Paper: 0.5.
+    pub irregular_threshold_factor: f64,
+    /// Number of RR intervals in each running average. Paper: 8.
+    pub rr_average_beats: usize,
+    /// Low limit of a regular RR, fraction of the regular average. Paper: 0.92.
+    pub rr_low_fraction: f64,
+    /// High limit of a regular RR, fraction of the regular average. Paper: 1.16.
+    pub rr_high_fraction: f64,
+    /// Learning phase length (ms). Paper: 2 s.
+    pub learning_ms: f64,
+    /// Initial signal level = this fraction of the learning-phase maximum (from memory: 1/3).
+    pub learning_signal_fraction: f64,
+    /// Initial noise level = this fraction of the learning-phase mean (from memory: 1/2).
+    pub learning_noise_fraction: f64,
+    /// Block length for lead scales and quality (ms).
+    pub fusion_block_ms: f64,
+    /// Number of blocks (odd) over which each lead's beat level is the median block maximum.
+    pub fusion_scale_blocks: usize,
+    /// Percentile of a lead's integrated signal taken as its background between beats.
+    pub quality_background_percentile: f64,
+    /// Lead weight = (peakiness / best lead's peakiness) to this power.
+    pub quality_weight_power: f64,
+    /// A lead whose peak-to-peak amplitude over `flat_window_ms` is below this is flat (mV).
+    pub flat_ptp_mv: f64,
+    /// Window for the flat and saturation tests (ms).
+    pub flat_window_ms: f64,
+    /// A window whose band-passed peak-to-peak is below this while the lead moves is
+    /// saturated (clipped or decaying after a clip) (mV).
+    pub saturation_bp_ptp_mv: f64,
+    /// Identical consecutive samples for at least this long at the lead's extreme are a clip (ms).
+    pub saturation_run_ms: f64,
+    /// A lead whose peakiness (median block maximum over background) is below
+    /// this is noise there; every lead below it: the block is unreadable.
+    pub noise_ratio_max: f64,
+    /// ... and only when its background (integrated signal between beats) is at
+    /// least this fraction of its usual beat level over the record.
+    pub noise_background_fraction: f64,
+    /// Shortest unreadable stretch reported (ms).
+    pub unreadable_min_ms: f64,
+    /// The combined band-passed energy is smoothed over this window before its
+    /// peak is taken as the fiducial point, so that two lobes of nearly equal
+    /// height cannot swap from one beat (or sampling rate) to the next (ms).
+    pub fiducial_smoothing_ms: f64,
+    /// Half-width of the QRS window used for template correlation (ms).
+    pub template_half_width_ms: f64,
+    /// Beats correlating at least this with the dominant template have dominant morphology.
+    pub label_corr_min: f64,
+    /// QRS wider than the dominant beats by more than this is wide (ms).
+    pub label_width_excess_ms: f64,
+    /// Fraction of the peak band-passed energy that delimits the QRS for its width.
+    pub label_width_energy_fraction: f64,
+    /// A beat is premature when its RR is below this fraction of the local mean RR.
+    pub label_premature_fraction: f64,
+}
+
+impl Default for DetectConfig {
+    fn default() -> Self {
+        Self {
+            bandpass_low_hz: 5.0,
+            bandpass_high_hz: 15.0,
+            bandpass_order: 2,
+            mwi_window_ms: 150.0,
+            refractory_ms: 200.0,
+            t_wave_window_ms: 360.0,
+            t_wave_slope_ratio: 0.5,
+            searchback_rr_fraction: 1.66,
+            searchback_threshold_factor: 0.5,
+            threshold_fraction: 0.25,
+            signal_peak_weight: 0.125,
+            searchback_peak_weight: 0.25,
+            noise_peak_weight: 0.125,
+            irregular_threshold_factor: 0.5,
+            rr_average_beats: 8,
+            rr_low_fraction: 0.92,
+            rr_high_fraction: 1.16,
+            learning_ms: 2000.0,
+            learning_signal_fraction: 1.0 / 3.0,
+            learning_noise_fraction: 0.5,
+            fusion_block_ms: 2000.0,
+            fusion_scale_blocks: 5,
+            quality_background_percentile: 30.0,
+            quality_weight_power: 2.0,
+            flat_ptp_mv: 0.01,
+            flat_window_ms: 1000.0,
+            saturation_bp_ptp_mv: 0.005,
+            saturation_run_ms: 40.0,
+            noise_ratio_max: 8.0,
+            noise_background_fraction: 0.05,
+            unreadable_min_ms: 1000.0,
+            fiducial_smoothing_ms: 40.0,
+            template_half_width_ms: 100.0,
+            label_corr_min: 0.85,
+            label_width_excess_ms: 30.0,
+            label_width_energy_fraction: 0.05,
+            label_premature_fraction: 0.85,
+        }
+    }
+}
+
+impl DetectConfig {
+    /// Range checks, keys reported under `detect.`.
+    pub fn validate(&self) -> Result<(), Vec<ParamError>> {
+        let mut c = Checker::new("detect");
+        c.range("bandpass_low_hz", self.bandpass_low_hz, 0.5, 30.0, "Hz")
+            .range("bandpass_high_hz", self.bandpass_high_hz, 5.0, 60.0, "Hz")
+            .require(
+                self.bandpass_low_hz < self.bandpass_high_hz,
+                "bandpass_high_hz",
+                "above bandpass_low_hz",
+                self.bandpass_high_hz,
+            )
+            .one_of("bandpass_order", &self.bandpass_order, &[2, 4])
+            .range("mwi_window_ms", self.mwi_window_ms, 50.0, 400.0, "ms")
+            .range("refractory_ms", self.refractory_ms, 100.0, 400.0, "ms")
+            .range("t_wave_window_ms", self.t_wave_window_ms, 200.0, 600.0, "ms")
+            .range("t_wave_slope_ratio", self.t_wave_slope_ratio, 0.0, 1.0, "")
+            .range("searchback_rr_fraction", self.searchback_rr_fraction, 1.1, 3.0, "")
+            .range("searchback_threshold_factor", self.searchback_threshold_factor, 0.1, 1.0, "")
+            .range("threshold_fraction", self.threshold_fraction, 0.05, 0.9, "")
+            .range("signal_peak_weight", self.signal_peak_weight, 0.01, 1.0, "")
+            .range("searchback_peak_weight", self.searchback_peak_weight, 0.01, 1.0, "")
+            .range("noise_peak_weight", self.noise_peak_weight, 0.01, 1.0, "")
+            .range("irregular_threshold_factor", self.irregular_threshold_factor, 0.1, 1.0, "")
+            .range("rr_average_beats", self.rr_average_beats as f64, 1.0, 64.0, "beats")
+            .range("rr_low_fraction", self.rr_low_fraction, 0.5, 1.0, "")
+            .range("rr_high_fraction", self.rr_high_fraction, 1.0, 2.0, "")
+            .range("learning_ms", self.learning_ms, 500.0, 10000.0, "ms")
+            .range("learning_signal_fraction", self.learning_signal_fraction, 0.01, 1.0, "")
+            .range("learning_noise_fraction", self.learning_noise_fraction, 0.0, 1.0, "")
+            .range("fusion_block_ms", self.fusion_block_ms, 500.0, 20000.0, "ms")
+            .range("fusion_scale_blocks", self.fusion_scale_blocks as f64, 1.0, 51.0, "blocks")
+            .require(
+                self.fusion_scale_blocks % 2 == 1,
+                "fusion_scale_blocks",
+                "an odd number",
+                self.fusion_scale_blocks,
+            )
+            .range("quality_background_percentile", self.quality_background_percentile, 1.0, 90.0, "%")
+            .range("quality_weight_power", self.quality_weight_power, 0.0, 10.0, "")
+            .range("flat_ptp_mv", self.flat_ptp_mv, 0.0, 1.0, "mV")
+            .range("flat_window_ms", self.flat_window_ms, 100.0, 10000.0, "ms")
+            .range("saturation_bp_ptp_mv", self.saturation_bp_ptp_mv, 0.0, 1.0, "mV")
+            .range("saturation_run_ms", self.saturation_run_ms, 4.0, 2000.0, "ms")
+            .range("noise_ratio_max", self.noise_ratio_max, 0.0, 100.0, "")
+            .range("noise_background_fraction", self.noise_background_fraction, 0.0, 10.0, "")
+            .range("unreadable_min_ms", self.unreadable_min_ms, 0.0, 60000.0, "ms")
+            .range("fiducial_smoothing_ms", self.fiducial_smoothing_ms, 0.0, 100.0, "ms")
+            .range("template_half_width_ms", self.template_half_width_ms, 40.0, 300.0, "ms")
+            .range("label_corr_min", self.label_corr_min, 0.0, 1.0, "")
+            .range("label_width_excess_ms", self.label_width_excess_ms, 0.0, 200.0, "ms")
+            .range("label_width_energy_fraction", self.label_width_energy_fraction, 0.001, 0.9, "")
+            .range("label_premature_fraction", self.label_premature_fraction, 0.3, 1.0, "");
+        c.finish()
+    }
+}
+
+fn check_input(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Result<(), DetectError> {
+    cfg.validate().map_err(DetectError::Config)?;
+    if !(fs.is_finite() && fs >= 100.0) {
+        return Err(DetectError::BadSampleRate(fs));
+    }
+    if cfg.bandpass_high_hz >= fs / 2.0 {
+        return Err(DetectError::BandAboveNyquist { hi_hz: cfg.bandpass_high_hz, fs });
+    }
+    let Some(first) = leads.first() else {
+        return Err(DetectError::NoLeads);
+    };
+    for (i, l) in leads.iter().enumerate() {
+        if l.len() != first.len() {
+            return Err(DetectError::LengthMismatch { lead: i, len: l.len(), expected: first.len() });
+        }
+    }
+    Ok(())
+}
+
+/// Detect, place and label the beats of one record from all its leads.
+///
+/// Non-finite samples (gaps) are treated as a flat lead at that place.
+pub fn detect(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Result<Detection, DetectError> {
+    check_input(leads, fs, cfg)?;
+    Ok(fuse::detect_fused(leads, fs, cfg))
+}
+
+/// Single-lead Pan–Tompkins: QRS fiducial points (extremum of the band-passed
+/// lead within ±half the integration window of each integrated-signal peak).
+///
+/// Invalid `fs` or configuration yields no beats; use [`detect`] for typed errors.
+pub fn detect_lead(x: &[f64], fs: f64, cfg: &DetectConfig) -> Vec<usize> {
+    if check_input(&[x], fs, cfg).is_err() || x.len() < 3 {
+        return Vec::new();
+    }
+    let clean: Vec<f64> = x.iter().map(|v| if v.is_finite() { *v } else { 0.0 }).collect();
+    let f = pt::lead_features(&clean, fs, cfg);
+    let filt: Vec<f64> = f.bp.iter().map(|v| v.abs()).collect();
+    let slope: Vec<f64> = f.d2.iter().map(|v| v.sqrt()).collect();
+    let beats = pt::decide(&f.mwi, &filt, &slope, fs, cfg);
+    let h = pt::ms_to_samples(cfg.mwi_window_ms, fs) / 2;
+    let mut out: Vec<usize> = beats
+        .iter()
+        .map(|b| fuse::argmax_in(&filt, b.index.saturating_sub(h), b.index + h + 1))
+        .collect();
+    out.dedup();
+    out
+}
+
+/// Counts of a beat-by-beat comparison.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct MatchStats {
+    /// Reference beats with a detection within the window.
+    pub tp: usize,
+    /// Reference beats without one.
+    pub fn_: usize,
+    /// Detections matched to no reference beat.
+    pub fp: usize,
+}
+
+impl MatchStats {
+    /// Sensitivity tp / (tp + fn), 1 when there is no reference beat.
+    pub fn sensitivity(&self) -> f64 {
+        if self.tp + self.fn_ == 0 {
+            1.0
+        } else {
+            self.tp as f64 / (self.tp + self.fn_) as f64
+        }
+    }
+    /// Positive predictivity tp / (tp + fp), 1 when nothing was detected.
+    pub fn positive_predictivity(&self) -> f64 {
+        if self.tp + self.fp == 0 {
+            1.0
+        } else {
+            self.tp as f64 / (self.tp + self.fp) as f64
+        }
+    }
+    /// Sum of two comparisons.
+    pub fn add(&mut self, o: MatchStats) {
+        self.tp += o.tp;
+        self.fn_ += o.fn_;
+        self.fp += o.fp;
+    }
+}
+
+/// One-to-one matching of detections to reference beats: a pair matches when
+/// `|d − r| <= window` (samples). Both lists must be sorted ascending.
+///
+/// Each reference beat, in time order, takes the earliest unused detection
+/// that is still within its window; on a line this greedy order gives the
+/// largest possible number of pairs (the same argument as for interval
+/// scheduling), so `tp` is the maximum matching.
+pub fn match_beats(reference: &[i64], detected: &[i64], window: i64) -> MatchStats {
+    let mut j = 0usize;
+    let mut tp = 0usize;
+    for &r in reference {
+        while j < detected.len() && detected[j] < r - window {
+            j += 1;
+        }
+        if j < detected.len() && detected[j] <= r + window {
+            tp += 1;
+            j += 1;
+        }
+    }
+    MatchStats { tp, fn_: reference.len() - tp, fp: detected.len() - tp }
+}
+
+#[cfg(test)]
+mod tests;

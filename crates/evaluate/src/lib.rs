@@ -1,1 +1,896 @@
-//! TODO
+//! Validation of tendline's outputs against expert-annotated reference databases.
+//!
+//! This crate scores a finished run directory (`annotations/<record>.mark` global
+//! marks, `annotations/<record>.leadmark` per-lead marks, `windows.csv` window QT)
+//! against reference annotations in WFDB format, and writes a report a reviewer can
+//! check: `report.json` (every number), `report.md` (summary) and `report.html`
+//! (self-contained page with SVG plots).
+//!
+//! References (chosen with [`ReferenceKind`], `Auto` uses whatever exists):
+//! - beats: `<record>.atr` (every beat); for LUDB-style data without `.atr`, the QRS
+//!   peaks of the lead files clustered across leads;
+//! - global boundaries: `<record>.q1c` (selected beats; QTDB annotator 1), with
+//!   `<record>.q2c` (annotator 2) scored against it the same way as a human reference;
+//! - per-lead boundaries: `<record>.<lead name lowercased>` (LUDB), the lead name
+//!   mapped to the signal index through the record header's descriptions.
+//!
+//! Numerical conventions:
+//! - Times are sample indices (0-based) in the record's own rate; errors are
+//!   converted to ms as `samples · 1000 / fs` and are signed **test − reference**.
+//! - Windows are inclusive and rounded down to whole samples:
+//!   `floor(window_ms · fs / 1000)` (150 ms at 250 Hz = 37 samples).
+//! - SD is the sample SD (n − 1); the 95th percentile of |error| interpolates
+//!   linearly at position 0.95·(n − 1); "mean of per-record SDs" averages the SDs of
+//!   records with at least two errors.
+//! - CSE pass: pooled SD ≤ the CSE tolerance of the fiducial ([`waves::Fiducial::cse_tolerance_ms`]).
+//! - Bland–Altman limits: bias ± 1.96 SD of the differences.
+//!
+//! The matching and parsing rules are in [`matching`], [`waves`] and [`score`]; the
+//! Python cross-check `tests/python/test_validation_crosscheck.py` re-implements
+//! them independently on the `wfdb` package.
+//!
+//! Files read:
+//! - `<run>/annotations/<record>.mark` (global marks; any `chan`), `<record>.leadmark`
+//!   (per-lead marks, `chan` = signal index in the input header), WFDB annotation
+//!   files with the boundary convention of [`waves`]; aux text is ignored.
+//! - `<run>/windows.csv`: header row, columns found by name; `record`, `start_s`,
+//!   `end_s` required, `qt_ms` and `qt_superimposed_ms` used when present.
+//! - `<data>/<record>.hea`: the first line gives the rate, signal lines the lead names.
+//!
+//! Files written by [`write_report`] (in `out_dir`):
+//! - `report.json`: [`ValidationReport`] serialised (`schema` = [`report::SCHEMA_VERSION`]);
+//!   top-level keys `database`, `protocol`, `records`, `beats`, `global`, `per_lead`,
+//!   `qt`, `human`, `worst_beats`, `warnings`; sections absent for lack of a
+//!   reference are `null`; unavailable numbers (e.g. SD of one value) are `null`.
+//! - `report.md`: the headline tables; `report.html`: tables and inline SVG plots.
+//!
+//! The regression gate: [`Floors`] (TOML, format in [`floors`]) and [`check_floors`].
+
+pub mod error;
+pub mod floors;
+pub mod html;
+pub mod inputs;
+pub mod markdown;
+pub mod matching;
+pub mod report;
+pub mod score;
+pub mod stats;
+pub mod waves;
+
+pub use error::EvalError;
+pub use floors::{check_floors, Floors};
+pub use report::ValidationReport;
+pub use waves::{BeatMarks, Fiducial, Wave};
+
+use inputs::{existing, read_ann, read_header, HeaderInfo};
+use matching::{beat_counts, window_samples, Counts};
+use report::{BeatScore, BeatSection, HumanSection, Protocol, QtSection, Strip, WorstBeat};
+use score::{RecordScore, ScoreConfig};
+use serde::{Deserialize, Serialize};
+use stats::BlandAltman;
+use std::collections::{BTreeMap, BTreeSet};
+use std::path::{Path, PathBuf};
+use tendline_params::{Checker, ParamError};
+use waves::{parse_beats, parse_beats_by_chan, ParsedBeats};
+
+/// Which reference annotations to score against.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum ReferenceKind {
+    /// Every kind whose files exist: `.atr` beats, `.q1c` global marks, lead files.
+    #[default]
+    Auto,
+    /// Beats only (`.atr`, or the QRS marks of lead files).
+    Beats,
+    /// Global boundaries only (`.q1c`, with `.q2c` as human reference).
+    Global,
+    /// Per-lead boundaries only (lead files).
+    PerLead,
+}
+
+impl std::fmt::Display for ReferenceKind {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(match self {
+            ReferenceKind::Auto => "auto",
+            ReferenceKind::Beats => "beats",
+            ReferenceKind::Global => "global",
+            ReferenceKind::PerLead => "per-lead",
+        })
+    }
+}
+
+/// Options of a validation run (table `validate`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct ValidateOptions {
+    /// Finished run directory (holds `annotations/` and `windows.csv`).
+    pub run_dir: PathBuf,
+    /// Folder with the reference records (`.hea`, `.dat`, annotation files).
+    pub data_dir: PathBuf,
+    /// Which references to use (default `auto`).
+    pub reference: ReferenceKind,
+    /// Where [`validate_and_write`] puts the report files.
+    pub out_dir: PathBuf,
+    /// Records to score; default every `annotations/*.mark` with a header in `data_dir`.
+    pub records: Option<Vec<String>>,
+    /// Database name in the report and floors; default the name of `data_dir`.
+    pub database: Option<String>,
+    /// Beat matching window on QRS peaks, ms (default 150, ANSI/AAMI EC57 practice).
+    pub beat_window_ms: f64,
+    /// Largest |error| for a fiducial to count as detected, ms (default 150).
+    pub fiducial_window_ms: f64,
+    /// Fewest reference beats inside a window for window-QT scoring (default 3).
+    pub min_window_beats: usize,
+    /// Number of worst beats drawn in the HTML report (default 8).
+    pub worst_beats: usize,
+    /// Length of the signal strip drawn around a worst beat, s (default 1.5).
+    pub strip_s: f64,
+    /// Score `.q2c` against `.q1c` as human reference where both exist (default true).
+    pub human_reference: bool,
+}
+
+impl Default for ValidateOptions {
+    fn default() -> Self {
+        ValidateOptions {
+            run_dir: PathBuf::new(),
+            data_dir: PathBuf::new(),
+            reference: ReferenceKind::Auto,
+            out_dir: PathBuf::new(),
+            records: None,
+            database: None,
+            beat_window_ms: 150.0,
+            fiducial_window_ms: 150.0,
+            min_window_beats: 3,
+            worst_beats: 8,
+            strip_s: 1.5,
+            human_reference: true,
+        }
+    }
+}
+
+impl ValidateOptions {
+    /// Check value ranges; every violation is named by its `validate.<key>`.
+    pub fn validate(&self) -> Result<(), Vec<ParamError>> {
+        let mut c = Checker::new("validate");
+        c.require(
+            !self.run_dir.as_os_str().is_empty(),
+            "run_dir",
+            "a run directory",
+            "an empty path",
+        )
+        .require(
+            !self.data_dir.as_os_str().is_empty(),
+            "data_dir",
+            "a data directory",
+            "an empty path",
+        )
+        .range("beat_window_ms", self.beat_window_ms, 10.0, 500.0, "ms")
+        .range(
+            "fiducial_window_ms",
+            self.fiducial_window_ms,
+            10.0,
+            1000.0,
+            "ms",
+        )
+        .range(
+            "min_window_beats",
+            self.min_window_beats as f64,
+            1.0,
+            1000.0,
+            "beats",
+        )
+        .range("worst_beats", self.worst_beats as f64, 0.0, 100.0, "beats")
+        .range("strip_s", self.strip_s, 0.5, 10.0, "s");
+        if let Some(r) = &self.records {
+            c.require(
+                !r.is_empty(),
+                "records",
+                "a non-empty list (or absent for all)",
+                "[]",
+            );
+        }
+        c.finish()
+    }
+}
+
+/// Name of the global reference combined from lead files.
+const COMBINED_LABEL: &str =
+    "lead files combined (earliest onset, latest offset, median peak across leads)";
+
+/// What was loaded for one record.
+impl Loaded {
+    /// The global reference: `.q1c` where present, else the combined lead files.
+    fn global_ref(&self) -> Option<&ParsedBeats> {
+        self.q1c.as_ref().or(self.combined.as_ref())
+    }
+}
+
+struct Loaded {
+    name: String,
+    hdr: HeaderInfo,
+    test: ParsedBeats,
+    test_lead: Option<BTreeMap<u8, ParsedBeats>>,
+    atr: Option<Vec<i64>>,
+    q1c: Option<ParsedBeats>,
+    q2c: Option<ParsedBeats>,
+    /// Global reference combined from the lead files (only where there is no `.q1c`).
+    combined: Option<ParsedBeats>,
+    /// Lead files by signal index.
+    leads: BTreeMap<u8, ParsedBeats>,
+}
+
+fn load_record(
+    opts: &ValidateOptions,
+    name: &str,
+    warnings: &mut Vec<String>,
+) -> Result<Loaded, EvalError> {
+    let hdr = read_header(&opts.data_dir, name)?;
+    let ann_dir = opts.run_dir.join("annotations");
+    let mark = ann_dir.join(format!("{name}.mark"));
+    if !mark.is_file() {
+        return Err(EvalError::Record {
+            record: name.into(),
+            message: format!("the run has no global marks file {}", mark.display()),
+        });
+    }
+    let test = parse_beats(&read_ann(&mark)?, hdr.fs);
+    let want_lead = matches!(opts.reference, ReferenceKind::Auto | ReferenceKind::PerLead);
+    let mut leads = BTreeMap::new();
+    {
+        for (idx, lead) in hdr.leads.iter().enumerate() {
+            let ext = lead.trim().to_lowercase();
+            if ext.is_empty() || ext.contains(['/', '\\', ' ']) {
+                continue;
+            }
+            if let Some(p) = existing(&opts.data_dir, name, &ext) {
+                let mut anns = read_ann(&p)?;
+                for a in &mut anns {
+                    a.chan = idx as u8;
+                }
+                leads.insert(idx as u8, parse_beats(&anns, hdr.fs));
+            }
+        }
+    }
+    let leadmark = ann_dir.join(format!("{name}.leadmark"));
+    let test_lead = if want_lead && !leads.is_empty() {
+        if leadmark.is_file() {
+            Some(parse_beats_by_chan(&read_ann(&leadmark)?, hdr.fs))
+        } else {
+            warnings.push(format!(
+                "{name}: lead reference files exist but the run has no {}; per-lead scoring skipped",
+                leadmark.display()
+            ));
+            None
+        }
+    } else {
+        None
+    };
+    let atr = match existing(&opts.data_dir, name, "atr") {
+        Some(p) => Some(
+            read_ann(&p)?
+                .iter()
+                .filter(|a| a.is_beat())
+                .map(|a| a.sample)
+                .collect(),
+        ),
+        None => None,
+    };
+    let parse_opt = |ext: &str| -> Result<Option<ParsedBeats>, EvalError> {
+        match existing(&opts.data_dir, name, ext) {
+            Some(p) => Ok(Some(parse_beats(&read_ann(&p)?, hdr.fs))),
+            None => Ok(None),
+        }
+    };
+    let q1c = parse_opt("q1c")?;
+    let q2c = if opts.human_reference {
+        parse_opt("q2c")?
+    } else {
+        None
+    };
+    let combined = (q1c.is_none() && !leads.is_empty()).then(|| {
+        let lists: Vec<&[BeatMarks]> = leads
+            .values()
+            .map(|p: &ParsedBeats| p.beats.as_slice())
+            .collect();
+        ParsedBeats {
+            beats: waves::combine_leads(&lists, window_samples(opts.beat_window_ms, hdr.fs)),
+            span: leads
+                .values()
+                .filter_map(|p: &ParsedBeats| p.span)
+                .reduce(|a, b| (a.0.min(b.0), a.1.max(b.1))),
+            ..Default::default()
+        }
+    });
+    Ok(Loaded {
+        name: name.to_string(),
+        hdr,
+        test,
+        test_lead,
+        atr,
+        q1c,
+        q2c,
+        combined,
+        leads,
+    })
+}
+
+/// Cluster QRS peaks of several leads into beats: peaks sorted, a new beat starts when
+/// a peak is more than `max_dist` after the first peak of the current beat; the beat
+/// time is the median of its peaks (lower middle of an even count, rounded down).
+pub fn cluster_peaks(lists: &[Vec<i64>], max_dist: i64) -> Vec<i64> {
+    let mut all: Vec<i64> = lists.iter().flatten().copied().collect();
+    all.sort_unstable();
+    let mut out = Vec::new();
+    let mut cur: Vec<i64> = Vec::new();
+    for p in all {
+        if cur.first().is_some_and(|&f| p - f > max_dist) {
+            out.push(median_i64(&cur));
+            cur.clear();
+        }
+        cur.push(p);
+    }
+    if !cur.is_empty() {
+        out.push(median_i64(&cur));
+    }
+    out
+}
+
+fn median_i64(sorted: &[i64]) -> i64 {
+    let n = sorted.len();
+    if n % 2 == 1 {
+        sorted[n / 2]
+    } else {
+        (sorted[n / 2 - 1] + sorted[n / 2]).div_euclid(2)
+    }
+}
+
+fn waves_present(parsed: &[&ParsedBeats]) -> BTreeSet<Wave> {
+    let mut s = BTreeSet::new();
+    for p in parsed {
+        for b in &p.beats {
+            s.insert(Wave::Qrs);
+            if b.has_wave(Wave::P) {
+                s.insert(Wave::P);
+            }
+            if b.has_wave(Wave::T) {
+                s.insert(Wave::T);
+            }
+        }
+    }
+    s
+}
+
+fn protocol(opts: &ValidateOptions) -> Protocol {
+    Protocol {
+        beat_window_ms: opts.beat_window_ms,
+        fiducial_window_ms: opts.fiducial_window_ms,
+        min_window_beats: opts.min_window_beats,
+        rules: vec![
+            "Windows in samples: floor(window_ms * fs / 1000), inclusive.".into(),
+            "Beat pairing: all (reference, test) pairs with |dt| <= window are candidates; taken by increasing |dt| (ties: lower reference index, then lower test index); one-to-one.".into(),
+            "Beat references: .atr beat codes (WFDB isqrs set); LUDB: QRS peaks of all lead files clustered (new beat when > window after the cluster's first peak; median time); test beats outside the reference's annotated span are not counted (LUDB).".into(),
+            "Waves: peak mark with '(' immediately before (onset) and ')' immediately after (offset); P belongs to the next QRS (last P before it, <= 600 ms), T to the previous QRS (first T after it, <= 800 ms).".into(),
+            "Fiducials: reference beats paired to test beats by QRS peak; a reference fiducial is detected when the paired test beat marks it within the fiducial window; error = test - reference (ms); undetected and unpaired reference fiducials are false negatives.".into(),
+            "False positives (positive predictivity): on paired beats only, where the reference annotates the wave exhaustively (any file of that reference kind marks it) and the reference beat lacks the whole wave, or the test mark lies outside the window.".into(),
+            "Statistics: SD with n - 1; mean of per-record SDs over records with >= 2 errors; p95 of |error| linear interpolation; CSE pass = pooled SD <= CSE 1985 tolerance (P on 10.2, P end 12.7, QRS on 6.5, QRS end 11.6, T end 30.6 ms).".into(),
+            "QT: beat QT = T end - QRS on on paired beats where both sides mark both (no fiducial window); window QT = windows.csv qt_superimposed_ms / qt_ms vs mean reference beat QT of reference beats with QRS peak in [start_s, end_s), windows with >= min_window_beats; Bland-Altman limits = bias +/- 1.96 SD.".into(),
+            "Global reference without .q1c (LUDB): beats of all lead files clustered by QRS peak as above; per beat the earliest onset, latest offset and median peak over the leads that mark them (common practice for global boundaries).".into(),
+            "Human reference: .q2c (annotator 2) scored against .q1c (annotator 1) with the same code, on the beats both annotators selected (.q1c beats paired with a .q2c beat) and the fiducials annotator 2 marks; the tool is shown on the same beats and fiducials.".into(),
+        ],
+    }
+}
+
+/// Score a run against the references. Does not write anything.
+pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
+    opts.validate().map_err(EvalError::Options)?;
+    if !opts.data_dir.is_dir() {
+        return Err(EvalError::NoRecords(format!(
+            "data directory {} does not exist",
+            opts.data_dir.display()
+        )));
+    }
+    let names = match &opts.records {
+        Some(r) => r.clone(),
+        None => inputs::discover_records(&opts.run_dir, &opts.data_dir)?,
+    };
+    if names.is_empty() {
+        return Err(EvalError::NoRecords(format!(
+            "no {}/annotations/*.mark has a header in {}",
+            opts.run_dir.display(),
+            opts.data_dir.display()
+        )));
+    }
+    let mut warnings = Vec::new();
+    let mut recs = Vec::with_capacity(names.len());
+    for n in &names {
+        recs.push(load_record(opts, n, &mut warnings)?);
+    }
+    let kind = opts.reference;
+    let want_beats = matches!(kind, ReferenceKind::Auto | ReferenceKind::Beats);
+    let want_global = matches!(kind, ReferenceKind::Auto | ReferenceKind::Global);
+    let want_lead = matches!(kind, ReferenceKind::Auto | ReferenceKind::PerLead);
+
+    // Beats.
+    let mut beats = None;
+    if want_beats {
+        let mut total = Counts::default();
+        let mut per = Vec::new();
+        let mut sources = BTreeSet::new();
+        for r in &recs {
+            let w = window_samples(opts.beat_window_ms, r.hdr.fs);
+            let test: Vec<i64> = r.test.beats.iter().map(|b| b.qrs_peak).collect();
+            let (reference, span, src) = if let Some(a) = &r.atr {
+                (a.clone(), None, ".atr beat annotations")
+            } else if !r.leads.is_empty() {
+                let lists: Vec<Vec<i64>> = r
+                    .leads
+                    .values()
+                    .map(|p| p.beats.iter().map(|b| b.qrs_peak).collect())
+                    .collect();
+                let span = r
+                    .leads
+                    .values()
+                    .filter_map(|p| p.span)
+                    .reduce(|a, b| (a.0.min(b.0), a.1.max(b.1)));
+                (
+                    cluster_peaks(&lists, w),
+                    span,
+                    "lead files (QRS peaks clustered across leads)",
+                )
+            } else {
+                continue;
+            };
+            sources.insert(src);
+            let (c, _) = beat_counts(&reference, &test, w, span);
+            total.add(&c);
+            per.push(BeatScore::from_counts(&r.name, &c));
+        }
+        if per.is_empty() {
+            if kind == ReferenceKind::Beats {
+                return Err(EvalError::NoRecords(format!(
+                    "no record has a beat reference (.atr or lead files) in {}",
+                    opts.data_dir.display()
+                )));
+            }
+        } else {
+            let key = |b: &BeatScore| b.sensitivity_pct.unwrap_or(0.0) + b.ppv_pct.unwrap_or(0.0);
+            per.sort_by(|a, b| key(a).total_cmp(&key(b)));
+            beats = Some(BeatSection {
+                reference: sources.into_iter().collect::<Vec<_>>().join(", "),
+                overall: BeatScore::from_counts("", &total),
+                per_record: per,
+            });
+        }
+    }
+
+    // Global boundaries.
+    let mut global = None;
+    let mut human = None;
+    let mut qt = None;
+    let mut global_scores: Vec<RecordScore> = Vec::new();
+    if want_global {
+        let refs: Vec<&ParsedBeats> = recs.iter().filter_map(|r| r.global_ref()).collect();
+        let mut labels = BTreeSet::new();
+        for r in &recs {
+            if r.q1c.is_some() {
+                labels.insert(".q1c (annotator 1)");
+            } else if r.combined.is_some() {
+                labels.insert(COMBINED_LABEL);
+            }
+        }
+        let ref_label = labels.into_iter().collect::<Vec<_>>().join(" + ");
+        if refs.is_empty() && kind == ReferenceKind::Global {
+            return Err(EvalError::NoRecords(format!(
+                "no record has a .q1c reference or lead reference files in {}",
+                opts.data_dir.display()
+            )));
+        }
+        if !refs.is_empty() {
+            let exhaustive = waves_present(&refs);
+            let fids = Fiducial::ALL.to_vec();
+            let ppv: Vec<Fiducial> = fids
+                .iter()
+                .copied()
+                .filter(|f| exhaustive.contains(&f.wave()))
+                .collect();
+            let cfg_for = |fs: f64, fiducials: Vec<Fiducial>| ScoreConfig {
+                fs,
+                beat_window: window_samples(opts.beat_window_ms, fs),
+                fiducial_window: window_samples(opts.fiducial_window_ms, fs),
+                exhaustive: exhaustive.clone(),
+                fiducials,
+            };
+            for r in &recs {
+                if let Some(q) = r.global_ref() {
+                    let mut s = RecordScore::new(&r.name, r.hdr.fs);
+                    s.add_channel(
+                        0,
+                        q.beats.clone(),
+                        r.test.beats.clone(),
+                        &cfg_for(r.hdr.fs, fids.clone()),
+                    );
+                    global_scores.push(s);
+                }
+            }
+            global = Some(report::build_section(
+                &ref_label,
+                "tendline .mark",
+                &global_scores,
+                &fids,
+                &ppv,
+                None,
+            ));
+            // Human reference.
+            let pairs: Vec<&Loaded> = recs
+                .iter()
+                .filter(|r| r.q1c.is_some() && r.q2c.is_some())
+                .collect();
+            if !pairs.is_empty() {
+                let q2: Vec<&ParsedBeats> = pairs.iter().filter_map(|r| r.q2c.as_ref()).collect();
+                let marked = waves_present(&q2);
+                let hf: Vec<Fiducial> = fids
+                    .iter()
+                    .copied()
+                    .filter(|f| marked.contains(&f.wave()))
+                    .collect();
+                let mut ann_scores = Vec::new();
+                let mut tool_scores = Vec::new();
+                for r in &pairs {
+                    let (Some(q1), Some(q2)) = (&r.q1c, &r.q2c) else {
+                        continue;
+                    };
+                    let cfg = cfg_for(r.hdr.fs, hf.clone());
+                    // Only the beats both annotators selected: annotator 2 marked a
+                    // subset of annotator 1's beats, and that choice is not an error.
+                    let p1: Vec<i64> = q1.beats.iter().map(|b| b.qrs_peak).collect();
+                    let p2: Vec<i64> = q2.beats.iter().map(|b| b.qrs_peak).collect();
+                    let common: Vec<BeatMarks> = matching::match_events(&p1, &p2, cfg.beat_window)
+                        .into_iter()
+                        .map(|(i, _)| q1.beats[i].clone())
+                        .collect();
+                    let mut a = RecordScore::new(&r.name, r.hdr.fs);
+                    a.add_channel(0, common.clone(), q2.beats.clone(), &cfg);
+                    let mut t = RecordScore::new(&r.name, r.hdr.fs);
+                    t.add_channel(0, common, r.test.beats.clone(), &cfg);
+                    ann_scores.push(a);
+                    tool_scores.push(t);
+                }
+                let ba = |s: &[RecordScore]| {
+                    let p: Vec<(f64, f64)> = s
+                        .iter()
+                        .flat_map(|x| x.qt_pairs.iter().map(|q| (q.0, q.1)))
+                        .collect();
+                    BlandAltman::from_pairs(&p)
+                };
+                human = Some(HumanSection {
+                    records: pairs.iter().map(|r| r.name.clone()).collect(),
+                    annotator: report::build_section(
+                        ".q1c (annotator 1)",
+                        ".q2c (annotator 2)",
+                        &ann_scores,
+                        &hf,
+                        &ppv,
+                        None,
+                    ),
+                    tool: report::build_section(
+                        ".q1c (annotator 1)",
+                        "tendline .mark",
+                        &tool_scores,
+                        &hf,
+                        &ppv,
+                        None,
+                    ),
+                    annotator_qt_beat: ba(&ann_scores),
+                    tool_qt_beat: ba(&tool_scores),
+                });
+            }
+            // QT.
+            let p: Vec<(f64, f64)> = global_scores
+                .iter()
+                .flat_map(|x| x.qt_pairs.iter().map(|q| (q.0, q.1)))
+                .collect();
+            let (ws, wsingle, n_w) = window_qt(opts, &recs, &mut warnings)?;
+            qt = Some(QtSection {
+                reference: ref_label.clone(),
+                beat: BlandAltman::from_pairs(&p),
+                beat_per_lead: None,
+                window_superimposed: ws,
+                window_single: wsingle,
+                windows_scored: n_w,
+            });
+        }
+    }
+
+    // Per-lead boundaries.
+    let mut per_lead = None;
+    let mut lead_scores: Vec<RecordScore> = Vec::new();
+    if want_lead {
+        let refs: Vec<&ParsedBeats> = recs.iter().flat_map(|r| r.leads.values()).collect();
+        if refs.is_empty() && kind == ReferenceKind::PerLead {
+            return Err(EvalError::NoRecords(format!(
+                "no record has lead reference files (<record>.<lead>) in {}",
+                opts.data_dir.display()
+            )));
+        }
+        if !refs.is_empty() {
+            let exhaustive = waves_present(&refs);
+            let fids = Fiducial::ALL.to_vec();
+            let ppv: Vec<Fiducial> = fids
+                .iter()
+                .copied()
+                .filter(|f| exhaustive.contains(&f.wave()))
+                .collect();
+            let mut names = BTreeMap::new();
+            for r in &recs {
+                let Some(tl) = &r.test_lead else { continue };
+                let cfg = ScoreConfig {
+                    fs: r.hdr.fs,
+                    beat_window: window_samples(opts.beat_window_ms, r.hdr.fs),
+                    fiducial_window: window_samples(opts.fiducial_window_ms, r.hdr.fs),
+                    exhaustive: exhaustive.clone(),
+                    fiducials: fids.clone(),
+                };
+                let mut s = RecordScore::new(&r.name, r.hdr.fs);
+                for (&ch, reference) in &r.leads {
+                    let test = tl.get(&ch).map(|p| p.beats.clone()).unwrap_or_default();
+                    s.add_channel(ch, reference.beats.clone(), test, &cfg);
+                }
+                names.insert(r.name.clone(), r.hdr.leads.clone());
+                lead_scores.push(s);
+            }
+            if !lead_scores.is_empty() {
+                per_lead = Some(report::build_section(
+                    "lead files (per-lead expert marks)",
+                    "tendline .leadmark",
+                    &lead_scores,
+                    &fids,
+                    &ppv,
+                    Some(&names),
+                ));
+                let p: Vec<(f64, f64)> = lead_scores
+                    .iter()
+                    .flat_map(|x| x.qt_pairs.iter().map(|q| (q.0, q.1)))
+                    .collect();
+                let ba = BlandAltman::from_pairs(&p);
+                match &mut qt {
+                    Some(q) => q.beat_per_lead = Some(ba),
+                    None => {
+                        qt = Some(QtSection {
+                            reference: "lead files".into(),
+                            beat: BlandAltman::default(),
+                            beat_per_lead: Some(ba),
+                            window_superimposed: None,
+                            window_single: None,
+                            windows_scored: 0,
+                        })
+                    }
+                }
+            }
+        }
+    }
+
+    let worst = worst_beats(opts, &recs, &global_scores, &lead_scores, &mut warnings);
+    let database = opts.database.clone().unwrap_or_else(|| {
+        opts.data_dir
+            .canonicalize()
+            .unwrap_or_else(|_| opts.data_dir.clone())
+            .file_name()
+            .map(|s| s.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "data".into())
+    });
+    Ok(ValidationReport {
+        schema: report::SCHEMA_VERSION,
+        generator: format!("tendline-evaluate {}", env!("CARGO_PKG_VERSION")),
+        database,
+        run_dir: opts.run_dir.display().to_string(),
+        data_dir: opts.data_dir.display().to_string(),
+        protocol: protocol(opts),
+        records: names,
+        beats,
+        global,
+        per_lead,
+        qt,
+        human,
+        worst_beats: worst,
+        warnings,
+    })
+}
+
+type WindowQt = (Option<BlandAltman>, Option<BlandAltman>, usize);
+
+fn window_qt(
+    opts: &ValidateOptions,
+    recs: &[Loaded],
+    warnings: &mut Vec<String>,
+) -> Result<WindowQt, EvalError> {
+    let path = opts.run_dir.join("windows.csv");
+    if !path.is_file() {
+        warnings.push(format!(
+            "{} not found: window QT not scored",
+            path.display()
+        ));
+        return Ok((None, None, 0));
+    }
+    let text = std::fs::read_to_string(&path).map_err(|source| EvalError::Io {
+        path: path.clone(),
+        source,
+    })?;
+    let rows = inputs::parse_windows_csv(&text, &path)?;
+    let by_name: BTreeMap<&str, &Loaded> = recs.iter().map(|r| (r.name.as_str(), r)).collect();
+    let (mut sup, mut single, mut n) = (Vec::new(), Vec::new(), 0);
+    for w in &rows {
+        let Some(r) = by_name.get(w.record.as_str()) else {
+            continue;
+        };
+        let Some(q) = r.global_ref() else { continue };
+        let (lo, hi) = (w.start_s * r.hdr.fs, w.end_s * r.hdr.fs);
+        let qts: Vec<f64> = q
+            .beats
+            .iter()
+            .filter(|b| (b.qrs_peak as f64) >= lo && (b.qrs_peak as f64) < hi)
+            .filter_map(|b| b.qt_samples())
+            .map(|s| s as f64 * 1000.0 / r.hdr.fs)
+            .collect();
+        if qts.len() < opts.min_window_beats {
+            continue;
+        }
+        n += 1;
+        let m = stats::mean(&qts).unwrap_or(f64::NAN);
+        if let Some(v) = w.qt_superimposed_ms {
+            sup.push((v, m));
+        }
+        if let Some(v) = w.qt_ms {
+            single.push((v, m));
+        }
+    }
+    let f = |v: Vec<(f64, f64)>| (!v.is_empty()).then(|| BlandAltman::from_pairs(&v));
+    Ok((f(sup), f(single), n))
+}
+
+fn worst_beats(
+    opts: &ValidateOptions,
+    recs: &[Loaded],
+    global: &[RecordScore],
+    lead: &[RecordScore],
+    warnings: &mut Vec<String>,
+) -> Vec<WorstBeat> {
+    if opts.worst_beats == 0 {
+        return Vec::new();
+    }
+    // Largest |error| of T end and QRS onset, pooled over the global and per-lead
+    // sections; one entry per beat.
+    let mut cand = Vec::new();
+    for (sec, scores) in [("global", global), ("per_lead", lead)] {
+        for s in scores {
+            for f in [Fiducial::TEnd, Fiducial::QrsOn] {
+                for e in s.errors.get(&f).into_iter().flatten() {
+                    cand.push((e.error_ms.abs(), sec, s, f, e.clone()));
+                }
+            }
+        }
+    }
+    cand.sort_by(|a, b| b.0.total_cmp(&a.0));
+    let mut seen = BTreeSet::new();
+    let mut out = Vec::new();
+    let mut cache: BTreeMap<String, Option<tendline_formats::Record>> = BTreeMap::new();
+    for (_, section, s, f, e) in cand {
+        if out.len() >= opts.worst_beats {
+            break;
+        }
+        if !seen.insert((section, s.record.clone(), e.chan, e.ref_index)) {
+            continue;
+        }
+        let Some((rb, tb)) = s.beats.get(&e.chan) else {
+            continue;
+        };
+        let reference = rb[e.ref_index].clone();
+        let test = tb[e.test_index].clone();
+        let hdr_leads = recs
+            .iter()
+            .find(|r| r.name == s.record)
+            .map(|r| r.hdr.leads.clone())
+            .unwrap_or_default();
+        let lead = hdr_leads.get(e.chan as usize).cloned().unwrap_or_default();
+        let rec = cache.entry(s.record.clone()).or_insert_with(|| {
+            let p = opts.data_dir.join(format!("{}.hea", s.record));
+            match tendline_formats::wfdb::read_record(&p) {
+                Ok(r) => Some(r),
+                Err(err) => {
+                    warnings.push(format!("worst-beat strip of {}: {err}", s.record));
+                    None
+                }
+            }
+        });
+        let strip = rec.as_ref().and_then(|r| {
+            let l = r.leads.get(e.chan as usize)?;
+            let before = (0.5 / 1.5 * opts.strip_s * s.fs).round() as i64;
+            let len = (opts.strip_s * s.fs).round() as i64;
+            let start = (reference.qrs_peak - before).max(0);
+            let end = (start + len).min(l.samples.len() as i64);
+            (end > start).then(|| Strip {
+                start,
+                samples: l.samples[start as usize..end as usize].to_vec(),
+                units: l.units.clone(),
+            })
+        });
+        out.push(WorstBeat {
+            record: s.record.clone(),
+            lead,
+            chan: e.chan,
+            section: section.into(),
+            fiducial: f,
+            error_ms: e.error_ms,
+            fs: s.fs,
+            reference,
+            test,
+            strip,
+        });
+    }
+    out
+}
+
+/// Write `report.json`, `report.md` and `report.html` into `out_dir` (created if needed).
+pub fn write_report(report: &ValidationReport, out_dir: &Path) -> Result<(), EvalError> {
+    std::fs::create_dir_all(out_dir).map_err(|source| EvalError::Io {
+        path: out_dir.to_path_buf(),
+        source,
+    })?;
+    let write = |name: &str, text: &str| -> Result<(), EvalError> {
+        let p = out_dir.join(name);
+        std::fs::write(&p, text).map_err(|source| EvalError::Io { path: p, source })
+    };
+    let json =
+        serde_json::to_string_pretty(report).map_err(|e| EvalError::Report(e.to_string()))?;
+    write("report.json", &(json + "\n"))?;
+    write("report.md", &markdown::render(report))?;
+    write("report.html", &html::render(report)?)?;
+    Ok(())
+}
+
+/// [`validate`] then [`write_report`] into `opts.out_dir`.
+pub fn validate_and_write(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
+    let r = validate(opts)?;
+    if opts.out_dir.as_os_str().is_empty() {
+        return Err(EvalError::Options(vec![ParamError {
+            key: "validate.out_dir".into(),
+            allowed: "an output directory".into(),
+            got: "an empty path".into(),
+        }]));
+    }
+    write_report(&r, &opts.out_dir)?;
+    Ok(r)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn cluster_peaks_merges_leads() {
+        // Lead A: 100, 600; lead B: 110, 590, 1200 → beats at medians.
+        let c = cluster_peaks(&[vec![100, 600], vec![110, 590, 1200]], 75);
+        assert_eq!(c, vec![105, 595, 1200]);
+        assert_eq!(cluster_peaks(&[vec![10, 20, 30]], 75), vec![20]);
+    }
+
+    #[test]
+    fn options_defaults_and_checks() {
+        let o = ValidateOptions::default();
+        let e = o.validate().unwrap_err();
+        assert!(e.iter().any(|x| x.key == "validate.run_dir"));
+        let o = ValidateOptions {
+            run_dir: "r".into(),
+            data_dir: "d".into(),
+            beat_window_ms: 5.0,
+            ..Default::default()
+        };
+        let e = o.validate().unwrap_err();
+        assert_eq!(e.len(), 1);
+        assert_eq!(e[0].key, "validate.beat_window_ms");
+        let o: ValidateOptions =
+            toml::from_str("run_dir = 'r'\ndata_dir = 'd'\nreference = 'per-lead'").unwrap();
+        assert_eq!(o.reference, ReferenceKind::PerLead);
+        assert!(o.validate().is_ok());
+        assert!(toml::from_str::<ValidateOptions>("bogus = 1").is_err());
+    }
+}

@@ -65,19 +65,13 @@ impl Record {
     }
 }
 
-/// Options of [`read_record`] (TOML table `input`).
-#[derive(Deserialize, Serialize, Clone, Debug, PartialEq)]
+/// Options of [`read_record`] (TOML table `input`). Default: every option unset.
+#[derive(Deserialize, Serialize, Clone, Debug, PartialEq, Default)]
 #[serde(deny_unknown_fields, default)]
 pub struct ReadOptions {
     /// Sampling rate in Hz for CSV files; overrides a rate given in the file.
     /// Default: none (the CSV must state it, see [`csv`]).
     pub csv_fs: Option<f64>,
-}
-
-impl Default for ReadOptions {
-    fn default() -> Self {
-        ReadOptions { csv_fs: None }
-    }
 }
 
 impl ReadOptions {
@@ -94,7 +88,9 @@ impl ReadOptions {
 /// Read a record, choosing the reader by extension: `.hea` (or a path without
 /// extension that has a sibling `.hea`) → WFDB, `.edf` → EDF/EDF+, `.csv` → CSV.
 pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatError> {
-    let ext = path.extension().map(|e| e.to_string_lossy().to_ascii_lowercase());
+    let ext = path
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase());
     match ext.as_deref() {
         Some("hea") => wfdb::read_record(path),
         Some("edf") => edf::read_edf(path),
@@ -102,9 +98,10 @@ pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatErro
         _ if wfdb::header_path_of(path).is_file() => wfdb::read_record(path),
         _ => Err(FormatError::Invalid {
             path: path.to_path_buf(),
-            message: "unknown input type: expected a .hea, .edf or .csv file, or a WFDB record path \
+            message:
+                "unknown input type: expected a .hea, .edf or .csv file, or a WFDB record path \
                       with a sibling .hea"
-                .into(),
+                    .into(),
         }),
     }
 }

@@ -67,21 +67,29 @@ pub fn parse_subjects(text: &str) -> Result<BTreeMap<String, SubjectRow>, String
         .lines()
         .enumerate()
         .filter(|(_, l)| !l.trim().is_empty() && !l.trim_start().starts_with('#'));
-    let (_, header) = lines.next().ok_or("empty subjects file: expected a header row")?;
+    let (_, header) = lines
+        .next()
+        .ok_or("empty subjects file: expected a header row")?;
     let cols: Vec<String> = header
         .split(',')
         .map(|c| c.trim().trim_matches('"').to_ascii_lowercase())
         .collect();
     let find = |name: &str| cols.iter().position(|c| c == name);
     let rec_col = find("record").ok_or_else(|| {
-        format!("header must have a `record` column; found columns: {}", cols.join(", "))
+        format!(
+            "header must have a `record` column; found columns: {}",
+            cols.join(", ")
+        )
     })?;
     let (sub_col, sex_col, age_col, tp_col) =
         (find("subject"), find("sex"), find("age"), find("timepoint"));
     let mut out = BTreeMap::new();
     for (i, line) in lines {
         let lineno = i + 1;
-        let cells: Vec<&str> = line.split(',').map(|c| c.trim().trim_matches('"')).collect();
+        let cells: Vec<&str> = line
+            .split(',')
+            .map(|c| c.trim().trim_matches('"'))
+            .collect();
         if cells.len() != cols.len() {
             return Err(format!(
                 "line {lineno}: expected {} fields, got {}",
@@ -90,14 +98,18 @@ pub fn parse_subjects(text: &str) -> Result<BTreeMap<String, SubjectRow>, String
             ));
         }
         let get = |c: Option<usize>| {
-            c.map(|c| cells[c]).filter(|v| !v.is_empty()).map(str::to_string)
+            c.map(|c| cells[c])
+                .filter(|v| !v.is_empty())
+                .map(str::to_string)
         };
         let record = cells[rec_col].to_string();
         if record.is_empty() {
             return Err(format!("line {lineno}: empty `record` field"));
         }
         let sex = match sex_col {
-            Some(c) => parse_sex(cells[c]).map_err(|e| format!("line {lineno}, column `sex`: {e}"))?,
+            Some(c) => {
+                parse_sex(cells[c]).map_err(|e| format!("line {lineno}, column `sex`: {e}"))?
+            }
             None => None,
         };
         let age = match get(age_col) {
@@ -106,7 +118,9 @@ pub fn parse_subjects(text: &str) -> Result<BTreeMap<String, SubjectRow>, String
                     .ok()
                     .filter(|v| v.is_finite() && (0.0..=150.0).contains(v))
                     .ok_or_else(|| {
-                        format!("line {lineno}, column `age`: expected years from 0 to 150, got `{a}`")
+                        format!(
+                            "line {lineno}, column `age`: expected years from 0 to 150, got `{a}`"
+                        )
                     })?,
             ),
             None => None,
@@ -131,7 +145,8 @@ mod tests {
 
     #[test]
     fn parses_rows_and_overrides_metadata() {
-        let t = "record,subject,sex,age,timepoint\nr1,S01,F,34,baseline\nr2,S01,female,,post-dose\n";
+        let t =
+            "record,subject,sex,age,timepoint\nr1,S01,F,34,baseline\nr2,S01,female,,post-dose\n";
         let m = parse_subjects(t).unwrap();
         assert_eq!(m["r1"].sex, Some(Sex::Female));
         assert_eq!(m["r1"].age, Some(34.0));

@@ -1,0 +1,229 @@
+//! The `[delineate]` table of `pipeline.toml`: every threshold of the boundary
+//! rules, the search windows and the cross-lead combination.
+//!
+//! Fractions named `xi_*` are the onset/offset factors ξ of Martínez et al.
+//! (IEEE TBME 2004): a boundary is placed where |W_k| falls below ξ times the
+//! modulus maximum that starts the search (or at the first local minimum of
+//! |W_k|, whichever comes first). Fractions named `gamma_*` decide which modulus
+//! maxima are significant. All durations are in milliseconds and are converted
+//! at the analysis rate `analysis_fs_hz`.
+
+use serde::{Deserialize, Serialize};
+use tendline_params::{Checker, ParamError};
+
+use crate::TEndMethod;
+
+/// Parameters of wave delineation (table `delineate`).
+#[derive(Deserialize, Serialize, Clone, Debug, PartialEq)]
+#[serde(deny_unknown_fields, default)]
+pub struct DelineateConfig {
+    /// Rate (Hz) at which the wavelet analysis runs; other input rates are
+    /// resampled to it and marks mapped back. The rules were designed at 250 Hz
+    /// (Martínez et al. 2004).
+    pub analysis_fs_hz: f64,
+    /// RR interval (ms) assumed when a beat has no neighbour (single median beat).
+    pub default_rr_ms: f64,
+
+    /// Half-width (ms) of the window around the given QRS fiducial in which
+    /// the main QRS slope pair is looked for at scale 2^2.
+    pub qrs_search_ms: f64,
+    /// How far before the main QRS peak (ms) other QRS waves may start.
+    pub qrs_pre_ms: f64,
+    /// How far after the main QRS peak (ms) other QRS waves may end.
+    pub qrs_post_ms: f64,
+    /// Modulus maxima before the main peak are significant above this fraction
+    /// of the largest |W_2| of the complex (Martínez 2004: 0.06).
+    pub qrs_gamma_pre: f64,
+    /// Same, after the main peak (Martínez 2004: 0.09).
+    pub qrs_gamma_post: f64,
+    /// Consecutive significant maxima of one complex are at most this far
+    /// apart (ms); a larger gap ends the complex.
+    pub qrs_chain_gap_ms: f64,
+    /// Maxima of at least this fraction of the largest join the complex even
+    /// when up to `qrs_wide_gap_ms` away (wide and paced complexes).
+    pub qrs_wide_frac: f64,
+    /// See `qrs_wide_frac` (ms).
+    pub qrs_wide_gap_ms: f64,
+    /// ξ for QRS onset at scale 2^2.
+    pub qrs_xi_on: f64,
+    /// ξ for QRS end at scale 2^2 when the last maximum is positive (rising S).
+    pub qrs_xi_end_pos: f64,
+    /// ξ for QRS end at scale 2^2 when the last maximum is negative (falling R).
+    pub qrs_xi_end_neg: f64,
+    /// Longest search (ms) from the first/last significant maximum to the
+    /// QRS onset/end.
+    pub qrs_boundary_search_ms: f64,
+
+    /// T window starts this long (ms) after the main QRS peak ...
+    pub t_window_start_ms: f64,
+    /// ... and at least this long (ms) after the QRS end.
+    pub t_window_after_qrs_end_ms: f64,
+    /// T window ends at this fraction of the following RR interval after the
+    /// QRS peak ...
+    pub t_window_end_rr_frac: f64,
+    /// ... bounded below by this (ms) ...
+    pub t_window_end_min_ms: f64,
+    /// ... and above by this (ms).
+    pub t_window_end_max_ms: f64,
+    /// T is present if its steepest slope at scale 2^4 exceeds this (mV/s).
+    pub t_min_slope_mv_per_s: f64,
+    /// Maxima of |W_4| above this fraction of the largest in the T window are
+    /// significant.
+    pub t_gamma: f64,
+    /// A third significant maximum at least this fraction of the largest makes
+    /// the T biphasic.
+    pub t_biphasic_frac: f64,
+    /// ξ for T onset (Martínez 2004: 0.25).
+    pub t_xi_on: f64,
+    /// ξ for T end (Martínez 2004: 0.4).
+    pub t_xi_end: f64,
+    /// Longest search (ms) from the last significant maximum to the T end.
+    pub t_end_search_ms: f64,
+    /// Method whose T end goes in `t_end`.
+    pub t_end_method: TEndMethod,
+    /// Window (ms) of the area indicator for the area T-end method
+    /// (Zhang et al. 2006).
+    pub t_area_window_ms: f64,
+    /// Search for the area T end up to this long (ms) after the wavelet T end.
+    pub t_area_search_after_ms: f64,
+
+    /// P window starts this long (ms) before the QRS onset.
+    pub p_window_ms: f64,
+    /// P window ends this long (ms) before the QRS onset.
+    pub p_window_gap_ms: f64,
+    /// P is present if its steepest slope at scale 2^4 exceeds this (mV/s).
+    pub p_min_slope_mv_per_s: f64,
+    /// ... and its slope pair is at least this fraction of the QRS slope at 2^4.
+    pub p_min_rel_qrs: f64,
+    /// Maxima of |W_4| above this fraction of the largest in the P window are
+    /// significant.
+    pub p_gamma: f64,
+    /// ξ for P onset (Martínez 2004: 0.5).
+    pub p_xi_on: f64,
+    /// ξ for P end (Martínez 2004: 0.9).
+    pub p_xi_end: f64,
+    /// Longest search (ms) from the P slope maxima to its onset/end.
+    pub p_boundary_search_ms: f64,
+
+    /// Length (ms) of the PR-segment stretch before QRS onset whose median is
+    /// the isoelectric level (tangent method).
+    pub baseline_window_ms: f64,
+    /// A wave's slope-to-noise ratio that gives confidence 0.5.
+    pub confidence_snr_half: f64,
+
+    /// Across leads: a lead whose mark is more than this (ms) away from the
+    /// others' median is rejected as outlying (at most one lead per mark).
+    pub global_outlier_ms: f64,
+    /// Marks with confidence below this are not used for global marks.
+    pub global_min_confidence: f64,
+    /// Global marks need at least this many leads with a usable mark.
+    pub global_min_leads: usize,
+}
+
+impl Default for DelineateConfig {
+    fn default() -> Self {
+        Self {
+            analysis_fs_hz: 250.0,
+            default_rr_ms: 1000.0,
+            qrs_search_ms: 80.0,
+            qrs_pre_ms: 100.0,
+            qrs_post_ms: 120.0,
+            qrs_gamma_pre: 0.1,
+            qrs_gamma_post: 0.09,
+            qrs_chain_gap_ms: 40.0,
+            qrs_wide_frac: 0.3,
+            qrs_wide_gap_ms: 100.0,
+            qrs_xi_on: 0.05,
+            qrs_xi_end_pos: 0.125,
+            qrs_xi_end_neg: 0.2,
+            qrs_boundary_search_ms: 80.0,
+            t_window_start_ms: 100.0,
+            t_window_after_qrs_end_ms: 20.0,
+            t_window_end_rr_frac: 0.55,
+            t_window_end_min_ms: 350.0,
+            t_window_end_max_ms: 600.0,
+            t_min_slope_mv_per_s: 0.5,
+            t_gamma: 0.125,
+            t_biphasic_frac: 0.3,
+            t_xi_on: 0.25,
+            t_xi_end: 0.5,
+            t_end_search_ms: 200.0,
+            t_end_method: TEndMethod::Wavelet,
+            t_area_window_ms: 128.0,
+            t_area_search_after_ms: 120.0,
+            p_window_ms: 250.0,
+            p_window_gap_ms: 8.0,
+            p_min_slope_mv_per_s: 0.3,
+            p_min_rel_qrs: 0.02,
+            p_gamma: 0.25,
+            p_xi_on: 0.5,
+            p_xi_end: 0.9,
+            p_boundary_search_ms: 100.0,
+            baseline_window_ms: 20.0,
+            confidence_snr_half: 3.0,
+            global_outlier_ms: 40.0,
+            global_min_confidence: 0.2,
+            global_min_leads: 1,
+        }
+    }
+}
+
+impl DelineateConfig {
+    /// Check every value's range; errors are keyed `delineate.<field>`.
+    pub fn validate(&self) -> Result<(), Vec<ParamError>> {
+        let mut c = Checker::new("delineate");
+        c.range("analysis_fs_hz", self.analysis_fs_hz, 100.0, 2000.0, "Hz")
+            .range("default_rr_ms", self.default_rr_ms, 250.0, 3000.0, "ms")
+            .range("qrs_search_ms", self.qrs_search_ms, 10.0, 300.0, "ms")
+            .range("qrs_pre_ms", self.qrs_pre_ms, 20.0, 300.0, "ms")
+            .range("qrs_post_ms", self.qrs_post_ms, 20.0, 300.0, "ms")
+            .range("qrs_gamma_pre", self.qrs_gamma_pre, 0.0, 1.0, "")
+            .range("qrs_gamma_post", self.qrs_gamma_post, 0.0, 1.0, "")
+            .range("qrs_chain_gap_ms", self.qrs_chain_gap_ms, 4.0, 200.0, "ms")
+            .range("qrs_wide_frac", self.qrs_wide_frac, 0.0, 1.0, "")
+            .range("qrs_wide_gap_ms", self.qrs_wide_gap_ms, 4.0, 300.0, "ms")
+            .range("qrs_xi_on", self.qrs_xi_on, 0.0, 1.0, "")
+            .range("qrs_xi_end_pos", self.qrs_xi_end_pos, 0.0, 1.0, "")
+            .range("qrs_xi_end_neg", self.qrs_xi_end_neg, 0.0, 1.0, "")
+            .range("qrs_boundary_search_ms", self.qrs_boundary_search_ms, 8.0, 300.0, "ms")
+            .range("t_window_start_ms", self.t_window_start_ms, 0.0, 400.0, "ms")
+            .range("t_window_after_qrs_end_ms", self.t_window_after_qrs_end_ms, 0.0, 300.0, "ms")
+            .range("t_window_end_rr_frac", self.t_window_end_rr_frac, 0.2, 1.0, "")
+            .range("t_window_end_min_ms", self.t_window_end_min_ms, 100.0, 1000.0, "ms")
+            .range("t_window_end_max_ms", self.t_window_end_max_ms, 100.0, 1500.0, "ms")
+            .require(
+                self.t_window_end_min_ms <= self.t_window_end_max_ms,
+                "t_window_end_min_ms",
+                "at most t_window_end_max_ms",
+                self.t_window_end_min_ms,
+            )
+            .range("t_min_slope_mv_per_s", self.t_min_slope_mv_per_s, 0.0, 100.0, "mV/s")
+            .range("t_gamma", self.t_gamma, 0.0, 1.0, "")
+            .range("t_biphasic_frac", self.t_biphasic_frac, 0.0, 1.0, "")
+            .range("t_xi_on", self.t_xi_on, 0.0, 1.0, "")
+            .range("t_xi_end", self.t_xi_end, 0.0, 1.0, "")
+            .range("t_end_search_ms", self.t_end_search_ms, 20.0, 600.0, "ms")
+            .range("t_area_window_ms", self.t_area_window_ms, 8.0, 400.0, "ms")
+            .range("t_area_search_after_ms", self.t_area_search_after_ms, 0.0, 400.0, "ms")
+            .range("p_window_ms", self.p_window_ms, 50.0, 600.0, "ms")
+            .range("p_window_gap_ms", self.p_window_gap_ms, 0.0, 100.0, "ms")
+            .require(
+                self.p_window_gap_ms < self.p_window_ms,
+                "p_window_gap_ms",
+                "less than p_window_ms",
+                self.p_window_gap_ms,
+            )
+            .range("p_min_slope_mv_per_s", self.p_min_slope_mv_per_s, 0.0, 100.0, "mV/s")
+            .range("p_min_rel_qrs", self.p_min_rel_qrs, 0.0, 1.0, "")
+            .range("p_gamma", self.p_gamma, 0.0, 1.0, "")
+            .range("p_xi_on", self.p_xi_on, 0.0, 1.0, "")
+            .range("p_xi_end", self.p_xi_end, 0.0, 1.0, "")
+            .range("p_boundary_search_ms", self.p_boundary_search_ms, 8.0, 400.0, "ms")
+            .range("baseline_window_ms", self.baseline_window_ms, 4.0, 200.0, "ms")
+            .range("confidence_snr_half", self.confidence_snr_half, 0.01, 1000.0, "")
+            .range("global_outlier_ms", self.global_outlier_ms, 0.0, 500.0, "ms")
+            .range("global_min_confidence", self.global_min_confidence, 0.0, 1.0, "")
+            .range("global_min_leads", self.global_min_leads as f64, 1.0, 64.0, "leads");
+        c.finish()
+    }
+}

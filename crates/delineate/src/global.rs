@@ -1,0 +1,103 @@
+//! Combination of per-lead marks into one set of global marks per beat.
+
+use crate::{BeatMarks, DelineateConfig, Mark, TEndMethod};
+
+/// Which end of the spread a boundary takes.
+#[derive(Clone, Copy, PartialEq)]
+enum Pick {
+    Earliest,
+    Latest,
+}
+
+/// Earliest/latest usable mark after rejecting at most one outlying lead.
+///
+/// With three or more leads the extreme candidate is dropped when it lies
+/// more than `outlier` samples beyond the median of the others. With two
+/// leads that disagree by more than `outlier`, the more confident one is kept.
+fn extreme(cands: &[Mark], pick: Pick, outlier: f64, cfg: &DelineateConfig) -> Option<Mark> {
+    let mut c: Vec<Mark> = cands
+        .iter()
+        .copied()
+        .filter(|m| m.confidence as f64 >= cfg.global_min_confidence)
+        .collect();
+    if c.len() < cfg.global_min_leads || c.is_empty() {
+        return None;
+    }
+    c.sort_by_key(|m| m.sample);
+    if pick == Pick::Latest {
+        c.reverse();
+    }
+    let total = c.len();
+    let dist = |a: &Mark, b: f64| (a.sample as f64 - b).abs();
+    if c.len() >= 3 {
+        let mut rest: Vec<f64> = c[1..].iter().map(|m| m.sample as f64).collect();
+        rest.sort_by(|a, b| a.total_cmp(b));
+        let med = rest[rest.len() / 2];
+        if dist(&c[0], med) > outlier {
+            c.remove(0);
+        }
+    } else if c.len() == 2 && dist(&c[0], c[1].sample as f64) > outlier && c[1].confidence > c[0].confidence {
+        c.remove(0);
+    }
+    let best = c[0];
+    let agree = cands
+        .iter()
+        .filter(|m| dist(m, best.sample as f64) <= outlier)
+        .count() as f32
+        / total.max(1) as f32;
+    let mean_conf = c.iter().map(|m| m.confidence).sum::<f32>() / c.len() as f32;
+    Some(Mark {
+        sample: best.sample,
+        confidence: (mean_conf * agree.min(1.0)).clamp(0.0, 1.0),
+    })
+}
+
+/// The most confident lead's mark (ties: the first lead).
+fn best_lead(cands: &[(usize, Mark)]) -> Option<(usize, Mark)> {
+    cands
+        .iter()
+        .copied()
+        .fold(None, |acc: Option<(usize, Mark)>, (l, m)| match acc {
+            Some((_, b)) if b.confidence >= m.confidence => acc,
+            _ => Some((l, m)),
+        })
+}
+
+pub(crate) fn combine(per_lead: &[Vec<BeatMarks>], n_beats: usize, fs: f64, cfg: &DelineateConfig) -> Vec<BeatMarks> {
+    let outlier = cfg.global_outlier_ms * fs / 1000.0;
+    (0..n_beats)
+        .map(|b| {
+            let beats: Vec<&BeatMarks> = per_lead.iter().filter_map(|l| l.get(b)).collect();
+            let gather = |f: &dyn Fn(&BeatMarks) -> Option<Mark>| -> Vec<Mark> { beats.iter().filter_map(|bm| f(bm)).collect() };
+            let gather_l = |f: &dyn Fn(&BeatMarks) -> Option<Mark>| -> Vec<(usize, Mark)> {
+                beats.iter().enumerate().filter_map(|(l, bm)| f(bm).map(|m| (l, m))).collect()
+            };
+            let mut g = BeatMarks {
+                t_end_method: cfg.t_end_method,
+                ..Default::default()
+            };
+            g.qrs_on = extreme(&gather(&|m| m.qrs_on), Pick::Earliest, outlier, cfg);
+            g.qrs_end = extreme(&gather(&|m| m.qrs_end), Pick::Latest, outlier, cfg);
+            g.p_on = extreme(&gather(&|m| m.p_on), Pick::Earliest, outlier, cfg);
+            g.p_end = extreme(&gather(&|m| m.p_end), Pick::Latest, outlier, cfg);
+            g.t_on = extreme(&gather(&|m| m.t_on), Pick::Earliest, outlier, cfg);
+            g.t_end_wavelet = extreme(&gather(&|m| m.t_end_wavelet), Pick::Latest, outlier, cfg);
+            g.t_end_tangent = extreme(&gather(&|m| m.t_end_tangent), Pick::Latest, outlier, cfg);
+            g.t_end_area = extreme(&gather(&|m| m.t_end_area), Pick::Latest, outlier, cfg);
+            g.t_end = match cfg.t_end_method {
+                TEndMethod::Wavelet => g.t_end_wavelet,
+                TEndMethod::Tangent => g.t_end_tangent,
+                TEndMethod::Area => g.t_end_area,
+            };
+            g.qrs_peak = best_lead(&gather_l(&|m| m.qrs_peak)).map(|x| x.1);
+            g.p_peak = best_lead(&gather_l(&|m| m.p_peak)).map(|x| x.1);
+            if let Some((l, m)) = best_lead(&gather_l(&|m| m.t_peak)) {
+                g.t_peak = Some(m);
+                g.t_morphology = beats[l].t_morphology;
+            } else if let Some((l, _)) = best_lead(&gather_l(&|m| m.t_end)) {
+                g.t_morphology = beats[l].t_morphology;
+            }
+            g
+        })
+        .collect()
+}

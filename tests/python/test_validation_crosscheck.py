@@ -1,0 +1,196 @@
+"""Honesty check of `tendline validate` on the QT Database (issue #6).
+
+Recomputes, independently of the Rust code (crates/evaluate), from the files
+themselves read with the `wfdb` Python package (`wfdb.rdann`):
+- beat sensitivity and positive predictivity of the run's `.mark` files against
+  the QTDB `.atr` reference beats;
+- the QRS-onset and T-end error count, mean and SD against the `.q1c` reference;
+and asserts agreement with the run's `report.json` (rates to 0.01 percentage
+points, times to 0.01 ms, counts exactly).
+
+Inputs (environment):
+- TENDLINE_RUN_QTDB: a finished run directory on QTDB (`annotations/<rec>.mark`);
+  the test is skipped, with the reason printed, when it is unset or absent.
+- TENDLINE_REPORT_QTDB: the report.json to check (default
+  `<run>/validation/report.json`).
+- TENDLINE_DATA: the data root holding `qtdb/` (default `<repo>/../shared/data`);
+  a folder that itself holds the QTDB headers is accepted too.
+
+The rules re-implemented here are the documented protocol (crates/evaluate,
+also restated in every report's `protocol.rules`):
+- window in samples = floor(window_ms * fs / 1000), inclusive (150 ms by default);
+- beats are annotations with a WFDB beat code (the `isqrs` set of the wfdb
+  package); pairs are all (reference, test) pairs within the window, taken by
+  increasing distance, ties by lower reference index then lower test index,
+  one-to-one;
+- waves: a peak mark (`p`, `t`, `u` or a beat code) with `(` immediately before it
+  (onset) and `)` immediately after it (offset); a T wave belongs to the last QRS
+  before its peak if it is the first T after that QRS and at most 800 ms after it;
+- fiducials of paired beats count when both mark them and |error| <= the window;
+  error = test - reference in ms; SD with n - 1.
+"""
+
+import json
+import math
+import os
+from pathlib import Path
+
+import numpy as np
+import pytest
+import wfdb
+from wfdb.io import annotation as wfdb_annotation
+
+REPO = Path(__file__).resolve().parents[2]
+
+# Symbols of the WFDB beat codes, from the wfdb package's own `is_qrs` table.
+BEAT_SYMBOLS = {
+    wfdb_annotation.ann_label_table.loc[
+        wfdb_annotation.ann_label_table.label_store == code, "symbol"
+    ].iloc[0]
+    for code, q in enumerate(wfdb_annotation.is_qrs)
+    if q
+}
+MAX_QRS_TO_T_MS = 800.0
+
+
+def _paths():
+    run = os.environ.get("TENDLINE_RUN_QTDB")
+    if not run or not Path(run, "annotations").is_dir():
+        reason = (
+            "TENDLINE_RUN_QTDB is not set"
+            if not run
+            else f"TENDLINE_RUN_QTDB={run} has no annotations/ folder"
+        )
+        print(f"SKIP validation cross-check: {reason}")
+        pytest.skip(reason)
+    run = Path(run)
+    data = Path(os.environ.get("TENDLINE_DATA", REPO.parent / "shared" / "data"))
+    qtdb = data if any(data.glob("*.q1c")) else data / "qtdb"
+    if not qtdb.is_dir():
+        pytest.fail(f"QTDB data folder {qtdb} not found (set TENDLINE_DATA)")
+    report = Path(os.environ.get("TENDLINE_REPORT_QTDB", run / "validation" / "report.json"))
+    if not report.is_file():
+        pytest.fail(f"report {report} not found: run the validation first or set TENDLINE_REPORT_QTDB")
+    return run, qtdb, json.loads(report.read_text())
+
+
+def _fs(qtdb, rec):
+    return float(wfdb.rdheader(str(qtdb / rec)).fs)
+
+
+def _window(ms, fs):
+    return int(math.floor(ms * fs / 1000.0 + 1e-9))
+
+
+def _match(ref, test, w):
+    """Greedy by distance over all pairs within w (brute force, O(n*m) in blocks)."""
+    ref = np.asarray(ref, dtype=np.int64)
+    test = np.asarray(test, dtype=np.int64)
+    cand = []
+    order = np.argsort(test, kind="stable")
+    ts = test[order]
+    for i, r in enumerate(ref):
+        lo = np.searchsorted(ts, r - w, side="left")
+        hi = np.searchsorted(ts, r + w, side="right")
+        for k in range(lo, hi):
+            cand.append((abs(int(ts[k]) - int(r)), i, int(order[k])))
+    cand.sort()
+    used_r, used_t, pairs = set(), set(), []
+    for _, i, j in cand:
+        if i not in used_r and j not in used_t:
+            used_r.add(i)
+            used_t.add(j)
+            pairs.append((i, j))
+    return sorted(pairs)
+
+
+def _beats_qrs_on_t_end(path_no_ext, ext, fs):
+    """Beats of a global annotation file: (qrs peak, qrs onset, T end) per beat."""
+    a = wfdb.rdann(str(path_no_ext), ext)
+    order = np.argsort(a.sample, kind="stable")
+    smp = [int(a.sample[k]) for k in order]
+    sym = [a.symbol[k] for k in order]
+    beats = []  # [peak, onset, t_end]
+    t_waves = []  # (peak, offset)
+    for i, y in enumerate(sym):
+        if y in BEAT_SYMBOLS:
+            on = smp[i - 1] if i > 0 and sym[i - 1] == "(" else None
+            beats.append([smp[i], on, None])
+        elif y == "t":
+            off = smp[i + 1] if i + 1 < len(sym) and sym[i + 1] == ")" else None
+            t_waves.append((smp[i], off))
+    peaks = [b[0] for b in beats]
+    max_t = math.floor(MAX_QRS_TO_T_MS * fs / 1000.0)
+    prev_t_peak = None
+    for tp, toff in t_waves:
+        j = int(np.searchsorted(peaks, tp, side="left"))  # peaks[j-1] < tp
+        ok = j > 0 and tp - peaks[j - 1] <= max_t
+        if ok and prev_t_peak is not None and prev_t_peak > peaks[j - 1]:
+            ok = False  # not the first T after that QRS
+        if ok:
+            beats[j - 1][2] = toff
+        prev_t_peak = tp
+    return beats
+
+
+def test_beats_match_report():
+    run, qtdb, report = _paths()
+    beats = report.get("beats")
+    assert beats is not None, "report.json has no beat section"
+    win_ms = report["protocol"]["beat_window_ms"]
+    tp = fn = fp = 0
+    per = {}
+    for rec in report["records"]:
+        if not (qtdb / f"{rec}.atr").is_file():
+            continue
+        fs = _fs(qtdb, rec)
+        ref_a = wfdb.rdann(str(qtdb / rec), "atr")
+        ref = [int(s) for s, y in zip(ref_a.sample, ref_a.symbol) if y in BEAT_SYMBOLS]
+        t_a = wfdb.rdann(str(run / "annotations" / rec), "mark")
+        test = [int(s) for s, y in zip(t_a.sample, t_a.symbol) if y in BEAT_SYMBOLS]
+        pairs = _match(ref, test, _window(win_ms, fs))
+        per[rec] = (len(pairs), len(ref) - len(pairs), len(test) - len(pairs))
+        tp += per[rec][0]
+        fn += per[rec][1]
+        fp += per[rec][2]
+    o = beats["overall"]
+    print(f"python: TP={tp} FN={fn} FP={fp}; report: TP={o['tp']} FN={o['fn']} FP={o['fp']}")
+    assert (o["tp"], o["fn"], o["fp"]) == (tp, fn, fp)
+    assert abs(o["sensitivity_pct"] - 100.0 * tp / (tp + fn)) < 0.01
+    assert abs(o["ppv_pct"] - 100.0 * tp / (tp + fp)) < 0.01
+    for r in beats["per_record"]:
+        assert (r["tp"], r["fn"], r["fp"]) == per[r["record"]], r["record"]
+
+
+def test_qrs_onset_and_t_end_match_report():
+    run, qtdb, report = _paths()
+    glob_sec = report.get("global")
+    assert glob_sec is not None, "report.json has no global section"
+    bw_ms = report["protocol"]["beat_window_ms"]
+    fw_ms = report["protocol"]["fiducial_window_ms"]
+    errs = {"qrs_on": [], "t_end": []}
+    for rec in report["records"]:
+        if not (qtdb / f"{rec}.q1c").is_file():
+            continue
+        fs = _fs(qtdb, rec)
+        ref = _beats_qrs_on_t_end(qtdb / rec, "q1c", fs)
+        test = _beats_qrs_on_t_end(run / "annotations" / rec, "mark", fs)
+        pairs = _match([b[0] for b in ref], [b[0] for b in test], _window(bw_ms, fs))
+        fw = _window(fw_ms, fs)
+        for i, j in pairs:
+            for key, k in (("qrs_on", 1), ("t_end", 2)):
+                r, t = ref[i][k], test[j][k]
+                if r is not None and t is not None and abs(t - r) <= fw:
+                    errs[key].append((t - r) * 1000.0 / fs)
+    for key in ("qrs_on", "t_end"):
+        e = np.array(errs[key])
+        s = next(f for f in glob_sec["fiducials"] if f["fiducial"] == key)
+        st = s["stats"]
+        print(
+            f"{key}: python n={e.size} mean={e.mean():.4f} sd={e.std(ddof=1):.4f}; "
+            f"report n={st['n']} mean={st['mean_ms']:.4f} sd={st['sd_ms']:.4f}"
+        )
+        assert st["n"] == e.size
+        assert s["tp"] == e.size
+        assert abs(st["mean_ms"] - e.mean()) < 0.01
+        assert abs(st["sd_ms"] - e.std(ddof=1)) < 0.01
