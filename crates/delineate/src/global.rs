@@ -36,7 +36,10 @@ fn extreme(cands: &[Mark], pick: Pick, outlier: f64, cfg: &DelineateConfig) -> O
         if dist(&c[0], med) > outlier {
             c.remove(0);
         }
-    } else if c.len() == 2 && dist(&c[0], c[1].sample as f64) > outlier && c[1].confidence > c[0].confidence {
+    } else if c.len() == 2
+        && dist(&c[0], c[1].sample as f64) > outlier
+        && c[1].confidence > c[0].confidence
+    {
         c.remove(0);
     }
     let best = c[0];
@@ -63,14 +66,25 @@ fn best_lead(cands: &[(usize, Mark)]) -> Option<(usize, Mark)> {
         })
 }
 
-pub(crate) fn combine(per_lead: &[Vec<BeatMarks>], n_beats: usize, fs: f64, cfg: &DelineateConfig) -> Vec<BeatMarks> {
+pub(crate) fn combine(
+    per_lead: &[Vec<BeatMarks>],
+    n_beats: usize,
+    fs: f64,
+    cfg: &DelineateConfig,
+) -> Vec<BeatMarks> {
     let outlier = cfg.global_outlier_ms * fs / 1000.0;
     (0..n_beats)
         .map(|b| {
             let beats: Vec<&BeatMarks> = per_lead.iter().filter_map(|l| l.get(b)).collect();
-            let gather = |f: &dyn Fn(&BeatMarks) -> Option<Mark>| -> Vec<Mark> { beats.iter().filter_map(|bm| f(bm)).collect() };
+            let gather = |f: &dyn Fn(&BeatMarks) -> Option<Mark>| -> Vec<Mark> {
+                beats.iter().filter_map(|bm| f(bm)).collect()
+            };
             let gather_l = |f: &dyn Fn(&BeatMarks) -> Option<Mark>| -> Vec<(usize, Mark)> {
-                beats.iter().enumerate().filter_map(|(l, bm)| f(bm).map(|m| (l, m))).collect()
+                beats
+                    .iter()
+                    .enumerate()
+                    .filter_map(|(l, bm)| f(bm).map(|m| (l, m)))
+                    .collect()
             };
             let mut g = BeatMarks {
                 t_end_method: cfg.t_end_method,

@@ -46,7 +46,8 @@ pub(crate) fn resample_cubic(x: &[f64], fs_in: f64, fs_out: f64) -> Vec<f64> {
             let (p0, p1, p2, p3) = (at(i - 1), at(i), at(i + 1), at(i + 2));
             p1 + 0.5
                 * u
-                * (p2 - p0 + u * (2.0 * p0 - 5.0 * p1 + 4.0 * p2 - p3 + u * (3.0 * (p1 - p2) + p3 - p0)))
+                * (p2 - p0
+                    + u * (2.0 * p0 - 5.0 * p1 + 4.0 * p2 - p3 + u * (3.0 * (p1 - p2) + p3 - p0)))
         })
         .collect()
 }
@@ -196,10 +197,19 @@ impl LeadAnalysis {
 
     /// Find a P or T wave at scale `k` in `[lo, hi]`: the largest modulus
     /// maximum and its largest significant opposite-sign neighbours.
-    fn find_wave(&self, k: usize, lo: isize, hi: isize, gamma: f64, biphasic_frac: f64) -> Option<Lobes> {
+    fn find_wave(
+        &self,
+        k: usize,
+        lo: isize,
+        hi: isize,
+        gamma: f64,
+        biphasic_frac: f64,
+    ) -> Option<Lobes> {
         let w = &self.w[k - 1];
         let ext = Self::extrema(w, lo, hi);
-        let &a = ext.iter().max_by(|&&p, &&q| w[p].abs().total_cmp(&w[q].abs()))?;
+        let &a = ext
+            .iter()
+            .max_by(|&&p, &&q| w[p].abs().total_cmp(&w[q].abs()))?;
         let amp = w[a].abs();
         let sa = w[a].signum();
         let opp = |it: &mut dyn Iterator<Item = &usize>| -> Option<usize> {
@@ -272,7 +282,13 @@ impl LeadAnalysis {
     }
 
     /// Delineate beat `fid` (input-domain QRS fiducial) with neighbours.
-    pub(crate) fn beat(&self, fid: usize, prev: Option<usize>, next: Option<usize>, cfg: &DelineateConfig) -> BeatMarks {
+    pub(crate) fn beat(
+        &self,
+        fid: usize,
+        prev: Option<usize>,
+        next: Option<usize>,
+        cfg: &DelineateConfig,
+    ) -> BeatMarks {
         let mut bm = BeatMarks {
             t_end_method: cfg.t_end_method,
             ..Default::default()
@@ -324,7 +340,11 @@ impl LeadAnalysis {
             (None, Some(c)) => c,
             (None, None) => return bm,
         };
-        let (p1, p2) = if partner < a { (partner, a) } else { (a, partner) };
+        let (p1, p2) = if partner < a {
+            (partner, a)
+        } else {
+            (a, partner)
+        };
         let peak = Self::zero_cross(w2, p1, p2).unwrap_or((p1 + p2) / 2);
         let qrs_amp = w2[a].abs();
         let qrs_conf = self.confidence(qrs_amp, 2, cfg);
@@ -347,13 +367,25 @@ impl LeadAnalysis {
         // Large maxima (wide complexes, paced beats) may be further apart.
         let gap = self.ms_i(cfg.qrs_chain_gap_ms) as usize;
         let wide_gap = self.ms_i(cfg.qrs_wide_gap_ms) as usize;
-        let joins = |d: usize, v: f64, gamma: f64| (d <= gap && v > gamma * m_all) || (d <= wide_gap && v > cfg.qrs_wide_frac * m_all);
+        // A small Q or S lobe right next to the complex (opposite sign, close)
+        // also joins, so the boundary is not put at its peak.
+        let adj_gap = self.ms_i(cfg.qrs_adjacent_gap_ms) as usize;
+        let joins = |d: usize, v: f64, gamma: f64, opposite: bool| {
+            (d <= gap && v > gamma * m_all)
+                || (d <= wide_gap && v > cfg.qrs_wide_frac * m_all)
+                || (opposite && d <= adj_gap && v > cfg.qrs_adjacent_frac * m_all)
+        };
         let mut first = p1;
         for &e in ext.iter().rev().filter(|&&e| e < p1) {
             if first - e > gap.max(wide_gap) {
                 break;
             }
-            if joins(first - e, w2[e].abs(), cfg.qrs_gamma_pre) {
+            if joins(
+                first - e,
+                w2[e].abs(),
+                cfg.qrs_gamma_pre,
+                w2[e].signum() != w2[first].signum(),
+            ) {
                 first = e;
             }
         }
@@ -362,7 +394,12 @@ impl LeadAnalysis {
             if e - last > gap.max(wide_gap) {
                 break;
             }
-            if joins(e - last, w2[e].abs(), cfg.qrs_gamma_post) {
+            if joins(
+                e - last,
+                w2[e].abs(),
+                cfg.qrs_gamma_post,
+                w2[e].signum() != w2[last].signum(),
+            ) {
                 last = e;
             }
         }
@@ -385,9 +422,15 @@ impl LeadAnalysis {
             .max(self.ms_i(250.0)) as f64;
 
         // ---- T wave at scale 2^4 (2^5 if nothing is found at 2^4).
-        let qend_i = qrs_end.map(|e| e.ceil() as isize).unwrap_or(peak as isize + self.ms_i(60.0));
-        let t_lo = (peak as isize + self.ms_i(cfg.t_window_start_ms)).max(qend_i + self.ms_i(cfg.t_window_after_qrs_end_ms));
-        let span = (cfg.t_window_end_rr_frac * rr).clamp(self.ms(cfg.t_window_end_min_ms), self.ms(cfg.t_window_end_max_ms));
+        let qend_i = qrs_end
+            .map(|e| e.ceil() as isize)
+            .unwrap_or(peak as isize + self.ms_i(60.0));
+        let t_lo = (peak as isize + self.ms_i(cfg.t_window_start_ms))
+            .max(qend_i + self.ms_i(cfg.t_window_after_qrs_end_ms));
+        let span = (cfg.t_window_end_rr_frac * rr).clamp(
+            self.ms(cfg.t_window_end_min_ms),
+            self.ms(cfg.t_window_end_max_ms),
+        );
         let mut t_hi = peak as isize + span.round() as isize;
         let mut t_limit = n - 2;
         if let Some(q) = next_a {
@@ -408,8 +451,13 @@ impl LeadAnalysis {
                 }
             }
         }
-        let baseline_end = qrs_on.map(|o| o.floor() as isize).unwrap_or(peak as isize - self.ms_i(50.0));
-        let baseline = self.level(baseline_end - self.ms_i(cfg.baseline_window_ms), baseline_end);
+        let baseline_end = qrs_on
+            .map(|o| o.floor() as isize)
+            .unwrap_or(peak as isize - self.ms_i(50.0));
+        let baseline = self.level(
+            baseline_end - self.ms_i(cfg.baseline_window_ms),
+            baseline_end,
+        );
         if let Some((k, l)) = t_found {
             let w = &self.w[k - 1];
             let tconf = self.confidence(l.amp, k, cfg);
@@ -429,7 +477,10 @@ impl LeadAnalysis {
             let w3 = &self.w[2];
             let sign = w[last].signum();
             let s_lo = l.peak.unwrap_or(first).max(first) as isize;
-            let s_hi = (t_end_w.map(|e| e.ceil() as isize).unwrap_or(last as isize + tsearch / 2)).min(t_limit);
+            let s_hi = (t_end_w
+                .map(|e| e.ceil() as isize)
+                .unwrap_or(last as isize + tsearch / 2))
+            .min(t_limit);
             let steep = (s_lo..=s_hi)
                 .filter(|&i| i >= 0 && i < n - 1)
                 .max_by(|&p, &q| (sign * w3[p as usize]).total_cmp(&(sign * w3[q as usize])))
@@ -476,7 +527,9 @@ impl LeadAnalysis {
         }
 
         // ---- P wave at scale 2^4 before the QRS onset.
-        let qon_i = qrs_on.map(|o| o.floor() as isize).unwrap_or(peak as isize - self.ms_i(50.0));
+        let qon_i = qrs_on
+            .map(|o| o.floor() as isize)
+            .unwrap_or(peak as isize - self.ms_i(50.0));
         let mut p_lo = qon_i - self.ms_i(cfg.p_window_ms);
         let p_hi = qon_i - self.ms_i(cfg.p_window_gap_ms);
         if let Some(p) = prev_a {
@@ -487,15 +540,28 @@ impl LeadAnalysis {
             if let Some(l) = self.find_wave(4, p_lo, p_hi, cfg.p_gamma, 1.1) {
                 let w4 = &self.w[3];
                 let slope = l.amp / 16.0 * self.fs_a;
-                let qrs4 = ext_max(w4, peak as isize - self.ms_i(60.0), peak as isize + self.ms_i(60.0));
-                if l.idx.len() >= 2 && slope >= cfg.p_min_slope_mv_per_s && l.amp >= cfg.p_min_rel_qrs * qrs4 {
+                let qrs4 = ext_max(
+                    w4,
+                    peak as isize - self.ms_i(60.0),
+                    peak as isize + self.ms_i(60.0),
+                );
+                if l.idx.len() >= 2
+                    && slope >= cfg.p_min_slope_mv_per_s
+                    && l.amp >= cfg.p_min_rel_qrs * qrs4
+                {
                     let pconf = self.confidence(l.amp, 4, cfg);
                     let psearch = self.ms_i(cfg.p_boundary_search_ms);
                     let first = l.idx[0];
                     let last = *l.idx.last().unwrap();
                     bm.p_peak = self.mark(l.peak.map(|p| p as f64), pconf);
-                    bm.p_on = self.mark(Self::search_back(w4, first, cfg.p_xi_on, psearch, p_lo - psearch), pconf);
-                    bm.p_end = self.mark(Self::search_fwd(w4, last, cfg.p_xi_end, psearch, qon_i), pconf);
+                    bm.p_on = self.mark(
+                        Self::search_back(w4, first, cfg.p_xi_on, psearch, p_lo - psearch),
+                        pconf,
+                    );
+                    bm.p_end = self.mark(
+                        Self::search_fwd(w4, last, cfg.p_xi_end, psearch, qon_i),
+                        pconf,
+                    );
                 }
             }
         }

@@ -114,7 +114,10 @@ pub fn delineate_lead(x: &[f64], fs: f64, qrs: &[usize], cfg: &DelineateConfig) 
 
 /// Delineate all leads and combine them into global marks per beat.
 pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig) -> Delineation {
-    let per_lead: Vec<Vec<BeatMarks>> = leads.iter().map(|x| delineate_lead(x, fs, qrs, cfg)).collect();
+    let per_lead: Vec<Vec<BeatMarks>> = leads
+        .iter()
+        .map(|x| delineate_lead(x, fs, qrs, cfg))
+        .collect();
     let global = global::combine(&per_lead, qrs.len(), fs, cfg);
     Delineation { per_lead, global }
 }

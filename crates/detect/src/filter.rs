@@ -120,8 +120,14 @@ mod tests {
         for s in sos {
             let z1 = (w.cos(), -w.sin());
             let z2 = ((2.0 * w).cos(), -(2.0 * w).sin());
-            let num = (s.b[0] + s.b[1] * z1.0 + s.b[2] * z2.0, s.b[1] * z1.1 + s.b[2] * z2.1);
-            let den = (1.0 + s.a[0] * z1.0 + s.a[1] * z2.0, s.a[0] * z1.1 + s.a[1] * z2.1);
+            let num = (
+                s.b[0] + s.b[1] * z1.0 + s.b[2] * z2.0,
+                s.b[1] * z1.1 + s.b[2] * z2.1,
+            );
+            let den = (
+                1.0 + s.a[0] * z1.0 + s.a[1] * z2.0,
+                s.a[0] * z1.1 + s.a[1] * z2.1,
+            );
             g *= (num.0.hypot(num.1)) / (den.0.hypot(den.1));
         }
         g
@@ -148,7 +154,8 @@ mod tests {
         let fs = 250.0;
         let lp = butter_lowpass(4, 15.0, fs);
         for &f in &[1.0, 7.0, 20.0, 40.0, 100.0] {
-            let r = (std::f64::consts::PI * f / fs).tan() / (std::f64::consts::PI * 15.0 / fs).tan();
+            let r =
+                (std::f64::consts::PI * f / fs).tan() / (std::f64::consts::PI * 15.0 / fs).tan();
             let want = 1.0 / (1.0 + r.powi(8)).sqrt();
             assert!((gain(&lp, f, fs) - want).abs() < 1e-9, "f={f}");
         }
@@ -158,13 +165,17 @@ mod tests {
     fn lfilter_matches_direct_difference_equation() {
         // Slow oracle: y[n] = b0 x[n] + b1 x[n-1] + b2 x[n-2] - a1 y[n-1] - a2 y[n-2].
         let s = butter_lowpass(2, 10.0, 250.0)[0];
-        let x: Vec<f64> = (0..300).map(|i| ((i * 37 % 101) as f64 - 50.0) / 7.0).collect();
+        let x: Vec<f64> = (0..300)
+            .map(|i| ((i * 37 % 101) as f64 - 50.0) / 7.0)
+            .collect();
         let fast = lfilter(&[s], &x);
         let mut y = vec![0.0; x.len()];
         for n in 0..x.len() {
             let xm = |k: usize| if n >= k { x[n - k] } else { 0.0 };
             let ym = |k: usize, y: &Vec<f64>| if n >= k { y[n - k] } else { 0.0 };
-            y[n] = s.b[0] * x[n] + s.b[1] * xm(1) + s.b[2] * xm(2) - s.a[0] * ym(1, &y) - s.a[1] * ym(2, &y);
+            y[n] = s.b[0] * x[n] + s.b[1] * xm(1) + s.b[2] * xm(2)
+                - s.a[0] * ym(1, &y)
+                - s.a[1] * ym(2, &y);
         }
         for (a, b) in fast.iter().zip(&y) {
             assert!((a - b).abs() < 1e-9);
@@ -175,7 +186,9 @@ mod tests {
     fn filtfilt_has_zero_phase() {
         // A symmetric pulse stays symmetric about its centre after zero-phase filtering.
         let n = 1001;
-        let x: Vec<f64> = (0..n).map(|i| (-((i as f64 - 500.0) / 6.0).powi(2)).exp()).collect();
+        let x: Vec<f64> = (0..n)
+            .map(|i| (-((i as f64 - 500.0) / 6.0).powi(2)).exp())
+            .collect();
         let y = bandpass(&x, 250.0, 5.0, 15.0, 2);
         let imax = (0..n).max_by(|&a, &b| y[a].total_cmp(&y[b])).unwrap();
         assert_eq!(imax, 500);

@@ -47,7 +47,13 @@ fn ptp(x: &[f64]) -> f64 {
 }
 
 /// Flat and saturated samples of one lead. `raw` may hold non-finite gaps.
-pub(crate) fn lead_mask(raw: &[f64], x: &[f64], bp: &[f64], fs: f64, cfg: &DetectConfig) -> Vec<LeadState> {
+pub(crate) fn lead_mask(
+    raw: &[f64],
+    x: &[f64],
+    bp: &[f64],
+    fs: f64,
+    cfg: &DetectConfig,
+) -> Vec<LeadState> {
     let n = x.len();
     let mut m = vec![LeadState::Ok; n];
     let w = pt::ms_to_samples(cfg.flat_window_ms, fs).min(n.max(1));
@@ -113,7 +119,11 @@ struct Blocks {
 impl Blocks {
     fn new(n: usize, fs: f64, cfg: &DetectConfig) -> Self {
         let len = pt::ms_to_samples(cfg.fusion_block_ms, fs).min(n.max(1));
-        Self { len, count: n.div_ceil(len).max(1), n }
+        Self {
+            len,
+            count: n.div_ceil(len).max(1),
+            n,
+        }
     }
     fn range(&self, b: usize) -> (usize, usize) {
         (b * self.len, ((b + 1) * self.len).min(self.n))
@@ -149,12 +159,21 @@ fn median(v: &mut [f64]) -> Option<f64> {
     }
     v.sort_by(|a, b| a.total_cmp(b));
     let m = v.len() / 2;
-    Some(if v.len() % 2 == 1 { v[m] } else { 0.5 * (v[m - 1] + v[m]) })
+    Some(if v.len() % 2 == 1 {
+        v[m]
+    } else {
+        0.5 * (v[m - 1] + v[m])
+    })
 }
 
 /// Local beat level of a signal: median of block maxima over neighbouring
 /// blocks, ignoring masked samples. `None` where no block has usable samples.
-fn local_scale(x: &[f64], mask: &[LeadState], blocks: &Blocks, cfg: &DetectConfig) -> Vec<Option<f64>> {
+fn local_scale(
+    x: &[f64],
+    mask: &[LeadState],
+    blocks: &Blocks,
+    cfg: &DetectConfig,
+) -> Vec<Option<f64>> {
     let maxima: Vec<Option<f64>> = (0..blocks.count)
         .map(|b| {
             let (a, e) = blocks.range(b);
@@ -185,9 +204,18 @@ struct Combined {
     slope: Vec<f64>,
 }
 
-fn combine(feats: &[LeadFeatures], scale_i: &[Vec<f64>], scale_f: &[Vec<f64>], weights: &[Vec<f64>]) -> Combined {
+fn combine(
+    feats: &[LeadFeatures],
+    scale_i: &[Vec<f64>],
+    scale_f: &[Vec<f64>],
+    weights: &[Vec<f64>],
+) -> Combined {
     let n = feats[0].mwi.len();
-    let mut c = Combined { mwi: vec![0.0; n], filt: vec![0.0; n], slope: vec![0.0; n] };
+    let mut c = Combined {
+        mwi: vec![0.0; n],
+        filt: vec![0.0; n],
+        slope: vec![0.0; n],
+    };
     for t in 0..n {
         let mut den = 0.0;
         let (mut m, mut f, mut s) = (0.0, 0.0, 0.0);
@@ -226,11 +254,19 @@ struct Peakiness {
     background: f64,
 }
 
-fn block_peakiness(mwi: &[f64], mask: &[LeadState], blocks: &Blocks, cfg: &DetectConfig) -> Vec<Option<Peakiness>> {
+fn block_peakiness(
+    mwi: &[f64],
+    mask: &[LeadState],
+    blocks: &Blocks,
+    cfg: &DetectConfig,
+) -> Vec<Option<Peakiness>> {
     let maxima: Vec<Option<f64>> = (0..blocks.count)
         .map(|b| {
             let (a, e) = blocks.range(b);
-            (a..e).filter(|&i| mask[i] == LeadState::Ok).map(|i| mwi[i]).reduce(f64::max)
+            (a..e)
+                .filter(|&i| mask[i] == LeadState::Ok)
+                .map(|i| mwi[i])
+                .reduce(f64::max)
         })
         .collect();
     let mut buf = Vec::new();
@@ -244,7 +280,8 @@ fn block_peakiness(mwi: &[f64], mask: &[LeadState], blocks: &Blocks, cfg: &Detec
                 if buf.is_empty() {
                     return None;
                 }
-                let k = ((cfg.quality_background_percentile / 100.0) * (buf.len() - 1) as f64).round() as usize;
+                let k = ((cfg.quality_background_percentile / 100.0) * (buf.len() - 1) as f64)
+                    .round() as usize;
                 Some(*buf.select_nth_unstable_by(k, |x, y| x.total_cmp(y)).1)
             };
             // Background over the three blocks for the weight (steadier), and
@@ -258,8 +295,20 @@ fn block_peakiness(mwi: &[f64], mask: &[LeadState], blocks: &Blocks, cfg: &Detec
             let (a, e) = blocks.range(b);
             buf.extend((a..e).filter(|&i| mask[i] == LeadState::Ok).map(|i| mwi[i]));
             let bg1 = pct(&mut buf).unwrap_or(bg3);
-            let ratio = |bg: f64| if peak <= 0.0 { 0.0 } else if bg > 0.0 { peak / bg } else { f64::INFINITY };
-            Some(Peakiness { weight_ratio: ratio(bg3), noise_ratio: ratio(bg1), background: bg1 })
+            let ratio = |bg: f64| {
+                if peak <= 0.0 {
+                    0.0
+                } else if bg > 0.0 {
+                    peak / bg
+                } else {
+                    f64::INFINITY
+                }
+            };
+            Some(Peakiness {
+                weight_ratio: ratio(bg3),
+                noise_ratio: ratio(bg1),
+                background: bg1,
+            })
         })
         .collect()
 }
@@ -268,22 +317,47 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     let n = leads[0].len();
     let nl = leads.len();
     if n < 3 {
-        return Detection { beats: Vec::new(), unreadable: Vec::new(), lead_quality: vec![0.0; nl] };
+        return Detection {
+            beats: Vec::new(),
+            unreadable: Vec::new(),
+            lead_quality: vec![0.0; nl],
+        };
     }
-    let clean: Vec<Vec<f64>> =
-        leads.iter().map(|l| l.iter().map(|v| if v.is_finite() { *v } else { 0.0 }).collect()).collect();
-    let feats: Vec<LeadFeatures> = clean.iter().map(|x| pt::lead_features(x, fs, cfg)).collect();
-    let masks: Vec<Vec<LeadState>> =
-        (0..nl).map(|l| lead_mask(leads[l], &clean[l], &feats[l].bp, fs, cfg)).collect();
+    let clean: Vec<Vec<f64>> = leads
+        .iter()
+        .map(|l| {
+            l.iter()
+                .map(|v| if v.is_finite() { *v } else { 0.0 })
+                .collect()
+        })
+        .collect();
+    let feats: Vec<LeadFeatures> = clean
+        .iter()
+        .map(|x| pt::lead_features(x, fs, cfg))
+        .collect();
+    let masks: Vec<Vec<LeadState>> = (0..nl)
+        .map(|l| lead_mask(leads[l], &clean[l], &feats[l].bp, fs, cfg))
+        .collect();
     let blocks = Blocks::new(n, fs, cfg);
 
-    let abs_bp: Vec<Vec<f64>> = feats.iter().map(|f| f.bp.iter().map(|v| v.abs()).collect()).collect();
-    let sc_i: Vec<Vec<Option<f64>>> = (0..nl).map(|l| local_scale(&feats[l].mwi, &masks[l], &blocks, cfg)).collect();
-    let sc_f: Vec<Vec<Option<f64>>> = (0..nl).map(|l| local_scale(&abs_bp[l], &masks[l], &blocks, cfg)).collect();
+    let abs_bp: Vec<Vec<f64>> = feats
+        .iter()
+        .map(|f| f.bp.iter().map(|v| v.abs()).collect())
+        .collect();
+    let sc_i: Vec<Vec<Option<f64>>> = (0..nl)
+        .map(|l| local_scale(&feats[l].mwi, &masks[l], &blocks, cfg))
+        .collect();
+    let sc_f: Vec<Vec<Option<f64>>> = (0..nl)
+        .map(|l| local_scale(&abs_bp[l], &masks[l], &blocks, cfg))
+        .collect();
     // A block without a scale takes the nearest known one (the weight of such
     // a lead there is zero anyway through its mask).
     let fill = |v: &Vec<Option<f64>>| -> Vec<f64> {
-        let known: Vec<(usize, f64)> = v.iter().enumerate().filter_map(|(i, x)| x.map(|x| (i, x))).collect();
+        let known: Vec<(usize, f64)> = v
+            .iter()
+            .enumerate()
+            .filter_map(|(i, x)| x.map(|x| (i, x)))
+            .collect();
         (0..v.len())
             .map(|i| {
                 known
@@ -297,15 +371,19 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     let scale_i: Vec<Vec<f64>> = sc_i.iter().map(|v| blocks.interpolate(&fill(v))).collect();
     let scale_f: Vec<Vec<f64>> = sc_f.iter().map(|v| blocks.interpolate(&fill(v))).collect();
     let unmasked = |l: usize, w: Vec<f64>| -> Vec<f64> {
-        w.into_iter().zip(&masks[l]).map(|(w, m)| if *m == LeadState::Ok { w } else { 0.0 }).collect()
+        w.into_iter()
+            .zip(&masks[l])
+            .map(|(w, m)| if *m == LeadState::Ok { w } else { 0.0 })
+            .collect()
     };
 
     // Lead weights: relative peakiness, zero for a lead that looks like noise.
     // A lead is noise in a block when it has lost its peaks because its
     // background rose (relative to its beat level over the whole record); a
     // quiet background without peaks is a pause, not noise.
-    let pb: Vec<Vec<Option<Peakiness>>> =
-        (0..nl).map(|l| block_peakiness(&feats[l].mwi, &masks[l], &blocks, cfg)).collect();
+    let pb: Vec<Vec<Option<Peakiness>>> = (0..nl)
+        .map(|l| block_peakiness(&feats[l].mwi, &masks[l], &blocks, cfg))
+        .collect();
     let level: Vec<f64> = (0..nl)
         .map(|l| {
             let mut v: Vec<f64> = sc_i[l].iter().flatten().cloned().collect();
@@ -314,10 +392,14 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
         .collect();
     let noisy = |l: usize, b: usize| {
         pb[l][b].is_none_or(|p| {
-            p.noise_ratio < cfg.noise_ratio_max && p.background >= cfg.noise_background_fraction * level[l]
+            p.noise_ratio < cfg.noise_ratio_max
+                && p.background >= cfg.noise_background_fraction * level[l]
         })
     };
-    let peaky: Vec<Vec<Option<f64>>> = pb.iter().map(|v| v.iter().map(|x| x.map(|x| x.weight_ratio)).collect()).collect();
+    let peaky: Vec<Vec<Option<f64>>> = pb
+        .iter()
+        .map(|v| v.iter().map(|x| x.map(|x| x.weight_ratio)).collect())
+        .collect();
     let mut bw = vec![vec![0.0; blocks.count]; nl];
     let mut noise_block = vec![false; blocks.count];
     for b in 0..blocks.count {
@@ -325,14 +407,18 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
         noise_block[b] = (0..nl).all(|l| noisy(l, b));
         for l in 0..nl {
             bw[l][b] = match peaky[l][b] {
-                Some(p) if sc_i[l][b].is_some() && best > 0.0 && (!noisy(l, b) || noise_block[b]) => {
+                Some(p)
+                    if sc_i[l][b].is_some() && best > 0.0 && (!noisy(l, b) || noise_block[b]) =>
+                {
                     (p / best).min(1.0).powf(cfg.quality_weight_power)
                 }
                 _ => 0.0,
             };
         }
     }
-    let w2: Vec<Vec<f64>> = (0..nl).map(|l| unmasked(l, blocks.interpolate(&bw[l]))).collect();
+    let w2: Vec<Vec<f64>> = (0..nl)
+        .map(|l| unmasked(l, blocks.interpolate(&bw[l])))
+        .collect();
     let c2 = combine(&feats, &scale_i, &scale_f, &w2);
     let pts = pt::decide(&c2.mwi, &c2.filt, &c2.slope, fs, cfg);
 
@@ -340,8 +426,10 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     let h = pt::ms_to_samples(cfg.mwi_window_ms, fs) / 2;
     let energy: Vec<f64> = c2.filt.iter().map(|f| f * f).collect();
     let energy = pt::moving_mean(&energy, pt::ms_to_samples(cfg.fiducial_smoothing_ms, fs));
-    let mut fid: Vec<usize> =
-        pts.iter().map(|b| argmax_in(&energy, b.index.saturating_sub(h), b.index + h + 1)).collect();
+    let mut fid: Vec<usize> = pts
+        .iter()
+        .map(|b| argmax_in(&energy, b.index.saturating_sub(h), b.index + h + 1))
+        .collect();
     fid.dedup();
 
     // Unreadable: every lead flat, saturated or noise.
@@ -390,8 +478,16 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
                         }
                     }
                 }
-                let best = counts.iter().max_by_key(|c| c.1).map(|c| c.0).unwrap_or(reason);
-                unreadable.push(Span { start: t, end: e, reason: best.to_string() });
+                let best = counts
+                    .iter()
+                    .max_by_key(|c| c.1)
+                    .map(|c| c.0)
+                    .unwrap_or(reason);
+                unreadable.push(Span {
+                    start: t,
+                    end: e,
+                    reason: best.to_string(),
+                });
             }
             t = e;
         } else {
@@ -401,9 +497,22 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     let inside = |s: usize| unreadable.iter().any(|u| s >= u.start && s < u.end);
     fid.retain(|&s| !inside(s));
 
-    let lead_quality: Vec<f64> = (0..nl).map(|l| w2[l].iter().sum::<f64>() / n as f64).collect();
-    let weights_at: Vec<Vec<f64>> = fid.iter().map(|&s| (0..nl).map(|l| w2[l][s]).collect()).collect();
+    let lead_quality: Vec<f64> = (0..nl)
+        .map(|l| w2[l].iter().sum::<f64>() / n as f64)
+        .collect();
+    let weights_at: Vec<Vec<f64>> = fid
+        .iter()
+        .map(|&s| (0..nl).map(|l| w2[l][s]).collect())
+        .collect();
     let labels = label::label_beats(&clean, &fid, &weights_at, &c2.slope, fs, cfg);
-    let beats = fid.iter().zip(labels).map(|(&sample, label)| Beat { sample, label }).collect();
-    Detection { beats, unreadable, lead_quality }
+    let beats = fid
+        .iter()
+        .zip(labels)
+        .map(|(&sample, label)| Beat { sample, label })
+        .collect();
+    Detection {
+        beats,
+        unreadable,
+        lead_quality,
+    }
 }

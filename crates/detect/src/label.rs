@@ -86,10 +86,14 @@ pub(crate) fn label_beats(
     let nl = leads.len();
 
     // Leads used for shape: good at most beats; else the best one.
-    let mean_w: Vec<f64> = (0..nl).map(|l| weights.iter().map(|w| w[l]).sum::<f64>() / nb as f64).collect();
+    let mean_w: Vec<f64> = (0..nl)
+        .map(|l| weights.iter().map(|w| w[l]).sum::<f64>() / nb as f64)
+        .collect();
     let mut used: Vec<usize> = (0..nl).filter(|&l| mean_w[l] >= 0.5).collect();
     if used.is_empty() {
-        let best = (0..nl).max_by(|&a, &b| mean_w[a].total_cmp(&mean_w[b])).unwrap_or(0);
+        let best = (0..nl)
+            .max_by(|&a, &b| mean_w[a].total_cmp(&mean_w[b]))
+            .unwrap_or(0);
         used.push(best);
     }
     let inside = |b: usize| b >= hw && b + hw < n;
@@ -101,7 +105,9 @@ pub(crate) fn label_beats(
                 .filter(|&&b| inside(b))
                 .map(|&b| {
                     let s = &leads[l][b - hw..=b + hw];
-                    let (lo, hi) = s.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |a, v| (a.0.min(*v), a.1.max(*v)));
+                    let (lo, hi) = s.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |a, v| {
+                        (a.0.min(*v), a.1.max(*v))
+                    });
                     hi - lo
                 })
                 .collect();
@@ -135,7 +141,10 @@ pub(crate) fn label_beats(
     let mut template = elementwise_median(&all);
     let mut corr: Vec<f64> = Vec::new();
     for _ in 0..3 {
-        corr = shapes.iter().map(|s| s.as_ref().map_or(-1.0, |s| correlation(s, &template))).collect();
+        corr = shapes
+            .iter()
+            .map(|s| s.as_ref().map_or(-1.0, |s| correlation(s, &template)))
+            .collect();
         let close: Vec<&Vec<f64>> = shapes
             .iter()
             .zip(&corr)
@@ -149,7 +158,10 @@ pub(crate) fn label_beats(
     }
 
     // QRS width from the combined slope energy.
-    let e = moving_mean(&slope.iter().map(|s| s * s).collect::<Vec<_>>(), pt::ms_to_samples(40.0, fs));
+    let e = moving_mean(
+        &slope.iter().map(|s| s * s).collect::<Vec<_>>(),
+        pt::ms_to_samples(40.0, fs),
+    );
     let h = pt::ms_to_samples(cfg.mwi_window_ms, fs);
     let widths: Vec<f64> = beats
         .iter()
@@ -169,12 +181,23 @@ pub(crate) fn label_beats(
             (r - l) as f64 * 1000.0 / fs
         })
         .collect();
-    let mut dom_w: Vec<f64> =
-        widths.iter().zip(&corr).filter(|(_, c)| **c >= cfg.label_corr_min).map(|(w, _)| *w).collect();
+    let mut dom_w: Vec<f64> = widths
+        .iter()
+        .zip(&corr)
+        .filter(|(_, c)| **c >= cfg.label_corr_min)
+        .map(|(w, _)| *w)
+        .collect();
     let dom_width = median(&mut dom_w);
 
-    let rr: Vec<Option<f64>> =
-        (0..nb).map(|i| if i == 0 { None } else { Some((beats[i] - beats[i - 1]) as f64) }).collect();
+    let rr: Vec<Option<f64>> = (0..nb)
+        .map(|i| {
+            if i == 0 {
+                None
+            } else {
+                Some((beats[i] - beats[i - 1]) as f64)
+            }
+        })
+        .collect();
     (0..nb)
         .map(|i| {
             if shapes[i].is_none() || weights[i].iter().all(|w| *w <= 0.0) {
@@ -184,7 +207,9 @@ pub(crate) fn label_beats(
             let hi = (i + 9).min(nb);
             let mut local: Vec<f64> = (lo..hi).filter_map(|j| rr[j]).collect();
             let premature = match rr[i] {
-                Some(r) if !local.is_empty() => r < cfg.label_premature_fraction * median(&mut local),
+                Some(r) if !local.is_empty() => {
+                    r < cfg.label_premature_fraction * median(&mut local)
+                }
                 _ => false,
             };
             let wide = !dom_w.is_empty() && widths[i] > dom_width + cfg.label_width_excess_ms;

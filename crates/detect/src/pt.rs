@@ -50,7 +50,13 @@ pub(crate) fn moving_mean(x: &[f64], w: usize) -> Vec<f64> {
 /// Band-pass, derivative (in mV/s, so values do not depend on `fs`), squaring
 /// and moving-window integration.
 pub(crate) fn lead_features(x: &[f64], fs: f64, cfg: &DetectConfig) -> LeadFeatures {
-    let bp = filter::bandpass(x, fs, cfg.bandpass_low_hz, cfg.bandpass_high_hz, cfg.bandpass_order);
+    let bp = filter::bandpass(
+        x,
+        fs,
+        cfg.bandpass_low_hz,
+        cfg.bandpass_high_hz,
+        cfg.bandpass_order,
+    );
     let n = bp.len();
     let mut d2 = vec![0.0; n];
     for i in 0..n {
@@ -113,7 +119,11 @@ impl State {
         }
     }
     fn rr_average2(&self) -> Option<f64> {
-        let src = if self.rr_regular.is_empty() { &self.rr } else { &self.rr_regular };
+        let src = if self.rr_regular.is_empty() {
+            &self.rr
+        } else {
+            &self.rr_regular
+        };
         if src.is_empty() {
             None
         } else {
@@ -157,7 +167,13 @@ impl State {
 
 /// Pan–Tompkins decisions on `mwi` (integrated), `filt` (magnitude of the
 /// band-passed signal) and `slope` (magnitude of its derivative).
-pub(crate) fn decide(mwi: &[f64], filt: &[f64], slope: &[f64], fs: f64, cfg: &DetectConfig) -> Vec<PtBeat> {
+pub(crate) fn decide(
+    mwi: &[f64],
+    filt: &[f64],
+    slope: &[f64],
+    fs: f64,
+    cfg: &DetectConfig,
+) -> Vec<PtBeat> {
     let n = mwi.len();
     if n < 3 {
         return Vec::new();
@@ -167,13 +183,22 @@ pub(crate) fn decide(mwi: &[f64], filt: &[f64], slope: &[f64], fs: f64, cfg: &De
     let t_window = ms_to_samples(cfg.t_wave_window_ms, fs);
 
     let mut cands = Vec::new();
-    for k in 1..n - 1 {
-        if mwi[k] > mwi[k - 1] && mwi[k] >= mwi[k + 1] {
+    // The first and last samples count as peaks when the signal rises
+    // towards them: a QRS cut by the record edge still has its beat.
+    for k in 0..n {
+        let rises_left = k == 0 || mwi[k] > mwi[k - 1];
+        let holds_right = if k + 1 == n { k > 0 && mwi[k] > mwi[k - 1] } else { mwi[k] >= mwi[k + 1] };
+        if rises_left && holds_right && (k > 0 || mwi[0] > mwi[1]) {
             let a = k.saturating_sub(h);
             let b = (k + h + 1).min(n);
             let pf = filt[a..b].iter().cloned().fold(0.0, f64::max);
             let sl = slope[a..b].iter().cloned().fold(0.0, f64::max);
-            cands.push(Cand { k, pi: mwi[k], pf, sl });
+            cands.push(Cand {
+                k,
+                pi: mwi[k],
+                pf,
+                sl,
+            });
         }
     }
 
@@ -197,16 +222,24 @@ pub(crate) fn decide(mwi: &[f64], filt: &[f64], slope: &[f64], fs: f64, cfg: &De
     let mut last: Option<Cand> = None;
     let mut pending: Vec<Cand> = Vec::new();
 
-    let accept = |c: Cand, sb: bool, st: &mut State, beats: &mut Vec<PtBeat>, last: &mut Option<Cand>| {
-        let w = if sb { cfg.searchback_peak_weight } else { cfg.signal_peak_weight };
-        st.spki = w * c.pi + (1.0 - w) * st.spki;
-        st.spkf = w * c.pf + (1.0 - w) * st.spkf;
-        if let Some(l) = last {
-            st.push_rr((c.k - l.k) as f64, cfg);
-        }
-        beats.push(PtBeat { index: c.k, searchback: sb });
-        *last = Some(c);
-    };
+    let accept =
+        |c: Cand, sb: bool, st: &mut State, beats: &mut Vec<PtBeat>, last: &mut Option<Cand>| {
+            let w = if sb {
+                cfg.searchback_peak_weight
+            } else {
+                cfg.signal_peak_weight
+            };
+            st.spki = w * c.pi + (1.0 - w) * st.spki;
+            st.spkf = w * c.pf + (1.0 - w) * st.spkf;
+            if let Some(l) = last {
+                st.push_rr((c.k - l.k) as f64, cfg);
+            }
+            beats.push(PtBeat {
+                index: c.k,
+                searchback: sb,
+            });
+            *last = Some(c);
+        };
 
     for &c in &cands {
         // Search-back: no QRS for longer than the missed-beat limit.
@@ -246,7 +279,10 @@ pub(crate) fn decide(mwi: &[f64], filt: &[f64], slope: &[f64], fs: f64, cfg: &De
                     if let Some(r) = st.rr.back_mut() {
                         *r += shift;
                     }
-                    last = Some(Cand { sl: c.sl.max(l.sl), ..c });
+                    last = Some(Cand {
+                        sl: c.sl.max(l.sl),
+                        ..c
+                    });
                 }
                 continue;
             }

@@ -34,19 +34,47 @@ struct Wave {
 
 fn normal_beat(gain: f64) -> Vec<Wave> {
     vec![
-        Wave { at: -0.16, amp: 0.15 * gain, sigma: 0.025 },
-        Wave { at: -0.025, amp: -0.12 * gain, sigma: 0.008 },
-        Wave { at: 0.0, amp: 1.0 * gain, sigma: 0.010 },
-        Wave { at: 0.025, amp: -0.25 * gain, sigma: 0.008 },
-        Wave { at: 0.26, amp: 0.30 * gain, sigma: 0.045 },
+        Wave {
+            at: -0.16,
+            amp: 0.15 * gain,
+            sigma: 0.025,
+        },
+        Wave {
+            at: -0.025,
+            amp: -0.12 * gain,
+            sigma: 0.008,
+        },
+        Wave {
+            at: 0.0,
+            amp: 1.0 * gain,
+            sigma: 0.010,
+        },
+        Wave {
+            at: 0.025,
+            amp: -0.25 * gain,
+            sigma: 0.008,
+        },
+        Wave {
+            at: 0.26,
+            amp: 0.30 * gain,
+            sigma: 0.045,
+        },
     ]
 }
 
 /// A premature ventricular beat: no P wave, one wide deflection, discordant T.
 fn pvc_beat(gain: f64) -> Vec<Wave> {
     vec![
-        Wave { at: 0.0, amp: -1.3 * gain, sigma: 0.035 },
-        Wave { at: 0.30, amp: 0.45 * gain, sigma: 0.06 },
+        Wave {
+            at: 0.0,
+            amp: -1.3 * gain,
+            sigma: 0.035,
+        },
+        Wave {
+            at: 0.30,
+            amp: 0.45 * gain,
+            sigma: 0.06,
+        },
     ]
 }
 
@@ -75,7 +103,9 @@ fn beat_times(dur_s: f64, rng: &mut Rng) -> Vec<f64> {
     let mut v = Vec::new();
     while t < dur_s - 0.5 {
         v.push(t);
-        t += 0.85 + 0.08 * (2.0 * std::f64::consts::PI * t / 10.0).sin() + 0.02 * (rng.next_f64() - 0.5);
+        t += 0.85
+            + 0.08 * (2.0 * std::f64::consts::PI * t / 10.0).sin()
+            + 0.02 * (rng.next_f64() - 0.5);
     }
     v
 }
@@ -91,7 +121,15 @@ fn assert_exact(truth_s: &[f64], got: &[usize], fs: f64, tol_s: f64) {
     let truth: Vec<i64> = truth_s.iter().map(|t| (t * fs).round() as i64).collect();
     let det: Vec<i64> = got.iter().map(|&s| s as i64).collect();
     let m = match_beats(&truth, &det, (tol_s * fs).round() as i64);
-    assert_eq!((m.fn_, m.fp), (0, 0), "missed {} / false {} of {} beats; got {:?}", m.fn_, m.fp, truth.len(), got);
+    assert_eq!(
+        (m.fn_, m.fp),
+        (0, 0),
+        "missed {} / false {} of {} beats; got {:?}",
+        m.fn_,
+        m.fp,
+        truth.len(),
+        got
+    );
 }
 
 fn samples(d: &Detection) -> Vec<usize> {
@@ -101,7 +139,11 @@ fn samples(d: &Detection) -> Vec<usize> {
 #[test]
 fn default_config_is_valid_and_bad_values_name_their_key() {
     assert!(DetectConfig::default().validate().is_ok());
-    let cfg = DetectConfig { refractory_ms: 50.0, bandpass_order: 3, ..DetectConfig::default() };
+    let cfg = DetectConfig {
+        refractory_ms: 50.0,
+        bandpass_order: 3,
+        ..DetectConfig::default()
+    };
     let errs = cfg.validate().unwrap_err();
     let keys: Vec<&str> = errs.iter().map(|e| e.key.as_str()).collect();
     assert!(keys.contains(&"detect.refractory_ms"), "{keys:?}");
@@ -125,11 +167,24 @@ fn bad_input_gives_typed_errors() {
     assert_eq!(detect(&[], 250.0, &cfg), Err(DetectError::NoLeads));
     assert_eq!(
         detect(&[&a, &b], 250.0, &cfg),
-        Err(DetectError::LengthMismatch { lead: 1, len: 999, expected: 1000 })
+        Err(DetectError::LengthMismatch {
+            lead: 1,
+            len: 999,
+            expected: 1000
+        })
     );
-    assert_eq!(detect(&[&a], f64::NAN, &cfg).unwrap_err().to_string().contains("sampling rate"), true);
-    assert!(matches!(detect(&[&a], 25.0, &cfg), Err(DetectError::BadSampleRate(_))));
-    let bad = DetectConfig { mwi_window_ms: -1.0, ..cfg };
+    assert!(detect(&[&a], f64::NAN, &cfg)
+        .unwrap_err()
+        .to_string()
+        .contains("sampling rate"));
+    assert!(matches!(
+        detect(&[&a], 25.0, &cfg),
+        Err(DetectError::BadSampleRate(_))
+    ));
+    let bad = DetectConfig {
+        mwi_window_ms: -1.0,
+        ..cfg
+    };
     let e = detect(&[&a], 250.0, &bad).unwrap_err().to_string();
     assert!(e.contains("detect.mwi_window_ms"), "{e}");
 }
@@ -157,12 +212,21 @@ fn tall_t_waves_are_not_counted_as_beats() {
     let times = beat_times(60.0, &mut rng);
     let beat = {
         let mut b = normal_beat(1.0);
-        b[4] = Wave { at: 0.24, amp: 1.0, sigma: 0.04 };
+        b[4] = Wave {
+            at: 0.24,
+            amp: 1.0,
+            sigma: 0.04,
+        };
         b
     };
     let beats: Vec<(f64, Vec<Wave>)> = times.iter().map(|&t| (t, beat.clone())).collect();
     let x = render(&beats, 60.0, fs);
-    assert_exact(&times, &detect_lead(&x, fs, &DetectConfig::default()), fs, 0.010);
+    assert_exact(
+        &times,
+        &detect_lead(&x, fs, &DetectConfig::default()),
+        fs,
+        0.010,
+    );
 }
 
 #[test]
@@ -173,12 +237,23 @@ fn search_back_recovers_a_small_beat() {
     // triggers search-back with the halved threshold.
     let fs = 360.0;
     let times: Vec<f64> = (0..60).map(|i| 0.5 + 0.8 * i as f64).collect();
-    let beats: Vec<(f64, Vec<Wave>)> =
-        times.iter().enumerate().map(|(i, &t)| (t, normal_beat(if i == 30 { 0.45 } else { 1.0 }))).collect();
+    let beats: Vec<(f64, Vec<Wave>)> = times
+        .iter()
+        .enumerate()
+        .map(|(i, &t)| (t, normal_beat(if i == 30 { 0.45 } else { 1.0 })))
+        .collect();
     let x = render(&beats, 49.0, fs);
-    assert_exact(&times, &detect_lead(&x, fs, &DetectConfig::default()), fs, 0.010);
+    assert_exact(
+        &times,
+        &detect_lead(&x, fs, &DetectConfig::default()),
+        fs,
+        0.010,
+    );
     // Without search-back (limit beyond the next beat) the same beat is lost.
-    let no_sb = DetectConfig { searchback_rr_fraction: 3.0, ..DetectConfig::default() };
+    let no_sb = DetectConfig {
+        searchback_rr_fraction: 3.0,
+        ..DetectConfig::default()
+    };
     let got = detect_lead(&x, fs, &no_sb);
     assert_eq!(got.len(), times.len() - 1);
 }
@@ -203,7 +278,11 @@ fn two_clean_leads_give_each_beat_once() {
     assert_exact(&times, &samples(&d), fs, 0.010);
     assert!(d.unreadable.is_empty(), "{:?}", d.unreadable);
     assert!(d.beats.iter().all(|b| b.label == BeatLabel::Normal));
-    assert!(d.lead_quality.iter().all(|q| *q > 0.3), "{:?}", d.lead_quality);
+    assert!(
+        d.lead_quality.iter().all(|q| *q > 0.3),
+        "{:?}",
+        d.lead_quality
+    );
 }
 
 #[test]
@@ -229,7 +308,9 @@ fn saturated_lead_does_not_hide_or_add_beats() {
     let sat: Vec<f64> = x1
         .iter()
         .enumerate()
-        .map(|(i, v)| (v + 8.0 * (2.0 * std::f64::consts::PI * 0.07 * i as f64 / fs).sin()).clamp(-5.0, 5.0))
+        .map(|(i, v)| {
+            (v + 8.0 * (2.0 * std::f64::consts::PI * 0.07 * i as f64 / fs).sin()).clamp(-5.0, 5.0)
+        })
         .collect();
     assert!(sat.iter().filter(|v| v.abs() >= 5.0).count() > sat.len() / 4);
     let d = detect(&[&x0, &sat], fs, &DetectConfig::default()).unwrap();
@@ -261,15 +342,27 @@ fn noise_burst_on_all_leads_is_unreadable_and_has_no_beats() {
         x1[i] += 1.5 * rng.gauss();
     }
     let d = detect(&[&x0, &x1], fs, &DetectConfig::default()).unwrap();
-    let noise: Vec<&Span> = d.unreadable.iter().filter(|s| s.reason == "noise").collect();
+    let noise: Vec<&Span> = d
+        .unreadable
+        .iter()
+        .filter(|s| s.reason == "noise")
+        .collect();
     assert!(!noise.is_empty(), "{:?}", d.unreadable);
     // The unreadable stretch covers most of the burst and does not reach far beyond it.
-    let covered: usize = noise.iter().map(|s| s.end.min(b).saturating_sub(s.start.max(a))).sum();
+    let covered: usize = noise
+        .iter()
+        .map(|s| s.end.min(b).saturating_sub(s.start.max(a)))
+        .sum();
     assert!(covered as f64 > 0.7 * (b - a) as f64, "{:?}", d.unreadable);
-    assert!(noise.iter().all(|s| s.start + (3.0 * fs) as usize >= a && s.end <= b + (3.0 * fs) as usize));
+    assert!(noise
+        .iter()
+        .all(|s| s.start + (3.0 * fs) as usize >= a && s.end <= b + (3.0 * fs) as usize));
     // No beat inside an unreadable stretch; every beat outside is found, nothing false.
     for bt in &d.beats {
-        assert!(!d.unreadable.iter().any(|s| bt.sample >= s.start && bt.sample < s.end));
+        assert!(!d
+            .unreadable
+            .iter()
+            .any(|s| bt.sample >= s.start && bt.sample < s.end));
     }
     let outside: Vec<f64> = times
         .iter()
@@ -295,7 +388,9 @@ fn flat_stretch_on_all_leads_is_unreadable() {
     let d = detect(&[&x0, &x1], fs, &DetectConfig::default()).unwrap();
     let flat: Vec<&Span> = d.unreadable.iter().filter(|s| s.reason == "flat").collect();
     assert_eq!(flat.len(), 1, "{:?}", d.unreadable);
-    assert!(flat[0].start >= a && flat[0].end <= b && flat[0].end - flat[0].start > (4.0 * fs) as usize);
+    assert!(
+        flat[0].start >= a && flat[0].end <= b && flat[0].end - flat[0].start > (4.0 * fs) as usize
+    );
 }
 
 #[test]
@@ -324,8 +419,14 @@ fn premature_wide_beats_are_labelled_v() {
     // Wide complexes: the fiducial may sit anywhere on the broad deflection.
     assert_exact(&all, &samples(&d), fs, 0.040);
     for b in &d.beats {
-        let is_pvc = pvc_times.iter().any(|&tp| ((tp * fs) - b.sample as f64).abs() < 0.05 * fs);
-        let want = if is_pvc { BeatLabel::Ventricular } else { BeatLabel::Normal };
+        let is_pvc = pvc_times
+            .iter()
+            .any(|&tp| ((tp * fs) - b.sample as f64).abs() < 0.05 * fs);
+        let want = if is_pvc {
+            BeatLabel::Ventricular
+        } else {
+            BeatLabel::Normal
+        };
         // The first beat has no RR before it and may be unclassified.
         if b.sample as f64 > fs {
             assert_eq!(b.label, want, "beat at {}", b.sample);
@@ -351,7 +452,14 @@ fn premature_narrow_beat_is_not_normal() {
 fn match_beats_agrees_with_brute_force_maximum_matching() {
     // Slow oracle: maximum bipartite matching by augmenting paths (Kuhn's algorithm).
     fn oracle(r: &[i64], d: &[i64], w: i64) -> usize {
-        fn try_kuhn(u: usize, r: &[i64], d: &[i64], w: i64, seen: &mut [bool], owner: &mut [Option<usize>]) -> bool {
+        fn try_kuhn(
+            u: usize,
+            r: &[i64],
+            d: &[i64],
+            w: i64,
+            seen: &mut [bool],
+            owner: &mut [Option<usize>],
+        ) -> bool {
             for j in 0..d.len() {
                 if (r[u] - d[j]).abs() <= w && !seen[j] {
                     seen[j] = true;
@@ -364,12 +472,18 @@ fn match_beats_agrees_with_brute_force_maximum_matching() {
             false
         }
         let mut owner = vec![None; d.len()];
-        (0..r.len()).filter(|&u| try_kuhn(u, r, d, w, &mut vec![false; d.len()], &mut owner)).count()
+        (0..r.len())
+            .filter(|&u| try_kuhn(u, r, d, w, &mut vec![false; d.len()], &mut owner))
+            .count()
     }
     let mut rng = Rng(1234);
     for _ in 0..500 {
-        let mut r: Vec<i64> = (0..(rng.next_f64() * 12.0) as usize).map(|_| (rng.next_f64() * 200.0) as i64).collect();
-        let mut d: Vec<i64> = (0..(rng.next_f64() * 12.0) as usize).map(|_| (rng.next_f64() * 200.0) as i64).collect();
+        let mut r: Vec<i64> = (0..(rng.next_f64() * 12.0) as usize)
+            .map(|_| (rng.next_f64() * 200.0) as i64)
+            .collect();
+        let mut d: Vec<i64> = (0..(rng.next_f64() * 12.0) as usize)
+            .map(|_| (rng.next_f64() * 200.0) as i64)
+            .collect();
         r.sort();
         d.sort();
         let w = (rng.next_f64() * 20.0) as i64;
@@ -386,11 +500,11 @@ fn moving_mean_matches_direct_sum() {
     let x: Vec<f64> = (0..200).map(|i| ((i * 7919) % 97) as f64).collect();
     for w in [1usize, 2, 5, 38, 75] {
         let fast = pt::moving_mean(&x, w);
-        for i in 0..x.len() {
+        for (i, f) in fast.iter().enumerate() {
             let a = i.saturating_sub(w / 2);
             let b = (i + w - w / 2).min(x.len());
             let slow = x[a..b].iter().sum::<f64>() / (b - a) as f64;
-            assert!((fast[i] - slow).abs() < 1e-9);
+            assert!((f - slow).abs() < 1e-9);
         }
     }
 }

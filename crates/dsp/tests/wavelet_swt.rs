@@ -115,7 +115,9 @@ fn gaussian_pulse_zero_crossing_and_inflection_extrema() {
         let wk = &w[k - 1];
         // W_k[n] is centred at n + 1/2: the sign change from W[n-1] > 0 to
         // W[n] <= 0 puts the peak nearest to sample n.
-        let zc = (300..700).find(|&i| wk[i - 1] > 0.0 && wk[i] <= 0.0).unwrap();
+        let zc = (300..700)
+            .find(|&i| wk[i - 1] > 0.0 && wk[i] <= 0.0)
+            .unwrap();
         assert!((zc as f64 - c).abs() <= 1.0, "k={k} zero crossing at {zc}");
         let vk: f64 = (1..k).map(|j| 0.75 * 4f64.powi(j as i32 - 1)).sum::<f64>()
             + 4f64.powi(k as i32 - 1) / 12.0;
@@ -123,8 +125,16 @@ fn gaussian_pulse_zero_crossing_and_inflection_extrema() {
         let imax = (300..700).max_by(|&a, &b| wk[a].total_cmp(&wk[b])).unwrap();
         let imin = (300..700).min_by(|&a, &b| wk[a].total_cmp(&wk[b])).unwrap();
         // Extremum of a derivative centred half a sample late.
-        assert!((imax as f64 + 0.5 - (c - sk)).abs() <= 1.0, "k={k} max at {imax}, expect {}", c - sk);
-        assert!((imin as f64 + 0.5 - (c + sk)).abs() <= 1.0, "k={k} min at {imin}, expect {}", c + sk);
+        assert!(
+            (imax as f64 + 0.5 - (c - sk)).abs() <= 1.0,
+            "k={k} max at {imax}, expect {}",
+            c - sk
+        );
+        assert!(
+            (imin as f64 + 0.5 - (c + sk)).abs() <= 1.0,
+            "k={k} min at {imin}, expect {}",
+            c + sk
+        );
     }
 }
 

@@ -291,7 +291,9 @@ mod tests {
         let r = p("time,II\n0,1\n0.004,2\n0.008,3\n", None).unwrap();
         assert!((r.fs - 250.0).abs() < 1e-9);
         assert_eq!(r.leads.len(), 1);
-        let e = p("time,II\n0,1\n0.004,2\n0.009,3\n", None).unwrap_err().to_string();
+        let e = p("time,II\n0,1\n0.004,2\n0.009,3\n", None)
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("spacing"), "{e}");
         // The option overrides.
         assert_eq!(p("time,II\n0,1\n0.004,2\n", Some(100.0)).unwrap().fs, 100.0);

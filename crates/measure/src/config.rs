@@ -186,7 +186,13 @@ impl MeasureConfig {
             )
             .range("align_max_lag_ms", self.align_max_lag_ms, 0.0, 100.0, "ms")
             .range("align_passes", self.align_passes as f64, 1.0, 10.0, "")
-            .range("min_t_amplitude_mv", self.min_t_amplitude_mv, 0.0, 5.0, "mV")
+            .range(
+                "min_t_amplitude_mv",
+                self.min_t_amplitude_mv,
+                0.0,
+                5.0,
+                "mV",
+            )
             .range("qt_min_ms", self.qt_min_ms, 50.0, 500.0, "ms")
             .range("qt_max_ms", self.qt_max_ms, 300.0, 1000.0, "ms")
             .require(

@@ -269,7 +269,10 @@ where
     } else {
         vec![1.0; leads.len()]
     };
-    let usable: Vec<bool> = quality.iter().map(|&q| q > 0.0 && q >= cfg.min_lead_quality).collect();
+    let usable: Vec<bool> = quality
+        .iter()
+        .map(|&q| q > 0.0 && q >= cfg.min_lead_quality)
+        .collect();
 
     let ctx = Ctx {
         leads,
@@ -363,7 +366,10 @@ where
         .filter_map(|&i| prev_rr(i))
         .collect();
     let all_rr: Vec<f64> = idx.iter().filter_map(|&i| prev_rr(i)).collect();
-    let n_ectopic = idx.iter().filter(|&&i| beats[i].label == BeatLabel::Ventricular).count();
+    let n_ectopic = idx
+        .iter()
+        .filter(|&&i| beats[i].label == BeatLabel::Ventricular)
+        .count();
     let cv = if nn.len() >= 3 {
         let m = nn.iter().sum::<f64>() / nn.len() as f64;
         (nn.iter().map(|r| (r - m).powi(2)).sum::<f64>() / (nn.len() - 1) as f64).sqrt() / m

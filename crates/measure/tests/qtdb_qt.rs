@@ -102,11 +102,15 @@ fn qtdb_window_qt_against_annotator_1() {
     let (mut sup, mut lng) = (Vec::new(), Vec::new());
     let mut n_windows_ref = 0;
     for name in &names {
-        let anns = read_annotations(&dir.join(format!("{name}.q1c"))).unwrap_or_else(|e| panic!("{name}.q1c: {e}"));
+        let anns = read_annotations(&dir.join(format!("{name}.q1c")))
+            .unwrap_or_else(|e| panic!("{name}.q1c: {e}"));
         let refs = annotated_qt(&anns);
         let (m, fs) = measure(&dir.join(name));
         for w in &m.windows {
-            let (a, b) = ((w.start_s * fs).round() as i64, (w.end_s * fs).round() as i64);
+            let (a, b) = (
+                (w.start_s * fs).round() as i64,
+                (w.end_s * fs).round() as i64,
+            );
             let inside: Vec<f64> = refs
                 .iter()
                 .filter(|r| r.0 >= a && r.0 < b)
@@ -132,18 +136,36 @@ fn qtdb_window_qt_against_annotator_1() {
     let (ms, ss) = mean_sd(&sup);
     let (ml, sl) = mean_sd(&lng);
     println!("QTDB q1c windows with >=3 annotated beats: {n_windows_ref}");
-    println!("superimposed-leads QT - reference: n {} mean {ms:.1} ms SD {ss:.1} ms", sup.len());
-    println!("longest-lead QT - reference:       n {} mean {ml:.1} ms SD {sl:.1} ms", lng.len());
-    assert!(n_windows_ref >= 150, "too few reference windows: {n_windows_ref}");
-    assert!(sup.len() * 10 >= n_windows_ref * 8, "QT measured in only {} of {n_windows_ref} windows", sup.len());
+    println!(
+        "superimposed-leads QT - reference: n {} mean {ms:.1} ms SD {ss:.1} ms",
+        sup.len()
+    );
+    println!(
+        "longest-lead QT - reference:       n {} mean {ml:.1} ms SD {sl:.1} ms",
+        lng.len()
+    );
+    assert!(
+        n_windows_ref >= 150,
+        "too few reference windows: {n_windows_ref}"
+    );
+    assert!(
+        sup.len() * 10 >= n_windows_ref * 8,
+        "QT measured in only {} of {n_windows_ref} windows",
+        sup.len()
+    );
     // Issue #9 target for the superimposed-leads QT.
-    assert!(ms.abs() <= 10.0 && ss <= 20.0, "superimposed QT error mean {ms:.1} SD {ss:.1} ms");
+    assert!(
+        ms.abs() <= 10.0 && ss <= 20.0,
+        "superimposed QT error mean {ms:.1} SD {ss:.1} ms"
+    );
 }
 
 #[test]
 fn ludb_window_qt_against_longest_lead_reference() {
     let dir = data_dir().join("ludb");
-    let lead_ext = ["i", "ii", "iii", "avr", "avl", "avf", "v1", "v2", "v3", "v4", "v5", "v6"];
+    let lead_ext = [
+        "i", "ii", "iii", "avr", "avl", "avf", "v1", "v2", "v3", "v4", "v5", "v6",
+    ];
     let (mut lng, mut sup) = (Vec::new(), Vec::new());
     let mut n_ref = 0;
     for r in 1..=100 {
@@ -153,7 +175,10 @@ fn ludb_window_qt_against_longest_lead_reference() {
         for ext in lead_ext {
             let p = dir.join(format!("{r}.{ext}"));
             let anns = read_annotations(&p).unwrap_or_else(|e| panic!("{}: {e}", p.display()));
-            let q: Vec<f64> = annotated_qt(&anns).iter().map(|b| (b.2 - b.1) as f64 / fs * 1000.0).collect();
+            let q: Vec<f64> = annotated_qt(&anns)
+                .iter()
+                .map(|b| (b.2 - b.1) as f64 / fs * 1000.0)
+                .collect();
             if !q.is_empty() {
                 let mean = q.iter().sum::<f64>() / q.len() as f64;
                 best = Some(best.map_or(mean, |b: f64| b.max(mean)));
@@ -178,8 +203,21 @@ fn ludb_window_qt_against_longest_lead_reference() {
     let (ml, sl) = mean_sd(&lng);
     let (ms, ss) = mean_sd(&sup);
     println!("LUDB records with a reference QT: {n_ref}");
-    println!("longest-lead QT - reference:       n {} mean {ml:.1} ms SD {sl:.1} ms", lng.len());
-    println!("superimposed-leads QT - reference: n {} mean {ms:.1} ms SD {ss:.1} ms", sup.len());
-    assert!(n_ref >= 90, "reference QT found in only {n_ref} LUDB records");
-    assert!(lng.len() * 10 >= n_ref * 7, "window QT measured in only {} of {n_ref} records", lng.len());
+    println!(
+        "longest-lead QT - reference:       n {} mean {ml:.1} ms SD {sl:.1} ms",
+        lng.len()
+    );
+    println!(
+        "superimposed-leads QT - reference: n {} mean {ms:.1} ms SD {ss:.1} ms",
+        sup.len()
+    );
+    assert!(
+        n_ref >= 90,
+        "reference QT found in only {n_ref} LUDB records"
+    );
+    assert!(
+        lng.len() * 10 >= n_ref * 7,
+        "window QT measured in only {} of {n_ref} records",
+        lng.len()
+    );
 }

@@ -26,13 +26,18 @@ pub fn data_dir() -> Option<PathBuf> {
 /// A record's leads after the run's conditioning filter (default `[filter]`).
 pub fn load_filtered(dir: &Path, rec: &str) -> (f64, Vec<Vec<f64>>) {
     let hea = dir.join(format!("{rec}.hea"));
-    let r = tendline_formats::wfdb::read_record(&hea).unwrap_or_else(|e| panic!("{}: {e}", hea.display()));
+    let r = tendline_formats::wfdb::read_record(&hea)
+        .unwrap_or_else(|e| panic!("{}: {e}", hea.display()));
     let f = ConditioningFilter::design(r.fs, &FilterConfig::default()).expect("filter design");
     let leads = r
         .leads
         .iter()
         .map(|l| {
-            let x: Vec<f64> = l.samples.iter().map(|v| if v.is_finite() { *v } else { 0.0 }).collect();
+            let x: Vec<f64> = l
+                .samples
+                .iter()
+                .map(|v| if v.is_finite() { *v } else { 0.0 })
+                .collect();
             f.apply(&x)
         })
         .collect();
@@ -134,10 +139,20 @@ pub fn merge_tables(tables: &[Table]) -> Table {
 
 pub fn print_table(title: &str, t: &Table, keys: &[&str]) {
     println!("{title}");
-    println!("{:16} {:>8} {:>8} {:>8} {:>7}", "fiducial", "sens %", "mean ms", "SD ms", "n ref");
+    println!(
+        "{:16} {:>8} {:>8} {:>8} {:>7}",
+        "fiducial", "sens %", "mean ms", "SD ms", "n ref"
+    );
     for k in keys {
         if let Some(a) = t.get(*k) {
-            println!("{:16} {:8.2} {:8.2} {:8.2} {:7}", k, a.sens(), a.mean(), a.sd(), a.n_ref);
+            println!(
+                "{:16} {:8.2} {:8.2} {:8.2} {:7}",
+                k,
+                a.sens(),
+                a.mean(),
+                a.sd(),
+                a.n_ref
+            );
         }
     }
 }

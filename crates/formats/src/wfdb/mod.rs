@@ -335,11 +335,18 @@ fn slots_of(header: &Header, signals: &[usize]) -> Vec<Slot> {
 ///
 /// Returns one vector per slot with `n_frames × spf` samples. Samples that skew
 /// places past the end of the file are the format's invalid value.
-fn demux<R: Read>(format: u32, r: &mut R, avail: u64, n_frames: u64, slots: &[Slot]) -> std::io::Result<Vec<Vec<i32>>> {
+fn demux<R: Read>(
+    format: u32,
+    r: &mut R,
+    avail: u64,
+    n_frames: u64,
+    slots: &[Slot],
+) -> std::io::Result<Vec<Vec<i32>>> {
     let tspf: usize = slots.iter().map(|s| s.spf).sum();
     let max_skew = slots.iter().map(|s| s.skew).max().unwrap_or(0);
     let total_frames = n_frames.saturating_add(max_skew);
-    let avail_samples = samples_in_bytes(format, avail).min(total_frames.saturating_mul(tspf as u64)) as usize;
+    let avail_samples =
+        samples_in_bytes(format, avail).min(total_frames.saturating_mul(tspf as u64)) as usize;
     let stream_frames = avail_samples.div_ceil(tspf.max(1));
     // A multiple of 6 frames keeps block starts on 212/310/311 group boundaries.
     let block_frames = 6 * (8192 / tspf.max(1)).max(1);
@@ -388,7 +395,13 @@ fn demux<R: Read>(format: u32, r: &mut R, avail: u64, n_frames: u64, slots: &[Sl
             } else if sl.spf == 1 {
                 // The last frame of the stream may be partial: pad what it lacks.
                 let want = out.len() + (f1 - f0);
-                out.extend(sbuf.get(first..).unwrap_or(&[]).iter().step_by(tspf).take(f1 - f0));
+                out.extend(
+                    sbuf.get(first..)
+                        .unwrap_or(&[])
+                        .iter()
+                        .step_by(tspf)
+                        .take(f1 - f0),
+                );
                 out.resize(want, bad);
             } else {
                 for fr in 0..f1 - f0 {
@@ -747,7 +760,10 @@ mod tests {
             let mut acc: Vec<i32> = slots.iter().map(|s| s.init).collect();
             for (i, v) in stream.iter_mut().enumerate() {
                 let p = i % tspf;
-                let k = slots.iter().position(|s| p >= s.pos && p < s.pos + s.spf).unwrap();
+                let k = slots
+                    .iter()
+                    .position(|s| p >= s.pos && p < s.pos + s.spf)
+                    .unwrap();
                 acc[k] = acc[k].wrapping_add(*v);
                 *v = acc[k];
             }
@@ -783,7 +799,11 @@ mod tests {
             let mut pos = 0;
             let slots: Vec<Slot> = (0..nsig)
                 .map(|_| {
-                    let spf = if next() % 3 == 0 { 1 + (next() % 4) as usize } else { 1 };
+                    let spf = if next() % 3 == 0 {
+                        1 + (next() % 4) as usize
+                    } else {
+                        1
+                    };
                     let s = Slot {
                         pos,
                         spf,
@@ -799,10 +819,24 @@ mod tests {
             let bytes: Vec<u8> = (0..nbytes).map(|_| next() as u8).collect();
             let tspf = pos as u64;
             let max_frames = samples_in_bytes(format, nbytes as u64) / tspf;
-            let n_frames = if max_frames == 0 { 0 } else { next() % (max_frames + 1) } as usize;
+            let n_frames = if max_frames == 0 {
+                0
+            } else {
+                next() % (max_frames + 1)
+            } as usize;
             let want = demux_simple(format, &bytes, n_frames, &slots);
-            let got = demux(format, &mut &bytes[..], nbytes as u64, n_frames as u64, &slots).unwrap();
-            assert_eq!(got, want, "case {case}: format {format}, slots {slots:?}, {nbytes} bytes, {n_frames} frames");
+            let got = demux(
+                format,
+                &mut &bytes[..],
+                nbytes as u64,
+                n_frames as u64,
+                &slots,
+            )
+            .unwrap();
+            assert_eq!(
+                got, want,
+                "case {case}: format {format}, slots {slots:?}, {nbytes} bytes, {n_frames} frames"
+            );
         }
     }
 }

@@ -1,0 +1,306 @@
+//! Placement on analytic beats: every wave is a Gaussian, so its peak, its
+//! inflection points (c ± σ) and the tangent at the steepest point of the
+//! trailing limb (which meets the baseline at c + 2σ: at c + σ the wave is
+//! A·e^{-1/2} and its slope −A·e^{-1/2}/σ) are known exactly.
+
+use tendline_delineate::{delineate, delineate_lead, BeatMarks, DelineateConfig, TMorphology};
+
+#[derive(Clone, Copy)]
+struct Wave {
+    amp: f64,
+    /// Centre relative to the R peak (ms).
+    at_ms: f64,
+    sigma_ms: f64,
+}
+
+fn p_wave() -> Wave {
+    Wave {
+        amp: 0.15,
+        at_ms: -170.0,
+        sigma_ms: 14.0,
+    }
+}
+fn t_wave(amp: f64) -> Wave {
+    Wave {
+        amp,
+        at_ms: 300.0,
+        sigma_ms: 40.0,
+    }
+}
+fn qrs() -> [Wave; 3] {
+    [
+        Wave {
+            amp: -0.2,
+            at_ms: -22.0,
+            sigma_ms: 5.0,
+        },
+        Wave {
+            amp: 1.2,
+            at_ms: 0.0,
+            sigma_ms: 8.0,
+        },
+        Wave {
+            amp: -0.3,
+            at_ms: 22.0,
+            sigma_ms: 6.0,
+        },
+    ]
+}
+
+/// Beats every `rr_ms`, first R at 600 ms, sampled exactly at `fs`.
+fn synth(fs: f64, n_beats: usize, rr_ms: f64, waves: &[Wave]) -> (Vec<f64>, Vec<usize>) {
+    let n = ((600.0 + rr_ms * n_beats as f64) * fs / 1000.0) as usize;
+    let rs: Vec<f64> = (0..n_beats).map(|i| 600.0 + rr_ms * i as f64).collect();
+    let x = (0..n)
+        .map(|i| {
+            let t = i as f64 * 1000.0 / fs;
+            rs.iter()
+                .flat_map(|r| {
+                    waves.iter().map(move |w| {
+                        w.amp * (-((t - r - w.at_ms) / w.sigma_ms).powi(2) / 2.0).exp()
+                    })
+                })
+                .sum()
+        })
+        .collect();
+    (
+        x,
+        rs.iter()
+            .map(|r| (r * fs / 1000.0).round() as usize)
+            .collect(),
+    )
+}
+
+fn all_waves(t_amp: f64) -> Vec<Wave> {
+    let mut v = vec![p_wave(), t_wave(t_amp)];
+    v.extend(qrs());
+    v
+}
+
+/// Mark time relative to the beat's R (ms).
+fn rel(m: Option<tendline_delineate::Mark>, r: usize, fs: f64) -> f64 {
+    (m.expect("mark present").sample as f64 - r as f64) * 1000.0 / fs
+}
+
+fn print(b: &BeatMarks, r: usize, fs: f64) {
+    let f = |m: Option<tendline_delineate::Mark>| {
+        m.map_or(f64::NAN, |m| (m.sample as f64 - r as f64) * 1000.0 / fs)
+    };
+    println!(
+        "p {:.0} {:.0} {:.0} | qrs {:.0} {:.0} {:.0} | t {:.0} {:.0} end w {:.0} tg {:.0} ar {:.0} {:?}",
+        f(b.p_on), f(b.p_peak), f(b.p_end), f(b.qrs_on), f(b.qrs_peak), f(b.qrs_end), f(b.t_on), f(b.t_peak),
+        f(b.t_end_wavelet), f(b.t_end_tangent), f(b.t_end_area), b.t_morphology
+    );
+}
+
+/// Variance (ms² at the 250 Hz analysis rate) that the smoothing of scale
+/// 2^k adds: 0.75·Σ_{j<k} 4^(j-1) + 4^(k-1)/12 samples² (see the wavelet
+/// tests in tendline-dsp).
+fn v_k(k: i32) -> f64 {
+    let s: f64 = (1..k).map(|j| 0.75 * 4f64.powi(j - 1)).sum::<f64>() + 4f64.powi(k - 1) / 12.0;
+    s * 16.0
+}
+
+/// Where a ξ boundary rule puts the onset/end of an isolated Gaussian read at
+/// scale 2^k: W_k ∝ derivative of a Gaussian of σ_k = sqrt(σ² + v_k), whose
+/// modulus maximum is at c ∓ σ_k; |W_k| falls to ξ of it at c ∓ u·σ_k with
+/// u·exp(−(u² − 1)/2) = ξ, u > 1 (solved by bisection).
+fn xi_boundary(w: Wave, k: i32, xi: f64, side: f64) -> f64 {
+    let sk = (w.sigma_ms.powi(2) + v_k(k)).sqrt();
+    let f = |u: f64| u * (-(u * u - 1.0) / 2.0).exp() - xi;
+    let (mut lo, mut hi) = (1.0, 10.0);
+    for _ in 0..60 {
+        let mid = 0.5 * (lo + hi);
+        if f(mid) > 0.0 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    w.at_ms + side * lo * sk
+}
+
+/// Analysis sample (4 ms) plus one input sample of rounding.
+fn near(got: f64, expect: f64, fs: f64, what: &str) {
+    let tol = 4.0 + 1000.0 / fs;
+    assert!(
+        (got - expect).abs() <= tol,
+        "{what}: {got} ms, expected {expect:.1} ± {tol} ms"
+    );
+}
+
+fn check_beat(b: &BeatMarks, r: usize, fs: f64) {
+    let (p, t, q) = (p_wave(), t_wave(0.35), qrs());
+    let c = DelineateConfig::default();
+    near(rel(b.qrs_peak, r, fs), 0.0, fs, "qrs peak");
+    near(rel(b.p_peak, r, fs), p.at_ms, fs, "p peak");
+    near(rel(b.t_peak, r, fs), t.at_ms, fs, "t peak");
+    near(
+        rel(b.p_on, r, fs),
+        xi_boundary(p, 4, c.p_xi_on, -1.0),
+        fs,
+        "p on",
+    );
+    near(
+        rel(b.p_end, r, fs),
+        xi_boundary(p, 4, c.p_xi_end, 1.0),
+        fs,
+        "p end",
+    );
+    near(
+        rel(b.qrs_on, r, fs),
+        xi_boundary(q[0], 2, c.qrs_xi_on, -1.0),
+        fs,
+        "qrs on (Q wave)",
+    );
+    // The last lobe (S upstroke) is positive.
+    near(
+        rel(b.qrs_end, r, fs),
+        xi_boundary(q[2], 2, c.qrs_xi_end_pos, 1.0),
+        fs,
+        "qrs end (S wave)",
+    );
+    near(
+        rel(b.t_on, r, fs),
+        xi_boundary(t, 4, c.t_xi_on, -1.0),
+        fs,
+        "t on",
+    );
+    near(
+        rel(b.t_end_wavelet, r, fs),
+        xi_boundary(t, 4, c.t_xi_end, 1.0),
+        fs,
+        "t end wavelet",
+    );
+    // Area indicator: no closed form here; it must lie past the tangent
+    // end and within 3.5 σ of the centre.
+    let area = rel(b.t_end_area, r, fs);
+    assert!(
+        area >= t.at_ms + 2.0 * t.sigma_ms - 4.0 && area <= t.at_ms + 3.5 * t.sigma_ms,
+        "t end area {area}"
+    );
+    // Tangent: the steepest point is read at scale 2^3, whose smoothing adds
+    // variance v_3, so the tangent meets the baseline at c + 2·sqrt(σ² + v_3).
+    let expect = t.at_ms + 2.0 * (t.sigma_ms.powi(2) + v_k(3)).sqrt();
+    near(rel(b.t_end_tangent, r, fs), expect, fs, "t end tangent");
+    assert_eq!(b.t_morphology, TMorphology::Upright);
+    assert_eq!(
+        b.t_end, b.t_end_wavelet,
+        "default method is the wavelet rule"
+    );
+}
+
+#[test]
+fn gaussian_beat_placement_250_hz() {
+    let fs = 250.0;
+    let (x, rs) = synth(fs, 6, 900.0, &all_waves(0.35));
+    let marks = delineate_lead(&x, fs, &rs, &DelineateConfig::default());
+    for (b, &r) in marks.iter().zip(&rs) {
+        print(b, r, fs);
+        check_beat(b, r, fs);
+    }
+}
+
+#[test]
+fn five_hundred_hz_gives_the_same_marks_as_250_hz() {
+    // The analysis runs at 250 Hz; a 500 Hz input is resampled and its
+    // marks mapped back, so they agree within one analysis sample.
+    let cfg = DelineateConfig::default();
+    let (x1, r1) = synth(250.0, 5, 850.0, &all_waves(0.35));
+    let (x2, r2) = synth(500.0, 5, 850.0, &all_waves(0.35));
+    let m1 = delineate_lead(&x1, 250.0, &r1, &cfg);
+    let m2 = delineate_lead(&x2, 500.0, &r2, &cfg);
+    for i in 0..r1.len() {
+        check_beat(&m2[i], r2[i], 500.0);
+        let pairs = [
+            (m1[i].p_on, m2[i].p_on),
+            (m1[i].p_end, m2[i].p_end),
+            (m1[i].qrs_on, m2[i].qrs_on),
+            (m1[i].qrs_end, m2[i].qrs_end),
+            (m1[i].t_peak, m2[i].t_peak),
+            (m1[i].t_end_wavelet, m2[i].t_end_wavelet),
+            (m1[i].t_end_tangent, m2[i].t_end_tangent),
+        ];
+        for (a, b) in pairs {
+            let ta = a.unwrap().sample as f64 * 4.0;
+            let tb = b.unwrap().sample as f64 * 2.0;
+            assert!(
+                (ta - tb).abs() <= 4.0,
+                "beat {i}: {ta} ms at 250 Hz vs {tb} ms at 500 Hz"
+            );
+        }
+    }
+}
+
+#[test]
+fn absent_p_and_flat_t_are_reported_absent() {
+    let fs = 250.0;
+    let waves: Vec<Wave> = qrs().to_vec();
+    let (x, rs) = synth(fs, 5, 800.0, &waves);
+    for b in delineate_lead(&x, fs, &rs, &DelineateConfig::default()) {
+        assert!(b.qrs_on.is_some() && b.qrs_end.is_some());
+        assert!(
+            b.p_on.is_none() && b.p_peak.is_none() && b.p_end.is_none(),
+            "{b:?}"
+        );
+        assert!(b.t_peak.is_none() && b.t_end.is_none(), "{b:?}");
+        assert_eq!(b.t_morphology, TMorphology::Absent);
+    }
+}
+
+#[test]
+fn inverted_and_biphasic_t() {
+    let fs = 250.0;
+    let (x, rs) = synth(fs, 5, 900.0, &all_waves(-0.3));
+    for (b, &r) in delineate_lead(&x, fs, &rs, &DelineateConfig::default())
+        .iter()
+        .zip(&rs)
+    {
+        assert_eq!(b.t_morphology, TMorphology::Inverted);
+        assert!((rel(b.t_peak, r, fs) - 300.0).abs() <= 4.0);
+        assert!(b.t_end_tangent.is_some() && b.t_end_wavelet.is_some());
+    }
+    // Positive then negative lobe of equal size.
+    let mut w = all_waves(0.0);
+    w.push(Wave {
+        amp: 0.25,
+        at_ms: 260.0,
+        sigma_ms: 30.0,
+    });
+    w.push(Wave {
+        amp: -0.25,
+        at_ms: 340.0,
+        sigma_ms: 30.0,
+    });
+    let (x, rs) = synth(fs, 5, 900.0, &w);
+    for b in delineate_lead(&x, fs, &rs, &DelineateConfig::default()) {
+        assert_eq!(b.t_morphology, TMorphology::BiphasicPosNeg, "{b:?}");
+    }
+}
+
+#[test]
+fn single_median_beat_and_edges_do_not_panic() {
+    let fs = 500.0;
+    let cfg = DelineateConfig::default();
+    // A 1.2 s median beat with its R at 0.4 s.
+    let (x, _) = synth(fs, 1, 900.0, &all_waves(0.35));
+    let x = &x[(0.2 * fs) as usize..(1.4 * fs) as usize];
+    let r = (0.4 * fs) as usize;
+    let b = &delineate_lead(x, fs, &[r], &cfg)[0];
+    check_beat(b, r, fs);
+    // Beats at and beyond the edges, empty and tiny inputs.
+    let marks = delineate_lead(x, fs, &[0, 3, x.len() - 1, x.len() + 50], &cfg);
+    assert_eq!(marks.len(), 4);
+    assert_eq!(
+        marks[3],
+        BeatMarks {
+            t_end_method: cfg.t_end_method,
+            ..Default::default()
+        }
+    );
+    assert_eq!(delineate_lead(&[], fs, &[0, 10], &cfg).len(), 2);
+    assert_eq!(delineate_lead(&[0.0; 5], fs, &[2], &cfg).len(), 1);
+    let d = delineate(&[x, x], fs, &[r], &cfg);
+    assert_eq!(d.global.len(), 1);
+    assert_eq!(d.global[0].qrs_on, d.per_lead[0][0].qrs_on);
+}

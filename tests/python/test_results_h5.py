@@ -1,0 +1,119 @@
+"""results.h5 written by `tendline run`, read back with the general-purpose `h5py`
+package (the reference HDF5 reader), and cross-checked against the inputs as read
+by the `wfdb` package (MIT-LCP/wfdb-python) and against `hashlib`.
+
+The layout checked here is the contract documented in docs/results-h5.md.
+"""
+
+import hashlib
+import os
+import shutil
+import subprocess
+import tempfile
+from pathlib import Path
+
+import h5py
+import numpy as np
+import pytest
+import wfdb
+
+REPO = Path(__file__).resolve().parents[2]
+DATA = REPO.parent / "shared" / "data"
+BIN = Path(os.environ.get("TENDLINE_BIN_DIR", REPO / "target" / "release")) / "tendline"
+
+WINDOW_FIELDS = [
+    "start_s", "end_s", "n_beats", "rr_ms", "hr_bpm", "qt_ms", "qt_lead",
+    "qt_superimposed_ms", "qrs_ms", "pr_ms", "qtc_bazett_ms", "qtc_fridericia_ms",
+    "qtc_framingham_ms", "qtc_hodges_ms", "qtc_flag",
+]
+
+
+def text(v):
+    return v.decode() if isinstance(v, bytes) else str(v)
+
+
+@pytest.fixture(scope="module")
+def run():
+    if not BIN.exists():
+        pytest.fail(f"{BIN} missing: build with `cargo build --release -p tendline`")
+    tmp = Path(tempfile.mkdtemp())
+    inp = tmp / "in"
+    inp.mkdir()
+    for rec in ["7", "8"]:
+        for ext in ["hea", "dat"]:
+            shutil.copy(DATA / "ludb" / f"{rec}.{ext}", inp / f"{rec}.{ext}")
+    out = tmp / "out"
+    subprocess.run([str(BIN), "run", str(inp), "--out", str(out), "--quiet"], check=True)
+    yield inp, out
+    shutil.rmtree(tmp)
+
+
+def test_root_attributes_identify_the_run(run):
+    _, out = run
+    with h5py.File(out / "results.h5", "r") as f:
+        assert text(f.attrs["tool"]) == "tendline"
+        assert text(f.attrs["tool_version"])
+        cfg = text(f.attrs["config_toml"])
+        # The stored digest is the SHA-256 of the stored config text (hashlib as reference).
+        assert text(f.attrs["config_sha256"]) == hashlib.sha256(cfg.encode()).hexdigest()
+        assert "[detect]" in cfg and "[delineate]" in cfg
+        assert "over-read" in text(f.attrs["caution"])
+        assert sorted(f["records"].keys()) == ["7", "8"]
+
+
+def test_record_attributes_match_the_input(run):
+    inp, out = run
+    with h5py.File(out / "results.h5", "r") as f:
+        for rec in ["7", "8"]:
+            g = f["records"][rec]
+            ref = wfdb.rdheader(str(inp / rec))
+            assert float(g.attrs["fs"]) == ref.fs
+            assert int(g.attrs["n_samples"]) == ref.sig_len
+            # Lead names exactly as in the input header.
+            assert [text(x) for x in g.attrs["leads"]] == ref.sig_name
+            files = [text(x) for x in g.attrs["input_files"]]
+            sums = [text(x) for x in g.attrs["input_sha256"]]
+            for name, digest in zip(files, sums):
+                assert hashlib.sha256((inp / name).read_bytes()).hexdigest() == digest
+            assert set(files) == {f"{rec}.hea", f"{rec}.dat"}
+            # LUDB headers carry sex and age (Kalyakulina et al. 2020).
+            assert text(g.attrs["sex"]) in ("M", "F")
+            assert 0 < float(g.attrs["age"]) < 120
+
+
+def test_beats_marks_and_windows_are_consistent(run):
+    _, out = run
+    with h5py.File(out / "results.h5", "r") as f:
+        g = f["records"]["7"]
+        peaks = g["beats/qrs_peak"][:]
+        labels = [text(x) for x in g["beats/label"][:]]
+        assert len(peaks) == len(labels) > 5
+        assert np.all(np.diff(peaks) > 0)
+        assert set(labels) <= {"N", "V", "Q"}
+        gm = g["marks/global"]
+        for k in ["qrs_on", "qrs_end", "t_end", "t_end_tangent", "t_end_wavelet", "qrs_on_confidence"]:
+            assert len(gm[k]) == len(peaks), k
+        on, end = gm["qrs_on"][:], gm["qrs_end"][:]
+        ok = (on >= 0) & (end >= 0)
+        assert ok.sum() > 0.8 * len(peaks)
+        assert np.all(on[ok] < peaks[ok]) and np.all(peaks[ok] < end[ok])
+        assert len(g["marks/leads"].keys()) == 12
+        w = g["windows"]
+        for k in WINDOW_FIELDS:
+            assert k in w, k
+        assert len(w["start_s"]) == 1  # a 10-s record is one window
+        qt = w["qt_ms"][0]
+        rr_s = w["rr_ms"][0] / 1000.0
+        if np.isfinite(qt):
+            # Fridericia 1920: QTc = QT / RR^(1/3), stored beside the inputs it came from.
+            assert w["qtc_fridericia_ms"][0] == pytest.approx(qt / rr_s ** (1 / 3), rel=1e-9)
+            assert text(w["qt_lead"][0]) in [text(x) for x in g.attrs["leads"]]
+
+
+def test_annotation_files_read_with_wfdb(run):
+    _, out = run
+    ann = wfdb.rdann(str(out / "annotations" / "7"), "mark")
+    assert len(ann.sample) > 0
+    assert set(ann.symbol) <= {"(", ")", "p", "t", "N", "V", "Q"}
+    lead = wfdb.rdann(str(out / "annotations" / "7"), "leadmark")
+    assert set(lead.chan) <= set(range(12)) and len(set(lead.chan)) > 1
