@@ -18,8 +18,11 @@ fn read_csv(p: &Path) -> Table {
     lines
         .map(|l| {
             let cells: Vec<&str> = l.split(',').collect();
-            let row: BTreeMap<String, String> =
-                head.iter().zip(cells.iter()).map(|(h, c)| (h.to_string(), c.to_string())).collect();
+            let row: BTreeMap<String, String> = head
+                .iter()
+                .zip(cells.iter())
+                .map(|(h, c)| (h.to_string(), c.to_string()))
+                .collect();
             (row["record"].clone(), row)
         })
         .collect()
@@ -41,8 +44,15 @@ fn demo_run_recovers_ground_truth() {
         .output()
         .unwrap();
     let stdout = String::from_utf8_lossy(&o.stdout);
-    assert!(o.status.success(), "{stdout}{}", String::from_utf8_lossy(&o.stderr));
-    assert!(stdout.contains("over-read by a qualified clinician"), "caution missing:\n{stdout}");
+    assert!(
+        o.status.success(),
+        "{stdout}{}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    assert!(
+        stdout.contains("over-read by a qualified clinician"),
+        "caution missing:\n{stdout}"
+    );
 
     let truth = read_csv(&root.join("demo-signals/truth.csv"));
     let got = read_csv(&out.path().join("summary.csv"));
@@ -53,19 +63,26 @@ fn demo_run_recovers_ground_truth() {
         let qt = num(&got, rec, "qt_ms");
         let flags = got.get(rec).map(|r| r["flags"].clone()).unwrap_or_default();
         match (qt, noisy) {
-            (Some(qt), false) if (qt - t_qt).abs() > 10.0 => {
-                problems.push(format!("{rec}: QT {qt:.1} vs truth {t_qt:.1} ms (limit ±10)"))
-            }
+            (Some(qt), false) if (qt - t_qt).abs() > 10.0 => problems.push(format!(
+                "{rec}: QT {qt:.1} vs truth {t_qt:.1} ms (limit ±10)"
+            )),
             (None, false) => problems.push(format!("{rec}: no QT measured in a clean record")),
             (Some(qt), true) if (qt - t_qt).abs() > 20.0 && !flags.contains("unreadable") => {
-                problems.push(format!("{rec}: noisy record QT {qt:.1} vs truth {t_qt:.1} ms, not marked unreadable"))
+                problems.push(format!(
+                    "{rec}: noisy record QT {qt:.1} vs truth {t_qt:.1} ms, not marked unreadable"
+                ))
             }
             _ => {}
         }
         if row["expected_flag"] == "prolonged" {
-            let flag = got.get(rec).map(|r| r["qtc_flag"].clone()).unwrap_or_default();
+            let flag = got
+                .get(rec)
+                .map(|r| r["qtc_flag"].clone())
+                .unwrap_or_default();
             if flag != "prolonged" {
-                problems.push(format!("{rec}: expected a prolonged QTc flag, got `{flag}`"));
+                problems.push(format!(
+                    "{rec}: expected a prolonged QTc flag, got `{flag}`"
+                ));
             }
         }
         if let Some(t_delta) = num(&truth, rec, "delta_qtcf_ms") {
@@ -76,15 +93,25 @@ fn demo_run_recovers_ground_truth() {
                 .map(|(k, _)| k.clone())
                 .unwrap();
             let noisy_pair = [rec, &base].iter().any(|r| truth[*r]["noisy"] == "yes");
-            match (num(&got, rec, "qtc_fridericia_ms"), num(&got, &base, "qtc_fridericia_ms")) {
-                (Some(a), Some(b)) if !noisy_pair && ((a - b) - t_delta).abs() > 5.0 => problems.push(format!(
-                    "{rec}: ΔQTcF {:.1} vs truth {t_delta:.1} ms (limit ±5)",
-                    a - b
-                )),
-                (None, _) | (_, None) if !noisy_pair => problems.push(format!("{rec}: ΔQTcF not measurable")),
+            match (
+                num(&got, rec, "qtc_fridericia_ms"),
+                num(&got, &base, "qtc_fridericia_ms"),
+            ) {
+                (Some(a), Some(b)) if !noisy_pair && ((a - b) - t_delta).abs() > 5.0 => problems
+                    .push(format!(
+                        "{rec}: ΔQTcF {:.1} vs truth {t_delta:.1} ms (limit ±5)",
+                        a - b
+                    )),
+                (None, _) | (_, None) if !noisy_pair => {
+                    problems.push(format!("{rec}: ΔQTcF not measurable"))
+                }
                 _ => {}
             }
         }
     }
-    assert!(problems.is_empty(), "demo checks failed:\n{}", problems.join("\n"));
+    assert!(
+        problems.is_empty(),
+        "demo checks failed:\n{}",
+        problems.join("\n")
+    );
 }

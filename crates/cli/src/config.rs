@@ -71,7 +71,11 @@ fn unknown_keys(user: &toml::Value, known: &toml::Value, prefix: &str, out: &mut
             None => {
                 let hint = closest(key, k.keys().map(String::as_str))
                     .map(|c| {
-                        let p = if prefix.is_empty() { c.to_string() } else { format!("{prefix}.{c}") };
+                        let p = if prefix.is_empty() {
+                            c.to_string()
+                        } else {
+                            format!("{prefix}.{c}")
+                        };
                         format!(" (did you mean `{p}`?)")
                     })
                     .unwrap_or_default();
@@ -87,9 +91,9 @@ fn unknown_keys(user: &toml::Value, known: &toml::Value, prefix: &str, out: &mut
 
 /// Set `dotted.key = value` in a TOML tree; the value is parsed as TOML, else taken as a string.
 fn apply_override(root: &mut toml::Value, assignment: &str) -> Result<()> {
-    let (key, raw) = assignment
-        .split_once('=')
-        .ok_or_else(|| anyhow!("--set expects KEY=VALUE (e.g. detect.refractory_ms=200), got `{assignment}`"))?;
+    let (key, raw) = assignment.split_once('=').ok_or_else(|| {
+        anyhow!("--set expects KEY=VALUE (e.g. detect.refractory_ms=200), got `{assignment}`")
+    })?;
     let key = key.trim();
     let raw = raw.trim();
     let value: toml::Value = toml::from_str::<toml::Table>(&format!("v = {raw}"))
@@ -167,13 +171,20 @@ mod tests {
         for (table, v) in known.as_table().unwrap() {
             for key in v.as_table().unwrap().keys() {
                 let needle = format!("{key} =");
-                let Some(line) = DEFAULT_TOML.lines().find(|l| l.trim_start().starts_with(&needle)) else {
+                let Some(line) = DEFAULT_TOML
+                    .lines()
+                    .find(|l| l.trim_start().starts_with(&needle))
+                else {
                     missing.push(format!("{table}.{key}: absent"));
                     continue;
                 };
                 // The unit/meaning comment sits on the line itself or the line above.
                 let idx = DEFAULT_TOML.lines().position(|l| l == line).unwrap();
-                let above = if idx > 0 { DEFAULT_TOML.lines().nth(idx - 1).unwrap() } else { "" };
+                let above = if idx > 0 {
+                    DEFAULT_TOML.lines().nth(idx - 1).unwrap()
+                } else {
+                    ""
+                };
                 if !line.contains('#') && !above.trim_start().starts_with('#') {
                     missing.push(format!("{table}.{key}: no comment"));
                 }
@@ -184,22 +195,36 @@ mod tests {
 
     #[test]
     fn unknown_key_is_named_with_a_close_match() {
-        let e = load_from_str("[filter]\nhighpas_hz = 0.5\n", "x.toml", &[]).unwrap_err().to_string();
-        assert!(e.contains("filter.highpas_hz") && e.contains("did you mean `filter.highpass_hz`"), "{e}");
-        let e = load_from_str("[filtr]\n", "x.toml", &[]).unwrap_err().to_string();
+        let e = load_from_str("[filter]\nhighpas_hz = 0.5\n", "x.toml", &[])
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("filter.highpas_hz") && e.contains("did you mean `filter.highpass_hz`"),
+            "{e}"
+        );
+        let e = load_from_str("[filtr]\n", "x.toml", &[])
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("did you mean `filter`"), "{e}");
     }
 
     #[test]
     fn wrong_type_names_key() {
-        let e = load_from_str("[filter]\nhighpass_hz = \"fast\"\n", "x.toml", &[]).unwrap_err().to_string();
+        let e = load_from_str("[filter]\nhighpass_hz = \"fast\"\n", "x.toml", &[])
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("x.toml") && e.contains("highpass_hz"), "{e}");
     }
 
     #[test]
     fn out_of_range_names_key_range_and_value() {
-        let e = load_from_str("", "x.toml", &["filter.highpass_hz=-3".into()]).unwrap_err().to_string();
-        assert!(e.contains("filter.highpass_hz") && e.contains("got -3"), "{e}");
+        let e = load_from_str("", "x.toml", &["filter.highpass_hz=-3".into()])
+            .unwrap_err()
+            .to_string();
+        assert!(
+            e.contains("filter.highpass_hz") && e.contains("got -3"),
+            "{e}"
+        );
     }
 
     #[test]

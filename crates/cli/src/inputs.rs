@@ -26,7 +26,8 @@ pub struct RecordInput {
 const SIGNAL_EXTS: [&str; 3] = ["hea", "edf", "csv"];
 
 fn ext_of(p: &Path) -> Option<String> {
-    p.extension().map(|e| e.to_string_lossy().to_ascii_lowercase())
+    p.extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase())
 }
 
 fn from_path(p: &Path) -> Result<RecordInput> {
@@ -60,7 +61,8 @@ fn from_path(p: &Path) -> Result<RecordInput> {
 
 fn from_records_file(list: &Path) -> Result<Vec<RecordInput>> {
     let dir = list.parent().unwrap_or(Path::new("."));
-    let text = std::fs::read_to_string(list).with_context(|| format!("{}: cannot read", list.display()))?;
+    let text = std::fs::read_to_string(list)
+        .with_context(|| format!("{}: cannot read", list.display()))?;
     let mut out = Vec::new();
     for (i, line) in text.lines().enumerate() {
         let entry = line.trim();
@@ -76,7 +78,8 @@ fn from_records_file(list: &Path) -> Result<Vec<RecordInput>> {
             );
         }
         out.push(
-            from_path(&dir.join(rel)).with_context(|| format!("{}: line {}", list.display(), i + 1))?,
+            from_path(&dir.join(rel))
+                .with_context(|| format!("{}: line {}", list.display(), i + 1))?,
         );
     }
     Ok(out)
@@ -144,10 +147,21 @@ mod tests {
     #[test]
     fn folder_without_list_takes_signal_files_but_not_subjects() {
         let d = tempfile::tempdir().unwrap();
-        for n in ["a.hea", "a.dat", "b.edf", "c.csv", "subjects.csv", "notes.txt"] {
+        for n in [
+            "a.hea",
+            "a.dat",
+            "b.edf",
+            "c.csv",
+            "subjects.csv",
+            "notes.txt",
+        ] {
             touch(&d.path().join(n));
         }
-        let names: Vec<String> = resolve(&[d.path().into()]).unwrap().into_iter().map(|r| r.name).collect();
+        let names: Vec<String> = resolve(&[d.path().into()])
+            .unwrap()
+            .into_iter()
+            .map(|r| r.name)
+            .collect();
         assert_eq!(names, ["a", "b", "c"]);
     }
 
@@ -166,9 +180,13 @@ mod tests {
         touch(&d.path().join("r1.hea"));
         let r = resolve(&[d.path().join("r1")]).unwrap();
         assert_eq!(r[0].path, d.path().join("r1.hea"));
-        let e = resolve(&[d.path().join("r1"), d.path().join("r1.hea")]).unwrap_err().to_string();
+        let e = resolve(&[d.path().join("r1"), d.path().join("r1.hea")])
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("twice"), "{e}");
-        let e = resolve(&[d.path().join("nothing")]).unwrap_err().to_string();
+        let e = resolve(&[d.path().join("nothing")])
+            .unwrap_err()
+            .to_string();
         assert!(e.contains("not a record"), "{e}");
     }
 }

@@ -15,7 +15,11 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 #[derive(Parser)]
-#[command(name = "tendline", version, about = "ECG wave boundaries, QT and QTc at research scale, with validation against annotated databases")]
+#[command(
+    name = "tendline",
+    version,
+    about = "ECG wave boundaries, QT and QTc at research scale, with validation against annotated databases"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -75,9 +79,13 @@ fn cmd_run(a: RunArgs) -> Result<ExitCode> {
     if records.is_empty() {
         anyhow::bail!("no records found in the inputs given");
     }
-    let subjects_file = a.subjects.clone().or_else(|| inputs::folder_subjects(&a.inputs));
+    let subjects_file = a
+        .subjects
+        .clone()
+        .or_else(|| inputs::folder_subjects(&a.inputs));
     let subjects = match &subjects_file {
-        Some(p) => tendline_formats::subjects::read_subjects(p).with_context(|| format!("--subjects {}", p.display()))?,
+        Some(p) => tendline_formats::subjects::read_subjects(p)
+            .with_context(|| format!("--subjects {}", p.display()))?,
         None => Default::default(),
     };
     if let Some(csv_fs) = a.csv_fs {
@@ -107,7 +115,14 @@ fn cmd_run(a: RunArgs) -> Result<ExitCode> {
         tables::write_subjects(&opts.out, &subj)?;
     }
     if !a.quiet {
-        println!("{}", tables::print_table(&report.parts, &subj, opts.config.measure.preferred_formula.as_str()));
+        println!(
+            "{}",
+            tables::print_table(
+                &report.parts,
+                &subj,
+                opts.config.measure.preferred_formula.as_str()
+            )
+        );
     }
     let failures = report.failures();
     let done = report.outcomes.len() - failures.len();

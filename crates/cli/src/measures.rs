@@ -10,21 +10,47 @@ fn opt(v: Option<f64>) -> f64 {
 }
 
 /// Add `windows/` and the summary attributes to a record group.
-pub fn windows_group(g: &mut Group, m: &RecordMeasures, names: &[String], fs: f64, cfg: &MeasureConfig) {
+pub fn windows_group(
+    g: &mut Group,
+    m: &RecordMeasures,
+    names: &[String],
+    fs: f64,
+    cfg: &MeasureConfig,
+) {
     let w = &m.windows;
     let wg = g.group("windows");
-    let col = |f: &dyn Fn(&tendline_measure::WindowMeasure) -> Option<f64>| Data::F64(w.iter().map(|x| opt(f(x))).collect());
-    wg.dataset_with_units("start_s", Data::F64(w.iter().map(|x| x.start_s).collect()), "s");
+    let col = |f: &dyn Fn(&tendline_measure::WindowMeasure) -> Option<f64>| {
+        Data::F64(w.iter().map(|x| opt(f(x))).collect())
+    };
+    wg.dataset_with_units(
+        "start_s",
+        Data::F64(w.iter().map(|x| x.start_s).collect()),
+        "s",
+    );
     wg.dataset_with_units("end_s", Data::F64(w.iter().map(|x| x.end_s).collect()), "s");
-    wg.dataset("n_beats", Data::I64(w.iter().map(|x| x.n_beats as i64).collect()));
+    wg.dataset(
+        "n_beats",
+        Data::I64(w.iter().map(|x| x.n_beats as i64).collect()),
+    );
     wg.dataset_with_units("rr_ms", col(&|x| x.rr_ms), "ms");
     wg.dataset_with_units("hr_bpm", col(&|x| x.hr_bpm), "bpm");
     wg.dataset_with_units("qt_ms", col(&|x| x.qt_ms), "ms");
     wg.dataset(
         "qt_lead",
-        Data::Text(w.iter().map(|x| x.qt_lead.map(|i| names[i].clone()).unwrap_or_default()).collect()),
+        Data::Text(
+            w.iter()
+                .map(|x| x.qt_lead.map(|i| names[i].clone()).unwrap_or_default())
+                .collect(),
+        ),
     );
-    wg.dataset("qt_lead_index", Data::I64(w.iter().map(|x| x.qt_lead.map_or(-1, |i| i as i64)).collect()));
+    wg.dataset(
+        "qt_lead_index",
+        Data::I64(
+            w.iter()
+                .map(|x| x.qt_lead.map_or(-1, |i| i as i64))
+                .collect(),
+        ),
+    );
     wg.dataset_with_units("qt_longest_ms", col(&|x| x.qt_longest_ms), "ms");
     wg.dataset_with_units("qt_superimposed_ms", col(&|x| x.qt_superimposed_ms), "ms");
     wg.dataset_with_units("qrs_ms", col(&|x| x.qrs_ms), "ms");
@@ -35,12 +61,27 @@ pub fn windows_group(g: &mut Group, m: &RecordMeasures, names: &[String], fs: f6
     wg.dataset_with_units("qtc_framingham_ms", col(&|x| x.qtc_framingham_ms), "ms");
     wg.dataset_with_units("qtc_hodges_ms", col(&|x| x.qtc_hodges_ms), "ms");
     wg.dataset_with_units("qtc_ms", col(&|x| x.qtc_ms), "ms");
-    wg.dataset("qtc_flag", Data::Text(w.iter().map(|x| x.qtc_flag.as_str().to_string()).collect()));
-    wg.dataset("flags", Data::Text(w.iter().map(|x| window_flags(x).join(";")).collect()));
-    wg.dataset("classification", Data::Text(w.iter().map(|x| x.classification.text.clone()).collect()));
+    wg.dataset(
+        "qtc_flag",
+        Data::Text(w.iter().map(|x| x.qtc_flag.as_str().to_string()).collect()),
+    );
+    wg.dataset(
+        "flags",
+        Data::Text(w.iter().map(|x| window_flags(x).join(";")).collect()),
+    );
+    wg.dataset(
+        "classification",
+        Data::Text(w.iter().map(|x| x.classification.text.clone()).collect()),
+    );
     wg.attr("qt_rule", Attr::Text(cfg.qt_rule.as_str().into()));
-    wg.attr("preferred_formula", Attr::Text(cfg.preferred_formula.as_str().into()));
-    wg.attr("caution", Attr::Text(tendline_measure::classify::CAUTION.into()));
+    wg.attr(
+        "preferred_formula",
+        Attr::Text(cfg.preferred_formula.as_str().into()),
+    );
+    wg.attr(
+        "caution",
+        Attr::Text(tendline_measure::classify::CAUTION.into()),
+    );
     for (k, x) in w.iter().enumerate() {
         let mg = wg.group("medians").group(&format!("{k:03}"));
         mg.attr("fiducial", Attr::Int(x.median.fiducial as i64));
@@ -49,13 +90,20 @@ pub fn windows_group(g: &mut Group, m: &RecordMeasures, names: &[String], fs: f6
         let len = x.median.per_lead.first().map_or(0, Vec::len);
         let values: Vec<f32> = x.median.per_lead.iter().flatten().copied().collect();
         mg.dataset_with_units("beat", Data::F32Matrix { cols: len, values }, "mV");
-        mg.dataset("beats_used", Data::I64(x.beats.iter().map(|&b| b as i64).collect()));
+        mg.dataset(
+            "beats_used",
+            Data::I64(x.beats.iter().map(|&b| b as i64).collect()),
+        );
         for (i, lm) in x.leads.iter().enumerate() {
             let lg = mg.group("leads").group(&format!("{i:02}"));
             lg.attr("lead", Attr::Text(names[i].clone()));
             lg.attr("usable", Attr::Int(lm.usable as i64));
             lg.attr("qt_accepted", Attr::Int(lm.qt_accepted as i64));
-            for (n, v) in [("qt_ms", lm.qt_ms), ("qrs_ms", lm.qrs_ms), ("pr_ms", lm.pr_ms)] {
+            for (n, v) in [
+                ("qt_ms", lm.qt_ms),
+                ("qrs_ms", lm.qrs_ms),
+                ("pr_ms", lm.pr_ms),
+            ] {
                 lg.attr(n, Attr::Float(opt(v)));
             }
             marks_group(lg, std::slice::from_ref(&lm.marks));

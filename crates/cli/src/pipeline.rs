@@ -48,7 +48,11 @@ fn check_record(rec: &Record, path: &Path) -> Result<()> {
         bail!("{}: record has no signals", path.display());
     }
     if !(rec.fs.is_finite() && rec.fs > 0.0) {
-        bail!("{}: sampling frequency must be positive, got {}", path.display(), rec.fs);
+        bail!(
+            "{}: sampling frequency must be positive, got {}",
+            path.display(),
+            rec.fs
+        );
     }
     let n = rec.n_samples();
     if n == 0 {
@@ -56,10 +60,21 @@ fn check_record(rec: &Record, path: &Path) -> Result<()> {
     }
     for (i, l) in rec.leads.iter().enumerate() {
         if l.samples.len() != n {
-            bail!("{}: lead {} `{}` has {} samples, lead 0 has {n}", path.display(), i, l.name, l.samples.len());
+            bail!(
+                "{}: lead {} `{}` has {} samples, lead 0 has {n}",
+                path.display(),
+                i,
+                l.name,
+                l.samples.len()
+            );
         }
         if let Some(k) = l.samples.iter().position(|v| !v.is_finite()) {
-            bail!("{}: lead {} `{}` has a non-finite value (NaN or infinity) at sample {k}", path.display(), i, l.name);
+            bail!(
+                "{}: lead {} `{}` has a non-finite value (NaN or infinity) at sample {k}",
+                path.display(),
+                i,
+                l.name
+            );
         }
     }
     Ok(())
@@ -80,7 +95,10 @@ pub fn process_record(
         s.apply(&mut rec.meta);
     }
     let cfg = &ctx.config;
-    let filter = ctx.filters.get(rec.fs).with_context(|| format!("{}: filter design", input.name))?;
+    let filter = ctx
+        .filters
+        .get(rec.fs)
+        .with_context(|| format!("{}: filter design", input.name))?;
     let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
     let (cond, notch) = filter.apply_record(&raw);
     let leads: Vec<&[f64]> = cond.iter().map(Vec::as_slice).collect();
@@ -89,8 +107,16 @@ pub fn process_record(
     let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
     let del = tendline_delineate::delineate(&leads, rec.fs, &qrs, &cfg.delineate);
     let names: Vec<String> = rec.leads.iter().map(|l| l.name.clone()).collect();
-    let meas = tendline_measure::measure_record(&leads, &names, rec.fs, &det, rec.meta.sex, &cfg.measure, &cfg.delineate)
-        .map_err(|e| anyhow::anyhow!("{}: measurement: {e}", input.name))?;
+    let meas = tendline_measure::measure_record(
+        &leads,
+        &names,
+        rec.fs,
+        &det,
+        rec.meta.sex,
+        &cfg.measure,
+        &cfg.delineate,
+    )
+    .map_err(|e| anyhow::anyhow!("{}: measurement: {e}", input.name))?;
 
     let mut g = Group::default();
     record_attrs(&mut g, &rec, checksums, notch, &det);
@@ -123,12 +149,24 @@ pub fn process_record(
     })
 }
 
-fn record_attrs(g: &mut Group, rec: &Record, checksums: &[(String, String)], notch: Option<f64>, det: &Detection) {
+fn record_attrs(
+    g: &mut Group,
+    rec: &Record,
+    checksums: &[(String, String)],
+    notch: Option<f64>,
+    det: &Detection,
+) {
     g.attr("fs", Attr::Float(rec.fs));
     g.attr("n_samples", Attr::Int(rec.n_samples() as i64));
     g.attr("duration_s", Attr::Float(rec.n_samples() as f64 / rec.fs));
-    g.attr("leads", Attr::Texts(rec.leads.iter().map(|l| l.name.clone()).collect()));
-    g.attr("units", Attr::Texts(rec.leads.iter().map(|l| l.units.clone()).collect()));
+    g.attr(
+        "leads",
+        Attr::Texts(rec.leads.iter().map(|l| l.name.clone()).collect()),
+    );
+    g.attr(
+        "units",
+        Attr::Texts(rec.leads.iter().map(|l| l.units.clone()).collect()),
+    );
     if let Some(s) = rec.meta.sex {
         g.attr("sex", Attr::Text(s.code().into()));
     }
@@ -141,26 +179,58 @@ fn record_attrs(g: &mut Group, rec: &Record, checksums: &[(String, String)], not
     if let Some(t) = &rec.meta.timepoint {
         g.attr("timepoint", Attr::Text(t.clone()));
     }
-    g.attr("input_files", Attr::Texts(checksums.iter().map(|c| c.0.clone()).collect()));
-    g.attr("input_sha256", Attr::Texts(checksums.iter().map(|c| c.1.clone()).collect()));
+    g.attr(
+        "input_files",
+        Attr::Texts(checksums.iter().map(|c| c.0.clone()).collect()),
+    );
+    g.attr(
+        "input_sha256",
+        Attr::Texts(checksums.iter().map(|c| c.1.clone()).collect()),
+    );
     g.attr("powerline_notch_hz", Attr::Float(notch.unwrap_or(0.0)));
     g.attr("lead_quality", Attr::Floats(det.lead_quality.clone()));
     g.attr("n_beats", Attr::Int(det.beats.len() as i64));
 }
 
 fn beats_group(g: &mut Group, det: &Detection) {
-    g.dataset_with_units("qrs_peak", Data::I64(det.beats.iter().map(|b| b.sample as i64).collect()), "sample");
-    g.dataset("label", Data::Text(det.beats.iter().map(|b| b.label.symbol().to_string()).collect()));
+    g.dataset_with_units(
+        "qrs_peak",
+        Data::I64(det.beats.iter().map(|b| b.sample as i64).collect()),
+        "sample",
+    );
+    g.dataset(
+        "label",
+        Data::Text(
+            det.beats
+                .iter()
+                .map(|b| b.label.symbol().to_string())
+                .collect(),
+        ),
+    );
 }
 
 fn unreadable_group(g: &mut Group, det: &Detection) {
-    g.dataset_with_units("start", Data::I64(det.unreadable.iter().map(|s| s.start as i64).collect()), "sample");
-    g.dataset_with_units("end", Data::I64(det.unreadable.iter().map(|s| s.end as i64).collect()), "sample");
-    g.dataset("reason", Data::Text(det.unreadable.iter().map(|s| s.reason.clone()).collect()));
+    g.dataset_with_units(
+        "start",
+        Data::I64(det.unreadable.iter().map(|s| s.start as i64).collect()),
+        "sample",
+    );
+    g.dataset_with_units(
+        "end",
+        Data::I64(det.unreadable.iter().map(|s| s.end as i64).collect()),
+        "sample",
+    );
+    g.dataset(
+        "reason",
+        Data::Text(det.unreadable.iter().map(|s| s.reason.clone()).collect()),
+    );
 }
 
+/// Reads one fiducial of a beat.
+type MarkGetter = fn(&BeatMarks) -> Option<Mark>;
+
 /// Names and accessors of every stored fiducial, in the order written.
-pub const FIDUCIALS: [(&str, fn(&BeatMarks) -> Option<Mark>); 12] = [
+pub const FIDUCIALS: [(&str, MarkGetter); 12] = [
     ("p_on", |b| b.p_on),
     ("p_peak", |b| b.p_peak),
     ("p_end", |b| b.p_end),
@@ -196,14 +266,44 @@ pub fn morphology_name(m: TMorphology) -> &'static str {
 /// Marks as columns: sample index (−1 = absent) and confidence (NaN = absent).
 pub fn marks_group(g: &mut Group, beats: &[BeatMarks]) {
     for (name, get) in FIDUCIALS {
-        g.dataset_with_units(name, Data::I64(beats.iter().map(|b| get(b).map_or(-1, |m| m.sample as i64)).collect()), "sample");
+        g.dataset_with_units(
+            name,
+            Data::I64(
+                beats
+                    .iter()
+                    .map(|b| get(b).map_or(-1, |m| m.sample as i64))
+                    .collect(),
+            ),
+            "sample",
+        );
         g.dataset(
             &format!("{name}_confidence"),
-            Data::F32(beats.iter().map(|b| get(b).map_or(f32::NAN, |m| m.confidence)).collect()),
+            Data::F32(
+                beats
+                    .iter()
+                    .map(|b| get(b).map_or(f32::NAN, |m| m.confidence))
+                    .collect(),
+            ),
         );
     }
-    g.dataset("t_end_method", Data::Text(beats.iter().map(|b| method_name(b.t_end_method).to_string()).collect()));
-    g.dataset("t_morphology", Data::Text(beats.iter().map(|b| morphology_name(b.t_morphology).to_string()).collect()));
+    g.dataset(
+        "t_end_method",
+        Data::Text(
+            beats
+                .iter()
+                .map(|b| method_name(b.t_end_method).to_string())
+                .collect(),
+        ),
+    );
+    g.dataset(
+        "t_morphology",
+        Data::Text(
+            beats
+                .iter()
+                .map(|b| morphology_name(b.t_morphology).to_string())
+                .collect(),
+        ),
+    );
 }
 
 fn ann(sample: usize, symbol: &str, chan: u8, aux: Option<&str>) -> Annotation {
@@ -217,20 +317,43 @@ fn ann(sample: usize, symbol: &str, chan: u8, aux: Option<&str>) -> Annotation {
     }
 }
 
+type Wave<'a> = (
+    Option<Mark>,
+    Option<Mark>,
+    Option<Mark>,
+    &'a str,
+    Option<&'a str>,
+);
+
 /// The open databases' boundary convention: `(` onset, peak mark, `)` end, per wave.
-pub fn beat_annotations(beats: &[BeatMarks], qrs: &[usize], labels: &[&str], chan: u8) -> Vec<Annotation> {
+pub fn beat_annotations(
+    beats: &[BeatMarks],
+    qrs: &[usize],
+    labels: &[&str],
+    chan: u8,
+) -> Vec<Annotation> {
     let mut out = Vec::new();
     for (i, b) in beats.iter().enumerate() {
-        let waves: [(Option<Mark>, Option<Mark>, Option<Mark>, &str, Option<&str>); 3] = [
+        // (onset, peak, end, peak symbol, aux text of the end mark)
+        let waves: [Wave; 3] = [
             (b.p_on, b.p_peak, b.p_end, "p", None),
             (
                 b.qrs_on,
-                b.qrs_peak.or(Some(Mark { sample: qrs[i], confidence: 0.0 })),
+                b.qrs_peak.or(Some(Mark {
+                    sample: qrs[i],
+                    confidence: 0.0,
+                })),
                 b.qrs_end,
                 labels[i],
                 None,
             ),
-            (b.t_on, b.t_peak, b.t_end, "t", Some(method_name(b.t_end_method))),
+            (
+                b.t_on,
+                b.t_peak,
+                b.t_end,
+                "t",
+                Some(method_name(b.t_end_method)),
+            ),
         ];
         for (on, peak, end, sym, end_aux) in waves {
             let Some(peak) = peak else { continue };

@@ -68,11 +68,14 @@ impl RunReport {
 /// SHA-256 of a file, streamed.
 pub fn sha256_file(path: &Path) -> Result<String> {
     use std::io::Read;
-    let mut f = std::fs::File::open(path).with_context(|| format!("{}: cannot open", path.display()))?;
+    let mut f =
+        std::fs::File::open(path).with_context(|| format!("{}: cannot open", path.display()))?;
     let mut h = Sha256::new();
     let mut buf = vec![0u8; 1 << 16];
     loop {
-        let n = f.read(&mut buf).with_context(|| format!("{}: read error", path.display()))?;
+        let n = f
+            .read(&mut buf)
+            .with_context(|| format!("{}: read error", path.display()))?;
         if n == 0 {
             break;
         }
@@ -84,10 +87,17 @@ pub fn sha256_file(path: &Path) -> Result<String> {
 /// The files a record is made of, found without decoding it (for checksums and resume keys).
 fn input_files(input: &RecordInput) -> Vec<PathBuf> {
     let mut files = vec![input.path.clone()];
-    if input.path.extension().is_some_and(|e| e.eq_ignore_ascii_case("hea")) {
+    if input
+        .path
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("hea"))
+    {
         if let Ok(text) = std::fs::read_to_string(&input.path) {
             let dir = input.path.parent().unwrap_or(Path::new("."));
-            let mut lines = text.lines().map(str::trim).filter(|l| !l.is_empty() && !l.starts_with('#'));
+            let mut lines = text
+                .lines()
+                .map(str::trim)
+                .filter(|l| !l.is_empty() && !l.starts_with('#'));
             let _record_line = lines.next();
             for l in lines {
                 if let Some(f) = l.split_whitespace().next() {
@@ -102,7 +112,11 @@ fn input_files(input: &RecordInput) -> Vec<PathBuf> {
     files
 }
 
-fn record_key(ctx: &Context, checksums: &[(String, String)], subject: Option<&SubjectRow>) -> String {
+fn record_key(
+    ctx: &Context,
+    checksums: &[(String, String)],
+    subject: Option<&SubjectRow>,
+) -> String {
     let mut h = Sha256::new();
     h.update(env!("CARGO_PKG_VERSION").as_bytes());
     h.update(ctx.config_toml.as_bytes());
@@ -124,14 +138,27 @@ fn panic_text(p: Box<dyn std::any::Any + Send>) -> String {
     }
 }
 
-fn process_one(input: &RecordInput, ctx: &Context, opts: &RunOptions, samples: &AtomicU64) -> (Outcome, Option<Part>) {
+fn process_one(
+    input: &RecordInput,
+    ctx: &Context,
+    opts: &RunOptions,
+    samples: &AtomicU64,
+) -> (Outcome, Option<Part>) {
     let t0 = Instant::now();
     let part_path = opts.out.join("parts").join(format!("{}.json", input.name));
     let result = (|| -> Result<(Outcome, Part)> {
         let files = input_files(input);
         let checksums: Vec<(String, String)> = files
             .iter()
-            .map(|f| Ok((f.file_name().unwrap_or_default().to_string_lossy().into_owned(), sha256_file(f)?)))
+            .map(|f| {
+                Ok((
+                    f.file_name()
+                        .unwrap_or_default()
+                        .to_string_lossy()
+                        .into_owned(),
+                    sha256_file(f)?,
+                ))
+            })
             .collect::<Result<_>>()?;
         let subject = opts.subjects.get(&input.name);
         let key = record_key(ctx, &checksums, subject);
@@ -164,7 +191,12 @@ fn process_one(input: &RecordInput, ctx: &Context, opts: &RunOptions, samples: &
     })();
     match result {
         Ok((o, p)) => (o, Some(p)),
-        Err(e) => (Outcome::Failed { error: format!("{e:#}") }, None),
+        Err(e) => (
+            Outcome::Failed {
+                error: format!("{e:#}"),
+            },
+            None,
+        ),
     }
 }
 
@@ -183,7 +215,8 @@ fn progress_bar(n: usize, quiet: bool) -> ProgressBar {
 /// Run the whole batch. Never stops at a bad record.
 pub fn run(opts: &RunOptions) -> Result<RunReport> {
     let t0 = Instant::now();
-    std::fs::create_dir_all(&opts.out).with_context(|| format!("--out {}: cannot create", opts.out.display()))?;
+    std::fs::create_dir_all(&opts.out)
+        .with_context(|| format!("--out {}: cannot create", opts.out.display()))?;
     let ctx = Context::new(&opts.config, opts.csv_fs)?;
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(opts.jobs)
@@ -211,13 +244,16 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
                     )
                 });
                 let k = done.fetch_add(1, Ordering::Relaxed) + 1;
-                let rate = samples.load(Ordering::Relaxed) as f64 / t0.elapsed().as_secs_f64().max(1e-9);
+                let rate =
+                    samples.load(Ordering::Relaxed) as f64 / t0.elapsed().as_secs_f64().max(1e-9);
                 pb.set_message(format!("{:.1} M samples/s", rate / 1e6));
                 pb.inc(1);
                 if plain {
                     let _g = log.lock();
                     let what = match &r.0 {
-                        Outcome::Done { seconds, samples } => format!("done, {samples} samples in {seconds:.2} s"),
+                        Outcome::Done { seconds, samples } => {
+                            format!("done, {samples} samples in {seconds:.2} s")
+                        }
                         Outcome::Reused => "unchanged, kept".to_string(),
                         Outcome::Failed { error } => format!("FAILED: {error}"),
                     };
@@ -250,7 +286,10 @@ fn write_run_outputs(opts: &RunOptions, ctx: &Context, report: &RunReport) -> Re
     root.attr("config_toml", Attr::Text(ctx.config_toml.clone()));
     root.attr("config_sha256", Attr::Text(ctx.config_sha256.clone()));
     root.attr("created_utc", Attr::Text(tables::utc_now()));
-    root.attr("caution", Attr::Text(tendline_measure::classify::CAUTION.into()));
+    root.attr(
+        "caution",
+        Attr::Text(tendline_measure::classify::CAUTION.into()),
+    );
     if let Some(s) = &opts.subjects_file {
         root.attr("subjects_file", Attr::Text(s.display().to_string()));
         root.attr("subjects_sha256", Attr::Text(sha256_file(s)?));

@@ -32,7 +32,12 @@ fn iso_from_unix(secs: i64) -> String {
     let d = doy - (153 * mp + 2) / 5 + 1;
     let m = if mp < 10 { mp + 3 } else { mp - 9 };
     let y = yoe + era * 400 + i64::from(m <= 2);
-    format!("{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z", rem / 3600, rem % 3600 / 60, rem % 60)
+    format!(
+        "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z",
+        rem / 3600,
+        rem % 3600 / 60,
+        rem % 60
+    )
 }
 
 pub fn attr_f(g: &Group, k: &str) -> Option<f64> {
@@ -101,8 +106,16 @@ const WINDOW_COLS: [&str; 17] = [
 fn cell_of(d: &Data, i: usize) -> String {
     match d {
         Data::I64(v) => v.get(i).map(|x| x.to_string()).unwrap_or_default(),
-        Data::F64(v) => v.get(i).filter(|x| x.is_finite()).map(|x| format!("{x:.1}")).unwrap_or_default(),
-        Data::F32(v) => v.get(i).filter(|x| x.is_finite()).map(|x| format!("{x:.3}")).unwrap_or_default(),
+        Data::F64(v) => v
+            .get(i)
+            .filter(|x| x.is_finite())
+            .map(|x| format!("{x:.1}"))
+            .unwrap_or_default(),
+        Data::F32(v) => v
+            .get(i)
+            .filter(|x| x.is_finite())
+            .map(|x| format!("{x:.3}"))
+            .unwrap_or_default(),
         Data::Text(v) => v.get(i).map(|s| csv_cell(s)).unwrap_or_default(),
         Data::F32Matrix { .. } => String::new(),
     }
@@ -155,7 +168,11 @@ pub fn write_csvs(out: &Path, parts: &[Part]) -> Result<()> {
             for i in 0..n {
                 write!(w, "{},{i}", csv_cell(&p.record))?;
                 for k in WINDOW_COLS.iter().chain(std::iter::once(&"flags")) {
-                    let c = wg.datasets.get(*k).map(|d| cell_of(&d.data, i)).unwrap_or_default();
+                    let c = wg
+                        .datasets
+                        .get(*k)
+                        .map(|d| cell_of(&d.data, i))
+                        .unwrap_or_default();
                     write!(w, ",{c}")?;
                 }
                 w.push('\n');
@@ -171,7 +188,13 @@ pub fn write_csvs(out: &Path, parts: &[Part]) -> Result<()> {
 pub fn write_failures(out: &Path, failures: &[(&crate::inputs::RecordInput, &str)]) -> Result<()> {
     let mut s = String::from("record,path,error\n");
     for (r, e) in failures {
-        writeln!(s, "{},{},{}", csv_cell(&r.name), csv_cell(&r.path.display().to_string()), csv_cell(e))?;
+        writeln!(
+            s,
+            "{},{},{}",
+            csv_cell(&r.name),
+            csv_cell(&r.path.display().to_string()),
+            csv_cell(e)
+        )?;
     }
     write_atomic(&out.join("failures.csv"), s.as_bytes())?;
     Ok(())
@@ -200,12 +223,17 @@ pub fn write_manifest(out: &Path, ctx: &Context, report: &RunReport) -> Result<(
         "seconds": report.seconds,
         "records": records,
     });
-    write_atomic(&out.join("run.json"), serde_json::to_string_pretty(&v)?.as_bytes())?;
+    write_atomic(
+        &out.join("run.json"),
+        serde_json::to_string_pretty(&v)?.as_bytes(),
+    )?;
     Ok(())
 }
 
 fn windows_qt_rr(g: &Group) -> Vec<QtRr> {
-    let Some(wg) = g.groups.get("windows") else { return Vec::new() };
+    let Some(wg) = g.groups.get("windows") else {
+        return Vec::new();
+    };
     let col = |k: &str| match wg.datasets.get(k).map(|d| &d.data) {
         Some(Data::F64(v)) => v.clone(),
         _ => Vec::new(),
@@ -271,11 +299,18 @@ pub fn write_subjects(out: &Path, results: &[SubjectResult]) -> Result<()> {
 /// The table printed at the end of a run: per subject and timepoint when subjects
 /// are known, otherwise per record; always followed by the caution.
 pub fn print_table(parts: &[Part], subjects: &[SubjectResult], formula: &str) -> String {
-    let by_name: BTreeMap<&str, &Group> = parts.iter().map(|p| (p.record.as_str(), &p.group)).collect();
+    let by_name: BTreeMap<&str, &Group> = parts
+        .iter()
+        .map(|p| (p.record.as_str(), &p.group))
+        .collect();
     let mut s = String::new();
     let qtc = format!("QTc{}", formula_letter(formula));
     if subjects.is_empty() {
-        let _ = writeln!(s, "{:<16} {:>6} {:>7} {:>7} {:>8}  flags", "record", "HR", "QT", qtc, "QRS");
+        let _ = writeln!(
+            s,
+            "{:<16} {:>6} {:>7} {:>7} {:>8}  flags",
+            "record", "HR", "QT", qtc, "QRS"
+        );
         for p in parts {
             let g = &p.group;
             let _ = writeln!(
@@ -293,7 +328,13 @@ pub fn print_table(parts: &[Part], subjects: &[SubjectResult], formula: &str) ->
         let _ = writeln!(
             s,
             "{:<8} {:<3} {:<14} {:>6} {:>7} {:>7} {:>7}  flags",
-            "subject", "sex", "timepoint", "HR", "QT", qtc, &format!("Δ{qtc}")
+            "subject",
+            "sex",
+            "timepoint",
+            "HR",
+            "QT",
+            qtc,
+            &format!("Δ{qtc}")
         );
         for r in subjects {
             for rec in &r.records {
@@ -310,7 +351,9 @@ pub fn print_table(parts: &[Part], subjects: &[SubjectResult], formula: &str) ->
                     fmt_f(hr, 0),
                     fmt_f(rec.qt_ms, 0),
                     fmt_f(rec.qtc_ms, 0),
-                    rec.delta_qtc_ms.map(|d| format!("{d:+.0}")).unwrap_or_default(),
+                    rec.delta_qtc_ms
+                        .map(|d| format!("{d:+.0}"))
+                        .unwrap_or_default(),
                     flags
                 );
             }

@@ -62,7 +62,9 @@ pub fn cmd_validate(a: ValidateArgs) -> Result<ExitCode> {
             config,
             subjects: Default::default(),
             subjects_file: None,
-            jobs: a.jobs.unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())),
+            jobs: a
+                .jobs
+                .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get())),
             force: false,
             quiet: a.quiet,
             csv_fs: None,
@@ -70,7 +72,10 @@ pub fn cmd_validate(a: ValidateArgs) -> Result<ExitCode> {
         let report = crate::run::run(&opts)?;
         let failed = report.failures();
         if !failed.is_empty() {
-            eprintln!("warning: {} record(s) failed to process and are not scored:", failed.len());
+            eprintln!(
+                "warning: {} record(s) failed to process and are not scored:",
+                failed.len()
+            );
             for (r, e) in failed {
                 eprintln!("  {}: {e}", r.name);
             }
@@ -92,8 +97,13 @@ pub fn cmd_validate(a: ValidateArgs) -> Result<ExitCode> {
         fiducial_window_ms: a.fiducial_window_ms,
         ..ValidateOptions::default()
     };
-    let report = tendline_evaluate::validate_and_write(&opts)
-        .with_context(|| format!("validating {} against {}", a.run.display(), a.data.display()))?;
+    let report = tendline_evaluate::validate_and_write(&opts).with_context(|| {
+        format!(
+            "validating {} against {}",
+            a.run.display(),
+            a.data.display()
+        )
+    })?;
     if !a.quiet {
         eprintln!(
             "{}: {} records scored; report in {}",

@@ -184,15 +184,28 @@ pub(crate) fn decide(
 
     let mut cands = Vec::new();
     // The first and last samples count as peaks when the signal rises
-    // towards them: a QRS cut by the record edge still has its beat.
+    // towards them: a QRS cut by the record edge still has its beat (an
+    // extension of the paper, which describes a running detector).
     for k in 0..n {
         let rises_left = k == 0 || mwi[k] > mwi[k - 1];
-        let holds_right = if k + 1 == n { k > 0 && mwi[k] > mwi[k - 1] } else { mwi[k] >= mwi[k + 1] };
+        let holds_right = if k + 1 == n {
+            k > 0 && mwi[k] > mwi[k - 1]
+        } else {
+            mwi[k] >= mwi[k + 1]
+        };
         if rises_left && holds_right && (k > 0 || mwi[0] > mwi[1]) {
             let a = k.saturating_sub(h);
             let b = (k + h + 1).min(n);
             let pf = filt[a..b].iter().cloned().fold(0.0, f64::max);
             let sl = slope[a..b].iter().cloned().fold(0.0, f64::max);
+            if k == 0 || k + 1 == n {
+                // At an edge, only a complex whose filtered peak lies inside
+                // the record counts; a step at the very last or first sample does not.
+                let f = crate::fuse::argmax_in(filt, a, b);
+                if f == 0 || f + 1 == n {
+                    continue;
+                }
+            }
             cands.push(Cand {
                 k,
                 pi: mwi[k],

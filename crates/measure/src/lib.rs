@@ -404,6 +404,13 @@ where
         .filter(|&i| is_n(i))
         .filter(|&i| beats[i].sample >= before && beats[i].sample + after < ctx.n)
         .filter(|&i| !unreadable_overlap(beats[i].sample - before, beats[i].sample + after + 1))
+        // Gaps in the recording (non-finite samples) would poison the median beat.
+        .filter(|&i| {
+            let span = beats[i].sample - before..=beats[i].sample + after;
+            ctx.leads
+                .iter()
+                .all(|x| x[span.clone()].iter().all(|v| v.is_finite()))
+        })
         .filter(|&i| {
             irregular || (stable(prev_rr(i)) && (next_rr(i).is_none() || stable(next_rr(i))))
         })

@@ -418,6 +418,18 @@ fn bad_input_is_a_typed_error() {
 }
 
 #[test]
+fn beats_over_a_gap_are_left_out() {
+    let sh = shapes();
+    let mut r = record(10.0, 0.8, 0.0, &sh, 4);
+    let s = r.det.beats[5].sample;
+    r.leads[1][s + 10] = f64::NAN;
+    let w = &run(&r, &MeasureConfig::default(), None).windows[0];
+    assert!(!w.beats.contains(&s));
+    assert!(w.median.per_lead.iter().flatten().all(|v| v.is_finite()));
+    assert!(w.qt_ms.is_some());
+}
+
+#[test]
 fn gap_filling_is_linear() {
     let b = [None, Some(1.0), None, None, Some(4.0), None];
     assert_eq!(fill_gaps(&b), vec![1.0, 1.0, 2.0, 3.0, 4.0, 4.0]);

@@ -396,3 +396,115 @@ fn ludb_perlead() {
         stats(&med_vs_raw)
     );
 }
+
+#[test]
+#[ignore]
+fn qtdb_median_vs_raw() {
+    let dir = PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/../../../shared/data"));
+    let mut names: Vec<String> = std::fs::read_dir(dir.join("qtdb"))
+        .unwrap()
+        .filter_map(|e| e.ok()?.file_name().into_string().ok())
+        .filter_map(|n| n.strip_suffix(".q1c").map(str::to_string))
+        .collect();
+    names.sort();
+    let (mut mv, mut raw_sup) = (vec![], vec![]);
+    for name in &names {
+        let refs = annotated_qt(
+            &tendline_formats::annotation::read_annotations(
+                &dir.join("qtdb").join(format!("{name}.q1c")),
+            )
+            .unwrap(),
+        );
+        let rec = read_record(&dir.join("qtdb").join(name)).unwrap();
+        let fs = rec.fs;
+        let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
+        let (leads, _) = ConditioningFilter::design(fs, &FilterConfig::default())
+            .unwrap()
+            .apply_record(&raw);
+        let leads: Vec<&[f64]> = leads.iter().map(|l| l.as_slice()).collect();
+        let det = tendline_detect::detect(&leads, fs, &DetectConfig::default()).unwrap();
+        let ln: Vec<String> = rec.leads.iter().map(|l| l.name.clone()).collect();
+        let m = measure_record(
+            &leads,
+            &ln,
+            fs,
+            &det,
+            rec.meta.sex,
+            &MeasureConfig::default(),
+            &DelineateConfig::default(),
+        )
+        .unwrap();
+        let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
+        let per: Vec<Vec<tendline_delineate::BeatMarks>> = leads
+            .iter()
+            .map(|x| tendline_delineate::delineate_lead(x, fs, &qrs, &DelineateConfig::default()))
+            .collect();
+        for w in &m.windows {
+            let (a, b) = (
+                (w.start_s * fs).round() as i64,
+                (w.end_s * fs).round() as i64,
+            );
+            let inside: Vec<f64> = refs
+                .iter()
+                .filter(|r| r.0 >= a && r.0 < b)
+                .map(|r| (r.2 - r.1) as f64 / fs * 1000.0)
+                .collect();
+            if inside.len() < 3 {
+                continue;
+            }
+            let want = inside.iter().sum::<f64>() / inside.len() as f64;
+            // raw per-beat superimposed QT (earliest on, latest end over the 2 leads), median over the window's used beats
+            let mut sq = vec![];
+            for &s in &w.beats {
+                let i = qrs.iter().position(|&q| q == s).unwrap();
+                let on = per
+                    .iter()
+                    .filter_map(|p| p[i].qrs_on.map(|m| m.sample))
+                    .min();
+                let en = per
+                    .iter()
+                    .filter_map(|p| p[i].t_end.map(|m| m.sample))
+                    .max();
+                if let (Some(o), Some(e)) = (on, en) {
+                    if e > o {
+                        sq.push((e - o) as f64 / fs * 1000.0);
+                    }
+                }
+            }
+            if sq.is_empty() {
+                continue;
+            }
+            sq.sort_by(|a, b| a.total_cmp(b));
+            let r = sq[sq.len() / 2];
+            raw_sup.push(r - want);
+            for (l, lm) in w.leads.iter().enumerate() {
+                let mut lq: Vec<f64> = w
+                    .beats
+                    .iter()
+                    .filter_map(|&s| {
+                        let i = qrs.iter().position(|&q| q == s).unwrap();
+                        per[l][i]
+                            .qrs_on
+                            .zip(per[l][i].t_end)
+                            .map(|(o, e)| (e.sample as f64 - o.sample as f64) / fs * 1000.0)
+                    })
+                    .collect();
+                if lq.is_empty() {
+                    continue;
+                }
+                lq.sort_by(|a, b| a.total_cmp(b));
+                if let Some(q) = lm.qt_ms {
+                    mv.push(q - lq[lq.len() / 2]);
+                }
+            }
+        }
+    }
+    println!(
+        "QTDB raw per-beat superimposed (median over used beats) - ref: {}",
+        stats(&raw_sup)
+    );
+    println!(
+        "QTDB per-lead median-beat QT - raw per-beat median QT: {}",
+        stats(&mv)
+    );
+}

@@ -61,7 +61,12 @@ impl Checker {
     }
 
     /// Require `value` to be one of `allowed`.
-    pub fn one_of<T: PartialEq + fmt::Display>(&mut self, name: &str, value: &T, allowed: &[T]) -> &mut Self {
+    pub fn one_of<T: PartialEq + fmt::Display>(
+        &mut self,
+        name: &str,
+        value: &T,
+        allowed: &[T],
+    ) -> &mut Self {
         if !allowed.contains(value) {
             let list: Vec<String> = allowed.iter().map(|a| a.to_string()).collect();
             self.errors.push(ParamError {
@@ -74,7 +79,13 @@ impl Checker {
     }
 
     /// Require a relation between two keys, e.g. a low cut below a high cut.
-    pub fn require(&mut self, ok: bool, name: &str, allowed: &str, got: impl fmt::Display) -> &mut Self {
+    pub fn require(
+        &mut self,
+        ok: bool,
+        name: &str,
+        allowed: &str,
+        got: impl fmt::Display,
+    ) -> &mut Self {
         if !ok {
             self.errors.push(ParamError {
                 key: self.key(name),

@@ -24,16 +24,34 @@ fn vlu(path: &Path, s: &str) -> Result<VarLenUnicode, StoreError> {
 fn write_attr(loc: &hdf5::Location, path: &Path, name: &str, a: &Attr) -> Result<(), StoreError> {
     let e = h5err(path);
     match a {
-        Attr::Int(v) => loc.new_attr::<i64>().create(name).and_then(|at| at.write_scalar(v)),
-        Attr::Float(v) => loc.new_attr::<f64>().create(name).and_then(|at| at.write_scalar(v)),
+        Attr::Int(v) => loc
+            .new_attr::<i64>()
+            .create(name)
+            .and_then(|at| at.write_scalar(v)),
+        Attr::Float(v) => loc
+            .new_attr::<f64>()
+            .create(name)
+            .and_then(|at| at.write_scalar(v)),
         Attr::Text(s) => {
             let v = vlu(path, s)?;
-            loc.new_attr::<VarLenUnicode>().create(name).and_then(|at| at.write_scalar(&v))
+            loc.new_attr::<VarLenUnicode>()
+                .create(name)
+                .and_then(|at| at.write_scalar(&v))
         }
-        Attr::Floats(v) => loc.new_attr_builder().with_data(v.as_slice()).create(name).map(|_| ()),
+        Attr::Floats(v) => loc
+            .new_attr_builder()
+            .with_data(v.as_slice())
+            .create(name)
+            .map(|_| ()),
         Attr::Texts(v) => {
-            let v = v.iter().map(|s| vlu(path, s)).collect::<Result<Vec<_>, _>>()?;
-            loc.new_attr_builder().with_data(v.as_slice()).create(name).map(|_| ())
+            let v = v
+                .iter()
+                .map(|s| vlu(path, s))
+                .collect::<Result<Vec<_>, _>>()?;
+            loc.new_attr_builder()
+                .with_data(v.as_slice())
+                .create(name)
+                .map(|_| ())
         }
     }
     .map_err(e)
@@ -51,7 +69,10 @@ fn write_group(g: &hdf5::Group, path: &Path, tree: &Group) -> Result<(), StoreEr
             Data::F64(v) => b.with_data(v.as_slice()).create(name.as_str()),
             Data::F32(v) => b.with_data(v.as_slice()).create(name.as_str()),
             Data::Text(v) => {
-                let v = v.iter().map(|s| vlu(path, s)).collect::<Result<Vec<_>, _>>()?;
+                let v = v
+                    .iter()
+                    .map(|s| vlu(path, s))
+                    .collect::<Result<Vec<_>, _>>()?;
                 b.with_data(v.as_slice()).create(name.as_str())
             }
             Data::F32Matrix { cols, values } => {
@@ -107,14 +128,32 @@ mod tests {
         let r = root.group("records").group("rec1");
         r.attr("fs", Attr::Float(250.0));
         r.attr("leads", Attr::Texts(vec!["MLII".into(), "V5".into()]));
-        r.group("beats").dataset_with_units("qrs_peak", Data::I64(vec![10, 20]), "sample");
-        r.group("beats").dataset("label", Data::Text(vec!["N".into(), "V".into()]));
-        r.dataset("m", Data::F32Matrix { cols: 2, values: vec![1.0, 2.0, 3.0, 4.0] });
+        r.group("beats")
+            .dataset_with_units("qrs_peak", Data::I64(vec![10, 20]), "sample");
+        r.group("beats")
+            .dataset("label", Data::Text(vec!["N".into(), "V".into()]));
+        r.dataset(
+            "m",
+            Data::F32Matrix {
+                cols: 2,
+                values: vec![1.0, 2.0, 3.0, 4.0],
+            },
+        );
         write_results(&p, &root).unwrap();
         let f = hdf5::File::open(&p).unwrap();
-        let q: Vec<i64> = f.dataset("records/rec1/beats/qrs_peak").unwrap().read_raw().unwrap();
+        let q: Vec<i64> = f
+            .dataset("records/rec1/beats/qrs_peak")
+            .unwrap()
+            .read_raw()
+            .unwrap();
         assert_eq!(q, vec![10, 20]);
-        let fs: f64 = f.group("records/rec1").unwrap().attr("fs").unwrap().read_scalar().unwrap();
+        let fs: f64 = f
+            .group("records/rec1")
+            .unwrap()
+            .attr("fs")
+            .unwrap()
+            .read_scalar()
+            .unwrap();
         assert_eq!(fs, 250.0);
         let shape = f.dataset("records/rec1/m").unwrap().shape();
         assert_eq!(shape, vec![2, 2]);

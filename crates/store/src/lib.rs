@@ -40,7 +40,10 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), StoreError> {
         path: path.to_path_buf(),
         source,
     };
-    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let dir = path
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
     std::fs::create_dir_all(dir).map_err(io)?;
     let tmp = tmp_sibling(path);
     {
@@ -53,7 +56,10 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), StoreError> {
 
 /// The temporary name used while `path` is being written (`.<name>.tmp-<pid>`).
 pub fn tmp_sibling(path: &Path) -> PathBuf {
-    let name = path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
     path.with_file_name(format!(".{name}.tmp-{}", std::process::id()))
 }
 
@@ -80,10 +86,14 @@ impl Part {
     /// Load a part; a missing file is `Ok(None)`, a damaged one an error.
     pub fn load(path: &Path) -> Result<Option<Part>, StoreError> {
         match std::fs::read(path) {
-            Ok(bytes) => serde_json::from_slice(&bytes).map(Some).map_err(|e| StoreError::Invalid {
-                path: path.to_path_buf(),
-                message: format!("damaged part file: {e}"),
-            }),
+            Ok(bytes) => {
+                serde_json::from_slice(&bytes)
+                    .map(Some)
+                    .map_err(|e| StoreError::Invalid {
+                        path: path.to_path_buf(),
+                        message: format!("damaged part file: {e}"),
+                    })
+            }
             Err(e) if e.kind() == std::io::ErrorKind::NotFound => Ok(None),
             Err(source) => Err(StoreError::Io {
                 path: path.to_path_buf(),
@@ -114,7 +124,11 @@ mod tests {
         let mut g = Group::default();
         g.attr("fs", Attr::Float(250.0));
         g.dataset("x", Data::I64(vec![1, 2, 3]));
-        let part = Part { record: "r".into(), key: "k".into(), group: g };
+        let part = Part {
+            record: "r".into(),
+            key: "k".into(),
+            group: g,
+        };
         part.save(&p).unwrap();
         assert_eq!(Part::load(&p).unwrap(), Some(part));
         assert_eq!(Part::load(&d.path().join("none.json")).unwrap(), None);
