@@ -14,7 +14,14 @@
 //!   (`SPKF/NPKF`) signals, a learning phase on the first 2 s, search-back with
 //!   halved thresholds when no QRS is seen for 166 % of the regular RR average,
 //!   a 200 ms refractory period, and the slope test against T waves within
-//!   360 ms. See [`detect_lead`].
+//!   360 ms. See [`detect_lead`]. Departures from the paper, all because
+//!   whole records are processed offline: the filters are zero-phase (no
+//!   delay to undo); a larger integrated peak inside the refractory period
+//!   moves the beat to it (the first was a shoulder of the same complex);
+//!   search-back also applies the T-wave test; when eight intervals in a row
+//!   fall outside the regular limits the regular average restarts from them
+//!   (a lasting change of rate); a QRS cut by the first or last sample of the
+//!   record still counts.
 //! * **Fusion** ([`detect`]): each lead's integrated signal is divided by its
 //!   local beat level (median of 2 s block maxima over 10 s), and the leads are
 //!   averaged with local quality weights; the same decision rules run once on

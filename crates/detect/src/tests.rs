@@ -508,3 +508,22 @@ fn moving_mean_matches_direct_sum() {
         }
     }
 }
+
+#[test]
+fn short_empty_and_missing_inputs_do_not_panic() {
+    let cfg = DetectConfig::default();
+    for n in [0usize, 1, 2, 3, 10, 100, 600] {
+        let x: Vec<f64> = (0..n).map(|i| (i as f64 * 0.3).sin()).collect();
+        let nan = vec![f64::NAN; n];
+        let d = detect(&[&x, &nan], 250.0, &cfg).unwrap();
+        assert_eq!(d.lead_quality.len(), 2);
+        assert!(d.lead_quality[1] == 0.0 || n < 3);
+        let _ = detect_lead(&x, 250.0, &cfg);
+    }
+    // A record that is missing everywhere is one unreadable stretch without beats.
+    let nan = vec![f64::NAN; 2500];
+    let d = detect(&[&nan, &nan], 250.0, &cfg).unwrap();
+    assert!(d.beats.is_empty());
+    assert_eq!(d.unreadable.len(), 1);
+    assert_eq!((d.unreadable[0].start, d.unreadable[0].end), (0, 2500));
+}

@@ -363,3 +363,40 @@ fn conformance_binformats_checksums_hold() {
     assert_eq!(w.signals.len(), 10);
     assert!(w.warnings.is_empty(), "{:?}", w.warnings);
 }
+
+#[test]
+fn conformance_multi_segment_and_rejections() {
+    let Some(d) = data_dir() else { return };
+    let c = d.join("wfdb-conformance");
+    // Fixed layout (wfdb-python sample data, MANIFEST.tsv: 4 signals, 225000 samples at 250 Hz).
+    let r = wfdb::read_record(&c.join("multi-segment/fixed1/v102s.hea")).unwrap();
+    assert_eq!((r.fs, r.n_samples(), r.leads.len()), (250.0, 225000, 4));
+    assert_eq!(r.leads[0].name, "II");
+    // Segments are concatenated: segment 2 repeats segment 1 here.
+    let one = wfdb::read_record(&c.join("multi-segment/fixed1/v102s_1.hea")).unwrap();
+    let a = &r.leads[0].samples;
+    let b = &one.leads[0].samples;
+    assert!(a[75000..150000]
+        .iter()
+        .zip(b)
+        .all(|(x, y)| x == y || x.is_nan() && y.is_nan()));
+    // 041s: 2 segments of 1000 frames with 4 samples per frame on 3 signals (MANIFEST.tsv: 2000).
+    let w = wfdb::read_digital(&c.join("multi-segment/041s/041s.hea")).unwrap();
+    assert_eq!(w.n_frames, 2000);
+    assert_eq!(w.signals[0].samples.len(), 8000);
+    for (name, what) in [
+        (
+            "multi-segment/s25047/s25047-2704-05-04-10-44.hea",
+            "variable-layout",
+        ),
+        ("flacformats.hea", "FLAC"),
+        ("a103l.hea", "MATLAB"),
+        ("test_generator_2.hea", "samples per frame"),
+    ] {
+        let e = wfdb::read_record(&c.join(name)).unwrap_err();
+        assert!(
+            matches!(e, FormatError::Unsupported { .. }) && e.to_string().contains(what),
+            "{name}: {e}"
+        );
+    }
+}
