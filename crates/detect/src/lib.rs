@@ -56,12 +56,12 @@
 //! samples with `round(ms * fs / 1000)`, so 250, 360, 500 and 1000 Hz give
 //! the same beats. Derivatives are in mV/s and the integration is a mean, so
 //! thresholds do not depend on `fs` either. Filters extend the ends by odd
-//! reflection (see [`filter`]).
+//! reflection (see `tendline_dsp::filter::filtfilt_sos_padded`).
 
 use serde::{Deserialize, Serialize};
 use tendline_params::{Checker, ParamError};
 
-pub mod filter;
+
 mod fuse;
 pub mod label;
 mod pt;
