@@ -164,31 +164,42 @@ mod tests {
         assert_eq!(from_file.to_toml(), PipelineConfig::default().to_toml());
     }
 
+    fn check_documented(table: &str, v: &toml::Value, lines: &[&str], missing: &mut Vec<String>) {
+        for (key, val) in v.as_table().unwrap() {
+            let path = format!("{table}.{key}");
+            if val.is_table() {
+                if !lines.iter().any(|l| l.trim() == format!("[{path}]")) {
+                    missing.push(format!("[{path}]: table absent"));
+                }
+                check_documented(&path, val, lines, missing);
+                continue;
+            }
+            let needle = format!("{key} =");
+            // The key inside its own table: search after the table header.
+            let start = lines.iter().position(|l| l.trim() == format!("[{table}]")).unwrap_or(0);
+            let Some(idx) = lines[start..]
+                .iter()
+                .position(|l| l.trim_start().starts_with(&needle))
+                .map(|i| i + start)
+            else {
+                missing.push(format!("{path}: absent"));
+                continue;
+            };
+            // The meaning and unit comment sits on the line itself or just above.
+            let above = if idx > 0 { lines[idx - 1] } else { "" };
+            if !lines[idx].contains('#') && !above.trim_start().starts_with('#') {
+                missing.push(format!("{path}: no comment"));
+            }
+        }
+    }
+
     #[test]
     fn every_default_key_is_in_pipeline_toml_with_a_comment() {
         let known = toml::Value::try_from(PipelineConfig::default()).unwrap();
+        let lines: Vec<&str> = DEFAULT_TOML.lines().collect();
         let mut missing = Vec::new();
         for (table, v) in known.as_table().unwrap() {
-            for key in v.as_table().unwrap().keys() {
-                let needle = format!("{key} =");
-                let Some(line) = DEFAULT_TOML
-                    .lines()
-                    .find(|l| l.trim_start().starts_with(&needle))
-                else {
-                    missing.push(format!("{table}.{key}: absent"));
-                    continue;
-                };
-                // The unit/meaning comment sits on the line itself or the line above.
-                let idx = DEFAULT_TOML.lines().position(|l| l == line).unwrap();
-                let above = if idx > 0 {
-                    DEFAULT_TOML.lines().nth(idx - 1).unwrap()
-                } else {
-                    ""
-                };
-                if !line.contains('#') && !above.trim_start().starts_with('#') {
-                    missing.push(format!("{table}.{key}: no comment"));
-                }
-            }
+            check_documented(table, v, &lines, &mut missing);
         }
         assert!(missing.is_empty(), "{missing:#?}");
     }
