@@ -115,3 +115,31 @@ pub(crate) fn combine(
         })
         .collect()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn m(sample: usize, confidence: f32) -> Mark {
+        Mark { sample, confidence }
+    }
+
+    #[test]
+    fn single_outlying_lead_is_rejected_for_earliest_and_latest() {
+        let cfg = DelineateConfig::default();
+        // Three leads agree near 100, one is 30 samples early: dropped.
+        let c = [m(100, 0.9), m(102, 0.9), m(70, 0.9), m(101, 0.9)];
+        assert_eq!(extreme(&c, Pick::Earliest, 10.0, &cfg).unwrap().sample, 100);
+        // Without the outlier the earliest is kept as is.
+        let c = [m(100, 0.9), m(102, 0.9), m(95, 0.9)];
+        assert_eq!(extreme(&c, Pick::Earliest, 10.0, &cfg).unwrap().sample, 95);
+        // Latest: one late outlier is dropped, but only one.
+        let c = [m(200, 0.9), m(204, 0.9), m(260, 0.9), m(203, 0.9)];
+        assert_eq!(extreme(&c, Pick::Latest, 10.0, &cfg).unwrap().sample, 204);
+        // Two leads far apart: the more confident one wins.
+        let c = [m(200, 0.3), m(260, 0.8)];
+        assert_eq!(extreme(&c, Pick::Earliest, 10.0, &cfg).unwrap().sample, 260);
+        // Low-confidence marks are not used.
+        assert!(extreme(&[m(5, 0.01)], Pick::Earliest, 10.0, &cfg).is_none());
+    }
+}

@@ -204,12 +204,19 @@ impl LeadAnalysis {
         hi: isize,
         gamma: f64,
         biphasic_frac: f64,
+        reach: usize,
     ) -> Option<Lobes> {
+        // Maxima further than `reach` samples from the largest one belong to
+        // another wave.
         let w = &self.w[k - 1];
-        let ext = Self::extrema(w, lo, hi);
-        let &a = ext
+        let all = Self::extrema(w, lo, hi);
+        let &a = all
             .iter()
             .max_by(|&&p, &&q| w[p].abs().total_cmp(&w[q].abs()))?;
+        let ext: Vec<usize> = all
+            .into_iter()
+            .filter(|&e| e.abs_diff(a) <= reach)
+            .collect();
         let amp = w[a].abs();
         let sa = w[a].signum();
         let opp = |it: &mut dyn Iterator<Item = &usize>| -> Option<usize> {
@@ -442,7 +449,10 @@ impl LeadAnalysis {
         let mut t_found = None;
         if t_hi - t_lo >= self.ms_i(60.0) {
             for k in [4usize, 5] {
-                if let Some(l) = self.find_wave(k, t_lo, t_hi, cfg.t_gamma, cfg.t_biphasic_frac) {
+                let reach = self.ms_i(cfg.t_lobe_reach_ms) as usize;
+                if let Some(l) =
+                    self.find_wave(k, t_lo, t_hi, cfg.t_gamma, cfg.t_biphasic_frac, reach)
+                {
                     let slope = l.amp / (1u32 << k) as f64 * self.fs_a;
                     if slope >= min_t {
                         t_found = Some((k, l));
@@ -537,7 +547,14 @@ impl LeadAnalysis {
             p_lo = p_lo.max(p + (peak as isize - p) / 2);
         }
         if p_hi - p_lo >= self.ms_i(40.0) {
-            if let Some(l) = self.find_wave(4, p_lo, p_hi, cfg.p_gamma, 1.1) {
+            if let Some(l) = self.find_wave(
+                4,
+                p_lo,
+                p_hi,
+                cfg.p_gamma,
+                1.1,
+                self.ms_i(cfg.p_lobe_reach_ms) as usize,
+            ) {
                 let w4 = &self.w[3];
                 let slope = l.amp / 16.0 * self.fs_a;
                 let qrs4 = ext_max(

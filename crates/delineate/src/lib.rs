@@ -121,3 +121,41 @@ pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig
     let global = global::combine(&per_lead, qrs.len(), fs, cfg);
     Delineation { per_lead, global }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn default_config_is_valid_and_bad_values_name_their_key() {
+        assert!(DelineateConfig::default().validate().is_ok());
+        let cfg = DelineateConfig {
+            t_xi_end: 1.5,
+            p_window_gap_ms: 400.0,
+            ..Default::default()
+        };
+        let errs = cfg.validate().unwrap_err();
+        let text: Vec<String> = errs.iter().map(|e| e.to_string()).collect();
+        assert!(
+            text.iter().any(|t| t.contains("delineate.t_xi_end")),
+            "{text:?}"
+        );
+        assert!(
+            text.iter().any(|t| t.contains("delineate.p_window_gap_ms")),
+            "{text:?}"
+        );
+    }
+
+    #[test]
+    fn config_rejects_unknown_keys() {
+        // deny_unknown_fields: a typo is an error, not silently ignored.
+        assert!(from_one_key("t_xi_endd").is_err());
+        assert_eq!(from_one_key("t_xi_end").unwrap().t_xi_end, 0.3);
+    }
+
+    fn from_one_key(key: &str) -> Result<DelineateConfig, serde::de::value::Error> {
+        use serde::de::value::{Error, MapDeserializer};
+        let it = std::iter::once((key, 0.3f64));
+        DelineateConfig::deserialize(MapDeserializer::<_, Error>::new(it))
+    }
+}
