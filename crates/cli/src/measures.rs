@@ -94,20 +94,16 @@ pub fn windows_group(
             "beats_used",
             Data::I64(x.beats.iter().map(|&b| b as i64).collect()),
         );
-        for (i, lm) in x.leads.iter().enumerate() {
-            let lg = mg.group("leads").group(&format!("{i:02}"));
-            lg.attr("lead", Attr::Text(names[i].clone()));
-            lg.attr("usable", Attr::Int(lm.usable as i64));
-            lg.attr("qt_accepted", Attr::Int(lm.qt_accepted as i64));
-            for (n, v) in [
-                ("qt_ms", lm.qt_ms),
-                ("qrs_ms", lm.qrs_ms),
-                ("pr_ms", lm.pr_ms),
-            ] {
-                lg.attr(n, Attr::Float(opt(v)));
-            }
-            marks_group(lg, std::slice::from_ref(&lm.marks));
-        }
+        // One element per lead: a few datasets per window instead of a group per lead,
+        // which keeps HDF5 writing fast for 12-lead records with many windows.
+        mg.attr("leads", Attr::Texts(names.to_vec()));
+        mg.dataset("usable", Data::I64(x.leads.iter().map(|l| l.usable as i64).collect()));
+        mg.dataset("qt_accepted", Data::I64(x.leads.iter().map(|l| l.qt_accepted as i64).collect()));
+        mg.dataset_with_units("qt_ms", Data::F64(x.leads.iter().map(|l| opt(l.qt_ms)).collect()), "ms");
+        mg.dataset_with_units("qrs_ms", Data::F64(x.leads.iter().map(|l| opt(l.qrs_ms)).collect()), "ms");
+        mg.dataset_with_units("pr_ms", Data::F64(x.leads.iter().map(|l| opt(l.pr_ms)).collect()), "ms");
+        let marks: Vec<_> = x.leads.iter().map(|l| l.marks.clone()).collect();
+        marks_group(mg.group("marks"), &marks);
     }
     let s = &m.summary;
     for (n, v) in [
