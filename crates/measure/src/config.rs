@@ -90,12 +90,19 @@ pub struct MeasureConfig {
     /// level at QRS onset, mV) gives no QT: its T end is not reliable (common practice:
     /// measure QT where the T wave ends clearly); default 0.05.
     pub min_t_amplitude_mv: f64,
+    /// A lead's QT must exceed its QRS duration by at least this (ms): a T end found
+    /// right after the QRS is a boundary error, not a T wave (plausibility bound chosen
+    /// here, not a published value); default 100.
+    pub min_jt_ms: f64,
     /// Single-lead or global QT below this is implausible and rejected (ms); default 200.
     pub qt_min_ms: f64,
     /// Single-lead or global QT above this is implausible and rejected (ms); default 700.
     pub qt_max_ms: f64,
     /// With three or more leads, a lead QT farther than this from the median lead QT
-    /// is an outlier and not used by the longest-lead rule (ms); default 40.
+    /// is an outlier and not used by the longest-lead rule; with two leads, the leads
+    /// disagree if their QTs differ by more than this (ms). Default 60: the spread of QT
+    /// between leads of a normal 12-lead ECG (QT dispersion) is usually below about
+    /// 50-60 ms (from memory), so a farther lead is a boundary error.
     pub lead_outlier_ms: f64,
     /// Superimposed leads, three or more leads: the earliest onset is dropped if it
     /// precedes the next earliest by more than this (ms); also used for P onset; default 20.
@@ -139,9 +146,10 @@ impl Default for MeasureConfig {
             qt_rule: QtRule::LongestLead,
             preferred_formula: Formula::Fridericia,
             min_t_amplitude_mv: 0.05,
+            min_jt_ms: 100.0,
             qt_min_ms: 200.0,
             qt_max_ms: 700.0,
-            lead_outlier_ms: 40.0,
+            lead_outlier_ms: 60.0,
             onset_outlier_ms: 20.0,
             end_outlier_ms: 40.0,
             min_lead_quality: 0.0,
@@ -193,6 +201,7 @@ impl MeasureConfig {
                 5.0,
                 "mV",
             )
+            .range("min_jt_ms", self.min_jt_ms, 0.0, 400.0, "ms")
             .range("qt_min_ms", self.qt_min_ms, 50.0, 500.0, "ms")
             .range("qt_max_ms", self.qt_max_ms, 300.0, 1000.0, "ms")
             .require(

@@ -5,7 +5,8 @@
 //!
 //! - A lead's QT is valid if the lead is usable, its QT lies within
 //!   `[qt_min_ms, qt_max_ms]` and its T wave is at least `min_t_amplitude_mv` high
-//!   (a flat T has no reliable end).
+//!   (a flat T has no reliable end) and it exceeds the lead's QRS duration by at least
+//!   `min_jt_ms` (a T end just after the QRS is a boundary error).
 //! - Longest-lead QT: the longest valid single-lead QT after outliers are removed: with
 //!   three or more valid leads, a lead whose QT is farther than `lead_outlier_ms` from
 //!   their median (a T end caught on a U wave or noise must not decide the record);
@@ -60,6 +61,10 @@ pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
             leads[l].usable
                 && leads[l].qt_ms.is_some_and(plausible)
                 && t_amp(l) >= cfg.min_t_amplitude_mv
+                && leads[l]
+                    .qt_ms
+                    .zip(leads[l].qrs_ms)
+                    .is_none_or(|(qt, qrs)| qt - qrs >= cfg.min_jt_ms)
         })
         .collect();
     let mut accepted = valid.clone();
@@ -192,6 +197,15 @@ mod tests {
         big.t_amplitude_mv = Some(-0.4);
         let g = combine(&[flat, big], 1000.0, &cfg);
         assert_eq!((g.longest_lead, g.longest_ms), (Some(1), Some(400.0)));
+        assert_eq!(g.superimposed_ms, Some(400.0));
+    }
+
+    #[test]
+    fn t_end_just_after_the_qrs_is_rejected() {
+        let cfg = MeasureConfig::default();
+        // Lead 1: QRS 150 ms, QT 210 ms → JT 60 ms < 100 ms.
+        let g = combine(&[lead(100, 190, 500), lead(100, 250, 310)], 1000.0, &cfg);
+        assert_eq!(g.accepted_leads, vec![0]);
         assert_eq!(g.superimposed_ms, Some(400.0));
     }
 

@@ -10,7 +10,7 @@
 //! longest-lead rule and, stored beside it, the superimposed-leads rule ([`global`]).
 //! RR is the mean normal-to-normal interval of the window, heart rate 60 000 / RR.
 //! All four corrections ([`qtc`]) are stored; the preferred one is classified
-//! ([`classify`]). [`subject`] pools windows per subject for individual correction.
+//! ([`mod@classify`]). [`subject`] pools windows per subject for individual correction.
 //!
 //! # Conventions
 //! - Input leads are conditioned (filtered) signals at `fs` Hz, all the same length;
