@@ -102,6 +102,8 @@ pub fn windows_group(
         mg.dataset_with_units("qt_ms", Data::F64(x.leads.iter().map(|l| opt(l.qt_ms)).collect()), "ms");
         mg.dataset_with_units("qrs_ms", Data::F64(x.leads.iter().map(|l| opt(l.qrs_ms)).collect()), "ms");
         mg.dataset_with_units("pr_ms", Data::F64(x.leads.iter().map(|l| opt(l.pr_ms)).collect()), "ms");
+        mg.dataset_with_units("t_amplitude_mv", Data::F64(x.leads.iter().map(|l| opt(l.t_amplitude_mv)).collect()), "mV");
+        mg.dataset_with_units("noise_mv", Data::F64(x.leads.iter().map(|l| opt(l.noise_mv)).collect()), "mV");
         let marks: Vec<_> = x.leads.iter().map(|l| l.marks.clone()).collect();
         marks_group(mg.group("marks"), &marks);
     }
@@ -143,6 +145,7 @@ fn window_flags(x: &tendline_measure::WindowMeasure) -> Vec<&'static str> {
         (f.high_risk, "qtc_above_500"),
         (f.unreadable, "unreadable"),
         (f.too_few_beats, "too_few_beats"),
+        (f.noisy, "unreadable_noise"),
     ] {
         if on {
             v.push(name);
@@ -172,6 +175,9 @@ pub fn summary_flags(m: &RecordMeasures) -> Vec<String> {
     }
     if m.windows.iter().any(|w| w.flags.unreadable) {
         v.push("unreadable".into());
+    }
+    if m.windows.iter().any(|w| w.flags.noisy) {
+        v.push("unreadable_noise".into());
     }
     v
 }

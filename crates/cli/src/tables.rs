@@ -342,14 +342,16 @@ pub fn print_table(parts: &[Part], subjects: &[SubjectResult], formula: &str) ->
                 let sex = g.and_then(|g| attr_s(g, "sex")).unwrap_or("?");
                 let hr = g.and_then(|g| attr_f(g, "hr_bpm"));
                 let flags = g.and_then(|g| attr_s(g, "flags")).unwrap_or("");
+                let qtcb = g.and_then(|g| attr_f(g, "qtc_bazett_ms"));
                 let _ = writeln!(
                     s,
-                    "{:<8} {:<3} {:<14} {:>6} {:>7} {:>7} {:>7}  {}",
+                    "{:<8} {:<3} {:<14} {:>6} {:>7} {:>7} {:>7} {:>7}  {}",
                     r.subject,
                     sex,
                     rec.timepoint.as_deref().unwrap_or("-"),
                     fmt_f(hr, 0),
                     fmt_f(rec.qt_ms, 0),
+                    fmt_f(qtcb, 0),
                     fmt_f(rec.qtc_ms, 0),
                     rec.delta_qtc_ms
                         .map(|d| format!("{d:+.0}"))

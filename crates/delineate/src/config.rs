@@ -133,6 +133,29 @@ pub struct DelineateConfig {
     pub global_min_confidence: f64,
     /// Global marks need at least this many leads with a usable mark.
     pub global_min_leads: usize,
+    /// Rule when exactly two leads disagree by more than `global_outlier_ms`
+    /// on a QRS onset.
+    pub global_pair_qrs_on: PairRule,
+    /// Same, for the QRS end.
+    pub global_pair_qrs_end: PairRule,
+    /// Same, for P onset and end.
+    pub global_pair_p: PairRule,
+    /// Same, for T onset and all T-end methods.
+    pub global_pair_t: PairRule,
+}
+
+/// How to combine two leads whose marks of a boundary disagree by more than
+/// `global_outlier_ms`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "lowercase")]
+pub enum PairRule {
+    /// The mark with the higher confidence.
+    #[default]
+    Confident,
+    /// The outer mark (earliest onset, latest end), as when the leads agree.
+    Outer,
+    /// The inner mark (latest onset, earliest end).
+    Inner,
 }
 
 impl Default for DelineateConfig {
@@ -183,6 +206,10 @@ impl Default for DelineateConfig {
             global_outlier_ms: 40.0,
             global_min_confidence: 0.2,
             global_min_leads: 1,
+            global_pair_qrs_on: PairRule::Confident,
+            global_pair_qrs_end: PairRule::Confident,
+            global_pair_p: PairRule::Confident,
+            global_pair_t: PairRule::Confident,
         }
     }
 }

@@ -1,6 +1,6 @@
 //! Combination of per-lead marks into one set of global marks per beat.
 
-use crate::{BeatMarks, DelineateConfig, Mark, TEndMethod};
+use crate::{BeatMarks, DelineateConfig, Mark, PairRule, TEndMethod};
 
 /// Which end of the spread a boundary takes.
 #[derive(Clone, Copy, PartialEq)]
@@ -14,7 +14,13 @@ enum Pick {
 /// With three or more leads the extreme candidate is dropped when it lies
 /// more than `outlier` samples beyond the median of the others. With two
 /// leads that disagree by more than `outlier`, the more confident one is kept.
-fn extreme(cands: &[Mark], pick: Pick, outlier: f64, cfg: &DelineateConfig) -> Option<Mark> {
+fn extreme(
+    cands: &[Mark],
+    pick: Pick,
+    outlier: f64,
+    pair: PairRule,
+    cfg: &DelineateConfig,
+) -> Option<Mark> {
     let mut c: Vec<Mark> = cands
         .iter()
         .copied()
@@ -36,11 +42,15 @@ fn extreme(cands: &[Mark], pick: Pick, outlier: f64, cfg: &DelineateConfig) -> O
         if dist(&c[0], med) > outlier {
             c.remove(0);
         }
-    } else if c.len() == 2
-        && dist(&c[0], c[1].sample as f64) > outlier
-        && c[1].confidence > c[0].confidence
-    {
-        c.remove(0);
+    } else if c.len() == 2 && dist(&c[0], c[1].sample as f64) > outlier {
+        let drop_outer = match pair {
+            PairRule::Confident => c[1].confidence > c[0].confidence,
+            PairRule::Outer => false,
+            PairRule::Inner => true,
+        };
+        if drop_outer {
+            c.remove(0);
+        }
     }
     let best = c[0];
     let agree = cands
@@ -90,14 +100,14 @@ pub(crate) fn combine(
                 t_end_method: cfg.t_end_method,
                 ..Default::default()
             };
-            g.qrs_on = extreme(&gather(&|m| m.qrs_on), Pick::Earliest, outlier, cfg);
-            g.qrs_end = extreme(&gather(&|m| m.qrs_end), Pick::Latest, outlier, cfg);
-            g.p_on = extreme(&gather(&|m| m.p_on), Pick::Earliest, outlier, cfg);
-            g.p_end = extreme(&gather(&|m| m.p_end), Pick::Latest, outlier, cfg);
-            g.t_on = extreme(&gather(&|m| m.t_on), Pick::Earliest, outlier, cfg);
-            g.t_end_wavelet = extreme(&gather(&|m| m.t_end_wavelet), Pick::Latest, outlier, cfg);
-            g.t_end_tangent = extreme(&gather(&|m| m.t_end_tangent), Pick::Latest, outlier, cfg);
-            g.t_end_area = extreme(&gather(&|m| m.t_end_area), Pick::Latest, outlier, cfg);
+            g.qrs_on = extreme(&gather(&|m| m.qrs_on), Pick::Earliest, outlier, cfg.global_pair_qrs_on, cfg);
+            g.qrs_end = extreme(&gather(&|m| m.qrs_end), Pick::Latest, outlier, cfg.global_pair_qrs_end, cfg);
+            g.p_on = extreme(&gather(&|m| m.p_on), Pick::Earliest, outlier, cfg.global_pair_p, cfg);
+            g.p_end = extreme(&gather(&|m| m.p_end), Pick::Latest, outlier, cfg.global_pair_p, cfg);
+            g.t_on = extreme(&gather(&|m| m.t_on), Pick::Earliest, outlier, cfg.global_pair_t, cfg);
+            g.t_end_wavelet = extreme(&gather(&|m| m.t_end_wavelet), Pick::Latest, outlier, cfg.global_pair_t, cfg);
+            g.t_end_tangent = extreme(&gather(&|m| m.t_end_tangent), Pick::Latest, outlier, cfg.global_pair_t, cfg);
+            g.t_end_area = extreme(&gather(&|m| m.t_end_area), Pick::Latest, outlier, cfg.global_pair_t, cfg);
             g.t_end = match cfg.t_end_method {
                 TEndMethod::Wavelet => g.t_end_wavelet,
                 TEndMethod::Tangent => g.t_end_tangent,
@@ -129,17 +139,17 @@ mod tests {
         let cfg = DelineateConfig::default();
         // Three leads agree near 100, one is 30 samples early: dropped.
         let c = [m(100, 0.9), m(102, 0.9), m(70, 0.9), m(101, 0.9)];
-        assert_eq!(extreme(&c, Pick::Earliest, 10.0, &cfg).unwrap().sample, 100);
+        assert_eq!(extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, &cfg).unwrap().sample, 100);
         // Without the outlier the earliest is kept as is.
         let c = [m(100, 0.9), m(102, 0.9), m(95, 0.9)];
-        assert_eq!(extreme(&c, Pick::Earliest, 10.0, &cfg).unwrap().sample, 95);
+        assert_eq!(extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, &cfg).unwrap().sample, 95);
         // Latest: one late outlier is dropped, but only one.
         let c = [m(200, 0.9), m(204, 0.9), m(260, 0.9), m(203, 0.9)];
-        assert_eq!(extreme(&c, Pick::Latest, 10.0, &cfg).unwrap().sample, 204);
+        assert_eq!(extreme(&c, Pick::Latest, 10.0, PairRule::Confident, &cfg).unwrap().sample, 204);
         // Two leads far apart: the more confident one wins.
         let c = [m(200, 0.3), m(260, 0.8)];
-        assert_eq!(extreme(&c, Pick::Earliest, 10.0, &cfg).unwrap().sample, 260);
+        assert_eq!(extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, &cfg).unwrap().sample, 260);
         // Low-confidence marks are not used.
-        assert!(extreme(&[m(5, 0.01)], Pick::Earliest, 10.0, &cfg).is_none());
+        assert!(extreme(&[m(5, 0.01)], Pick::Earliest, 10.0, PairRule::Confident, &cfg).is_none());
     }
 }

@@ -32,7 +32,7 @@ mod config;
 mod global;
 mod lead;
 
-pub use config::DelineateConfig;
+pub use config::{DelineateConfig, PairRule};
 
 use serde::{Deserialize, Serialize};
 

@@ -30,18 +30,7 @@ fn fiducial(b: &BeatMarks, key: &str) -> Option<Mark> {
 
 fn score_record(dir: &std::path::Path, rec: &str, cfg: &DelineateConfig) -> Table {
     let (fs, leads) = load_filtered(dir, rec);
-    let atr = dir.join(format!("{rec}.atr"));
-    let beat_file = if atr.is_file() {
-        atr
-    } else {
-        dir.join(format!("{rec}.man"))
-    };
-    let beats: Vec<usize> = tendline_formats::annotation::read_annotations(&beat_file)
-        .unwrap()
-        .iter()
-        .filter(|a| a.is_beat() && a.sample >= 0)
-        .map(|a| a.sample as usize)
-        .collect();
+    let beats = qtdb_beats(dir, rec, &leads, fs);
     let refs = waves(&annotations(&dir.join(format!("{rec}.q1c"))));
     let lead_refs: Vec<&[f64]> = leads.iter().map(|l| l.as_slice()).collect();
     let d = delineate(&lead_refs, fs, &beats, cfg);

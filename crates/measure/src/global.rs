@@ -51,6 +51,15 @@ pub fn robust_max(v: &[f64], tol: f64) -> Option<f64> {
     robust_min(&neg, tol).map(|x| -x)
 }
 
+/// The lead's beat-to-beat noise is too large for its T wave (see `max_noise_t_ratio`).
+pub fn too_noisy(lead: &LeadMeasure, cfg: &MeasureConfig) -> bool {
+    cfg.max_noise_t_ratio > 0.0
+        && lead
+            .noise_mv
+            .zip(lead.t_amplitude_mv)
+            .is_some_and(|(n, t)| n > cfg.max_noise_t_ratio * t.abs())
+}
+
 /// Combine the leads of one window.
 pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
     let ms = |samples: f64| samples / fs * 1000.0;
@@ -61,6 +70,7 @@ pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
             leads[l].usable
                 && leads[l].qt_ms.is_some_and(plausible)
                 && t_amp(l) >= cfg.min_t_amplitude_mv
+                && !too_noisy(&leads[l], cfg)
                 && leads[l]
                     .qt_ms
                     .zip(leads[l].qrs_ms)

@@ -87,6 +87,9 @@ pub struct WindowFlags {
     pub unreadable: bool,
     /// Fewer accepted beats than needed for a median beat.
     pub too_few_beats: bool,
+    /// At least one usable lead was left out of the QT because its beat-to-beat noise
+    /// is large against its T wave (`max_noise_t_ratio`).
+    pub noisy: bool,
 }
 
 /// Measurements of one lead's median beat.
@@ -102,6 +105,9 @@ pub struct LeadMeasure {
     pub pr_ms: Option<f64>,
     /// T-peak amplitude above the level at QRS onset (mV, negative for inverted T).
     pub t_amplitude_mv: Option<f64>,
+    /// Broadband beat-to-beat noise (mV, see `residual_noise`). Compared with the T amplitude to
+    /// decide whether the lead's T end can be trusted.
+    pub noise_mv: Option<f64>,
     /// The QT passed the plausibility, T-amplitude and outlier checks of the global rules.
     pub qt_accepted: bool,
     /// Marks on the median beat, sample indices into the median beat.
@@ -533,9 +539,11 @@ where
             };
             lm.qt_ms = d(&lm.marks.qrs_on, &lm.marks.t_end);
             lm.t_amplitude_mv = t_amplitude(&m, &lm.marks);
+            lm.noise_mv = residual_noise(&m, accepted.iter().map(|&k| segs[k][l].as_slice()));
             lm.qrs_ms = d(&lm.marks.qrs_on, &lm.marks.qrs_end);
             lm.pr_ms = d(&lm.marks.p_on, &lm.marks.qrs_on);
         }
+        flags.noisy = leads_out.iter().any(|lm| lm.usable && global::too_noisy(lm, cfg));
         g = global::combine(&leads_out, fs, cfg);
         for (l, lm) in leads_out.iter_mut().enumerate() {
             lm.qt_accepted = g.accepted_leads.contains(&l);
@@ -657,6 +665,22 @@ where
 
 /// T amplitude (mV) against the PQ level at QRS onset: at the T peak if marked,
 /// else the largest deviation between the QRS end (or T onset) and the T end.
+/// Broadband beat-to-beat noise (mV): per beat, the residual from the median beat is
+/// passed through the second-difference filter r[i] − (r[i−1] + r[i+1])/2, which keeps
+/// noise (white noise of SD σ comes out with SD σ·√1.5) and removes the smooth
+/// beat-to-beat changes of a real ECG (T waves following RR); median over beats.
+fn residual_noise<'a>(m: &[f64], beats: impl Iterator<Item = &'a [f64]>) -> Option<f64> {
+    let mut r: Vec<f64> = beats
+        .filter(|b| b.len() == m.len() && m.len() >= 3)
+        .map(|b| {
+            let res: Vec<f64> = b.iter().zip(m).map(|(x, y)| x - y).collect();
+            let ss: f64 = res.windows(3).map(|w| (w[1] - 0.5 * (w[0] + w[2])).powi(2)).sum();
+            (ss / (res.len() - 2) as f64 / 1.5).sqrt()
+        })
+        .collect();
+    (!r.is_empty()).then(|| align::median(&mut r))
+}
+
 fn t_amplitude(m: &[f64], marks: &BeatMarks) -> Option<f64> {
     let base = m[marks.qrs_on?.sample];
     if let Some(tp) = marks.t_peak {

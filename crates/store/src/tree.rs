@@ -4,13 +4,66 @@
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 
+/// JSON has no NaN: missing values (NaN) are written as `null` and read back as NaN,
+/// so a part file round-trips exactly.
+mod nan_null {
+    use serde::{Deserialize, Deserializer, Serialize, Serializer};
+
+    pub trait Float: Copy {
+        fn is_nan_value(self) -> bool;
+        fn nan() -> Self;
+    }
+    impl Float for f64 {
+        fn is_nan_value(self) -> bool {
+            self.is_nan()
+        }
+        fn nan() -> Self {
+            f64::NAN
+        }
+    }
+    impl Float for f32 {
+        fn is_nan_value(self) -> bool {
+            self.is_nan()
+        }
+        fn nan() -> Self {
+            f32::NAN
+        }
+    }
+
+    pub fn serialize<S: Serializer, T: Float + Serialize>(v: &[T], s: S) -> Result<S::Ok, S::Error> {
+        let o: Vec<Option<T>> = v.iter().map(|x| (!x.is_nan_value()).then_some(*x)).collect();
+        o.serialize(s)
+    }
+
+    pub fn deserialize<'de, D: Deserializer<'de>, T: Float + Deserialize<'de>>(d: D) -> Result<Vec<T>, D::Error> {
+        let o: Vec<Option<T>> = Vec::deserialize(d)?;
+        Ok(o.into_iter().map(|x| x.unwrap_or_else(T::nan)).collect())
+    }
+
+    pub mod scalar {
+        use serde::{Deserialize, Deserializer, Serializer};
+
+        pub fn serialize<S: Serializer>(v: &f64, s: S) -> Result<S::Ok, S::Error> {
+            if v.is_nan() {
+                s.serialize_none()
+            } else {
+                s.serialize_f64(*v)
+            }
+        }
+
+        pub fn deserialize<'de, D: Deserializer<'de>>(d: D) -> Result<f64, D::Error> {
+            Ok(Option::<f64>::deserialize(d)?.unwrap_or(f64::NAN))
+        }
+    }
+}
+
 /// An attribute value.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub enum Attr {
     Int(i64),
-    Float(f64),
+    Float(#[serde(with = "nan_null::scalar")] f64),
     Text(String),
-    Floats(Vec<f64>),
+    Floats(#[serde(with = "nan_null")] Vec<f64>),
     Texts(Vec<String>),
 }
 
@@ -18,10 +71,14 @@ pub enum Attr {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub enum Data {
     I64(Vec<i64>),
-    F64(Vec<f64>),
-    F32(Vec<f32>),
+    F64(#[serde(with = "nan_null")] Vec<f64>),
+    F32(#[serde(with = "nan_null")] Vec<f32>),
     Text(Vec<String>),
-    F32Matrix { cols: usize, values: Vec<f32> },
+    F32Matrix {
+        cols: usize,
+        #[serde(with = "nan_null")]
+        values: Vec<f32>,
+    },
 }
 
 impl Data {

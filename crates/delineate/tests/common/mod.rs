@@ -156,3 +156,39 @@ pub fn print_table(title: &str, t: &Table, keys: &[&str]) {
         }
     }
 }
+
+/// Input beats of a QTDB record. Where the database has reference beat
+/// annotations for every beat (`.atr`) those are used. Otherwise `.man` lists
+/// only the ~30 selected beats, so the gaps are filled with beats from the
+/// project's Pan–Tompkins detector (`tendline-detect`): a selected beat
+/// replaces the detected beat within 150 ms of it. Without the fill, the
+/// neighbours of a selected beat would be other selected beats seconds away
+/// and the T search window would run into unlisted complexes.
+pub fn qtdb_beats(dir: &Path, rec: &str, leads: &[Vec<f64>], fs: f64) -> Vec<usize> {
+    let read = |ext: &str| -> Vec<usize> {
+        read_annotations(&dir.join(format!("{rec}.{ext}")))
+            .unwrap()
+            .iter()
+            .filter(|a| a.is_beat() && a.sample >= 0)
+            .map(|a| a.sample as usize)
+            .collect()
+    };
+    if dir.join(format!("{rec}.atr")).is_file() {
+        return read("atr");
+    }
+    let man = read("man");
+    let refs: Vec<&[f64]> = leads.iter().map(|l| l.as_slice()).collect();
+    let det = tendline_detect::detect(&refs, fs, &tendline_detect::DetectConfig::default())
+        .expect("detector on a QTDB record");
+    let tol = (0.150 * fs) as usize;
+    let mut beats: Vec<usize> = det
+        .beats
+        .iter()
+        .map(|b| b.sample)
+        .filter(|&s| man.iter().all(|&m| m.abs_diff(s) > tol))
+        .chain(man.iter().copied())
+        .collect();
+    beats.sort_unstable();
+    beats.dedup();
+    beats
+}
