@@ -176,7 +176,10 @@ mod tests {
             }
             let needle = format!("{key} =");
             // The key inside its own table: search after the table header.
-            let start = lines.iter().position(|l| l.trim() == format!("[{table}]")).unwrap_or(0);
+            let start = lines
+                .iter()
+                .position(|l| l.trim() == format!("[{table}]"))
+                .unwrap_or(0);
             let Some(idx) = lines[start..]
                 .iter()
                 .position(|l| l.trim_start().starts_with(&needle))

@@ -97,13 +97,39 @@ pub fn windows_group(
         // One element per lead: a few datasets per window instead of a group per lead,
         // which keeps HDF5 writing fast for 12-lead records with many windows.
         mg.attr("leads", Attr::Texts(names.to_vec()));
-        mg.dataset("usable", Data::I64(x.leads.iter().map(|l| l.usable as i64).collect()));
-        mg.dataset("qt_accepted", Data::I64(x.leads.iter().map(|l| l.qt_accepted as i64).collect()));
-        mg.dataset_with_units("qt_ms", Data::F64(x.leads.iter().map(|l| opt(l.qt_ms)).collect()), "ms");
-        mg.dataset_with_units("qrs_ms", Data::F64(x.leads.iter().map(|l| opt(l.qrs_ms)).collect()), "ms");
-        mg.dataset_with_units("pr_ms", Data::F64(x.leads.iter().map(|l| opt(l.pr_ms)).collect()), "ms");
-        mg.dataset_with_units("t_amplitude_mv", Data::F64(x.leads.iter().map(|l| opt(l.t_amplitude_mv)).collect()), "mV");
-        mg.dataset_with_units("noise_mv", Data::F64(x.leads.iter().map(|l| opt(l.noise_mv)).collect()), "mV");
+        mg.dataset(
+            "usable",
+            Data::I64(x.leads.iter().map(|l| l.usable as i64).collect()),
+        );
+        mg.dataset(
+            "qt_accepted",
+            Data::I64(x.leads.iter().map(|l| l.qt_accepted as i64).collect()),
+        );
+        mg.dataset_with_units(
+            "qt_ms",
+            Data::F64(x.leads.iter().map(|l| opt(l.qt_ms)).collect()),
+            "ms",
+        );
+        mg.dataset_with_units(
+            "qrs_ms",
+            Data::F64(x.leads.iter().map(|l| opt(l.qrs_ms)).collect()),
+            "ms",
+        );
+        mg.dataset_with_units(
+            "pr_ms",
+            Data::F64(x.leads.iter().map(|l| opt(l.pr_ms)).collect()),
+            "ms",
+        );
+        mg.dataset_with_units(
+            "t_amplitude_mv",
+            Data::F64(x.leads.iter().map(|l| opt(l.t_amplitude_mv)).collect()),
+            "mV",
+        );
+        mg.dataset_with_units(
+            "noise_mv",
+            Data::F64(x.leads.iter().map(|l| opt(l.noise_mv)).collect()),
+            "mV",
+        );
         let marks: Vec<_> = x.leads.iter().map(|l| l.marks.clone()).collect();
         marks_group(mg.group("marks"), &marks);
     }
@@ -161,7 +187,9 @@ pub fn summary_flags(m: &RecordMeasures) -> Vec<String> {
     if s.qtc_flag.as_str() != "normal" {
         v.push(s.qtc_flag.as_str().to_string());
     }
-    if s.any_high_risk {
+    // The record's QTc, not a single window's, decides the record-level highlight;
+    // windows.csv keeps each window's own flags.
+    if s.classification.high_risk {
         v.push("qtc_above_500".into());
     }
     if s.any_wide_qrs {

@@ -190,13 +190,35 @@ fn process_one(
         ))
     })();
     match result {
-        Ok((o, p)) => (o, Some(p)),
+        Ok((o, p)) => (o, Some(brief(p))),
         Err(e) => (
             Outcome::Failed {
                 error: format!("{e:#}"),
             },
             None,
         ),
+    }
+}
+
+/// What the end of the run needs in memory from a record: its attributes and the
+/// windows' QT and RR (for per-subject fits). The full tree stays on disk in its part
+/// file and is streamed into `results.h5`, so memory does not grow with the batch.
+fn brief(p: Part) -> Part {
+    let mut g = Group {
+        attrs: p.group.attrs,
+        ..Group::default()
+    };
+    if let Some(w) = p.group.groups.get("windows") {
+        for k in ["qt_ms", "rr_ms"] {
+            if let Some(d) = w.datasets.get(k) {
+                g.group("windows").datasets.insert(k.to_string(), d.clone());
+            }
+        }
+    }
+    Part {
+        record: p.record,
+        key: p.key,
+        group: g,
     }
 }
 
@@ -294,12 +316,17 @@ fn write_run_outputs(opts: &RunOptions, ctx: &Context, report: &RunReport) -> Re
         root.attr("subjects_file", Attr::Text(s.display().to_string()));
         root.attr("subjects_sha256", Attr::Text(sha256_file(s)?));
     }
-    let recs = root.group("records");
+    let mut h5 = tendline_store::ResultsWriter::create(&opts.out.join("results.h5"), &root)?;
+    let mut csv = tables::CsvWriter::default();
     for p in &report.parts {
-        recs.groups.insert(p.record.clone(), p.group.clone());
+        let path = opts.out.join("parts").join(format!("{}.json", p.record));
+        let full = Part::load(&path)?
+            .with_context(|| format!("{}: part file disappeared during the run", path.display()))?;
+        h5.add_record(&full.record, &full.group)?;
+        csv.add(&full)?;
     }
-    tendline_store::write_results(&opts.out.join("results.h5"), &root)?;
-    tables::write_csvs(&opts.out, &report.parts)?;
+    h5.finish()?;
+    csv.write(&opts.out)?;
     tables::write_failures(&opts.out, &report.failures())?;
     tables::write_manifest(&opts.out, ctx, report)?;
     Ok(())

@@ -121,19 +121,38 @@ fn cell_of(d: &Data, i: usize) -> String {
     }
 }
 
-/// `summary.csv` (one row per record) and `windows.csv` (one row per window).
-pub fn write_csvs(out: &Path, parts: &[Part]) -> Result<()> {
-    let mut s = String::from("record,subject,timepoint,sex,age,fs,n_leads,n_beats,n_windows");
-    for k in SUMMARY_NUM {
-        write!(s, ",{k}")?;
+/// `summary.csv` (one row per record) and `windows.csv` (one row per window), built
+/// one record at a time.
+pub struct CsvWriter {
+    summary: String,
+    windows: String,
+}
+
+impl Default for CsvWriter {
+    fn default() -> Self {
+        let mut s = String::from("record,subject,timepoint,sex,age,fs,n_leads,n_beats,n_windows");
+        for k in SUMMARY_NUM {
+            s.push(',');
+            s.push_str(k);
+        }
+        s.push_str(",qt_rule,qtc_formula,qtc_flag,flags\n");
+        let mut w = String::from("record,window");
+        for k in WINDOW_COLS {
+            w.push(',');
+            w.push_str(k);
+        }
+        w.push_str(",flags\n");
+        CsvWriter {
+            summary: s,
+            windows: w,
+        }
     }
-    s.push_str(",qt_rule,qtc_formula,qtc_flag,flags\n");
-    let mut w = String::from("record,window");
-    for k in WINDOW_COLS {
-        write!(w, ",{k}")?;
-    }
-    w.push_str(",flags\n");
-    for p in parts {
+}
+
+impl CsvWriter {
+    /// Append one record's rows.
+    pub fn add(&mut self, p: &Part) -> Result<()> {
+        let (s, w) = (&mut self.summary, &mut self.windows);
         let g = &p.group;
         let n_leads = match g.attrs.get("leads") {
             Some(Attr::Texts(v)) => v.len(),
@@ -178,10 +197,15 @@ pub fn write_csvs(out: &Path, parts: &[Part]) -> Result<()> {
                 w.push('\n');
             }
         }
+        Ok(())
     }
-    write_atomic(&out.join("summary.csv"), s.as_bytes())?;
-    write_atomic(&out.join("windows.csv"), w.as_bytes())?;
-    Ok(())
+
+    /// Write both files atomically into `out`.
+    pub fn write(&self, out: &Path) -> Result<()> {
+        write_atomic(&out.join("summary.csv"), self.summary.as_bytes())?;
+        write_atomic(&out.join("windows.csv"), self.windows.as_bytes())?;
+        Ok(())
+    }
 }
 
 /// `failures.csv`: one row per record that failed (header only when none did).

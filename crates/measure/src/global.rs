@@ -159,6 +159,7 @@ mod tests {
             qrs_ms: Some((qrs_end - on) as f64),
             pr_ms: None,
             t_amplitude_mv: Some(0.3),
+            noise_mv: None,
             qt_accepted: false,
             marks: BeatMarks {
                 qrs_on: mk(on),
@@ -191,6 +192,27 @@ mod tests {
         // QRS over all usable leads: 98 → 195 (no outlier).
         assert_eq!(g.qrs_ms, Some(97.0));
         assert_eq!(g.pr_ms, Some(150.0));
+    }
+
+    #[test]
+    fn noisy_lead_is_left_out_of_the_longest_lead_rule() {
+        let cfg = MeasureConfig::default();
+        let mut noisy = lead(100, 190, 530);
+        // Noise 0.06 mV against a 0.3 mV T wave: ratio 0.2 > 0.15.
+        noisy.noise_mv = Some(0.06);
+        let mut quiet = lead(100, 190, 500);
+        quiet.noise_mv = Some(0.01);
+        let leads = vec![quiet.clone(), noisy.clone(), quiet];
+        assert!(too_noisy(&noisy, &cfg) && !too_noisy(&leads[0], &cfg));
+        let g = combine(&leads, 1000.0, &cfg);
+        assert_eq!(g.longest_ms, Some(400.0));
+        assert!(!g.accepted_leads.contains(&1));
+        // Disabled check: the long noisy lead wins again.
+        let off = MeasureConfig {
+            max_noise_t_ratio: 0.0,
+            ..MeasureConfig::default()
+        };
+        assert_eq!(combine(&leads, 1000.0, &off).longest_ms, Some(430.0));
     }
 
     #[test]

@@ -543,7 +543,9 @@ where
             lm.qrs_ms = d(&lm.marks.qrs_on, &lm.marks.qrs_end);
             lm.pr_ms = d(&lm.marks.p_on, &lm.marks.qrs_on);
         }
-        flags.noisy = leads_out.iter().any(|lm| lm.usable && global::too_noisy(lm, cfg));
+        flags.noisy = leads_out
+            .iter()
+            .any(|lm| lm.usable && global::too_noisy(lm, cfg));
         g = global::combine(&leads_out, fs, cfg);
         for (l, lm) in leads_out.iter_mut().enumerate() {
             lm.qt_accepted = g.accepted_leads.contains(&l);
@@ -674,7 +676,10 @@ fn residual_noise<'a>(m: &[f64], beats: impl Iterator<Item = &'a [f64]>) -> Opti
         .filter(|b| b.len() == m.len() && m.len() >= 3)
         .map(|b| {
             let res: Vec<f64> = b.iter().zip(m).map(|(x, y)| x - y).collect();
-            let ss: f64 = res.windows(3).map(|w| (w[1] - 0.5 * (w[0] + w[2])).powi(2)).sum();
+            let ss: f64 = res
+                .windows(3)
+                .map(|w| (w[1] - 0.5 * (w[0] + w[2])).powi(2))
+                .sum();
             (ss / (res.len() - 2) as f64 / 1.5).sqrt()
         })
         .collect();

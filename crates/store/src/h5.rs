@@ -94,25 +94,90 @@ fn write_group(g: &hdf5::Group, path: &Path, tree: &Group) -> Result<(), StoreEr
     Ok(())
 }
 
-/// Write `root` (attributes and groups) to `path`: to a temporary sibling first,
-/// renamed over `path` only when everything was written and the file closed.
-pub fn write_results(path: &Path, root: &Group) -> Result<(), StoreError> {
-    let tmp = tmp_sibling(path);
-    let result = (|| {
-        let f = hdf5::File::create(&tmp).map_err(h5err(path))?;
-        write_group(&f, path, root)?;
-        f.close().map_err(h5err(path))
-    })();
-    match result {
-        Ok(()) => std::fs::rename(&tmp, path).map_err(|source| StoreError::Io {
+/// An HDF5 results file being written one record at a time, so memory stays bounded
+/// whatever the number of records. Written to a temporary sibling and renamed over
+/// the final path by [`ResultsWriter::finish`]; dropped unfinished, it removes the
+/// temporary and leaves any previous file untouched.
+pub struct ResultsWriter {
+    file: Option<hdf5::File>,
+    records: Option<hdf5::Group>,
+    tmp: std::path::PathBuf,
+    path: std::path::PathBuf,
+}
+
+impl ResultsWriter {
+    /// Start a file with the root attributes and groups of `root`, and an empty `/records`.
+    pub fn create(path: &Path, root: &Group) -> Result<Self, StoreError> {
+        let tmp = tmp_sibling(path);
+        let mut w = ResultsWriter {
+            file: None,
+            records: None,
+            tmp: tmp.clone(),
             path: path.to_path_buf(),
+        };
+        // The 1.8+ file format stores small groups compactly (links in the object header
+        // instead of a B-tree and heap per group), which makes files with many small
+        // per-record groups several times smaller; h5py and HDF5 ≥ 1.8 read it.
+        let f = hdf5::File::with_options()
+            .with_fapl(|p| p.libver_v18())
+            .create(&tmp)
+            .map_err(h5err(path))?;
+        write_group(&f, path, root)?;
+        w.records = Some(match f.group("records") {
+            Ok(g) => g,
+            Err(_) => f.create_group("records").map_err(h5err(path))?,
+        });
+        w.file = Some(f);
+        Ok(w)
+    }
+
+    /// Write one record as `/records/<name>`.
+    pub fn add_record(&mut self, name: &str, group: &Group) -> Result<(), StoreError> {
+        let recs = self.records.as_ref().expect("open until finish");
+        let g = recs.create_group(name).map_err(h5err(&self.path))?;
+        write_group(&g, &self.path, group)
+    }
+
+    /// Close the file and move it into place.
+    pub fn finish(mut self) -> Result<(), StoreError> {
+        self.records = None;
+        if let Some(f) = self.file.take() {
+            f.close().map_err(h5err(&self.path))?;
+        }
+        std::fs::rename(&self.tmp, &self.path).map_err(|source| StoreError::Io {
+            path: self.path.clone(),
             source,
-        }),
-        Err(e) => {
-            let _ = std::fs::remove_file(&tmp);
-            Err(e)
+        })
+    }
+}
+
+impl Drop for ResultsWriter {
+    fn drop(&mut self) {
+        if self.file.is_some() {
+            self.records = None;
+            self.file = None;
+            let _ = std::fs::remove_file(&self.tmp);
         }
     }
+}
+
+/// Write `root` (attributes and groups) to `path` in one go (temporary file, then rename).
+pub fn write_results(path: &Path, root: &Group) -> Result<(), StoreError> {
+    let mut only_root = root.clone();
+    let records = only_root.groups.remove("records");
+    let mut w = ResultsWriter::create(path, &only_root)?;
+    if let Some(r) = records {
+        if let Some(a) = r.attrs.keys().next() {
+            return Err(StoreError::Invalid {
+                path: path.to_path_buf(),
+                message: format!("attribute `{a}` on /records is not supported"),
+            });
+        }
+        for (name, g) in &r.groups {
+            w.add_record(name, g)?;
+        }
+    }
+    w.finish()
 }
 
 #[cfg(test)]
@@ -158,6 +223,20 @@ mod tests {
         let shape = f.dataset("records/rec1/m").unwrap().shape();
         assert_eq!(shape, vec![2, 2]);
         // Only the final file remains.
+        assert_eq!(std::fs::read_dir(d.path()).unwrap().count(), 1);
+    }
+
+    #[test]
+    fn unfinished_writer_leaves_previous_file_and_no_temporary() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path().join("r.h5");
+        std::fs::write(&p, b"previous").unwrap();
+        {
+            let mut w = ResultsWriter::create(&p, &Group::default()).unwrap();
+            w.add_record("a", &Group::default()).unwrap();
+            // dropped without finish(), as on an error mid-run
+        }
+        assert_eq!(std::fs::read(&p).unwrap(), b"previous");
         assert_eq!(std::fs::read_dir(d.path()).unwrap().count(), 1);
     }
 }

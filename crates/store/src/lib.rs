@@ -13,7 +13,7 @@
 pub mod h5;
 pub mod tree;
 
-pub use h5::write_results;
+pub use h5::{write_results, ResultsWriter};
 pub use tree::{Attr, Data, Dataset, Group};
 
 use std::path::{Path, PathBuf};
@@ -134,9 +134,14 @@ mod tests {
         part.save(&p).unwrap();
         // NaN (missing values) must survive JSON, where NaN != NaN forbids a plain assert_eq.
         let back = Part::load(&p).unwrap().unwrap();
-        assert_eq!(serde_json::to_string(&back).unwrap(), serde_json::to_string(&part).unwrap());
+        assert_eq!(
+            serde_json::to_string(&back).unwrap(),
+            serde_json::to_string(&part).unwrap()
+        );
         assert!(matches!(back.group.attrs["missing"], Attr::Float(v) if v.is_nan()));
-        assert!(matches!(&back.group.datasets["y"].data, Data::F64(v) if v[0] == 1.5 && v[1].is_nan()));
+        assert!(
+            matches!(&back.group.datasets["y"].data, Data::F64(v) if v[0] == 1.5 && v[1].is_nan())
+        );
         assert_eq!(Part::load(&d.path().join("none.json")).unwrap(), None);
         std::fs::write(&p, b"{not json").unwrap();
         let e = Part::load(&p).unwrap_err().to_string();

@@ -30,12 +30,20 @@ mod nan_null {
         }
     }
 
-    pub fn serialize<S: Serializer, T: Float + Serialize>(v: &[T], s: S) -> Result<S::Ok, S::Error> {
-        let o: Vec<Option<T>> = v.iter().map(|x| (!x.is_nan_value()).then_some(*x)).collect();
+    pub fn serialize<S: Serializer, T: Float + Serialize>(
+        v: &[T],
+        s: S,
+    ) -> Result<S::Ok, S::Error> {
+        let o: Vec<Option<T>> = v
+            .iter()
+            .map(|x| (!x.is_nan_value()).then_some(*x))
+            .collect();
         o.serialize(s)
     }
 
-    pub fn deserialize<'de, D: Deserializer<'de>, T: Float + Deserialize<'de>>(d: D) -> Result<Vec<T>, D::Error> {
+    pub fn deserialize<'de, D: Deserializer<'de>, T: Float + Deserialize<'de>>(
+        d: D,
+    ) -> Result<Vec<T>, D::Error> {
         let o: Vec<Option<T>> = Vec::deserialize(d)?;
         Ok(o.into_iter().map(|x| x.unwrap_or_else(T::nan)).collect())
     }
