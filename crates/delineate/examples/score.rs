@@ -58,16 +58,31 @@ fn score_qtdb(
     let lead_refs: Vec<&[f64]> = leads.iter().map(|l| l.as_slice()).collect();
     let d = delineate(&lead_refs, fs, &beats, cfg);
     if std::env::var("DUMP").is_ok_and(|v| v == rec) {
-        let f = |m: Option<Mark>| m.map_or("   -   ".into(), |m| format!("{:7.3}", m.sample as f64 / fs));
+        let f = |m: Option<Mark>| {
+            m.map_or("   -   ".into(), |m| {
+                format!("{:7.3}", m.sample as f64 / fs)
+            })
+        };
         for (j, g) in d.global.iter().enumerate() {
             let t0 = beats[j] as f64 / fs;
             if !(600.0..640.0).contains(&t0) {
                 continue;
             }
-            for (name, b) in std::iter::once(("G", g)).chain(d.per_lead.iter().map(|l| ("l", &l[j]))) {
+            for (name, b) in
+                std::iter::once(("G", g)).chain(d.per_lead.iter().map(|l| ("l", &l[j])))
+            {
                 println!(
                     "DUMP {name} beat {:7.3} P {} {} QRS {} {} {} T {} {} {} {:?}",
-                    t0, f(b.p_on), f(b.p_end), f(b.qrs_on), f(b.qrs_peak), f(b.qrs_end), f(b.t_on), f(b.t_peak), f(b.t_end), b.t_morphology
+                    t0,
+                    f(b.p_on),
+                    f(b.p_end),
+                    f(b.qrs_on),
+                    f(b.qrs_peak),
+                    f(b.qrs_end),
+                    f(b.t_on),
+                    f(b.t_peak),
+                    f(b.t_end),
+                    b.t_morphology
                 );
             }
         }
@@ -166,7 +181,11 @@ fn par<T: Send, R: Send>(items: Vec<T>, f: impl Fn(T) -> R + Sync) -> Vec<R> {
     let (a, b) = items.split_at_mut(n / 2);
     let f = &f;
     std::thread::scope(|s| {
-        let h = s.spawn(move || a.iter_mut().map(|x| f(x.take().unwrap())).collect::<Vec<_>>());
+        let h = s.spawn(move || {
+            a.iter_mut()
+                .map(|x| f(x.take().unwrap()))
+                .collect::<Vec<_>>()
+        });
         let mut r2: Vec<R> = b.iter_mut().map(|x| f(x.take().unwrap())).collect();
         let mut r1 = h.join().unwrap();
         r1.append(&mut r2);
@@ -251,8 +270,20 @@ fn main() {
         let tabs = par(recs, |r| ludb::score_record(&dir, r, &cfg));
         let t = merge_tables(&tabs);
         for k in [
-            "qrs_sens", "qrs_ppv", "qrs_on", "qrs_end", "t_sens", "t_ppv", "t_peak", "t_end",
-            "t_end_tangent", "t_end_area", "p_sens", "p_ppv", "p_on", "p_end",
+            "qrs_sens",
+            "qrs_ppv",
+            "qrs_on",
+            "qrs_end",
+            "t_sens",
+            "t_ppv",
+            "t_peak",
+            "t_end",
+            "t_end_tangent",
+            "t_end_area",
+            "p_sens",
+            "p_ppv",
+            "p_on",
+            "p_end",
         ] {
             if let Some(a) = t.get(k) {
                 println!("LUDB {:14} {}", k, row(a));

@@ -19,6 +19,7 @@ fn extreme(
     pick: Pick,
     outlier: f64,
     pair: PairRule,
+    expect: Option<f64>,
     cfg: &DelineateConfig,
 ) -> Option<Mark> {
     let mut c: Vec<Mark> = cands
@@ -47,6 +48,10 @@ fn extreme(
             PairRule::Confident => c[1].confidence > c[0].confidence,
             PairRule::Outer => false,
             PairRule::Inner => true,
+            PairRule::Consistent => match expect {
+                Some(e) => dist(&c[0], e) > dist(&c[1], e),
+                None => c[1].confidence > c[0].confidence,
+            },
         };
         if drop_outer {
             c.remove(0);
@@ -63,6 +68,44 @@ fn extreme(
         sample: best.sample,
         confidence: (mean_conf * agree.min(1.0)).clamp(0.0, 1.0),
     })
+}
+
+/// Where beat `b`'s mark is expected from its neighbours: the beat's QRS
+/// peak (median over leads) plus the median offset of the mark from each
+/// lead's own QRS peak over the beats within `half` of `b` (excluding `b`).
+fn expected(
+    per_lead: &[Vec<BeatMarks>],
+    b: usize,
+    half: usize,
+    get: &dyn Fn(&BeatMarks) -> Option<Mark>,
+) -> Option<f64> {
+    let med = |mut v: Vec<f64>| -> Option<f64> {
+        if v.is_empty() {
+            return None;
+        }
+        v.sort_by(|a, b| a.total_cmp(b));
+        Some(v[v.len() / 2])
+    };
+    let peaks: Vec<f64> = per_lead
+        .iter()
+        .filter_map(|l| l.get(b).and_then(|m| m.qrs_peak))
+        .map(|m| m.sample as f64)
+        .collect();
+    let here = med(peaks)?;
+    let mut offs = Vec::new();
+    for l in per_lead {
+        let lo = b.saturating_sub(half);
+        let hi = (b + half + 1).min(l.len());
+        for (j, bm) in l.iter().enumerate().take(hi).skip(lo) {
+            if j == b {
+                continue;
+            }
+            if let (Some(m), Some(pk)) = (get(bm), bm.qrs_peak) {
+                offs.push(m.sample as f64 - pk.sample as f64);
+            }
+        }
+    }
+    Some(here + med(offs)?)
 }
 
 /// The most confident lead's mark (ties: the first lead).
@@ -96,18 +139,81 @@ pub(crate) fn combine(
                     .filter_map(|(l, bm)| f(bm).map(|m| (l, m)))
                     .collect()
             };
+            let exp = |get: &dyn Fn(&BeatMarks) -> Option<Mark>, rule: PairRule| {
+                if rule == PairRule::Consistent {
+                    expected(per_lead, b, cfg.global_context_beats, get)
+                } else {
+                    None
+                }
+            };
             let mut g = BeatMarks {
                 t_end_method: cfg.t_end_method,
                 ..Default::default()
             };
-            g.qrs_on = extreme(&gather(&|m| m.qrs_on), Pick::Earliest, outlier, cfg.global_pair_qrs_on, cfg);
-            g.qrs_end = extreme(&gather(&|m| m.qrs_end), Pick::Latest, outlier, cfg.global_pair_qrs_end, cfg);
-            g.p_on = extreme(&gather(&|m| m.p_on), Pick::Earliest, outlier, cfg.global_pair_p, cfg);
-            g.p_end = extreme(&gather(&|m| m.p_end), Pick::Latest, outlier, cfg.global_pair_p, cfg);
-            g.t_on = extreme(&gather(&|m| m.t_on), Pick::Earliest, outlier, cfg.global_pair_t, cfg);
-            g.t_end_wavelet = extreme(&gather(&|m| m.t_end_wavelet), Pick::Latest, outlier, cfg.global_pair_t, cfg);
-            g.t_end_tangent = extreme(&gather(&|m| m.t_end_tangent), Pick::Latest, outlier, cfg.global_pair_t, cfg);
-            g.t_end_area = extreme(&gather(&|m| m.t_end_area), Pick::Latest, outlier, cfg.global_pair_t, cfg);
+            g.qrs_on = extreme(
+                &gather(&|m| m.qrs_on),
+                Pick::Earliest,
+                outlier,
+                cfg.global_pair_qrs_on,
+                exp(&|m| m.qrs_on, cfg.global_pair_qrs_on),
+                cfg,
+            );
+            g.qrs_end = extreme(
+                &gather(&|m| m.qrs_end),
+                Pick::Latest,
+                outlier,
+                cfg.global_pair_qrs_end,
+                exp(&|m| m.qrs_end, cfg.global_pair_qrs_end),
+                cfg,
+            );
+            g.p_on = extreme(
+                &gather(&|m| m.p_on),
+                Pick::Earliest,
+                outlier,
+                cfg.global_pair_p,
+                exp(&|m| m.p_on, cfg.global_pair_p),
+                cfg,
+            );
+            g.p_end = extreme(
+                &gather(&|m| m.p_end),
+                Pick::Latest,
+                outlier,
+                cfg.global_pair_p,
+                exp(&|m| m.p_end, cfg.global_pair_p),
+                cfg,
+            );
+            g.t_on = extreme(
+                &gather(&|m| m.t_on),
+                Pick::Earliest,
+                outlier,
+                cfg.global_pair_t,
+                exp(&|m| m.t_on, cfg.global_pair_t),
+                cfg,
+            );
+            g.t_end_wavelet = extreme(
+                &gather(&|m| m.t_end_wavelet),
+                Pick::Latest,
+                outlier,
+                cfg.global_pair_t,
+                exp(&|m| m.t_end_wavelet, cfg.global_pair_t),
+                cfg,
+            );
+            g.t_end_tangent = extreme(
+                &gather(&|m| m.t_end_tangent),
+                Pick::Latest,
+                outlier,
+                cfg.global_pair_t,
+                exp(&|m| m.t_end_tangent, cfg.global_pair_t),
+                cfg,
+            );
+            g.t_end_area = extreme(
+                &gather(&|m| m.t_end_area),
+                Pick::Latest,
+                outlier,
+                cfg.global_pair_t,
+                exp(&|m| m.t_end_area, cfg.global_pair_t),
+                cfg,
+            );
             g.t_end = match cfg.t_end_method {
                 TEndMethod::Wavelet => g.t_end_wavelet,
                 TEndMethod::Tangent => g.t_end_tangent,
@@ -115,7 +221,18 @@ pub(crate) fn combine(
             };
             g.qrs_peak = best_lead(&gather_l(&|m| m.qrs_peak)).map(|x| x.1);
             g.p_peak = best_lead(&gather_l(&|m| m.p_peak)).map(|x| x.1);
-            if let Some((l, m)) = best_lead(&gather_l(&|m| m.t_peak)) {
+            let t_peaks = gather_l(&|m| m.t_peak);
+            // With the consistency rule, the T peak comes from the lead whose
+            // peak lies nearest the neighbouring beats' pattern.
+            let t_peak_lead = match exp(&|m| m.t_peak, cfg.global_pair_t) {
+                Some(e) if t_peaks.len() >= 2 => t_peaks.iter().copied().min_by(|a, b| {
+                    (a.1.sample as f64 - e)
+                        .abs()
+                        .total_cmp(&(b.1.sample as f64 - e).abs())
+                }),
+                _ => best_lead(&t_peaks),
+            };
+            if let Some((l, m)) = t_peak_lead {
                 g.t_peak = Some(m);
                 g.t_morphology = beats[l].t_morphology;
             } else if let Some((l, _)) = best_lead(&gather_l(&|m| m.t_end)) {
@@ -139,17 +256,88 @@ mod tests {
         let cfg = DelineateConfig::default();
         // Three leads agree near 100, one is 30 samples early: dropped.
         let c = [m(100, 0.9), m(102, 0.9), m(70, 0.9), m(101, 0.9)];
-        assert_eq!(extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, &cfg).unwrap().sample, 100);
+        assert_eq!(
+            extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, None, &cfg)
+                .unwrap()
+                .sample,
+            100
+        );
         // Without the outlier the earliest is kept as is.
         let c = [m(100, 0.9), m(102, 0.9), m(95, 0.9)];
-        assert_eq!(extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, &cfg).unwrap().sample, 95);
+        assert_eq!(
+            extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, None, &cfg)
+                .unwrap()
+                .sample,
+            95
+        );
         // Latest: one late outlier is dropped, but only one.
         let c = [m(200, 0.9), m(204, 0.9), m(260, 0.9), m(203, 0.9)];
-        assert_eq!(extreme(&c, Pick::Latest, 10.0, PairRule::Confident, &cfg).unwrap().sample, 204);
+        assert_eq!(
+            extreme(&c, Pick::Latest, 10.0, PairRule::Confident, None, &cfg)
+                .unwrap()
+                .sample,
+            204
+        );
         // Two leads far apart: the more confident one wins.
         let c = [m(200, 0.3), m(260, 0.8)];
-        assert_eq!(extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, &cfg).unwrap().sample, 260);
+        assert_eq!(
+            extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, None, &cfg)
+                .unwrap()
+                .sample,
+            260
+        );
         // Low-confidence marks are not used.
-        assert!(extreme(&[m(5, 0.01)], Pick::Earliest, 10.0, PairRule::Confident, &cfg).is_none());
+        assert!(extreme(
+            &[m(5, 0.01)],
+            Pick::Earliest,
+            10.0,
+            PairRule::Confident,
+            None,
+            &cfg
+        )
+        .is_none());
+    }
+
+    #[test]
+    fn two_disagreeing_leads_follow_the_pair_rule() {
+        let cfg = DelineateConfig::default();
+        let c = [m(200, 0.9), m(260, 0.5)];
+        let pick = |rule, expect| {
+            extreme(&c, Pick::Latest, 10.0, rule, expect, &cfg)
+                .unwrap()
+                .sample
+        };
+        assert_eq!(pick(PairRule::Confident, None), 200);
+        assert_eq!(pick(PairRule::Outer, None), 260);
+        assert_eq!(pick(PairRule::Inner, None), 200);
+        // Consistent: the mark nearer the expected place, whatever the
+        // confidence; without an expectation it falls back to confidence.
+        assert_eq!(pick(PairRule::Consistent, Some(250.0)), 260);
+        assert_eq!(pick(PairRule::Consistent, Some(205.0)), 200);
+        assert_eq!(pick(PairRule::Consistent, None), 200);
+    }
+
+    fn beat(qrs_peak: usize, t_end: usize) -> BeatMarks {
+        BeatMarks {
+            qrs_peak: Some(m(qrs_peak, 0.9)),
+            t_end: Some(m(t_end, 0.9)),
+            ..Default::default()
+        }
+    }
+
+    #[test]
+    fn expected_position_is_the_neighbours_median_offset() {
+        // Slow oracle by hand: neighbours of beat 2 have T-end offsets
+        // 100, 102, 98, 300 (one outlier); median of the sorted
+        // [98, 100, 102, 300] at index 2 is 102; beat 2's QRS peak is 1000.
+        let lead = vec![
+            beat(0, 100),
+            beat(500, 602),
+            beat(1000, 1400),
+            beat(1500, 1598),
+            beat(2000, 2300),
+        ];
+        let e = expected(&[lead], 2, 8, &|b| b.t_end).unwrap();
+        assert_eq!(e, 1102.0);
     }
 }

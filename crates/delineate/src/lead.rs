@@ -11,6 +11,23 @@ use tendline_dsp::wavelet::swt_quadratic_spline;
 
 use crate::{BeatMarks, DelineateConfig, Mark, TEndMethod, TMorphology};
 
+/// How [`LeadAnalysis::find_wave`] picks the lobes of a P or T wave.
+#[derive(Debug, Clone, Copy)]
+struct WaveRule {
+    /// Opposite-sign maxima above `gamma` × the largest are significant.
+    gamma: f64,
+    /// Both neighbours above this fraction make the wave biphasic.
+    biphasic_frac: f64,
+    /// A biphasic wave's boundaries come from its outer lobes.
+    three_lobe_bounds: bool,
+    /// Maxima further (analysis samples) from the largest are another wave.
+    reach: usize,
+    /// A lone lobe gets a peak at the next zero crossing.
+    lone_peak: bool,
+    /// The earlier neighbour wins if at least this fraction of the later.
+    early_frac: f64,
+}
+
 /// One lead prepared for analysis.
 pub(crate) struct LeadAnalysis {
     /// Signal at the analysis rate (mV).
@@ -197,15 +214,15 @@ impl LeadAnalysis {
 
     /// Find a P or T wave at scale `k` in `[lo, hi]`: the largest modulus
     /// maximum and its largest significant opposite-sign neighbours.
-    fn find_wave(
-        &self,
-        k: usize,
-        lo: isize,
-        hi: isize,
-        gamma: f64,
-        biphasic_frac: f64,
-        reach: usize,
-    ) -> Option<Lobes> {
+    fn find_wave(&self, k: usize, lo: isize, hi: isize, rule: &WaveRule) -> Option<Lobes> {
+        let WaveRule {
+            gamma,
+            biphasic_frac,
+            three_lobe_bounds,
+            reach,
+            lone_peak,
+            early_frac,
+        } = *rule;
         // Maxima further than `reach` samples from the largest one belong to
         // another wave.
         let w = &self.w[k - 1];
@@ -233,12 +250,25 @@ impl LeadAnalysis {
                 TMorphology::Inverted
             }
         };
+        // Some(first lobe positive) when three lobes make the wave biphasic.
+        let mut biphasic = None;
         let (idx, pair) = match (before, after) {
             (Some(b), Some(c)) => {
                 let (vb, vc) = (w[b].abs(), w[c].abs());
-                let dominant = if vb >= vc { (b, a) } else { (a, c) };
+                // The earlier pair wins unless the later lobe is clearly
+                // larger: a wave following T (U) should not pull the pair.
+                let dominant = if vb >= early_frac * vc {
+                    (b, a)
+                } else {
+                    (a, c)
+                };
                 if vb.min(vc) >= biphasic_frac * amp {
-                    (vec![b, a, c], dominant)
+                    biphasic = Some(w[b] > 0.0);
+                    if three_lobe_bounds {
+                        (vec![b, a, c], dominant)
+                    } else {
+                        (vec![dominant.0, dominant.1], dominant)
+                    }
                 } else {
                     (vec![dominant.0, dominant.1], dominant)
                 }
@@ -251,22 +281,27 @@ impl LeadAnalysis {
                 } else {
                     TMorphology::Inverted
                 };
+                // One limb only: read as the first limb of a monophasic wave
+                // (as the morphology above does), the wave's extremum is the
+                // next zero crossing of W_k inside the window.
+                let peak = if lone_peak {
+                    let end = (hi.max(a as isize) as usize).min(w.len() - 1);
+                    Self::zero_cross(w, a, end)
+                } else {
+                    None
+                };
                 return Some(Lobes {
                     idx: vec![a],
-                    peak: None,
+                    peak,
                     amp,
                     morph,
                 });
             }
         };
-        let morph = if idx.len() == 3 {
-            if w[idx[0]] > 0.0 {
-                TMorphology::BiphasicPosNeg
-            } else {
-                TMorphology::BiphasicNegPos
-            }
-        } else {
-            morph_pair(idx[0])
+        let morph = match biphasic {
+            Some(true) => TMorphology::BiphasicPosNeg,
+            Some(false) => TMorphology::BiphasicNegPos,
+            None => morph_pair(idx[0]),
         };
         let peak = Self::zero_cross(w, pair.0, pair.1);
         Some(Lobes {
@@ -294,6 +329,8 @@ impl LeadAnalysis {
         fid: usize,
         prev: Option<usize>,
         next: Option<usize>,
+        prev_t_end: Option<usize>,
+        t_expect: Option<(usize, f64)>,
         cfg: &DelineateConfig,
     ) -> BeatMarks {
         let mut bm = BeatMarks {
@@ -377,9 +414,9 @@ impl LeadAnalysis {
         // A small Q or S lobe right next to the complex (opposite sign, close)
         // also joins, so the boundary is not put at its peak.
         let adj_gap = self.ms_i(cfg.qrs_adjacent_gap_ms) as usize;
-        let joins = |d: usize, v: f64, gamma: f64, opposite: bool| {
+        let joins = |d: usize, v: f64, gamma: f64, wide_frac: f64, opposite: bool| {
             (d <= gap && v > gamma * m_all)
-                || (d <= wide_gap && v > cfg.qrs_wide_frac * m_all)
+                || (d <= wide_gap && v > wide_frac * m_all)
                 || (opposite && d <= adj_gap && v > cfg.qrs_adjacent_frac * m_all)
         };
         let mut first = p1;
@@ -391,6 +428,7 @@ impl LeadAnalysis {
                 first - e,
                 w2[e].abs(),
                 cfg.qrs_gamma_pre,
+                cfg.qrs_wide_frac,
                 w2[e].signum() != w2[first].signum(),
             ) {
                 first = e;
@@ -405,6 +443,7 @@ impl LeadAnalysis {
                 e - last,
                 w2[e].abs(),
                 cfg.qrs_gamma_post,
+                cfg.qrs_wide_frac_post,
                 w2[e].signum() != w2[last].signum(),
             ) {
                 last = e;
@@ -439,23 +478,56 @@ impl LeadAnalysis {
             self.ms(cfg.t_window_end_max_ms),
         );
         let mut t_hi = peak as isize + span.round() as isize;
+        // At slow rates (window cut by `t_window_end_max_ms`) a long QT may
+        // reach past the window: see the lone-lobe retry below.
+        let slow = cfg.t_window_end_rr_frac * rr > self.ms(cfg.t_window_end_max_ms);
+        let mut t_hi_slow = peak as isize
+            + (cfg.t_window_end_rr_frac * rr)
+                .min(self.ms(cfg.t_window_slow_max_ms))
+                .round() as isize;
         let mut t_limit = n - 2;
         if let Some(q) = next_a {
+            t_hi_slow = t_hi_slow.min(q - self.ms_i(cfg.qrs_pre_ms));
             t_hi = t_hi.min(q - self.ms_i(cfg.qrs_pre_ms));
             t_limit = t_limit.min(q - self.ms_i(60.0));
         }
         t_hi = t_hi.min(n - 2);
+        t_hi_slow = t_hi_slow.min(n - 2);
+        // Second pass: narrow the T window around the T peak position the
+        // neighbouring beats predict (input sample, half-width in ms).
+        let (t_lo, t_hi) = match t_expect {
+            Some((e, half_ms)) => {
+                let e = (e as f64 / self.ratio).round() as isize;
+                let h = self.ms_i(half_ms);
+                (t_lo.max(e - h), t_hi.min(e + h))
+            }
+            None => (t_lo, t_hi),
+        };
         let min_t = cfg.t_min_slope_mv_per_s;
         let mut t_found = None;
         if t_hi - t_lo >= self.ms_i(60.0) {
             for k in [4usize, 5] {
                 let reach = self.ms_i(cfg.t_lobe_reach_ms) as usize;
-                if let Some(l) =
-                    self.find_wave(k, t_lo, t_hi, cfg.t_gamma, cfg.t_biphasic_frac, reach)
-                {
+                let rule = WaveRule {
+                    gamma: cfg.t_gamma,
+                    biphasic_frac: cfg.t_biphasic_frac,
+                    three_lobe_bounds: cfg.t_biphasic_outer_bounds,
+                    reach,
+                    lone_peak: cfg.t_peak_from_one_limb,
+                    early_frac: cfg.t_early_pair_frac,
+                };
+                if let Some(l) = self.find_wave(k, t_lo, t_hi, &rule) {
                     let slope = l.amp / (1u32 << k) as f64 * self.fs_a;
                     if slope >= min_t {
-                        t_found = Some((k, l));
+                        // A lone lobe at a slow rate: retry in the longer
+                        // window and keep the result if the lobe gains a
+                        // partner.
+                        let retry =
+                            (l.idx.len() == 1 && slow && t_hi_slow > t_hi && t_expect.is_none())
+                                .then(|| self.find_wave(k, t_lo, t_hi_slow, &rule))
+                                .flatten()
+                                .filter(|m| m.idx.len() >= 2 && m.idx.contains(&l.idx[0]));
+                        t_found = Some((k, retry.unwrap_or(l)));
                         break;
                     }
                 }
@@ -474,8 +546,8 @@ impl LeadAnalysis {
             bm.t_morphology = l.morph;
             bm.t_peak = self.mark(l.peak.map(|p| p as f64), tconf);
             let first = l.idx[0];
-            let last = *l.idx.last().unwrap();
             let tsearch = self.ms_i(cfg.t_end_search_ms);
+            let last = *l.idx.last().unwrap();
             let t_on = Self::search_back(w, first, cfg.t_xi_on, tsearch, qend_i);
             bm.t_on = self.mark(t_on, tconf);
             let t_end_w = Self::search_fwd(w, last, cfg.t_xi_end, tsearch, t_limit);
@@ -546,15 +618,22 @@ impl LeadAnalysis {
             // The P of this beat lies in the second half of the RR interval.
             p_lo = p_lo.max(p + (peak as isize - p) / 2);
         }
+        if let Some(te) = prev_t_end {
+            let te = (te as f64 / self.ratio).round() as isize;
+            if te < peak as isize {
+                p_lo = p_lo.max(te + self.ms_i(cfg.p_after_t_end_ms));
+            }
+        }
         if p_hi - p_lo >= self.ms_i(40.0) {
-            if let Some(l) = self.find_wave(
-                4,
-                p_lo,
-                p_hi,
-                cfg.p_gamma,
-                1.1,
-                self.ms_i(cfg.p_lobe_reach_ms) as usize,
-            ) {
+            let rule = WaveRule {
+                gamma: cfg.p_gamma,
+                biphasic_frac: 1.1,
+                three_lobe_bounds: true,
+                reach: self.ms_i(cfg.p_lobe_reach_ms) as usize,
+                lone_peak: false,
+                early_frac: 1.0,
+            };
+            if let Some(l) = self.find_wave(4, p_lo, p_hi, &rule) {
                 let w4 = &self.w[3];
                 let slope = l.amp / 16.0 * self.fs_a;
                 let qrs4 = ext_max(

@@ -25,8 +25,13 @@
 //!   fraction of leads that agree within `global_outlier_ms`.
 //! * Global marks: QRS onset, P onset and T onset are the earliest, QRS end,
 //!   P end and T end the latest usable lead mark after rejecting at most one
-//!   outlying lead; peaks and the T morphology come from the lead with the
-//!   highest confidence for that mark.
+//!   outlying lead (with two leads that disagree, `global_pair_*` decides);
+//!   peaks and the T morphology come from the lead with the highest
+//!   confidence for that mark.
+//! * A biphasic T is reported as such, but its onset and end are searched
+//!   from its dominant slope pair unless `t_biphasic_outer_bounds` is set.
+//! * Beats of a lead are delineated in order: the P search of a beat starts
+//!   no earlier than the previous beat's wavelet T end.
 
 mod config;
 mod global;
@@ -103,13 +108,101 @@ pub fn delineate_lead(x: &[f64], fs: f64, qrs: &[usize], cfg: &DelineateConfig) 
         return vec![BeatMarks::default(); qrs.len()];
     }
     let la = lead::LeadAnalysis::new(x, fs, cfg);
-    (0..qrs.len())
-        .map(|i| {
-            let prev = if i > 0 { Some(qrs[i - 1]) } else { None };
-            let next = qrs.get(i + 1).copied();
-            la.beat(qrs[i], prev, next, cfg)
+    let mut out: Vec<BeatMarks> = Vec::with_capacity(qrs.len());
+    for i in 0..qrs.len() {
+        let prev = if i > 0 { Some(qrs[i - 1]) } else { None };
+        let next = qrs.get(i + 1).copied();
+        // The previous beat's T end bounds this beat's P search.
+        let prev_t_end = out.last().and_then(|b| b.t_end_wavelet).map(|m| m.sample);
+        out.push(la.beat(qrs[i], prev, next, prev_t_end, None, cfg));
+    }
+    if cfg.t_recheck_ms > 0.0 {
+        recheck_t(&la, &mut out, qrs, fs, cfg);
+    }
+    out
+}
+
+/// Second pass over the T waves of one lead: the T peak should sit about
+/// where the neighbouring beats put it (median offset from the QRS peak over
+/// `global_context_beats` beats either side, common practice that QT changes
+/// little from beat to beat). A beat whose T peak is missing or more than
+/// `t_recheck_ms` away is searched again in a window of
+/// ±`t_recheck_window_ms` around that place; the new marks are kept if their
+/// peak is nearer.
+fn recheck_t(
+    la: &lead::LeadAnalysis,
+    out: &mut [BeatMarks],
+    qrs: &[usize],
+    fs: f64,
+    cfg: &DelineateConfig,
+) {
+    let offs: Vec<Option<f64>> = out
+        .iter()
+        .map(|b| match (b.t_peak, b.qrs_peak) {
+            (Some(t), Some(q)) => Some(t.sample as f64 - q.sample as f64),
+            _ => None,
         })
-        .collect()
+        .collect();
+    let tol = cfg.t_recheck_ms * fs / 1000.0;
+    let half = cfg.global_context_beats;
+    for i in 0..out.len() {
+        let Some(q) = out[i].qrs_peak else { continue };
+        let lo = i.saturating_sub(half);
+        let hi = (i + half + 1).min(out.len());
+        // Only beats at the rate of their neighbours: after a premature
+        // beat or a pause the QT legitimately differs.
+        let rr = |j: usize| (j > 0).then(|| qrs[j] as f64 - qrs[j - 1] as f64);
+        let mut rrs: Vec<f64> = (lo.max(1)..hi).filter(|&j| j != i).filter_map(rr).collect();
+        match rr(i) {
+            Some(r) if !rrs.is_empty() => {
+                rrs.sort_by(|a, b| a.total_cmp(b));
+                let m = rrs[rrs.len() / 2];
+                if (r - m).abs() > cfg.t_recheck_rr_frac * m {
+                    continue;
+                }
+            }
+            _ => continue,
+        }
+        let mut v: Vec<f64> = (lo..hi)
+            .filter(|&j| j != i)
+            .filter_map(|j| offs[j])
+            .collect();
+        if v.len() < 3 {
+            continue;
+        }
+        v.sort_by(|a, b| a.total_cmp(b));
+        let e = q.sample as f64 + v[v.len() / 2];
+        if e < 0.0 {
+            continue;
+        }
+        let dev = |b: &BeatMarks| b.t_peak.map(|t| (t.sample as f64 - e).abs());
+        if dev(&out[i]).is_some_and(|d| d <= tol) {
+            continue;
+        }
+        let prev = if i > 0 { Some(qrs[i - 1]) } else { None };
+        let next = qrs.get(i + 1).copied();
+        let prev_t_end = if i > 0 {
+            out[i - 1].t_end_wavelet.map(|m| m.sample)
+        } else {
+            None
+        };
+        let again = la.beat(
+            qrs[i],
+            prev,
+            next,
+            prev_t_end,
+            Some((e.round() as usize, cfg.t_recheck_window_ms)),
+            cfg,
+        );
+        let better = match (dev(&again), dev(&out[i])) {
+            (Some(a), Some(b)) => a < b,
+            (Some(_), None) => true,
+            _ => false,
+        };
+        if better {
+            out[i] = again;
+        }
+    }
 }
 
 /// Delineate all leads and combine them into global marks per beat.

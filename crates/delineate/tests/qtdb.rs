@@ -1,8 +1,10 @@
 //! Regression on the QT Database (Laguna et al., Computers in Cardiology
 //! 1997): global marks of all 105 records against annotator 1 (`.q1c`),
 //! pooled over all annotated beats. Input beats are the reference beat
-//! annotations (`.atr`, or `.man` where no `.atr` exists); the QRS peak is
-//! re-located by the delineator, so exact R positions are not relied on.
+//! annotations (`.atr`; where only `.man` exists, its selected beats with the
+//! gaps filled by the project's detector, see `common::qtdb_beats`); the QRS
+//! peak is re-located by the delineator, so exact R positions are not relied
+//! on.
 //! The asserted floors/ceilings are just beyond the figures measured with the
 //! default configuration (see the crate report); they guard against
 //! regressions and are not the targets.
@@ -136,15 +138,15 @@ fn qtdb_global_marks_against_annotator_1() {
     // (key, sensitivity floor %, |mean| ceiling ms, SD ceiling ms): measured
     // values with margins, see the crate report.
     let limits: [(&str, f64, f64, f64); 9] = [
-        ("p_on", 93.6, 1.6, 27.4),
-        ("p_end", 93.6, 4.0, 26.5),
-        ("qrs_on", 99.7, 1.9, 17.5),
-        ("qrs_end", 99.7, 3.5, 26.8),
-        ("t_peak", 97.3, 3.0, 48.2),
-        ("t_end", 99.4, 4.8, 61.9),
-        ("t_end_wavelet", 99.4, 4.8, 61.9),
-        ("t_end_tangent", 96.8, 6.3, 60.9),
-        ("t_end_area", 99.4, 4.5, 65.5),
+        ("p_on", 94.8, 0.8, 21.9),
+        ("p_end", 94.8, 4.8, 22.4),
+        ("qrs_on", 99.7, 1.6, 13.7),
+        ("qrs_end", 99.7, 4.5, 22.1),
+        ("t_peak", 99.4, 8.4, 36.7),
+        ("t_end", 99.4, 5.8, 43.3),
+        ("t_end_wavelet", 99.4, 5.8, 43.3),
+        ("t_end_tangent", 96.6, 5.4, 46.4),
+        ("t_end_area", 97.8, 1.7, 43.1),
     ];
     for (k, sens, mean, sd) in limits {
         let a = &t[k];
