@@ -1,4 +1,4 @@
-"""Regenerate pipeline.toml: the compiled defaults (`tendline config`) with each
+"""Regenerate pipeline.toml: the compiled defaults (`tendline config --defaults`) with each
 key's doc comment (meaning and unit) from the stage's config struct.
 
 Usage: python3 scripts/gen_pipeline_toml.py > pipeline.toml
@@ -59,7 +59,7 @@ def field_docs(path, struct):
 
 def main():
     text = subprocess.run(
-        [str(ROOT / "target/release/tendline"), "config"], check=True, capture_output=True, text=True
+        [str(ROOT / "target/release/tendline"), "config", "--defaults"], check=True, capture_output=True, text=True
     ).stdout
     out = [
         "# tendline pipeline configuration: every threshold and parameter of every stage.",

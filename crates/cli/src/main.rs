@@ -31,6 +31,25 @@ enum Command {
     Run(RunArgs),
     /// Score a run's annotation files against reference annotations and write a report.
     Validate(validate::ValidateArgs),
+    /// Build the offline over-read site (index by review priority, one page per record) of a run.
+    Review {
+        /// A finished run folder.
+        run: PathBuf,
+        /// Site folder (default: <RUN>/review).
+        #[arg(long)]
+        out: Option<PathBuf>,
+    },
+    /// Import a reader's corrections file into a run: corrected marks kept beside the
+    /// automatic ones with an audit trail, QT/QTc recomputed, outputs rewritten.
+    Apply {
+        /// A finished run folder.
+        run: PathBuf,
+        /// Corrections file (JSON) saved from the review pages.
+        corrections: PathBuf,
+        /// Reader's name for entries that do not carry one.
+        #[arg(long)]
+        who: Option<String>,
+    },
     /// Print the effective configuration (defaults, --config file and --set overrides) after validation.
     Config {
         /// Configuration file (TOML); default: the built-in pipeline.toml.
@@ -39,6 +58,9 @@ enum Command {
         /// Override one key, e.g. `--set detect.refractory_ms=200` (repeatable).
         #[arg(long = "set", value_name = "KEY=VALUE")]
         set: Vec<String>,
+        /// Print the compiled defaults instead (what pipeline.toml is generated from).
+        #[arg(long, conflicts_with_all = ["config", "set"])]
+        defaults: bool,
     },
 }
 
@@ -147,12 +169,41 @@ fn cmd_run(a: RunArgs) -> Result<ExitCode> {
     }
 }
 
+fn cmd_review(run: &std::path::Path, out: Option<PathBuf>) -> Result<ExitCode> {
+    let out = out.unwrap_or_else(|| run.join("review"));
+    let site = tendline_review::build_site(run, &out).with_context(|| format!("review of {}", run.display()))?;
+    for w in &site.warnings {
+        eprintln!("warning: {w}");
+    }
+    eprintln!("{} record page(s); open {}", site.pages.len(), site.index.display());
+    Ok(ExitCode::SUCCESS)
+}
+
+fn cmd_apply(run: &std::path::Path, corrections: &std::path::Path, who: Option<&str>) -> Result<ExitCode> {
+    let report = tendline_review::apply_corrections(run, corrections, who)
+        .with_context(|| format!("applying {} to {}", corrections.display(), run.display()))?;
+    run::rebuild_outputs(run)?;
+    eprintln!(
+        "{} correction(s) applied to {} record(s); results.h5 and CSV files rewritten; report: {}",
+        report.n_changes,
+        report.parts.len(),
+        report.report.display()
+    );
+    Ok(ExitCode::SUCCESS)
+}
+
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Run(a) => cmd_run(a),
         Command::Validate(a) => validate::cmd_validate(a),
-        Command::Config { config, set } => config::load(config.as_deref(), &set).map(|c| {
+        Command::Review { run, out } => cmd_review(&run, out),
+        Command::Apply { run, corrections, who } => cmd_apply(&run, &corrections, who.as_deref()),
+        Command::Config { defaults: true, .. } => {
+            print!("{}", config::PipelineConfig::default().to_toml());
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Config { config, set, .. } => config::load(config.as_deref(), &set).map(|c| {
             print!("{}", c.to_toml());
             ExitCode::SUCCESS
         }),

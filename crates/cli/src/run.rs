@@ -301,6 +301,61 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
     Ok(report)
 }
 
+/// Rewrite `results.h5`, `summary.csv`, `windows.csv` and `subjects.csv` of a finished
+/// run from its part files (after corrections were imported), under the run's own
+/// configuration and record list as recorded in `run.json`.
+pub fn rebuild_outputs(out: &Path) -> Result<()> {
+    let manifest_path = out.join("run.json");
+    let text = std::fs::read_to_string(&manifest_path)
+        .with_context(|| format!("{}: cannot read (not a run folder?)", manifest_path.display()))?;
+    let manifest: serde_json::Value =
+        serde_json::from_str(&text).with_context(|| format!("{}: not valid JSON", manifest_path.display()))?;
+    let config_toml = manifest["config_toml"].as_str().unwrap_or_default();
+    let config = crate::config::load_from_str(config_toml, "config of the run (run.json)", &[])?;
+    let ctx = Context::new(&config, None)?;
+    let mut report = RunReport {
+        outcomes: Vec::new(),
+        parts: Vec::new(),
+        seconds: manifest["seconds"].as_f64().unwrap_or(0.0),
+    };
+    for r in manifest["records"].as_array().into_iter().flatten() {
+        let name = r["record"].as_str().unwrap_or_default().to_string();
+        let input = RecordInput {
+            name: name.clone(),
+            path: PathBuf::from(r["path"].as_str().unwrap_or_default()),
+        };
+        let outcome = match r["status"].as_str() {
+            Some("failed") => Outcome::Failed {
+                error: r["detail"].as_str().unwrap_or_default().to_string(),
+            },
+            _ => {
+                let p = out.join("parts").join(format!("{name}.json"));
+                let part = Part::load(&p)?.with_context(|| format!("{}: part file missing", p.display()))?;
+                report.parts.push(brief(part));
+                Outcome::Reused
+            }
+        };
+        report.outcomes.push((input, outcome));
+    }
+    let opts = RunOptions {
+        records: report.outcomes.iter().map(|(r, _)| r.clone()).collect(),
+        out: out.to_path_buf(),
+        config,
+        subjects: Default::default(),
+        subjects_file: None,
+        jobs: 1,
+        force: false,
+        quiet: true,
+        csv_fs: None,
+    };
+    write_run_outputs(&opts, &ctx, &report)?;
+    let subj = tables::subject_results(&report.parts, &opts.config.measure.subject);
+    if !subj.is_empty() {
+        tables::write_subjects(out, &subj)?;
+    }
+    Ok(())
+}
+
 fn write_run_outputs(opts: &RunOptions, ctx: &Context, report: &RunReport) -> Result<()> {
     let mut root = Group::default();
     root.attr("tool", Attr::Text("tendline".into()));
