@@ -18,5 +18,6 @@ scripts/validate.sh --gate
 
 echo "== python cross-checks" >&2
 export TENDLINE_RUN_QTDB="$PWD/target/validation/qtdb"
+export TENDLINE_REPORT_QTDB="$PWD/target/validation/reports/qtdb/report.json"
 export TENDLINE_DATA="$PWD/../shared/data"
 .venv/bin/python -m pytest -q tests/python

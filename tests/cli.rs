@@ -222,9 +222,20 @@ fn review_site_and_corrections_round_trip_through_the_binary() {
     let inp = tempfile::tempdir().unwrap();
     let out = tempfile::tempdir().unwrap();
     for ext in ["hea", "dat"] {
-        std::fs::copy(root.join(format!("demo-signals/s01_base.{ext}")), inp.path().join(format!("s01_base.{ext}"))).unwrap();
+        std::fs::copy(
+            root.join(format!("demo-signals/s01_base.{ext}")),
+            inp.path().join(format!("s01_base.{ext}")),
+        )
+        .unwrap();
     }
-    let o = bin().arg("run").arg(inp.path()).arg("--out").arg(out.path()).arg("--quiet").output().unwrap();
+    let o = bin()
+        .arg("run")
+        .arg(inp.path())
+        .arg("--out")
+        .arg(out.path())
+        .arg("--quiet")
+        .output()
+        .unwrap();
     assert!(o.status.success(), "{}", text(&o));
     let o = bin().arg("review").arg(out.path()).output().unwrap();
     assert!(o.status.success(), "{}", text(&o));
@@ -232,13 +243,21 @@ fn review_site_and_corrections_round_trip_through_the_binary() {
     assert!(index.contains("s01_base"), "index lacks the record");
 
     // Move the QT lead's T end of window 0 by +10 samples (20 ms at 500 Hz).
-    let part: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(out.path().join("parts/s01_base.json")).unwrap()).unwrap();
+    let part: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(out.path().join("parts/s01_base.json")).unwrap(),
+    )
+    .unwrap();
     let w = &part["group"]["groups"]["windows"];
-    let lead_idx = w["datasets"]["qt_lead_index"]["data"]["I64"][0].as_i64().unwrap() as usize;
-    let lead = w["datasets"]["qt_lead"]["data"]["Text"][0].as_str().unwrap().to_string();
+    let lead_idx = w["datasets"]["qt_lead_index"]["data"]["I64"][0]
+        .as_i64()
+        .unwrap() as usize;
+    let lead = w["datasets"]["qt_lead"]["data"]["Text"][0]
+        .as_str()
+        .unwrap()
+        .to_string();
     let qt_before = w["datasets"]["qt_ms"]["data"]["F64"][0].as_f64().unwrap();
-    let t_end = w["groups"]["medians"]["groups"]["000"]["groups"]["marks"]["datasets"]["t_end"]["data"]["I64"][lead_idx]
+    let t_end = w["groups"]["medians"]["groups"]["000"]["groups"]["marks"]["datasets"]["t_end"]
+        ["data"]["I64"][lead_idx]
         .as_i64()
         .unwrap();
     let corr = serde_json::json!({
@@ -249,13 +268,23 @@ fn review_site_and_corrections_round_trip_through_the_binary() {
     });
     let cpath = out.path().join("corr.json");
     std::fs::write(&cpath, corr.to_string()).unwrap();
-    let o = bin().arg("apply").arg(out.path()).arg(&cpath).output().unwrap();
+    let o = bin()
+        .arg("apply")
+        .arg(out.path())
+        .arg(&cpath)
+        .output()
+        .unwrap();
     assert!(o.status.success(), "{}", text(&o));
     let windows = std::fs::read_to_string(out.path().join("windows.csv")).unwrap();
     let row: Vec<&str> = windows.lines().nth(1).unwrap().split(',').collect();
     let head: Vec<&str> = windows.lines().next().unwrap().split(',').collect();
-    let qt_after: f64 = row[head.iter().position(|h| *h == "qt_ms").unwrap()].parse().unwrap();
-    assert!((qt_after - (qt_before + 20.0)).abs() < 0.51, "QT {qt_before} -> {qt_after}");
+    let qt_after: f64 = row[head.iter().position(|h| *h == "qt_ms").unwrap()]
+        .parse()
+        .unwrap();
+    assert!(
+        (qt_after - (qt_before + 20.0)).abs() < 0.51,
+        "QT {qt_before} -> {qt_after}"
+    );
     assert!(out.path().join("corrections-report.md").is_file());
 
     // A file naming an unknown record is refused and changes nothing.
@@ -264,8 +293,16 @@ fn review_site_and_corrections_round_trip_through_the_binary() {
                      "old_sample": 1, "new_sample": 2, "reason": "r"}]});
     std::fs::write(&cpath, bad.to_string()).unwrap();
     let before = std::fs::read(out.path().join("parts/s01_base.json")).unwrap();
-    let o = bin().arg("apply").arg(out.path()).arg(&cpath).output().unwrap();
+    let o = bin()
+        .arg("apply")
+        .arg(out.path())
+        .arg(&cpath)
+        .output()
+        .unwrap();
     assert_eq!(o.status.code(), Some(2), "{}", text(&o));
     assert!(text(&o).contains("nope"), "{}", text(&o));
-    assert_eq!(std::fs::read(out.path().join("parts/s01_base.json")).unwrap(), before);
+    assert_eq!(
+        std::fs::read(out.path().join("parts/s01_base.json")).unwrap(),
+        before
+    );
 }

@@ -171,15 +171,24 @@ fn cmd_run(a: RunArgs) -> Result<ExitCode> {
 
 fn cmd_review(run: &std::path::Path, out: Option<PathBuf>) -> Result<ExitCode> {
     let out = out.unwrap_or_else(|| run.join("review"));
-    let site = tendline_review::build_site(run, &out).with_context(|| format!("review of {}", run.display()))?;
+    let site = tendline_review::build_site(run, &out)
+        .with_context(|| format!("review of {}", run.display()))?;
     for w in &site.warnings {
         eprintln!("warning: {w}");
     }
-    eprintln!("{} record page(s); open {}", site.pages.len(), site.index.display());
+    eprintln!(
+        "{} record page(s); open {}",
+        site.pages.len(),
+        site.index.display()
+    );
     Ok(ExitCode::SUCCESS)
 }
 
-fn cmd_apply(run: &std::path::Path, corrections: &std::path::Path, who: Option<&str>) -> Result<ExitCode> {
+fn cmd_apply(
+    run: &std::path::Path,
+    corrections: &std::path::Path,
+    who: Option<&str>,
+) -> Result<ExitCode> {
     let report = tendline_review::apply_corrections(run, corrections, who)
         .with_context(|| format!("applying {} to {}", corrections.display(), run.display()))?;
     run::rebuild_outputs(run)?;
@@ -198,7 +207,11 @@ fn main() -> ExitCode {
         Command::Run(a) => cmd_run(a),
         Command::Validate(a) => validate::cmd_validate(a),
         Command::Review { run, out } => cmd_review(&run, out),
-        Command::Apply { run, corrections, who } => cmd_apply(&run, &corrections, who.as_deref()),
+        Command::Apply {
+            run,
+            corrections,
+            who,
+        } => cmd_apply(&run, &corrections, who.as_deref()),
         Command::Config { defaults: true, .. } => {
             print!("{}", config::PipelineConfig::default().to_toml());
             Ok(ExitCode::SUCCESS)

@@ -306,10 +306,14 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
 /// configuration and record list as recorded in `run.json`.
 pub fn rebuild_outputs(out: &Path) -> Result<()> {
     let manifest_path = out.join("run.json");
-    let text = std::fs::read_to_string(&manifest_path)
-        .with_context(|| format!("{}: cannot read (not a run folder?)", manifest_path.display()))?;
-    let manifest: serde_json::Value =
-        serde_json::from_str(&text).with_context(|| format!("{}: not valid JSON", manifest_path.display()))?;
+    let text = std::fs::read_to_string(&manifest_path).with_context(|| {
+        format!(
+            "{}: cannot read (not a run folder?)",
+            manifest_path.display()
+        )
+    })?;
+    let manifest: serde_json::Value = serde_json::from_str(&text)
+        .with_context(|| format!("{}: not valid JSON", manifest_path.display()))?;
     let config_toml = manifest["config_toml"].as_str().unwrap_or_default();
     let config = crate::config::load_from_str(config_toml, "config of the run (run.json)", &[])?;
     let ctx = Context::new(&config, None)?;
@@ -330,7 +334,8 @@ pub fn rebuild_outputs(out: &Path) -> Result<()> {
             },
             _ => {
                 let p = out.join("parts").join(format!("{name}.json"));
-                let part = Part::load(&p)?.with_context(|| format!("{}: part file missing", p.display()))?;
+                let part = Part::load(&p)?
+                    .with_context(|| format!("{}: part file missing", p.display()))?;
                 report.parts.push(brief(part));
                 Outcome::Reused
             }

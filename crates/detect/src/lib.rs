@@ -61,7 +61,6 @@
 use serde::{Deserialize, Serialize};
 use tendline_params::{Checker, ParamError};
 
-
 mod fuse;
 pub mod label;
 mod pt;

@@ -51,7 +51,9 @@ pub(crate) fn moving_mean(x: &[f64], w: usize) -> Vec<f64> {
 /// for the high-pass transient to decay. `detect` has already checked the band
 /// against `fs`, so a failed design cannot happen here; it would leave `x` unfiltered.
 fn bandpass(x: &[f64], fs: f64, lo_hz: f64, hi_hz: f64, order: usize) -> Vec<f64> {
-    use tendline_dsp::filter::{butterworth_highpass_sos, butterworth_lowpass_sos, filtfilt_sos_padded};
+    use tendline_dsp::filter::{
+        butterworth_highpass_sos, butterworth_lowpass_sos, filtfilt_sos_padded,
+    };
     let mut sos = butterworth_highpass_sos(order, lo_hz, fs).unwrap_or_default();
     sos.extend(butterworth_lowpass_sos(order, hi_hz, fs).unwrap_or_default());
     let pad = (3.0 * fs / lo_hz).ceil() as usize;
@@ -61,7 +63,13 @@ fn bandpass(x: &[f64], fs: f64, lo_hz: f64, hi_hz: f64, order: usize) -> Vec<f64
 /// Band-pass, derivative (in mV/s, so values do not depend on `fs`), squaring
 /// and moving-window integration.
 pub(crate) fn lead_features(x: &[f64], fs: f64, cfg: &DetectConfig) -> LeadFeatures {
-    let bp = bandpass(x, fs, cfg.bandpass_low_hz, cfg.bandpass_high_hz, cfg.bandpass_order);
+    let bp = bandpass(
+        x,
+        fs,
+        cfg.bandpass_low_hz,
+        cfg.bandpass_high_hz,
+        cfg.bandpass_order,
+    );
     let n = bp.len();
     let mut d2 = vec![0.0; n];
     for i in 0..n {
