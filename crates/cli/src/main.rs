@@ -35,7 +35,7 @@ enum Command {
     Review {
         /// A finished run folder.
         run: PathBuf,
-        /// Site folder (default: <RUN>/review).
+        /// Site folder (default: `RUN/review`).
         #[arg(long)]
         out: Option<PathBuf>,
     },

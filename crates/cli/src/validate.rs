@@ -14,7 +14,7 @@ pub struct ValidateArgs {
     /// Folder with the reference records and annotation files (e.g. ../shared/data/qtdb).
     #[arg(long)]
     pub data: PathBuf,
-    /// Report folder (default: <RUN>/validation).
+    /// Report folder (default: `RUN/validation`).
     #[arg(long)]
     pub out: Option<PathBuf>,
     /// Which references to score against: auto (every kind present), beats, global, per-lead.
