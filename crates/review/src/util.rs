@@ -68,34 +68,7 @@ pub fn median_finite(v: impl Iterator<Item = f64>) -> f64 {
     tendline_measure::align::median(&mut v)
 }
 
-/// Current UTC time as ISO 8601 (`2026-12-02T06:05:44Z`).
-pub fn utc_now() -> String {
-    let secs = std::time::SystemTime::now()
-        .duration_since(std::time::UNIX_EPOCH)
-        .map(|d| d.as_secs() as i64)
-        .unwrap_or(0);
-    iso_from_unix(secs)
-}
-
-pub fn iso_from_unix(secs: i64) -> String {
-    let (days, rem) = (secs.div_euclid(86_400), secs.rem_euclid(86_400));
-    // Civil-from-days (H. Hinnant's public-domain algorithm).
-    let z = days + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z - era * 146_097;
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let d = doy - (153 * mp + 2) / 5 + 1;
-    let m = if mp < 10 { mp + 3 } else { mp - 9 };
-    let y = yoe + era * 400 + i64::from(m <= 2);
-    format!(
-        "{y:04}-{m:02}-{d:02}T{:02}:{:02}:{:02}Z",
-        rem / 3600,
-        rem % 3600 / 60,
-        rem % 60
-    )
-}
+pub use tendline_store::utc_now;
 
 /// `YYYY-MM-DDTHH:MM:SS[.fff]Z` with plausible field ranges (what browsers'
 /// `Date.toISOString()` writes).
@@ -157,6 +130,7 @@ pub fn ms(v: f64) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use tendline_store::iso_from_unix;
 
     #[test]
     fn iso_time_known_dates() {

@@ -11,9 +11,11 @@
 //! repository root.
 
 pub mod h5;
+pub mod time;
 pub mod tree;
 
 pub use h5::{write_results, ResultsWriter};
+pub use time::{iso_from_unix, utc_now};
 pub use tree::{Attr, Data, Dataset, Group};
 
 use std::path::{Path, PathBuf};
