@@ -53,6 +53,20 @@ fn demo_run_recovers_ground_truth() {
         stdout.contains("over-read by a qualified clinician"),
         "caution missing:\n{stdout}"
     );
+    // The printed table's header and rows have the same number of columns (S01 has no flags).
+    let head = stdout
+        .lines()
+        .find(|l| l.starts_with("subject"))
+        .expect("table header");
+    let row = stdout
+        .lines()
+        .find(|l| l.starts_with("S01"))
+        .expect("a subject row");
+    assert_eq!(
+        head.split_whitespace().count() - 1,
+        row.split_whitespace().count(),
+        "{head}\n{row}"
+    );
 
     let truth = read_csv(&root.join("demo-signals/truth.csv"));
     let got = read_csv(&out.path().join("summary.csv"));

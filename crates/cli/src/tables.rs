@@ -324,12 +324,13 @@ pub fn print_table(parts: &[Part], subjects: &[SubjectResult], formula: &str) ->
     } else {
         let _ = writeln!(
             s,
-            "{:<8} {:<3} {:<14} {:>6} {:>7} {:>7} {:>7}  flags",
+            "{:<8} {:<3} {:<14} {:>6} {:>7} {:>7} {:>7} {:>7}  flags",
             "subject",
             "sex",
             "timepoint",
             "HR",
             "QT",
+            "QTcB",
             qtc,
             &format!("Δ{qtc}")
         );
