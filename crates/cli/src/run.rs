@@ -347,7 +347,11 @@ pub fn rebuild_outputs(out: &Path) -> Result<()> {
         out: out.to_path_buf(),
         config,
         subjects: Default::default(),
-        subjects_file: None,
+        // Keep the subjects file of the original run on record (root attributes).
+        subjects_file: manifest["subjects_file"]
+            .as_str()
+            .map(PathBuf::from)
+            .filter(|p| p.is_file()),
         jobs: 1,
         force: false,
         quiet: true,
@@ -388,6 +392,6 @@ fn write_run_outputs(opts: &RunOptions, ctx: &Context, report: &RunReport) -> Re
     h5.finish()?;
     csv.write(&opts.out)?;
     tables::write_failures(&opts.out, &report.failures())?;
-    tables::write_manifest(&opts.out, ctx, report)?;
+    tables::write_manifest(&opts.out, ctx, report, opts.subjects_file.as_deref())?;
     Ok(())
 }

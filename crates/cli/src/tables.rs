@@ -198,7 +198,12 @@ pub fn write_failures(out: &Path, failures: &[(&crate::inputs::RecordInput, &str
 }
 
 /// `run.json`: what ran, under which config, with which outcome per record.
-pub fn write_manifest(out: &Path, ctx: &Context, report: &RunReport) -> Result<()> {
+pub fn write_manifest(
+    out: &Path,
+    ctx: &Context,
+    report: &RunReport,
+    subjects_file: Option<&Path>,
+) -> Result<()> {
     let records: Vec<serde_json::Value> = report
         .outcomes
         .iter()
@@ -218,6 +223,7 @@ pub fn write_manifest(out: &Path, ctx: &Context, report: &RunReport) -> Result<(
         "config_sha256": ctx.config_sha256,
         "config_toml": ctx.config_toml,
         "seconds": report.seconds,
+        "subjects_file": subjects_file.map(|p| p.display().to_string()),
         "records": records,
     });
     write_atomic(
