@@ -2,6 +2,7 @@
 //! configuration, hands work to the library stages and reports; nothing else.
 
 mod config;
+mod h5layout;
 mod inputs;
 mod measures;
 mod pipeline;

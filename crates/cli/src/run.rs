@@ -386,8 +386,10 @@ fn write_run_outputs(opts: &RunOptions, ctx: &Context, report: &RunReport) -> Re
         let path = opts.out.join("parts").join(format!("{}.json", p.record));
         let full = Part::load(&path)?
             .with_context(|| format!("{}: part file disappeared during the run", path.display()))?;
-        h5.add_record(&full.record, &full.group)?;
         csv.add(&full)?;
+        let mut g = full.group;
+        crate::h5layout::stack_medians(&mut g);
+        h5.add_record(&full.record, &g)?;
     }
     h5.finish()?;
     csv.write(&opts.out)?;

@@ -57,6 +57,19 @@ fn write_attr(loc: &hdf5::Location, path: &Path, name: &str, a: &Attr) -> Result
     .map_err(e)
 }
 
+fn nd<T: Clone>(
+    path: &Path,
+    shape: &[usize],
+    values: &[T],
+) -> Result<ndarray::ArrayD<T>, StoreError> {
+    ndarray::ArrayD::from_shape_vec(ndarray::IxDyn(shape), values.to_vec()).map_err(|e| {
+        StoreError::Invalid {
+            path: path.to_path_buf(),
+            message: format!("array of shape {shape:?} with {} values: {e}", values.len()),
+        }
+    })
+}
+
 fn write_group(g: &hdf5::Group, path: &Path, tree: &Group) -> Result<(), StoreError> {
     let e = h5err(path);
     for (name, a) in &tree.attrs {
@@ -80,6 +93,15 @@ fn write_group(g: &hdf5::Group, path: &Path, tree: &Group) -> Result<(), StoreEr
                 let arr = ndarray::Array2::from_shape_vec((rows, *cols), values.clone())
                     .expect("rows * cols == len by construction");
                 b.with_data(&arr).create(name.as_str())
+            }
+            Data::I64Nd { shape, values } => {
+                b.with_data(&nd(path, shape, values)?).create(name.as_str())
+            }
+            Data::F64Nd { shape, values } => {
+                b.with_data(&nd(path, shape, values)?).create(name.as_str())
+            }
+            Data::F32Nd { shape, values } => {
+                b.with_data(&nd(path, shape, values)?).create(name.as_str())
             }
         }
         .map_err(&e)?;
@@ -204,6 +226,13 @@ mod tests {
                 values: vec![1.0, 2.0, 3.0, 4.0],
             },
         );
+        r.dataset(
+            "cube",
+            Data::F32Nd {
+                shape: vec![2, 1, 3],
+                values: vec![0.0, 1.0, 2.0, 3.0, 4.0, 5.0],
+            },
+        );
         write_results(&p, &root).unwrap();
         let f = hdf5::File::open(&p).unwrap();
         let q: Vec<i64> = f
@@ -222,6 +251,10 @@ mod tests {
         assert_eq!(fs, 250.0);
         let shape = f.dataset("records/rec1/m").unwrap().shape();
         assert_eq!(shape, vec![2, 2]);
+        let cube = f.dataset("records/rec1/cube").unwrap();
+        assert_eq!(cube.shape(), vec![2, 1, 3]);
+        let v: Vec<f32> = cube.read_raw().unwrap();
+        assert_eq!(v, vec![0.0, 1.0, 2.0, 3.0, 4.0, 5.0]);
         // Only the final file remains.
         assert_eq!(std::fs::read_dir(d.path()).unwrap().count(), 1);
     }

@@ -87,6 +87,21 @@ pub enum Data {
         #[serde(with = "nan_null")]
         values: Vec<f32>,
     },
+    /// N-dimensional arrays, row-major (C order), `values.len()` = product of `shape`.
+    I64Nd {
+        shape: Vec<usize>,
+        values: Vec<i64>,
+    },
+    F64Nd {
+        shape: Vec<usize>,
+        #[serde(with = "nan_null")]
+        values: Vec<f64>,
+    },
+    F32Nd {
+        shape: Vec<usize>,
+        #[serde(with = "nan_null")]
+        values: Vec<f32>,
+    },
 }
 
 impl Data {
@@ -98,6 +113,9 @@ impl Data {
             Data::F32(v) => v.len(),
             Data::Text(v) => v.len(),
             Data::F32Matrix { cols, values } => values.len().checked_div(*cols).unwrap_or(0),
+            Data::I64Nd { shape, .. } | Data::F64Nd { shape, .. } | Data::F32Nd { shape, .. } => {
+                shape.first().copied().unwrap_or(0)
+            }
         }
     }
 }
