@@ -92,20 +92,16 @@ fn input_files(input: &RecordInput) -> Vec<PathBuf> {
         .extension()
         .is_some_and(|e| e.eq_ignore_ascii_case("hea"))
     {
-        if let Ok(text) = std::fs::read_to_string(&input.path) {
-            let dir = input.path.parent().unwrap_or(Path::new("."));
-            let mut lines = text
-                .lines()
-                .map(str::trim)
-                .filter(|l| !l.is_empty() && !l.starts_with('#'));
-            let _record_line = lines.next();
-            for l in lines {
-                if let Some(f) = l.split_whitespace().next() {
-                    let p = dir.join(f);
-                    if f != "~" && !files.contains(&p) && p.is_file() {
-                        files.push(p);
-                    }
-                }
+        // The formats crate's header parser decides which names are signal files;
+        // a header it cannot parse is left for the reader to report.
+        let dir = input.path.parent().unwrap_or(Path::new("."));
+        let header = std::fs::read_to_string(&input.path)
+            .ok()
+            .and_then(|t| tendline_formats::wfdb::parse_header(&t, &input.path).ok());
+        for sig in header.iter().flat_map(|h| &h.signals) {
+            let p = dir.join(&sig.file_name);
+            if !files.contains(&p) && p.is_file() {
+                files.push(p);
             }
         }
     }
