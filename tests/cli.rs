@@ -268,6 +268,11 @@ fn review_site_and_corrections_round_trip_through_the_binary() {
     });
     let cpath = out.path().join("corr.json");
     std::fs::write(&cpath, corr.to_string()).unwrap();
+    let ann = out.path().join("annotations");
+    let run_files: Vec<Vec<u8>> = ["mark", "leadmark"]
+        .iter()
+        .map(|e| std::fs::read(ann.join(format!("s01_base.{e}"))).unwrap())
+        .collect();
     let o = bin()
         .arg("apply")
         .arg(out.path())
@@ -275,6 +280,18 @@ fn review_site_and_corrections_round_trip_through_the_binary() {
         .output()
         .unwrap();
     assert!(o.status.success(), "{}", text(&o));
+    // The annotation files rebuilt from the part are the run's own files, byte for
+    // byte: kept as the automatic copies, and unchanged by a median-beat correction.
+    for (e, bytes) in ["mark", "leadmark"].iter().zip(&run_files) {
+        assert_eq!(
+            &std::fs::read(ann.join(format!("auto/s01_base.{e}"))).unwrap(),
+            bytes
+        );
+        assert_eq!(
+            &std::fs::read(ann.join(format!("s01_base.{e}"))).unwrap(),
+            bytes
+        );
+    }
     let windows = std::fs::read_to_string(out.path().join("windows.csv")).unwrap();
     let row: Vec<&str> = windows.lines().nth(1).unwrap().split(',').collect();
     let head: Vec<&str> = windows.lines().next().unwrap().split(',').collect();

@@ -45,7 +45,7 @@ enum Command {
     Apply {
         /// A finished run folder.
         run: PathBuf,
-        /// Corrections file (JSON) saved from the review pages.
+        /// Corrections file saved from the review pages: JSON, or CSV (`.csv`, same fields as columns).
         corrections: PathBuf,
         /// Reader's name for entries that do not carry one.
         #[arg(long)]
@@ -194,9 +194,10 @@ fn cmd_apply(
         .with_context(|| format!("applying {} to {}", corrections.display(), run.display()))?;
     run::rebuild_outputs(run)?;
     eprintln!(
-        "{} correction(s) applied to {} record(s); results.h5 and CSV files rewritten; report: {}",
+        "{} correction(s) applied to {} record(s); results.h5, CSV tables and {} annotation file(s) rewritten; report: {}",
         report.n_changes,
         report.parts.len(),
+        report.annotations.len(),
         report.report.display()
     );
     Ok(ExitCode::SUCCESS)

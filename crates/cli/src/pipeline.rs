@@ -8,7 +8,9 @@ use std::path::Path;
 use tendline_delineate::{BeatMarks, Mark, TEndMethod, TMorphology};
 use tendline_detect::Detection;
 use tendline_dsp::filter::FilterCache;
-use tendline_formats::annotation::{code_of, write_annotations, Annotation};
+use tendline_formats::annotation::{
+    boundary_annotations, write_annotations, Annotation, WaveMarks,
+};
 use tendline_formats::subjects::SubjectRow;
 use tendline_formats::Record;
 use tendline_store::{Attr, Data, Group};
@@ -306,25 +308,6 @@ pub fn marks_group(g: &mut Group, beats: &[BeatMarks]) {
     );
 }
 
-fn ann(sample: usize, symbol: &str, chan: u8, aux: Option<&str>) -> Annotation {
-    Annotation {
-        sample: sample as i64,
-        code: code_of(symbol).expect("standard WFDB symbol"),
-        subtype: 0,
-        chan,
-        num: 0,
-        aux: aux.map(|s| s.as_bytes().to_vec()),
-    }
-}
-
-type Wave<'a> = (
-    Option<Mark>,
-    Option<Mark>,
-    Option<Mark>,
-    &'a str,
-    Option<&'a str>,
-);
-
 /// The open databases' boundary convention: `(` onset, peak mark, `)` end, per wave.
 pub fn beat_annotations(
     beats: &[BeatMarks],
@@ -332,43 +315,40 @@ pub fn beat_annotations(
     labels: &[&str],
     chan: u8,
 ) -> Vec<Annotation> {
-    let mut out = Vec::new();
-    for (i, b) in beats.iter().enumerate() {
-        // (onset, peak, end, peak symbol, aux text of the end mark)
-        let waves: [Wave; 3] = [
-            (b.p_on, b.p_peak, b.p_end, "p", None),
-            (
-                b.qrs_on,
-                b.qrs_peak.or(Some(Mark {
-                    sample: qrs[i],
-                    confidence: 0.0,
-                })),
-                b.qrs_end,
-                labels[i],
-                None,
-            ),
-            (
-                b.t_on,
-                b.t_peak,
-                b.t_end,
-                "t",
-                Some(method_name(b.t_end_method)),
-            ),
-        ];
-        for (on, peak, end, sym, end_aux) in waves {
-            let Some(peak) = peak else { continue };
-            if let Some(on) = on {
-                out.push(ann(on.sample, "(", chan, None));
-            }
-            out.push(ann(peak.sample, sym, chan, None));
-            if let Some(end) = end {
-                out.push(ann(end.sample, ")", chan, end_aux));
-            }
-        }
-    }
-    // Waves of neighbouring beats can overlap at fast rates; the format needs time order.
-    out.sort_by_key(|a| a.sample);
-    out
+    let s = |m: Option<Mark>| m.map(|m| m.sample as i64);
+    let waves: Vec<WaveMarks> = beats
+        .iter()
+        .enumerate()
+        .flat_map(|(i, b)| {
+            [
+                WaveMarks {
+                    onset: s(b.p_on),
+                    peak: s(b.p_peak),
+                    end: s(b.p_end),
+                    symbol: "p".into(),
+                    peak_aux: None,
+                    end_aux: None,
+                },
+                WaveMarks {
+                    onset: s(b.qrs_on),
+                    peak: Some(s(b.qrs_peak).unwrap_or(qrs[i] as i64)),
+                    end: s(b.qrs_end),
+                    symbol: labels[i].into(),
+                    peak_aux: None,
+                    end_aux: None,
+                },
+                WaveMarks {
+                    onset: s(b.t_on),
+                    peak: s(b.t_peak),
+                    end: s(b.t_end),
+                    symbol: "t".into(),
+                    peak_aux: None,
+                    end_aux: Some(method_name(b.t_end_method).into()),
+                },
+            ]
+        })
+        .collect();
+    boundary_annotations(&waves, chan)
 }
 
 /// Write `<record>.mark` and `<record>.leadmark` into `dir`.

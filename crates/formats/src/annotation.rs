@@ -493,6 +493,61 @@ pub fn encode_annotation_file(file: &AnnotationFile) -> Result<Vec<u8>, String> 
     Ok(out)
 }
 
+/// One wave of one beat in the open databases' boundary convention: `(` at the
+/// onset, the peak mark (`symbol`), `)` at the end. Samples are absolute; a wave
+/// without a peak is not written.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WaveMarks {
+    pub onset: Option<i64>,
+    pub peak: Option<i64>,
+    pub end: Option<i64>,
+    /// Peak symbol: `p`, `t`, or the beat's code for the QRS (`N`, `V`, `Q`...).
+    pub symbol: String,
+    /// Aux text of the peak mark (e.g. why a beat is unclassifiable).
+    pub peak_aux: Option<String>,
+    /// Aux text of the end mark (e.g. the T-end method).
+    pub end_aux: Option<String>,
+}
+
+/// The annotations of `waves` on channel `chan`, sorted by sample (waves of
+/// neighbouring beats overlap at fast rates, and the format needs time order).
+/// Negative samples are dropped.
+pub fn boundary_annotations<'a>(
+    waves: impl IntoIterator<Item = &'a WaveMarks>,
+    chan: u8,
+) -> Vec<Annotation> {
+    let mk = |sample: i64, symbol: &str, aux: Option<&String>| {
+        let mut a = Annotation::new(sample, symbol);
+        a.chan = chan;
+        if let Some(t) = aux.filter(|t| !t.is_empty()) {
+            match &mut a.aux {
+                // An unknown symbol already carries itself as aux text.
+                Some(v) => {
+                    v.push(b' ');
+                    v.extend_from_slice(t.as_bytes());
+                }
+                None => a.aux = Some(t.as_bytes().to_vec()),
+            }
+        }
+        a
+    };
+    let mut out = Vec::new();
+    for w in waves {
+        let Some(peak) = w.peak.filter(|&s| s >= 0) else {
+            continue;
+        };
+        if let Some(on) = w.onset.filter(|&s| s >= 0) {
+            out.push(mk(on, "(", None));
+        }
+        out.push(mk(peak, &w.symbol, w.peak_aux.as_ref()));
+        if let Some(end) = w.end.filter(|&s| s >= 0) {
+            out.push(mk(end, ")", w.end_aux.as_ref()));
+        }
+    }
+    out.sort_by_key(|a| a.sample);
+    out
+}
+
 /// Write annotations to an MIT-format file, atomically (temporary file in the
 /// same directory, then rename). Annotations must be sorted by sample.
 pub fn write_annotations(path: &Path, anns: &[Annotation]) -> Result<(), FormatError> {
@@ -579,5 +634,43 @@ mod tests {
         let a = Annotation::new(5, "Zz");
         assert_eq!(a.code, NOTE);
         assert_eq!(a.aux.as_deref(), Some(&b"Zz"[..]));
+    }
+
+    #[test]
+    fn boundary_convention_orders_waves_and_skips_peakless_ones() {
+        // QTDB's convention (common practice): `(` onset, peak symbol, `)` end.
+        let w = |on, peak, end, sym: &str, end_aux: Option<&str>| WaveMarks {
+            onset: on,
+            peak,
+            end,
+            symbol: sym.into(),
+            peak_aux: None,
+            end_aux: end_aux.map(String::from),
+        };
+        let waves = [
+            w(Some(100), Some(110), Some(120), "N", None),
+            w(Some(180), Some(230), Some(260), "t", Some("tangent")),
+            w(Some(60), Some(70), Some(80), "p", None),
+            w(Some(300), None, Some(320), "p", None),
+        ];
+        let a = boundary_annotations(&waves, 3);
+        let got: Vec<(i64, &str)> = a.iter().map(|a| (a.sample, a.symbol())).collect();
+        assert_eq!(
+            got,
+            [
+                (60, "("),
+                (70, "p"),
+                (80, ")"),
+                (100, "("),
+                (110, "N"),
+                (120, ")"),
+                (180, "("),
+                (230, "t"),
+                (260, ")")
+            ]
+        );
+        assert!(a.iter().all(|a| a.chan == 3));
+        assert_eq!(a[8].aux_text().as_deref(), Some("tangent"));
+        assert!(encode_annotations(&a).is_ok());
     }
 }

@@ -2,7 +2,7 @@
 //! corrected marks beside the automatic ones, recomputed intervals, an audit table
 //! and a report. See the crate docs for what is written where.
 
-use crate::corrections::{self, Checked, FIDUCIALS};
+use crate::corrections::{self, Checked, Kind, FIDUCIALS};
 use crate::run::Run;
 use crate::util::{attr_f64, attr_text, data_at, f64s, i64s, median_finite, texts, utc_now};
 use crate::ReviewError;
@@ -12,7 +12,7 @@ use std::path::{Path, PathBuf};
 use tendline_delineate::{BeatMarks, Mark};
 use tendline_formats::Sex;
 use tendline_measure::{global, qtc, Formula, LeadMeasure, MeasureConfig, QtRule};
-use tendline_store::{Attr, Data, Group, Part};
+use tendline_store::{Attr, Data, Group};
 
 /// QT and QTc of one window before and after the import.
 #[derive(Debug, Clone, PartialEq)]
@@ -39,6 +39,8 @@ pub struct ApplyReport {
     pub n_changes: usize,
     /// Part files rewritten.
     pub parts: Vec<PathBuf>,
+    /// Annotation files rewritten (`annotations/<record>.mark` and `.leadmark`).
+    pub annotations: Vec<PathBuf>,
     pub windows: Vec<WindowChange>,
     /// `corrections-report.md` in the run directory.
     pub report: PathBuf,
@@ -84,7 +86,7 @@ const RECORD_ATTRS: [&str; 15] = [
 ];
 
 /// Window flags in the order the run writes them, then the reader's.
-const FLAG_ORDER: [&str; 9] = [
+const FLAG_ORDER: [&str; 10] = [
     "irregular",
     "wide_qrs",
     "sex_unknown",
@@ -94,6 +96,7 @@ const FLAG_ORDER: [&str; 9] = [
     "unreadable_noise",
     "corrected",
     "unreadable_reader",
+    "beat_unreadable_reader",
 ];
 
 /// Import the corrections file `corrections` into the run at `run_dir`.
@@ -118,8 +121,11 @@ pub fn apply_corrections(
     for c in &checked {
         by_record.entry(&c.record).or_default().push(c);
     }
-    let mut new_parts: Vec<(PathBuf, Part)> = Vec::new();
+    let mut files: Vec<(PathBuf, Vec<u8>)> = Vec::new();
+    let mut part_paths = Vec::new();
+    let mut annotations = Vec::new();
     let mut windows = Vec::new();
+    let ann_dir = run.dir.join("annotations");
     for (record, changes) in &by_record {
         let mut part = parts[*record].clone();
         let path = run.part_path(record);
@@ -138,49 +144,124 @@ pub fn apply_corrections(
             )
             .map_err(invalid)?,
         );
-        new_parts.push((path, part));
+        // The annotation files follow the current marks; the automatic ones are kept
+        // under annotations/auto/ (written once, at the first import).
+        for (auto_dir, corrected) in [(ann_dir.join("auto"), false), (ann_dir.clone(), true)] {
+            let (marks, leadmarks) = crate::annotations::of_part(&part.group, corrected);
+            for (ext, anns) in [("mark", marks), ("leadmark", leadmarks)] {
+                let p = auto_dir.join(format!("{record}.{ext}"));
+                if !corrected && p.exists() {
+                    continue;
+                }
+                let bytes =
+                    tendline_formats::annotation::encode_annotations(&anns).map_err(|m| {
+                        ReviewError::Invalid {
+                            path: p.clone(),
+                            message: m,
+                        }
+                    })?;
+                if corrected {
+                    annotations.push(p.clone());
+                }
+                files.push((p, bytes));
+            }
+        }
+        let bytes = serde_json::to_vec(&part).map_err(|e| invalid(e.to_string()))?;
+        part_paths.push(path.clone());
+        files.push((path, bytes));
     }
-    commit(&new_parts)?;
+    commit(&files)?;
 
     let report = run.dir.join("corrections-report.md");
     let text = report_text(corrections, &checked, &windows, &now, &cfg);
     tendline_store::write_atomic(&report, text.as_bytes())?;
     Ok(ApplyReport {
         n_changes: checked.len(),
-        parts: new_parts.into_iter().map(|(p, _)| p).collect(),
+        parts: part_paths,
+        annotations,
         windows,
         report,
     })
 }
 
-/// Write every part to its temporary sibling, then rename them all: a failure while
-/// writing leaves every part as it was.
-fn commit(parts: &[(PathBuf, Part)]) -> Result<(), ReviewError> {
-    let mut tmps = Vec::new();
-    for (path, part) in parts {
-        let tmp = path.with_file_name(format!(
-            ".{}.review-tmp-{}",
+/// Write every file to a temporary sibling, then rename them all: a failure while
+/// writing leaves every file as it was. A failed rename (rare: the temporaries are in
+/// the same folders) puts back the files already renamed from their backups.
+fn commit(files: &[(PathBuf, Vec<u8>)]) -> Result<(), ReviewError> {
+    let sibling = |path: &Path, what: &str| {
+        path.with_file_name(format!(
+            ".{}.{what}-{}",
             path.file_name()
                 .map(|n| n.to_string_lossy())
                 .unwrap_or_default(),
             std::process::id()
-        ));
-        if let Err(e) = part.save(&tmp) {
-            for t in &tmps {
-                let _ = std::fs::remove_file(t);
-            }
+        ))
+    };
+    let io = |path: &Path| {
+        let path = path.to_path_buf();
+        move |source| ReviewError::Io { path, source }
+    };
+    let mut tmps: Vec<PathBuf> = Vec::new();
+    let cleanup = |tmps: &[PathBuf]| {
+        for t in tmps {
+            let _ = std::fs::remove_file(t);
+        }
+    };
+    for (path, bytes) in files {
+        let tmp = sibling(path, "review-tmp");
+        let r = path
+            .parent()
+            .map_or(Ok(()), std::fs::create_dir_all)
+            .and_then(|_| std::fs::write(&tmp, bytes));
+        if let Err(e) = r {
             let _ = std::fs::remove_file(&tmp);
-            return Err(e.into());
+            cleanup(&tmps);
+            return Err(io(path)(e));
         }
         tmps.push(tmp);
     }
-    for ((path, _), tmp) in parts.iter().zip(&tmps) {
-        std::fs::rename(tmp, path).map_err(|source| ReviewError::Io {
-            path: path.clone(),
-            source,
-        })?;
+    // Backups (hard links, so nothing is copied) let a failed rename be undone.
+    let mut backups: Vec<(PathBuf, Option<PathBuf>)> = Vec::new();
+    for ((path, _), tmp) in files.iter().zip(&tmps) {
+        let backup = path.exists().then(|| sibling(path, "review-bak"));
+        if let Some(b) = &backup {
+            let _ = std::fs::remove_file(b);
+            if let Err(e) = std::fs::hard_link(path, b) {
+                cleanup(&tmps);
+                undo(&backups);
+                return Err(io(path)(e));
+            }
+        }
+        if let Err(e) = std::fs::rename(tmp, path) {
+            if let Some(b) = &backup {
+                let _ = std::fs::remove_file(b);
+            }
+            cleanup(&tmps);
+            undo(&backups);
+            return Err(io(path)(e));
+        }
+        backups.push((path.clone(), backup));
+    }
+    for (_, b) in backups {
+        if let Some(b) = b {
+            let _ = std::fs::remove_file(b);
+        }
     }
     Ok(())
+}
+
+/// Put back the files of a partly renamed commit.
+fn undo(done: &[(PathBuf, Option<PathBuf>)]) {
+    for (path, backup) in done.iter().rev() {
+        match backup {
+            Some(b) => {
+                let _ = std::fs::rename(b, path);
+            }
+            None => {
+                let _ = std::fs::remove_file(path);
+            }
+        }
+    }
 }
 
 fn f64_col(g: &Group, name: &str) -> Vec<f64> {
@@ -251,10 +332,33 @@ fn apply_record(
     }
 
     let mut by_window: BTreeMap<usize, Vec<&Checked>> = BTreeMap::new();
+    let mut beat_changes = Vec::new();
     for c in changes {
-        by_window.entry(c.window).or_default().push(c);
+        match (c.kind.is_beat(), c.window) {
+            (true, _) => beat_changes.push(*c),
+            (false, Some(w)) => by_window.entry(w).or_default().push(c),
+            (false, None) => return Err("a window change without a window".into()),
+        }
     }
     let mut out = Vec::new();
+    for w in apply_beats(g, &beat_changes)? {
+        if by_window.contains_key(&w) {
+            continue; // recomputed below, which adds the flag
+        }
+        let wg = g
+            .groups
+            .get_mut("windows")
+            .ok_or("record has no windows/ group")?;
+        let mut flags: Vec<String> = texts(wg, "flags")
+            .and_then(|v| v.get(w).cloned())
+            .unwrap_or_default()
+            .split(';')
+            .filter(|f| !f.is_empty())
+            .map(String::from)
+            .collect();
+        flags.push("beat_unreadable_reader".into());
+        set_text(wg, "flags", w, order_flags(flags).join(";"));
+    }
     for (&w, chs) in &by_window {
         let mdir = format!("{w:03}");
         let wg = g
@@ -268,7 +372,7 @@ fn apply_record(
             .ok_or(format!("windows/medians/{mdir} is missing"))?;
         let n_leads = i64s(mg, "usable").map_or(0, |v| v.len());
         for c in chs {
-            if c.unreadable {
+            if c.kind == Kind::Unreadable {
                 mg.group("corrected").attr("unreadable", Attr::Int(1));
                 continue;
             }
@@ -311,6 +415,81 @@ fn apply_record(
     recompute_record(g, sex, cfg);
     append_audit(g, changes, now, importer);
     Ok(out)
+}
+
+/// Per-beat changes: corrected marks beside the automatic ones
+/// (`marks/corrected/global/<fiducial>`, `marks/corrected/leads/<LL>/<fiducial>`) and
+/// `beats/unreadable_reader`. Returns the windows holding a beat newly marked unreadable.
+fn apply_beats(g: &mut Group, changes: &[&Checked]) -> Result<Vec<usize>, String> {
+    let n_beats = i64s(g, "beats/qrs_peak").map_or(0, <[i64]>::len);
+    let mut windows = Vec::new();
+    for c in changes {
+        let beat = c.beat.ok_or("a beat change without a beat")?;
+        if c.kind == Kind::BeatUnreadable {
+            let bg = g.group("beats");
+            let d = bg
+                .datasets
+                .entry("unreadable_reader".to_string())
+                .or_insert_with(|| tendline_store::Dataset {
+                    data: Data::I64(vec![0; n_beats]),
+                    attrs: BTreeMap::new(),
+                });
+            if let Data::I64(v) = &mut d.data {
+                if let Some(x) = v.get_mut(beat) {
+                    *x = 1;
+                }
+            }
+            windows.extend(c.window);
+            continue;
+        }
+        let (auto_dir, sub) = match &c.lead {
+            None => ("marks/global".to_string(), "global".to_string()),
+            Some((li, _)) => (format!("marks/leads/{li:02}"), format!("leads/{li:02}")),
+        };
+        let auto = i64s(g, &format!("{auto_dir}/{}", c.fiducial))
+            .map(<[i64]>::to_vec)
+            .ok_or(format!("{auto_dir}/{} is missing", c.fiducial))?;
+        let mut cg = g.group("marks").group("corrected");
+        for s in sub.split('/') {
+            cg = cg.group(s);
+        }
+        let d = cg
+            .datasets
+            .entry(c.fiducial.clone())
+            .or_insert_with(|| tendline_store::Dataset {
+                data: Data::I64(auto),
+                attrs: [("units".to_string(), Attr::Text("sample".into()))].into(),
+            });
+        if let Data::I64(v) = &mut d.data {
+            if let Some(x) = v.get_mut(beat) {
+                *x = c.new_sample;
+            }
+        }
+    }
+    windows.sort_unstable();
+    windows.dedup();
+    Ok(windows)
+}
+
+/// Beats of window `w` the reader marked unreadable.
+fn beats_unreadable_in(g: &Group, w: usize) -> usize {
+    let (Some(fs), Some(start), Some(end)) = (
+        attr_f64(g, "fs"),
+        f64s(g, "windows/start_s").and_then(|v| v.get(w).copied()),
+        f64s(g, "windows/end_s").and_then(|v| v.get(w).copied()),
+    ) else {
+        return 0;
+    };
+    let peaks = i64s(g, "beats/qrs_peak").unwrap_or(&[]);
+    let flags = i64s(g, "beats/unreadable_reader").unwrap_or(&[]);
+    peaks
+        .iter()
+        .zip(flags)
+        .filter(|(&p, &u)| {
+            let t = p as f64 / fs;
+            u != 0 && t >= start && t < end
+        })
+        .count()
 }
 
 fn window_unreadable(g: &Group, w: usize) -> bool {
@@ -465,6 +644,7 @@ fn recompute_window(
     }
 
     let names: Vec<String> = crate::util::attr_texts(g, "leads").unwrap_or(&[]).to_vec();
+    let n_beats_unreadable = beats_unreadable_in(g, w);
     let wg = g
         .groups
         .get_mut("windows")
@@ -481,6 +661,9 @@ fn recompute_window(
         .collect();
     flags.push("corrected".into());
 
+    if n_beats_unreadable > 0 {
+        flags.push("beat_unreadable_reader".into());
+    }
     let (qt, qt_lead, qt_longest, qt_sup, qrs, pr) = if unreadable {
         flags.push("unreadable_reader".into());
         (None, None, None, None, None, None)
@@ -639,7 +822,12 @@ fn recompute_record(g: &mut Group, sex: Option<Sex>, cfg: &MeasureConfig) {
             flags.push(f.to_string());
         }
     }
-    for f in ["unreadable_noise", "corrected", "unreadable_reader"] {
+    for f in [
+        "unreadable_noise",
+        "corrected",
+        "unreadable_reader",
+        "beat_unreadable_reader",
+    ] {
         if any(f) {
             flags.push(f.into());
         }
@@ -688,10 +876,7 @@ fn append_audit(g: &mut Group, changes: &[&Checked], now: &str, importer: &str) 
     );
     push_text(
         "kind",
-        changes
-            .iter()
-            .map(|c| if c.unreadable { "unreadable" } else { "mark" }.into())
-            .collect(),
+        changes.iter().map(|c| c.kind.as_str().into()).collect(),
     );
     push_text("who", changes.iter().map(|c| c.who.clone()).collect());
     push_text("when", changes.iter().map(|c| c.when.clone()).collect());
@@ -720,7 +905,18 @@ fn append_audit(g: &mut Group, changes: &[&Checked], now: &str, importer: &str) 
     };
     push_int(
         "window",
-        changes.iter().map(|c| c.window as i64).collect(),
+        changes
+            .iter()
+            .map(|c| c.window.map_or(-1, |w| w as i64))
+            .collect(),
+        None,
+    );
+    push_int(
+        "beat",
+        changes
+            .iter()
+            .map(|c| c.beat.map_or(-1, |b| b as i64))
+            .collect(),
         None,
     );
     push_int(
@@ -756,27 +952,37 @@ fn report_text(
     let _ = writeln!(s, "## Changes\n");
     let _ = writeln!(
         s,
-        "| # | record | window | lead | mark | old sample | new sample | who | when | reason |"
+        "| # | record | kind | window | beat | lead | mark | old sample | new sample | who | when | reason |"
     );
-    let _ = writeln!(s, "|---|---|---|---|---|---|---|---|---|---|");
+    let _ = writeln!(s, "|---|---|---|---|---|---|---|---|---|---|---|---|");
+    let opt = |v: Option<usize>| v.map_or("—".to_string(), |v| v.to_string());
     for c in checked {
         let lead = c.lead.as_ref().map_or("global", |l| l.1.as_str());
-        let (o, n) = if c.unreadable {
+        let (o, n) = if c.kind.is_unreadable() {
             ("—".to_string(), "unreadable".to_string())
         } else {
             (c.old_sample.to_string(), c.new_sample.to_string())
         };
         let _ = writeln!(
             s,
-            "| {} | {} | {} | {} | {} | {o} | {n} | {} | {} | {} |",
+            "| {} | {} | {} | {} | {} | {} | {} | {o} | {n} | {} | {} | {} |",
             c.index,
             c.record,
-            c.window,
+            c.kind.as_str(),
+            opt(c.window),
+            opt(c.beat),
             lead,
             c.fiducial,
             md(&c.who),
             c.when,
             md(&c.reason)
+        );
+    }
+    let n_beat = checked.iter().filter(|c| c.kind.is_beat()).count();
+    if n_beat > 0 {
+        let _ = writeln!(
+            s,
+            "\n{n_beat} per-beat change(s): the annotation files `annotations/<record>.mark` and `.leadmark` now carry the corrected marks (the automatic files are kept in `annotations/auto/`); an unreadable beat keeps its QRS mark as `Q` (unclassifiable) and loses its wave boundaries. Window QT comes from the median beat, which is not rebuilt: windows holding a beat marked unreadable carry the flag `beat_unreadable_reader` so the reader can correct their median marks or mark them unreadable."
         );
     }
     let _ = writeln!(s, "\n## Windows recomputed\n");
@@ -841,7 +1047,9 @@ mod tests {
                 .iter()
                 .map(|r| r.record.clone())
             {
-                let Some(p) = Part::load(&dir.join(format!("parts/{rec}.json"))).unwrap() else {
+                let Some(p) =
+                    tendline_store::Part::load(&dir.join(format!("parts/{rec}.json"))).unwrap()
+                else {
                     continue;
                 };
                 let mut g = p.group.clone();

@@ -6,8 +6,10 @@
 //!   table, flags and the caution text). The pages are self-contained: inline CSS,
 //!   inline JavaScript and SVG, no server, no network.
 //! - On a record page the reader selects a mark (click), moves it by dragging or with
-//!   the arrow keys (one sample per key press), can mark a window unreadable, and
-//!   saves a corrections file (JSON, schema below) from the browser.
+//!   the arrow keys (one sample per key press), reverts it (`Backspace`, or the
+//!   revert buttons), can mark a window unreadable, and in the rhythm strip can move
+//!   the per-beat QRS onset and T end of each beat or mark a beat unreadable (`U`);
+//!   the corrections are saved from the browser as JSON or CSV (schema below).
 //! - [`apply_corrections`] validates the whole file against the run, then stores the
 //!   corrected marks beside the automatic ones, recomputes QT, QRS, PR, the four QTc
 //!   and the classification of the affected windows, appends an audit table, and
@@ -21,10 +23,12 @@
 //! - The ECG grid is 25 mm/s and 10 mm/mV with 1 mm minor and 5 mm major lines
 //!   (common practice); SVG user units are millimetres, so zooming scales only the
 //!   rendered size.
-//! - Only median-beat marks and whole windows can be corrected. Per-beat marks
-//!   (`marks/global`, `marks/leads`) and the annotation files `<record>.mark` /
-//!   `.leadmark` are left as the automatic run wrote them, because a median-beat
-//!   correction does not say where the marks of the individual beats lie.
+//! - Per-beat marks (`marks/global`, `marks/leads`) are record sample indices at
+//!   `fs`, as in the annotation files.
+//! - Median-beat corrections change the window's QT/QTc. Per-beat corrections change
+//!   the per-beat marks and the annotation files, not the window QT: the median beat
+//!   is not rebuilt, so a window holding a beat marked unreadable is flagged
+//!   `beat_unreadable_reader` for the reader to correct or declare unreadable.
 //!
 //! # Corrections file (JSON)
 //! ```json
@@ -40,15 +44,28 @@
 //!       "when": "2026-12-02T08:00:00Z" },
 //!     { "kind": "unreadable", "record": "s01_base", "window": 1, "lead": "global",
 //!       "fiducial": "window", "old_sample": null, "new_sample": null,
-//!       "reason": "baseline wander" }
+//!       "reason": "baseline wander" },
+//!     { "kind": "beat_mark", "record": "s01_base", "beat": 7, "lead": "global",
+//!       "fiducial": "t_end", "old_sample": 6120, "new_sample": 6141,
+//!       "reason": "T end before the end of the downslope" },
+//!     { "kind": "beat_unreadable", "record": "s01_base", "beat": 9, "lead": "global",
+//!       "fiducial": "beat", "reason": "electrode artefact" }
 //!   ]
 //! }
 //! ```
+//!
+//! The same entries may come as CSV (a file whose name ends in `.csv`): a header
+//! row naming columns from [`CSV_COLUMNS`] in any order (`record`, `lead` and
+//! `fiducial` required), one entry per row, empty cells for `null`; RFC 4180
+//! quoting. A CSV file has no file-level `who` or `created_utc`.
 //! - `format` must be `tendline-corrections`, `version` must be `1`; `who` and
 //!   `created_utc` of the file are optional defaults for the entries.
 //! - `kind`: `mark` (default when omitted) moves one median-beat mark; `unreadable`
 //!   declares a whole window unreadable (`lead` `global`, `fiducial` `window`,
-//!   samples `null`).
+//!   samples `null`); `beat_mark` moves one per-beat mark (`beat`: 0-based index
+//!   into `beats/qrs_peak`; `lead`: `global` or a lead name; samples are record
+//!   samples, `0 ≤ new_sample < n_samples` or `-1`); `beat_unreadable` declares one
+//!   beat unreadable (`lead` `global`, `fiducial` `beat`, samples `null`).
 //! - `record`: record name as in `run.json`; `window`: 0-based window index
 //!   (`windows/medians/<WWW>`); `lead`: lead name exactly as in the record.
 //! - `fiducial`: one of `p_on`, `p_peak`, `p_end`, `qrs_on`, `qrs_peak`, `qrs_end`,
@@ -58,7 +75,8 @@
 //!   mark, `0 ≤ new_sample < beat length`, or `-1` to delete the mark.
 //! - `who` (entry, else file, else the importer's name) and `when` (ISO 8601 UTC,
 //!   `YYYY-MM-DDTHH:MM:SSZ`; entry, else file `created_utc`, else the import time).
-//! - One entry per (record, window, lead, fiducial) and per unreadable window.
+//! - One entry per (record, window or beat, lead, fiducial), per unreadable window
+//!   and per unreadable beat.
 //!
 //! # What a correction changes in a part (`/records/<record>`)
 //! - `windows/medians/<WWW>/corrected/marks/<fiducial>`: the window's marks (one per
@@ -72,9 +90,20 @@
 //!   kept as attributes of `windows/auto`.
 //! - Corrected windows get the flag `corrected`; a window marked unreadable gets NaN
 //!   QT, QTc, JT, QRS and PR, QTc flag `unknown` and the flag `unreadable_reader`.
+//! - `marks/corrected/global/<fiducial>` and `marks/corrected/leads/<LL>/<fiducial>`:
+//!   the per-beat marks with the reader's values (one per beat); the automatic
+//!   `marks/global` and `marks/leads` are untouched. `beats/unreadable_reader`: 1 for
+//!   each beat the reader declared unreadable.
+//! - `annotations/<record>.mark` and `.leadmark` are rewritten with the current
+//!   marks (see the `annotations` module); the automatic files are kept as
+//!   `annotations/auto/<record>.mark` and `.leadmark` (written at the first import).
 //! - `corrections/`: audit table, one row per change (appended at each import):
-//!   `record`, `window`, `lead`, `fiducial`, `kind`, `old_sample`, `new_sample`,
-//!   `who`, `when`, `reason`, `applied_utc`, `applied_by`.
+//!   `record`, `window` (−1: none), `beat` (−1: none), `lead`, `fiducial`, `kind`,
+//!   `old_sample`, `new_sample`, `who`, `when`, `reason`, `applied_utc`, `applied_by`.
+//!
+//! Every file of an import (parts and annotation files) is written to a temporary
+//! sibling first and renamed only when all were written; a rename that fails puts
+//! back the files already renamed.
 //!
 //! Window QT after a correction follows the run's rule from `run.json`'s
 //! `[measure]` configuration through [`tendline_measure::global::combine`]
@@ -82,6 +111,7 @@
 //! superimposed leads), so a corrected lead is accepted or refused exactly as an
 //! automatic one would be.
 
+mod annotations;
 mod apply;
 mod corrections;
 mod run;
@@ -89,7 +119,7 @@ mod site;
 mod util;
 
 pub use apply::{apply_corrections, ApplyReport, WindowChange};
-pub use corrections::{Change, CorrectionsFile, FIDUCIALS, FORMAT, VERSION};
+pub use corrections::{Change, CorrectionsFile, Kind, CSV_COLUMNS, FIDUCIALS, FORMAT, VERSION};
 pub use site::{build_site, priority, Priority, SiteSummary};
 
 use std::path::PathBuf;
@@ -99,6 +129,8 @@ use std::path::PathBuf;
 pub enum ProblemKind {
     UnknownRecord,
     UnknownWindow,
+    /// A beat index the record does not have.
+    UnknownBeat,
     UnknownLead,
     UnknownFiducial,
     UnknownKind,

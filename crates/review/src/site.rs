@@ -219,6 +219,7 @@ svg.ecg{display:block;background:#fff}
 .mark.moved line.v{stroke-dasharray:1 0.6}
 .mark.sel line.v{stroke:#e36209;stroke-width:0.6}.mark.sel text{fill:#e36209;font-weight:bold}
 .mark:focus{outline:none}
+rect.beat{fill:transparent;cursor:pointer}rect.beat.on{fill:#e36209;fill-opacity:0.12}rect.beat.bad{fill:#d1242f;fill-opacity:0.25}
 #changes{font-size:12px}
 "#;
 
@@ -343,7 +344,7 @@ fn svg_open(w: f64, h: f64, px_per_mm: f64, extra: &str) -> String {
 /// The first seconds of a few leads, with the stretches the run found unreadable
 /// shaded and the global per-beat QRS onset and T end of the run as ticks (read-only).
 fn rhythm_strip(rec: &tendline_formats::Record, g: &Group) -> String {
-    let mut s = String::from("<h2>Rhythm strip (first 10 s)</h2><p class=\"off\">Grey: unreadable stretch; blue tick: QRS onset; purple tick: T end (per-beat marks of the run).</p>");
+    let mut s = String::from("<h2>Rhythm strip (first 10 s)</h2><p class=\"off\">Grey: stretch the run found unreadable. QRSon and Tend: the per-beat global marks; move them like the median-beat marks. Click a beat and press U to mark it unreadable (red); U again undoes it.</p>");
     let want = ["II", "V1", "V5"];
     let mut idx: Vec<usize> = want
         .iter()
@@ -375,18 +376,49 @@ fn rhythm_strip(rec: &tendline_formats::Record, g: &Group) -> String {
             );
         }
     }
-    for (fid, color, y0, y1) in [
-        ("qrs_on", "#0b5cad", 0.0, 3.0),
-        ("t_end", "#a3238e", h - 3.0, h),
+    // Per-beat marks of the run (current values after imported corrections), and a
+    // beat handle (the span around each QRS peak) to select a beat for `U`.
+    let peaks = i64s(g, "beats/qrs_peak").unwrap_or(&[]);
+    let reader_bad = i64s(g, "beats/unreadable_reader").unwrap_or(&[]);
+    for (i, &p) in peaks.iter().enumerate() {
+        if p < 0 || p >= n as i64 {
+            continue;
+        }
+        let done = reader_bad.get(i).is_some_and(|&u| u != 0);
+        let a = x((p as f64 - 0.2 * rec.fs) as i64).max(0.0);
+        let b = x((p as f64 + 0.45 * rec.fs) as i64).min(w);
+        let _ = write!(
+            overlay,
+            "<rect class=\"beat{}\" data-beat=\"{i}\" x=\"{}\" width=\"{}\" height=\"{}\"><title>beat {i}{}</title></rect>",
+            if done { " bad done" } else { "" },
+            f(a),
+            f((b - a).max(0.0)),
+            f(h),
+            if done { " (unreadable, imported)" } else { "" }
+        );
+    }
+    for (fid, class, text, y0) in [
+        ("qrs_on", "q", "QRSon", 0.0),
+        ("t_end", "t", "Tend", h - 3.0),
     ] {
-        for &k in i64s(g, &format!("marks/global/{fid}")).unwrap_or(&[]) {
-            if k >= 0 && k < n as i64 {
-                let _ = write!(
-                    overlay,
-                    "<line class=\"tick\" x1=\"{0}\" x2=\"{0}\" y1=\"{y0}\" y2=\"{y1}\" stroke=\"{color}\" stroke-width=\"0.3\"/>",
-                    f(x(k))
-                );
+        let auto = i64s(g, &format!("marks/global/{fid}")).unwrap_or(&[]);
+        let cur = i64s(g, &format!("marks/corrected/global/{fid}")).unwrap_or(auto);
+        for (i, (&a, &k)) in auto.iter().zip(cur).enumerate() {
+            if k < 0 || k >= n as i64 || reader_bad.get(i).is_some_and(|&u| u != 0) {
+                continue;
             }
+            let _ = write!(
+                overlay,
+                "<g class=\"mark bmark {class}{}\" tabindex=\"0\" data-beat=\"{i}\" data-lead=\"global\" data-f=\"{fid}\" data-auto=\"{a}\" data-s=\"{k}\" data-fs=\"{}\" transform=\"translate({},0)\"><title>beat {i} {fid} at sample {k}</title>\
+                 <line class=\"hit\" x1=\"0\" x2=\"0\" y1=\"0\" y2=\"{}\"/><line class=\"v\" x1=\"0\" x2=\"0\" y1=\"{}\" y2=\"{}\"/><text x=\"0.4\" y=\"{}\">{text}</text></g>",
+                if k != a { " moved" } else { "" },
+                rec.fs,
+                f(x(k)),
+                f(h),
+                f(y0),
+                f(y0 + 3.0),
+                f(y0 + 2.2),
+            );
         }
     }
     for &l in &idx {
@@ -398,7 +430,7 @@ fn rhythm_strip(rec: &tendline_formats::Record, g: &Group) -> String {
             s,
             "<div class=\"lead\"><h4>{} <span class=\"off\">(baseline-centred, clipped at ±1.5 mV)</span></h4>{}{}{overlay}<polyline class=\"trace\" points=\"{}\"/></svg></div>",
             esc(&rec.leads[l].name),
-            svg_open(w, h, 4.0, "data-kind=\"strip\""),
+            svg_open(w, h, 4.0, &format!("data-kind=\"strip\" data-n=\"{n}\"")),
             grid_rects(w, h),
             points(&centered, rec.fs, h / 2.0, 0.0, h)
         );
@@ -536,7 +568,8 @@ fn record_page(
     s.push_str(
         "<div class=\"bar\"><button id=\"zoom-out\" type=\"button\">−</button><span id=\"zoomval\">100%</span> <button id=\"zoom-in\" type=\"button\">+</button> \
          <label>who <input id=\"who\" size=\"14\" placeholder=\"reader name\"></label><label>reason <input id=\"reason\" size=\"28\" placeholder=\"why the change\"></label>\
-         <button id=\"save\" type=\"button\">Save corrections</button> <span id=\"status\">Click a mark, drag it or use ←/→ (one sample per press). Ctrl+wheel zooms.</span>\
+         <button id=\"revert\" type=\"button\">Revert selected</button> <button id=\"revert-all\" type=\"button\">Revert all</button> \
+         <button id=\"save\" type=\"button\">Save corrections (JSON)</button> <button id=\"save-csv\" type=\"button\">Save as CSV</button> <span id=\"status\">Click a mark, drag it or use ←/→ (one sample per press); Backspace reverts it. Ctrl+wheel zooms.</span>\
          <div id=\"changes\"></div></div>",
     );
 
@@ -648,7 +681,7 @@ const SCRIPT: &str = r#"
 (function(){
 'use strict';
 var REC = document.body.dataset.record;
-var zoom = 1, sel = null, drag = null;
+var zoom = 1, sel = null, drag = null, selBeat = null;
 var changes = new Map();
 function $(id){ return document.getElementById(id); }
 function setZoom(z){
@@ -665,16 +698,27 @@ function reason(){ return $('reason').value.trim(); }
 function renderList(){
   var list = Array.from(changes.values());
   $('changes').textContent = list.length ? list.length + ' change(s): ' + list.map(function(c){
-    return c.kind === 'unreadable' ? 'window ' + c.window + ' unreadable'
-      : 'w' + c.window + ' ' + c.lead + ' ' + c.fiducial + ' ' + c.old_sample + '→' + c.new_sample;
+    if (c.kind === 'unreadable') return 'window ' + c.window + ' unreadable';
+    if (c.kind === 'beat_unreadable') return 'beat ' + c.beat + ' unreadable';
+    var where = c.kind === 'beat_mark' ? 'beat ' + c.beat : 'w' + c.window + ' ' + c.lead;
+    return where + ' ' + c.fiducial + ' ' + c.old_sample + '→' + c.new_sample;
   }).join(', ') : '';
 }
+function isBeat(g){ return g.dataset.beat !== undefined; }
+function keyOf(g){
+  return isBeat(g) ? 'b|' + g.dataset.beat + '|' + g.dataset.lead + '|' + g.dataset.f
+    : g.dataset.w + '|' + g.dataset.lead + '|' + g.dataset.f;
+}
 function note(g){
-  var key = g.dataset.w + '|' + g.dataset.lead + '|' + g.dataset.f;
+  var key = keyOf(g);
   var a = +g.dataset.auto, s = +g.dataset.s;
   g.classList.toggle('moved', a !== s);
   if (a === s) { changes.delete(key); }
-  else {
+  else if (isBeat(g)) {
+    changes.set(key, {kind: 'beat_mark', record: REC, beat: +g.dataset.beat, lead: g.dataset.lead,
+      fiducial: g.dataset.f, old_sample: a, new_sample: s, reason: reason(), who: who(),
+      when: new Date().toISOString()});
+  } else {
     changes.set(key, {kind: 'mark', record: REC, window: +g.dataset.w, lead: g.dataset.lead,
       fiducial: g.dataset.f, old_sample: a, new_sample: s, reason: reason(), who: who(),
       when: new Date().toISOString()});
@@ -684,7 +728,7 @@ function note(g){
 function status(){
   if (!sel) return;
   var fs = +sel.dataset.fs, s = +sel.dataset.s, a = +sel.dataset.auto;
-  $('status').textContent = 'Window ' + sel.dataset.w + ', lead ' + sel.dataset.lead + ', ' + sel.dataset.f +
+  $('status').textContent = (isBeat(sel) ? 'Beat ' + sel.dataset.beat + ' (global)' : 'Window ' + sel.dataset.w + ', lead ' + sel.dataset.lead) + ', ' + sel.dataset.f +
     ': sample ' + s + ' (' + (s / fs * 1000).toFixed(0) + ' ms; automatic ' + a + ', change ' +
     ((s - a) / fs * 1000).toFixed(0) + ' ms)';
 }
@@ -696,10 +740,38 @@ function select(g){
 function move(g, s){
   var n = +g.closest('svg').dataset.n;
   s = Math.max(0, Math.min(n - 1, Math.round(s)));
-  g.dataset.s = s;
-  g.setAttribute('transform', 'translate(' + (s / +g.dataset.fs * 25).toFixed(3) + ',0)');
+  // A per-beat mark is drawn on every lead of the strip: move all its copies.
+  var all = isBeat(g) ? document.querySelectorAll('g.bmark[data-beat="' + g.dataset.beat + '"][data-f="' + g.dataset.f + '"]') : [g];
+  Array.prototype.forEach.call(all, function(m){
+    m.dataset.s = s;
+    m.setAttribute('transform', 'translate(' + (s / +m.dataset.fs * 25).toFixed(3) + ',0)');
+    m.classList.toggle('moved', +m.dataset.auto !== s);
+  });
   note(g); status();
 }
+function selectBeat(b){
+  document.querySelectorAll('rect.beat.on').forEach(function(r){ r.classList.remove('on'); });
+  selBeat = b;
+  if (b === null) return;
+  document.querySelectorAll('rect.beat[data-beat="' + b + '"]').forEach(function(r){ r.classList.add('on'); });
+  $('status').textContent = 'Beat ' + b + ' selected: U marks it unreadable (U again undoes).';
+}
+function toggleBeat(b){
+  var rects = document.querySelectorAll('rect.beat[data-beat="' + b + '"]');
+  if (!rects.length || rects[0].classList.contains('done')) return;
+  var key = 'beat_unreadable|' + b, on = !changes.has(key);
+  if (on) {
+    changes.set(key, {kind: 'beat_unreadable', record: REC, beat: +b, lead: 'global', fiducial: 'beat',
+      old_sample: null, new_sample: null, reason: reason(), who: who(), when: new Date().toISOString()});
+  } else { changes.delete(key); }
+  rects.forEach(function(r){ r.classList.toggle('bad', on); });
+  renderList();
+  $('status').textContent = 'Beat ' + b + (on ? ' marked unreadable.' : ': unreadable mark removed.');
+}
+function revert(g){ if (g && +g.dataset.s !== +g.dataset.auto) move(g, +g.dataset.auto); }
+document.querySelectorAll('rect.beat').forEach(function(r){
+  r.addEventListener('click', function(){ selectBeat(r.dataset.beat); });
+});
 document.querySelectorAll('g.mark').forEach(function(g){
   g.addEventListener('pointerdown', function(e){
     select(g); drag = g; e.preventDefault();
@@ -714,11 +786,14 @@ document.querySelectorAll('g.mark').forEach(function(g){
     move(g, p.x / 25 * +g.dataset.fs);
   });
   g.addEventListener('pointerup', function(){ drag = null; });
-  g.addEventListener('click', function(){ select(g); });
+  g.addEventListener('click', function(){ select(g); if (isBeat(g)) selectBeat(g.dataset.beat); });
 });
 document.addEventListener('keydown', function(e){
-  if (!sel || e.target.tagName === 'INPUT') return;
-  if (e.key === 'ArrowLeft' || e.key === 'ArrowRight') {
+  if (e.target.tagName === 'INPUT') return;
+  if ((e.key === 'u' || e.key === 'U') && selBeat !== null) { e.preventDefault(); toggleBeat(selBeat); return; }
+  if (!sel) return;
+  if (e.key === 'Backspace') { e.preventDefault(); revert(sel); }
+  else if (e.key === 'ArrowLeft' || e.key === 'ArrowRight') {
     e.preventDefault();
     move(sel, +sel.dataset.s + (e.key === 'ArrowLeft' ? -1 : 1));
   } else if (e.key === 'Escape') { sel.classList.remove('sel'); sel = null; }
@@ -733,6 +808,16 @@ document.querySelectorAll('input.unread').forEach(function(cb){
     } else { changes.delete(key); }
     renderList();
   });
+});
+$('revert').addEventListener('click', function(){ revert(sel); });
+$('revert-all').addEventListener('click', function(){
+  document.querySelectorAll('g.mark.moved').forEach(function(g){ revert(g); });
+  document.querySelectorAll('input.unread:not([disabled])').forEach(function(cb){
+    if (cb.checked) { cb.checked = false; cb.dispatchEvent(new Event('change')); }
+  });
+  Array.from(changes.keys()).filter(function(k){ return k.indexOf('beat_unreadable|') === 0; })
+    .forEach(function(k){ toggleBeat(k.split('|')[1]); });
+  $('status').textContent = 'All changes reverted.';
 });
 $('zoom-in').addEventListener('click', function(){ setZoom(zoom * 1.25); });
 $('zoom-out').addEventListener('click', function(){ setZoom(zoom / 1.25); });
@@ -752,28 +837,50 @@ function buildDoc(askReason){
   if (who()) doc.who = who();
   return doc;
 }
+var COLS = ['kind', 'record', 'window', 'beat', 'lead', 'fiducial', 'old_sample', 'new_sample', 'reason', 'who', 'when'];
+function toCsv(doc){
+  var cell = function(v){
+    if (v === null || v === undefined) return '';
+    v = String(v);
+    return /[",\r\n]/.test(v) ? '"' + v.replace(/"/g, '""') + '"' : v;
+  };
+  return COLS.join(',') + '\n' + doc.changes.map(function(c){
+    var row = Object.assign({}, c);
+    if (!row.who && doc.who) row.who = doc.who;
+    return COLS.map(function(k){ return cell(row[k]); }).join(',');
+  }).join('\n') + '\n';
+}
+function download(text, type, name, n){
+  var blob = new Blob([text], {type: type});
+  var a = document.createElement('a');
+  a.href = URL.createObjectURL(blob);
+  a.download = name;
+  document.body.appendChild(a); a.click(); a.remove();
+  setTimeout(function(){ URL.revokeObjectURL(a.href); }, 1000);
+  $('status').textContent = 'Saved ' + n + ' change(s) to ' + name + '.';
+}
 $('save').addEventListener('click', function(){
   if (!changes.size) { $('status').textContent = 'No changes to save.'; return; }
   var doc = buildDoc(true);
-  var blob = new Blob([JSON.stringify(doc, null, 2)], {type: 'application/json'});
-  var a = document.createElement('a');
-  a.href = URL.createObjectURL(blob);
-  a.download = REC + '-corrections.json';
-  document.body.appendChild(a); a.click(); a.remove();
-  setTimeout(function(){ URL.revokeObjectURL(a.href); }, 1000);
-  $('status').textContent = 'Saved ' + doc.changes.length + ' change(s) to ' + a.download + '.';
+  download(JSON.stringify(doc, null, 2), 'application/json', REC + '-corrections.json', doc.changes.length);
+});
+$('save-csv').addEventListener('click', function(){
+  if (!changes.size) { $('status').textContent = 'No changes to save.'; return; }
+  var doc = buildDoc(true);
+  download(toCsv(doc), 'text/csv', REC + '-corrections.csv', doc.changes.length);
 });
 // Self-test for the headless-browser check (page opened with #selftest): select the
-// first T end, press → ten times, drag a QRS onset, mark the last window unreadable
-// (when there are several) and show the file the save button would write.
+// first median T end, press → ten times, drag a median QRS onset, mark the last window
+// unreadable (when there are several), move and revert per-beat marks in the strip,
+// mark a beat unreadable, and show the files the save buttons would write.
 if (location.hash === '#selftest') {
-  var g = document.querySelector('g.mark[data-f="t_end"]');
+  var g = document.querySelector('svg[data-kind="median"] g.mark[data-f="t_end"]');
   if (g) {
     select(g);
     for (var i = 0; i < 10; i++) document.dispatchEvent(new KeyboardEvent('keydown', {key: 'ArrowRight'}));
   }
   // Drag the QRS onset of the second lead 2 mm (80 ms at 25 mm/s) to the right.
-  var q = document.querySelectorAll('g.mark[data-f="qrs_on"]')[1];
+  var q = document.querySelectorAll('svg[data-kind="median"] g.mark[data-f="qrs_on"]')[1];
   if (q) {
     var svg = q.closest('svg'), rect = svg.getBoundingClientRect();
     var k = rect.width / +svg.dataset.wmm, x = +q.dataset.s / +q.dataset.fs * 25;
@@ -785,10 +892,29 @@ if (location.hash === '#selftest') {
   }
   var cbs = document.querySelectorAll('input.unread:not([disabled])');
   if (cbs.length > 1) { var cb = cbs[cbs.length - 1]; cb.checked = true; cb.dispatchEvent(new Event('change')); }
+  // Per-beat: move the first strip T end 5 samples left, undo a move with Backspace,
+  // and mark the second beat unreadable with U.
+  var bt = document.querySelector('g.bmark[data-f="t_end"]');
+  if (bt) {
+    bt.dispatchEvent(new MouseEvent('click', {bubbles: true}));
+    for (var j = 0; j < 5; j++) document.dispatchEvent(new KeyboardEvent('keydown', {key: 'ArrowLeft'}));
+    var bq = document.querySelector('g.bmark[data-f="qrs_on"]');
+    bq.dispatchEvent(new MouseEvent('click', {bubbles: true}));
+    document.dispatchEvent(new KeyboardEvent('keydown', {key: 'ArrowRight'}));
+    document.dispatchEvent(new KeyboardEvent('keydown', {key: 'Backspace'}));
+  }
+  var br = document.querySelectorAll('rect.beat')[1];
+  if (br) {
+    br.dispatchEvent(new MouseEvent('click', {bubbles: true}));
+    document.dispatchEvent(new KeyboardEvent('keydown', {key: 'u'}));
+  }
   $('who').value = 'browser self-test'; $('reason').value = 'self-test';
   var pre = document.createElement('pre'); pre.id = 'selftest';
   pre.textContent = JSON.stringify(buildDoc(false));
   document.body.appendChild(pre);
+  var pc = document.createElement('pre'); pc.id = 'selftest-csv';
+  pc.textContent = toCsv(buildDoc(false));
+  document.body.appendChild(pc);
 }
 setZoom(1);
 document.body.dataset.ready = '1';

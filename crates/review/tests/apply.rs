@@ -358,3 +358,189 @@ fn corrected_part_still_writes_to_hdf5() {
         std::fs::copy(&h5, std::path::Path::new(&dir).join("corrected.h5")).unwrap();
     }
 }
+
+/// Global per-beat mark `fiducial` of beat `b` in s06_base.
+fn beat_mark(run: &Path, fiducial: &str, b: usize) -> i64 {
+    let p = common::load_part(run, "s06_base");
+    i64s(&p.group, &format!("marks/global/{fiducial}"))[b]
+}
+
+fn annotations(path: &Path) -> Vec<(i64, String, Option<String>)> {
+    tendline_formats::annotation::read_annotations(path)
+        .unwrap()
+        .iter()
+        .map(|a| (a.sample, a.symbol().to_string(), a.aux_text()))
+        .collect()
+}
+
+#[test]
+fn beat_corrections_rewrite_the_annotation_files_and_keep_the_automatic_ones() {
+    let tmp = tempfile::tempdir().unwrap();
+    let run = common::run_dir(tmp.path());
+    let t_end = beat_mark(&run, "t_end", 3);
+    assert!(t_end > 0, "fixture beat 3 has a T end");
+    let f = write_file(
+        tmp.path(),
+        json!([
+            {"kind": "beat_mark", "record": "s06_base", "beat": 3, "lead": "global",
+             "fiducial": "t_end", "old_sample": t_end, "new_sample": t_end + 12,
+             "reason": "T end early", "who": "Dr Test"},
+            {"kind": "beat_unreadable", "record": "s06_base", "beat": 5, "lead": "global",
+             "fiducial": "beat", "reason": "artefact", "who": "Dr Test"},
+        ]),
+    );
+    let rep = apply_corrections(&run, &f, None).unwrap();
+    assert_eq!(rep.n_changes, 2);
+    assert_eq!(rep.annotations.len(), 2);
+    let g = common::load_part(&run, "s06_base").group;
+    // Automatic marks untouched, corrected beside them.
+    assert_eq!(i64s(&g, "marks/global/t_end")[3], t_end);
+    assert_eq!(i64s(&g, "marks/corrected/global/t_end")[3], t_end + 12);
+    let bad = i64s(&g, "beats/unreadable_reader");
+    assert_eq!(bad.iter().filter(|&&u| u != 0).count(), 1);
+    assert_eq!(bad[5], 1);
+    // The window holding beat 5 says so; its QT is not recomputed.
+    let peak5 = i64s(&g, "beats/qrs_peak")[5] as f64 / 500.0;
+    let starts = f64s(&g, "windows/start_s");
+    let w = starts.iter().rposition(|&s| s <= peak5).unwrap();
+    assert!(texts(&g, "windows/flags")[w]
+        .split(';')
+        .any(|f| f == "beat_unreadable_reader"));
+    assert_eq!(
+        texts(&g, "corrections/kind"),
+        ["beat_mark", "beat_unreadable"]
+    );
+    assert_eq!(i64s(&g, "corrections/beat"), [3, 5]);
+
+    let ann = run.join("annotations");
+    let cur = annotations(&ann.join("s06_base.mark"));
+    let auto = annotations(&ann.join("auto/s06_base.mark"));
+    // The automatic file has the run's T end (with its method), the current one the
+    // reader's value with the aux text `reader`.
+    assert!(auto.iter().any(|a| a.0 == t_end && a.1 == ")"));
+    assert!(cur
+        .iter()
+        .any(|a| a.0 == t_end + 12 && a.1 == ")" && a.2.as_deref() == Some("reader")));
+    assert!(!cur.iter().any(|a| a.0 == t_end && a.1 == ")"));
+    // Beat 5 keeps only its QRS mark, as `Q` (unclassifiable beat, WFDB code table).
+    // (The detector may label other beats `Q` itself, without this aux text.)
+    let q: Vec<_> = cur
+        .iter()
+        .filter(|a| a.1 == "Q" && a.2.as_deref() == Some("unreadable (reader)"))
+        .collect();
+    assert_eq!(q.len(), 1);
+    // At the delineated QRS peak, as in the run's files.
+    assert_eq!(q[0].0, beat_mark(&run, "qrs_peak", 5));
+    // Beat 5's P and T waves are in the automatic file only.
+    for (fid, sym) in [("p_peak", "p"), ("t_peak", "t")] {
+        let k = beat_mark(&run, fid, 5);
+        if k >= 0 {
+            assert!(auto.iter().any(|a| a.0 == k && a.1 == sym));
+            assert!(!cur.iter().any(|a| a.0 == k && a.1 == sym));
+        }
+    }
+    assert!(auto.len() > cur.len());
+    // Leads file rewritten too; channels kept.
+    let leads =
+        tendline_formats::annotation::read_annotations(&ann.join("s06_base.leadmark")).unwrap();
+    assert!(leads.iter().any(|a| a.chan > 0));
+    assert!(leads
+        .iter()
+        .any(|a| a.aux_text().as_deref() == Some("unreadable (reader)")));
+
+    // A second import keeps the first automatic files.
+    let auto_bytes = std::fs::read(ann.join("auto/s06_base.mark")).unwrap();
+    let f2 = write_file(
+        tmp.path(),
+        json!([{"kind": "beat_unreadable", "record": "s06_base", "beat": 6, "lead": "global",
+                "fiducial": "beat", "reason": "artefact", "who": "Dr Test"}]),
+    );
+    apply_corrections(&run, &f2, None).unwrap();
+    assert_eq!(
+        std::fs::read(ann.join("auto/s06_base.mark")).unwrap(),
+        auto_bytes
+    );
+    let cur2 = annotations(&ann.join("s06_base.mark"));
+    assert_eq!(
+        cur2.iter()
+            .filter(|a| a.2.as_deref() == Some("unreadable (reader)"))
+            .count(),
+        2
+    );
+}
+
+#[test]
+fn bad_beat_entries_are_named_and_nothing_changes() {
+    let tmp = tempfile::tempdir().unwrap();
+    let run = common::run_dir(tmp.path());
+    let before = snapshot(&run);
+    let t_end = beat_mark(&run, "t_end", 3);
+    let n_beats = i64s(&common::load_part(&run, "s06_base").group, "beats/qrs_peak").len();
+    let e = |beat: serde_json::Value, lead: &str, old: i64, new: i64| {
+        json!({"kind": "beat_mark", "record": "s06_base", "beat": beat, "lead": lead,
+               "fiducial": "t_end", "old_sample": old, "new_sample": new, "who": "Dr Test"})
+    };
+    let f = write_file(
+        tmp.path(),
+        json!([
+            e(json!(n_beats), "global", t_end, t_end),
+            e(json!(null), "global", t_end, t_end),
+            e(json!(3), "V9", t_end, t_end),
+            e(json!(3), "global", t_end + 1, t_end),
+            e(json!(2), "global", beat_mark(&run, "t_end", 2), 10_000_000),
+            {"kind": "beat_unreadable", "record": "s06_base", "beat": 2, "lead": "I",
+             "fiducial": "beat", "who": "Dr Test"},
+            e(json!(4), "global", beat_mark(&run, "t_end", 4), 5),
+        ]),
+    );
+    let err = apply_corrections(&run, &f, None).unwrap_err();
+    assert_eq!(
+        problems(err),
+        vec![
+            (0, ProblemKind::UnknownBeat),
+            (1, ProblemKind::UnknownBeat),
+            (2, ProblemKind::UnknownLead),
+            (3, ProblemKind::OldSampleMismatch),
+            (4, ProblemKind::SampleOutOfRange),
+            (5, ProblemKind::UnknownLead),
+        ]
+    );
+    assert_eq!(snapshot(&run), before);
+    assert!(!run.join("annotations").exists());
+}
+
+#[test]
+fn csv_corrections_apply_like_json() {
+    let tmp = tempfile::tempdir().unwrap();
+    let run = common::run_dir(tmp.path());
+    let old = auto_mark(&run, "t_end", 8);
+    let t_end = beat_mark(&run, "t_end", 3);
+    let csv = tmp.path().join("corrections.csv");
+    std::fs::write(
+        &csv,
+        format!(
+            "record,window,beat,lead,fiducial,old_sample,new_sample,reason,who,kind\n\
+             s06_base,0,,V3,t_end,{old},{},\"late, on the U wave\",Dr Csv,mark\n\
+             s06_base,,3,global,t_end,{t_end},{},,Dr Csv,beat_mark\n",
+            old + 10,
+            t_end - 4
+        ),
+    )
+    .unwrap();
+    let rep = apply_corrections(&run, &csv, None).unwrap();
+    assert_eq!(rep.n_changes, 2);
+    let g = common::load_part(&run, "s06_base").group;
+    assert_eq!(
+        i64s(&g, "windows/medians/000/corrected/marks/t_end")[8],
+        old + 10
+    );
+    assert_eq!(i64s(&g, "marks/corrected/global/t_end")[3], t_end - 4);
+    assert_eq!(texts(&g, "corrections/reason")[0], "late, on the U wave");
+    assert_eq!(texts(&g, "corrections/who"), ["Dr Csv", "Dr Csv"]);
+    // A bad CSV names the column and changes nothing.
+    let before = snapshot(&run);
+    std::fs::write(&csv, "record,lead,fiducial,colour\ns06_base,V3,t_end,red\n").unwrap();
+    let e = apply_corrections(&run, &csv, None).unwrap_err().to_string();
+    assert!(e.contains("colour") && e.contains("corrections.csv"), "{e}");
+    assert_eq!(snapshot(&run), before);
+}

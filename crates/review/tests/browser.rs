@@ -207,10 +207,51 @@ fn keyboard_correction_in_the_browser_round_trips_through_apply() {
         40
     );
     assert_eq!(doc["who"], "browser self-test");
+    // In the strip: the first beat's T end moved 5 samples left with ←; the QRS onset
+    // moved and put back with Backspace leaves no entry; beat 1 marked unreadable (U).
+    let beats: Vec<&serde_json::Value> = doc["changes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|c| c["kind"].as_str().unwrap().starts_with("beat"))
+        .collect();
+    assert_eq!(beats.len(), 2, "{json}");
+    assert_eq!(
+        (beats[0]["kind"].as_str(), beats[0]["fiducial"].as_str()),
+        (Some("beat_mark"), Some("t_end"))
+    );
+    assert_eq!(
+        beats[0]["new_sample"].as_i64().unwrap() - beats[0]["old_sample"].as_i64().unwrap(),
+        -5
+    );
+    assert_eq!(beats[1]["kind"], "beat_unreadable");
+    assert_eq!(beats[1]["beat"], 1);
+    let n = doc["changes"].as_array().unwrap().len();
+    // The CSV the other save button writes holds the same entries.
+    let cs = o
+        .stdout
+        .find("<pre id=\"selftest-csv\">")
+        .expect("CSV self-test output")
+        + "<pre id=\"selftest-csv\">".len();
+    let ce = cs + o.stdout[cs..].find("</pre>").unwrap();
+    let csv = o.stdout[cs..ce].replace("&amp;", "&");
+    let fc = tmp.path().join("from-browser.csv");
+    std::fs::write(&fc, &csv).unwrap();
+    assert_eq!(csv.lines().count(), n + 1, "{csv}");
+
     let f = tmp.path().join("from-browser.json");
     std::fs::write(&f, &json).unwrap();
+    // Applying the CSV to a copy of the run gives the same parts as the JSON.
+    let run2 = tmp.path().join("run-csv");
+    common::copy_dir(&run, &run2);
+    let rep2 = tendline_review::apply_corrections(&run2, &fc, None).unwrap();
+    assert_eq!(rep2.n_changes, n);
     let rep = tendline_review::apply_corrections(&run, &f, None).unwrap();
-    assert_eq!(rep.n_changes, 2);
+    assert_eq!(rep.n_changes, n);
+    assert_eq!(
+        std::fs::read(run.join("annotations/s06_base.mark")).unwrap(),
+        std::fs::read(run2.join("annotations/s06_base.mark")).unwrap()
+    );
     let g = common::load_part(&run, "s06_base").group;
     let tendline_store::Data::F64(q) =
         &g.groups["windows"].groups["medians"].groups["000"].groups["corrected"].datasets["qt_ms"]

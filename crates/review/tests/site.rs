@@ -151,5 +151,19 @@ fn strip_shades_unreadable_stretches_and_ticks_beats() {
     let page = std::fs::read_to_string(tmp.path().join("site/s06_base.html")).unwrap();
     // 1000 samples at 500 Hz = 2 s = 50 mm at 25 mm/s, 1000 more samples wide.
     assert!(page.contains("class=\"unreadable\" x=\"50.00\" width=\"50.00\""));
-    assert!(page.contains("class=\"tick\""));
+    // Every beat of the strip carries its movable global QRS onset and T end, at the
+    // run's sample (x = sample / fs · 25 mm/s).
+    let g = common::load_part(&run, "s06_base").group;
+    let tendline_store::Data::I64(t_end) =
+        &g.groups["marks"].groups["global"].datasets["t_end"].data
+    else {
+        panic!()
+    };
+    let k = t_end[0];
+    let needle = format!(
+        "class=\"mark bmark t\" tabindex=\"0\" data-beat=\"0\" data-lead=\"global\" data-f=\"t_end\" data-auto=\"{k}\" data-s=\"{k}\" data-fs=\"500\" transform=\"translate({:.2},0)\"",
+        k as f64 / 500.0 * 25.0
+    );
+    assert!(page.contains(&needle), "no {needle}");
+    assert!(page.contains("class=\"beat\" data-beat=\"0\""));
 }
