@@ -249,9 +249,11 @@ impl Evaluate for Dataset {
             }
         }
         let del = delineate_prepared(&up.leads, &up.qrs, &want, &cfg.delineate);
-        // The target beats as `tendline run` writes them to `<record>.mark`.
+        // The delineated beats as `tendline run` writes them to `<record>.mark`
+        // (the neighbours too: their marks decide which `(` and `)` sit next to
+        // a target beat's peaks once the annotations are sorted by time).
         let mut anns = Vec::new();
-        for &t in &up.targets {
+        for t in (0..up.qrs.len()).filter(|&i| want[i]) {
             let b = &del.global[t];
             let qrs_peak = b.qrs_peak.map_or(up.qrs[t], |p| p.sample);
             let waves = [
