@@ -398,3 +398,120 @@ pub fn cross_validate(
         problems,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::objective::fiducial_index;
+    use tendline_evaluate::matching::Counts;
+    use tendline_evaluate::Fiducial;
+
+    /// Record `r` is best at `t_xi_end = opt[r]`: its QRS-onset errors are
+    /// ±100·|x − opt| ms, so the pooled SD grows with the distance.
+    struct Synthetic {
+        opt: Vec<f64>,
+    }
+
+    impl Evaluate for Synthetic {
+        fn record_names(&self) -> Vec<String> {
+            (0..self.opt.len()).map(|i| format!("r{i}")).collect()
+        }
+        fn evaluate(&self, cfg: &TunedConfig, r: usize) -> Result<RecordResult, TuneError> {
+            let d = 100.0 * (cfg.delineate.t_xi_end - self.opt[r]) + 1.0;
+            let mut out = RecordResult::default();
+            let q = fiducial_index(Fiducial::QrsOn);
+            out.errors[q] = vec![d, -d];
+            out.counts[q] = Counts {
+                tp: 2,
+                fn_: 0,
+                fp: 0,
+            };
+            Ok(out)
+        }
+    }
+
+    fn space(strategy: &str) -> SearchSpace {
+        let base: toml::Table = toml::from_str("[delineate]\nt_xi_end = 0.5\n").unwrap();
+        SearchSpace::parse(
+            &format!(
+                "[search]\nstrategy = '{strategy}'\nsteps = 9\n[params.delineate]\nt_xi_end = {{ min = 0.1, max = 0.9 }}\n"
+            ),
+            "space.toml",
+            &base,
+        )
+        .unwrap()
+    }
+
+    #[test]
+    fn held_out_scores_never_see_fitted_records_and_fits_never_see_held_out() {
+        for strategy in ["grid", "coordinate"] {
+            let s = space(strategy);
+            let n = 12;
+            let clean = Synthetic { opt: vec![0.3; n] };
+            let folds = kfold(n, 3, 9).unwrap();
+            // Poison fold 1's held-out records: they now favour 0.9 strongly.
+            let mut opt = vec![0.3; n];
+            for &r in &folds[0].test {
+                opt[r] = 0.9;
+            }
+            let poisoned = Synthetic { opt };
+            let quiet = |_: &Progress| {};
+            let a = cross_validate(&s, &clean, 3, 9, &quiet).unwrap();
+            let b = cross_validate(&s, &poisoned, 3, 9, &quiet).unwrap();
+            assert_eq!(a.folds[0].test, folds[0].test);
+            // Fold 1 fits on the same records in both runs: same choice, same training score.
+            assert_eq!(a.folds[0].chosen, b.folds[0].chosen, "{strategy}");
+            assert_eq!(a.folds[0].train_score, b.folds[0].train_score, "{strategy}");
+            assert!((a.folds[0].chosen.0[0].as_float().unwrap() - 0.3).abs() < 1e-9);
+            // Its held-out score is the pool of exactly the held-out records.
+            assert_ne!(a.folds[0].test_score, b.folds[0].test_score);
+            let cfg = s.config_for(&b.folds[0].chosen).unwrap();
+            let direct: Vec<RecordResult> = folds[0]
+                .test
+                .iter()
+                .map(|&r| poisoned.evaluate(&cfg, r).unwrap())
+                .collect();
+            let pooled = Summary::pool(direct.iter());
+            assert_eq!(b.folds[0].test_score.summary, pooled);
+            assert_eq!(b.folds[0].test_score.objective, s.objective.value(&pooled));
+            // Where the poisoned records are fitted (folds 2 and 3), they do
+            // change the training score: the check above can fail.
+            assert!(
+                (1..3).any(|k| a.folds[k].train_score != b.folds[k].train_score),
+                "{strategy}"
+            );
+            // Every record is held out exactly once and never in its own fold's training set.
+            for f in &b.folds {
+                assert!(f.test.iter().all(|r| !f.train.contains(r)));
+            }
+        }
+    }
+
+    #[test]
+    fn each_candidate_is_evaluated_once_per_record() {
+        use std::sync::atomic::AtomicUsize;
+        struct Counting {
+            inner: Synthetic,
+            calls: AtomicUsize,
+        }
+        impl Evaluate for Counting {
+            fn record_names(&self) -> Vec<String> {
+                self.inner.record_names()
+            }
+            fn evaluate(&self, cfg: &TunedConfig, r: usize) -> Result<RecordResult, TuneError> {
+                self.calls.fetch_add(1, Ordering::Relaxed);
+                self.inner.evaluate(cfg, r)
+            }
+        }
+        let s = space("grid");
+        let e = Counting {
+            inner: Synthetic { opt: vec![0.5; 10] },
+            calls: AtomicUsize::new(0),
+        };
+        let cv = cross_validate(&s, &e, 5, 1, &|_: &Progress| {}).unwrap();
+        // 9 grid points × 10 records, however many folds pool them.
+        assert_eq!(e.calls.load(Ordering::Relaxed), 90);
+        assert_eq!(cv.all_records.len(), 9);
+        assert!((cv.final_best.0[0].as_float().unwrap() - 0.5).abs() < 1e-9);
+    }
+}

@@ -610,3 +610,153 @@ fn collect_params(
     }
     Ok(())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The stage defaults as a configuration tree (the CLI passes the full
+    /// `pipeline.toml` tree, measure table included).
+    fn base() -> toml::Table {
+        let mut t = toml::Table::new();
+        t.insert("filter".into(), toml::Value::try_from(FilterConfig::default()).unwrap());
+        t.insert("detect".into(), toml::Value::try_from(DetectConfig::default()).unwrap());
+        t.insert(
+            "delineate".into(),
+            toml::Value::try_from(DelineateConfig::default()).unwrap(),
+        );
+        t.insert(
+            "measure".into(),
+            toml::from_str::<toml::Value>("window_s = 10.0").unwrap(),
+        );
+        t
+    }
+
+    fn parse(text: &str) -> Result<SearchSpace, String> {
+        SearchSpace::parse(text, "space.toml", &base()).map_err(|e| e.to_string())
+    }
+
+    #[test]
+    fn nested_and_dotted_keys_parse_to_typed_domains() {
+        let s = parse(
+            "[params]\n\"delineate.t_xi_end\" = { min = 0.2, max = 0.7 }\n\
+             [params.delineate]\nglobal_context_beats = { min = 2, max = 12 }\n\
+             t_end_method = { values = ['wavelet', 'area'] }\n\
+             [params.detect]\nrefractory_ms = { values = [180, 200.0] }\n",
+        )
+        .unwrap();
+        let keys: Vec<&str> = s.params.iter().map(|p| p.key.as_str()).collect();
+        assert_eq!(
+            keys,
+            [
+                "delineate.global_context_beats",
+                "delineate.t_end_method",
+                "delineate.t_xi_end",
+                "detect.refractory_ms"
+            ]
+        );
+        assert!(matches!(s.params[0].domain, Domain::Range { integer: true, .. }));
+        // An integer written for a float key becomes a float.
+        assert_eq!(
+            s.params[3].domain,
+            Domain::List(vec![toml::Value::Float(180.0), toml::Value::Float(200.0)])
+        );
+        assert_eq!(s.search, SearchOptions::default());
+        let c = s.base_candidate();
+        let cfg = s.config_for(&c).unwrap();
+        assert_eq!(cfg.delineate, DelineateConfig::default());
+    }
+
+    #[test]
+    fn unknown_key_is_named_with_the_closest_known_key() {
+        let e = parse("[params.delineate]\nt_xi_ned = { min = 0.2, max = 0.7 }\n").unwrap_err();
+        assert!(
+            e.contains("space.toml")
+                && e.contains("delineate.t_xi_ned")
+                && e.contains("did you mean `delineate.t_xi_end`"),
+            "{e}"
+        );
+        let e = parse("[params.delinate]\nt_xi_end = { min = 0.2, max = 0.7 }\n").unwrap_err();
+        assert!(e.contains("delinate"), "{e}");
+        let e = parse("[serch]\n[params.delineate]\nt_xi_end = { min = 0.2, max = 0.7 }\n")
+            .unwrap_err();
+        assert!(e.contains("did you mean `search`"), "{e}");
+        let e = parse("[params.delineate]\nt_xi_end = { min = 0.2, maxx = 0.7 }\n").unwrap_err();
+        assert!(e.contains("t_xi_end.maxx") && e.contains("did you mean `max`"), "{e}");
+        let e = parse("[search]\nstratgy = 'grid'\n[params.delineate]\nt_xi_end = { values = [0.3] }\n")
+            .unwrap_err();
+        assert!(e.contains("stratgy"), "{e}");
+    }
+
+    #[test]
+    fn values_outside_a_stage_range_fail_with_the_stage_message() {
+        // delineate.t_xi_end is allowed 0 to 1 (DelineateConfig::validate).
+        let e = parse("[params.delineate]\nt_xi_end = { min = 0.2, max = 1.5 }\n").unwrap_err();
+        assert!(
+            e.contains("params.delineate.t_xi_end max = 1.5")
+                && e.contains("invalid value for `delineate.t_xi_end`: allowed 0 to 1")
+                && e.contains("got 1.5"),
+            "{e}"
+        );
+        let e = parse("[params.delineate]\nt_end_method = { values = ['wavelet', 'slope'] }\n")
+            .unwrap_err();
+        assert!(e.contains("t_end_method") && e.contains("slope"), "{e}");
+        let e = parse("[params.delineate]\nt_xi_end = { values = ['high'] }\n").unwrap_err();
+        assert!(e.contains("takes a number") && e.contains("\"high\""), "{e}");
+    }
+
+    #[test]
+    fn other_mistakes_are_explained() {
+        let cases = [
+            ("[params.delineate]\nt_xi_end = 0.3\n", "expected { min"),
+            ("[params.delineate]\nt_xi_end = { min = 0.7, max = 0.2 }\n", "min < max"),
+            ("[params.delineate]\nt_gamma = { min = 0.0, max = 0.5, scale = 'log' }\n", "log scale needs min > 0"),
+            ("[params.delineate]\nt_end_method = { min = 1, max = 2 }\n", "give `values"),
+            ("[params.delineate]\nt_xi_end = { values = [] }\n", "empty list"),
+            ("[params]\ndelineate = { min = 1, max = 2 }\n", "is a table"),
+            ("[params.measure]\nwindow_s = { min = 5, max = 10 }\n", "[measure] keys do not change"),
+            ("[search]\nfolds = 1\n[params.delineate]\nt_xi_end = { values = [0.3] }\n", "folds: allowed 2 or more, got 1"),
+            ("[search]\n", "no [params] table"),
+        ];
+        for (text, want) in cases {
+            let e = parse(text).unwrap_err();
+            assert!(e.contains(want), "{text}: {e}");
+        }
+    }
+
+    #[test]
+    fn cross_key_violation_makes_only_that_candidate_invalid() {
+        // t_window_end_min_ms must not exceed t_window_end_max_ms (600 by default).
+        let s = parse("[params.delineate]\nt_window_end_min_ms = { min = 300, max = 700 }\n").unwrap_err();
+        // The range end 700 alone already breaks the rule against the base: caught early.
+        assert!(s.contains("t_window_end_min_ms"), "{s}");
+        let s = parse(
+            "[params.delineate]\nt_window_end_min_ms = { min = 300, max = 500 }\nt_window_end_max_ms = { min = 400, max = 800 }\n",
+        )
+        .unwrap();
+        let i_min = s.params.iter().position(|p| p.key.ends_with("min_ms")).unwrap();
+        let mut c = s.base_candidate();
+        c.0[i_min] = toml::Value::Float(500.0);
+        c.0[1 - i_min] = toml::Value::Float(400.0);
+        let e = s.config_for(&c).unwrap_err().to_string();
+        assert!(e.contains("delineate.t_window_end_min_ms") && e.contains("at most t_window_end_max_ms"), "{e}");
+    }
+
+    #[test]
+    fn grids_include_ends_and_round_integers() {
+        assert_eq!(
+            range_grid(0.0, 1.0, false, false, 5),
+            [0.0, 0.25, 0.5, 0.75, 1.0].map(toml::Value::Float).to_vec()
+        );
+        assert_eq!(
+            range_grid(1.0, 100.0, true, false, 3),
+            [1.0, 10.0, 100.0].map(toml::Value::Float).to_vec()
+        );
+        assert_eq!(
+            range_grid(1.0, 3.0, false, true, 5),
+            [1, 2, 3].map(toml::Value::Integer).to_vec()
+        );
+        assert_eq!(round_sig(0.123456, 4), 0.1235);
+        assert_eq!(round_sig(1234.5, 2), 1200.0);
+    }
+}
