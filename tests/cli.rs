@@ -306,3 +306,121 @@ fn review_site_and_corrections_round_trip_through_the_binary() {
         before
     );
 }
+
+/// `tendline tune` on four QT Database records (Laguna et al. 1997, `.q1c`
+/// annotator 1 as reference) from a bad `delineate.t_gamma`: every output is
+/// written, the tuned `pipeline.toml` loads like a hand-written one, and the
+/// scores of the base configuration equal `tendline validate` on a
+/// `tendline run` of the same records (same scoring code, same marks).
+#[test]
+fn tune_writes_a_loadable_config_and_scores_like_validate() {
+    let q = data().join("qtdb");
+    let recs = ["sel100", "sel103", "sel16265", "sele0106"];
+    let inputs: Vec<PathBuf> = recs.iter().map(|r| q.join(r)).collect();
+    let dir = tempfile::tempdir().unwrap();
+    let space = dir.path().join("space.toml");
+    std::fs::write(
+        &space,
+        "[search]\nstrategy = 'grid'\nsteps = 4\nfolds = 2\n[params.delineate]\nt_gamma = { min = 0.05, max = 0.6 }\n",
+    )
+    .unwrap();
+    let out = dir.path().join("tune");
+    let o = bin()
+        .arg("tune")
+        .args(&inputs)
+        .arg("--space")
+        .arg(&space)
+        .arg("--out")
+        .arg(&out)
+        .args(["--set", "delineate.t_gamma=0.6", "--jobs", "2"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    for f in ["pipeline.toml", "cv.csv", "cv.md", "candidates.csv", "tune.html"] {
+        assert!(out.join(f).is_file(), "{f} missing");
+    }
+    let cv = std::fs::read_to_string(out.join("cv.csv")).unwrap();
+    let firsts: Vec<&str> = cv.lines().skip(1).map(|l| l.split(',').next().unwrap()).collect();
+    assert_eq!(firsts, ["1", "2", "mean", "all", "base"], "{cv}");
+    let html = std::fs::read_to_string(out.join("tune.html")).unwrap();
+    assert!(html.contains("<svg") && html.contains("delineate.t_gamma"));
+    // The tuned config loads through the normal path and carries the tuned value.
+    let o = bin()
+        .arg("config")
+        .arg("--config")
+        .arg(out.join("pipeline.toml"))
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let effective = String::from_utf8_lossy(&o.stdout).to_string();
+    let tuned: toml::Table = toml::from_str(&effective).unwrap();
+    let g = tuned["delineate"]["t_gamma"].as_float().unwrap();
+    assert!(g < 0.6, "t_gamma stayed at the bad start: {g}");
+
+    // Base configuration (t_gamma 0.6) through run + validate.
+    let run_dir = dir.path().join("run");
+    let o = bin()
+        .arg("run")
+        .args(&inputs)
+        .arg("--out")
+        .arg(&run_dir)
+        .args(["--set", "delineate.t_gamma=0.6", "--quiet"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let o = bin()
+        .arg("validate")
+        .arg(&run_dir)
+        .arg("--data")
+        .arg(&q)
+        .args(["--reference", "global", "--quiet"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let rep: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(run_dir.join("validation/report.json")).unwrap(),
+    )
+    .unwrap();
+    let cands = std::fs::read_to_string(out.join("candidates.csv")).unwrap();
+    let head: Vec<&str> = cands.lines().next().unwrap().split(',').collect();
+    let base_row: Vec<&str> = cands
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .find(|r| r[1] == "0.6")
+        .expect("base candidate scored");
+    let col = |name: &str| base_row[head.iter().position(|h| *h == name).unwrap()];
+    let fids = rep["global"]["fiducials"].as_array().expect("report.json layout");
+    let mut compared = 0;
+    for fid in ["p_on", "qrs_on", "qrs_end", "t_peak", "t_end"] {
+        let f = fids.iter().find(|x| x["fiducial"] == fid).unwrap();
+        let (Some(sd), Some(se)) = (f["stats"]["sd_ms"].as_f64(), f["sensitivity_pct"].as_f64())
+        else {
+            continue;
+        };
+        let tsd: f64 = col(&format!("{fid}_sd_ms")).parse().unwrap();
+        let tse: f64 = col(&format!("{fid}_se_pct")).parse().unwrap();
+        assert!((tsd - sd).abs() < 0.006, "{fid}: tune SD {tsd} vs validate {sd}");
+        assert!((tse - se).abs() < 0.006, "{fid}: tune Se {tse} vs validate {se}");
+        compared += 1;
+    }
+    assert_eq!(compared, 5);
+
+    // A typo in the space names the key and a close match; exit code 2.
+    std::fs::write(&space, "[params.delineate]\nt_gama = { min = 0.05, max = 0.6 }\n").unwrap();
+    let o = bin()
+        .arg("tune")
+        .args(&inputs)
+        .arg("--space")
+        .arg(&space)
+        .arg("--out")
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    let t = text(&o);
+    assert!(
+        t.contains("delineate.t_gama") && t.contains("did you mean `delineate.t_gamma`"),
+        "{t}"
+    );
+}
