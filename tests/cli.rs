@@ -336,11 +336,21 @@ fn tune_writes_a_loadable_config_and_scores_like_validate() {
         .output()
         .unwrap();
     assert!(o.status.success(), "{}", text(&o));
-    for f in ["pipeline.toml", "cv.csv", "cv.md", "candidates.csv", "tune.html"] {
+    for f in [
+        "pipeline.toml",
+        "cv.csv",
+        "cv.md",
+        "candidates.csv",
+        "tune.html",
+    ] {
         assert!(out.join(f).is_file(), "{f} missing");
     }
     let cv = std::fs::read_to_string(out.join("cv.csv")).unwrap();
-    let firsts: Vec<&str> = cv.lines().skip(1).map(|l| l.split(',').next().unwrap()).collect();
+    let firsts: Vec<&str> = cv
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').next().unwrap())
+        .collect();
     assert_eq!(firsts, ["1", "2", "mean", "all", "base"], "{cv}");
     let html = std::fs::read_to_string(out.join("tune.html")).unwrap();
     assert!(html.contains("<svg") && html.contains("delineate.t_gamma"));
@@ -390,7 +400,9 @@ fn tune_writes_a_loadable_config_and_scores_like_validate() {
         .find(|r| r[1] == "0.6")
         .expect("base candidate scored");
     let col = |name: &str| base_row[head.iter().position(|h| *h == name).unwrap()];
-    let fids = rep["global"]["fiducials"].as_array().expect("report.json layout");
+    let fids = rep["global"]["fiducials"]
+        .as_array()
+        .expect("report.json layout");
     let mut compared = 0;
     for fid in ["p_on", "qrs_on", "qrs_end", "t_peak", "t_end"] {
         let f = fids.iter().find(|x| x["fiducial"] == fid).unwrap();
@@ -400,14 +412,24 @@ fn tune_writes_a_loadable_config_and_scores_like_validate() {
         };
         let tsd: f64 = col(&format!("{fid}_sd_ms")).parse().unwrap();
         let tse: f64 = col(&format!("{fid}_se_pct")).parse().unwrap();
-        assert!((tsd - sd).abs() < 0.006, "{fid}: tune SD {tsd} vs validate {sd}");
-        assert!((tse - se).abs() < 0.006, "{fid}: tune Se {tse} vs validate {se}");
+        assert!(
+            (tsd - sd).abs() < 0.006,
+            "{fid}: tune SD {tsd} vs validate {sd}"
+        );
+        assert!(
+            (tse - se).abs() < 0.006,
+            "{fid}: tune Se {tse} vs validate {se}"
+        );
         compared += 1;
     }
     assert_eq!(compared, 5);
 
     // A typo in the space names the key and a close match; exit code 2.
-    std::fs::write(&space, "[params.delineate]\nt_gama = { min = 0.05, max = 0.6 }\n").unwrap();
+    std::fs::write(
+        &space,
+        "[params.delineate]\nt_gama = { min = 0.05, max = 0.6 }\n",
+    )
+    .unwrap();
     let o = bin()
         .arg("tune")
         .args(&inputs)

@@ -78,7 +78,10 @@ pub fn cmd_tune(a: TuneArgs) -> Result<ExitCode> {
     }
     let ext = a.reference_ext.trim_start_matches('.').to_string();
     if ext.is_empty() || ext.contains(['/', '\\']) {
-        bail!("--reference-ext: allowed a file extension such as q1c, got `{}`", a.reference_ext);
+        bail!(
+            "--reference-ext: allowed a file extension such as q1c, got `{}`",
+            a.reference_ext
+        );
     }
     let records = crate::inputs::resolve(&a.inputs)?;
     let mut sources = Vec::new();
@@ -154,8 +157,12 @@ pub fn cmd_tune(a: TuneArgs) -> Result<ExitCode> {
     tendline_tune::write_outputs(&a.out, &space, &cv, &info)?;
     // The written configuration must load exactly like a hand-written one.
     let written = a.out.join("pipeline.toml");
-    crate::config::load(Some(&written), &[])
-        .with_context(|| format!("{}: the tuned configuration does not load", written.display()))?;
+    crate::config::load(Some(&written), &[]).with_context(|| {
+        format!(
+            "{}: the tuned configuration does not load",
+            written.display()
+        )
+    })?;
     if !a.quiet {
         let mean = |f: &dyn Fn(&tendline_tune::FoldResult) -> f64| {
             cv.folds.iter().map(f).sum::<f64>() / cv.folds.len() as f64
@@ -174,7 +181,10 @@ pub fn cmd_tune(a: TuneArgs) -> Result<ExitCode> {
             cv.base_score.objective
         );
         for (i, p) in space.params.iter().enumerate() {
-            eprintln!("  {} = {} (base {})", p.key, cv.final_best.0[i], cv.base.0[i]);
+            eprintln!(
+                "  {} = {} (base {})",
+                p.key, cv.final_best.0[i], cv.base.0[i]
+            );
         }
         eprintln!(
             "{:.1} s; outputs in {} (pipeline.toml, cv.csv, cv.md, candidates.csv, tune.html)",

@@ -240,8 +240,8 @@ impl PreparedLead {
 /// Resample `x` to `cfg.analysis_fs_hz` and compute its wavelet transform
 /// (the part of [`delineate_lead`] that no other threshold affects).
 pub fn prepare_lead(x: &[f64], fs: f64, cfg: &DelineateConfig) -> PreparedLead {
-    let la = (fs.is_finite() && fs > 0.0 && !x.is_empty())
-        .then(|| lead::LeadAnalysis::new(x, fs, cfg));
+    let la =
+        (fs.is_finite() && fs > 0.0 && !x.is_empty()).then(|| lead::LeadAnalysis::new(x, fs, cfg));
     PreparedLead {
         la,
         fs,

@@ -110,11 +110,12 @@ impl Dataset {
             .into_par_iter()
             .map(|src| {
                 let r = read(&src, csv_fs)?;
-                let anns = tendline_formats::annotation::read_annotations(&src.reference)
-                    .map_err(|e| TuneError::Record {
+                let anns = tendline_formats::annotation::read_annotations(&src.reference).map_err(
+                    |e| TuneError::Record {
                         record: src.name.clone(),
                         message: format!("reference {}: {e}", src.reference.display()),
-                    })?;
+                    },
+                )?;
                 let reference = parse_beats(&anns, r.fs).beats;
                 Ok(RecordData {
                     src,

@@ -262,9 +262,10 @@ pub fn search(space: &SearchSpace, subset: &Subset, fixed: &[Candidate]) -> Sear
             }
         }
         Strategy::Coordinate => {
-            let (best, _) = strategy::coordinate_descent(space, space.base_candidate(), &mut |cs| {
-                subset.scores(cs).into_iter().map(|s| s.objective).collect()
-            });
+            let (best, _) =
+                strategy::coordinate_descent(space, space.base_candidate(), &mut |cs| {
+                    subset.scores(cs).into_iter().map(|s| s.objective).collect()
+                });
             let score = subset.scores(std::slice::from_ref(&best)).remove(0);
             SearchResult { best, score }
         }
@@ -359,7 +360,9 @@ pub fn cross_validate(
             search(space, &train, &fixed)
         };
         let held_out = engine.subset(f.test.clone());
-        let test_score = held_out.scores(std::slice::from_ref(&fitted.best)).remove(0);
+        let test_score = held_out
+            .scores(std::slice::from_ref(&fitted.best))
+            .remove(0);
         let test_base_score = held_out
             .scores(std::slice::from_ref(&space.base_candidate()))
             .remove(0);

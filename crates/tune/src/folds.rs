@@ -56,7 +56,10 @@ mod tests {
                 assert_eq!(f.train.len() + f.test.len(), n);
                 assert!(f.test.len() == n / k || f.test.len() == n / k + 1);
             }
-            assert!(seen.iter().all(|&c| c == 1), "each record held out once: {seen:?}");
+            assert!(
+                seen.iter().all(|&c| c == 1),
+                "each record held out once: {seen:?}"
+            );
         }
     }
 

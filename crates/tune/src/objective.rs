@@ -78,19 +78,25 @@ struct ObjectiveToml {
 }
 
 fn fid_index(key: &str) -> Result<usize, String> {
-    Fiducial::ALL.iter().position(|f| f.key() == key).ok_or_else(|| {
-        let keys: Vec<&str> = Fiducial::ALL.iter().map(|f| f.key()).collect();
-        let h = tendline_params::closest(key, keys.iter().copied())
-            .map(|c| format!(" (did you mean `{c}`?)"))
-            .unwrap_or_default();
-        format!("unknown fiducial `{key}`{h}; allowed: {}", keys.join(", "))
-    })
+    Fiducial::ALL
+        .iter()
+        .position(|f| f.key() == key)
+        .ok_or_else(|| {
+            let keys: Vec<&str> = Fiducial::ALL.iter().map(|f| f.key()).collect();
+            let h = tendline_params::closest(key, keys.iter().copied())
+                .map(|c| format!(" (did you mean `{c}`?)"))
+                .unwrap_or_default();
+            format!("unknown fiducial `{key}`{h}; allowed: {}", keys.join(", "))
+        })
 }
 
 impl Objective {
     /// Parse the `[objective]` table; keys given override the defaults.
     pub fn from_value(v: &toml::Value) -> Result<Self, String> {
-        let t: ObjectiveToml = v.clone().try_into().map_err(|e: toml::de::Error| e.to_string().trim().to_string())?;
+        let t: ObjectiveToml = v
+            .clone()
+            .try_into()
+            .map_err(|e: toml::de::Error| e.to_string().trim().to_string())?;
         let mut o = Objective::default();
         for (k, w) in t.weights.unwrap_or_default() {
             if !(w.is_finite() && w >= 0.0) {
@@ -100,12 +106,18 @@ impl Objective {
         }
         for (k, tol) in t.tolerance_ms.unwrap_or_default() {
             if !(tol.is_finite() && tol > 0.0) {
-                return Err(format!("tolerance_ms.{k}: allowed a number > 0 (ms), got {tol}"));
+                return Err(format!(
+                    "tolerance_ms.{k}: allowed a number > 0 (ms), got {tol}"
+                ));
             }
             o.tolerance_ms[fid_index(&k).map_err(|e| format!("tolerance_ms: {e}"))?] = tol;
         }
         for (name, v, slot) in [
-            ("sensitivity_penalty", t.sensitivity_penalty, &mut o.sensitivity_penalty),
+            (
+                "sensitivity_penalty",
+                t.sensitivity_penalty,
+                &mut o.sensitivity_penalty,
+            ),
             ("ppv_penalty", t.ppv_penalty, &mut o.ppv_penalty),
         ] {
             if let Some(v) = v {
@@ -233,7 +245,6 @@ pub fn fiducial_index(f: Fiducial) -> usize {
     Fiducial::ALL.iter().position(|x| *x == f).unwrap_or(0)
 }
 
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -249,24 +260,42 @@ mod tests {
         let tend = fiducial_index(Fiducial::TEnd);
         let mut a = RecordResult::default();
         a.errors[qon] = vec![2.0, -2.0];
-        a.counts[qon] = Counts { tp: 2, fn_: 0, fp: 0 };
+        a.counts[qon] = Counts {
+            tp: 2,
+            fn_: 0,
+            fp: 0,
+        };
         a.errors[tend] = vec![10.0, 30.0];
-        a.counts[tend] = Counts { tp: 2, fn_: 0, fp: 1 };
+        a.counts[tend] = Counts {
+            tp: 2,
+            fn_: 0,
+            fp: 1,
+        };
         let mut b = RecordResult::default();
         b.errors[qon] = vec![4.0];
-        b.counts[qon] = Counts { tp: 1, fn_: 1, fp: 0 };
+        b.counts[qon] = Counts {
+            tp: 1,
+            fn_: 1,
+            fp: 0,
+        };
         let s = Summary::pool([&a, &b]);
         assert_eq!(s.records, 2);
         let sd_q = (28.0f64 / 3.0).sqrt();
         assert!((s.fiducials[qon].sd_ms.unwrap() - sd_q).abs() < 1e-12);
         assert_eq!(s.fiducials[qon].se_pct, Some(75.0));
         let sd_t = 200f64.sqrt(); // [10, 30]: mean 20, SD sqrt((100 + 100) / 1)
-        let mut o = Objective::default();
-        o.weights = [0.0; N_FID];
+        let mut o = Objective {
+            weights: [0.0; N_FID],
+            ..Default::default()
+        };
         o.weights[qon] = 1.0;
         o.weights[tend] = 1.0;
         let expect = sd_q / 6.5 + 0.1 * 25.0 + sd_t / 30.6 + 0.1 * (100.0 - 200.0 / 3.0);
-        assert!((o.value(&s) - expect).abs() < 1e-9, "{} vs {expect}", o.value(&s));
+        assert!(
+            (o.value(&s) - expect).abs() < 1e-9,
+            "{} vs {expect}",
+            o.value(&s)
+        );
         // Pooling only record B: one error -> SD counts as the 150 ms window.
         let sb = Summary::pool([&b]);
         let expect_b = 150.0 / 6.5 + 0.1 * 50.0; // T end: no reference marks, left out
@@ -282,10 +311,16 @@ mod tests {
         assert_eq!(o.ppv_penalty, 0.0);
         let v: toml::Value = toml::from_str("weights = { t_ned = 2.0 }").unwrap();
         let e = Objective::from_value(&v).unwrap_err();
-        assert!(e.contains("t_ned") && e.contains("did you mean `t_end`"), "{e}");
+        assert!(
+            e.contains("t_ned") && e.contains("did you mean `t_end`"),
+            "{e}"
+        );
         let v: toml::Value = toml::from_str("tolerance_ms = { qrs_on = -1 }").unwrap();
         let e = Objective::from_value(&v).unwrap_err();
-        assert!(e.contains("tolerance_ms.qrs_on") && e.contains("got -1"), "{e}");
+        assert!(
+            e.contains("tolerance_ms.qrs_on") && e.contains("got -1"),
+            "{e}"
+        );
     }
 
     #[test]

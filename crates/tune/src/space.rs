@@ -310,8 +310,8 @@ impl SearchSpace {
             origin: origin.to_string(),
             message: m,
         };
-        let root: toml::Table =
-            toml::from_str(text).map_err(|e| err(format!("not valid TOML: {}", e.to_string().trim())))?;
+        let root: toml::Table = toml::from_str(text)
+            .map_err(|e| err(format!("not valid TOML: {}", e.to_string().trim())))?;
         let top = ["search", "objective", "params"];
         for k in root.keys() {
             if !top.contains(&k.as_str()) {
@@ -365,16 +365,28 @@ impl SearchSpace {
         let s = &self.search;
         let mut bad = Vec::new();
         if s.steps < 2 {
-            bad.push(format!("[search] steps: allowed 2 or more, got {}", s.steps));
+            bad.push(format!(
+                "[search] steps: allowed 2 or more, got {}",
+                s.steps
+            ));
         }
         if s.candidates < 1 {
-            bad.push(format!("[search] candidates: allowed 1 or more, got {}", s.candidates));
+            bad.push(format!(
+                "[search] candidates: allowed 1 or more, got {}",
+                s.candidates
+            ));
         }
         if s.rounds < 1 {
-            bad.push(format!("[search] rounds: allowed 1 or more, got {}", s.rounds));
+            bad.push(format!(
+                "[search] rounds: allowed 1 or more, got {}",
+                s.rounds
+            ));
         }
         if s.folds < 2 {
-            bad.push(format!("[search] folds: allowed 2 or more, got {}", s.folds));
+            bad.push(format!(
+                "[search] folds: allowed 2 or more, got {}",
+                s.folds
+            ));
         }
         for p in &self.params {
             let tried: Vec<(String, toml::Value)> = match &p.domain {
@@ -526,7 +538,10 @@ fn collect_params(
                 ));
             }
             let Some(arr) = vals.as_array() else {
-                return Err(format!("params.{key}.values: expected an array, got {}", scalar_kind(vals)));
+                return Err(format!(
+                    "params.{key}.values: expected an array, got {}",
+                    scalar_kind(vals)
+                ));
             };
             if arr.is_empty() {
                 return Err(format!("params.{key}.values: empty list"));
@@ -550,9 +565,9 @@ fn collect_params(
                 toml::Value::Float(_) => false,
                 other => {
                     return Err(format!(
-                        "params.{key}: `{key}` takes {}, so give `values = [..]` instead of a range",
-                        scalar_kind(other)
-                    ))
+                    "params.{key}: `{key}` takes {}, so give `values = [..]` instead of a range",
+                    scalar_kind(other)
+                ))
                 }
             };
             let num = |name: &str| -> Result<f64, String> {
@@ -560,7 +575,9 @@ fn collect_params(
                     Some(toml::Value::Float(f)) => Ok(*f),
                     Some(toml::Value::Integer(i)) => Ok(*i as f64),
                     Some(x) => Err(format!("params.{key}.{name}: expected a number, got {x}")),
-                    None => Err(format!("params.{key}: `{name}` missing (a range needs min and max)")),
+                    None => Err(format!(
+                        "params.{key}: `{name}` missing (a range needs min and max)"
+                    )),
                 }
             };
             let (min, max) = (num("min")?, num("max")?);
@@ -588,7 +605,9 @@ fn collect_params(
                 None => None,
                 Some(toml::Value::Integer(i)) if *i >= 2 => Some(*i as usize),
                 Some(x) => {
-                    return Err(format!("params.{key}.steps: allowed an integer of 2 or more, got {x}"))
+                    return Err(format!(
+                        "params.{key}.steps: allowed an integer of 2 or more, got {x}"
+                    ))
                 }
             };
             Domain::Range {
@@ -619,8 +638,14 @@ mod tests {
     /// `pipeline.toml` tree, measure table included).
     fn base() -> toml::Table {
         let mut t = toml::Table::new();
-        t.insert("filter".into(), toml::Value::try_from(FilterConfig::default()).unwrap());
-        t.insert("detect".into(), toml::Value::try_from(DetectConfig::default()).unwrap());
+        t.insert(
+            "filter".into(),
+            toml::Value::try_from(FilterConfig::default()).unwrap(),
+        );
+        t.insert(
+            "detect".into(),
+            toml::Value::try_from(DetectConfig::default()).unwrap(),
+        );
         t.insert(
             "delineate".into(),
             toml::Value::try_from(DelineateConfig::default()).unwrap(),
@@ -655,7 +680,10 @@ mod tests {
                 "detect.refractory_ms"
             ]
         );
-        assert!(matches!(s.params[0].domain, Domain::Range { integer: true, .. }));
+        assert!(matches!(
+            s.params[0].domain,
+            Domain::Range { integer: true, .. }
+        ));
         // An integer written for a float key becomes a float.
         assert_eq!(
             s.params[3].domain,
@@ -682,9 +710,14 @@ mod tests {
             .unwrap_err();
         assert!(e.contains("did you mean `search`"), "{e}");
         let e = parse("[params.delineate]\nt_xi_end = { min = 0.2, maxx = 0.7 }\n").unwrap_err();
-        assert!(e.contains("t_xi_end.maxx") && e.contains("did you mean `max`"), "{e}");
-        let e = parse("[search]\nstratgy = 'grid'\n[params.delineate]\nt_xi_end = { values = [0.3] }\n")
-            .unwrap_err();
+        assert!(
+            e.contains("t_xi_end.maxx") && e.contains("did you mean `max`"),
+            "{e}"
+        );
+        let e = parse(
+            "[search]\nstratgy = 'grid'\n[params.delineate]\nt_xi_end = { values = [0.3] }\n",
+        )
+        .unwrap_err();
         assert!(e.contains("stratgy"), "{e}");
     }
 
@@ -702,20 +735,41 @@ mod tests {
             .unwrap_err();
         assert!(e.contains("t_end_method") && e.contains("slope"), "{e}");
         let e = parse("[params.delineate]\nt_xi_end = { values = ['high'] }\n").unwrap_err();
-        assert!(e.contains("takes a number") && e.contains("\"high\""), "{e}");
+        assert!(
+            e.contains("takes a number") && e.contains("\"high\""),
+            "{e}"
+        );
     }
 
     #[test]
     fn other_mistakes_are_explained() {
         let cases = [
             ("[params.delineate]\nt_xi_end = 0.3\n", "expected { min"),
-            ("[params.delineate]\nt_xi_end = { min = 0.7, max = 0.2 }\n", "min < max"),
-            ("[params.delineate]\nt_gamma = { min = 0.0, max = 0.5, scale = 'log' }\n", "log scale needs min > 0"),
-            ("[params.delineate]\nt_end_method = { min = 1, max = 2 }\n", "give `values"),
-            ("[params.delineate]\nt_xi_end = { values = [] }\n", "empty list"),
+            (
+                "[params.delineate]\nt_xi_end = { min = 0.7, max = 0.2 }\n",
+                "min < max",
+            ),
+            (
+                "[params.delineate]\nt_gamma = { min = 0.0, max = 0.5, scale = 'log' }\n",
+                "log scale needs min > 0",
+            ),
+            (
+                "[params.delineate]\nt_end_method = { min = 1, max = 2 }\n",
+                "give `values",
+            ),
+            (
+                "[params.delineate]\nt_xi_end = { values = [] }\n",
+                "empty list",
+            ),
             ("[params]\ndelineate = { min = 1, max = 2 }\n", "is a table"),
-            ("[params.measure]\nwindow_s = { min = 5, max = 10 }\n", "[measure] keys do not change"),
-            ("[search]\nfolds = 1\n[params.delineate]\nt_xi_end = { values = [0.3] }\n", "folds: allowed 2 or more, got 1"),
+            (
+                "[params.measure]\nwindow_s = { min = 5, max = 10 }\n",
+                "[measure] keys do not change",
+            ),
+            (
+                "[search]\nfolds = 1\n[params.delineate]\nt_xi_end = { values = [0.3] }\n",
+                "folds: allowed 2 or more, got 1",
+            ),
             ("[search]\n", "no [params] table"),
         ];
         for (text, want) in cases {
@@ -727,19 +781,28 @@ mod tests {
     #[test]
     fn cross_key_violation_makes_only_that_candidate_invalid() {
         // t_window_end_min_ms must not exceed t_window_end_max_ms (600 by default).
-        let s = parse("[params.delineate]\nt_window_end_min_ms = { min = 300, max = 700 }\n").unwrap_err();
+        let s = parse("[params.delineate]\nt_window_end_min_ms = { min = 300, max = 700 }\n")
+            .unwrap_err();
         // The range end 700 alone already breaks the rule against the base: caught early.
         assert!(s.contains("t_window_end_min_ms"), "{s}");
         let s = parse(
             "[params.delineate]\nt_window_end_min_ms = { min = 300, max = 500 }\nt_window_end_max_ms = { min = 400, max = 800 }\n",
         )
         .unwrap();
-        let i_min = s.params.iter().position(|p| p.key.ends_with("min_ms")).unwrap();
+        let i_min = s
+            .params
+            .iter()
+            .position(|p| p.key.ends_with("min_ms"))
+            .unwrap();
         let mut c = s.base_candidate();
         c.0[i_min] = toml::Value::Float(500.0);
         c.0[1 - i_min] = toml::Value::Float(400.0);
         let e = s.config_for(&c).unwrap_err().to_string();
-        assert!(e.contains("delineate.t_window_end_min_ms") && e.contains("at most t_window_end_max_ms"), "{e}");
+        assert!(
+            e.contains("delineate.t_window_end_min_ms")
+                && e.contains("at most t_window_end_max_ms"),
+            "{e}"
+        );
     }
 
     #[test]

@@ -131,11 +131,7 @@ pub fn coordinate_descent(
                 .collect();
             if !cands.is_empty() {
                 let s = score(&cands);
-                if let Some((k, &best)) = s
-                    .iter()
-                    .enumerate()
-                    .min_by(|a, b| a.1.total_cmp(b.1))
-                {
+                if let Some((k, &best)) = s.iter().enumerate().min_by(|a, b| a.1.total_cmp(b.1)) {
                     if best < cur_s {
                         cur_s = best;
                         cur = cands[k].clone();
@@ -212,13 +208,19 @@ mod tests {
         let xs: Vec<f64> = g.iter().map(|c| c.0[1].as_float().unwrap()).collect();
         assert_eq!(xs, vec![0.2, 0.4, 0.6, 0.2, 0.4, 0.6]);
         let ms: Vec<&str> = g.iter().map(|c| c.0[0].as_str().unwrap()).collect();
-        assert_eq!(ms, vec!["wavelet", "wavelet", "wavelet", "area", "area", "area"]);
+        assert_eq!(
+            ms,
+            vec!["wavelet", "wavelet", "wavelet", "area", "area", "area"]
+        );
         let s = space(
             "t_xi_end = { min = 0.2, max = 0.6, steps = 100 }\nt_gamma = { min = 0.0, max = 0.5, steps = 200 }",
             "strategy = 'grid'\nmax_candidates = 1000",
         );
         let e = grid(&s).unwrap_err();
-        assert!(e.contains("20000") && e.contains("max_candidates = 1000"), "{e}");
+        assert!(
+            e.contains("20000") && e.contains("max_candidates = 1000"),
+            "{e}"
+        );
     }
 
     #[test]
@@ -255,7 +257,10 @@ mod tests {
 
     #[test]
     fn random_stops_when_the_space_is_exhausted() {
-        let s = space("t_end_method = { values = ['wavelet', 'area', 'tangent'] }", "");
+        let s = space(
+            "t_end_method = { values = ['wavelet', 'area', 'tangent'] }",
+            "",
+        );
         assert_eq!(random(&s, 100, 1).len(), 3);
     }
 
@@ -284,7 +289,10 @@ mod tests {
         });
         assert_eq!(best.0[im].as_str(), Some("area"));
         assert_eq!(best.0[ik].as_integer(), Some(5));
-        assert!((best.0[ix].as_float().unwrap() - 0.37).abs() < 0.02, "{best:?}");
+        assert!(
+            (best.0[ix].as_float().unwrap() - 0.37).abs() < 0.02,
+            "{best:?}"
+        );
         assert!((v - f(&best)).abs() < 1e-12);
         assert!(calls < 60, "{calls} evaluations");
     }

@@ -38,7 +38,9 @@ fn bad_base() -> toml::Table {
     t
 }
 
-const RECORDS: [&str; 6] = ["sel100", "sel103", "sel16265", "sele0106", "sel302", "sel232"];
+const RECORDS: [&str; 6] = [
+    "sel100", "sel103", "sel16265", "sele0106", "sel302", "sel232",
+];
 
 fn sources(dir: &std::path::Path) -> Vec<RecordSource> {
     RECORDS
