@@ -137,9 +137,29 @@ impl<'a> Engine<'a> {
                 AtomicUsize::new(n)
             })
             .collect();
-        // Stable: within one upstream key, candidate order is kept.
+        // One upstream key at a time: the threads never evict each other's
+        // cached record (stable sort keeps the candidate order within a key).
         work.sort_by(|a, b| a.2.cmp(&b.2));
-        work.into_par_iter().for_each(|(k, r, _)| {
+        let mut groups: Vec<Vec<(usize, usize)>> = Vec::new();
+        for (i, (k, r, key)) in work.iter().enumerate() {
+            if i == 0 || work[i - 1].2 != *key {
+                groups.push(Vec::new());
+            }
+            groups.last_mut().expect("pushed").push((*k, *r));
+        }
+        for group in groups {
+            self.run_group(group, &entries, &remaining, records);
+        }
+    }
+
+    fn run_group(
+        &self,
+        group: Vec<(usize, usize)>,
+        entries: &[Arc<Entry>],
+        remaining: &[AtomicUsize],
+        records: &[usize],
+    ) {
+        group.into_par_iter().for_each(|(k, r)| {
             let e = &entries[k];
             let Ok(cfg) = &e.config else { return };
             let res = self
