@@ -9,7 +9,7 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 use std::sync::Mutex;
 use std::time::Instant;
-use tendline_tune::{Dataset, Progress, RecordSource, RunInfo, SearchSpace};
+use tendline_tune::{Dataset, Progress, RecordSource, Reference, RunInfo, SearchSpace};
 
 #[derive(clap::Args)]
 pub struct TuneArgs {
@@ -40,7 +40,8 @@ pub struct TuneArgs {
     /// No progress output.
     #[arg(long)]
     pub quiet: bool,
-    /// Extension of the reference annotation files with global wave boundaries (QT Database annotator 1: q1c).
+    /// Extension of the reference annotation files with global wave boundaries (QT Database
+    /// annotator 1: q1c); `leads`: per-lead files `<record>.<lead name>` (LUDB), combined across leads.
     #[arg(long, default_value = "q1c", value_name = "EXT")]
     pub reference_ext: String,
     /// Sampling rate (Hz) for CSV records that do not state one.
@@ -87,12 +88,21 @@ pub fn cmd_tune(a: TuneArgs) -> Result<ExitCode> {
     let mut sources = Vec::new();
     let mut missing = Vec::new();
     for r in records {
+        if ext == "leads" {
+            // Which lead files exist is known once the header is read.
+            sources.push(RecordSource {
+                name: r.name,
+                path: r.path,
+                reference: Reference::LeadFiles,
+            });
+            continue;
+        }
         let reference = r.path.with_file_name(format!("{}.{ext}", r.name));
         if reference.is_file() {
             sources.push(RecordSource {
                 name: r.name,
                 path: r.path,
-                reference,
+                reference: Reference::File(reference),
             });
         } else {
             missing.push(r.name);

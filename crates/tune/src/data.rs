@@ -25,7 +25,7 @@ use tendline_delineate::{context_margin, delineate_prepared, prepare_lead, Prepa
 use tendline_dsp::filter::ConditioningFilter;
 use tendline_evaluate::matching::window_samples;
 use tendline_evaluate::score::{RecordScore, ScoreConfig};
-use tendline_evaluate::waves::{parse_beats, BeatMarks as RefBeat, Wave};
+use tendline_evaluate::waves::{combine_leads, parse_beats, BeatMarks as RefBeat, Wave};
 use tendline_evaluate::Fiducial;
 use tendline_formats::annotation::{code_of, Annotation};
 
@@ -45,14 +45,67 @@ pub trait Evaluate: Sync {
     fn evaluate(&self, cfg: &TunedConfig, record: usize) -> Result<RecordResult, TuneError>;
 }
 
-/// One input: a record and its reference annotation file.
+/// Where a record's reference marks come from.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Reference {
+    /// One annotation file with global boundaries (QTDB `.q1c`).
+    File(PathBuf),
+    /// One file per lead beside the record, `<record>.<lead name lowercased>`
+    /// (LUDB), combined into global marks as `tendline validate` does:
+    /// earliest onset, latest end, median peak across leads.
+    LeadFiles,
+}
+
+/// One input: a record and its reference annotations.
 #[derive(Debug, Clone, PartialEq)]
 pub struct RecordSource {
     pub name: String,
     /// Signal file handed to the reader (`.hea`, `.edf`, `.csv`).
     pub path: PathBuf,
-    /// Reference annotations (global boundaries, e.g. QTDB `.q1c`).
-    pub reference: PathBuf,
+    pub reference: Reference,
+}
+
+fn read_reference(
+    src: &RecordSource,
+    r: &tendline_formats::Record,
+) -> Result<Vec<RefBeat>, TuneError> {
+    let rec_err = |m: String| TuneError::Record {
+        record: src.name.clone(),
+        message: m,
+    };
+    let read = |p: &std::path::Path| {
+        tendline_formats::annotation::read_annotations(p)
+            .map_err(|e| rec_err(format!("reference {}: {e}", p.display())))
+    };
+    match &src.reference {
+        Reference::File(p) => Ok(parse_beats(&read(p)?, r.fs).beats),
+        Reference::LeadFiles => {
+            let mut lists = Vec::new();
+            for l in &r.leads {
+                let ext = l.name.trim().to_lowercase();
+                if ext.is_empty() || ext.contains(['/', '\\', ' ']) {
+                    continue;
+                }
+                let p = src.path.with_file_name(format!("{}.{ext}", src.name));
+                if p.is_file() {
+                    lists.push(parse_beats(&read(&p)?, r.fs).beats);
+                }
+            }
+            if lists.is_empty() {
+                return Err(rec_err(format!(
+                    "no lead reference files <record>.<lead name> beside {} (leads: {})",
+                    src.path.display(),
+                    r.leads
+                        .iter()
+                        .map(|l| l.name.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                )));
+            }
+            let refs: Vec<&[RefBeat]> = lists.iter().map(Vec::as_slice).collect();
+            Ok(combine_leads(&refs, window_samples(WINDOW_MS, r.fs)))
+        }
+    }
 }
 
 struct Upstream {
@@ -110,13 +163,7 @@ impl Dataset {
             .into_par_iter()
             .map(|src| {
                 let r = read(&src, csv_fs)?;
-                let anns = tendline_formats::annotation::read_annotations(&src.reference).map_err(
-                    |e| TuneError::Record {
-                        record: src.name.clone(),
-                        message: format!("reference {}: {e}", src.reference.display()),
-                    },
-                )?;
-                let reference = parse_beats(&anns, r.fs).beats;
+                let reference = read_reference(&src, &r)?;
                 Ok(RecordData {
                     src,
                     fs: r.fs,

@@ -63,7 +63,7 @@ pub mod report;
 pub mod space;
 pub mod strategy;
 
-pub use data::{Dataset, Evaluate, RecordSource};
+pub use data::{Dataset, Evaluate, RecordSource, Reference};
 pub use engine::{cross_validate, CvResult, FoldResult, Progress};
 pub use objective::{Objective, RecordResult, Score, Summary};
 pub use report::{write_outputs, RunInfo};

@@ -7,7 +7,7 @@
 //! Skips with a message when `../shared/data` is missing.
 
 use std::path::PathBuf;
-use tendline_tune::{cross_validate, Dataset, Progress, RecordSource, SearchSpace};
+use tendline_tune::{cross_validate, Dataset, Progress, RecordSource, Reference, SearchSpace};
 
 fn data_dir() -> Option<PathBuf> {
     let d = PathBuf::from(concat!(env!("CARGO_MANIFEST_DIR"), "/../../../shared/data"));
@@ -48,7 +48,7 @@ fn sources(dir: &std::path::Path) -> Vec<RecordSource> {
         .map(|r| RecordSource {
             name: r.to_string(),
             path: dir.join(format!("{r}.hea")),
-            reference: dir.join(format!("{r}.q1c")),
+            reference: Reference::File(dir.join(format!("{r}.q1c"))),
         })
         .collect()
 }
