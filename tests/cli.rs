@@ -368,61 +368,15 @@ fn tune_writes_a_loadable_config_and_scores_like_validate() {
     assert!(g < 0.6, "t_gamma stayed at the bad start: {g}");
 
     // Base configuration (t_gamma 0.6) through run + validate.
-    let run_dir = dir.path().join("run");
-    let o = bin()
-        .arg("run")
-        .args(&inputs)
-        .arg("--out")
-        .arg(&run_dir)
-        .args(["--set", "delineate.t_gamma=0.6", "--quiet"])
-        .output()
-        .unwrap();
-    assert!(o.status.success(), "{}", text(&o));
-    let o = bin()
-        .arg("validate")
-        .arg(&run_dir)
-        .arg("--data")
-        .arg(&q)
-        .args(["--reference", "global", "--quiet"])
-        .output()
-        .unwrap();
-    assert!(o.status.success(), "{}", text(&o));
-    let rep: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(run_dir.join("validation/report.json")).unwrap(),
-    )
-    .unwrap();
     let cands = std::fs::read_to_string(out.join("candidates.csv")).unwrap();
-    let head: Vec<&str> = cands.lines().next().unwrap().split(',').collect();
-    let base_row: Vec<&str> = cands
-        .lines()
-        .skip(1)
-        .map(|l| l.split(',').collect::<Vec<_>>())
-        .find(|r| r[1] == "0.6")
-        .expect("base candidate scored");
-    let col = |name: &str| base_row[head.iter().position(|h| *h == name).unwrap()];
-    let fids = rep["global"]["fiducials"]
-        .as_array()
-        .expect("report.json layout");
-    let mut compared = 0;
-    for fid in ["p_on", "qrs_on", "qrs_end", "t_peak", "t_end"] {
-        let f = fids.iter().find(|x| x["fiducial"] == fid).unwrap();
-        let (Some(sd), Some(se)) = (f["stats"]["sd_ms"].as_f64(), f["sensitivity_pct"].as_f64())
-        else {
-            continue;
-        };
-        let tsd: f64 = col(&format!("{fid}_sd_ms")).parse().unwrap();
-        let tse: f64 = col(&format!("{fid}_se_pct")).parse().unwrap();
-        assert!(
-            (tsd - sd).abs() < 0.006,
-            "{fid}: tune SD {tsd} vs validate {sd}"
-        );
-        assert!(
-            (tse - se).abs() < 0.006,
-            "{fid}: tune Se {tse} vs validate {se}"
-        );
-        compared += 1;
-    }
-    assert_eq!(compared, 5);
+    assert_scores_equal_validate(
+        &cands,
+        "0.6",
+        &inputs,
+        &q,
+        &["--set", "delineate.t_gamma=0.6"],
+        dir.path(),
+    );
 
     // A typo in the space names the key and a close match; exit code 2.
     std::fs::write(
@@ -445,4 +399,108 @@ fn tune_writes_a_loadable_config_and_scores_like_validate() {
         t.contains("delineate.t_gama") && t.contains("did you mean `delineate.t_gamma`"),
         "{t}"
     );
+}
+
+/// The candidate whose tuned value is `value` in `candidates.csv` scores like
+/// `tendline run` + `tendline validate --reference global` on the same records.
+fn assert_scores_equal_validate(
+    cands: &str,
+    value: &str,
+    inputs: &[PathBuf],
+    data_dir: &Path,
+    set: &[&str],
+    tmp: &Path,
+) {
+    let run_dir = tmp.join("run");
+    let o = bin()
+        .arg("run")
+        .args(inputs)
+        .arg("--out")
+        .arg(&run_dir)
+        .args(set)
+        .arg("--quiet")
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let o = bin()
+        .arg("validate")
+        .arg(&run_dir)
+        .arg("--data")
+        .arg(data_dir)
+        .args(["--reference", "global", "--quiet"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let rep: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(run_dir.join("validation/report.json")).unwrap(),
+    )
+    .unwrap();
+    let head: Vec<&str> = cands.lines().next().unwrap().split(',').collect();
+    let base_row: Vec<&str> = cands
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .find(|r| r[1] == value)
+        .expect("candidate scored");
+    let col = |name: &str| base_row[head.iter().position(|h| *h == name).unwrap()];
+    let fids = rep["global"]["fiducials"]
+        .as_array()
+        .expect("report.json layout");
+    let mut compared = 0;
+    for fid in ["p_on", "p_end", "qrs_on", "qrs_end", "t_peak", "t_end"] {
+        let f = fids.iter().find(|x| x["fiducial"] == fid).unwrap();
+        let (Some(sd), Some(se), Some(ppv)) = (
+            f["stats"]["sd_ms"].as_f64(),
+            f["sensitivity_pct"].as_f64(),
+            f["ppv_pct"].as_f64(),
+        ) else {
+            continue;
+        };
+        let got = |c: &str| -> f64 { col(&format!("{fid}_{c}")).parse().unwrap() };
+        assert!(
+            (got("sd_ms") - sd).abs() < 0.006,
+            "{fid}: tune SD {} vs validate {sd}",
+            got("sd_ms")
+        );
+        assert!(
+            (got("se_pct") - se).abs() < 0.006,
+            "{fid}: tune Se {} vs validate {se}",
+            got("se_pct")
+        );
+        assert!(
+            (got("ppv_pct") - ppv).abs() < 0.006,
+            "{fid}: tune +P {} vs validate {ppv}",
+            got("ppv_pct")
+        );
+        compared += 1;
+    }
+    assert!(compared >= 5, "only {compared} fiducials compared");
+}
+
+/// LUDB (Kalyakulina et al. 2020) per-lead references, combined across leads
+/// (`--reference-ext leads`), score like `tendline validate`'s global section.
+#[test]
+fn tune_with_ludb_lead_references_scores_like_validate() {
+    let l = data().join("ludb");
+    let inputs: Vec<PathBuf> = ["1", "2", "3", "4"].iter().map(|r| l.join(r)).collect();
+    let dir = tempfile::tempdir().unwrap();
+    let space = dir.path().join("space.toml");
+    std::fs::write(
+        &space,
+        "[search]\nstrategy = 'grid'\nfolds = 2\n[params.delineate]\nt_xi_end = { values = [0.3, 0.5] }\n",
+    )
+    .unwrap();
+    let out = dir.path().join("tune");
+    let o = bin()
+        .arg("tune")
+        .args(&inputs)
+        .args(["--reference-ext", "leads", "--quiet", "--space"])
+        .arg(&space)
+        .arg("--out")
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let cands = std::fs::read_to_string(out.join("candidates.csv")).unwrap();
+    assert_scores_equal_validate(&cands, "0.5", &inputs, &l, &[], dir.path());
 }
