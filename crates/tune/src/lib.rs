@@ -27,6 +27,7 @@
 //! tolerance_ms = { t_peak = 30.6 }
 //! sensitivity_penalty = 0.1   # per percentage point below 100
 //! ppv_penalty = 0.1
+//! bias_penalty = 0.0          # weight of |mean error| / tolerance
 //!
 //! [params.delineate]    # keys of pipeline.toml, nested or dotted
 //! t_xi_end = { min = 0.2, max = 0.8 }                 # range (float key)

@@ -4,7 +4,8 @@
 //! For a set of records, per fiducial f (pooled over the records' scored beats):
 //!
 //! ```text
-//! J = Σ_f w_f · ( SD_f / tol_f + λ_Se · (100 − Se_f) + λ_+P · (100 − +P_f) )
+//! J = Σ_f w_f · ( SD_f / tol_f + λ_Se · (100 − Se_f) + λ_+P · (100 − +P_f)
+//!                 + λ_bias · |mean_f| / tol_f )
 //! ```
 //!
 //! * SD_f: sample SD (n − 1) of the signed errors test − reference (ms) of the
@@ -22,6 +23,8 @@
 //! * w_f: 1 for P on, P end, QRS on, QRS end, T peak and T end; 0 for P
 //!   peak (two fiducials per wave). A fiducial without reference marks in the
 //!   record set is left out.
+//! * mean_f: mean error (ms); λ_bias = 0 by default (the CSE criterion is on
+//!   the SD), set it to also penalise a systematic shift.
 //!
 //! Everything is configurable in the space file's `[objective]` table.
 
@@ -48,6 +51,8 @@ pub struct Objective {
     pub sensitivity_penalty: f64,
     /// Cost per percentage point of positive predictivity below 100.
     pub ppv_penalty: f64,
+    /// Weight of |mean error| / tolerance (0 = the SD alone).
+    pub bias_penalty: f64,
 }
 
 impl Default for Objective {
@@ -64,6 +69,7 @@ impl Default for Objective {
             tolerance_ms,
             sensitivity_penalty: 0.1,
             ppv_penalty: 0.1,
+            bias_penalty: 0.0,
         }
     }
 }
@@ -75,6 +81,7 @@ struct ObjectiveToml {
     tolerance_ms: Option<BTreeMap<String, f64>>,
     sensitivity_penalty: Option<f64>,
     ppv_penalty: Option<f64>,
+    bias_penalty: Option<f64>,
 }
 
 fn fid_index(key: &str) -> Result<usize, String> {
@@ -119,6 +126,7 @@ impl Objective {
                 &mut o.sensitivity_penalty,
             ),
             ("ppv_penalty", t.ppv_penalty, &mut o.ppv_penalty),
+            ("bias_penalty", t.bias_penalty, &mut o.bias_penalty),
         ] {
             if let Some(v) = v {
                 if !(v.is_finite() && v >= 0.0) {
@@ -147,8 +155,16 @@ impl Objective {
                 ) + &format!(" [{}]", f.key())
             })
             .collect();
+        let bias = if self.bias_penalty > 0.0 {
+            format!(
+                " + {} x |mean error| / tolerance",
+                fmt_num(self.bias_penalty)
+            )
+        } else {
+            String::new()
+        };
         format!(
-            "sum over fiducials of {}; plus per fiducial weight x ({} x (100 - Se%) + {} x (100 - +P%))",
+            "sum over fiducials of {}; plus per fiducial weight x ({} x (100 - Se%) + {} x (100 - +P%){bias})",
             terms.join(" + "),
             fmt_num(self.sensitivity_penalty),
             fmt_num(self.ppv_penalty)
@@ -166,8 +182,9 @@ impl Objective {
             let sd = f.sd_ms.unwrap_or(MISSING_SD_MS);
             let se = f.se_pct.unwrap_or(0.0);
             let ppv = f.ppv_pct.unwrap_or(100.0);
+            let bias = f.mean_ms.map_or(0.0, f64::abs);
             j += w
-                * (sd / self.tolerance_ms[i]
+                * ((sd + self.bias_penalty * bias) / self.tolerance_ms[i]
                     + self.sensitivity_penalty * (100.0 - se)
                     + self.ppv_penalty * (100.0 - ppv));
         }
@@ -300,6 +317,10 @@ mod tests {
         let sb = Summary::pool([&b]);
         let expect_b = 150.0 / 6.5 + 0.1 * 50.0; // T end: no reference marks, left out
         assert!((o.value(&sb) - expect_b).abs() < 1e-9);
+        // With the bias term: QRS on mean 4/3 ms, T end mean 20 ms, weight 0.5.
+        o.bias_penalty = 0.5;
+        let with_bias = expect + 0.5 * (4.0 / 3.0) / 6.5 + 0.5 * 20.0 / 30.6;
+        assert!((o.value(&s) - with_bias).abs() < 1e-9);
     }
 
     #[test]
