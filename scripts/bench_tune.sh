@@ -11,6 +11,7 @@ data=../shared/data/qtdb
 [ -x /usr/bin/time ] || { echo "needs /usr/bin/time (apt-get install time)"; exit 1; }
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
+load=$(cut -d' ' -f1 /proc/loadavg)
 /usr/bin/time -f "%e %M" -o "$tmp/time" "$bin" tune "$data" \
   --space validation/tune-space.example.toml --out "$tmp/out" \
   --folds 5 --seed 1 --jobs 2 --quiet
@@ -24,7 +25,8 @@ Measured $(date -u +%Y-%m-%dT%H:%MZ) on $(nproc) cores, $(uname -m), with
 \`scripts/bench_tune.sh\`: random search, ${cands} candidates (the base
 configuration included) over the 6 thresholds of
 \`validation/tune-space.example.toml\`, all 105 records, 5 record-level folds,
-\`--jobs 2\`.
+\`--jobs 2\`. Load average (1 min) when it started: ${load} (the 2 cores
+are shared with other work, so wall time varies with it).
 
 | run | wall s | peak RSS MB |
 |---|---:|---:|
