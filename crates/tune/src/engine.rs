@@ -252,10 +252,17 @@ impl Subset<'_> {
     /// Scores of `cands` on these records (infinite objective when invalid).
     pub fn scores(&self, cands: &[Candidate]) -> Vec<Score> {
         self.engine.ensure(cands, &self.records);
-        cands
+        let scores: Vec<Score> = cands
             .iter()
             .map(|c| self.engine.pooled(&self.engine.entry(c), &self.records))
-            .collect()
+            .collect();
+        // Candidates answered from the memo finish no work item: report here too.
+        let best = scores
+            .iter()
+            .map(|s| s.objective)
+            .fold(f64::INFINITY, f64::min);
+        self.engine.report(best.is_finite().then_some(best));
+        scores
     }
 }
 
