@@ -24,6 +24,8 @@ r1=$(measure jobs1 target/release/tendline run "$data" --out "$tmp/o1" --jobs 1 
 r2=$(measure jobs2 target/release/tendline run "$data" --out "$tmp/o2" --jobs 2 --quiet --force)
 py=$(measure python .venv/bin/python bench/python_baseline.py "$data")
 
+# Keep the tuning section written by scripts/bench_tune.sh.
+tune_section=$(sed -n '/<!-- tune-bench -->/,/<!-- \/tune-bench -->/p' bench/results.md 2>/dev/null || true)
 read -r _ s1 m1 <<<"$r1"; read -r _ s2 m2 <<<"$r2"; read -r _ sp mp <<<"$py"
 {
   echo "# Whole-pipeline benchmark, QTDB (105 records, 47.2 M samples)"
@@ -38,3 +40,4 @@ read -r _ s1 m1 <<<"$r1"; read -r _ s2 m2 <<<"$r2"; read -r _ sp mp <<<"$py"
   echo
   echo "Speed-up 1→2 threads: $(python3 -c "print(f'{$s1/$s2:.2f}')")×; tendline (2 threads) / Python read+filter: $(python3 -c "print(f'{$s2/$sp:.2f}')")."
 } | tee bench/results.md
+if [ -n "$tune_section" ]; then printf '\n%s\n' "$tune_section" >> bench/results.md; fi

@@ -323,3 +323,201 @@ fn review_site_and_corrections_round_trip_through_the_binary() {
         before
     );
 }
+
+/// `tendline tune` on four QT Database records (Laguna et al. 1997, `.q1c`
+/// annotator 1 as reference) from a bad `delineate.t_gamma`: every output is
+/// written, the tuned `pipeline.toml` loads like a hand-written one, and the
+/// scores of the base configuration equal `tendline validate` on a
+/// `tendline run` of the same records (same scoring code, same marks).
+#[test]
+fn tune_writes_a_loadable_config_and_scores_like_validate() {
+    let q = data().join("qtdb");
+    let recs = ["sel100", "sel103", "sel16265", "sele0106"];
+    let inputs: Vec<PathBuf> = recs.iter().map(|r| q.join(r)).collect();
+    let dir = tempfile::tempdir().unwrap();
+    let space = dir.path().join("space.toml");
+    std::fs::write(
+        &space,
+        "[search]\nstrategy = 'grid'\nsteps = 4\nfolds = 2\n[params.delineate]\nt_gamma = { min = 0.05, max = 0.6 }\n",
+    )
+    .unwrap();
+    let out = dir.path().join("tune");
+    let o = bin()
+        .arg("tune")
+        .args(&inputs)
+        .arg("--space")
+        .arg(&space)
+        .arg("--out")
+        .arg(&out)
+        .args(["--set", "delineate.t_gamma=0.6", "--jobs", "2"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    for f in [
+        "pipeline.toml",
+        "cv.csv",
+        "cv.md",
+        "candidates.csv",
+        "tune.html",
+    ] {
+        assert!(out.join(f).is_file(), "{f} missing");
+    }
+    let cv = std::fs::read_to_string(out.join("cv.csv")).unwrap();
+    let firsts: Vec<&str> = cv
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').next().unwrap())
+        .collect();
+    assert_eq!(firsts, ["1", "2", "mean", "all", "base"], "{cv}");
+    let html = std::fs::read_to_string(out.join("tune.html")).unwrap();
+    assert!(html.contains("<svg") && html.contains("delineate.t_gamma"));
+    // The tuned config loads through the normal path and carries the tuned value.
+    let o = bin()
+        .arg("config")
+        .arg("--config")
+        .arg(out.join("pipeline.toml"))
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let effective = String::from_utf8_lossy(&o.stdout).to_string();
+    let tuned: toml::Table = toml::from_str(&effective).unwrap();
+    let g = tuned["delineate"]["t_gamma"].as_float().unwrap();
+    assert!(g < 0.6, "t_gamma stayed at the bad start: {g}");
+
+    // Base configuration (t_gamma 0.6) through run + validate.
+    let cands = std::fs::read_to_string(out.join("candidates.csv")).unwrap();
+    assert_scores_equal_validate(
+        &cands,
+        "0.6",
+        &inputs,
+        &q,
+        &["--set", "delineate.t_gamma=0.6"],
+        dir.path(),
+    );
+
+    // A typo in the space names the key and a close match; exit code 2.
+    std::fs::write(
+        &space,
+        "[params.delineate]\nt_gama = { min = 0.05, max = 0.6 }\n",
+    )
+    .unwrap();
+    let o = bin()
+        .arg("tune")
+        .args(&inputs)
+        .arg("--space")
+        .arg(&space)
+        .arg("--out")
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2));
+    let t = text(&o);
+    assert!(
+        t.contains("delineate.t_gama") && t.contains("did you mean `delineate.t_gamma`"),
+        "{t}"
+    );
+}
+
+/// The candidate whose tuned value is `value` in `candidates.csv` scores like
+/// `tendline run` + `tendline validate --reference global` on the same records.
+fn assert_scores_equal_validate(
+    cands: &str,
+    value: &str,
+    inputs: &[PathBuf],
+    data_dir: &Path,
+    set: &[&str],
+    tmp: &Path,
+) {
+    let run_dir = tmp.join("run");
+    let o = bin()
+        .arg("run")
+        .args(inputs)
+        .arg("--out")
+        .arg(&run_dir)
+        .args(set)
+        .arg("--quiet")
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let o = bin()
+        .arg("validate")
+        .arg(&run_dir)
+        .arg("--data")
+        .arg(data_dir)
+        .args(["--reference", "global", "--quiet"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let rep: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(run_dir.join("validation/report.json")).unwrap(),
+    )
+    .unwrap();
+    let head: Vec<&str> = cands.lines().next().unwrap().split(',').collect();
+    let base_row: Vec<&str> = cands
+        .lines()
+        .skip(1)
+        .map(|l| l.split(',').collect::<Vec<_>>())
+        .find(|r| r[1] == value)
+        .expect("candidate scored");
+    let col = |name: &str| base_row[head.iter().position(|h| *h == name).unwrap()];
+    let fids = rep["global"]["fiducials"]
+        .as_array()
+        .expect("report.json layout");
+    let mut compared = 0;
+    for fid in ["p_on", "p_end", "qrs_on", "qrs_end", "t_peak", "t_end"] {
+        let f = fids.iter().find(|x| x["fiducial"] == fid).unwrap();
+        let (Some(sd), Some(se), Some(ppv)) = (
+            f["stats"]["sd_ms"].as_f64(),
+            f["sensitivity_pct"].as_f64(),
+            f["ppv_pct"].as_f64(),
+        ) else {
+            continue;
+        };
+        let got = |c: &str| -> f64 { col(&format!("{fid}_{c}")).parse().unwrap() };
+        assert!(
+            (got("sd_ms") - sd).abs() < 0.006,
+            "{fid}: tune SD {} vs validate {sd}",
+            got("sd_ms")
+        );
+        assert!(
+            (got("se_pct") - se).abs() < 0.006,
+            "{fid}: tune Se {} vs validate {se}",
+            got("se_pct")
+        );
+        assert!(
+            (got("ppv_pct") - ppv).abs() < 0.006,
+            "{fid}: tune +P {} vs validate {ppv}",
+            got("ppv_pct")
+        );
+        compared += 1;
+    }
+    assert!(compared >= 5, "only {compared} fiducials compared");
+}
+
+/// LUDB (Kalyakulina et al. 2020) per-lead references, combined across leads
+/// (`--reference-ext leads`), score like `tendline validate`'s global section.
+#[test]
+fn tune_with_ludb_lead_references_scores_like_validate() {
+    let l = data().join("ludb");
+    let inputs: Vec<PathBuf> = ["1", "2", "3", "4"].iter().map(|r| l.join(r)).collect();
+    let dir = tempfile::tempdir().unwrap();
+    let space = dir.path().join("space.toml");
+    std::fs::write(
+        &space,
+        "[search]\nstrategy = 'grid'\nfolds = 2\n[params.delineate]\nt_xi_end = { values = [0.3, 0.5] }\n",
+    )
+    .unwrap();
+    let out = dir.path().join("tune");
+    let o = bin()
+        .arg("tune")
+        .args(&inputs)
+        .args(["--reference-ext", "leads", "--quiet", "--space"])
+        .arg(&space)
+        .arg("--out")
+        .arg(&out)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let cands = std::fs::read_to_string(out.join("candidates.csv")).unwrap();
+    assert_scores_equal_validate(&cands, "0.5", &inputs, &l, &[], dir.path());
+}

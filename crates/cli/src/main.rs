@@ -8,6 +8,7 @@ mod measures;
 mod pipeline;
 mod run;
 mod tables;
+mod tune;
 mod validate;
 
 use anyhow::{Context, Result};
@@ -51,6 +52,9 @@ enum Command {
         #[arg(long)]
         who: Option<String>,
     },
+    /// Search thresholds over annotated records with record-level cross-validation;
+    /// write the best configuration, the CV table and a report page to --out.
+    Tune(tune::TuneArgs),
     /// Print the effective configuration (defaults, --config file and --set overrides) after validation.
     Config {
         /// Configuration file (TOML); default: the built-in pipeline.toml.
@@ -208,6 +212,7 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Run(a) => cmd_run(a),
         Command::Validate(a) => validate::cmd_validate(a),
+        Command::Tune(a) => tune::cmd_tune(a),
         Command::Review { run, out } => cmd_review(&run, out),
         Command::Apply {
             run,

@@ -215,6 +215,100 @@ pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig
     Delineation { per_lead, global }
 }
 
+/// One lead with its wavelet transform at the analysis rate, computed once so
+/// that several configurations can be tried on the same signal (threshold
+/// tuning). It depends only on the signal, `fs` and `analysis_fs_hz`: a
+/// configuration with another analysis rate needs a new [`PreparedLead`].
+pub struct PreparedLead {
+    la: Option<lead::LeadAnalysis>,
+    fs: f64,
+    analysis_fs_hz: f64,
+}
+
+impl PreparedLead {
+    /// Input sampling rate (Hz) of the lead.
+    pub fn fs(&self) -> f64 {
+        self.fs
+    }
+
+    /// Analysis rate (Hz) the transform was computed at.
+    pub fn analysis_fs_hz(&self) -> f64 {
+        self.analysis_fs_hz
+    }
+}
+
+/// Resample `x` to `cfg.analysis_fs_hz` and compute its wavelet transform
+/// (the part of [`delineate_lead`] that no other threshold affects).
+pub fn prepare_lead(x: &[f64], fs: f64, cfg: &DelineateConfig) -> PreparedLead {
+    let la =
+        (fs.is_finite() && fs > 0.0 && !x.is_empty()).then(|| lead::LeadAnalysis::new(x, fs, cfg));
+    PreparedLead {
+        la,
+        fs,
+        analysis_fs_hz: cfg.analysis_fs_hz,
+    }
+}
+
+/// [`delineate`] on prepared leads, for the beats with `want[i]` only; the
+/// others get empty marks. With every beat wanted the result equals
+/// [`delineate`] with the same configuration (at the prepared analysis rate;
+/// `cfg.analysis_fs_hz` is not looked at).
+///
+/// A beat's marks also depend on its neighbours (the previous beat's T end
+/// bounds the P search; `t_recheck_ms` and the `consistent` pair rule use up
+/// to `global_context_beats` beats either side), so a wanted beat is
+/// delineated exactly as in the full run when the
+/// [`context_margin`] beats on either side are wanted too.
+/// `want` shorter than `qrs` counts as false for the missing beats.
+pub fn delineate_prepared(
+    leads: &[PreparedLead],
+    qrs: &[usize],
+    want: &[bool],
+    cfg: &DelineateConfig,
+) -> Delineation {
+    let wanted = |i: usize| want.get(i).copied().unwrap_or(false);
+    let per_lead: Vec<Vec<BeatMarks>> = leads
+        .iter()
+        .map(|pl| {
+            let mut out = vec![BeatMarks::default(); qrs.len()];
+            let Some(la) = &pl.la else { return out };
+            for i in 0..qrs.len() {
+                if !wanted(i) {
+                    continue;
+                }
+                let prev = if i > 0 { Some(qrs[i - 1]) } else { None };
+                let next = qrs.get(i + 1).copied();
+                let prev_t_end = if i > 0 && wanted(i - 1) {
+                    out[i - 1].t_end_wavelet.map(|m| m.sample)
+                } else {
+                    None
+                };
+                out[i] = la.beat(qrs[i], prev, next, prev_t_end, None, cfg);
+            }
+            if cfg.t_recheck_ms > 0.0 {
+                recheck_t(la, &mut out, qrs, pl.fs, cfg);
+            }
+            out
+        })
+        .collect();
+    let fs = leads.first().map_or(1.0, |l| l.fs);
+    let global = global::combine(&per_lead, qrs.len(), fs, cfg);
+    Delineation { per_lead, global }
+}
+
+/// Beats on either side of a beat that [`delineate_prepared`] must also
+/// delineate for that beat's marks to equal the full run's under `cfg`.
+pub fn context_margin(cfg: &DelineateConfig) -> usize {
+    // Global combination looks `global_context_beats` either side; the second
+    // T pass looks as far again; one more for the previous T end of the P search.
+    let recheck = if cfg.t_recheck_ms > 0.0 {
+        cfg.global_context_beats
+    } else {
+        0
+    };
+    cfg.global_context_beats + recheck + 1
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
