@@ -135,15 +135,19 @@ impl Blocks {
             (a + e) as f64 / 2.0
         };
         let mut out = vec![0.0; self.n];
+        if self.count == 1 {
+            out.fill(v[0]);
+            return out;
+        }
+        let (first, last) = (c(0), c(self.count - 1));
         for (i, o) in out.iter_mut().enumerate() {
             let t = i as f64;
-            if self.count == 1 || t <= c(0) {
+            if t <= first {
                 *o = v[0];
-            } else if t >= c(self.count - 1) {
+            } else if t >= last {
                 *o = v[self.count - 1];
             } else {
-                let b = ((t - self.len as f64 / 2.0) / self.len as f64).floor() as usize;
-                let b = b.min(self.count - 2);
+                let b = self.segment(i).min(self.count - 2);
                 let (c0, c1) = (c(b), c(b + 1));
                 let f = ((t - c0) / (c1 - c0)).clamp(0.0, 1.0);
                 *o = v[b] * (1.0 - f) + v[b + 1] * f;
@@ -151,19 +155,25 @@ impl Blocks {
         }
         out
     }
+
+    /// `floor((i − len/2) / len)` for a sample past the first block centre, in
+    /// integers: `(2i − len) div 2·len`. Equal to the float expression, whose
+    /// operands are exact and whose quotient's rounding error (relative 2⁻⁵³)
+    /// is far below the 1/(2·len) gap to the next integer.
+    fn segment(&self, i: usize) -> usize {
+        (2 * i).saturating_sub(self.len) / (2 * self.len)
+    }
+
+    /// The float expression [`Blocks::segment`] replaces (test oracle).
+    #[cfg(test)]
+    fn segment_float(&self, i: usize) -> usize {
+        let t = i as f64;
+        ((t - self.len as f64 / 2.0) / self.len as f64).floor() as usize
+    }
 }
 
 fn median(v: &mut [f64]) -> Option<f64> {
-    if v.is_empty() {
-        return None;
-    }
-    v.sort_by(|a, b| a.total_cmp(b));
-    let m = v.len() / 2;
-    Some(if v.len() % 2 == 1 {
-        v[m]
-    } else {
-        0.5 * (v[m - 1] + v[m])
-    })
+    (!v.is_empty()).then(|| crate::label::median(v))
 }
 
 /// Local beat level of a signal: median of block maxima over neighbouring
@@ -514,5 +524,34 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
         beats,
         unreadable,
         lead_quality,
+    }
+}
+
+#[cfg(test)]
+mod block_tests {
+    use super::*;
+
+    // The integer block index against the float expression it replaces, over
+    // whole records of several lengths and block sizes (odd and even).
+    #[test]
+    fn integer_segment_equals_float_floor() {
+        for (n, len) in [
+            (1000usize, 500usize),
+            (650_000, 500),
+            (10_007, 333),
+            (5_000, 1),
+        ] {
+            let b = Blocks {
+                len,
+                count: n.div_ceil(len),
+                n,
+            };
+            let first = (b.range(0).0 + b.range(0).1) as f64 / 2.0;
+            for i in 0..n {
+                if i as f64 > first {
+                    assert_eq!(b.segment(i), b.segment_float(i), "n={n} len={len} i={i}");
+                }
+            }
+        }
     }
 }

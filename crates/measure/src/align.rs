@@ -70,51 +70,100 @@ pub fn extract(
     after: usize,
     interp: Interpolation,
 ) -> Vec<f64> {
+    let mut out = Vec::with_capacity(before + after + 1);
+    extract_into(x, center, before, after, interp, &mut out);
+    out
+}
+
+/// [`extract`] into a reused buffer (cleared first).
+pub fn extract_into(
+    x: &[f64],
+    center: f64,
+    before: usize,
+    after: usize,
+    interp: Interpolation,
+    out: &mut Vec<f64>,
+) {
+    out.clear();
     let start = center - before as f64;
     let i0 = start.floor() as i64;
     let fr = start - i0 as f64;
     if interp == Interpolation::Linear || fr.abs() < 1e-12 {
-        return (0..before + after + 1)
-            .map(|k| sample_at(x, start + k as f64, interp))
-            .collect();
+        out.extend((0..before + after + 1).map(|k| sample_at(x, start + k as f64, interp)));
+        return;
     }
     // Every output sample has the same fractional offset, so the Lanczos weights are
     // computed once per beat instead of once per sample (the same result as
     // `sample_at`, which the tests use as the oracle).
-    let weights: Vec<f64> = ((1 - LANCZOS_A)..=LANCZOS_A)
-        .map(|j| lanczos(fr - j as f64))
-        .collect();
+    let mut weights = [0.0; 2 * LANCZOS_A as usize];
+    for (w, j) in weights.iter_mut().zip((1 - LANCZOS_A)..=LANCZOS_A) {
+        *w = lanczos(fr - j as f64);
+    }
     let wsum: f64 = weights.iter().sum();
-    (0..before + after + 1)
-        .map(|k| {
-            let base = i0 + k as i64;
-            let s: f64 = weights
+    let n = x.len() as i64;
+    out.extend((0..before + after + 1).map(|k| {
+        let base = i0 + k as i64;
+        let s: f64 = if base + 1 - LANCZOS_A >= 0 && base + LANCZOS_A < n {
+            // Inside the signal: no edge clamping, same taps in the same order.
+            let lo = (base + 1 - LANCZOS_A) as usize;
+            weights
+                .iter()
+                .zip(&x[lo..lo + weights.len()])
+                .map(|(w, v)| w * v)
+                .sum()
+        } else {
+            weights
                 .iter()
                 .zip((1 - LANCZOS_A)..=LANCZOS_A)
                 .map(|(w, j)| w * at(x, base + j))
-                .sum();
-            s / wsum
-        })
-        .collect()
+                .sum()
+        };
+        s / wsum
+    }));
 }
 
 /// Sample-wise median of equal-length segments (mean of the two middle values for even counts).
-pub fn median_beat(segments: &[Vec<f64>]) -> Vec<f64> {
+pub fn median_beat<S: AsRef<[f64]>>(segments: &[S]) -> Vec<f64> {
     let Some(first) = segments.first() else {
         return Vec::new();
     };
     let mut col = Vec::with_capacity(segments.len());
-    (0..first.len())
+    (0..first.as_ref().len())
         .map(|k| {
             col.clear();
-            col.extend(segments.iter().map(|s| s[k]));
+            col.extend(segments.iter().map(|s| s.as_ref()[k]));
             median(&mut col)
         })
         .collect()
 }
 
 /// Median of a slice (reorders it); NaN for an empty slice.
+///
+/// By selection rather than a full sort: the k-th value in the total order of
+/// `f64::total_cmp` is unique bit for bit, so the result equals the middle of
+/// the sorted slice ([`median_sorted`], the test oracle).
 pub fn median(v: &mut [f64]) -> f64 {
+    if v.is_empty() {
+        return f64::NAN;
+    }
+    let n = v.len();
+    let m = n / 2;
+    let (left, mid, _) = v.select_nth_unstable_by(m, |a, b| a.total_cmp(b));
+    let mid = *mid;
+    if n % 2 == 1 {
+        mid
+    } else {
+        let below = left
+            .iter()
+            .copied()
+            .max_by(|a, b| a.total_cmp(b))
+            .expect("n even and > 0: left half not empty");
+        0.5 * (below + mid)
+    }
+}
+
+/// Median by a full sort: the obvious definition [`median`] is tested against.
+pub fn median_sorted(v: &mut [f64]) -> f64 {
     if v.is_empty() {
         return f64::NAN;
     }
@@ -147,6 +196,8 @@ fn demeaned(mut v: Vec<f64>) -> Vec<f64> {
 
 /// Cross-correlation, summed over leads, of the beat region at integer lag `lag`
 /// with the template (both de-meaned so a baseline offset does not move the peak).
+/// `buf` is scratch space reused across calls.
+#[allow(clippy::too_many_arguments)]
 fn xcorr(
     leads: &[&[f64]],
     weights: &[f64],
@@ -155,14 +206,17 @@ fn xcorr(
     lag: i64,
     h: usize,
     interp: Interpolation,
+    buf: &mut Vec<f64>,
 ) -> f64 {
     let mut c = 0.0;
     for ((x, w), t) in leads.iter().zip(weights).zip(templ) {
         if *w <= 0.0 {
             continue;
         }
-        let seg = demeaned(extract(x, center + lag as f64, h, h, interp));
-        c += w * seg.iter().zip(t).map(|(a, b)| a * b).sum::<f64>();
+        extract_into(x, center + lag as f64, h, h, interp, buf);
+        // The segment de-meaned on the fly: the same operations as `demeaned`.
+        let m = buf.iter().sum::<f64>() / buf.len().max(1) as f64;
+        c += w * buf.iter().zip(t).map(|(a, b)| (a - m) * b).sum::<f64>();
     }
     c
 }
@@ -198,10 +252,14 @@ pub fn align(leads: &[&[f64]], weights: &[f64], fiducials: &[usize], p: &AlignPa
             })
             .collect();
         let mut new = Vec::with_capacity(pos.len());
+        let mut buf = Vec::with_capacity(2 * h + 1);
+        let mut cc = Vec::with_capacity(2 * p.max_lag + 3);
         for &c in &pos {
-            let cc: Vec<f64> = (-l - 1..=l + 1)
-                .map(|lag| xcorr(leads, weights, &templ, c, lag, h, p.interp))
-                .collect();
+            cc.clear();
+            cc.extend(
+                (-l - 1..=l + 1)
+                    .map(|lag| xcorr(leads, weights, &templ, c, lag, h, p.interp, &mut buf)),
+            );
             // Peak over the searched lags; the extra lag each side feeds the parabola.
             let (mut best, mut bi) = (f64::NEG_INFINITY, 1usize);
             for (i, &v) in cc.iter().enumerate().take(cc.len() - 1).skip(1) {
@@ -286,6 +344,46 @@ mod tests {
         let s = vec![vec![1.0, 5.0], vec![3.0, -1.0], vec![2.0, 100.0]];
         assert_eq!(median_beat(&s), vec![2.0, 5.0]);
         assert_eq!(median(&mut [4.0, 1.0, 3.0, 2.0]), 2.5);
+    }
+
+    // Selection against the full sort (oracle), bit for bit, odd and even counts,
+    // ties and signed zeros included.
+    #[test]
+    fn median_by_selection_equals_sorted_median() {
+        let mut s = 99u64;
+        for n in 1..40 {
+            for round in 0..20 {
+                let v: Vec<f64> = (0..n)
+                    .map(|i| match (i + round) % 7 {
+                        0 => 0.0,
+                        1 => -0.0,
+                        2 => 1.5,
+                        _ => lcg(&mut s) - 0.5,
+                    })
+                    .collect();
+                let (mut a, mut b) = (v.clone(), v.clone());
+                assert_eq!(
+                    median(&mut a).to_bits(),
+                    median_sorted(&mut b).to_bits(),
+                    "{v:?}"
+                );
+            }
+        }
+        assert!(median(&mut []).is_nan());
+    }
+
+    // The in-bounds fast path and the clamped edge path of `extract` against
+    // `sample_at` (oracle) near both ends of a short signal.
+    #[test]
+    fn extract_at_the_edges_equals_sample_by_sample() {
+        let x: Vec<f64> = (0..40).map(|i| ((i * i) % 11) as f64 - 3.0).collect();
+        for &c in &[0.3, 2.6, 5.5, 20.125, 34.9, 38.7, 39.2] {
+            let fast = extract(&x, c, 6, 6, Interpolation::Sinc);
+            for (k, v) in fast.iter().enumerate() {
+                let slow = sample_at(&x, c + k as f64 - 6.0, Interpolation::Sinc);
+                assert!((v - slow).abs() < 1e-12, "c={c} k={k}");
+            }
+        }
     }
 
     #[test]
