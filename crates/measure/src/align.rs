@@ -88,6 +88,11 @@ pub fn extract_into(
     let start = center - before as f64;
     let i0 = start.floor() as i64;
     let fr = start - i0 as f64;
+    if interp == Interpolation::Sinc && fr == 0.0 {
+        // An integer start: `sample_at` reads every sample unchanged.
+        out.extend((0..before + after + 1).map(|k| at(x, i0 + k as i64)));
+        return;
+    }
     if interp == Interpolation::Linear || fr.abs() < 1e-12 {
         out.extend((0..before + after + 1).map(|k| sample_at(x, start + k as f64, interp)));
         return;
@@ -221,6 +226,66 @@ fn xcorr(
     c
 }
 
+/// All lags of [`xcorr`] for the beat at `center` from one segment per lead
+/// that covers every lag, pushed to `cc` (lags `-l-1..=l+1`).
+///
+/// Lag `L`'s segment is the long segment shifted by `L` samples exactly when
+/// every lag's start has the same integer step and the same fractional offset
+/// bit for bit (then the Lanczos weights, taps and summation order are the
+/// same); this holds unless `center ± lag` crosses a power of two. Returns
+/// false, with `cc` untouched, when it does not hold or the
+/// interpolation is not windowed sinc, so the caller computes lag by lag.
+#[allow(clippy::too_many_arguments)]
+fn xcorr_shared(
+    leads: &[&[f64]],
+    weights: &[f64],
+    templ: &[Vec<f64>],
+    center: f64,
+    l: i64,
+    h: usize,
+    interp: Interpolation,
+    long: &mut [Vec<f64>],
+    cc: &mut Vec<f64>,
+) -> bool {
+    if interp != Interpolation::Sinc {
+        return false;
+    }
+    let split = |lag: i64| {
+        let start = (center + lag as f64) - h as f64;
+        let i0 = start.floor() as i64;
+        (i0, (start - i0 as f64).to_bits())
+    };
+    let (i00, fr0) = split(-l - 1);
+    let fr = f64::from_bits(fr0);
+    // Starts within 1e-12 of an integer but not on it take `sample_at`'s path.
+    if fr != 0.0 && fr.abs() < 1e-12 {
+        return false;
+    }
+    if !(-l - 1..=l + 1).all(|lag| split(lag) == (i00 + lag + l + 1, fr0)) {
+        return false;
+    }
+    let span = 2 * h + 1;
+    let extra = 2 * (l as usize + 1);
+    for ((x, w), seg) in leads.iter().zip(weights).zip(long.iter_mut()) {
+        if *w > 0.0 {
+            extract_into(x, center + (-l - 1) as f64, h, h + extra, interp, seg);
+        }
+    }
+    for off in 0..=extra {
+        let mut c = 0.0;
+        for (((_, w), t), seg) in leads.iter().zip(weights).zip(templ).zip(long.iter()) {
+            if *w <= 0.0 {
+                continue;
+            }
+            let seg = &seg[off..off + span];
+            let m = seg.iter().sum::<f64>() / span as f64;
+            c += w * seg.iter().zip(t).map(|(a, b)| (a - m) * b).sum::<f64>();
+        }
+        cc.push(c);
+    }
+    true
+}
+
 /// Fractional offset of the maximum of a parabola through (−1,a), (0,b), (1,c).
 pub fn parabolic_peak(a: f64, b: f64, c: f64) -> f64 {
     let den = a - 2.0 * b + c;
@@ -236,6 +301,18 @@ pub fn parabolic_peak(a: f64, b: f64, c: f64) -> f64 {
 /// mean correction is zero: the aligned positions keep the detector's average
 /// fiducial, only the beat-to-beat jitter is removed.
 pub fn align(leads: &[&[f64]], weights: &[f64], fiducials: &[usize], p: &AlignParams) -> Vec<f64> {
+    align_impl(leads, weights, fiducials, p, true)
+}
+
+/// [`align`], with the shared-segment correlation switched off for the tests'
+/// oracle (`share_segments == false` extracts every lag separately).
+fn align_impl(
+    leads: &[&[f64]],
+    weights: &[f64],
+    fiducials: &[usize],
+    p: &AlignParams,
+    share_segments: bool,
+) -> Vec<f64> {
     let mut pos: Vec<f64> = fiducials.iter().map(|&f| f as f64).collect();
     if fiducials.len() < 2 || leads.is_empty() {
         return pos;
@@ -254,12 +331,19 @@ pub fn align(leads: &[&[f64]], weights: &[f64], fiducials: &[usize], p: &AlignPa
         let mut new = Vec::with_capacity(pos.len());
         let mut buf = Vec::with_capacity(2 * h + 1);
         let mut cc = Vec::with_capacity(2 * p.max_lag + 3);
+        let mut long: Vec<Vec<f64>> = vec![Vec::new(); leads.len()];
         for &c in &pos {
             cc.clear();
-            cc.extend(
-                (-l - 1..=l + 1)
-                    .map(|lag| xcorr(leads, weights, &templ, c, lag, h, p.interp, &mut buf)),
-            );
+            if !(share_segments
+                && xcorr_shared(
+                    leads, weights, &templ, c, l, h, p.interp, &mut long, &mut cc,
+                ))
+            {
+                cc.extend(
+                    (-l - 1..=l + 1)
+                        .map(|lag| xcorr(leads, weights, &templ, c, lag, h, p.interp, &mut buf)),
+                );
+            }
             // Peak over the searched lags; the extra lag each side feeds the parabola.
             let (mut best, mut bi) = (f64::NEG_INFINITY, 1usize);
             for (i, &v) in cc.iter().enumerate().take(cc.len() - 1).skip(1) {
@@ -372,12 +456,56 @@ mod tests {
         assert!(median(&mut []).is_nan());
     }
 
+    // Alignment with one shared segment per beat and lead against extracting
+    // every lag separately (oracle): equal bit for bit, one and two leads,
+    // beats near the record ends, fiducials in the 4096..8192 range where
+    // `center ± lag` can cross a power of two.
+    #[test]
+    fn shared_segment_alignment_equals_lag_by_lag() {
+        for (seed, n_beats, rr) in [(7u64, 12usize, 220.0), (5, 40, 205.3)] {
+            let (x, _, mut fid) = synth(n_beats, rr, seed);
+            fid[0] = 3;
+            let y: Vec<f64> = x.iter().map(|v| 0.5 * v + 0.01).collect();
+            for p in [
+                AlignParams {
+                    half_width: 15,
+                    max_lag: 5,
+                    passes: 2,
+                    interp: Interpolation::Sinc,
+                },
+                AlignParams {
+                    half_width: 7,
+                    max_lag: 2,
+                    passes: 3,
+                    interp: Interpolation::Sinc,
+                },
+                AlignParams {
+                    half_width: 15,
+                    max_lag: 5,
+                    passes: 2,
+                    interp: Interpolation::Linear,
+                },
+            ] {
+                for (leads, w) in [
+                    (vec![&x[..]], vec![1.0]),
+                    (vec![&x[..], &y[..]], vec![1.0, 0.5]),
+                ] {
+                    let fast = align_impl(&leads, &w, &fid, &p, true);
+                    let slow = align_impl(&leads, &w, &fid, &p, false);
+                    let fb: Vec<u64> = fast.iter().map(|v| v.to_bits()).collect();
+                    let sb: Vec<u64> = slow.iter().map(|v| v.to_bits()).collect();
+                    assert_eq!(fb, sb, "{p:?}");
+                }
+            }
+        }
+    }
+
     // The in-bounds fast path and the clamped edge path of `extract` against
     // `sample_at` (oracle) near both ends of a short signal.
     #[test]
     fn extract_at_the_edges_equals_sample_by_sample() {
         let x: Vec<f64> = (0..40).map(|i| ((i * i) % 11) as f64 - 3.0).collect();
-        for &c in &[0.3, 2.6, 5.5, 20.125, 34.9, 38.7, 39.2] {
+        for &c in &[0.3, 2.6, 5.0, 5.5, 20.125, 34.9, 38.7, 39.2, 39.0] {
             let fast = extract(&x, c, 6, 6, Interpolation::Sinc);
             for (k, v) in fast.iter().enumerate() {
                 let slow = sample_at(&x, c + k as f64 - 6.0, Interpolation::Sinc);
