@@ -10,6 +10,7 @@
 use crate::label;
 use crate::pt::{self, LeadFeatures};
 use crate::{Beat, DetectConfig, Detection, Span};
+use tendline_dsp::select::{from_total_key, total_key};
 
 /// Index of the largest value in `x[a..b]` (clamped to the array; first on ties).
 pub(crate) fn argmax_in(x: &[f64], a: usize, b: usize) -> usize {
@@ -180,25 +181,70 @@ impl Blocks {
         (b * self.len, ((b + 1) * self.len).min(self.n))
     }
     /// Per-sample linear interpolation between block centres.
+    ///
+    /// Walks the samples in runs that share a pair of block centres; every
+    /// sample gets the same expression as [`Blocks::interpolate_reference`]
+    /// (the direct per-sample definition, the test oracle).
     fn interpolate(&self, v: &[f64]) -> Vec<f64> {
-        let c = |b: usize| {
-            let (a, e) = self.range(b);
-            (a + e) as f64 / 2.0
-        };
         let mut out = vec![0.0; self.n];
         if self.count == 1 {
             out.fill(v[0]);
             return out;
         }
-        let (first, last) = (c(0), c(self.count - 1));
+        let cs: Vec<f64> = (0..self.count)
+            .map(|b| {
+                let (a, e) = self.range(b);
+                (a + e) as f64 / 2.0
+            })
+            .collect();
+        let (first, last) = (cs[0], cs[self.count - 1]);
+        let mut i = 0;
+        while i < self.n && i as f64 <= first {
+            out[i] = v[0];
+            i += 1;
+        }
+        let mut end = i;
+        while end < self.n && (end as f64) < last {
+            end += 1;
+        }
+        out[end..].fill(v[self.count - 1]);
+        while i < end {
+            let b = self.segment(i).min(self.count - 2);
+            // First sample of the next segment: 2j − len ≥ 2(b+1)·len.
+            let run_end = if b == self.count - 2 {
+                end
+            } else {
+                ((2 * b + 3) * self.len).div_ceil(2).min(end)
+            };
+            let (c0, c1) = (cs[b], cs[b + 1]);
+            let (v0, v1) = (v[b], v[b + 1]);
+            for (j, o) in out[i..run_end].iter_mut().enumerate() {
+                let t = (i + j) as f64;
+                let f = ((t - c0) / (c1 - c0)).clamp(0.0, 1.0);
+                *o = v0 * (1.0 - f) + v1 * f;
+            }
+            i = run_end;
+        }
+        out
+    }
+
+    /// The direct per-sample definition of [`Blocks::interpolate`] (test oracle).
+    #[cfg(test)]
+    fn interpolate_reference(&self, v: &[f64]) -> Vec<f64> {
+        let c = |b: usize| {
+            let (a, e) = self.range(b);
+            (a + e) as f64 / 2.0
+        };
+        let mut out = vec![0.0; self.n];
         for (i, o) in out.iter_mut().enumerate() {
             let t = i as f64;
-            if t <= first {
+            if self.count == 1 || t <= c(0) {
                 *o = v[0];
-            } else if t >= last {
+            } else if t >= c(self.count - 1) {
                 *o = v[self.count - 1];
             } else {
-                let b = self.segment(i).min(self.count - 2);
+                let b = ((t - self.len as f64 / 2.0) / self.len as f64).floor() as usize;
+                let b = b.min(self.count - 2);
                 let (c0, c1) = (c(b), c(b + 1));
                 let f = ((t - c0) / (c1 - c0)).clamp(0.0, 1.0);
                 *o = v[b] * (1.0 - f) + v[b + 1] * f;
@@ -337,24 +383,34 @@ fn block_peakiness(
             let hi = (b + 2).min(blocks.count);
             let mut mx: Vec<f64> = maxima[lo..hi].iter().flatten().cloned().collect();
             let peak = median(&mut mx)?;
-            let pct = |buf: &mut Vec<f64>| -> Option<f64> {
+            // Selection on `total_key`s: the same k-th value as selecting the
+            // values with `total_cmp`, without a comparison closure.
+            let pct = |buf: &mut Vec<i64>| -> Option<f64> {
                 if buf.is_empty() {
                     return None;
                 }
                 let k = ((cfg.quality_background_percentile / 100.0) * (buf.len() - 1) as f64)
                     .round() as usize;
-                Some(*buf.select_nth_unstable_by(k, |x, y| x.total_cmp(y)).1)
+                Some(from_total_key(*buf.select_nth_unstable(k).1))
             };
             // Background over the three blocks for the weight (steadier), and
             // over the block alone for the noise test (sharper in time).
             buf.clear();
             let (a, _) = blocks.range(lo);
             let (_, e) = blocks.range(hi - 1);
-            buf.extend((a..e).filter(|&i| mask[i] == LeadState::Ok).map(|i| mwi[i]));
+            buf.extend(
+                (a..e)
+                    .filter(|&i| mask[i] == LeadState::Ok)
+                    .map(|i| total_key(mwi[i])),
+            );
             let bg3 = pct(&mut buf)?;
             buf.clear();
             let (a, e) = blocks.range(b);
-            buf.extend((a..e).filter(|&i| mask[i] == LeadState::Ok).map(|i| mwi[i]));
+            buf.extend(
+                (a..e)
+                    .filter(|&i| mask[i] == LeadState::Ok)
+                    .map(|i| total_key(mwi[i])),
+            );
             let bg1 = pct(&mut buf).unwrap_or(bg3);
             let ratio = |bg: f64| {
                 if peak <= 0.0 {
@@ -602,6 +658,36 @@ mod block_tests {
                     "w={w} start={start}"
                 );
                 start += hop;
+            }
+        }
+    }
+
+    // Run-wise interpolation against the per-sample definition (oracle), bit
+    // for bit, for block counts 1, 2 and many, with a short last block.
+    #[test]
+    fn interpolation_equals_per_sample_definition() {
+        for (n, len) in [
+            (1000usize, 2000usize),
+            (1000, 500),
+            (1001, 500),
+            (650_001, 500),
+            (10_007, 333),
+            (7, 2),
+            (5, 1),
+        ] {
+            let b = Blocks {
+                len,
+                count: n.div_ceil(len),
+                n,
+            };
+            let v: Vec<f64> = (0..b.count)
+                .map(|k| ((k * 37) % 11) as f64 * 0.3 - 1.0)
+                .collect();
+            let fast = b.interpolate(&v);
+            let slow = b.interpolate_reference(&v);
+            assert_eq!(fast.len(), slow.len());
+            for (i, (x, y)) in fast.iter().zip(&slow).enumerate() {
+                assert_eq!(x.to_bits(), y.to_bits(), "n={n} len={len} i={i}");
             }
         }
     }

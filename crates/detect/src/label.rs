@@ -20,6 +20,7 @@
 
 use crate::pt::{self, moving_mean};
 use crate::{BeatLabel, DetectConfig};
+use tendline_dsp::select::{median_of_keys, total_key};
 
 /// Median (mean of the two middle values for even counts, 0 for none), by
 /// selection: the k-th value in `total_cmp` order is unique bit for bit, so
@@ -85,8 +86,9 @@ fn elementwise_median(vs: &[&Vec<f64>]) -> Vec<f64> {
     (0..len)
         .map(|j| {
             col.clear();
-            col.extend(vs.iter().map(|v| v[j]));
-            median(&mut col)
+            col.extend(vs.iter().map(|v| total_key(v[j])));
+            // The same value as `median` of the column (0 when empty).
+            median_of_keys(&mut col).unwrap_or(0.0)
         })
         .collect()
 }

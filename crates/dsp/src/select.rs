@@ -50,6 +50,53 @@ pub fn kth_abs_sorted(x: &[f64], k: usize) -> Option<f64> {
     a.get(k).copied()
 }
 
+/// Integer key whose signed order is the order of `f64::total_cmp` (the same
+/// bit transformation `total_cmp` applies); [`from_total_key`] inverts it.
+/// Selecting on keys avoids a comparison closure per step.
+pub fn total_key(v: f64) -> i64 {
+    let b = v.to_bits() as i64;
+    b ^ ((((b >> 63) as u64) >> 1) as i64)
+}
+
+/// The value of a [`total_key`].
+pub fn from_total_key(k: i64) -> f64 {
+    f64::from_bits((k ^ ((((k >> 63) as u64) >> 1) as i64)) as u64)
+}
+
+/// Median of the values whose [`total_key`]s fill `keys` (reordered): the
+/// middle value, or the mean of the two middle values for an even count, in
+/// `total_cmp` order; `None` when empty. Equal bit for bit to the same rule
+/// on the values sorted with `total_cmp` ([`median_sorted`], the oracle).
+pub fn median_of_keys(keys: &mut [i64]) -> Option<f64> {
+    if keys.is_empty() {
+        return None;
+    }
+    let n = keys.len();
+    let m = n / 2;
+    let (left, mid, _) = keys.select_nth_unstable(m);
+    let mid = from_total_key(*mid);
+    Some(if n % 2 == 1 {
+        mid
+    } else {
+        let below = from_total_key(*left.iter().max().expect("even count > 0"));
+        0.5 * (below + mid)
+    })
+}
+
+/// Median of `v` by a full `total_cmp` sort: the obvious definition.
+pub fn median_sorted(v: &mut [f64]) -> Option<f64> {
+    if v.is_empty() {
+        return None;
+    }
+    v.sort_by(|a, b| a.total_cmp(b));
+    let n = v.len();
+    Some(if n % 2 == 1 {
+        v[n / 2]
+    } else {
+        0.5 * (v[n / 2 - 1] + v[n / 2])
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -92,5 +139,48 @@ mod tests {
         }
         assert_eq!(kth_abs(&[], 0), None);
         assert_eq!(kth_abs(&[-3.0, 1.0, 2.0], 2), Some(3.0));
+    }
+
+    #[test]
+    fn keys_order_as_total_cmp_and_medians_equal_sorting() {
+        let vals = [
+            f64::NEG_INFINITY,
+            -1e300,
+            -2.5,
+            -1e-310,
+            -0.0,
+            0.0,
+            1e-310,
+            0.5,
+            3.0,
+            f64::INFINITY,
+            f64::NAN,
+            -f64::NAN,
+        ];
+        for a in vals {
+            assert_eq!(from_total_key(total_key(a)).to_bits(), a.to_bits());
+            for b in vals {
+                assert_eq!(total_key(a).cmp(&total_key(b)), a.total_cmp(&b), "{a} {b}");
+            }
+        }
+        let mut s = 3u64;
+        for n in 0..60usize {
+            let v: Vec<f64> = (0..n)
+                .map(|i| {
+                    s = s
+                        .wrapping_mul(6364136223846793005)
+                        .wrapping_add(1442695040888963407);
+                    if i % 5 == 0 {
+                        vals[(s >> 60) as usize % 10]
+                    } else {
+                        (s >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+                    }
+                })
+                .collect();
+            let mut keys: Vec<i64> = v.iter().map(|&x| total_key(x)).collect();
+            let fast = median_of_keys(&mut keys).map(f64::to_bits);
+            let slow = median_sorted(&mut v.clone()).map(f64::to_bits);
+            assert_eq!(fast, slow, "{v:?}");
+        }
     }
 }

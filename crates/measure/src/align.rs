@@ -8,6 +8,7 @@
 //! a signal read its nearest edge sample.
 
 use serde::{Deserialize, Serialize};
+use tendline_dsp::select::{median_of_keys, total_key};
 
 /// How a beat is resampled at a fractional position.
 #[derive(Deserialize, Serialize, Clone, Copy, Debug, PartialEq, Eq, Default)]
@@ -136,8 +137,8 @@ pub fn median_beat<S: AsRef<[f64]>>(segments: &[S]) -> Vec<f64> {
     (0..first.as_ref().len())
         .map(|k| {
             col.clear();
-            col.extend(segments.iter().map(|s| s.as_ref()[k]));
-            median(&mut col)
+            col.extend(segments.iter().map(|s| total_key(s.as_ref()[k])));
+            median_of_keys(&mut col).unwrap_or(f64::NAN)
         })
         .collect()
 }
@@ -427,6 +428,15 @@ mod tests {
     fn median_is_sample_wise() {
         let s = vec![vec![1.0, 5.0], vec![3.0, -1.0], vec![2.0, 100.0]];
         assert_eq!(median_beat(&s), vec![2.0, 5.0]);
+        let e = vec![
+            vec![1.0, -0.0],
+            vec![4.0, 0.0],
+            vec![2.0, -0.0],
+            vec![3.0, 7.0],
+        ];
+        assert_eq!(median_beat(&e)[0], 2.5);
+        // Column [-0, 0, -0, 7] sorts as -0, -0, 0, 7: (−0 + 0)/2 = +0.
+        assert_eq!(median_beat(&e)[1].to_bits(), 0.0f64.to_bits());
         assert_eq!(median(&mut [4.0, 1.0, 3.0, 2.0]), 2.5);
     }
 
