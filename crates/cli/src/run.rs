@@ -5,8 +5,10 @@
 //!   computed under (tool version, config, input checksums); reused on re-runs;
 //! - `annotations/<record>.mark` and `.leadmark`: WFDB annotation files;
 //! - `results.h5`, `summary.csv`, `windows.csv`, `failures.csv`, `run.json`:
-//!   rebuilt at the end of every run from the parts of the records named on the
-//!   command line.
+//!   rebuilt by every run for the records named on the command line. During a
+//!   run each record streams into `results.h5` (a temporary until the run ends)
+//!   as soon as it is processed or reused, so writing overlaps processing;
+//!   `tendline apply` rebuilds them from the part files.
 
 use crate::config::PipelineConfig;
 use crate::inputs::RecordInput;
