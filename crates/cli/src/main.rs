@@ -207,7 +207,29 @@ fn cmd_apply(
     Ok(ExitCode::SUCCESS)
 }
 
+/// Keep freed memory in the process instead of returning it to the kernel.
+///
+/// Every record allocates dozens of whole-record arrays of a few MB; above
+/// glibc's mmap threshold each would be a fresh mapping whose pages the kernel
+/// zeroes on first touch and unmaps on free, which cost about a sixth of the
+/// CPU time of a QTDB run (measured: system time 0.59 s → 0.11 s for 12
+/// records). Memory stays bounded: freed blocks are reused by the next record.
+#[cfg(all(target_os = "linux", target_env = "gnu"))]
+fn tune_allocator() {
+    // SAFETY: mallopt only changes allocator parameters; it is called before
+    // any other thread exists.
+    unsafe {
+        libc::mallopt(libc::M_MMAP_THRESHOLD, 256 << 20);
+        libc::mallopt(libc::M_TRIM_THRESHOLD, 512 << 20);
+        libc::mallopt(libc::M_TOP_PAD, 64 << 20);
+    }
+}
+
+#[cfg(not(all(target_os = "linux", target_env = "gnu")))]
+fn tune_allocator() {}
+
 fn main() -> ExitCode {
+    tune_allocator();
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Run(a) => cmd_run(a),

@@ -5,8 +5,10 @@
 //!   computed under (tool version, config, input checksums); reused on re-runs;
 //! - `annotations/<record>.mark` and `.leadmark`: WFDB annotation files;
 //! - `results.h5`, `summary.csv`, `windows.csv`, `failures.csv`, `run.json`:
-//!   rebuilt at the end of every run from the parts of the records named on the
-//!   command line.
+//!   rebuilt by every run for the records named on the command line. During a
+//!   run each record streams into `results.h5` (a temporary until the run ends)
+//!   as soon as it is processed or reused, so writing overlaps processing;
+//!   `tendline apply` rebuilds them from the part files.
 
 use crate::config::PipelineConfig;
 use crate::inputs::RecordInput;
@@ -134,11 +136,38 @@ fn panic_text(p: Box<dyn std::any::Any + Send>) -> String {
     }
 }
 
+/// Where finished records go as they finish: `results.h5` (one writer, in
+/// turn) and their CSV rows, kept in input order for the end of the run.
+struct Sink {
+    h5: Mutex<Option<tendline_store::ResultsWriter>>,
+    error: Mutex<Option<anyhow::Error>>,
+    rows: Mutex<Vec<Option<(String, String)>>>,
+}
+
+impl Sink {
+    /// Stream one record's full results out; errors are kept for the end of the run.
+    fn emit(&self, index: usize, part: &mut Part) {
+        let r = (|| -> Result<()> {
+            let rows = tables::CsvWriter::rows(part)?;
+            self.rows.lock().expect("rows lock")[index] = Some(rows);
+            crate::h5layout::stack_medians(&mut part.group);
+            if let Some(h5) = self.h5.lock().expect("h5 lock").as_mut() {
+                h5.add_record(&part.record, &part.group)?;
+            }
+            Ok(())
+        })();
+        if let Err(e) = r {
+            self.error.lock().expect("error lock").get_or_insert(e);
+        }
+    }
+}
+
 fn process_one(
     input: &RecordInput,
     ctx: &Context,
     opts: &RunOptions,
     samples: &AtomicU64,
+    sink: Option<(&Sink, usize)>,
 ) -> (Outcome, Option<Part>) {
     let t0 = Instant::now();
     let part_path = opts.out.join("parts").join(format!("{}.json", input.name));
@@ -186,7 +215,14 @@ fn process_one(
         ))
     })();
     match result {
-        Ok((o, p)) => (o, Some(brief(p))),
+        Ok((o, p)) => {
+            let short = brief(&p);
+            if let Some((sink, index)) = sink {
+                let mut p = p;
+                sink.emit(index, &mut p);
+            }
+            (o, Some(short))
+        }
         Err(e) => (
             Outcome::Failed {
                 error: format!("{e:#}"),
@@ -199,9 +235,9 @@ fn process_one(
 /// What the end of the run needs in memory from a record: its attributes and the
 /// windows' QT and RR (for per-subject fits). The full tree stays on disk in its part
 /// file and is streamed into `results.h5`, so memory does not grow with the batch.
-fn brief(p: Part) -> Part {
+fn brief(p: &Part) -> Part {
     let mut g = Group {
-        attrs: p.group.attrs,
+        attrs: p.group.attrs.clone(),
         ..Group::default()
     };
     if let Some(w) = p.group.groups.get("windows") {
@@ -212,8 +248,8 @@ fn brief(p: Part) -> Part {
         }
     }
     Part {
-        record: p.record,
-        key: p.key,
+        record: p.record.clone(),
+        key: p.key.clone(),
         group: g,
     }
 }
@@ -246,12 +282,25 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
     let samples = AtomicU64::new(0);
     let done = AtomicU64::new(0);
     let log = Mutex::new(());
+    // Records stream into results.h5 as they finish, so writing overlaps the
+    // processing of the others and no part file is read back at the end.
+    let mut root = root_group(opts, &ctx)?;
+    let created = root.attrs.remove("created_utc");
+    let sink = Sink {
+        h5: Mutex::new(Some(tendline_store::ResultsWriter::create(
+            &opts.out.join("results.h5"),
+            &root,
+        )?)),
+        error: Mutex::new(None),
+        rows: Mutex::new(vec![None; n]),
+    };
     let results: Vec<(Outcome, Option<Part>)> = pool.install(|| {
         opts.records
             .par_iter()
-            .map(|input| {
+            .enumerate()
+            .map(|(index, input)| {
                 let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                    process_one(input, &ctx, opts, &samples)
+                    process_one(input, &ctx, opts, &samples, Some((&sink, index)))
                 }))
                 .unwrap_or_else(|p| {
                     (
@@ -288,12 +337,28 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
         outcomes.push((input.clone(), o));
         parts.extend(p);
     }
+    if let Some(e) = sink.error.into_inner().expect("error lock") {
+        return Err(e);
+    }
+    let mut h5 = sink
+        .h5
+        .into_inner()
+        .expect("h5 lock")
+        .expect("writer present until the end");
+    if let Some(a) = created {
+        h5.root_attr("created_utc", &a)?;
+    }
+    h5.finish()?;
+    let mut csv = tables::CsvWriter::default();
+    for rows in sink.rows.into_inner().expect("rows lock").iter().flatten() {
+        csv.push_rows(rows);
+    }
     let report = RunReport {
         outcomes,
         parts,
         seconds: t0.elapsed().as_secs_f64(),
     };
-    write_run_outputs(opts, &ctx, &report)?;
+    write_tables(opts, &ctx, &report, &csv)?;
     Ok(report)
 }
 
@@ -332,7 +397,7 @@ pub fn rebuild_outputs(out: &Path) -> Result<()> {
                 let p = out.join("parts").join(format!("{name}.json"));
                 let part = Part::load(&p)?
                     .with_context(|| format!("{}: part file missing", p.display()))?;
-                report.parts.push(brief(part));
+                report.parts.push(brief(&part));
                 Outcome::Reused
             }
         };
@@ -361,7 +426,8 @@ pub fn rebuild_outputs(out: &Path) -> Result<()> {
     Ok(())
 }
 
-fn write_run_outputs(opts: &RunOptions, ctx: &Context, report: &RunReport) -> Result<()> {
+/// The root attributes of `results.h5`.
+fn root_group(opts: &RunOptions, ctx: &Context) -> Result<Group> {
     let mut root = Group::default();
     root.attr("tool", Attr::Text("tendline".into()));
     root.attr("tool_version", Attr::Text(env!("CARGO_PKG_VERSION").into()));
@@ -376,6 +442,11 @@ fn write_run_outputs(opts: &RunOptions, ctx: &Context, report: &RunReport) -> Re
         root.attr("subjects_file", Attr::Text(s.display().to_string()));
         root.attr("subjects_sha256", Attr::Text(sha256_file(s)?));
     }
+    Ok(root)
+}
+
+fn write_run_outputs(opts: &RunOptions, ctx: &Context, report: &RunReport) -> Result<()> {
+    let root = root_group(opts, ctx)?;
     let mut h5 = tendline_store::ResultsWriter::create(&opts.out.join("results.h5"), &root)?;
     let mut csv = tables::CsvWriter::default();
     for p in &report.parts {
@@ -388,6 +459,16 @@ fn write_run_outputs(opts: &RunOptions, ctx: &Context, report: &RunReport) -> Re
         h5.add_record(&full.record, &g)?;
     }
     h5.finish()?;
+    write_tables(opts, ctx, report, &csv)
+}
+
+/// The CSV tables, the failures and the run manifest.
+fn write_tables(
+    opts: &RunOptions,
+    ctx: &Context,
+    report: &RunReport,
+    csv: &tables::CsvWriter,
+) -> Result<()> {
     csv.write(&opts.out)?;
     tables::write_failures(&opts.out, &report.failures())?;
     tables::write_manifest(&opts.out, ctx, report, opts.subjects_file.as_deref())?;

@@ -125,6 +125,23 @@ impl Default for CsvWriter {
 }
 
 impl CsvWriter {
+    /// One record's rows of `summary.csv` and `windows.csv`, without headers,
+    /// for [`CsvWriter::push_rows`] (records finish out of order in a batch).
+    pub fn rows(p: &Part) -> Result<(String, String)> {
+        let mut w = CsvWriter {
+            summary: String::new(),
+            windows: String::new(),
+        };
+        w.add(p)?;
+        Ok((w.summary, w.windows))
+    }
+
+    /// Append rows made by [`CsvWriter::rows`].
+    pub fn push_rows(&mut self, rows: &(String, String)) {
+        self.summary.push_str(&rows.0);
+        self.windows.push_str(&rows.1);
+    }
+
     /// Append one record's rows.
     pub fn add(&mut self, p: &Part) -> Result<()> {
         let (s, w) = (&mut self.summary, &mut self.windows);

@@ -101,9 +101,9 @@ impl LeadAnalysis {
         let w = swt_quadratic_spline(&xa, 5);
         let noise = w
             .iter()
+            // Median |W_k| by linear-time selection (same value as `median` of the |W_k|).
             .map(|wk| {
-                let mut a: Vec<f64> = wk.iter().map(|v| v.abs()).collect();
-                1.4826 * median(&mut a) + 1e-9
+                1.4826 * tendline_dsp::select::kth_abs(wk, wk.len() / 2).unwrap_or(0.0) + 1e-9
             })
             .collect();
         Self {

@@ -10,6 +10,7 @@
 use crate::label;
 use crate::pt::{self, LeadFeatures};
 use crate::{Beat, DetectConfig, Detection, Span};
+use tendline_dsp::select::{from_total_key, total_key};
 
 /// Index of the largest value in `x[a..b]` (clamped to the array; first on ties).
 pub(crate) fn argmax_in(x: &[f64], a: usize, b: usize) -> usize {
@@ -32,6 +33,7 @@ pub(crate) enum LeadState {
     Saturated,
 }
 
+#[cfg(test)]
 fn ptp(x: &[f64]) -> f64 {
     let mut lo = f64::INFINITY;
     let mut hi = f64::NEG_INFINITY;
@@ -43,6 +45,53 @@ fn ptp(x: &[f64]) -> f64 {
         hi - lo
     } else {
         0.0
+    }
+}
+
+/// Minimum and maximum of each run of `hop` samples, so that the peak-to-peak
+/// value of a window starting on a multiple of `hop` costs a few operations
+/// instead of a pass over the window. The extremes of finite values do not
+/// depend on the order they are taken in (a zero's sign aside, which no
+/// comparison with a threshold sees), so [`HopRanges::ptp`] equals [`ptp`].
+struct HopRanges {
+    hop: usize,
+    lo: Vec<f64>,
+    hi: Vec<f64>,
+}
+
+impl HopRanges {
+    fn new(x: &[f64], hop: usize) -> Self {
+        let (lo, hi) = x
+            .chunks(hop)
+            .map(|c| {
+                c.iter()
+                    .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), &v| {
+                        (l.min(v), h.max(v))
+                    })
+            })
+            .unzip();
+        Self { hop, lo, hi }
+    }
+
+    /// Peak-to-peak of `x[start..end]`; `start` is a multiple of `hop`.
+    fn ptp(&self, x: &[f64], start: usize, end: usize) -> f64 {
+        debug_assert_eq!(start % self.hop, 0);
+        let (c0, c1) = (start / self.hop, end / self.hop);
+        let mut lo = f64::INFINITY;
+        let mut hi = f64::NEG_INFINITY;
+        for c in c0..c1 {
+            lo = lo.min(self.lo[c]);
+            hi = hi.max(self.hi[c]);
+        }
+        for &v in &x[(c1 * self.hop).max(start)..end] {
+            lo = lo.min(v);
+            hi = hi.max(v);
+        }
+        if hi >= lo {
+            hi - lo
+        } else {
+            0.0
+        }
     }
 }
 
@@ -58,13 +107,16 @@ pub(crate) fn lead_mask(
     let mut m = vec![LeadState::Ok; n];
     let w = pt::ms_to_samples(cfg.flat_window_ms, fs).min(n.max(1));
     let hop = (w / 4).max(1);
+    // Windows start on multiples of `hop`: their extremes come from per-hop
+    // extremes plus the few samples after the last whole hop.
+    let (xr, bpr) = (HopRanges::new(x, hop), HopRanges::new(bp, hop));
     let mut start = 0usize;
     loop {
         let end = (start + w).min(n);
         if end > start {
-            let state = if ptp(&x[start..end]) < cfg.flat_ptp_mv {
+            let state = if xr.ptp(x, start, end) < cfg.flat_ptp_mv {
                 Some(LeadState::Flat)
-            } else if ptp(&bp[start..end]) < cfg.saturation_bp_ptp_mv {
+            } else if bpr.ptp(bp, start, end) < cfg.saturation_bp_ptp_mv {
                 Some(LeadState::Saturated)
             } else {
                 None
@@ -129,7 +181,56 @@ impl Blocks {
         (b * self.len, ((b + 1) * self.len).min(self.n))
     }
     /// Per-sample linear interpolation between block centres.
+    ///
+    /// Walks the samples in runs that share a pair of block centres; every
+    /// sample gets the same expression as [`Blocks::interpolate_reference`]
+    /// (the direct per-sample definition, the test oracle).
     fn interpolate(&self, v: &[f64]) -> Vec<f64> {
+        let mut out = vec![0.0; self.n];
+        if self.count == 1 {
+            out.fill(v[0]);
+            return out;
+        }
+        let cs: Vec<f64> = (0..self.count)
+            .map(|b| {
+                let (a, e) = self.range(b);
+                (a + e) as f64 / 2.0
+            })
+            .collect();
+        let (first, last) = (cs[0], cs[self.count - 1]);
+        let mut i = 0;
+        while i < self.n && i as f64 <= first {
+            out[i] = v[0];
+            i += 1;
+        }
+        let mut end = i;
+        while end < self.n && (end as f64) < last {
+            end += 1;
+        }
+        out[end..].fill(v[self.count - 1]);
+        while i < end {
+            let b = self.segment(i).min(self.count - 2);
+            // First sample of the next segment: 2j − len ≥ 2(b+1)·len.
+            let run_end = if b == self.count - 2 {
+                end
+            } else {
+                ((2 * b + 3) * self.len).div_ceil(2).min(end)
+            };
+            let (c0, c1) = (cs[b], cs[b + 1]);
+            let (v0, v1) = (v[b], v[b + 1]);
+            for (j, o) in out[i..run_end].iter_mut().enumerate() {
+                let t = (i + j) as f64;
+                let f = ((t - c0) / (c1 - c0)).clamp(0.0, 1.0);
+                *o = v0 * (1.0 - f) + v1 * f;
+            }
+            i = run_end;
+        }
+        out
+    }
+
+    /// The direct per-sample definition of [`Blocks::interpolate`] (test oracle).
+    #[cfg(test)]
+    fn interpolate_reference(&self, v: &[f64]) -> Vec<f64> {
         let c = |b: usize| {
             let (a, e) = self.range(b);
             (a + e) as f64 / 2.0
@@ -151,19 +252,25 @@ impl Blocks {
         }
         out
     }
+
+    /// `floor((i − len/2) / len)` for a sample past the first block centre, in
+    /// integers: `(2i − len) div 2·len`. Equal to the float expression, whose
+    /// operands are exact and whose quotient's rounding error (relative 2⁻⁵³)
+    /// is far below the 1/(2·len) gap to the next integer.
+    fn segment(&self, i: usize) -> usize {
+        (2 * i).saturating_sub(self.len) / (2 * self.len)
+    }
+
+    /// The float expression [`Blocks::segment`] replaces (test oracle).
+    #[cfg(test)]
+    fn segment_float(&self, i: usize) -> usize {
+        let t = i as f64;
+        ((t - self.len as f64 / 2.0) / self.len as f64).floor() as usize
+    }
 }
 
 fn median(v: &mut [f64]) -> Option<f64> {
-    if v.is_empty() {
-        return None;
-    }
-    v.sort_by(|a, b| a.total_cmp(b));
-    let m = v.len() / 2;
-    Some(if v.len() % 2 == 1 {
-        v[m]
-    } else {
-        0.5 * (v[m - 1] + v[m])
-    })
+    (!v.is_empty()).then(|| crate::label::median(v))
 }
 
 /// Local beat level of a signal: median of block maxima over neighbouring
@@ -276,24 +383,34 @@ fn block_peakiness(
             let hi = (b + 2).min(blocks.count);
             let mut mx: Vec<f64> = maxima[lo..hi].iter().flatten().cloned().collect();
             let peak = median(&mut mx)?;
-            let pct = |buf: &mut Vec<f64>| -> Option<f64> {
+            // Selection on `total_key`s: the same k-th value as selecting the
+            // values with `total_cmp`, without a comparison closure.
+            let pct = |buf: &mut Vec<i64>| -> Option<f64> {
                 if buf.is_empty() {
                     return None;
                 }
                 let k = ((cfg.quality_background_percentile / 100.0) * (buf.len() - 1) as f64)
                     .round() as usize;
-                Some(*buf.select_nth_unstable_by(k, |x, y| x.total_cmp(y)).1)
+                Some(from_total_key(*buf.select_nth_unstable(k).1))
             };
             // Background over the three blocks for the weight (steadier), and
             // over the block alone for the noise test (sharper in time).
             buf.clear();
             let (a, _) = blocks.range(lo);
             let (_, e) = blocks.range(hi - 1);
-            buf.extend((a..e).filter(|&i| mask[i] == LeadState::Ok).map(|i| mwi[i]));
+            buf.extend(
+                (a..e)
+                    .filter(|&i| mask[i] == LeadState::Ok)
+                    .map(|i| total_key(mwi[i])),
+            );
             let bg3 = pct(&mut buf)?;
             buf.clear();
             let (a, e) = blocks.range(b);
-            buf.extend((a..e).filter(|&i| mask[i] == LeadState::Ok).map(|i| mwi[i]));
+            buf.extend(
+                (a..e)
+                    .filter(|&i| mask[i] == LeadState::Ok)
+                    .map(|i| total_key(mwi[i])),
+            );
             let bg1 = pct(&mut buf).unwrap_or(bg3);
             let ratio = |bg: f64| {
                 if peak <= 0.0 {
@@ -514,5 +631,88 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
         beats,
         unreadable,
         lead_quality,
+    }
+}
+
+#[cfg(test)]
+mod block_tests {
+    use super::*;
+
+    // Peak-to-peak from per-hop extremes against the direct pass (oracle) for
+    // every window start and several window lengths, including windows cut
+    // short by the end of the signal.
+    #[test]
+    fn hop_ranges_equal_direct_peak_to_peak() {
+        let x: Vec<f64> = (0..1000)
+            .map(|i| ((i * 7919) % 1013) as f64 / 100.0 - 5.0)
+            .collect();
+        for w in [1usize, 3, 4, 9, 250, 251, 999] {
+            let hop = (w / 4).max(1);
+            let r = HopRanges::new(&x, hop);
+            let mut start = 0;
+            while start < x.len() {
+                let end = (start + w).min(x.len());
+                assert_eq!(
+                    r.ptp(&x, start, end),
+                    ptp(&x[start..end]),
+                    "w={w} start={start}"
+                );
+                start += hop;
+            }
+        }
+    }
+
+    // Run-wise interpolation against the per-sample definition (oracle), bit
+    // for bit, for block counts 1, 2 and many, with a short last block.
+    #[test]
+    fn interpolation_equals_per_sample_definition() {
+        for (n, len) in [
+            (1000usize, 2000usize),
+            (1000, 500),
+            (1001, 500),
+            (650_001, 500),
+            (10_007, 333),
+            (7, 2),
+            (5, 1),
+        ] {
+            let b = Blocks {
+                len,
+                count: n.div_ceil(len),
+                n,
+            };
+            let v: Vec<f64> = (0..b.count)
+                .map(|k| ((k * 37) % 11) as f64 * 0.3 - 1.0)
+                .collect();
+            let fast = b.interpolate(&v);
+            let slow = b.interpolate_reference(&v);
+            assert_eq!(fast.len(), slow.len());
+            for (i, (x, y)) in fast.iter().zip(&slow).enumerate() {
+                assert_eq!(x.to_bits(), y.to_bits(), "n={n} len={len} i={i}");
+            }
+        }
+    }
+
+    // The integer block index against the float expression it replaces, over
+    // whole records of several lengths and block sizes (odd and even).
+    #[test]
+    fn integer_segment_equals_float_floor() {
+        for (n, len) in [
+            (1000usize, 500usize),
+            (650_000, 500),
+            (10_007, 333),
+            (5_000, 1),
+        ] {
+            let b = Blocks {
+                len,
+                count: n.div_ceil(len),
+                n,
+            };
+            let first = (b.range(0).0 + b.range(0).1) as f64 / 2.0;
+            for i in 0..n {
+                if i as f64 > first {
+                    assert_eq!(b.segment(i), b.segment_float(i), "n={n} len={len} i={i}");
+                }
+            }
+        }
     }
 }

@@ -20,8 +20,33 @@
 
 use crate::pt::{self, moving_mean};
 use crate::{BeatLabel, DetectConfig};
+use tendline_dsp::select::{median_of_keys, total_key};
 
-fn median(v: &mut [f64]) -> f64 {
+/// Median (mean of the two middle values for even counts, 0 for none), by
+/// selection: the k-th value in `total_cmp` order is unique bit for bit, so
+/// this equals the middle of the sorted slice ([`median_sorted`], the oracle).
+pub(crate) fn median(v: &mut [f64]) -> f64 {
+    if v.is_empty() {
+        return 0.0;
+    }
+    let m = v.len() / 2;
+    let odd = v.len() % 2 == 1;
+    let (left, mid, _) = v.select_nth_unstable_by(m, |a, b| a.total_cmp(b));
+    if odd {
+        *mid
+    } else {
+        let below = left
+            .iter()
+            .copied()
+            .max_by(|a, b| a.total_cmp(b))
+            .unwrap_or(*mid);
+        0.5 * (below + *mid)
+    }
+}
+
+/// Median by a full sort: the obvious definition [`median`] is tested against.
+#[cfg(test)]
+pub(crate) fn median_sorted(v: &mut [f64]) -> f64 {
     v.sort_by(|a, b| a.total_cmp(b));
     let m = v.len() / 2;
     if v.is_empty() {
@@ -61,8 +86,9 @@ fn elementwise_median(vs: &[&Vec<f64>]) -> Vec<f64> {
     (0..len)
         .map(|j| {
             col.clear();
-            col.extend(vs.iter().map(|v| v[j]));
-            median(&mut col)
+            col.extend(vs.iter().map(|v| total_key(v[j])));
+            // The same value as `median` of the column (0 when empty).
+            median_of_keys(&mut col).unwrap_or(0.0)
         })
         .collect()
 }
@@ -221,4 +247,39 @@ pub(crate) fn label_beats(
             }
         })
         .collect()
+}
+
+#[cfg(test)]
+mod median_tests {
+    use super::*;
+
+    // Selection against the full sort (oracle), bit for bit, odd and even
+    // counts, ties and signed zeros included.
+    #[test]
+    fn median_by_selection_equals_sorted_median() {
+        let mut s = 7u64;
+        for n in 0..40usize {
+            for round in 0..20usize {
+                let v: Vec<f64> = (0..n)
+                    .map(|i| {
+                        s = s
+                            .wrapping_mul(6364136223846793005)
+                            .wrapping_add(1442695040888963407);
+                        match (i + round) % 6 {
+                            0 => 0.0,
+                            1 => -0.0,
+                            2 => 2.5,
+                            _ => (s >> 11) as f64 / (1u64 << 53) as f64 - 0.5,
+                        }
+                    })
+                    .collect();
+                let (mut a, mut b) = (v.clone(), v.clone());
+                assert_eq!(
+                    median(&mut a).to_bits(),
+                    median_sorted(&mut b).to_bits(),
+                    "{v:?}"
+                );
+            }
+        }
+    }
 }

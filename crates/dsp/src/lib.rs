@@ -32,6 +32,7 @@
 
 pub mod filter;
 pub mod resample;
+pub mod select;
 pub mod wavelet;
 
 pub use filter::DspError;

@@ -8,6 +8,7 @@
 //! a signal read its nearest edge sample.
 
 use serde::{Deserialize, Serialize};
+use tendline_dsp::select::{median_of_keys, total_key};
 
 /// How a beat is resampled at a fractional position.
 #[derive(Deserialize, Serialize, Clone, Copy, Debug, PartialEq, Eq, Default)]
@@ -70,51 +71,105 @@ pub fn extract(
     after: usize,
     interp: Interpolation,
 ) -> Vec<f64> {
+    let mut out = Vec::with_capacity(before + after + 1);
+    extract_into(x, center, before, after, interp, &mut out);
+    out
+}
+
+/// [`extract`] into a reused buffer (cleared first).
+pub fn extract_into(
+    x: &[f64],
+    center: f64,
+    before: usize,
+    after: usize,
+    interp: Interpolation,
+    out: &mut Vec<f64>,
+) {
+    out.clear();
     let start = center - before as f64;
     let i0 = start.floor() as i64;
     let fr = start - i0 as f64;
+    if interp == Interpolation::Sinc && fr == 0.0 {
+        // An integer start: `sample_at` reads every sample unchanged.
+        out.extend((0..before + after + 1).map(|k| at(x, i0 + k as i64)));
+        return;
+    }
     if interp == Interpolation::Linear || fr.abs() < 1e-12 {
-        return (0..before + after + 1)
-            .map(|k| sample_at(x, start + k as f64, interp))
-            .collect();
+        out.extend((0..before + after + 1).map(|k| sample_at(x, start + k as f64, interp)));
+        return;
     }
     // Every output sample has the same fractional offset, so the Lanczos weights are
     // computed once per beat instead of once per sample (the same result as
     // `sample_at`, which the tests use as the oracle).
-    let weights: Vec<f64> = ((1 - LANCZOS_A)..=LANCZOS_A)
-        .map(|j| lanczos(fr - j as f64))
-        .collect();
+    let mut weights = [0.0; 2 * LANCZOS_A as usize];
+    for (w, j) in weights.iter_mut().zip((1 - LANCZOS_A)..=LANCZOS_A) {
+        *w = lanczos(fr - j as f64);
+    }
     let wsum: f64 = weights.iter().sum();
-    (0..before + after + 1)
-        .map(|k| {
-            let base = i0 + k as i64;
-            let s: f64 = weights
+    let n = x.len() as i64;
+    out.extend((0..before + after + 1).map(|k| {
+        let base = i0 + k as i64;
+        let s: f64 = if base + 1 - LANCZOS_A >= 0 && base + LANCZOS_A < n {
+            // Inside the signal: no edge clamping, same taps in the same order.
+            let lo = (base + 1 - LANCZOS_A) as usize;
+            weights
+                .iter()
+                .zip(&x[lo..lo + weights.len()])
+                .map(|(w, v)| w * v)
+                .sum()
+        } else {
+            weights
                 .iter()
                 .zip((1 - LANCZOS_A)..=LANCZOS_A)
                 .map(|(w, j)| w * at(x, base + j))
-                .sum();
-            s / wsum
-        })
-        .collect()
+                .sum()
+        };
+        s / wsum
+    }));
 }
 
 /// Sample-wise median of equal-length segments (mean of the two middle values for even counts).
-pub fn median_beat(segments: &[Vec<f64>]) -> Vec<f64> {
+pub fn median_beat<S: AsRef<[f64]>>(segments: &[S]) -> Vec<f64> {
     let Some(first) = segments.first() else {
         return Vec::new();
     };
     let mut col = Vec::with_capacity(segments.len());
-    (0..first.len())
+    (0..first.as_ref().len())
         .map(|k| {
             col.clear();
-            col.extend(segments.iter().map(|s| s[k]));
-            median(&mut col)
+            col.extend(segments.iter().map(|s| total_key(s.as_ref()[k])));
+            median_of_keys(&mut col).unwrap_or(f64::NAN)
         })
         .collect()
 }
 
 /// Median of a slice (reorders it); NaN for an empty slice.
+///
+/// By selection rather than a full sort: the k-th value in the total order of
+/// `f64::total_cmp` is unique bit for bit, so the result equals the middle of
+/// the sorted slice ([`median_sorted`], the test oracle).
 pub fn median(v: &mut [f64]) -> f64 {
+    if v.is_empty() {
+        return f64::NAN;
+    }
+    let n = v.len();
+    let m = n / 2;
+    let (left, mid, _) = v.select_nth_unstable_by(m, |a, b| a.total_cmp(b));
+    let mid = *mid;
+    if n % 2 == 1 {
+        mid
+    } else {
+        let below = left
+            .iter()
+            .copied()
+            .max_by(|a, b| a.total_cmp(b))
+            .expect("n even and > 0: left half not empty");
+        0.5 * (below + mid)
+    }
+}
+
+/// Median by a full sort: the obvious definition [`median`] is tested against.
+pub fn median_sorted(v: &mut [f64]) -> f64 {
     if v.is_empty() {
         return f64::NAN;
     }
@@ -147,6 +202,8 @@ fn demeaned(mut v: Vec<f64>) -> Vec<f64> {
 
 /// Cross-correlation, summed over leads, of the beat region at integer lag `lag`
 /// with the template (both de-meaned so a baseline offset does not move the peak).
+/// `buf` is scratch space reused across calls.
+#[allow(clippy::too_many_arguments)]
 fn xcorr(
     leads: &[&[f64]],
     weights: &[f64],
@@ -155,16 +212,79 @@ fn xcorr(
     lag: i64,
     h: usize,
     interp: Interpolation,
+    buf: &mut Vec<f64>,
 ) -> f64 {
     let mut c = 0.0;
     for ((x, w), t) in leads.iter().zip(weights).zip(templ) {
         if *w <= 0.0 {
             continue;
         }
-        let seg = demeaned(extract(x, center + lag as f64, h, h, interp));
-        c += w * seg.iter().zip(t).map(|(a, b)| a * b).sum::<f64>();
+        extract_into(x, center + lag as f64, h, h, interp, buf);
+        // The segment de-meaned on the fly: the same operations as `demeaned`.
+        let m = buf.iter().sum::<f64>() / buf.len().max(1) as f64;
+        c += w * buf.iter().zip(t).map(|(a, b)| (a - m) * b).sum::<f64>();
     }
     c
+}
+
+/// All lags of [`xcorr`] for the beat at `center` from one segment per lead
+/// that covers every lag, pushed to `cc` (lags `-l-1..=l+1`).
+///
+/// Lag `L`'s segment is the long segment shifted by `L` samples exactly when
+/// every lag's start has the same integer step and the same fractional offset
+/// bit for bit (then the Lanczos weights, taps and summation order are the
+/// same); this holds unless `center ± lag` crosses a power of two. Returns
+/// false, with `cc` untouched, when it does not hold or the
+/// interpolation is not windowed sinc, so the caller computes lag by lag.
+#[allow(clippy::too_many_arguments)]
+fn xcorr_shared(
+    leads: &[&[f64]],
+    weights: &[f64],
+    templ: &[Vec<f64>],
+    center: f64,
+    l: i64,
+    h: usize,
+    interp: Interpolation,
+    long: &mut [Vec<f64>],
+    cc: &mut Vec<f64>,
+) -> bool {
+    if interp != Interpolation::Sinc {
+        return false;
+    }
+    let split = |lag: i64| {
+        let start = (center + lag as f64) - h as f64;
+        let i0 = start.floor() as i64;
+        (i0, (start - i0 as f64).to_bits())
+    };
+    let (i00, fr0) = split(-l - 1);
+    let fr = f64::from_bits(fr0);
+    // Starts within 1e-12 of an integer but not on it take `sample_at`'s path.
+    if fr != 0.0 && fr.abs() < 1e-12 {
+        return false;
+    }
+    if !(-l - 1..=l + 1).all(|lag| split(lag) == (i00 + lag + l + 1, fr0)) {
+        return false;
+    }
+    let span = 2 * h + 1;
+    let extra = 2 * (l as usize + 1);
+    for ((x, w), seg) in leads.iter().zip(weights).zip(long.iter_mut()) {
+        if *w > 0.0 {
+            extract_into(x, center + (-l - 1) as f64, h, h + extra, interp, seg);
+        }
+    }
+    for off in 0..=extra {
+        let mut c = 0.0;
+        for (((_, w), t), seg) in leads.iter().zip(weights).zip(templ).zip(long.iter()) {
+            if *w <= 0.0 {
+                continue;
+            }
+            let seg = &seg[off..off + span];
+            let m = seg.iter().sum::<f64>() / span as f64;
+            c += w * seg.iter().zip(t).map(|(a, b)| (a - m) * b).sum::<f64>();
+        }
+        cc.push(c);
+    }
+    true
 }
 
 /// Fractional offset of the maximum of a parabola through (−1,a), (0,b), (1,c).
@@ -182,6 +302,18 @@ pub fn parabolic_peak(a: f64, b: f64, c: f64) -> f64 {
 /// mean correction is zero: the aligned positions keep the detector's average
 /// fiducial, only the beat-to-beat jitter is removed.
 pub fn align(leads: &[&[f64]], weights: &[f64], fiducials: &[usize], p: &AlignParams) -> Vec<f64> {
+    align_impl(leads, weights, fiducials, p, true)
+}
+
+/// [`align`], with the shared-segment correlation switched off for the tests'
+/// oracle (`share_segments == false` extracts every lag separately).
+fn align_impl(
+    leads: &[&[f64]],
+    weights: &[f64],
+    fiducials: &[usize],
+    p: &AlignParams,
+    share_segments: bool,
+) -> Vec<f64> {
     let mut pos: Vec<f64> = fiducials.iter().map(|&f| f as f64).collect();
     if fiducials.len() < 2 || leads.is_empty() {
         return pos;
@@ -198,10 +330,21 @@ pub fn align(leads: &[&[f64]], weights: &[f64], fiducials: &[usize], p: &AlignPa
             })
             .collect();
         let mut new = Vec::with_capacity(pos.len());
+        let mut buf = Vec::with_capacity(2 * h + 1);
+        let mut cc = Vec::with_capacity(2 * p.max_lag + 3);
+        let mut long: Vec<Vec<f64>> = vec![Vec::new(); leads.len()];
         for &c in &pos {
-            let cc: Vec<f64> = (-l - 1..=l + 1)
-                .map(|lag| xcorr(leads, weights, &templ, c, lag, h, p.interp))
-                .collect();
+            cc.clear();
+            if !(share_segments
+                && xcorr_shared(
+                    leads, weights, &templ, c, l, h, p.interp, &mut long, &mut cc,
+                ))
+            {
+                cc.extend(
+                    (-l - 1..=l + 1)
+                        .map(|lag| xcorr(leads, weights, &templ, c, lag, h, p.interp, &mut buf)),
+                );
+            }
             // Peak over the searched lags; the extra lag each side feeds the parabola.
             let (mut best, mut bi) = (f64::NEG_INFINITY, 1usize);
             for (i, &v) in cc.iter().enumerate().take(cc.len() - 1).skip(1) {
@@ -285,7 +428,100 @@ mod tests {
     fn median_is_sample_wise() {
         let s = vec![vec![1.0, 5.0], vec![3.0, -1.0], vec![2.0, 100.0]];
         assert_eq!(median_beat(&s), vec![2.0, 5.0]);
+        let e = vec![
+            vec![1.0, -0.0],
+            vec![4.0, 0.0],
+            vec![2.0, -0.0],
+            vec![3.0, 7.0],
+        ];
+        assert_eq!(median_beat(&e)[0], 2.5);
+        // Column [-0, 0, -0, 7] sorts as -0, -0, 0, 7: (−0 + 0)/2 = +0.
+        assert_eq!(median_beat(&e)[1].to_bits(), 0.0f64.to_bits());
         assert_eq!(median(&mut [4.0, 1.0, 3.0, 2.0]), 2.5);
+    }
+
+    // Selection against the full sort (oracle), bit for bit, odd and even counts,
+    // ties and signed zeros included.
+    #[test]
+    fn median_by_selection_equals_sorted_median() {
+        let mut s = 99u64;
+        for n in 1..40 {
+            for round in 0..20 {
+                let v: Vec<f64> = (0..n)
+                    .map(|i| match (i + round) % 7 {
+                        0 => 0.0,
+                        1 => -0.0,
+                        2 => 1.5,
+                        _ => lcg(&mut s) - 0.5,
+                    })
+                    .collect();
+                let (mut a, mut b) = (v.clone(), v.clone());
+                assert_eq!(
+                    median(&mut a).to_bits(),
+                    median_sorted(&mut b).to_bits(),
+                    "{v:?}"
+                );
+            }
+        }
+        assert!(median(&mut []).is_nan());
+    }
+
+    // Alignment with one shared segment per beat and lead against extracting
+    // every lag separately (oracle): equal bit for bit, one and two leads,
+    // beats near the record ends, fiducials in the 4096..8192 range where
+    // `center ± lag` can cross a power of two.
+    #[test]
+    fn shared_segment_alignment_equals_lag_by_lag() {
+        for (seed, n_beats, rr) in [(7u64, 12usize, 220.0), (5, 40, 205.3)] {
+            let (x, _, mut fid) = synth(n_beats, rr, seed);
+            fid[0] = 3;
+            let y: Vec<f64> = x.iter().map(|v| 0.5 * v + 0.01).collect();
+            for p in [
+                AlignParams {
+                    half_width: 15,
+                    max_lag: 5,
+                    passes: 2,
+                    interp: Interpolation::Sinc,
+                },
+                AlignParams {
+                    half_width: 7,
+                    max_lag: 2,
+                    passes: 3,
+                    interp: Interpolation::Sinc,
+                },
+                AlignParams {
+                    half_width: 15,
+                    max_lag: 5,
+                    passes: 2,
+                    interp: Interpolation::Linear,
+                },
+            ] {
+                for (leads, w) in [
+                    (vec![&x[..]], vec![1.0]),
+                    (vec![&x[..], &y[..]], vec![1.0, 0.5]),
+                ] {
+                    let fast = align_impl(&leads, &w, &fid, &p, true);
+                    let slow = align_impl(&leads, &w, &fid, &p, false);
+                    let fb: Vec<u64> = fast.iter().map(|v| v.to_bits()).collect();
+                    let sb: Vec<u64> = slow.iter().map(|v| v.to_bits()).collect();
+                    assert_eq!(fb, sb, "{p:?}");
+                }
+            }
+        }
+    }
+
+    // The in-bounds fast path and the clamped edge path of `extract` against
+    // `sample_at` (oracle) near both ends of a short signal.
+    #[test]
+    fn extract_at_the_edges_equals_sample_by_sample() {
+        let x: Vec<f64> = (0..40).map(|i| ((i * i) % 11) as f64 - 3.0).collect();
+        for &c in &[0.3, 2.6, 5.0, 5.5, 20.125, 34.9, 38.7, 39.2, 39.0] {
+            let fast = extract(&x, c, 6, 6, Interpolation::Sinc);
+            for (k, v) in fast.iter().enumerate() {
+                let slow = sample_at(&x, c + k as f64 - 6.0, Interpolation::Sinc);
+                assert!((v - slow).abs() < 1e-12, "c={c} k={k}");
+            }
+        }
     }
 
     #[test]

@@ -476,7 +476,7 @@ where
         Vec::new()
     } else {
         let templ: Vec<Vec<f64>> = (0..ctx.leads.len())
-            .map(|l| align::median_beat(&segs.iter().map(|b| b[l].clone()).collect::<Vec<_>>()))
+            .map(|l| align::median_beat(&segs.iter().map(|b| b[l].as_slice()).collect::<Vec<_>>()))
             .collect();
         let tc = concat(&templ);
         (0..segs.len())
@@ -524,7 +524,7 @@ where
             let m = align::median_beat(
                 &accepted
                     .iter()
-                    .map(|&k| segs[k][l].clone())
+                    .map(|&k| segs[k][l].as_slice())
                     .collect::<Vec<_>>(),
             );
             median.per_lead.push(m.iter().map(|&v| v as f32).collect());

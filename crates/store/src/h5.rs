@@ -160,6 +160,12 @@ impl ResultsWriter {
         write_group(&g, &self.path, group)
     }
 
+    /// Add an attribute to the root group (e.g. one known only at the end).
+    pub fn root_attr(&mut self, name: &str, a: &Attr) -> Result<(), StoreError> {
+        let f = self.file.as_ref().expect("open until finish");
+        write_attr(f, &self.path, name, a)
+    }
+
     /// Close the file and move it into place.
     pub fn finish(mut self) -> Result<(), StoreError> {
         self.records = None;
