@@ -117,6 +117,12 @@ pub struct DelineateConfig {
     /// 97.4 to 99.7 % at a cost of 3 ms in T-peak SD (the added peaks are the
     /// harder ones).
     pub t_peak_from_one_limb: bool,
+    /// A T wave found by one limb only (peak at the next zero crossing of
+    /// W_k) takes its final limb from the first opposite-sign extremum of
+    /// W_k up to this long (ms) after that peak, even past the T window (fast
+    /// rates); without one the peak is dropped. Before, the end was searched
+    /// from the first limb and fell before the peak (QTDB sele0409).
+    pub t_final_limb_reach_ms: f64,
     /// Second pass per lead: a T peak more than this (ms) from where the
     /// neighbouring beats put it is searched again within ± this of that
     /// place (0 = off). Default off: at 80 ms it lowered QTDB T-end SD from
@@ -256,6 +262,7 @@ impl Default for DelineateConfig {
             t_lobe_reach_ms: 1000.0,
             t_early_pair_frac: 0.7,
             t_peak_from_one_limb: true,
+            t_final_limb_reach_ms: 150.0,
             t_recheck_ms: 0.0,
             t_recheck_rr_frac: 0.15,
             t_recheck_window_ms: 160.0,
@@ -381,6 +388,13 @@ impl DelineateConfig {
             .range("t_biphasic_frac", self.t_biphasic_frac, 0.0, 1.0, "")
             .range("t_lobe_reach_ms", self.t_lobe_reach_ms, 20.0, 2000.0, "ms")
             .range("t_early_pair_frac", self.t_early_pair_frac, 0.0, 10.0, "")
+            .range(
+                "t_final_limb_reach_ms",
+                self.t_final_limb_reach_ms,
+                0.0,
+                1000.0,
+                "ms",
+            )
             .range("t_recheck_ms", self.t_recheck_ms, 0.0, 500.0, "ms")
             .range("t_recheck_rr_frac", self.t_recheck_rr_frac, 0.0, 10.0, "")
             .range(

@@ -119,6 +119,34 @@ fn best_lead(cands: &[(usize, Mark)]) -> Option<(usize, Mark)> {
         })
 }
 
+/// `chosen` if it lies strictly between `on` and `end` (where given);
+/// otherwise the candidate inside them nearest `expect` (or the most
+/// confident one); otherwise `chosen` unchanged.
+fn inside_or(
+    chosen: Option<(usize, Mark)>,
+    cands: &[(usize, Mark)],
+    on: Option<Mark>,
+    end: Option<Mark>,
+    expect: Option<f64>,
+) -> Option<(usize, Mark)> {
+    let inside = |m: &Mark| {
+        on.is_none_or(|o| m.sample > o.sample) && end.is_none_or(|e| m.sample < e.sample)
+    };
+    if chosen.is_none_or(|(_, m)| inside(&m)) {
+        return chosen;
+    }
+    let ok: Vec<(usize, Mark)> = cands.iter().copied().filter(|(_, m)| inside(m)).collect();
+    let pick = match expect {
+        Some(e) => ok.iter().copied().min_by(|a, b| {
+            (a.1.sample as f64 - e)
+                .abs()
+                .total_cmp(&(b.1.sample as f64 - e).abs())
+        }),
+        None => best_lead(&ok),
+    };
+    pick.or(chosen)
+}
+
 pub(crate) fn combine(
     per_lead: &[Vec<BeatMarks>],
     n_beats: usize,
@@ -219,8 +247,6 @@ pub(crate) fn combine(
                 TEndMethod::Tangent => g.t_end_tangent,
                 TEndMethod::Area => g.t_end_area,
             };
-            g.qrs_peak = best_lead(&gather_l(&|m| m.qrs_peak)).map(|x| x.1);
-            g.p_peak = best_lead(&gather_l(&|m| m.p_peak)).map(|x| x.1);
             let t_peaks = gather_l(&|m| m.t_peak);
             // With the consistency rule, the T peak comes from the lead whose
             // peak lies nearest the neighbouring beats' pattern.
@@ -232,12 +258,28 @@ pub(crate) fn combine(
                 }),
                 _ => best_lead(&t_peaks),
             };
+            // Boundaries and peak come from possibly different leads; a peak
+            // outside its own boundaries (a lead that took another wave) is
+            // replaced by the nearest-to-expected peak that lies inside them,
+            // so the written wave stays `(` peak `)`.
+            let t_peak_lead = inside_or(
+                t_peak_lead,
+                &t_peaks,
+                g.t_on,
+                g.t_end,
+                exp(&|m| m.t_peak, cfg.global_pair_t),
+            );
             if let Some((l, m)) = t_peak_lead {
                 g.t_peak = Some(m);
                 g.t_morphology = beats[l].t_morphology;
             } else if let Some((l, _)) = best_lead(&gather_l(&|m| m.t_end)) {
                 g.t_morphology = beats[l].t_morphology;
             }
+            let p_peaks = gather_l(&|m| m.p_peak);
+            g.p_peak = inside_or(best_lead(&p_peaks), &p_peaks, g.p_on, g.p_end, None).map(|x| x.1);
+            let q_peaks = gather_l(&|m| m.qrs_peak);
+            g.qrs_peak =
+                inside_or(best_lead(&q_peaks), &q_peaks, g.qrs_on, g.qrs_end, None).map(|x| x.1);
             g
         })
         .collect()

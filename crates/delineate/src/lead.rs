@@ -540,8 +540,23 @@ impl LeadAnalysis {
             baseline_end - self.ms_i(cfg.baseline_window_ms),
             baseline_end,
         );
-        if let Some((k, l)) = t_found {
+        if let Some((k, mut l)) = t_found {
             let w = &self.w[k - 1];
+            // A lone lobe read as the first limb has its peak at the next zero
+            // crossing; the final limb is the first opposite-sign extremum
+            // after it, which may lie past the window end at fast rates. Without
+            // it the end would be searched from the first limb, before the peak.
+            if let (1, Some(pk)) = (l.idx.len(), l.peak) {
+                let s0 = w[l.idx[0]].signum();
+                let reach = (pk as isize + self.ms_i(cfg.t_final_limb_reach_ms)).min(t_limit);
+                let fin = Self::extrema(w, pk as isize, reach)
+                    .into_iter()
+                    .find(|&e| w[e].signum() == -s0);
+                match fin {
+                    Some(e) => l.idx.push(e),
+                    None => l.peak = None,
+                }
+            }
             let tconf = self.confidence(l.amp, k, cfg);
             bm.t_morphology = l.morph;
             bm.t_peak = self.mark(l.peak.map(|p| p as f64), tconf);
