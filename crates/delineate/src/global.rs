@@ -294,7 +294,11 @@ pub(crate) fn combine(
 /// annotations. Such a P onset is replaced by the earliest usable lead onset
 /// after that T end, or else put one sample after it; a P end at or after
 /// the QRS onset likewise.
-fn separate_p_from_previous_t(g: &mut [BeatMarks], per_lead: &[Vec<BeatMarks>], cfg: &DelineateConfig) {
+fn separate_p_from_previous_t(
+    g: &mut [BeatMarks],
+    per_lead: &[Vec<BeatMarks>],
+    cfg: &DelineateConfig,
+) {
     for i in 1..g.len() {
         let (Some(te), Some(po)) = (g[i - 1].t_end, g[i].p_on) else {
             continue;
