@@ -119,6 +119,34 @@ fn best_lead(cands: &[(usize, Mark)]) -> Option<(usize, Mark)> {
         })
 }
 
+/// `chosen` if it lies strictly between `on` and `end` (where given);
+/// otherwise the candidate inside them nearest `expect` (or the most
+/// confident one); otherwise `chosen` unchanged.
+fn inside_or(
+    chosen: Option<(usize, Mark)>,
+    cands: &[(usize, Mark)],
+    on: Option<Mark>,
+    end: Option<Mark>,
+    expect: Option<f64>,
+) -> Option<(usize, Mark)> {
+    let inside = |m: &Mark| {
+        on.is_none_or(|o| m.sample > o.sample) && end.is_none_or(|e| m.sample < e.sample)
+    };
+    if chosen.is_none_or(|(_, m)| inside(&m)) {
+        return chosen;
+    }
+    let ok: Vec<(usize, Mark)> = cands.iter().copied().filter(|(_, m)| inside(m)).collect();
+    let pick = match expect {
+        Some(e) => ok.iter().copied().min_by(|a, b| {
+            (a.1.sample as f64 - e)
+                .abs()
+                .total_cmp(&(b.1.sample as f64 - e).abs())
+        }),
+        None => best_lead(&ok),
+    };
+    pick.or(chosen)
+}
+
 pub(crate) fn combine(
     per_lead: &[Vec<BeatMarks>],
     n_beats: usize,
@@ -126,7 +154,7 @@ pub(crate) fn combine(
     cfg: &DelineateConfig,
 ) -> Vec<BeatMarks> {
     let outlier = cfg.global_outlier_ms * fs / 1000.0;
-    (0..n_beats)
+    let mut g: Vec<BeatMarks> = (0..n_beats)
         .map(|b| {
             let beats: Vec<&BeatMarks> = per_lead.iter().filter_map(|l| l.get(b)).collect();
             let gather = |f: &dyn Fn(&BeatMarks) -> Option<Mark>| -> Vec<Mark> {
@@ -219,8 +247,6 @@ pub(crate) fn combine(
                 TEndMethod::Tangent => g.t_end_tangent,
                 TEndMethod::Area => g.t_end_area,
             };
-            g.qrs_peak = best_lead(&gather_l(&|m| m.qrs_peak)).map(|x| x.1);
-            g.p_peak = best_lead(&gather_l(&|m| m.p_peak)).map(|x| x.1);
             let t_peaks = gather_l(&|m| m.t_peak);
             // With the consistency rule, the T peak comes from the lead whose
             // peak lies nearest the neighbouring beats' pattern.
@@ -232,15 +258,90 @@ pub(crate) fn combine(
                 }),
                 _ => best_lead(&t_peaks),
             };
+            // Boundaries and peak come from possibly different leads; a peak
+            // outside its own boundaries (a lead that took another wave) is
+            // replaced by the nearest-to-expected peak that lies inside them,
+            // so the written wave stays `(` peak `)`.
+            let t_peak_lead = inside_or(
+                t_peak_lead,
+                &t_peaks,
+                g.t_on,
+                g.t_end,
+                exp(&|m| m.t_peak, cfg.global_pair_t),
+            );
             if let Some((l, m)) = t_peak_lead {
                 g.t_peak = Some(m);
                 g.t_morphology = beats[l].t_morphology;
             } else if let Some((l, _)) = best_lead(&gather_l(&|m| m.t_end)) {
                 g.t_morphology = beats[l].t_morphology;
             }
+            let p_peaks = gather_l(&|m| m.p_peak);
+            g.p_peak = inside_or(best_lead(&p_peaks), &p_peaks, g.p_on, g.p_end, None).map(|x| x.1);
+            let q_peaks = gather_l(&|m| m.qrs_peak);
+            g.qrs_peak =
+                inside_or(best_lead(&q_peaks), &q_peaks, g.qrs_on, g.qrs_end, None).map(|x| x.1);
             g
         })
-        .collect()
+        .collect();
+    separate_p_from_previous_t(&mut g, per_lead, cfg);
+    g
+}
+
+/// A P wave starts after the previous beat's T wave has ended and ends
+/// before its QRS starts (common practice: TP and PR segments). Leads are combined independently, so the
+/// earliest lead P onset can fall before the latest lead T end of the beat
+/// before, which would also interleave the two waves in the written
+/// annotations. Such a P onset is replaced by the earliest usable lead onset
+/// after that T end, or else put one sample after it; a P end at or after
+/// the QRS onset likewise.
+fn separate_p_from_previous_t(
+    g: &mut [BeatMarks],
+    per_lead: &[Vec<BeatMarks>],
+    cfg: &DelineateConfig,
+) {
+    for i in 1..g.len() {
+        let (Some(te), Some(po)) = (g[i - 1].t_end, g[i].p_on) else {
+            continue;
+        };
+        if po.sample > te.sample {
+            continue;
+        }
+        let later = per_lead
+            .iter()
+            .filter_map(|l| l.get(i).and_then(|b| b.p_on))
+            .filter(|m| m.sample > te.sample && m.confidence as f64 >= cfg.global_min_confidence)
+            .min_by_key(|m| m.sample);
+        let on = later.unwrap_or(Mark {
+            sample: te.sample + 1,
+            confidence: po.confidence * 0.5,
+        });
+        let peak_ok = g[i].p_peak.is_none_or(|p| p.sample > on.sample);
+        let end_ok = g[i].p_end.is_none_or(|e| e.sample > on.sample);
+        if peak_ok && end_ok {
+            g[i].p_on = Some(on);
+        } else {
+            g[i].p_on = None;
+        }
+    }
+    // Same within a beat: the P ends before the QRS starts.
+    for (i, b) in g.iter_mut().enumerate() {
+        let (Some(qo), Some(pe)) = (b.qrs_on, b.p_end) else {
+            continue;
+        };
+        if pe.sample < qo.sample {
+            continue;
+        }
+        let earlier = per_lead
+            .iter()
+            .filter_map(|l| l.get(i).and_then(|b| b.p_end))
+            .filter(|m| m.sample < qo.sample && m.confidence as f64 >= cfg.global_min_confidence)
+            .max_by_key(|m| m.sample);
+        let end = earlier.or((qo.sample > 0).then(|| Mark {
+            sample: qo.sample - 1,
+            confidence: pe.confidence * 0.5,
+        }));
+        b.p_end = end.filter(|e| b.p_peak.is_none_or(|p| p.sample < e.sample));
+    }
 }
 
 #[cfg(test)]

@@ -195,6 +195,21 @@ impl LeadAnalysis {
 
     /// Boundary after maximum `m`, mirror of [`Self::search_back`].
     fn search_fwd(w: &[f64], m: usize, xi: f64, max_len: isize, limit: isize) -> Option<f64> {
+        Self::search_fwd_at(w, m, xi, max_len, limit, false)
+    }
+
+    /// [`Self::search_fwd`]; with `interpolate`, a threshold crossing is
+    /// placed by linear interpolation between the two W_k samples around it
+    /// instead of at their midpoint, so the boundary is not quantised to
+    /// the analysis sample (4 ms at 250 Hz).
+    fn search_fwd_at(
+        w: &[f64],
+        m: usize,
+        xi: f64,
+        max_len: isize,
+        limit: isize,
+        interpolate: bool,
+    ) -> Option<f64> {
         let thr = xi * w[m].abs();
         let stop = (m as isize + max_len).min(limit).min(w.len() as isize - 2);
         let mut n = m as isize + 1;
@@ -202,7 +217,19 @@ impl LeadAnalysis {
             let i = n as usize;
             let v = w[i].abs();
             if v < thr || w[i].signum() != w[m].signum() {
-                return Some(i as f64);
+                if !interpolate {
+                    return Some(i as f64);
+                }
+                // Signed along the maximum: a >= thr > b. W[j] is centred
+                // at j + 1/2, so the midpoint rule above returns i at f = 1/2.
+                let s = w[m].signum();
+                let (a, b) = (s * w[i - 1], s * w[i]);
+                let f = if a > b {
+                    ((a - thr) / (a - b)).clamp(0.0, 1.0)
+                } else {
+                    0.5
+                };
+                return Some(i as f64 - 0.5 + f);
             }
             if w[i + 1].abs() >= v {
                 return Some(i as f64 + 0.5);
@@ -540,8 +567,23 @@ impl LeadAnalysis {
             baseline_end - self.ms_i(cfg.baseline_window_ms),
             baseline_end,
         );
-        if let Some((k, l)) = t_found {
+        if let Some((k, mut l)) = t_found {
             let w = &self.w[k - 1];
+            // A lone lobe read as the first limb has its peak at the next zero
+            // crossing; the final limb is the first opposite-sign extremum
+            // after it, which may lie past the window end at fast rates. Without
+            // it the end would be searched from the first limb, before the peak.
+            if let (1, Some(pk)) = (l.idx.len(), l.peak) {
+                let s0 = w[l.idx[0]].signum();
+                let reach = (pk as isize + self.ms_i(cfg.t_final_limb_reach_ms)).min(t_limit);
+                let fin = Self::extrema(w, pk as isize, reach)
+                    .into_iter()
+                    .find(|&e| w[e].signum() == -s0);
+                match fin {
+                    Some(e) => l.idx.push(e),
+                    None => l.peak = None,
+                }
+            }
             let tconf = self.confidence(l.amp, k, cfg);
             bm.t_morphology = l.morph;
             bm.t_peak = self.mark(l.peak.map(|p| p as f64), tconf);
@@ -550,7 +592,14 @@ impl LeadAnalysis {
             let last = *l.idx.last().unwrap();
             let t_on = Self::search_back(w, first, cfg.t_xi_on, tsearch, qend_i);
             bm.t_on = self.mark(t_on, tconf);
-            let t_end_w = Self::search_fwd(w, last, cfg.t_xi_end, tsearch, t_limit);
+            let t_end_w = Self::search_fwd_at(
+                w,
+                last,
+                cfg.t_xi_end,
+                tsearch,
+                t_limit,
+                cfg.t_end_interpolate,
+            );
             bm.t_end_wavelet = self.mark(t_end_w, tconf);
 
             // Tangent: steepest point of the final limb at scale 2^3 (the

@@ -138,15 +138,15 @@ fn qtdb_global_marks_against_annotator_1() {
     // (key, sensitivity floor %, |mean| ceiling ms, SD ceiling ms): measured
     // values with margins, see the crate report.
     let limits: [(&str, f64, f64, f64); 9] = [
-        ("p_on", 94.8, 0.8, 21.9),
-        ("p_end", 94.8, 4.8, 22.4),
-        ("qrs_on", 99.7, 1.6, 13.7),
-        ("qrs_end", 99.7, 4.5, 22.1),
-        ("t_peak", 99.4, 8.4, 36.7),
-        ("t_end", 99.4, 5.8, 43.3),
-        ("t_end_wavelet", 99.4, 5.8, 43.3),
-        ("t_end_tangent", 96.6, 5.4, 46.4),
-        ("t_end_area", 97.8, 1.7, 43.1),
+        ("p_on", 94.5, 1.1, 22.2),
+        ("p_end", 94.2, 4.9, 21.9),
+        ("qrs_on", 99.8, 1.5, 13.6),
+        ("qrs_end", 99.8, 4.4, 22.0),
+        ("t_peak", 99.3, 6.9, 37.0),
+        ("t_end", 99.3, 0.6, 38.7),
+        ("t_end_wavelet", 99.3, 0.6, 38.7),
+        ("t_end_tangent", 97.3, 6.2, 44.2),
+        ("t_end_area", 99.3, 2.0, 43.2),
     ];
     for (k, sens, mean, sd) in limits {
         let a = &t[k];
