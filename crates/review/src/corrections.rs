@@ -306,6 +306,40 @@ fn from_csv(text: &str) -> Result<CorrectionsFile, String> {
     })
 }
 
+/// An unreadable window or beat names no lead and no samples.
+fn is_whole(c: &Change, fiducial: &str) -> bool {
+    c.lead == "global" && c.fiducial == fiducial && c.old_sample.is_none() && c.new_sample.is_none()
+}
+
+/// The old and new sample of a moved mark: `old` must be the automatic mark, `new`
+/// inside `0..limit` (or −1 to delete); `within` names the span for the message.
+fn check_move(
+    c: &Change,
+    auto: i64,
+    limit: i64,
+    within: &str,
+) -> Result<(i64, i64), (ProblemKind, String)> {
+    let (Some(old), Some(new)) = (c.old_sample, c.new_sample) else {
+        return Err((
+            ProblemKind::OldSampleMismatch,
+            "old_sample and new_sample are required for a mark".into(),
+        ));
+    };
+    if old != auto {
+        return Err((
+            ProblemKind::OldSampleMismatch,
+            format!("old_sample {old} does not match the automatic mark {auto}"),
+        ));
+    }
+    if new != -1 && !(0..limit).contains(&new) {
+        return Err((
+            ProblemKind::SampleOutOfRange,
+            format!("new_sample {new} is outside the {within} (0..{limit}, or -1 to delete)"),
+        ));
+    }
+    Ok((old, new))
+}
+
 /// Check every entry against the run; all problems at once, or the resolved changes
 /// with the loaded parts of the records they touch.
 pub fn validate(
@@ -436,11 +470,7 @@ pub fn validate(
             }
             seen.insert(key, index);
             if kind == Kind::BeatUnreadable {
-                if c.lead != "global"
-                    || c.fiducial != "beat"
-                    || c.old_sample.is_some()
-                    || c.new_sample.is_some()
-                {
+                if !is_whole(c, "beat") {
                     bad(ProblemKind::UnknownLead, "an unreadable beat needs lead \"global\", fiducial \"beat\" and null samples".into());
                     continue;
                 }
@@ -493,30 +523,14 @@ pub fn validate(
                 );
                 continue;
             };
-            let (Some(old), Some(new)) = (c.old_sample, c.new_sample) else {
-                bad(
-                    ProblemKind::OldSampleMismatch,
-                    "old_sample and new_sample are required for a mark".into(),
-                );
-                continue;
-            };
-            if old != auto {
-                bad(
-                    ProblemKind::OldSampleMismatch,
-                    format!("old_sample {old} does not match the automatic mark {auto}"),
-                );
-                continue;
-            }
             let n_samples = crate::util::attr_f64(g, "n_samples").unwrap_or(0.0) as i64;
-            if new != -1 && !(0..n_samples).contains(&new) {
-                bad(
-                    ProblemKind::SampleOutOfRange,
-                    format!(
-                        "new_sample {new} is outside the record (0..{n_samples}, or -1 to delete)"
-                    ),
-                );
-                continue;
-            }
+            let (old, new) = match check_move(c, auto, n_samples, "record") {
+                Ok(v) => v,
+                Err((k, m)) => {
+                    bad(k, m);
+                    continue;
+                }
+            };
             out.push(Checked {
                 index,
                 record: c.record.clone(),
@@ -559,11 +573,7 @@ pub fn validate(
         }
         seen.insert(key, index);
         if kind == Kind::Unreadable {
-            if c.lead != "global"
-                || c.fiducial != "window"
-                || c.old_sample.is_some()
-                || c.new_sample.is_some()
-            {
+            if !is_whole(c, "window") {
                 bad(ProblemKind::UnknownLead, "an unreadable window needs lead \"global\", fiducial \"window\" and null samples".into());
                 continue;
             }
@@ -611,29 +621,13 @@ pub fn validate(
             );
             continue;
         };
-        let (Some(old), Some(new)) = (c.old_sample, c.new_sample) else {
-            bad(
-                ProblemKind::OldSampleMismatch,
-                "old_sample and new_sample are required for a mark".into(),
-            );
-            continue;
+        let (old, new) = match check_move(c, auto, beat_len as i64, "median beat") {
+            Ok(v) => v,
+            Err((k, m)) => {
+                bad(k, m);
+                continue;
+            }
         };
-        if old != auto {
-            bad(
-                ProblemKind::OldSampleMismatch,
-                format!("old_sample {old} does not match the automatic mark {auto}"),
-            );
-            continue;
-        }
-        if new != -1 && !(0..beat_len as i64).contains(&new) {
-            bad(
-                ProblemKind::SampleOutOfRange,
-                format!(
-                    "new_sample {new} is outside the median beat (0..{beat_len}, or -1 to delete)"
-                ),
-            );
-            continue;
-        }
         out.push(Checked {
             index,
             record: c.record.clone(),
