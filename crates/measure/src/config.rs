@@ -115,8 +115,8 @@ pub struct MeasureConfig {
     /// than the lead with the larger T wave (false). On QTDB (annotator 1, window QT)
     /// the inverted T's end was the early one in every such disagreement (4 records:
     /// the wavelet end fell on the first phase of the inverted T): superimposed-leads QT
-    /// SD 29.8 -> 25.1 ms on the odd-positioned records, 26.9 -> 22.4 ms on the even
-    /// ones. Default true. No unit (switch).
+    /// SD 30.1 -> 25.4 ms on the odd-positioned records of RECORDS, 26.9 -> 22.4 ms on
+    /// the even ones (LUDB unchanged). Default true. No unit (switch).
     pub prefer_upright_t: bool,
     /// Superimposed leads, three or more leads: the earliest onset is dropped if it
     /// precedes the next earliest by more than this (ms); also used for P onset; default 20.
