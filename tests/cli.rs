@@ -504,7 +504,7 @@ fn tune_with_ludb_lead_references_scores_like_validate() {
     let space = dir.path().join("space.toml");
     std::fs::write(
         &space,
-        "[search]\nstrategy = 'grid'\nfolds = 2\n[params.delineate]\nt_xi_end = { values = [0.3, 0.5] }\n",
+        "[search]\nstrategy = 'grid'\nfolds = 2\n[params.delineate]\nt_xi_end = { values = [0.3, 0.4] }\n",
     )
     .unwrap();
     let out = dir.path().join("tune");
@@ -519,14 +519,6 @@ fn tune_with_ludb_lead_references_scores_like_validate() {
         .unwrap();
     assert!(o.status.success(), "{}", text(&o));
     let cands = std::fs::read_to_string(out.join("candidates.csv")).unwrap();
-    // The run is pinned to the candidate's value, so the check does not depend on
-    // the default of `t_xi_end`.
-    assert_scores_equal_validate(
-        &cands,
-        "0.5",
-        &inputs,
-        &l,
-        &["--set", "delineate.t_xi_end=0.5"],
-        dir.path(),
-    );
+    // 0.4 is the default `t_xi_end`: that candidate must score like a default run.
+    assert_scores_equal_validate(&cands, "0.4", &inputs, &l, &[], dir.path());
 }

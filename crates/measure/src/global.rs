@@ -11,8 +11,9 @@
 //!   three or more valid leads, a lead whose QT is farther than `lead_outlier_ms` from
 //!   their median (a T end caught on a U wave or noise must not decide the record);
 //!   with exactly two valid leads that disagree by more than `lead_outlier_ms`, no
-//!   median can arbitrate, so the lead with the larger T wave (the clearer T end) is
-//!   kept. The lead is recorded.
+//!   median can arbitrate: if one T wave is upright and the other inverted and
+//!   `prefer_upright_t` is set, the upright one is kept, otherwise the lead with the
+//!   larger T wave (the clearer T end). The lead is recorded.
 //! - Superimposed-leads QT: earliest QRS onset to latest T end over the valid leads
 //!   (two leads: the leads kept above); with three or more leads a single outlying
 //!   earliest onset (more than `onset_outlier_ms` before the next) and a single
@@ -90,7 +91,18 @@ pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
         let (a, b) = (valid[0], valid[1]);
         let (qa, qb) = (leads[a].qt_ms.unwrap_or(0.0), leads[b].qt_ms.unwrap_or(0.0));
         if (qa - qb).abs() > cfg.lead_outlier_ms {
-            accepted = vec![if t_amp(b) > t_amp(a) { b } else { a }];
+            let upright = |l: usize| leads[l].t_amplitude_mv.is_some_and(|t| t > 0.0);
+            accepted = vec![if cfg.prefer_upright_t && upright(a) != upright(b) {
+                if upright(a) {
+                    a
+                } else {
+                    b
+                }
+            } else if t_amp(b) > t_amp(a) {
+                b
+            } else {
+                a
+            }];
         }
     }
     let longest_lead = accepted.iter().copied().max_by(|&a, &b| {
@@ -227,9 +239,23 @@ mod tests {
         flat.t_amplitude_mv = Some(0.2);
         let mut big = lead(100, 190, 500);
         big.t_amplitude_mv = Some(-0.4);
-        let g = combine(&[flat, big], 1000.0, &cfg);
+        let g = combine(&[flat.clone(), big.clone()], 1000.0, &cfg);
+        // Opposite polarities: the upright T (lead 0) wins over the larger inverted one.
+        assert_eq!((g.longest_lead, g.longest_ms), (Some(0), Some(500.0)));
+        assert_eq!(g.superimposed_ms, Some(500.0));
+        // Without the polarity preference the larger T wins.
+        let amp_only = MeasureConfig {
+            prefer_upright_t: false,
+            ..MeasureConfig::default()
+        };
+        let g = combine(&[flat.clone(), big], 1000.0, &amp_only);
         assert_eq!((g.longest_lead, g.longest_ms), (Some(1), Some(400.0)));
         assert_eq!(g.superimposed_ms, Some(400.0));
+        // Same polarity: the larger T wins whatever the preference.
+        let mut big_up = lead(100, 190, 500);
+        big_up.t_amplitude_mv = Some(0.4);
+        let g = combine(&[flat, big_up], 1000.0, &cfg);
+        assert_eq!((g.longest_lead, g.longest_ms), (Some(1), Some(400.0)));
     }
 
     #[test]

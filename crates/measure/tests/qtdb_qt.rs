@@ -61,6 +61,11 @@ fn annotated_qt(anns: &[Annotation]) -> Vec<(i64, i64, i64)> {
 
 /// Filter, detect and measure one WFDB record.
 fn measure(path: &Path) -> (RecordMeasures, f64) {
+    measure_with(path, &DelineateConfig::default())
+}
+
+/// [`measure`] with the median beats delineated by `dcfg`.
+fn measure_with(path: &Path, dcfg: &DelineateConfig) -> (RecordMeasures, f64) {
     let rec = read_record(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
     let fs = rec.fs;
     let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
@@ -76,7 +81,7 @@ fn measure(path: &Path) -> (RecordMeasures, f64) {
         &det,
         rec.meta.sex,
         &MeasureConfig::default(),
-        &DelineateConfig::default(),
+        dcfg,
     )
     .expect("measure");
     (m, fs)
@@ -154,7 +159,7 @@ fn qtdb_window_qt_against_annotator_1() {
         sup.len()
     );
     // Regression ceilings just above what was measured with the default pipeline
-    // (superimposed mean -5.7, SD 28.5 ms; longest lead mean -8.8, SD 28.1 ms; see
+    // (superimposed mean -4.6, SD 24.1 ms; longest lead mean -7.8, SD 23.8 ms; see
     // validation/results). The project's mean target (|mean| <= 10 ms) is met, the SD
     // target (<= 20 ms) not yet; these bounds stop the figures getting worse unnoticed.
     assert!(
@@ -167,8 +172,8 @@ fn qtdb_window_qt_against_annotator_1() {
     );
 }
 
-const MAX_ABS_MEAN_MS: f64 = 6.5;
-const MAX_SD_MS: f64 = 29.5;
+const MAX_ABS_MEAN_MS: f64 = 5.5;
+const MAX_SD_MS: f64 = 25.0;
 
 #[test]
 fn ludb_window_qt_against_longest_lead_reference() {
@@ -230,4 +235,138 @@ fn ludb_window_qt_against_longest_lead_reference() {
         "window QT measured in only {} of {n_ref} records",
         lng.len()
     );
+}
+
+/// Per detected beat: (fiducial sample, QT of the per-beat global marks in ms).
+fn beat_global_qt(path: &Path) -> Vec<(usize, Option<f64>)> {
+    let rec = read_record(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let fs = rec.fs;
+    let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
+    let filt = ConditioningFilter::design(fs, &FilterConfig::default()).expect("filter design");
+    let (leads, _) = filt.apply_record(&raw);
+    let leads: Vec<&[f64]> = leads.iter().map(|l| l.as_slice()).collect();
+    let det = tendline_detect::detect(&leads, fs, &DetectConfig::default()).expect("detect");
+    let mut qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
+    qrs.sort();
+    let d = tendline_delineate::delineate(&leads, fs, &qrs, &DelineateConfig::default());
+    qrs.iter()
+        .zip(&d.global)
+        .map(|(&q, g)| {
+            let qt = g
+                .qrs_on
+                .zip(g.t_end)
+                .map(|(a, b)| (b.sample as f64 - a.sample as f64) / fs * 1000.0);
+            (q, qt)
+        })
+        .collect()
+}
+
+/// Diagnostic (run by hand): one CSV row per QTDB window and lead with the median-beat
+/// marks (samples relative to the median beat's fiducial), the reference's mean QRS
+/// onset and T end relative to the window's aligned beats, and the window QTs, written
+/// to the file named by `TENDLINE_QT_DUMP`.
+#[test]
+#[ignore]
+fn qtdb_window_dump() {
+    let out = std::env::var("TENDLINE_QT_DUMP").expect("TENDLINE_QT_DUMP not set");
+    // Optional JSON overrides of the delineation settings used on the median beats.
+    let dcfg: DelineateConfig = std::env::var("TENDLINE_QT_DCFG")
+        .map(|j| serde_json::from_str(&j).expect("TENDLINE_QT_DCFG: DelineateConfig JSON"))
+        .unwrap_or_default();
+    let dir = data_dir().join("qtdb");
+    let names: Vec<String> = std::fs::read_to_string(dir.join("RECORDS"))
+        .expect("RECORDS")
+        .lines()
+        .map(str::to_string)
+        .collect();
+    let rows = std::sync::Mutex::new(Vec::new());
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    std::thread::scope(|s| {
+        for _ in 0..2 {
+            s.spawn(|| loop {
+                let i = next.fetch_add(1, std::sync::atomic::Ordering::SeqCst);
+                let Some(name) = names.get(i) else { break };
+                let anns = read_annotations(&dir.join(format!("{name}.q1c")))
+                    .unwrap_or_else(|e| panic!("{name}.q1c: {e}"));
+                let refs = annotated_qt(&anns);
+                let (m, fs) = measure_with(&dir.join(name), &dcfg);
+                let glob = if std::env::var("TENDLINE_QT_DUMP_BEATS").is_ok() {
+                    beat_global_qt(&dir.join(name))
+                } else {
+                    Vec::new()
+                };
+                let mut local = Vec::new();
+                for w in &m.windows {
+                    let (a, b) = ((w.start_s * fs).round() as i64, (w.end_s * fs).round() as i64);
+                    let inside: Vec<&(i64, i64, i64)> =
+                        refs.iter().filter(|r| r.0 >= a && r.0 < b).collect();
+                    if inside.len() < 3 {
+                        continue;
+                    }
+                    let want = inside.iter().map(|r| (r.2 - r.1) as f64).sum::<f64>()
+                        / inside.len() as f64
+                        / fs
+                        * 1000.0;
+                    // Reference marks relative to the nearest aligned beat of the window.
+                    let (mut on, mut end, mut k) = (0.0, 0.0, 0usize);
+                    for r in &inside {
+                        if let Some(p) = w
+                            .aligned
+                            .iter()
+                            .copied()
+                            .min_by(|x, y| (x - r.0 as f64).abs().total_cmp(&(y - r.0 as f64).abs()))
+                            .filter(|p| (p - r.0 as f64).abs() <= 0.15 * fs)
+                        {
+                            on += r.1 as f64 - p;
+                            end += r.2 as f64 - p;
+                            k += 1;
+                        }
+                    }
+                    // Median per-beat global QT (ms) of the window's beats.
+                    let mut bq: Vec<f64> = w
+                        .beats
+                        .iter()
+                        .filter_map(|b| glob.iter().find(|g| g.0 == *b).and_then(|g| g.1))
+                        .collect();
+                    bq.sort_by(|a, b| a.total_cmp(b));
+                    let beat_qt = (!bq.is_empty()).then(|| bq[bq.len() / 2]);
+                    let f = w.median.fiducial as f64;
+                    let o = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.2}"));
+                    let mk = |m: Option<tendline_delineate::Mark>| o(m.map(|m| m.sample as f64 - f));
+                    for (l, lm) in w.leads.iter().enumerate() {
+                        local.push(format!(
+                            "{name},{fs},{:.1},{want:.2},{},{},{},{},{},{},{},{},{l},{},{},{},{},{},{},{},{},{},{},{},{},{}",
+                            w.start_s,
+                            o(beat_qt),
+                            inside.len(),
+                            o((k > 0).then(|| on / k as f64)),
+                            o((k > 0).then(|| end / k as f64)),
+                            o(w.qt_superimposed_ms),
+                            o(w.qt_longest_ms),
+                            w.qt_longest_lead.map_or(String::new(), |l| l.to_string()),
+                            o(w.rr_ms),
+                            lm.usable,
+                            mk(lm.marks.qrs_on),
+                            mk(lm.marks.qrs_end),
+                            mk(lm.marks.t_peak),
+                            mk(lm.marks.t_end),
+                            mk(lm.marks.t_end_wavelet),
+                            mk(lm.marks.t_end_tangent),
+                            mk(lm.marks.t_end_area),
+                            o(lm.t_amplitude_mv),
+                            o(lm.noise_mv),
+                            o(lm.qt_ms),
+                            lm.qt_accepted,
+                            w.n_beats,
+                        ));
+                    }
+                }
+                rows.lock().expect("rows").extend(local);
+            });
+        }
+    });
+    let mut rows = rows.into_inner().expect("rows");
+    rows.sort();
+    let head = "rec,fs,start_s,ref_qt,beat_qt,n_ref,ref_on,ref_end,sup,longest,longest_lead,rr,lead,usable,qrs_on,qrs_end,t_peak,t_end,t_end_wav,t_end_tan,t_end_area,t_amp,noise,qt,accepted,n_beats";
+    std::fs::write(&out, format!("{head}\n{}\n", rows.join("\n"))).expect("write dump");
 }
