@@ -340,6 +340,22 @@ fn check_move(
     Ok((old, new))
 }
 
+/// Entries already seen, by (record, place, lead, fiducial).
+type Seen = BTreeMap<(String, String, String, String), usize>;
+
+/// The index of an earlier entry making the same change at `place` (`w<window>` or
+/// `b<beat>`), else remember this one.
+fn first_entry(seen: &mut Seen, c: &Change, place: String, index: usize) -> Option<usize> {
+    let key = (c.record.clone(), place, c.lead.clone(), c.fiducial.clone());
+    match seen.get(&key) {
+        Some(&first) => Some(first),
+        None => {
+            seen.insert(key, index);
+            None
+        }
+    }
+}
+
 /// Check every entry against the run; all problems at once, or the resolved changes
 /// with the loaded parts of the records they touch.
 pub fn validate(
@@ -353,7 +369,7 @@ pub fn validate(
     let mut parts: BTreeMap<String, Option<Part>> = BTreeMap::new();
     let mut problems = Vec::new();
     let mut out = Vec::new();
-    let mut seen: BTreeMap<(String, String, String, String), usize> = BTreeMap::new();
+    let mut seen = Seen::new();
     let nonempty = |s: &Option<String>| {
         s.as_deref()
             .map(str::trim)
@@ -455,20 +471,13 @@ pub fn validate(
             let fs = crate::util::attr_f64(g, "fs").unwrap_or(f64::NAN);
             let t = peaks[beat] as f64 / fs;
             let window = (0..n_windows).find(|&w| t >= starts[w] && t < ends[w]);
-            let key = (
-                c.record.clone(),
-                format!("b{beat}"),
-                c.lead.clone(),
-                c.fiducial.clone(),
-            );
-            if let Some(first) = seen.get(&key) {
+            if let Some(first) = first_entry(&mut seen, c, format!("b{beat}"), index) {
                 bad(
                     ProblemKind::Duplicate,
                     format!("same change as entry {first}"),
                 );
                 continue;
             }
-            seen.insert(key, index);
             if kind == Kind::BeatUnreadable {
                 if !is_whole(c, "beat") {
                     bad(ProblemKind::UnknownLead, "an unreadable beat needs lead \"global\", fiducial \"beat\" and null samples".into());
@@ -558,20 +567,13 @@ pub fn validate(
                 continue;
             }
         };
-        let key = (
-            c.record.clone(),
-            format!("w{window}"),
-            c.lead.clone(),
-            c.fiducial.clone(),
-        );
-        if let Some(first) = seen.get(&key) {
+        if let Some(first) = first_entry(&mut seen, c, format!("w{window}"), index) {
             bad(
                 ProblemKind::Duplicate,
                 format!("same change as entry {first}"),
             );
             continue;
         }
-        seen.insert(key, index);
         if kind == Kind::Unreadable {
             if !is_whole(c, "window") {
                 bad(ProblemKind::UnknownLead, "an unreadable window needs lead \"global\", fiducial \"window\" and null samples".into());
