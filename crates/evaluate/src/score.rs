@@ -11,9 +11,13 @@
 //! - A test mark without a reference counterpart is a false positive only on a paired
 //!   beat, and only where the reference annotates that wave exhaustively (the
 //!   reference file set marks that wave at all — LUDB and QTDB `.q1c` do for P, QRS and
-//!   T; QTDB `.q2c` has no P) and the reference beat lacks the whole wave. A test mark
-//!   outside the fiducial window of a present reference mark is a false negative and,
-//!   under the same condition, also a false positive.
+//!   T; QTDB `.q2c` has no P) and the reference beat lacks the whole wave, and only when
+//!   the test mark lies within the span the reference annotates on that channel (first
+//!   to last reference mark): the cardiologists of LUDB stop marking at the QRS of the
+//!   last beat they consider, so that beat's T wave (and the first beat's P wave) lie
+//!   outside what they read, not absent. A test mark outside the fiducial window of a
+//!   present reference mark is a false negative and, under the same condition, also a
+//!   false positive.
 
 use crate::matching::{match_events, Counts};
 use crate::waves::{BeatMarks, Fiducial, Wave};
@@ -100,6 +104,9 @@ impl RecordScore {
         self.ref_beats += reference.len();
         self.paired_beats += pairs.len();
         let ms = 1000.0 / cfg.fs;
+        let marks = || reference.iter().flat_map(|b| b.all_marks());
+        let span = marks().min().zip(marks().max());
+        let in_span = |v: i64| span.is_some_and(|(lo, hi)| (lo..=hi).contains(&v));
         for &f in &cfg.fiducials {
             let c = self.counts.entry(f).or_default();
             let errs = self.errors.entry(f).or_default();
@@ -124,8 +131,8 @@ impl RecordScore {
                         }
                     }
                     (Some(_), None) => c.fn_ += 1,
-                    (None, Some(_)) => {
-                        if may_fp && !r.has_wave(f.wave()) {
+                    (None, Some(tv)) => {
+                        if may_fp && !r.has_wave(f.wave()) && in_span(tv) {
                             c.fp += 1;
                         }
                     }
@@ -204,6 +211,28 @@ mod tests {
         let mut s2 = RecordScore::new("x", 250.0);
         s2.add_channel(0, r, t, &cfg(&[Wave::Qrs, Wave::T]));
         assert_eq!(s2.counts[&Fiducial::PPeak].fp, 0);
+    }
+
+    #[test]
+    fn wave_outside_reference_span_is_not_false_positive() {
+        // Reference: three beats, the last one marked only up to its QRS end (the
+        // LUDB convention at the end of the annotated stretch). Test: T on every beat.
+        let mut last = beat(700);
+        last.t_peak = None;
+        last.t_end = None;
+        let mut inner = beat(400);
+        inner.t_peak = None;
+        inner.t_end = None;
+        let r = vec![beat(100), inner, last];
+        let t = vec![beat(100), beat(400), beat(700)];
+        let mut s = RecordScore::new("x", 250.0);
+        s.add_channel(0, r, t, &cfg(&[Wave::Qrs, Wave::T]));
+        // Beat 2's T (peak 460, end 490) lies inside the span (90..=710): false
+        // positive; beat 3's T (760, 790) lies after it: not counted.
+        let tp = &s.counts[&Fiducial::TPeak];
+        assert_eq!((tp.tp, tp.fn_, tp.fp), (1, 0, 1));
+        let te = &s.counts[&Fiducial::TEnd];
+        assert_eq!((te.tp, te.fn_, te.fp), (1, 0, 1));
     }
 
     #[test]
