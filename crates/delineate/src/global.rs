@@ -1,6 +1,6 @@
 //! Combination of per-lead marks into one set of global marks per beat.
 
-use crate::{BeatMarks, DelineateConfig, Mark, PairRule, TEndMethod};
+use crate::{BeatMarks, DelineateConfig, Mark, PairRule, TEndMethod, TMorphology};
 
 /// Which end of the spread a boundary takes.
 #[derive(Clone, Copy, PartialEq)]
@@ -22,41 +22,65 @@ fn extreme(
     expect: Option<f64>,
     cfg: &DelineateConfig,
 ) -> Option<Mark> {
-    let mut c: Vec<Mark> = cands
+    extreme_pref(cands, &[], pick, outlier, pair, expect, 0.0, cfg)
+}
+
+/// [`extreme`] where `preferred[i]` (if given) marks candidate `i` as the
+/// preferred kind of wave: with `PairRule::Consistent`, when two leads
+/// disagree and only one is preferred, its distance to the expected place
+/// counts `bonus` samples less.
+#[allow(clippy::too_many_arguments)]
+fn extreme_pref(
+    cands: &[Mark],
+    preferred: &[bool],
+    pick: Pick,
+    outlier: f64,
+    pair: PairRule,
+    expect: Option<f64>,
+    bonus: f64,
+    cfg: &DelineateConfig,
+) -> Option<Mark> {
+    let mut c: Vec<(Mark, bool)> = cands
         .iter()
-        .copied()
-        .filter(|m| m.confidence as f64 >= cfg.global_min_confidence)
+        .enumerate()
+        .map(|(i, &m)| (m, preferred.get(i).copied().unwrap_or(false)))
+        .filter(|(m, _)| m.confidence as f64 >= cfg.global_min_confidence)
         .collect();
     if c.len() < cfg.global_min_leads || c.is_empty() {
         return None;
     }
-    c.sort_by_key(|m| m.sample);
+    c.sort_by_key(|(m, _)| m.sample);
     if pick == Pick::Latest {
         c.reverse();
     }
     let total = c.len();
     let dist = |a: &Mark, b: f64| (a.sample as f64 - b).abs();
     if c.len() >= 3 {
-        let mut rest: Vec<f64> = c[1..].iter().map(|m| m.sample as f64).collect();
+        let mut rest: Vec<f64> = c[1..].iter().map(|(m, _)| m.sample as f64).collect();
         rest.sort_by(|a, b| a.total_cmp(b));
         let med = rest[rest.len() / 2];
-        if dist(&c[0], med) > outlier {
+        if dist(&c[0].0, med) > outlier {
             c.remove(0);
         }
-    } else if c.len() == 2 && dist(&c[0], c[1].sample as f64) > outlier {
+    } else if c.len() == 2 && dist(&c[0].0, c[1].0.sample as f64) > outlier {
+        let ((m0, p0), (m1, p1)) = (c[0], c[1]);
         let drop_outer = match pair {
-            PairRule::Confident => c[1].confidence > c[0].confidence,
+            PairRule::Confident => m1.confidence > m0.confidence,
             PairRule::Outer => false,
             PairRule::Inner => true,
             PairRule::Consistent => match expect {
-                Some(e) => dist(&c[0], e) > dist(&c[1], e),
-                None => c[1].confidence > c[0].confidence,
+                Some(e) => {
+                    let credit = |p: bool, q: bool| if p && !q { bonus } else { 0.0 };
+                    dist(&m0, e) - credit(p0, p1) > dist(&m1, e) - credit(p1, p0)
+                }
+                None => m1.confidence > m0.confidence,
             },
         };
         if drop_outer {
             c.remove(0);
         }
     }
+    let c: Vec<Mark> = c.into_iter().map(|(m, _)| m).collect();
     let best = c[0];
     let agree = cands
         .iter()
@@ -154,6 +178,7 @@ pub(crate) fn combine(
     cfg: &DelineateConfig,
 ) -> Vec<BeatMarks> {
     let outlier = cfg.global_outlier_ms * fs / 1000.0;
+    let upright_bonus = cfg.global_t_upright_bonus_ms * fs / 1000.0;
     let mut g: Vec<BeatMarks> = (0..n_beats)
         .map(|b| {
             let beats: Vec<&BeatMarks> = per_lead.iter().filter_map(|l| l.get(b)).collect();
@@ -218,30 +243,27 @@ pub(crate) fn combine(
                 exp(&|m| m.t_on, cfg.global_pair_t),
                 cfg,
             );
-            g.t_end_wavelet = extreme(
-                &gather(&|m| m.t_end_wavelet),
-                Pick::Latest,
-                outlier,
-                cfg.global_pair_t,
-                exp(&|m| m.t_end_wavelet, cfg.global_pair_t),
-                cfg,
-            );
-            g.t_end_tangent = extreme(
-                &gather(&|m| m.t_end_tangent),
-                Pick::Latest,
-                outlier,
-                cfg.global_pair_t,
-                exp(&|m| m.t_end_tangent, cfg.global_pair_t),
-                cfg,
-            );
-            g.t_end_area = extreme(
-                &gather(&|m| m.t_end_area),
-                Pick::Latest,
-                outlier,
-                cfg.global_pair_t,
-                exp(&|m| m.t_end_area, cfg.global_pair_t),
-                cfg,
-            );
+            // T ends: an upright T is preferred over an inverted or biphasic
+            // one when two leads disagree (`global_t_upright_bonus_ms`).
+            let t_end_of = |get: &dyn Fn(&BeatMarks) -> Option<Mark>| {
+                let (marks, upright): (Vec<Mark>, Vec<bool>) = beats
+                    .iter()
+                    .filter_map(|bm| get(bm).map(|m| (m, bm.t_morphology == TMorphology::Upright)))
+                    .unzip();
+                extreme_pref(
+                    &marks,
+                    &upright,
+                    Pick::Latest,
+                    outlier,
+                    cfg.global_pair_t,
+                    exp(get, cfg.global_pair_t),
+                    upright_bonus,
+                    cfg,
+                )
+            };
+            g.t_end_wavelet = t_end_of(&|m| m.t_end_wavelet);
+            g.t_end_tangent = t_end_of(&|m| m.t_end_tangent);
+            g.t_end_area = t_end_of(&|m| m.t_end_area);
             g.t_end = match cfg.t_end_method {
                 TEndMethod::Wavelet => g.t_end_wavelet,
                 TEndMethod::Tangent => g.t_end_tangent,
@@ -416,6 +438,38 @@ mod tests {
         assert_eq!(pick(PairRule::Consistent, Some(250.0)), 260);
         assert_eq!(pick(PairRule::Consistent, Some(205.0)), 200);
         assert_eq!(pick(PairRule::Consistent, None), 200);
+    }
+
+    #[test]
+    fn upright_t_end_gets_the_bonus_in_a_disagreeing_pair() {
+        let cfg = DelineateConfig::default();
+        // Two T ends 60 samples apart; the neighbouring beats expect 225:
+        // 25 samples from the first lead's mark (200), 35 from the second's.
+        let c = [m(200, 0.9), m(260, 0.5)];
+        let pick = |pref: &[bool], bonus: f64| {
+            extreme_pref(
+                &c,
+                pref,
+                Pick::Latest,
+                10.0,
+                PairRule::Consistent,
+                Some(225.0),
+                bonus,
+                &cfg,
+            )
+            .unwrap()
+            .sample
+        };
+        // Without a preference or a bonus the nearer mark wins.
+        assert_eq!(pick(&[], 20.0), 200);
+        assert_eq!(pick(&[false, true], 0.0), 200);
+        // Upright second lead: 35 - 20 < 25 wins; 35 - 5 > 25 does not.
+        assert_eq!(pick(&[false, true], 20.0), 260);
+        assert_eq!(pick(&[false, true], 5.0), 200);
+        // Both upright: no credit.
+        assert_eq!(pick(&[true, true], 50.0), 200);
+        // The credit goes only to the preferred lead.
+        assert_eq!(pick(&[true, false], 50.0), 200);
     }
 
     fn beat(qrs_peak: usize, t_end: usize) -> BeatMarks {

@@ -25,7 +25,8 @@
 //!   fraction of leads that agree within `global_outlier_ms`.
 //! * Global marks: QRS onset, P onset and T onset are the earliest, QRS end,
 //!   P end and T end the latest usable lead mark after rejecting at most one
-//!   outlying lead (with two leads that disagree, `global_pair_*` decides);
+//!   outlying lead (with two leads that disagree, `global_pair_*` decides,
+//!   and for T ends an upright T is favoured, `global_t_upright_bonus_ms`);
 //!   peaks and the T morphology come from the lead with the highest
 //!   confidence for that mark.
 //! * A biphasic T is reported as such, but its onset and end are searched

@@ -143,10 +143,13 @@ fn qtdb_global_marks_against_annotator_1() {
         ("qrs_on", 99.8, 1.5, 13.6),
         ("qrs_end", 99.8, 4.4, 22.0),
         ("t_peak", 99.3, 6.9, 37.0),
-        ("t_end", 99.3, 0.6, 38.7),
-        ("t_end_wavelet", 99.3, 0.6, 38.7),
-        ("t_end_tangent", 97.3, 6.2, 44.2),
-        ("t_end_area", 99.3, 2.0, 43.2),
+        // T ends with `global_t_upright_bonus_ms` 80 and `t_min_slope_mv_per_s`
+        // 0.3: wavelet mean 1.1, SD 37.1 ms, tangent SD 44.5 ms, area mean
+        // 3.0 ms (this test's matching, not the report's).
+        ("t_end", 99.3, 1.5, 37.5),
+        ("t_end_wavelet", 99.3, 1.5, 37.5),
+        ("t_end_tangent", 97.3, 6.2, 44.8),
+        ("t_end_area", 99.3, 3.3, 43.2),
     ];
     for (k, sens, mean, sd) in limits {
         let a = &t[k];
