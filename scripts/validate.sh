@@ -6,7 +6,8 @@ set -euo pipefail
 cd "$(dirname "$0")/.."
 data=../shared/data
 bin=target/release/tendline
-[ -x "$bin" ] || cargo build --release -q -p tendline
+# Always build: a stale binary would score old code (cargo is a no-op when up to date).
+cargo build --release -q -p tendline
 
 gate=()
 reports=validation/results
