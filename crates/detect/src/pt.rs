@@ -71,13 +71,26 @@ pub(crate) fn lead_features(x: &[f64], fs: f64, cfg: &DetectConfig) -> LeadFeatu
         cfg.bandpass_order,
     );
     let n = bp.len();
-    let mut d2 = vec![0.0; n];
-    for i in 0..n {
+    // Central difference inside, one-sided at the two ends.
+    let sq_deriv = |i: usize| {
         let a = bp[i.saturating_sub(1)];
         let b = bp[(i + 1).min(n - 1)];
         let span = ((i + 1).min(n - 1) - i.saturating_sub(1)).max(1) as f64;
         let d = (b - a) * fs / span;
-        d2[i] = d * d;
+        d * d
+    };
+    let mut d2 = Vec::with_capacity(n);
+    if n < 3 {
+        d2.extend((0..n).map(sq_deriv));
+    } else {
+        d2.push(sq_deriv(0));
+        // `span` is 2 for every inner sample: the same expression without
+        // the per-sample index arithmetic.
+        d2.extend(bp.windows(3).map(|w| {
+            let d = (w[2] - w[0]) * fs / 2.0;
+            d * d
+        }));
+        d2.push(sq_deriv(n - 1));
     }
     let mwi = moving_mean(&d2, ms_to_samples(cfg.mwi_window_ms, fs));
     LeadFeatures { bp, d2, mwi }
