@@ -32,6 +32,43 @@ pub(crate) struct LeadFeatures {
 /// truncated at the ends and divided by the samples actually inside).
 pub(crate) fn moving_mean(x: &[f64], w: usize) -> Vec<f64> {
     let n = x.len();
+    let mut pre = Vec::with_capacity(n + 1);
+    let mut acc = 0.0;
+    pre.push(acc);
+    for v in x {
+        acc += v;
+        pre.push(acc);
+    }
+    let half = w / 2;
+    let at = |i: usize| {
+        let a = i.saturating_sub(half);
+        let b = (i + w - half).min(n);
+        (pre[b] - pre[a]) / (b - a) as f64
+    };
+    // Inside, every window is whole (`b − a = w`): the same expression over
+    // two shifted views of the prefix sums, without per-sample clamping
+    // ([`moving_mean_reference`] is the test oracle).
+    let lo = half.min(n);
+    let hi = (n + half + 1).saturating_sub(w).clamp(lo, n);
+    let mut out = Vec::with_capacity(n);
+    out.extend((0..lo).map(at));
+    if hi > lo {
+        let wf = w as f64;
+        out.extend(
+            pre[lo + w - half..hi + w - half]
+                .iter()
+                .zip(&pre[lo - half..hi - half])
+                .map(|(b, a)| (b - a) / wf),
+        );
+    }
+    out.extend((hi..n).map(at));
+    out
+}
+
+/// [`moving_mean`] sample by sample (test oracle).
+#[cfg(test)]
+pub(crate) fn moving_mean_reference(x: &[f64], w: usize) -> Vec<f64> {
+    let n = x.len();
     let mut pre = vec![0.0; n + 1];
     for i in 0..n {
         pre[i + 1] = pre[i] + x[i];
