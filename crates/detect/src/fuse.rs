@@ -135,9 +135,17 @@ pub(crate) fn lead_mask(
         start += hop;
     }
     // Clipping: identical samples at the lead's extreme value for a long run.
-    let finite = raw.iter().filter(|v| v.is_finite());
-    let hi = finite.clone().cloned().fold(f64::NEG_INFINITY, f64::max);
-    let lo = finite.cloned().fold(f64::INFINITY, f64::min);
+    // Extremes of the finite samples in one pass (each fold sees the same
+    // values in the same order as two separate folds would).
+    let (mut hi, mut lo, mut gaps) = (f64::NEG_INFINITY, f64::INFINITY, false);
+    for &v in raw {
+        if v.is_finite() {
+            hi = hi.max(v);
+            lo = lo.min(v);
+        } else {
+            gaps = true;
+        }
+    }
     let run_min = pt::ms_to_samples(cfg.saturation_run_ms, fs);
     let mut i = 0;
     while i < n {
@@ -153,9 +161,11 @@ pub(crate) fn lead_mask(
         }
         i = j;
     }
-    for (s, v) in m.iter_mut().zip(raw) {
-        if !v.is_finite() {
-            *s = LeadState::Flat;
+    if gaps {
+        for (s, v) in m.iter_mut().zip(raw) {
+            if !v.is_finite() {
+                *s = LeadState::Flat;
+            }
         }
     }
     m
