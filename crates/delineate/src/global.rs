@@ -103,6 +103,46 @@ fn expected(
     half: usize,
     get: &dyn Fn(&BeatMarks) -> Option<Mark>,
 ) -> Option<f64> {
+    // Positions and offsets are whole samples, exact as `i64` and as `f64`:
+    // the upper median by integer selection is the value a `total_cmp` sort
+    // of the same numbers as `f64` puts at `len / 2` ([`expected_sorted`]).
+    let med = |v: &mut [i64]| -> Option<f64> {
+        if v.is_empty() {
+            return None;
+        }
+        let m = v.len() / 2;
+        Some(*v.select_nth_unstable(m).1 as f64)
+    };
+    let mut peaks: Vec<i64> = per_lead
+        .iter()
+        .filter_map(|l| l.get(b).and_then(|m| m.qrs_peak))
+        .map(|m| m.sample as i64)
+        .collect();
+    let here = med(&mut peaks)?;
+    let mut offs = Vec::with_capacity(per_lead.len() * 2 * half);
+    for l in per_lead {
+        let lo = b.saturating_sub(half);
+        let hi = (b + half + 1).min(l.len());
+        for (j, bm) in l.iter().enumerate().take(hi).skip(lo) {
+            if j == b {
+                continue;
+            }
+            if let (Some(m), Some(pk)) = (get(bm), bm.qrs_peak) {
+                offs.push(m.sample as i64 - pk.sample as i64);
+            }
+        }
+    }
+    Some(here + med(&mut offs)?)
+}
+
+/// [`expected`] by sorting the `f64` values: the obvious definition (test oracle).
+#[cfg(test)]
+fn expected_sorted(
+    per_lead: &[Vec<BeatMarks>],
+    b: usize,
+    half: usize,
+    get: &dyn Fn(&BeatMarks) -> Option<Mark>,
+) -> Option<f64> {
     let med = |mut v: Vec<f64>| -> Option<f64> {
         if v.is_empty() {
             return None;
@@ -494,5 +534,47 @@ mod tests {
         ];
         let e = expected(&[lead], 2, 8, &|b| b.t_end).unwrap();
         assert_eq!(e, 1102.0);
+    }
+
+    // Integer selection against the sorted-f64 definition (oracle), bit for
+    // bit, over three leads of pseudo-random marks with gaps, every beat and
+    // several context widths (odd and even counts of neighbours).
+    #[test]
+    fn expected_by_selection_equals_sorted_definition() {
+        let mut s = 0x2545_f491_4f6c_dd1du64;
+        let mut next = |m: u64| {
+            s ^= s << 13;
+            s ^= s >> 7;
+            s ^= s << 17;
+            s % m
+        };
+        let leads: Vec<Vec<BeatMarks>> = (0..3)
+            .map(|_| {
+                (0..40)
+                    .map(|i| {
+                        let pk = 500 * i + next(20) as usize;
+                        let mut b = beat(pk, pk + 250 + next(60) as usize);
+                        if next(7) == 0 {
+                            b.t_end = None;
+                        }
+                        if next(11) == 0 {
+                            b.qrs_peak = None;
+                        }
+                        b
+                    })
+                    .collect()
+            })
+            .collect();
+        for half in [1usize, 2, 5, 8, 50] {
+            for b in 0..42 {
+                let fast = expected(&leads, b, half, &|m| m.t_end);
+                let slow = expected_sorted(&leads, b, half, &|m| m.t_end);
+                assert_eq!(
+                    fast.map(f64::to_bits),
+                    slow.map(f64::to_bits),
+                    "b={b} half={half}"
+                );
+            }
+        }
     }
 }

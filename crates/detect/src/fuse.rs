@@ -135,9 +135,17 @@ pub(crate) fn lead_mask(
         start += hop;
     }
     // Clipping: identical samples at the lead's extreme value for a long run.
-    let finite = raw.iter().filter(|v| v.is_finite());
-    let hi = finite.clone().cloned().fold(f64::NEG_INFINITY, f64::max);
-    let lo = finite.cloned().fold(f64::INFINITY, f64::min);
+    // Extremes of the finite samples in one pass (each fold sees the same
+    // values in the same order as two separate folds would).
+    let (mut hi, mut lo, mut gaps) = (f64::NEG_INFINITY, f64::INFINITY, false);
+    for &v in raw {
+        if v.is_finite() {
+            hi = hi.max(v);
+            lo = lo.min(v);
+        } else {
+            gaps = true;
+        }
+    }
     let run_min = pt::ms_to_samples(cfg.saturation_run_ms, fs);
     let mut i = 0;
     while i < n {
@@ -153,12 +161,23 @@ pub(crate) fn lead_mask(
         }
         i = j;
     }
-    for (s, v) in m.iter_mut().zip(raw) {
-        if !v.is_finite() {
-            *s = LeadState::Flat;
+    if gaps {
+        for (s, v) in m.iter_mut().zip(raw) {
+            if !v.is_finite() {
+                *s = LeadState::Flat;
+            }
         }
     }
     m
+}
+
+/// How the samples of one run of [`Blocks::runs`] get a per-block value.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Run {
+    /// The value of this block.
+    Const(usize),
+    /// Linear between the centres of this block and the next.
+    Lerp(usize),
 }
 
 /// Block geometry and interpolation of per-block values.
@@ -180,34 +199,28 @@ impl Blocks {
     fn range(&self, b: usize) -> (usize, usize) {
         (b * self.len, ((b + 1) * self.len).min(self.n))
     }
-    /// Per-sample linear interpolation between block centres.
-    ///
-    /// Walks the samples in runs that share a pair of block centres; every
-    /// sample gets the same expression as [`Blocks::interpolate_reference`]
-    /// (the direct per-sample definition, the test oracle).
-    fn interpolate(&self, v: &[f64]) -> Vec<f64> {
-        let mut out = vec![0.0; self.n];
+    /// Centre of block `b` (samples, possibly half-integer).
+    fn centre(&self, b: usize) -> f64 {
+        let (a, e) = self.range(b);
+        (a + e) as f64 / 2.0
+    }
+
+    /// The samples cut into runs that share one rule of
+    /// [`Blocks::interpolate_reference`]: a constant block value before the
+    /// first centre, after the last one and when there is one block, else
+    /// the line between the centres of blocks `b` and `b + 1`. In order,
+    /// covering `0..n`.
+    fn runs(&self) -> Vec<(usize, usize, Run)> {
         if self.count == 1 {
-            out.fill(v[0]);
-            return out;
+            return vec![(0, self.n, Run::Const(0))];
         }
-        let cs: Vec<f64> = (0..self.count)
-            .map(|b| {
-                let (a, e) = self.range(b);
-                (a + e) as f64 / 2.0
-            })
-            .collect();
-        let (first, last) = (cs[0], cs[self.count - 1]);
-        let mut i = 0;
-        while i < self.n && i as f64 <= first {
-            out[i] = v[0];
-            i += 1;
-        }
-        let mut end = i;
-        while end < self.n && (end as f64) < last {
-            end += 1;
-        }
-        out[end..].fill(v[self.count - 1]);
+        let (first, last) = (self.centre(0), self.centre(self.count - 1));
+        // Samples `i as f64 <= first` are the integers up to `floor(first)`,
+        // samples `i as f64 < last` those below `ceil(last)`.
+        let head = ((first.floor() as usize) + 1).min(self.n);
+        let end = (last.ceil() as usize).clamp(head, self.n);
+        let mut out = vec![(0, head, Run::Const(0))];
+        let mut i = head;
         while i < end {
             let b = self.segment(i).min(self.count - 2);
             // First sample of the next segment: 2j − len ≥ 2(b+1)·len.
@@ -216,14 +229,31 @@ impl Blocks {
             } else {
                 ((2 * b + 3) * self.len).div_ceil(2).min(end)
             };
-            let (c0, c1) = (cs[b], cs[b + 1]);
-            let (v0, v1) = (v[b], v[b + 1]);
-            for (j, o) in out[i..run_end].iter_mut().enumerate() {
-                let t = (i + j) as f64;
-                let f = ((t - c0) / (c1 - c0)).clamp(0.0, 1.0);
-                *o = v0 * (1.0 - f) + v1 * f;
-            }
+            out.push((i, run_end, Run::Lerp(b)));
             i = run_end;
+        }
+        out.push((end, self.n, Run::Const(self.count - 1)));
+        out
+    }
+
+    /// Per-sample linear interpolation between block centres, walking the
+    /// samples in [`Blocks::runs`]; against the direct per-sample definition
+    /// [`Blocks::interpolate_reference`] it checks the runs (tests only:
+    /// [`combine`] interpolates inline).
+    #[cfg(test)]
+    fn interpolate(&self, v: &[f64]) -> Vec<f64> {
+        let mut out = Vec::with_capacity(self.n);
+        for (a, e, run) in self.runs() {
+            match run {
+                Run::Const(b) => out.extend(std::iter::repeat_n(v[b], e - a)),
+                Run::Lerp(b) => {
+                    let (c0, c1) = (self.centre(b), self.centre(b + 1));
+                    out.extend((a..e).map(|t| {
+                        let f = ((t as f64 - c0) / (c1 - c0)).clamp(0.0, 1.0);
+                        v[b] * (1.0 - f) + v[b + 1] * f
+                    }))
+                }
+            }
         }
         out
     }
@@ -277,6 +307,7 @@ fn median(v: &mut [f64]) -> Option<f64> {
 /// blocks, ignoring masked samples. `None` where no block has usable samples.
 fn local_scale(
     x: &[f64],
+    abs: bool,
     mask: &[LeadState],
     blocks: &Blocks,
     cfg: &DetectConfig,
@@ -287,7 +318,8 @@ fn local_scale(
             let mut best: Option<f64> = None;
             for i in a..e {
                 if mask[i] == LeadState::Ok {
-                    best = Some(best.map_or(x[i], |m: f64| m.max(x[i])));
+                    let v = if abs { x[i].abs() } else { x[i] };
+                    best = Some(best.map_or(v, |m: f64| m.max(v)));
                 }
             }
             best.filter(|m| *m > 0.0)
@@ -311,7 +343,112 @@ struct Combined {
     slope: Vec<f64>,
 }
 
+/// The per-block values of one lead that [`combine`] interpolates.
+struct LeadBlocks<'a> {
+    /// Beat level of the integrated signal per block.
+    scale_i: &'a [f64],
+    /// Beat level of the band-passed signal per block.
+    scale_f: &'a [f64],
+    /// Quality weight per block.
+    weight: &'a [f64],
+    mask: &'a [LeadState],
+}
+
+/// The leads' integrated, filtered and slope signals, each divided by its
+/// local beat level and averaged with the leads' local weights. Scales and
+/// weights are the per-block values interpolated between block centres, the
+/// weight zeroed where the lead is masked; the weights are also returned per
+/// sample, with their sum per lead (`Iterator::sum` order).
+///
+/// The three interpolations of a lead share the block geometry, so one pass
+/// computes each sample's interpolation fraction once and uses it for every
+/// lead and value, without per-sample arrays of scales; every value is the
+/// same expression as [`Blocks::interpolate`] followed by [`combine_arrays`]
+/// (the test oracle), hence the same bits.
 fn combine(
+    feats: &[LeadFeatures],
+    per_lead: &[LeadBlocks],
+    blocks: &Blocks,
+) -> (Combined, Vec<Vec<f64>>, Vec<f64>) {
+    let n = blocks.n;
+    let nl = feats.len();
+    let mut c = Combined {
+        mwi: Vec::with_capacity(n),
+        filt: Vec::with_capacity(n),
+        slope: Vec::with_capacity(n),
+    };
+    let mut w2: Vec<Vec<f64>> = (0..nl).map(|_| Vec::with_capacity(n)).collect();
+    let s0: f64 = std::iter::empty::<f64>().sum();
+    let mut wsum = vec![s0; nl];
+    for (a, e, run) in blocks.runs() {
+        match run {
+            Run::Const(b) => {
+                for t in a..e {
+                    combine_sample(t, |v| v[b], feats, per_lead, &mut c, &mut w2, &mut wsum);
+                }
+            }
+            Run::Lerp(b) => {
+                let (c0, c1) = (blocks.centre(b), blocks.centre(b + 1));
+                for t in a..e {
+                    let fr = ((t as f64 - c0) / (c1 - c0)).clamp(0.0, 1.0);
+                    let value = |v: &[f64]| v[b] * (1.0 - fr) + v[b + 1] * fr;
+                    combine_sample(t, value, feats, per_lead, &mut c, &mut w2, &mut wsum);
+                }
+            }
+        }
+    }
+    (c, w2, wsum)
+}
+
+/// One sample of [`combine`]; `value` interpolates a per-block array at it.
+#[inline(always)]
+fn combine_sample(
+    t: usize,
+    value: impl Fn(&[f64]) -> f64,
+    feats: &[LeadFeatures],
+    per_lead: &[LeadBlocks],
+    c: &mut Combined,
+    w2: &mut [Vec<f64>],
+    wsum: &mut [f64],
+) {
+    let mut den = 0.0;
+    let (mut m, mut f, mut s) = (0.0, 0.0, 0.0);
+    for (l, (fe, lb)) in feats.iter().zip(per_lead).enumerate() {
+        let w = if lb.mask[t] == LeadState::Ok {
+            value(lb.weight)
+        } else {
+            0.0
+        };
+        w2[l].push(w);
+        wsum[l] += w;
+        if w <= 0.0 {
+            continue;
+        }
+        let (si, sf) = (value(lb.scale_i), value(lb.scale_f));
+        if si <= 0.0 || sf <= 0.0 {
+            continue;
+        }
+        den += w;
+        m += w * fe.mwi[t] / si;
+        let b = fe.bp[t] / sf;
+        f += w * b * b;
+        s += w * fe.d2[t] / si;
+    }
+    if den > 0.0 {
+        c.mwi.push(m / den);
+        c.filt.push((f / den).sqrt());
+        c.slope.push((s / den).sqrt());
+    } else {
+        c.mwi.push(0.0);
+        c.filt.push(0.0);
+        c.slope.push(0.0);
+    }
+}
+
+/// [`combine`] over per-sample arrays of scales and weights (the form it
+/// replaced; test oracle).
+#[cfg(test)]
+fn combine_arrays(
     feats: &[LeadFeatures],
     scale_i: &[Vec<f64>],
     scale_f: &[Vec<f64>],
@@ -362,6 +499,113 @@ struct Peakiness {
 }
 
 fn block_peakiness(
+    mwi: &[f64],
+    mask: &[LeadState],
+    blocks: &Blocks,
+    cfg: &DetectConfig,
+) -> Vec<Option<Peakiness>> {
+    let maxima: Vec<Option<f64>> = (0..blocks.count)
+        .map(|b| {
+            let (a, e) = blocks.range(b);
+            (a..e)
+                .filter(|&i| mask[i] == LeadState::Ok)
+                .map(|i| mwi[i])
+                .reduce(f64::max)
+        })
+        .collect();
+    // The usable samples of each block as sorted `total_key`s, sorted once:
+    // a block's percentile is then one index, and that of three blocks a
+    // short merge walk, instead of a selection over fresh copies for every
+    // block and again for each of its neighbours. The k-th key of a multiset
+    // does not depend on how it is found, so the values equal those of
+    // [`block_peakiness_reference`] bit for bit.
+    let mut keys: Vec<i64> = Vec::with_capacity(mwi.len());
+    let mut starts: Vec<usize> = Vec::with_capacity(blocks.count + 1);
+    for b in 0..blocks.count {
+        let s = keys.len();
+        starts.push(s);
+        let (a, e) = blocks.range(b);
+        keys.extend(
+            mwi[a..e]
+                .iter()
+                .zip(&mask[a..e])
+                .filter(|(_, m)| **m == LeadState::Ok)
+                .map(|(v, _)| total_key(*v)),
+        );
+        keys[s..].sort_unstable();
+    }
+    starts.push(keys.len());
+    let run = |b: usize| &keys[starts[b]..starts[b + 1]];
+    let rank = |len: usize| {
+        ((cfg.quality_background_percentile / 100.0) * (len - 1) as f64).round() as usize
+    };
+    (0..blocks.count)
+        .map(|b| {
+            let lo = b.saturating_sub(1);
+            let hi = (b + 2).min(blocks.count);
+            let mut mx: Vec<f64> = maxima[lo..hi].iter().flatten().cloned().collect();
+            let peak = median(&mut mx)?;
+            // Background over the three blocks for the weight (steadier), and
+            // over the block alone for the noise test (sharper in time).
+            let runs: Vec<&[i64]> = (lo..hi).map(run).collect();
+            let total: usize = runs.iter().map(|r| r.len()).sum();
+            if total == 0 {
+                return None;
+            }
+            let bg3 = from_total_key(kth_of_sorted_runs(&runs, rank(total)));
+            let own = run(b);
+            let bg1 = if own.is_empty() {
+                bg3
+            } else {
+                from_total_key(own[rank(own.len())])
+            };
+            let ratio = |bg: f64| {
+                if peak <= 0.0 {
+                    0.0
+                } else if bg > 0.0 {
+                    peak / bg
+                } else {
+                    f64::INFINITY
+                }
+            };
+            Some(Peakiness {
+                weight_ratio: ratio(bg3),
+                noise_ratio: ratio(bg1),
+                background: bg1,
+            })
+        })
+        .collect()
+}
+
+/// The `k`-th smallest (0-based) of the union of a few ascending runs, by
+/// walking the merge `k` steps. `k` must be below the total length.
+fn kth_of_sorted_runs(runs: &[&[i64]], k: usize) -> i64 {
+    let mut at = [0usize; 8];
+    assert!(runs.len() <= at.len(), "at most 8 runs");
+    let head = |at: &[usize], r: usize| runs[r].get(at[r]).copied();
+    let mut taken = 0usize;
+    loop {
+        let mut best: Option<(usize, i64)> = None;
+        for r in 0..runs.len() {
+            if let Some(v) = head(&at, r) {
+                if best.is_none_or(|(_, b)| v < b) {
+                    best = Some((r, v));
+                }
+            }
+        }
+        let (r, v) = best.expect("k below the total length");
+        if taken == k {
+            return v;
+        }
+        at[r] += 1;
+        taken += 1;
+    }
+}
+
+/// The direct definition of [`block_peakiness`]: each percentile by a
+/// selection over copies of the samples of its blocks (test oracle).
+#[cfg(test)]
+fn block_peakiness_reference(
     mwi: &[f64],
     mask: &[LeadState],
     blocks: &Blocks,
@@ -440,12 +684,17 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
             lead_quality: vec![0.0; nl],
         };
     }
-    let clean: Vec<Vec<f64>> = leads
+    // Gaps (non-finite samples) read as zero; a lead without any is used as is.
+    let clean: Vec<std::borrow::Cow<[f64]>> = leads
         .iter()
         .map(|l| {
-            l.iter()
-                .map(|v| if v.is_finite() { *v } else { 0.0 })
-                .collect()
+            if l.iter().all(|v| v.is_finite()) {
+                std::borrow::Cow::Borrowed(*l)
+            } else {
+                l.iter()
+                    .map(|v| if v.is_finite() { *v } else { 0.0 })
+                    .collect()
+            }
         })
         .collect();
     let feats: Vec<LeadFeatures> = clean
@@ -457,15 +706,11 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
         .collect();
     let blocks = Blocks::new(n, fs, cfg);
 
-    let abs_bp: Vec<Vec<f64>> = feats
-        .iter()
-        .map(|f| f.bp.iter().map(|v| v.abs()).collect())
-        .collect();
     let sc_i: Vec<Vec<Option<f64>>> = (0..nl)
-        .map(|l| local_scale(&feats[l].mwi, &masks[l], &blocks, cfg))
+        .map(|l| local_scale(&feats[l].mwi, false, &masks[l], &blocks, cfg))
         .collect();
     let sc_f: Vec<Vec<Option<f64>>> = (0..nl)
-        .map(|l| local_scale(&abs_bp[l], &masks[l], &blocks, cfg))
+        .map(|l| local_scale(&feats[l].bp, true, &masks[l], &blocks, cfg))
         .collect();
     // A block without a scale takes the nearest known one (the weight of such
     // a lead there is zero anyway through its mask).
@@ -485,14 +730,8 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
             })
             .collect()
     };
-    let scale_i: Vec<Vec<f64>> = sc_i.iter().map(|v| blocks.interpolate(&fill(v))).collect();
-    let scale_f: Vec<Vec<f64>> = sc_f.iter().map(|v| blocks.interpolate(&fill(v))).collect();
-    let unmasked = |l: usize, w: Vec<f64>| -> Vec<f64> {
-        w.into_iter()
-            .zip(&masks[l])
-            .map(|(w, m)| if *m == LeadState::Ok { w } else { 0.0 })
-            .collect()
-    };
+    let scale_i: Vec<Vec<f64>> = sc_i.iter().map(&fill).collect();
+    let scale_f: Vec<Vec<f64>> = sc_f.iter().map(&fill).collect();
 
     // Lead weights: relative peakiness, zero for a lead that looks like noise.
     // A lead is noise in a block when it has lost its peaks because its
@@ -533,10 +772,15 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
             };
         }
     }
-    let w2: Vec<Vec<f64>> = (0..nl)
-        .map(|l| unmasked(l, blocks.interpolate(&bw[l])))
+    let per_lead: Vec<LeadBlocks> = (0..nl)
+        .map(|l| LeadBlocks {
+            scale_i: &scale_i[l],
+            scale_f: &scale_f[l],
+            weight: &bw[l],
+            mask: &masks[l],
+        })
         .collect();
-    let c2 = combine(&feats, &scale_i, &scale_f, &w2);
+    let (c2, w2, wsum) = combine(&feats, &per_lead, &blocks);
     let pts = pt::decide(&c2.mwi, &c2.filt, &c2.slope, fs, cfg);
 
     // Fiducial: peak of the combined band-passed energy near the integrated peak.
@@ -614,13 +858,12 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     let inside = |s: usize| unreadable.iter().any(|u| s >= u.start && s < u.end);
     fid.retain(|&s| !inside(s));
 
-    let lead_quality: Vec<f64> = (0..nl)
-        .map(|l| w2[l].iter().sum::<f64>() / n as f64)
-        .collect();
+    let lead_quality: Vec<f64> = wsum.iter().map(|s| s / n as f64).collect();
     let weights_at: Vec<Vec<f64>> = fid
         .iter()
         .map(|&s| (0..nl).map(|l| w2[l][s]).collect())
         .collect();
+    let clean: Vec<&[f64]> = clean.iter().map(|c| &c[..]).collect();
     let labels = label::label_beats(&clean, &fid, &weights_at, &c2.slope, fs, cfg);
     let beats = fid
         .iter()
@@ -712,6 +955,155 @@ mod block_tests {
                 if i as f64 > first {
                     assert_eq!(b.segment(i), b.segment_float(i), "n={n} len={len} i={i}");
                 }
+            }
+        }
+    }
+
+    // Sorted blocks and merge walks against per-block selection over copies
+    // (oracle), bit for bit: a spiky signal with flat and saturated stretches
+    // (a block with no usable sample, blocks partly masked), a short last
+    // block, and several percentiles.
+    #[test]
+    fn block_peakiness_equals_direct_selection() {
+        let n: usize = 10_137;
+        let mut s = 0x9e37_79b9_7f4a_7c15u64;
+        let mut next = || {
+            s ^= s << 13;
+            s ^= s >> 7;
+            s ^= s << 17;
+            (s >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let mwi: Vec<f64> = (0..n)
+            .map(|i| {
+                let beat = if i % 200 < 10 { 50.0 } else { 0.0 };
+                beat + next() * 3.0
+            })
+            .collect();
+        let mask: Vec<LeadState> = (0..n)
+            .map(|i| match i {
+                1000..=1999 => LeadState::Flat,
+                2500..=2800 => LeadState::Saturated,
+                _ if i % 97 == 0 => LeadState::Flat,
+                _ => LeadState::Ok,
+            })
+            .collect();
+        for pct in [1.0, 30.0, 50.0, 90.0] {
+            let cfg = DetectConfig {
+                quality_background_percentile: pct,
+                ..DetectConfig::default()
+            };
+            let blocks = Blocks {
+                len: 500,
+                count: n.div_ceil(500),
+                n,
+            };
+            let fast = block_peakiness(&mwi, &mask, &blocks, &cfg);
+            let slow = block_peakiness_reference(&mwi, &mask, &blocks, &cfg);
+            assert_eq!(fast.len(), slow.len());
+            let bits = |p: &Option<Peakiness>| {
+                p.map(|p| {
+                    (
+                        p.weight_ratio.to_bits(),
+                        p.noise_ratio.to_bits(),
+                        p.background.to_bits(),
+                    )
+                })
+            };
+            for (b, (f, r)) in fast.iter().zip(&slow).enumerate() {
+                assert_eq!(bits(f), bits(r), "pct={pct} block={b}");
+            }
+        }
+    }
+
+    // The merge walk against sorting the concatenation (oracle).
+    #[test]
+    fn kth_of_runs_equals_sorted_concatenation() {
+        let a = [1i64, 4, 4, 9];
+        let b = [-3i64, 4, 10];
+        let c: [i64; 0] = [];
+        let d = [2i64];
+        let runs: [&[i64]; 4] = [&a, &b, &c, &d];
+        let mut all: Vec<i64> = runs.iter().flat_map(|r| r.iter().copied()).collect();
+        all.sort_unstable();
+        for (k, v) in all.iter().enumerate() {
+            assert_eq!(kth_of_sorted_runs(&runs, k), *v, "k={k}");
+        }
+    }
+
+    // The one-pass combination against interpolated arrays and the per-sample
+    // combination (oracle), bit for bit: two leads, masked stretches, blocks
+    // with zero weight or zero scale, a short last block, one block only.
+    #[test]
+    fn fused_combination_equals_interpolated_arrays() {
+        for (n, len) in [(10_250usize, 500usize), (700, 1000), (2_001, 200)] {
+            let blocks = Blocks {
+                len,
+                count: n.div_ceil(len),
+                n,
+            };
+            let feats: Vec<LeadFeatures> = (0..2)
+                .map(|l| {
+                    let bp: Vec<f64> = (0..n)
+                        .map(|i| ((i * (3 + l)) as f64 * 0.05).sin())
+                        .collect();
+                    let d2: Vec<f64> = bp.iter().map(|v| v * v * 40.0 + 0.1).collect();
+                    let mwi = pt::moving_mean(&d2, 37);
+                    LeadFeatures { bp, d2, mwi }
+                })
+                .collect();
+            let per_block = |l: usize, k: usize| -> Vec<f64> {
+                (0..blocks.count)
+                    .map(|b| match (b + l + k) % 5 {
+                        0 => 0.0,
+                        r => r as f64 * 0.37 + l as f64,
+                    })
+                    .collect()
+            };
+            let scale_i: Vec<Vec<f64>> = (0..2).map(|l| per_block(l, 1)).collect();
+            let scale_f: Vec<Vec<f64>> = (0..2).map(|l| per_block(l, 2)).collect();
+            let weight: Vec<Vec<f64>> = (0..2).map(|l| per_block(l, 3)).collect();
+            let masks: Vec<Vec<LeadState>> = (0..2)
+                .map(|l| {
+                    (0..n)
+                        .map(|i| {
+                            if (i / 300) % 4 == l + 1 {
+                                LeadState::Flat
+                            } else {
+                                LeadState::Ok
+                            }
+                        })
+                        .collect()
+                })
+                .collect();
+            let per_lead: Vec<LeadBlocks> = (0..2)
+                .map(|l| LeadBlocks {
+                    scale_i: &scale_i[l],
+                    scale_f: &scale_f[l],
+                    weight: &weight[l],
+                    mask: &masks[l],
+                })
+                .collect();
+            let (fast, w2, wsum) = combine(&feats, &per_lead, &blocks);
+            let si: Vec<Vec<f64>> = scale_i.iter().map(|v| blocks.interpolate(v)).collect();
+            let sf: Vec<Vec<f64>> = scale_f.iter().map(|v| blocks.interpolate(v)).collect();
+            let ws: Vec<Vec<f64>> = (0..2)
+                .map(|l| {
+                    blocks
+                        .interpolate(&weight[l])
+                        .into_iter()
+                        .zip(&masks[l])
+                        .map(|(w, m)| if *m == LeadState::Ok { w } else { 0.0 })
+                        .collect()
+                })
+                .collect();
+            let slow = combine_arrays(&feats, &si, &sf, &ws);
+            let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(bits(&fast.mwi), bits(&slow.mwi), "n={n}");
+            assert_eq!(bits(&fast.filt), bits(&slow.filt), "n={n}");
+            assert_eq!(bits(&fast.slope), bits(&slow.slope), "n={n}");
+            for l in 0..2 {
+                assert_eq!(bits(&w2[l]), bits(&ws[l]), "n={n} lead {l}");
+                assert_eq!(wsum[l].to_bits(), ws[l].iter().sum::<f64>().to_bits());
             }
         }
     }

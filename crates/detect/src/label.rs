@@ -96,7 +96,7 @@ fn elementwise_median(vs: &[&Vec<f64>]) -> Vec<f64> {
 /// Labels for `beats` (sorted fiducial samples). `weights[i][l]` is lead `l`'s
 /// quality weight at beat `i`; `slope` the combined slope signal.
 pub(crate) fn label_beats(
-    leads: &[Vec<f64>],
+    leads: &[&[f64]],
     beats: &[usize],
     weights: &[Vec<f64>],
     slope: &[f64],

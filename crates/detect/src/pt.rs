@@ -32,6 +32,43 @@ pub(crate) struct LeadFeatures {
 /// truncated at the ends and divided by the samples actually inside).
 pub(crate) fn moving_mean(x: &[f64], w: usize) -> Vec<f64> {
     let n = x.len();
+    let mut pre = Vec::with_capacity(n + 1);
+    let mut acc = 0.0;
+    pre.push(acc);
+    for v in x {
+        acc += v;
+        pre.push(acc);
+    }
+    let half = w / 2;
+    let at = |i: usize| {
+        let a = i.saturating_sub(half);
+        let b = (i + w - half).min(n);
+        (pre[b] - pre[a]) / (b - a) as f64
+    };
+    // Inside, every window is whole (`b − a = w`): the same expression over
+    // two shifted views of the prefix sums, without per-sample clamping
+    // ([`moving_mean_reference`] is the test oracle).
+    let lo = half.min(n);
+    let hi = (n + half + 1).saturating_sub(w).clamp(lo, n);
+    let mut out = Vec::with_capacity(n);
+    out.extend((0..lo).map(at));
+    if hi > lo {
+        let wf = w as f64;
+        out.extend(
+            pre[lo + w - half..hi + w - half]
+                .iter()
+                .zip(&pre[lo - half..hi - half])
+                .map(|(b, a)| (b - a) / wf),
+        );
+    }
+    out.extend((hi..n).map(at));
+    out
+}
+
+/// [`moving_mean`] sample by sample (test oracle).
+#[cfg(test)]
+pub(crate) fn moving_mean_reference(x: &[f64], w: usize) -> Vec<f64> {
+    let n = x.len();
     let mut pre = vec![0.0; n + 1];
     for i in 0..n {
         pre[i + 1] = pre[i] + x[i];
@@ -71,13 +108,26 @@ pub(crate) fn lead_features(x: &[f64], fs: f64, cfg: &DetectConfig) -> LeadFeatu
         cfg.bandpass_order,
     );
     let n = bp.len();
-    let mut d2 = vec![0.0; n];
-    for i in 0..n {
+    // Central difference inside, one-sided at the two ends.
+    let sq_deriv = |i: usize| {
         let a = bp[i.saturating_sub(1)];
         let b = bp[(i + 1).min(n - 1)];
         let span = ((i + 1).min(n - 1) - i.saturating_sub(1)).max(1) as f64;
         let d = (b - a) * fs / span;
-        d2[i] = d * d;
+        d * d
+    };
+    let mut d2 = Vec::with_capacity(n);
+    if n < 3 {
+        d2.extend((0..n).map(sq_deriv));
+    } else {
+        d2.push(sq_deriv(0));
+        // `span` is 2 for every inner sample: the same expression without
+        // the per-sample index arithmetic.
+        d2.extend(bp.windows(3).map(|w| {
+            let d = (w[2] - w[0]) * fs / 2.0;
+            d * d
+        }));
+        d2.push(sq_deriv(n - 1));
     }
     let mwi = moving_mean(&d2, ms_to_samples(cfg.mwi_window_ms, fs));
     LeadFeatures { bp, d2, mwi }

@@ -342,6 +342,23 @@ fn pearson(a: &[f64], b: &[f64]) -> f64 {
     sab / (saa * sbb).sqrt()
 }
 
+/// Samples `c0..=c1` of each of `leads`, each with its mean removed, end to end.
+fn concat_centred<'a>(
+    leads: &[usize],
+    c0: usize,
+    c1: usize,
+    lead: impl Fn(usize) -> &'a [f64],
+) -> Vec<f64> {
+    leads
+        .iter()
+        .flat_map(|&l| {
+            let s = &lead(l)[c0..=c1];
+            let m = s.iter().sum::<f64>() / s.len() as f64;
+            s.iter().map(move |v| v - m)
+        })
+        .collect()
+}
+
 fn measure_window<D>(ctx: &Ctx, ws: usize, we: usize, delineate: &mut D) -> WindowMeasure
 where
     D: FnMut(&[f64], f64, &[usize]) -> Vec<BeatMarks>,
@@ -462,27 +479,30 @@ where
         cfg.beat_after_ms
     };
     let c1 = before + ms_to_samples(c1_ms, fs).min(after);
-    let concat = |beat: &Vec<Vec<f64>>| -> Vec<f64> {
-        usable_leads
-            .iter()
-            .flat_map(|&l| {
-                let s = &beat[l][c0..=c1];
-                let m = s.iter().sum::<f64>() / s.len() as f64;
-                s.iter().map(move |v| v - m)
-            })
-            .collect()
-    };
+    // The template (median of every candidate) of each usable lead; it is
+    // also the final median beat of a lead when every candidate is accepted.
+    let mut templ: Vec<Option<Vec<f64>>> = vec![None; ctx.leads.len()];
     let accepted: Vec<usize> = if segs.is_empty() || usable_leads.is_empty() {
         Vec::new()
     } else {
-        let templ: Vec<Vec<f64>> = (0..ctx.leads.len())
-            .map(|l| align::median_beat(&segs.iter().map(|b| b[l].as_slice()).collect::<Vec<_>>()))
-            .collect();
-        let tc = concat(&templ);
+        for &l in &usable_leads {
+            templ[l] = Some(align::median_beat(
+                &segs.iter().map(|b| b[l].as_slice()).collect::<Vec<_>>(),
+            ));
+        }
+        let tc = concat_centred(&usable_leads, c0, c1, |l| {
+            templ[l].as_deref().unwrap_or_default()
+        });
         (0..segs.len())
-            .filter(|&k| pearson(&concat(&segs[k]), &tc) >= cfg.min_correlation)
+            .filter(|&k| {
+                let beat = concat_centred(&usable_leads, c0, c1, |l| segs[k][l].as_slice());
+                pearson(&beat, &tc) >= cfg.min_correlation
+            })
             .collect()
     };
+    // `accepted` keeps the candidates' order, so accepting all of them gives
+    // the template's input exactly.
+    let all_accepted = accepted.len() == segs.len();
     let need = if irregular {
         cfg.irregular_min_beats
     } else {
@@ -521,12 +541,15 @@ where
             before + after + 1
         };
         for (l, lm) in leads_out.iter_mut().enumerate() {
-            let m = align::median_beat(
-                &accepted
-                    .iter()
-                    .map(|&k| segs[k][l].as_slice())
-                    .collect::<Vec<_>>(),
-            );
+            let m = match templ[l].take() {
+                Some(t) if all_accepted => t,
+                _ => align::median_beat(
+                    &accepted
+                        .iter()
+                        .map(|&k| segs[k][l].as_slice())
+                        .collect::<Vec<_>>(),
+                ),
+            };
             median.per_lead.push(m.iter().map(|&v| v as f32).collect());
             lm.usable = ctx.usable[l];
             if !lm.usable {
@@ -704,6 +727,38 @@ fn t_amplitude(m: &[f64], marks: &BeatMarks) -> Option<f64> {
 
 /// Fill `None` runs by a straight line between their neighbours, or by the nearest value at the ends.
 fn fill_gaps(buf: &[Option<f64>]) -> Vec<f64> {
+    let known: Vec<usize> = (0..buf.len()).filter(|&i| buf[i].is_some()).collect();
+    if known.is_empty() {
+        return vec![0.0; buf.len()];
+    }
+    // `j` = number of known samples before `i`, advanced as `i` grows
+    // (the same index a binary search finds, [`fill_gaps_reference`]).
+    let mut j = 0usize;
+    buf.iter()
+        .enumerate()
+        .map(|(i, v)| match v {
+            Some(v) => *v,
+            None => {
+                while j < known.len() && known[j] < i {
+                    j += 1;
+                }
+                match (j.checked_sub(1).map(|p| known[p]), known.get(j)) {
+                    (Some(a), Some(&b)) => {
+                        let (va, vb) = (buf[a].unwrap_or(0.0), buf[b].unwrap_or(0.0));
+                        va + (vb - va) * (i - a) as f64 / (b - a) as f64
+                    }
+                    (Some(a), None) => buf[a].unwrap_or(0.0),
+                    (None, Some(&b)) => buf[b].unwrap_or(0.0),
+                    (None, None) => 0.0,
+                }
+            }
+        })
+        .collect()
+}
+
+/// [`fill_gaps`] with a binary search per gap sample (test oracle).
+#[cfg(test)]
+fn fill_gaps_reference(buf: &[Option<f64>]) -> Vec<f64> {
     let mut out = vec![0.0; buf.len()];
     let known: Vec<usize> = (0..buf.len()).filter(|&i| buf[i].is_some()).collect();
     if known.is_empty() {

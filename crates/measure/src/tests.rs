@@ -434,3 +434,38 @@ fn gap_filling_is_linear() {
     let b = [None, Some(1.0), None, None, Some(4.0), None];
     assert_eq!(fill_gaps(&b), vec![1.0, 1.0, 2.0, 3.0, 4.0, 4.0]);
 }
+
+// Gap filling with a walking index against a binary search per gap sample
+// (oracle), bit for bit: gaps at both ends, inside, single known samples,
+// no known sample.
+#[test]
+fn fill_gaps_equals_binary_search_form() {
+    let cases: Vec<Vec<Option<f64>>> = vec![
+        vec![
+            None,
+            None,
+            Some(1.0),
+            None,
+            None,
+            Some(-2.5),
+            None,
+            Some(0.3),
+            None,
+        ],
+        vec![Some(4.0)],
+        vec![None, Some(4.0), None],
+        vec![None; 5],
+        vec![],
+        (0..500)
+            .map(|i| (i % 7 != 3 && i % 11 != 0).then(|| (i as f64 * 0.1).sin()))
+            .collect(),
+    ];
+    for (c, buf) in cases.iter().enumerate() {
+        let fast = fill_gaps(buf);
+        let slow = fill_gaps_reference(buf);
+        assert_eq!(fast.len(), slow.len());
+        for (i, (a, b)) in fast.iter().zip(&slow).enumerate() {
+            assert_eq!(a.to_bits(), b.to_bits(), "case {c} sample {i}");
+        }
+    }
+}
