@@ -30,12 +30,15 @@
 //!   confidence for that mark.
 //! * A biphasic T is reported as such, but its onset and end are searched
 //!   from its dominant slope pair unless `t_biphasic_outer_bounds` is set.
+//! * P waves are dropped in every lead where the PR interval scatters over
+//!   neighbouring beats (`p_max_pr_mad_ms`, module `prhythm`).
 //! * Beats of a lead are delineated in order: the P search of a beat starts
 //!   no earlier than the previous beat's wavelet T end.
 
 mod config;
 mod global;
 mod lead;
+mod prhythm;
 
 pub use config::{DelineateConfig, PairRule};
 
@@ -207,10 +210,11 @@ fn recheck_t(
 
 /// Delineate all leads and combine them into global marks per beat.
 pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig) -> Delineation {
-    let per_lead: Vec<Vec<BeatMarks>> = leads
+    let mut per_lead: Vec<Vec<BeatMarks>> = leads
         .iter()
         .map(|x| delineate_lead(x, fs, qrs, cfg))
         .collect();
+    prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
     let global = global::combine(&per_lead, qrs.len(), fs, cfg);
     Delineation { per_lead, global }
 }
@@ -267,7 +271,7 @@ pub fn delineate_prepared(
     cfg: &DelineateConfig,
 ) -> Delineation {
     let wanted = |i: usize| want.get(i).copied().unwrap_or(false);
-    let per_lead: Vec<Vec<BeatMarks>> = leads
+    let mut per_lead: Vec<Vec<BeatMarks>> = leads
         .iter()
         .map(|pl| {
             let mut out = vec![BeatMarks::default(); qrs.len()];
@@ -292,6 +296,7 @@ pub fn delineate_prepared(
         })
         .collect();
     let fs = leads.first().map_or(1.0, |l| l.fs);
+    prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
     let global = global::combine(&per_lead, qrs.len(), fs, cfg);
     Delineation { per_lead, global }
 }
@@ -306,7 +311,14 @@ pub fn context_margin(cfg: &DelineateConfig) -> usize {
     } else {
         0
     };
-    cfg.global_context_beats + recheck + 1
+    // The P presence test looks `p_pr_context_beats` either side of a beat
+    // whose P marks then feed the global marks of beats that far again.
+    let p_test = if cfg.p_max_pr_mad_ms > 0.0 {
+        cfg.p_pr_context_beats
+    } else {
+        0
+    };
+    cfg.global_context_beats + recheck + p_test + 1
 }
 
 #[cfg(test)]
