@@ -175,7 +175,11 @@ impl LeadAnalysis {
     /// or reaches a local minimum, searching back at most `max_len` samples
     /// and not before `limit`.
     fn search_back(w: &[f64], m: usize, xi: f64, max_len: isize, limit: isize) -> Option<f64> {
-        let thr = xi * w[m].abs();
+        Self::search_back_thr(w, m, xi * w[m].abs(), max_len, limit)
+    }
+
+    /// [`Self::search_back`] with the threshold given in W_k units.
+    fn search_back_thr(w: &[f64], m: usize, thr: f64, max_len: isize, limit: isize) -> Option<f64> {
         let stop = (m as isize - max_len).max(limit).max(1);
         let mut n = m as isize - 1;
         while n >= stop {
@@ -198,6 +202,11 @@ impl LeadAnalysis {
         Self::search_fwd_at(w, m, xi, max_len, limit, false)
     }
 
+    /// [`Self::search_fwd`] with the threshold given in W_k units.
+    fn search_fwd_thr(w: &[f64], m: usize, thr: f64, max_len: isize, limit: isize) -> Option<f64> {
+        Self::search_fwd_at_thr(w, m, thr, max_len, limit, false)
+    }
+
     /// [`Self::search_fwd`]; with `interpolate`, a threshold crossing is
     /// placed by linear interpolation between the two W_k samples around it
     /// instead of at their midpoint, so the boundary is not quantised to
@@ -210,7 +219,18 @@ impl LeadAnalysis {
         limit: isize,
         interpolate: bool,
     ) -> Option<f64> {
-        let thr = xi * w[m].abs();
+        Self::search_fwd_at_thr(w, m, xi * w[m].abs(), max_len, limit, interpolate)
+    }
+
+    /// [`Self::search_fwd_at`] with the threshold given in W_k units.
+    fn search_fwd_at_thr(
+        w: &[f64],
+        m: usize,
+        thr: f64,
+        max_len: isize,
+        limit: isize,
+        interpolate: bool,
+    ) -> Option<f64> {
         let stop = (m as isize + max_len).min(limit).min(w.len() as isize - 2);
         let mut n = m as isize + 1;
         while n <= stop {
@@ -477,13 +497,19 @@ impl LeadAnalysis {
             }
         }
         let qsearch = self.ms_i(cfg.qrs_boundary_search_ms);
-        let qrs_on = Self::search_back(w2, first, cfg.qrs_xi_on, qsearch, region_lo - qsearch);
+        // The threshold is relative to the outer maximum (Martínez 2004), but
+        // not below a fraction of the complex's largest maximum: from a
+        // small Q or S lobe a threshold relative to that lobe alone runs into
+        // the isoelectric noise before (after) the complex.
+        let on_thr = (cfg.qrs_xi_on * w2[first].abs()).max(cfg.qrs_xi_on_rel * m_all);
+        let qrs_on = Self::search_back_thr(w2, first, on_thr, qsearch, region_lo - qsearch);
         let xi_end = if w2[last] > 0.0 {
             cfg.qrs_xi_end_pos
         } else {
             cfg.qrs_xi_end_neg
         };
-        let qrs_end = Self::search_fwd(w2, last, xi_end, qsearch, region_hi + qsearch);
+        let end_thr = (xi_end * w2[last].abs()).max(cfg.qrs_xi_end_rel * m_all);
+        let qrs_end = Self::search_fwd_thr(w2, last, end_thr, qsearch, region_hi + qsearch);
         bm.qrs_on = self.mark(qrs_on, qrs_conf);
         bm.qrs_end = self.mark(qrs_end, qrs_conf);
 
