@@ -226,6 +226,20 @@ pub struct DelineateConfig {
     /// A lead takes part in the test only with at least this many P waves
     /// among those beats.
     pub p_pr_min_waves: usize,
+    /// A lead without a P wave in a beat where at least this fraction of
+    /// the leads have one is searched again (see `p_fill_window_ms`).
+    pub p_fill_min_frac: f64,
+    /// ... within this (ms) of the median P peak of the other leads
+    /// (0 = off). Default 80 with `p_fill_min_frac` 0.5 and `p_fill_relax`
+    /// 0.5: LUDB per-lead P sensitivity 90.5 -> 94.9 % (odd records 91.8 ->
+    /// 95.9, even 89.2 -> 93.9) at unchanged positive predictivity (87.3 %),
+    /// P-onset SD 18.4 -> 18.9 ms; QTDB global P-onset sensitivity 94.2 ->
+    /// 94.5 % (+P 97.7 %), SD 20.1 -> 20.3 ms. Windows of 30/50/100 ms gave
+    /// 91.4/94.1/94.8 %.
+    pub p_fill_window_ms: f64,
+    /// ... with the P presence thresholds (`p_min_slope_mv_per_s`,
+    /// `p_min_rel_qrs`) multiplied by this.
+    pub p_fill_relax: f64,
 
     /// Length (ms) of the PR-segment stretch before QRS onset whose median is
     /// the isoelectric level (tangent method).
@@ -333,6 +347,9 @@ impl Default for DelineateConfig {
             p_max_pr_mad_ms: 14.0,
             p_pr_context_beats: 4,
             p_pr_min_waves: 4,
+            p_fill_min_frac: 0.5,
+            p_fill_window_ms: 80.0,
+            p_fill_relax: 0.5,
             baseline_window_ms: 20.0,
             confidence_snr_half: 3.0,
             global_outlier_ms: 40.0,
@@ -510,6 +527,15 @@ impl DelineateConfig {
                 1000.0,
                 "beats",
             )
+            .range("p_fill_min_frac", self.p_fill_min_frac, 0.0, 1.0, "")
+            .range("p_fill_window_ms", self.p_fill_window_ms, 0.0, 400.0, "ms")
+            .require(
+                self.p_fill_window_ms == 0.0 || self.p_fill_window_ms >= 20.0,
+                "p_fill_window_ms",
+                "0 or at least 20",
+                self.p_fill_window_ms,
+            )
+            .range("p_fill_relax", self.p_fill_relax, 0.0, 1.0, "")
             .range(
                 "p_pr_min_waves",
                 self.p_pr_min_waves as f64,

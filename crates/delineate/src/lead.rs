@@ -699,44 +699,90 @@ impl LeadAnalysis {
                 p_lo = p_lo.max(te + self.ms_i(cfg.p_after_t_end_ms));
             }
         }
-        if p_hi - p_lo >= self.ms_i(40.0) {
-            let rule = WaveRule {
-                gamma: cfg.p_gamma,
-                biphasic_frac: 1.1,
-                three_lobe_bounds: true,
-                reach: self.ms_i(cfg.p_lobe_reach_ms) as usize,
-                lone_peak: false,
-                early_frac: 1.0,
-            };
-            if let Some(l) = self.find_wave(4, p_lo, p_hi, &rule) {
-                let w4 = &self.w[3];
-                let slope = l.amp / 16.0 * self.fs_a;
-                let qrs4 = ext_max(
-                    w4,
-                    peak as isize - self.ms_i(60.0),
-                    peak as isize + self.ms_i(60.0),
-                );
-                if l.idx.len() >= 2
-                    && slope >= cfg.p_min_slope_mv_per_s
-                    && l.amp >= cfg.p_min_rel_qrs * qrs4
-                {
-                    let pconf = self.confidence(l.amp, 4, cfg);
-                    let psearch = self.ms_i(cfg.p_boundary_search_ms);
-                    let first = l.idx[0];
-                    let last = *l.idx.last().unwrap();
-                    bm.p_peak = self.mark(l.peak.map(|p| p as f64), pconf);
-                    bm.p_on = self.mark(
-                        Self::search_back(w4, first, cfg.p_xi_on, psearch, p_lo - psearch),
-                        pconf,
-                    );
-                    bm.p_end = self.mark(
-                        Self::search_fwd(w4, last, cfg.p_xi_end, psearch, qon_i),
-                        pconf,
-                    );
-                }
-            }
-        }
+        self.p_wave(&mut bm, peak, p_lo, p_hi, qon_i, 1.0, cfg);
         bm
+    }
+
+    /// P search in `[p_lo, p_hi]` (analysis samples) before the QRS onset
+    /// `qon_i` of the complex peaking at `peak`; the presence thresholds are
+    /// multiplied by `relax`. Writes the P marks of `bm` when found.
+    #[allow(clippy::too_many_arguments)]
+    fn p_wave(
+        &self,
+        bm: &mut BeatMarks,
+        peak: usize,
+        p_lo: isize,
+        p_hi: isize,
+        qon_i: isize,
+        relax: f64,
+        cfg: &DelineateConfig,
+    ) {
+        if p_hi - p_lo < self.ms_i(40.0) {
+            return;
+        }
+        let rule = WaveRule {
+            gamma: cfg.p_gamma,
+            biphasic_frac: 1.1,
+            three_lobe_bounds: true,
+            reach: self.ms_i(cfg.p_lobe_reach_ms) as usize,
+            lone_peak: false,
+            early_frac: 1.0,
+        };
+        let Some(l) = self.find_wave(4, p_lo, p_hi, &rule) else {
+            return;
+        };
+        let w4 = &self.w[3];
+        let slope = l.amp / 16.0 * self.fs_a;
+        let qrs4 = ext_max(
+            w4,
+            peak as isize - self.ms_i(60.0),
+            peak as isize + self.ms_i(60.0),
+        );
+        if l.idx.len() >= 2
+            && slope >= relax * cfg.p_min_slope_mv_per_s
+            && l.amp >= relax * cfg.p_min_rel_qrs * qrs4
+        {
+            let pconf = self.confidence(l.amp, 4, cfg);
+            let psearch = self.ms_i(cfg.p_boundary_search_ms);
+            let first = l.idx[0];
+            let last = *l.idx.last().unwrap();
+            bm.p_peak = self.mark(l.peak.map(|p| p as f64), pconf);
+            bm.p_on = self.mark(
+                Self::search_back(w4, first, cfg.p_xi_on, psearch, p_lo - psearch),
+                pconf,
+            );
+            bm.p_end = self.mark(
+                Self::search_fwd(w4, last, cfg.p_xi_end, psearch, qon_i),
+                pconf,
+            );
+        }
+    }
+
+    /// Second P search of a beat already delineated on this lead (`bm`),
+    /// within `half_ms` of `expect` (input sample: where the other leads put
+    /// the P peak), with the presence thresholds multiplied by `relax`.
+    /// Returns `bm` with the P marks found, if any.
+    pub(crate) fn p_near(
+        &self,
+        bm: &BeatMarks,
+        expect: usize,
+        half_ms: f64,
+        relax: f64,
+        cfg: &DelineateConfig,
+    ) -> Option<BeatMarks> {
+        let to_a = |s: usize| (s as f64 / self.ratio).round() as isize;
+        let peak = to_a(bm.qrs_peak?.sample);
+        let qon_i = to_a(bm.qrs_on?.sample);
+        if peak < 0 || peak >= self.len() {
+            return None;
+        }
+        let e = to_a(expect);
+        let h = self.ms_i(half_ms);
+        let p_lo = e - h;
+        let p_hi = (e + h).min(qon_i - self.ms_i(cfg.p_window_gap_ms));
+        let mut out = bm.clone();
+        self.p_wave(&mut out, peak as usize, p_lo, p_hi, qon_i, relax, cfg);
+        out.p_peak.is_some().then_some(out)
     }
 }
 

@@ -7,6 +7,7 @@
 //! (common practice), so the scatter of the P-peak-to-QRS-peak interval over
 //! neighbouring beats tells real P waves from random atrial activity.
 
+use crate::lead::LeadAnalysis;
 use crate::{BeatMarks, DelineateConfig};
 
 /// Median absolute deviation (and its median) of `v` (sorted in place).
@@ -76,6 +77,48 @@ pub(crate) fn drop_inconsistent_p(per_lead: &mut [Vec<BeatMarks>], fs: f64, cfg:
                 m.p_on = None;
                 m.p_peak = None;
                 m.p_end = None;
+            }
+        }
+    }
+}
+
+/// A P wave seen in most leads is also in the others, perhaps too small
+/// for the single-lead presence test (a lead nearly perpendicular to the
+/// P axis). For every beat where at least `p_fill_min_frac` of the leads
+/// have a P wave, a lead without one is searched again within
+/// `p_fill_window_ms` of the median P peak of the others, with the presence
+/// thresholds multiplied by `p_fill_relax`.
+pub(crate) fn fill_weak_p(
+    las: &[Option<&LeadAnalysis>],
+    per_lead: &mut [Vec<BeatMarks>],
+    cfg: &DelineateConfig,
+) {
+    if cfg.p_fill_window_ms <= 0.0 || per_lead.len() < 2 {
+        return;
+    }
+    let n = per_lead.iter().map(Vec::len).max().unwrap_or(0);
+    for b in 0..n {
+        let mut peaks: Vec<usize> = per_lead
+            .iter()
+            .filter_map(|l| l.get(b).and_then(|m| m.p_peak))
+            .map(|m| m.sample)
+            .collect();
+        if peaks.is_empty() || (peaks.len() as f64) < cfg.p_fill_min_frac * per_lead.len() as f64
+        {
+            continue;
+        }
+        peaks.sort_unstable();
+        let expect = peaks[peaks.len() / 2];
+        for (l, la) in per_lead.iter_mut().zip(las) {
+            let (Some(bm), Some(la)) = (l.get_mut(b), la) else {
+                continue;
+            };
+            if bm.p_peak.is_some() {
+                continue;
+            }
+            if let Some(found) = la.p_near(bm, expect, cfg.p_fill_window_ms, cfg.p_fill_relax, cfg)
+            {
+                *bm = found;
             }
         }
     }
