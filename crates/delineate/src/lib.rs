@@ -408,14 +408,21 @@ mod tests {
         let d = delineate(&leads, fs, &qrs, &off);
         let inner = 1..qrs.len() - 1;
         // Alone, the weak lead's P fails the presence test...
-        assert!(d.per_lead[0][inner.clone()].iter().all(|b| b.p_peak.is_some()));
-        assert!(d.per_lead[2][inner.clone()].iter().all(|b| b.p_peak.is_none()));
+        assert!(d.per_lead[0][inner.clone()]
+            .iter()
+            .all(|b| b.p_peak.is_some()));
+        assert!(d.per_lead[2][inner.clone()]
+            .iter()
+            .all(|b| b.p_peak.is_none()));
         // ... with the other leads' P it is found at the same place (P peak
         // at 160 ms before the R peak, within 10 ms).
         let d = delineate(&leads, fs, &qrs, &DelineateConfig::default());
         for i in inner {
             let p = d.per_lead[2][i].p_peak.expect("weak P found").sample as f64;
-            assert!((qrs[i] as f64 - p - 80.0).abs() <= 5.0, "beat {i}: P peak {p}");
+            assert!(
+                (qrs[i] as f64 - p - 80.0).abs() <= 5.0,
+                "beat {i}: P peak {p}"
+            );
         }
     }
 

@@ -103,8 +103,7 @@ pub(crate) fn fill_weak_p(
             .filter_map(|l| l.get(b).and_then(|m| m.p_peak))
             .map(|m| m.sample)
             .collect();
-        if peaks.is_empty() || (peaks.len() as f64) < cfg.p_fill_min_frac * per_lead.len() as f64
-        {
+        if peaks.is_empty() || (peaks.len() as f64) < cfg.p_fill_min_frac * per_lead.len() as f64 {
             continue;
         }
         peaks.sort_unstable();
@@ -185,7 +184,6 @@ mod tests {
 
     #[test]
     fn leads_with_few_p_waves_do_not_vote() {
-        let cfg = DelineateConfig::default();
         // One lead with a consistent P, one with only two (scattered) P waves.
         let sinus: Vec<BeatMarks> = (0..10)
             .map(|i| beat(1000 + 200 * i, Some(960 + 200 * i)))
