@@ -154,6 +154,11 @@ pub(crate) fn combine(
     cfg: &DelineateConfig,
 ) -> Vec<BeatMarks> {
     let outlier = cfg.global_outlier_ms * fs / 1000.0;
+    // P boundaries have their own confidence floor.
+    let cfg_p = DelineateConfig {
+        global_min_confidence: cfg.global_min_confidence_p,
+        ..cfg.clone()
+    };
     let mut g: Vec<BeatMarks> = (0..n_beats)
         .map(|b| {
             let beats: Vec<&BeatMarks> = per_lead.iter().filter_map(|l| l.get(b)).collect();
@@ -200,7 +205,7 @@ pub(crate) fn combine(
                 outlier,
                 cfg.global_pair_p,
                 exp(&|m| m.p_on, cfg.global_pair_p),
-                cfg,
+                &cfg_p,
             );
             g.p_end = extreme(
                 &gather(&|m| m.p_end),
@@ -208,7 +213,7 @@ pub(crate) fn combine(
                 outlier,
                 cfg.global_pair_p,
                 exp(&|m| m.p_end, cfg.global_pair_p),
-                cfg,
+                &cfg_p,
             );
             g.t_on = extreme(
                 &gather(&|m| m.t_on),
@@ -283,7 +288,7 @@ pub(crate) fn combine(
             g
         })
         .collect();
-    separate_p_from_previous_t(&mut g, per_lead, cfg);
+    separate_p_from_previous_t(&mut g, per_lead, &cfg_p);
     separate_t_from_qrs(&mut g, per_lead, cfg);
     g
 }
