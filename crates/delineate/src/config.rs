@@ -61,17 +61,15 @@ pub struct DelineateConfig {
     pub qrs_xi_on: f64,
     /// The QRS onset threshold is at least this fraction of the complex's
     /// largest |W_2| maximum (0 = Martínez's rule alone: `qrs_xi_on` times
-    /// the first maximum). Default 0.02 (0 before): QTDB global QRS onset
-    /// 1.3 +/- 13.7 -> 2.0 +/- 13.3 ms (SD odd records 12.7 -> 12.3, even
-    /// 14.4 -> 14.1), LUDB per-lead 5.1 +/- 14.4 -> 5.6 +/- 14.1 ms (odd
-    /// 15.5 -> 15.3, even 13.1 -> 12.8); 0.03 lowered the SDs by another
-    /// 0.1-0.2 ms but moved the onsets later still.
+    /// the first maximum). Default 0 (off): 0.02 lowered the QRS-onset SD
+    /// (QTDB global 13.7 -> 13.3 ms, LUDB per lead 14.4 -> 14.1 ms, both
+    /// record halves) but moved onsets later (QTDB mean 1.3 -> 2.0 ms) and
+    /// with them the QTDB window QT bias from -4.6 to -5.6 ms.
     pub qrs_xi_on_rel: f64,
     /// The QRS end threshold is at least this fraction of the complex's
     /// largest |W_2| maximum (0 = off). Default 0.03: QTDB global QRS end
     /// 4.5 +/- 21.4 -> 4.0 +/- 21.1 ms, LUDB per-lead -1.0 +/- 19.5 -> -1.4
-    /// +/- 19.2 ms, both record halves of each lower (measured with
-    /// `qrs_xi_on_rel` 0.03).
+    /// +/- 19.2 ms, both record halves of each lower; window QT unchanged.
     pub qrs_xi_end_rel: f64,
     /// ξ for QRS end at scale 2^2 when the last maximum is positive (rising S).
     pub qrs_xi_end_pos: f64,
@@ -312,7 +310,7 @@ impl Default for DelineateConfig {
             qrs_adjacent_frac: 1.0,
             qrs_adjacent_gap_ms: 24.0,
             qrs_xi_on: 0.05,
-            qrs_xi_on_rel: 0.02,
+            qrs_xi_on_rel: 0.0,
             qrs_xi_end_rel: 0.03,
             qrs_xi_end_pos: 0.125,
             qrs_xi_end_neg: 0.2,
