@@ -219,6 +219,11 @@ pub(crate) fn combine(
 ) -> Vec<BeatMarks> {
     let outlier = cfg.global_outlier_ms * fs / 1000.0;
     let upright_bonus = cfg.global_t_upright_bonus_ms * fs / 1000.0;
+    // P boundaries have their own confidence floor.
+    let cfg_p = DelineateConfig {
+        global_min_confidence: cfg.global_min_confidence_p,
+        ..cfg.clone()
+    };
     let mut g: Vec<BeatMarks> = (0..n_beats)
         .map(|b| {
             let beats: Vec<&BeatMarks> = per_lead.iter().filter_map(|l| l.get(b)).collect();
@@ -265,7 +270,7 @@ pub(crate) fn combine(
                 outlier,
                 cfg.global_pair_p,
                 exp(&|m| m.p_on, cfg.global_pair_p),
-                cfg,
+                &cfg_p,
             );
             g.p_end = extreme(
                 &gather(&|m| m.p_end),
@@ -273,7 +278,7 @@ pub(crate) fn combine(
                 outlier,
                 cfg.global_pair_p,
                 exp(&|m| m.p_end, cfg.global_pair_p),
-                cfg,
+                &cfg_p,
             );
             g.t_on = extreme(
                 &gather(&|m| m.t_on),
@@ -345,8 +350,36 @@ pub(crate) fn combine(
             g
         })
         .collect();
-    separate_p_from_previous_t(&mut g, per_lead, cfg);
+    separate_p_from_previous_t(&mut g, per_lead, &cfg_p);
+    separate_t_from_qrs(&mut g, per_lead, cfg);
     g
+}
+
+/// The T wave starts after the QRS complex ends (common practice: ST
+/// segment). The earliest lead T onset can fall before the latest lead QRS
+/// end (wide or paced complexes), which would interleave the two waves in
+/// the written annotations and hide the QRS end from a reader (QTDB sel102,
+/// sel38). Such a T onset is replaced by the earliest usable lead onset
+/// after that QRS end and before the T peak, or dropped.
+fn separate_t_from_qrs(g: &mut [BeatMarks], per_lead: &[Vec<BeatMarks>], cfg: &DelineateConfig) {
+    for (i, b) in g.iter_mut().enumerate() {
+        let (Some(qe), Some(to)) = (b.qrs_end, b.t_on) else {
+            continue;
+        };
+        if to.sample > qe.sample {
+            continue;
+        }
+        let before_peak = |m: &Mark| b.t_peak.is_none_or(|p| m.sample < p.sample);
+        b.t_on = per_lead
+            .iter()
+            .filter_map(|l| l.get(i).and_then(|x| x.t_on))
+            .filter(|m| {
+                m.sample > qe.sample
+                    && before_peak(m)
+                    && m.confidence as f64 >= cfg.global_min_confidence
+            })
+            .min_by_key(|m| m.sample);
+    }
 }
 
 /// A P wave starts after the previous beat's T wave has ended and ends
@@ -510,6 +543,29 @@ mod tests {
         assert_eq!(pick(&[true, true], 50.0), 200);
         // The credit goes only to the preferred lead.
         assert_eq!(pick(&[true, false], 50.0), 200);
+    }
+
+    #[test]
+    fn t_onset_before_the_qrs_end_is_moved_after_it() {
+        let cfg = DelineateConfig::default();
+        // Lead 0: narrow QRS ending at 110, T from 115; lead 1: wide QRS
+        // ending at 130, T from 140. Earliest T on (115) precedes the latest
+        // QRS end (130): the T onset of lead 1 is taken instead.
+        let lead = |qe: usize, to: usize| BeatMarks {
+            qrs_peak: Some(m(100, 0.9)),
+            qrs_end: Some(m(qe, 0.9)),
+            t_on: Some(m(to, 0.9)),
+            t_peak: Some(m(200, 0.9)),
+            ..Default::default()
+        };
+        let per_lead = vec![vec![lead(110, 115)], vec![lead(130, 140)]];
+        let g = combine(&per_lead, 1, 250.0, &cfg);
+        assert_eq!(g[0].qrs_end.unwrap().sample, 130);
+        assert_eq!(g[0].t_on.unwrap().sample, 140);
+        // No lead onset after the QRS end: no global T onset.
+        let per_lead = vec![vec![lead(110, 115)], vec![lead(130, 120)]];
+        let g = combine(&per_lead, 1, 250.0, &cfg);
+        assert!(g[0].t_on.is_none());
     }
 
     fn beat(qrs_peak: usize, t_end: usize) -> BeatMarks {

@@ -175,7 +175,11 @@ impl LeadAnalysis {
     /// or reaches a local minimum, searching back at most `max_len` samples
     /// and not before `limit`.
     fn search_back(w: &[f64], m: usize, xi: f64, max_len: isize, limit: isize) -> Option<f64> {
-        let thr = xi * w[m].abs();
+        Self::search_back_thr(w, m, xi * w[m].abs(), max_len, limit)
+    }
+
+    /// [`Self::search_back`] with the threshold given in W_k units.
+    fn search_back_thr(w: &[f64], m: usize, thr: f64, max_len: isize, limit: isize) -> Option<f64> {
         let stop = (m as isize - max_len).max(limit).max(1);
         let mut n = m as isize - 1;
         while n >= stop {
@@ -198,6 +202,11 @@ impl LeadAnalysis {
         Self::search_fwd_at(w, m, xi, max_len, limit, false)
     }
 
+    /// [`Self::search_fwd`] with the threshold given in W_k units.
+    fn search_fwd_thr(w: &[f64], m: usize, thr: f64, max_len: isize, limit: isize) -> Option<f64> {
+        Self::search_fwd_at_thr(w, m, thr, max_len, limit, false)
+    }
+
     /// [`Self::search_fwd`]; with `interpolate`, a threshold crossing is
     /// placed by linear interpolation between the two W_k samples around it
     /// instead of at their midpoint, so the boundary is not quantised to
@@ -210,7 +219,18 @@ impl LeadAnalysis {
         limit: isize,
         interpolate: bool,
     ) -> Option<f64> {
-        let thr = xi * w[m].abs();
+        Self::search_fwd_at_thr(w, m, xi * w[m].abs(), max_len, limit, interpolate)
+    }
+
+    /// [`Self::search_fwd_at`] with the threshold given in W_k units.
+    fn search_fwd_at_thr(
+        w: &[f64],
+        m: usize,
+        thr: f64,
+        max_len: isize,
+        limit: isize,
+        interpolate: bool,
+    ) -> Option<f64> {
         let stop = (m as isize + max_len).min(limit).min(w.len() as isize - 2);
         let mut n = m as isize + 1;
         while n <= stop {
@@ -477,13 +497,19 @@ impl LeadAnalysis {
             }
         }
         let qsearch = self.ms_i(cfg.qrs_boundary_search_ms);
-        let qrs_on = Self::search_back(w2, first, cfg.qrs_xi_on, qsearch, region_lo - qsearch);
+        // The threshold is relative to the outer maximum (Martínez 2004), but
+        // not below a fraction of the complex's largest maximum: from a
+        // small Q or S lobe a threshold relative to that lobe alone runs into
+        // the isoelectric noise before (after) the complex.
+        let on_thr = (cfg.qrs_xi_on * w2[first].abs()).max(cfg.qrs_xi_on_rel * m_all);
+        let qrs_on = Self::search_back_thr(w2, first, on_thr, qsearch, region_lo - qsearch);
         let xi_end = if w2[last] > 0.0 {
             cfg.qrs_xi_end_pos
         } else {
             cfg.qrs_xi_end_neg
         };
-        let qrs_end = Self::search_fwd(w2, last, xi_end, qsearch, region_hi + qsearch);
+        let end_thr = (xi_end * w2[last].abs()).max(cfg.qrs_xi_end_rel * m_all);
+        let qrs_end = Self::search_fwd_thr(w2, last, end_thr, qsearch, region_hi + qsearch);
         bm.qrs_on = self.mark(qrs_on, qrs_conf);
         bm.qrs_end = self.mark(qrs_end, qrs_conf);
 
@@ -673,44 +699,90 @@ impl LeadAnalysis {
                 p_lo = p_lo.max(te + self.ms_i(cfg.p_after_t_end_ms));
             }
         }
-        if p_hi - p_lo >= self.ms_i(40.0) {
-            let rule = WaveRule {
-                gamma: cfg.p_gamma,
-                biphasic_frac: 1.1,
-                three_lobe_bounds: true,
-                reach: self.ms_i(cfg.p_lobe_reach_ms) as usize,
-                lone_peak: false,
-                early_frac: 1.0,
-            };
-            if let Some(l) = self.find_wave(4, p_lo, p_hi, &rule) {
-                let w4 = &self.w[3];
-                let slope = l.amp / 16.0 * self.fs_a;
-                let qrs4 = ext_max(
-                    w4,
-                    peak as isize - self.ms_i(60.0),
-                    peak as isize + self.ms_i(60.0),
-                );
-                if l.idx.len() >= 2
-                    && slope >= cfg.p_min_slope_mv_per_s
-                    && l.amp >= cfg.p_min_rel_qrs * qrs4
-                {
-                    let pconf = self.confidence(l.amp, 4, cfg);
-                    let psearch = self.ms_i(cfg.p_boundary_search_ms);
-                    let first = l.idx[0];
-                    let last = *l.idx.last().unwrap();
-                    bm.p_peak = self.mark(l.peak.map(|p| p as f64), pconf);
-                    bm.p_on = self.mark(
-                        Self::search_back(w4, first, cfg.p_xi_on, psearch, p_lo - psearch),
-                        pconf,
-                    );
-                    bm.p_end = self.mark(
-                        Self::search_fwd(w4, last, cfg.p_xi_end, psearch, qon_i),
-                        pconf,
-                    );
-                }
-            }
-        }
+        self.p_wave(&mut bm, peak, p_lo, p_hi, qon_i, 1.0, cfg);
         bm
+    }
+
+    /// P search in `[p_lo, p_hi]` (analysis samples) before the QRS onset
+    /// `qon_i` of the complex peaking at `peak`; the presence thresholds are
+    /// multiplied by `relax`. Writes the P marks of `bm` when found.
+    #[allow(clippy::too_many_arguments)]
+    fn p_wave(
+        &self,
+        bm: &mut BeatMarks,
+        peak: usize,
+        p_lo: isize,
+        p_hi: isize,
+        qon_i: isize,
+        relax: f64,
+        cfg: &DelineateConfig,
+    ) {
+        if p_hi - p_lo < self.ms_i(40.0) {
+            return;
+        }
+        let rule = WaveRule {
+            gamma: cfg.p_gamma,
+            biphasic_frac: 1.1,
+            three_lobe_bounds: true,
+            reach: self.ms_i(cfg.p_lobe_reach_ms) as usize,
+            lone_peak: false,
+            early_frac: 1.0,
+        };
+        let Some(l) = self.find_wave(4, p_lo, p_hi, &rule) else {
+            return;
+        };
+        let w4 = &self.w[3];
+        let slope = l.amp / 16.0 * self.fs_a;
+        let qrs4 = ext_max(
+            w4,
+            peak as isize - self.ms_i(60.0),
+            peak as isize + self.ms_i(60.0),
+        );
+        if l.idx.len() >= 2
+            && slope >= relax * cfg.p_min_slope_mv_per_s
+            && l.amp >= relax * cfg.p_min_rel_qrs * qrs4
+        {
+            let pconf = self.confidence(l.amp, 4, cfg);
+            let psearch = self.ms_i(cfg.p_boundary_search_ms);
+            let first = l.idx[0];
+            let last = *l.idx.last().unwrap();
+            bm.p_peak = self.mark(l.peak.map(|p| p as f64), pconf);
+            bm.p_on = self.mark(
+                Self::search_back(w4, first, cfg.p_xi_on, psearch, p_lo - psearch),
+                pconf,
+            );
+            bm.p_end = self.mark(
+                Self::search_fwd(w4, last, cfg.p_xi_end, psearch, qon_i),
+                pconf,
+            );
+        }
+    }
+
+    /// Second P search of a beat already delineated on this lead (`bm`),
+    /// within `half_ms` of `expect` (input sample: where the other leads put
+    /// the P peak), with the presence thresholds multiplied by `relax`.
+    /// Returns `bm` with the P marks found, if any.
+    pub(crate) fn p_near(
+        &self,
+        bm: &BeatMarks,
+        expect: usize,
+        half_ms: f64,
+        relax: f64,
+        cfg: &DelineateConfig,
+    ) -> Option<BeatMarks> {
+        let to_a = |s: usize| (s as f64 / self.ratio).round() as isize;
+        let peak = to_a(bm.qrs_peak?.sample);
+        let qon_i = to_a(bm.qrs_on?.sample);
+        if peak < 0 || peak >= self.len() {
+            return None;
+        }
+        let e = to_a(expect);
+        let h = self.ms_i(half_ms);
+        let p_lo = e - h;
+        let p_hi = (e + h).min(qon_i - self.ms_i(cfg.p_window_gap_ms));
+        let mut out = bm.clone();
+        self.p_wave(&mut out, peak as usize, p_lo, p_hi, qon_i, relax, cfg);
+        out.p_peak.is_some().then_some(out)
     }
 }
 

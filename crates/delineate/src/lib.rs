@@ -31,12 +31,17 @@
 //!   confidence for that mark.
 //! * A biphasic T is reported as such, but its onset and end are searched
 //!   from its dominant slope pair unless `t_biphasic_outer_bounds` is set.
+//! * P waves are dropped in every lead where the PR interval scatters over
+//!   neighbouring beats (`p_max_pr_mad_ms`, module `prhythm`); a lead
+//!   without a P wave where most leads have one is searched again near
+//!   their P peak with relaxed presence thresholds (`p_fill_*`).
 //! * Beats of a lead are delineated in order: the P search of a beat starts
 //!   no earlier than the previous beat's wavelet T end.
 
 mod config;
 mod global;
 mod lead;
+mod prhythm;
 
 pub use config::{DelineateConfig, PairRule};
 
@@ -109,6 +114,16 @@ pub fn delineate_lead(x: &[f64], fs: f64, qrs: &[usize], cfg: &DelineateConfig) 
         return vec![BeatMarks::default(); qrs.len()];
     }
     let la = lead::LeadAnalysis::new(x, fs, cfg);
+    delineate_analysed(&la, fs, qrs, cfg)
+}
+
+/// [`delineate_lead`] on a lead already transformed.
+fn delineate_analysed(
+    la: &lead::LeadAnalysis,
+    fs: f64,
+    qrs: &[usize],
+    cfg: &DelineateConfig,
+) -> Vec<BeatMarks> {
     let mut out: Vec<BeatMarks> = Vec::with_capacity(qrs.len());
     for i in 0..qrs.len() {
         let prev = if i > 0 { Some(qrs[i - 1]) } else { None };
@@ -118,7 +133,7 @@ pub fn delineate_lead(x: &[f64], fs: f64, qrs: &[usize], cfg: &DelineateConfig) 
         out.push(la.beat(qrs[i], prev, next, prev_t_end, None, cfg));
     }
     if cfg.t_recheck_ms > 0.0 {
-        recheck_t(&la, &mut out, qrs, fs, cfg);
+        recheck_t(la, &mut out, qrs, fs, cfg);
     }
     out
 }
@@ -208,10 +223,23 @@ fn recheck_t(
 
 /// Delineate all leads and combine them into global marks per beat.
 pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig) -> Delineation {
-    let per_lead: Vec<Vec<BeatMarks>> = leads
+    let las: Vec<Option<lead::LeadAnalysis>> = leads
         .iter()
-        .map(|x| delineate_lead(x, fs, qrs, cfg))
+        .map(|x| {
+            (fs.is_finite() && fs > 0.0 && !x.is_empty())
+                .then(|| lead::LeadAnalysis::new(x, fs, cfg))
+        })
         .collect();
+    let mut per_lead: Vec<Vec<BeatMarks>> = las
+        .iter()
+        .map(|la| match la {
+            Some(la) => delineate_analysed(la, fs, qrs, cfg),
+            None => vec![BeatMarks::default(); qrs.len()],
+        })
+        .collect();
+    prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
+    let refs: Vec<Option<&lead::LeadAnalysis>> = las.iter().map(Option::as_ref).collect();
+    prhythm::fill_weak_p(&refs, &mut per_lead, cfg);
     let global = global::combine(&per_lead, qrs.len(), fs, cfg);
     Delineation { per_lead, global }
 }
@@ -268,7 +296,7 @@ pub fn delineate_prepared(
     cfg: &DelineateConfig,
 ) -> Delineation {
     let wanted = |i: usize| want.get(i).copied().unwrap_or(false);
-    let per_lead: Vec<Vec<BeatMarks>> = leads
+    let mut per_lead: Vec<Vec<BeatMarks>> = leads
         .iter()
         .map(|pl| {
             let mut out = vec![BeatMarks::default(); qrs.len()];
@@ -293,6 +321,9 @@ pub fn delineate_prepared(
         })
         .collect();
     let fs = leads.first().map_or(1.0, |l| l.fs);
+    prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
+    let refs: Vec<Option<&lead::LeadAnalysis>> = leads.iter().map(|l| l.la.as_ref()).collect();
+    prhythm::fill_weak_p(&refs, &mut per_lead, cfg);
     let global = global::combine(&per_lead, qrs.len(), fs, cfg);
     Delineation { per_lead, global }
 }
@@ -307,7 +338,14 @@ pub fn context_margin(cfg: &DelineateConfig) -> usize {
     } else {
         0
     };
-    cfg.global_context_beats + recheck + 1
+    // The P presence test looks `p_pr_context_beats` either side of a beat
+    // whose P marks then feed the global marks of beats that far again.
+    let p_test = if cfg.p_max_pr_mad_ms > 0.0 {
+        cfg.p_pr_context_beats
+    } else {
+        0
+    };
+    cfg.global_context_beats + recheck + p_test + 1
 }
 
 #[cfg(test)]
@@ -332,6 +370,61 @@ mod tests {
             text.iter().any(|t| t.contains("delineate.p_window_gap_ms")),
             "{text:?}"
         );
+    }
+
+    /// Synthetic beats (invented data): Gaussian P (peak 160 ms before the R
+    /// peak), QRS and T waves at 60 beats/min, 500 Hz; `p_mv` P amplitude.
+    fn synthetic_lead(p_mv: f64, n_beats: usize) -> (Vec<f64>, Vec<usize>) {
+        let fs = 500.0;
+        let rr = 500;
+        let n = rr * (n_beats + 1);
+        let g = |t: f64, c: f64, s: f64| (-(t - c) * (t - c) / (2.0 * s * s)).exp();
+        let qrs: Vec<usize> = (1..=n_beats).map(|k| k * rr).collect();
+        let x = (0..n)
+            .map(|i| {
+                let t = i as f64 / fs;
+                qrs.iter()
+                    .map(|&r| {
+                        let c = r as f64 / fs;
+                        p_mv * g(t, c - 0.16, 0.02) + 1.0 * g(t, c, 0.01)
+                            - 0.2 * g(t, c + 0.025, 0.008)
+                            + 0.3 * g(t, c + 0.3, 0.05)
+                    })
+                    .sum()
+            })
+            .collect();
+        (x, qrs)
+    }
+
+    #[test]
+    fn weak_p_in_one_lead_is_found_where_the_other_leads_have_it() {
+        let fs = 500.0;
+        let (strong, qrs) = synthetic_lead(0.15, 8);
+        let (weak, _) = synthetic_lead(0.012, 8);
+        let leads: Vec<&[f64]> = vec![&strong, &strong, &weak];
+        let off = DelineateConfig {
+            p_fill_window_ms: 0.0,
+            ..Default::default()
+        };
+        let d = delineate(&leads, fs, &qrs, &off);
+        let inner = 1..qrs.len() - 1;
+        // Alone, the weak lead's P fails the presence test...
+        assert!(d.per_lead[0][inner.clone()]
+            .iter()
+            .all(|b| b.p_peak.is_some()));
+        assert!(d.per_lead[2][inner.clone()]
+            .iter()
+            .all(|b| b.p_peak.is_none()));
+        // ... with the other leads' P it is found at the same place (P peak
+        // at 160 ms before the R peak, within 10 ms).
+        let d = delineate(&leads, fs, &qrs, &DelineateConfig::default());
+        for i in inner {
+            let p = d.per_lead[2][i].p_peak.expect("weak P found").sample as f64;
+            assert!(
+                (qrs[i] as f64 - p - 80.0).abs() <= 5.0,
+                "beat {i}: P peak {p}"
+            );
+        }
     }
 
     #[test]

@@ -136,10 +136,11 @@ fn qtdb_global_marks_against_annotator_1() {
     let t = score_records(&dir, &records, &DelineateConfig::default());
     print_table("QTDB global vs q1c, 105 records", &t, &KEYS);
     // (key, sensitivity floor %, |mean| ceiling ms, SD ceiling ms): measured
-    // values with margins, see the crate report.
+    // values with margins, see the crate report. P sensitivity 94.7 -> 94.1 %
+    // when P waves with a scattered PR interval were dropped (p_max_pr_mad_ms).
     let limits: [(&str, f64, f64, f64); 9] = [
-        ("p_on", 94.5, 1.1, 22.2),
-        ("p_end", 94.2, 4.9, 21.9),
+        ("p_on", 93.9, 1.1, 22.2),
+        ("p_end", 93.5, 4.9, 21.9),
         ("qrs_on", 99.8, 1.5, 13.6),
         ("qrs_end", 99.8, 4.4, 22.0),
         ("t_peak", 99.3, 6.9, 37.0),
