@@ -501,7 +501,39 @@ impl LeadAnalysis {
         // not below a fraction of the complex's largest maximum: from a
         // small Q or S lobe a threshold relative to that lobe alone runs into
         // the isoelectric noise before (after) the complex.
-        let on_thr = (cfg.qrs_xi_on * w2[first].abs()).max(cfg.qrs_xi_on_rel * m_all);
+        let mut on_thr = (cfg.qrs_xi_on * w2[first].abs()).max(cfg.qrs_xi_on_rel * m_all);
+        // Initial q wave (Martínez 2004: the first significant maximum before
+        // the complex): a small opposite-sign lobe close to the first maximum
+        // and clearly above the lead's noise. Without it the onset stops at
+        // the q trough (the sign change between the lobes), 10-40 ms late.
+        let q_gap = self.ms_i(cfg.qrs_q_gap_ms);
+        if q_gap > 0 {
+            let q_floor = (cfg.qrs_q_noise_k * self.noise[1]).max(cfg.qrs_q_min_frac * m_all);
+            let sf = w2[first].signum();
+            // Largest opposite-sign maximum between the last sign change
+            // before `first` and the one before that (one lobe).
+            let mut n = first as isize - 1;
+            let stop = (first as isize - q_gap).max(region_lo).max(1);
+            while n >= stop && w2[n as usize].signum() == sf {
+                n -= 1;
+            }
+            let mut q: Option<usize> = None;
+            while n >= stop && w2[n as usize].signum() == -sf {
+                let i = n as usize;
+                if q.is_none_or(|j| w2[i].abs() > w2[j].abs()) {
+                    q = Some(i);
+                }
+                n -= 1;
+            }
+            if let Some(q) = q {
+                // A maximum cut by the search edge is no lobe of its own.
+                let is_max = q >= 1 && w2[q - 1].abs() <= w2[q].abs();
+                if is_max && w2[q].abs() > q_floor && w2[q].abs() < w2[first].abs() {
+                    first = q;
+                    on_thr = cfg.qrs_q_xi_on * w2[q].abs();
+                }
+            }
+        }
         let qrs_on = Self::search_back_thr(w2, first, on_thr, qsearch, region_lo - qsearch);
         let xi_end = if w2[last] > 0.0 {
             cfg.qrs_xi_end_pos

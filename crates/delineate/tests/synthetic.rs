@@ -304,3 +304,48 @@ fn single_median_beat_and_edges_do_not_panic() {
     assert_eq!(d.global.len(), 1);
     assert_eq!(d.global[0].qrs_on, d.per_lead[0][0].qrs_on);
 }
+
+#[test]
+fn small_initial_q_wave_joins_the_complex() {
+    // A q wave too small for the chain rule (|W_2| ≈ 8 % of the R lobe, below
+    // `qrs_gamma_pre`): without the q-lobe rule the onset stops at the q
+    // trough; with it, the onset is the ξ boundary of the q Gaussian itself.
+    let fs = 250.0;
+    let q = Wave {
+        amp: -0.06,
+        at_ms: -24.0,
+        sigma_ms: 4.0,
+    };
+    let r = Wave {
+        amp: 1.2,
+        at_ms: 0.0,
+        sigma_ms: 8.0,
+    };
+    let (x, rs) = synth(fs, 5, 900.0, &[q, r, t_wave(0.3)]);
+    let off = DelineateConfig {
+        qrs_q_gap_ms: 0.0,
+        ..DelineateConfig::default()
+    };
+    let on = DelineateConfig {
+        qrs_q_gap_ms: 40.0,
+        qrs_q_xi_on: 0.5,
+        ..DelineateConfig::default()
+    };
+    let want = xi_boundary(q, 2, on.qrs_q_xi_on, -1.0);
+    let m_off = delineate_lead(&x, fs, &rs, &off);
+    let m_on = delineate_lead(&x, fs, &rs, &on);
+    for i in 1..rs.len() - 1 {
+        let t_off = rel(m_off[i].qrs_on, rs[i], fs);
+        let t_on = rel(m_on[i].qrs_on, rs[i], fs);
+        println!("beat {i}: onset off {t_off} on {t_on} want {want:.1} ms");
+        assert!(
+            t_off >= q.at_ms - 6.0,
+            "q trough expected without the rule: {t_off}"
+        );
+        assert!(
+            (t_on - want).abs() <= 6.0,
+            "onset {t_on} ms, ξ boundary of q {want:.1} ms"
+        );
+        assert!(t_on < q.at_ms, "onset {t_on} ms not before the q wave");
+    }
+}
