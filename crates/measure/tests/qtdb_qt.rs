@@ -18,11 +18,11 @@
 use std::path::{Path, PathBuf};
 
 use tendline_delineate::DelineateConfig;
-use tendline_detect::DetectConfig;
+use tendline_detect::{DetectConfig, Detection};
 use tendline_dsp::filter::{ConditioningFilter, FilterConfig};
 use tendline_formats::annotation::read_annotations;
 use tendline_formats::wfdb::read_record;
-use tendline_formats::Annotation;
+use tendline_formats::{Annotation, Record};
 use tendline_measure::{measure_record, MeasureConfig, RecordMeasures};
 
 fn data_dir() -> PathBuf {
@@ -65,14 +65,21 @@ fn measure(path: &Path) -> (RecordMeasures, f64) {
 }
 
 /// [`measure`] with the median beats delineated by `dcfg`.
-fn measure_with(path: &Path, dcfg: &DelineateConfig) -> (RecordMeasures, f64) {
+/// Read one WFDB record, condition it with the default filters and detect its beats.
+fn conditioned(path: &Path) -> (Record, Vec<Vec<f64>>, Detection) {
     let rec = read_record(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
-    let fs = rec.fs;
     let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
-    let filt = ConditioningFilter::design(fs, &FilterConfig::default()).expect("filter design");
+    let filt = ConditioningFilter::design(rec.fs, &FilterConfig::default()).expect("filter design");
     let (leads, _) = filt.apply_record(&raw);
+    let views: Vec<&[f64]> = leads.iter().map(|l| l.as_slice()).collect();
+    let det = tendline_detect::detect(&views, rec.fs, &DetectConfig::default()).expect("detect");
+    (rec, leads, det)
+}
+
+fn measure_with(path: &Path, dcfg: &DelineateConfig) -> (RecordMeasures, f64) {
+    let (rec, leads, det) = conditioned(path);
+    let fs = rec.fs;
     let leads: Vec<&[f64]> = leads.iter().map(|l| l.as_slice()).collect();
-    let det = tendline_detect::detect(&leads, fs, &DetectConfig::default()).expect("detect");
     let names: Vec<String> = rec.leads.iter().map(|l| l.name.clone()).collect();
     let m = measure_record(
         &leads,
@@ -239,13 +246,9 @@ fn ludb_window_qt_against_longest_lead_reference() {
 
 /// Per detected beat: (fiducial sample, QT of the per-beat global marks in ms).
 fn beat_global_qt(path: &Path) -> Vec<(usize, Option<f64>)> {
-    let rec = read_record(path).unwrap_or_else(|e| panic!("{}: {e}", path.display()));
+    let (rec, leads, det) = conditioned(path);
     let fs = rec.fs;
-    let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
-    let filt = ConditioningFilter::design(fs, &FilterConfig::default()).expect("filter design");
-    let (leads, _) = filt.apply_record(&raw);
     let leads: Vec<&[f64]> = leads.iter().map(|l| l.as_slice()).collect();
-    let det = tendline_detect::detect(&leads, fs, &DetectConfig::default()).expect("detect");
     let mut qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
     qrs.sort();
     let d = tendline_delineate::delineate(&leads, fs, &qrs, &DelineateConfig::default());
