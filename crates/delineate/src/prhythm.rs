@@ -10,7 +10,7 @@
 use crate::lead::LeadAnalysis;
 use crate::{BeatMarks, DelineateConfig};
 
-/// Median absolute deviation (and its median) of `v` (sorted in place).
+/// Median absolute deviation of `v` (upper median; `v` is sorted in place).
 fn mad(v: &mut [f64]) -> f64 {
     v.sort_by(|a, b| a.total_cmp(b));
     let med = v[v.len() / 2];
