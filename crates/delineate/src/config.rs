@@ -89,10 +89,40 @@ pub struct DelineateConfig {
     /// 4.5 +/- 21.4 -> 4.0 +/- 21.1 ms, LUDB per-lead -1.0 +/- 19.5 -> -1.4
     /// +/- 19.2 ms, both record halves of each lower; window QT unchanged.
     pub qrs_xi_end_rel: f64,
-    /// ξ for QRS end at scale 2^2 when the last maximum is positive (rising S).
+    /// ξ for QRS end at scale 2^2 when the last maximum is positive (rising
+    /// S). Default 0.16 (0.125 before), set together with `qrs_xi_end_neg`.
     pub qrs_xi_end_pos: f64,
-    /// ξ for QRS end at scale 2^2 when the last maximum is negative (falling R).
+    /// ξ for QRS end at scale 2^2 when the last maximum is negative (falling
+    /// R). Default 0.10 (0.2 before): a falling R often ends in a slow,
+    /// slurred limb that the higher threshold cut off (QRS ends were early
+    /// in V5-V6: LUDB -6.7 and -8.6 ms). Lowering only this one moved the
+    /// QTDB global QRS end later (mean 4.0 -> 5.3 ms at 0.10, 6.6 at 0.05),
+    /// so the rising-S threshold went up to 0.16, where lowering it had
+    /// made both databases worse (0.10: QTDB SD 21.1 -> 21.3, LUDB 19.2 ->
+    /// 19.3 ms). The pair 0.10/0.16: QTDB global QRS end 4.0 +/- 21.1 ->
+    /// 4.6 +/- 20.3 ms (odd-positioned records of RECORDS 3.5 +/- 18.2 ->
+    /// 3.9 +/- 16.9, even 4.5 +/- 23.5 -> 5.2 +/- 23.0); LUDB per lead -1.4
+    /// +/- 19.2 -> -1.3 +/- 18.8 ms (odd-numbered records SD 17.9 -> 17.5,
+    /// even 20.5 -> 20.0); QTDB window QT SD 23.3 -> 23.4 ms, T end and QRS
+    /// onset unchanged. 0.075/0.16 gave a QTDB mean of 5.1 ms, 0.10/0.20
+    /// QTDB SD 20.2 but LUDB 18.9 ms.
     pub qrs_xi_end_neg: f64,
+    /// Pacing spikes: a largest |W_2| maximum of the QRS search around
+    /// which |W_1| exceeds this multiple of |W_2| is a spike, not a QRS
+    /// slope, and is left out of the complex (dimensionless; 0 = off). A
+    /// one-sample impulse gives about 2.7 at the analysis rate, a Gaussian
+    /// slope of σ = 4 ms about 0.7 (W_k ∝ smoothed derivative, see
+    /// tendline_dsp::wavelet). Default 2: it changes only the paced LUDB
+    /// records (8, 34, 45, 74, 95; QTDB's paced sel102 and sel104 are
+    /// unchanged): LUDB per-lead QRS onset 5.1 +/- 14.4 -> 5.2 +/- 14.2 ms
+    /// (odd-numbered records SD 13.6 -> 13.6, even 15.1 -> 14.8), QRS end
+    /// -1.3 +/- 18.8 -> -1.1 +/- 18.7 ms (odd 17.5 unchanged, even 20.0 ->
+    /// 19.8). 1.75 and 1.5 caught more spikes (LUDB QRS onset SD 14.1 and
+    /// 13.7 ms) but also slopes of unpaced records (LUDB 89, 91, 92) and
+    /// made the odd-numbered half's QRS end worse (17.5 -> 17.6 ms).
+    pub qrs_spike_ratio: f64,
+    /// Half-width (ms) of the span masked around a pacing spike.
+    pub qrs_spike_halfwidth_ms: f64,
     /// Longest search (ms) from the first/last significant maximum to the
     /// QRS onset/end.
     pub qrs_boundary_search_ms: f64,
@@ -354,8 +384,10 @@ impl Default for DelineateConfig {
             qrs_xi_on: 0.05,
             qrs_xi_on_rel: 0.0,
             qrs_xi_end_rel: 0.03,
-            qrs_xi_end_pos: 0.125,
-            qrs_xi_end_neg: 0.2,
+            qrs_xi_end_pos: 0.16,
+            qrs_xi_end_neg: 0.1,
+            qrs_spike_ratio: 2.0,
+            qrs_spike_halfwidth_ms: 12.0,
             qrs_boundary_search_ms: 80.0,
             t_window_start_ms: 100.0,
             t_window_after_qrs_end_ms: 60.0,
@@ -445,6 +477,14 @@ impl DelineateConfig {
             .range("qrs_xi_end_rel", self.qrs_xi_end_rel, 0.0, 1.0, "")
             .range("qrs_xi_end_pos", self.qrs_xi_end_pos, 0.0, 1.0, "")
             .range("qrs_xi_end_neg", self.qrs_xi_end_neg, 0.0, 1.0, "")
+            .range("qrs_spike_ratio", self.qrs_spike_ratio, 0.0, 100.0, "")
+            .range(
+                "qrs_spike_halfwidth_ms",
+                self.qrs_spike_halfwidth_ms,
+                0.0,
+                100.0,
+                "ms",
+            )
             .range(
                 "qrs_boundary_search_ms",
                 self.qrs_boundary_search_ms,

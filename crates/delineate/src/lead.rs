@@ -403,9 +403,34 @@ impl LeadAnalysis {
         if hi <= lo {
             return bm;
         }
-        let a = (lo..=hi)
-            .max_by(|&p, &q| w2[p as usize].abs().total_cmp(&w2[q as usize].abs()))
-            .unwrap() as usize;
+        // Pacing spikes: far narrower than any QRS slope, so |W_1| around
+        // their W_2 maximum exceeds |W_2| (about 2.7 times for a one-sample
+        // impulse, under 1 for a slope of a few ms; see `qrs_spike_ratio`).
+        // A spike taken for the main slope would set every threshold of the
+        // complex and cut its search region short; it is masked instead.
+        let w1 = &self.w[0];
+        let spike_half = self.ms_i(cfg.qrs_spike_halfwidth_ms);
+        let is_spike = |i: usize| {
+            let (l, h) = (i.saturating_sub(2), (i + 2).min(w1.len() - 1));
+            let m1 = w1[l..=h].iter().fold(0.0f64, |m, v| m.max(v.abs()));
+            cfg.qrs_spike_ratio > 0.0 && m1 > cfg.qrs_spike_ratio * w2[i].abs()
+        };
+        let mut spikes: Vec<isize> = Vec::new();
+        let masked = |i: isize, sp: &[isize]| sp.iter().any(|&c| (i - c).abs() <= spike_half);
+        let a = loop {
+            let Some(a) = (lo..=hi)
+                .filter(|&i| !masked(i, &spikes))
+                .max_by(|&p, &q| w2[p as usize].abs().total_cmp(&w2[q as usize].abs()))
+            else {
+                return bm;
+            };
+            // At most two spikes (atrial and ventricular pacing).
+            if spikes.len() < 2 && w2[a as usize] != 0.0 && is_spike(a as usize) {
+                spikes.push(a);
+                continue;
+            }
+            break a as usize;
+        };
         if w2[a] == 0.0 {
             return bm;
         }
@@ -414,6 +439,7 @@ impl LeadAnalysis {
         let best_opp = |range: std::ops::RangeInclusive<isize>| {
             range
                 .filter(|&i| i >= 1 && i < n - 1 && w2[i as usize].signum() == -sa)
+                .filter(|&i| !masked(i, &spikes))
                 .max_by(|&p, &q| w2[p as usize].abs().total_cmp(&w2[q as usize].abs()))
                 .map(|i| i as usize)
         };
@@ -450,7 +476,10 @@ impl LeadAnalysis {
         if let Some(q) = next_a {
             region_hi = region_hi.min((q + peak as isize) / 2);
         }
-        let ext = Self::extrema(w2, region_lo, region_hi);
+        let ext: Vec<usize> = Self::extrema(w2, region_lo, region_hi)
+            .into_iter()
+            .filter(|&e| !masked(e as isize, &spikes))
+            .collect();
         let m_all = ext.iter().map(|&e| w2[e].abs()).fold(qrs_amp, f64::max);
         // Walk outward from the main pair through significant maxima no more
         // than `qrs_chain_gap_ms` apart, so that P or T slopes separated by an

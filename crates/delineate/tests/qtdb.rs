@@ -142,7 +142,9 @@ fn qtdb_global_marks_against_annotator_1() {
         ("p_on", 93.9, 1.1, 22.2),
         ("p_end", 93.5, 4.9, 21.9),
         ("qrs_on", 99.8, 1.5, 13.6),
-        ("qrs_end", 99.8, 4.4, 22.0),
+        // QRS end with `qrs_xi_end_neg` 0.10 / `qrs_xi_end_pos` 0.16: mean
+        // 3.5 -> 4.1 ms, SD 21.4 -> 20.6 ms.
+        ("qrs_end", 99.8, 4.4, 20.9),
         ("t_peak", 99.3, 6.9, 37.0),
         // T ends with `global_t_upright_bonus_ms` 80 and `t_min_slope_mv_per_s`
         // 0.3: wavelet mean 1.1, SD 37.1 ms, tangent SD 44.5 ms, area mean
@@ -150,7 +152,9 @@ fn qtdb_global_marks_against_annotator_1() {
         ("t_end", 99.3, 1.5, 37.5),
         ("t_end_wavelet", 99.3, 1.5, 37.5),
         ("t_end_tangent", 97.3, 6.2, 44.8),
-        ("t_end_area", 99.3, 3.3, 43.2),
+        // The area T end moved with the later QRS ends (the T window starts
+        // after them): SD 43.17 -> 43.32 ms.
+        ("t_end_area", 99.3, 3.3, 43.5),
     ];
     for (k, sens, mean, sd) in limits {
         let a = &t[k];

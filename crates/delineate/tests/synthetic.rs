@@ -202,6 +202,90 @@ fn gaussian_beat_placement_250_hz() {
 }
 
 #[test]
+fn qrs_end_of_a_falling_r_wave() {
+    // A complex without an S wave ends on the R wave's falling limb: the last
+    // significant maximum of W_2 is negative, so the end is the
+    // `qrs_xi_end_neg` boundary of the R Gaussian (its ξ is above the
+    // `qrs_xi_end_rel` floor, which is relative to the same maximum here).
+    let r_wave = Wave {
+        amp: 1.2,
+        at_ms: 0.0,
+        sigma_ms: 8.0,
+    };
+    let c = DelineateConfig::default();
+    assert!(c.qrs_xi_end_neg > c.qrs_xi_end_rel);
+    let want = xi_boundary(r_wave, 2, c.qrs_xi_end_neg, 1.0);
+    for fs in [250.0, 500.0] {
+        let (x, rs) = synth(fs, 5, 900.0, &[p_wave(), r_wave, t_wave(0.35)]);
+        let marks = delineate_lead(&x, fs, &rs, &c);
+        for (b, &r) in marks.iter().zip(&rs).skip(1).take(rs.len() - 2) {
+            print(b, r, fs);
+            near(rel(b.qrs_end, r, fs), want, fs, "qrs end (falling R)");
+        }
+    }
+}
+
+#[test]
+fn pacing_spike_is_left_out_of_the_complex() {
+    // A paced beat: a one-sample spike 80 ms before a wide ventricular
+    // complex (one broad Gaussian). The spike's |W_2| is about three times
+    // the complex's, so without the spike rule it is taken for the main
+    // slope pair (QRS peak on the spike, thresholds relative to it); with
+    // it, peak, onset and end are those of the wide Gaussian alone.
+    let fs = 250.0;
+    let wide = Wave {
+        amp: 1.0,
+        at_ms: 0.0,
+        sigma_ms: 20.0,
+    };
+    let (mut x, rs) = synth(fs, 5, 1000.0, &[wide, t_wave(0.35)]);
+    for &r in &rs {
+        x[r - (0.080 * fs) as usize] += 2.0;
+    }
+    let on = DelineateConfig {
+        qrs_spike_ratio: 1.5,
+        ..DelineateConfig::default()
+    };
+    let off = DelineateConfig {
+        qrs_spike_ratio: 0.0,
+        ..on.clone()
+    };
+    let want_on = xi_boundary(wide, 2, on.qrs_xi_on, -1.0);
+    let want_end = xi_boundary(wide, 2, on.qrs_xi_end_neg, 1.0);
+    let m_on = delineate_lead(&x, fs, &rs, &on);
+    let m_off = delineate_lead(&x, fs, &rs, &off);
+    for i in 1..rs.len() - 1 {
+        print(&m_on[i], rs[i], fs);
+        print(&m_off[i], rs[i], fs);
+        near(
+            rel(m_on[i].qrs_peak, rs[i], fs),
+            0.0,
+            fs,
+            "qrs peak (paced)",
+        );
+        near(
+            rel(m_on[i].qrs_on, rs[i], fs),
+            want_on,
+            fs,
+            "qrs on (paced)",
+        );
+        near(
+            rel(m_on[i].qrs_end, rs[i], fs),
+            want_end,
+            fs,
+            "qrs end (paced)",
+        );
+        // Without the rule the spike is the main slope pair: the QRS peak
+        // falls on it.
+        let peak_off = rel(m_off[i].qrs_peak, rs[i], fs);
+        assert!(
+            (peak_off + 80.0).abs() <= 8.0,
+            "without the rule the peak should be the spike's: {peak_off}"
+        );
+    }
+}
+
+#[test]
 fn five_hundred_hz_gives_the_same_marks_as_250_hz() {
     // The analysis runs at 250 Hz; a 500 Hz input is resampled and its
     // marks mapped back, so they agree within one analysis sample.
