@@ -359,6 +359,71 @@ impl LeadAnalysis {
         })
     }
 
+    /// The wave of W_k in `[lo, hi]` whose peak (a zero crossing of W_k
+    /// between two opposite-sign maxima) lies nearest `expect` and at most
+    /// `max_off` samples from it (analysis samples). Each lobe is the first
+    /// maximum of |W_k| met walking away from the crossing, and must lie
+    /// inside the window, so the slope of a neighbouring wave cut by the
+    /// window edge is not taken for a lobe; the smaller lobe must exceed
+    /// `gamma` × the larger.
+    fn find_pair_near(
+        &self,
+        k: usize,
+        (lo, hi): (isize, isize),
+        expect: isize,
+        max_off: isize,
+        gamma: f64,
+    ) -> Option<Lobes> {
+        let w = &self.w[k - 1];
+        let lo = lo.max(1) as usize;
+        let hi = (hi.min(w.len() as isize - 2)).max(0) as usize;
+        if hi <= lo + 2 {
+            return None;
+        }
+        let climb = |i: usize, back: bool| -> Option<usize> {
+            let sg = w[i].signum();
+            let mut m = i;
+            loop {
+                let n = if back { m.checked_sub(1)? } else { m + 1 };
+                if n < lo || n > hi {
+                    return None;
+                }
+                if w[n].signum() != sg || w[n].abs() < w[m].abs() {
+                    return Some(m);
+                }
+                m = n;
+            }
+        };
+        let mut best: Option<(usize, usize, usize, isize)> = None;
+        for z in lo + 1..=hi {
+            if w[z].signum() == w[z - 1].signum() || w[z - 1] == 0.0 {
+                continue;
+            }
+            let off = (z as isize - expect).abs();
+            if off > max_off || best.is_some_and(|(.., o)| o <= off) {
+                continue;
+            }
+            let (Some(a), Some(b)) = (climb(z - 1, true), climb(z, false)) else {
+                continue;
+            };
+            let (va, vb) = (w[a].abs(), w[b].abs());
+            if va.min(vb) >= gamma * va.max(vb) {
+                best = Some((a, b, z, off));
+            }
+        }
+        let (a, b, z, _) = best?;
+        Some(Lobes {
+            idx: vec![a, b],
+            peak: Some(z),
+            amp: w[a].abs().max(w[b].abs()),
+            morph: if w[a] > 0.0 {
+                TMorphology::Upright
+            } else {
+                TMorphology::Inverted
+            },
+        })
+    }
+
     /// Median level of the signal in `[a, b)` (isoelectric estimate).
     fn level(&self, a: isize, b: isize) -> Option<f64> {
         let a = a.max(0) as usize;
@@ -760,13 +825,16 @@ impl LeadAnalysis {
                 p_lo = p_lo.max(te + self.ms_i(cfg.p_after_t_end_ms));
             }
         }
-        self.p_wave(&mut bm, peak, p_lo, p_hi, qon_i, 1.0, cfg);
+        self.p_wave(&mut bm, peak, p_lo, p_hi, qon_i, 1.0, None, cfg);
         bm
     }
 
     /// P search in `[p_lo, p_hi]` (analysis samples) before the QRS onset
     /// `qon_i` of the complex peaking at `peak`; the presence thresholds are
-    /// multiplied by `relax`. Writes the P marks of `bm` when found.
+    /// multiplied by `relax`. With `expect` (analysis sample where the other
+    /// leads put the P peak), a wave missed at scale 2^4 is looked for at
+    /// 2^3 as the lobe pair peaking nearest it (`p_fill_fine_peak_ms`).
+    /// Writes the P marks of `bm` when found.
     #[allow(clippy::too_many_arguments)]
     fn p_wave(
         &self,
@@ -776,11 +844,38 @@ impl LeadAnalysis {
         p_hi: isize,
         qon_i: isize,
         relax: f64,
+        expect: Option<isize>,
         cfg: &DelineateConfig,
     ) {
         if p_hi - p_lo < self.ms_i(40.0) {
             return;
         }
+        if self.p_wave_at(bm, 4, None, peak, p_lo, p_hi, qon_i, relax, cfg) {
+            return;
+        }
+        if let Some(e) = expect.filter(|_| cfg.p_fill_fine_peak_ms > 0.0) {
+            let near = (e, self.ms_i(cfg.p_fill_fine_peak_ms));
+            self.p_wave_at(bm, 3, Some(near), peak, p_lo, p_hi, qon_i, relax, cfg);
+        }
+    }
+
+    /// One P search of [`Self::p_wave`] at scale 2^`k`: the window's wave
+    /// (Martínez 2004), or with `near` = (expected peak, largest offset) the
+    /// lobe pair peaking nearest the expected peak. Returns whether a P wave
+    /// was found (and marked).
+    #[allow(clippy::too_many_arguments)]
+    fn p_wave_at(
+        &self,
+        bm: &mut BeatMarks,
+        k: usize,
+        near: Option<(isize, isize)>,
+        peak: usize,
+        p_lo: isize,
+        p_hi: isize,
+        qon_i: isize,
+        relax: f64,
+        cfg: &DelineateConfig,
+    ) -> bool {
         let rule = WaveRule {
             gamma: cfg.p_gamma,
             biphasic_frac: 1.1,
@@ -789,11 +884,15 @@ impl LeadAnalysis {
             lone_peak: false,
             early_frac: 1.0,
         };
-        let Some(l) = self.find_wave(4, p_lo, p_hi, &rule) else {
-            return;
+        let found = match near {
+            Some((e, off)) => self.find_pair_near(k, (p_lo, p_hi), e, off, cfg.p_gamma),
+            None => self.find_wave(k, p_lo, p_hi, &rule),
         };
-        let w4 = &self.w[3];
-        let slope = l.amp / 16.0 * self.fs_a;
+        let Some(l) = found else {
+            return false;
+        };
+        let w4 = &self.w[k - 1];
+        let slope = l.amp / (1u32 << k) as f64 * self.fs_a;
         let qrs4 = ext_max(
             w4,
             peak as isize - self.ms_i(60.0),
@@ -803,7 +902,7 @@ impl LeadAnalysis {
             && slope >= relax * cfg.p_min_slope_mv_per_s
             && l.amp >= relax * cfg.p_min_rel_qrs * qrs4
         {
-            let pconf = self.confidence(l.amp, 4, cfg);
+            let pconf = self.confidence(l.amp, k, cfg);
             let psearch = self.ms_i(cfg.p_boundary_search_ms);
             let first = l.idx[0];
             let last = *l.idx.last().unwrap();
@@ -816,7 +915,9 @@ impl LeadAnalysis {
                 Self::search_fwd(w4, last, cfg.p_xi_end, psearch, qon_i),
                 pconf,
             );
+            return true;
         }
+        false
     }
 
     /// Second P search of a beat already delineated on this lead (`bm`),
@@ -842,7 +943,16 @@ impl LeadAnalysis {
         let p_lo = e - h;
         let p_hi = (e + h).min(qon_i - self.ms_i(cfg.p_window_gap_ms));
         let mut out = bm.clone();
-        self.p_wave(&mut out, peak as usize, p_lo, p_hi, qon_i, relax, cfg);
+        self.p_wave(
+            &mut out,
+            peak as usize,
+            p_lo,
+            p_hi,
+            qon_i,
+            relax,
+            Some(e),
+            cfg,
+        );
         out.p_peak.is_some().then_some(out)
     }
 }
@@ -851,4 +961,58 @@ fn ext_max(w: &[f64], lo: isize, hi: isize) -> f64 {
     let lo = lo.max(0) as usize;
     let hi = (hi.max(0) as usize).min(w.len());
     w[lo.min(hi)..hi].iter().fold(0.0, |m, v| m.max(v.abs()))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A small P wave (Gaussian, 0.03 mV, SD 12 ms, peak at 1.0 s) followed
+    /// 100 ms later by a 0.3 mV step (invented shapes, 250 Hz): the step's
+    /// single W_k lobe dominates the window, as the QRS or T slope does
+    /// where a flat P is missed in a lead.
+    fn p_before_step() -> LeadAnalysis {
+        let fs = 250.0;
+        let x: Vec<f64> = (0..500)
+            .map(|i| {
+                let t = i as f64 / fs;
+                0.03 * (-(t - 1.0).powi(2) / (2.0 * 0.012f64.powi(2))).exp()
+                    + 0.15 * (1.0 + ((t - 1.1) / 0.01).tanh())
+            })
+            .collect();
+        LeadAnalysis::new(&x, fs, &DelineateConfig::default())
+    }
+
+    #[test]
+    fn pair_near_the_expected_peak_is_found_beside_a_larger_slope() {
+        let la = p_before_step();
+        let cfg = DelineateConfig::default();
+        let (lo, hi) = (230, 280); // 0.92-1.12 s
+        let rule = WaveRule {
+            gamma: cfg.p_gamma,
+            biphasic_frac: 1.1,
+            three_lobe_bounds: true,
+            reach: la.ms_i(cfg.p_lobe_reach_ms) as usize,
+            lone_peak: false,
+            early_frac: 1.0,
+        };
+        // The window's largest maximum is the step's lone lobe: no P pair.
+        for k in [3, 4] {
+            let l = la.find_wave(k, lo, hi, &rule).expect("a maximum");
+            assert_eq!(l.idx.len(), 1, "scale {k}: {:?}", l.idx);
+        }
+        // The lobe pair peaking nearest 1.0 s (sample 250) at 2^3 is the P:
+        // its zero crossing within one sample of the P peak, one lobe on
+        // either side.
+        let l = la
+            .find_pair_near(3, (lo, hi), 250, la.ms_i(30.0), cfg.p_gamma)
+            .expect("P pair");
+        let z = l.peak.unwrap();
+        assert!(z.abs_diff(250) <= 1, "peak {z}");
+        assert!(l.idx[0] < z && z <= l.idx[1], "{:?}", l.idx);
+        // Too far from the expected peak: nothing.
+        assert!(la
+            .find_pair_near(3, (lo, hi), 250 + la.ms_i(60.0), la.ms_i(30.0), cfg.p_gamma)
+            .is_none());
+    }
 }

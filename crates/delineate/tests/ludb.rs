@@ -194,10 +194,13 @@ fn ludb_per_lead_marks_against_cardiologists() {
         ("t_end", 99.8, 2.8, 27.2),
         ("t_end_tangent", 93.8, 2.4, 34.3),
         ("t_end_area", 99.8, 6.6, 32.7),
-        ("p_sens", 90.5, 0.0, 0.0),
-        ("p_ppv", 89.0, 0.0, 0.0),
-        ("p_on", 99.7, 4.2, 19.3),
-        ("p_end", 99.8, 5.4, 19.5),
+        // P rows with p_fill_fine_peak_ms 30 (flat P waves found at 2^3
+        // where the other leads have one: P sensitivity 95.2 -> 97.7 %,
+        // the added ones harder: SDs up 0.5-0.6 ms).
+        ("p_sens", 97.5, 0.0, 0.0),
+        ("p_ppv", 97.5, 0.0, 0.0),
+        ("p_on", 99.7, 3.8, 19.9),
+        ("p_end", 99.8, 5.6, 19.9),
     ];
     for (k, sens, mean, sd) in limits {
         let a = &t[k];
