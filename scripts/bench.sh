@@ -7,7 +7,9 @@
 set -euo pipefail
 cd "$(dirname "$0")/.."
 scripts/setup.sh --python
-cargo build --release -q -p tendline
+# The `dist` profile (fat LTO, one codegen unit) is the one for processing.
+cargo build --profile dist -q -p tendline
+bin=target/dist/tendline
 data=../shared/data/qtdb
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
@@ -20,8 +22,8 @@ measure() { # label, command...
 }
 [ -x /usr/bin/time ] || { echo "needs /usr/bin/time (apt-get install time)"; exit 1; }
 
-r1=$(measure jobs1 target/release/tendline run "$data" --out "$tmp/o1" --jobs 1 --quiet --force)
-r2=$(measure jobs2 target/release/tendline run "$data" --out "$tmp/o2" --jobs 2 --quiet --force)
+r1=$(measure jobs1 "$bin" run "$data" --out "$tmp/o1" --jobs 1 --quiet --force)
+r2=$(measure jobs2 "$bin" run "$data" --out "$tmp/o2" --jobs 2 --quiet --force)
 py=$(measure python .venv/bin/python bench/python_baseline.py "$data")
 
 # Keep the tuning section written by scripts/bench_tune.sh.

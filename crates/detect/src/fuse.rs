@@ -498,10 +498,17 @@ struct Peakiness {
     background: f64,
 }
 
+/// The indices of `[a, e)` that are multiples of `step`: the samples the
+/// background percentiles are taken from (`quality_background_step_ms`).
+fn stepped(a: usize, e: usize, step: usize) -> std::iter::StepBy<std::ops::Range<usize>> {
+    (a.div_ceil(step) * step..e).step_by(step)
+}
+
 fn block_peakiness(
     mwi: &[f64],
     mask: &[LeadState],
     blocks: &Blocks,
+    step: usize,
     cfg: &DetectConfig,
 ) -> Vec<Option<Peakiness>> {
     let maxima: Vec<Option<f64>> = (0..blocks.count)
@@ -526,11 +533,9 @@ fn block_peakiness(
         starts.push(s);
         let (a, e) = blocks.range(b);
         keys.extend(
-            mwi[a..e]
-                .iter()
-                .zip(&mask[a..e])
-                .filter(|(_, m)| **m == LeadState::Ok)
-                .map(|(v, _)| total_key(*v)),
+            stepped(a, e, step)
+                .filter(|&i| mask[i] == LeadState::Ok)
+                .map(|i| total_key(mwi[i])),
         );
         keys[s..].sort_unstable();
     }
@@ -609,6 +614,7 @@ fn block_peakiness_reference(
     mwi: &[f64],
     mask: &[LeadState],
     blocks: &Blocks,
+    step: usize,
     cfg: &DetectConfig,
 ) -> Vec<Option<Peakiness>> {
     let maxima: Vec<Option<f64>> = (0..blocks.count)
@@ -644,7 +650,7 @@ fn block_peakiness_reference(
             let (_, e) = blocks.range(hi - 1);
             buf.extend(
                 (a..e)
-                    .filter(|&i| mask[i] == LeadState::Ok)
+                    .filter(|&i| i % step == 0 && mask[i] == LeadState::Ok)
                     .map(|i| total_key(mwi[i])),
             );
             let bg3 = pct(&mut buf)?;
@@ -652,7 +658,7 @@ fn block_peakiness_reference(
             let (a, e) = blocks.range(b);
             buf.extend(
                 (a..e)
-                    .filter(|&i| mask[i] == LeadState::Ok)
+                    .filter(|&i| i % step == 0 && mask[i] == LeadState::Ok)
                     .map(|i| total_key(mwi[i])),
             );
             let bg1 = pct(&mut buf).unwrap_or(bg3);
@@ -737,8 +743,9 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     // A lead is noise in a block when it has lost its peaks because its
     // background rose (relative to its beat level over the whole record); a
     // quiet background without peaks is a pause, not noise.
+    let bg_step = pt::ms_to_samples(cfg.quality_background_step_ms, fs).max(1);
     let pb: Vec<Vec<Option<Peakiness>>> = (0..nl)
-        .map(|l| block_peakiness(&feats[l].mwi, &masks[l], &blocks, cfg))
+        .map(|l| block_peakiness(&feats[l].mwi, &masks[l], &blocks, bg_step, cfg))
         .collect();
     let level: Vec<f64> = (0..nl)
         .map(|l| {
@@ -987,7 +994,7 @@ mod block_tests {
                 _ => LeadState::Ok,
             })
             .collect();
-        for pct in [1.0, 30.0, 50.0, 90.0] {
+        for (pct, step) in [(1.0, 1), (30.0, 1), (30.0, 4), (50.0, 7), (90.0, 3)] {
             let cfg = DetectConfig {
                 quality_background_percentile: pct,
                 ..DetectConfig::default()
@@ -997,8 +1004,8 @@ mod block_tests {
                 count: n.div_ceil(500),
                 n,
             };
-            let fast = block_peakiness(&mwi, &mask, &blocks, &cfg);
-            let slow = block_peakiness_reference(&mwi, &mask, &blocks, &cfg);
+            let fast = block_peakiness(&mwi, &mask, &blocks, step, &cfg);
+            let slow = block_peakiness_reference(&mwi, &mask, &blocks, step, &cfg);
             assert_eq!(fast.len(), slow.len());
             let bits = |p: &Option<Peakiness>| {
                 p.map(|p| {
@@ -1010,7 +1017,7 @@ mod block_tests {
                 })
             };
             for (b, (f, r)) in fast.iter().zip(&slow).enumerate() {
-                assert_eq!(bits(f), bits(r), "pct={pct} block={b}");
+                assert_eq!(bits(f), bits(r), "pct={pct} step={step} block={b}");
             }
         }
     }

@@ -188,6 +188,11 @@ pub struct DetectConfig {
     pub fusion_scale_blocks: usize,
     /// Percentile of a lead's integrated signal taken as its background between beats.
     pub quality_background_percentile: f64,
+    /// Time between the samples of the integrated signal that the background
+    /// percentile is taken from (ms; 0 = every sample). The integrated signal
+    /// is a moving mean over `mwi_window_ms`, so a step well below that window
+    /// loses nothing of its level and saves most of the sorting.
+    pub quality_background_step_ms: f64,
     /// Lead weight = (peakiness / best lead's peakiness) to this power.
     pub quality_weight_power: f64,
     /// A lead whose peak-to-peak amplitude over `flat_window_ms` is below this is flat (mV).
@@ -249,6 +254,7 @@ impl Default for DetectConfig {
             fusion_block_ms: 2000.0,
             fusion_scale_blocks: 5,
             quality_background_percentile: 30.0,
+            quality_background_step_ms: 16.0,
             quality_weight_power: 2.0,
             flat_ptp_mv: 0.01,
             flat_window_ms: 1000.0,
@@ -371,6 +377,13 @@ impl DetectConfig {
                 1.0,
                 90.0,
                 "%",
+            )
+            .range(
+                "quality_background_step_ms",
+                self.quality_background_step_ms,
+                0.0,
+                100.0,
+                "ms",
             )
             .range(
                 "quality_weight_power",
