@@ -859,6 +859,20 @@ impl LeadAnalysis {
         }
     }
 
+    /// The lobe rule of the P search: biphasic P allowed (both lobes within
+    /// `p_gamma` of each other), three-lobe bounds, lobes reaching
+    /// `p_lobe_reach_ms`.
+    fn p_rule(&self, cfg: &DelineateConfig) -> WaveRule {
+        WaveRule {
+            gamma: cfg.p_gamma,
+            biphasic_frac: 1.1,
+            three_lobe_bounds: true,
+            reach: self.ms_i(cfg.p_lobe_reach_ms) as usize,
+            lone_peak: false,
+            early_frac: 1.0,
+        }
+    }
+
     /// One P search of [`Self::p_wave`] at scale 2^`k`: the window's wave
     /// (Martínez 2004), or with `near` = (expected peak, largest offset) the
     /// lobe pair peaking nearest the expected peak. Returns whether a P wave
@@ -876,14 +890,7 @@ impl LeadAnalysis {
         relax: f64,
         cfg: &DelineateConfig,
     ) -> bool {
-        let rule = WaveRule {
-            gamma: cfg.p_gamma,
-            biphasic_frac: 1.1,
-            three_lobe_bounds: true,
-            reach: self.ms_i(cfg.p_lobe_reach_ms) as usize,
-            lone_peak: false,
-            early_frac: 1.0,
-        };
+        let rule = self.p_rule(cfg);
         let found = match near {
             Some((e, off)) => self.find_pair_near(k, (p_lo, p_hi), e, off, cfg.p_gamma),
             None => self.find_wave(k, p_lo, p_hi, &rule),
@@ -988,14 +995,7 @@ mod tests {
         let la = p_before_step();
         let cfg = DelineateConfig::default();
         let (lo, hi) = (230, 280); // 0.92-1.12 s
-        let rule = WaveRule {
-            gamma: cfg.p_gamma,
-            biphasic_frac: 1.1,
-            three_lobe_bounds: true,
-            reach: la.ms_i(cfg.p_lobe_reach_ms) as usize,
-            lone_peak: false,
-            early_frac: 1.0,
-        };
+        let rule = la.p_rule(&cfg);
         // The window's largest maximum is the step's lone lobe: no P pair.
         for k in [3, 4] {
             let l = la.find_wave(k, lo, hi, &rule).expect("a maximum");
