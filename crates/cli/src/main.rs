@@ -278,3 +278,23 @@ fn main() -> ExitCode {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    // `MI_OPTION_PURGE_DELAY` is a raw index into mimalloc's option enum;
+    // if a mimalloc update renumbered the enum, `tune_allocator` would set
+    // another option. Defaults from the option table of the built mimalloc
+    // (v3 src/options.c): purge delay 1000 ms, and the next entry,
+    // use_numa_nodes, 0 (use all nodes).
+    #[test]
+    fn purge_delay_index_names_mimallocs_purge_delay() {
+        // SAFETY: plain getters of process-wide options.
+        let (purge, next) = unsafe {
+            (
+                libmimalloc_sys::mi_option_get(super::MI_OPTION_PURGE_DELAY),
+                libmimalloc_sys::mi_option_get(super::MI_OPTION_PURGE_DELAY + 1),
+            )
+        };
+        assert_eq!((purge, next), (1000, 0));
+    }
+}
