@@ -717,6 +717,13 @@ pub struct FilterConfig {
     /// power spectral density within ±1 Hz) must exceed the 90th percentile
     /// of the density 2–6 Hz away on both sides by this factor. Default 10 (10 dB).
     pub powerline_detect_ratio: f64,
+    /// In `"auto"` mode, at most this many Welch segments (4 s each) per lead
+    /// enter the spectrum, taken at an even stride over the whole record
+    /// (every segment of a record with fewer); 0 takes every segment.
+    /// Default 64 (over 4 minutes of signal: the mains line is steady over
+    /// a record, and the averaged spectrum of 64 segments already varies by
+    /// about 1/√64 = 12 %, far below the 10× detection ratio).
+    pub powerline_max_segments: usize,
     /// Low-pass −3 dB cut-off of one pass, in Hz; 0 disables. Default 100 Hz.
     ///
     /// When the value is at or above 0.45 × the sampling rate it is lowered
@@ -739,6 +746,7 @@ impl Default for FilterConfig {
             powerline: Powerline::Auto,
             notch_q: 30.0,
             powerline_detect_ratio: 10.0,
+            powerline_max_segments: 64,
             lowpass_hz: 100.0,
             lowpass_order: 4,
         }
@@ -759,6 +767,13 @@ impl FilterConfig {
                 1.0e6,
                 "",
             )
+            .range(
+                "powerline_max_segments",
+                self.powerline_max_segments as f64,
+                0.0,
+                1.0e6,
+                "segments, 0 = all",
+            )
             .range("lowpass_hz", self.lowpass_hz, 0.0, 10_000.0, "Hz, 0 = off")
             .range("lowpass_order", self.lowpass_order as f64, 1.0, 10.0, "");
         if self.lowpass_hz.is_finite() && self.highpass_hz.is_finite() {
@@ -777,17 +792,37 @@ impl FilterConfig {
 // Power-line detection
 // ---------------------------------------------------------------------------
 
+/// Stride (in segments) that keeps at most `max_segments` of the
+/// half-overlapping segments of `nseg` samples of a signal of `n` samples:
+/// 1 (every segment) when they are that few or `max_segments` is 0.
+fn segment_stride(n: usize, nseg: usize, max_segments: usize) -> usize {
+    let half = (nseg / 2).max(1);
+    let total = if n >= nseg { (n - nseg) / half + 1 } else { 0 };
+    if max_segments == 0 || total <= max_segments {
+        1
+    } else {
+        total.div_ceil(max_segments)
+    }
+}
+
 /// Welch power spectral density: Hann-windowed segments of 4 s (or the whole
-/// signal if shorter), 50 % overlap, segment mean removed. Returns the
-/// density per bin and the bin spacing in Hz; summing densities from several
-/// leads is meaningful because they share the bin grid.
-fn welch_psd(x: &[f64], fs: f64, planner: &mut RealFftPlanner<f64>) -> (Vec<f64>, f64) {
+/// signal if shorter), 50 % overlap, segment mean removed; of a long signal
+/// only every [`segment_stride`]-th segment, so at most `max_segments` enter
+/// the average. Returns the density per bin and the bin spacing in Hz;
+/// summing densities from several leads is meaningful because they share
+/// the bin grid.
+fn welch_psd(
+    x: &[f64],
+    fs: f64,
+    max_segments: usize,
+    planner: &mut RealFftPlanner<f64>,
+) -> (Vec<f64>, f64) {
     let n = x.len();
     let nseg = ((4.0 * fs).round() as usize).clamp(2, n.max(2)).min(n);
     if nseg < 2 {
         return (Vec::new(), 0.0);
     }
-    let step = (nseg / 2).max(1);
+    let step = (nseg / 2).max(1) * segment_stride(n, nseg, max_segments);
     let win: Vec<f64> = (0..nseg)
         .map(|i| 0.5 - 0.5 * (2.0 * PI * i as f64 / nseg as f64).cos())
         .collect();
@@ -826,14 +861,23 @@ fn welch_psd(x: &[f64], fs: f64, planner: &mut RealFftPlanner<f64>) -> (Vec<f64>
 /// [`welch_psd`] with a complex FFT of the real segments: the direct form
 /// (test oracle).
 #[cfg(test)]
-fn welch_psd_complex(x: &[f64], fs: f64) -> (Vec<f64>, f64) {
+fn welch_psd_complex(x: &[f64], fs: f64, max_segments: usize) -> (Vec<f64>, f64) {
     let mut planner = FftPlanner::new();
     let n = x.len();
     let nseg = ((4.0 * fs).round() as usize).clamp(2, n.max(2)).min(n);
     if nseg < 2 {
         return (Vec::new(), 0.0);
     }
-    let step = (nseg / 2).max(1);
+    // The kept segments by their index among all half-overlapping ones.
+    let stride = segment_stride(n, nseg, max_segments);
+    let half = (nseg / 2).max(1);
+    let starts: Vec<usize> = (0..)
+        .map(|j| j * half)
+        .take_while(|&s| s + nseg <= n)
+        .enumerate()
+        .filter(|(j, _)| j % stride == 0)
+        .map(|(_, s)| s)
+        .collect();
     let win: Vec<f64> = (0..nseg)
         .map(|i| 0.5 - 0.5 * (2.0 * PI * i as f64 / nseg as f64).cos())
         .collect();
@@ -842,8 +886,7 @@ fn welch_psd_complex(x: &[f64], fs: f64) -> (Vec<f64>, f64) {
     let mut psd = vec![0.0; nb];
     let mut buf = vec![Complex64::new(0.0, 0.0); nseg];
     let mut count = 0usize;
-    let mut start = 0;
-    while start + nseg <= n {
+    for &start in &starts {
         let seg = &x[start..start + nseg];
         let mean = seg.iter().sum::<f64>() / nseg as f64;
         for ((b, v), w) in buf.iter_mut().zip(seg).zip(&win) {
@@ -854,7 +897,6 @@ fn welch_psd_complex(x: &[f64], fs: f64) -> (Vec<f64>, f64) {
             *p += b.norm_sqr();
         }
         count += 1;
-        start += step;
     }
     if count > 0 {
         for p in &mut psd {
@@ -1053,7 +1095,7 @@ impl ConditioningFilter {
             if lead.iter().any(|v| !v.is_finite()) {
                 continue;
             }
-            let (psd, d) = welch_psd(lead, fs, &mut planner);
+            let (psd, d) = welch_psd(lead, fs, cfg.powerline_max_segments, &mut planner);
             if psd.is_empty() {
                 continue;
             }
@@ -1172,13 +1214,47 @@ mod tests {
                         + 0.01 * ((i * 7919 % 1000) as f64 / 1000.0 - 0.5)
                 })
                 .collect();
-            let (fast, df_fast) = welch_psd(&x, fs, &mut RealFftPlanner::new());
-            let (slow, df_slow) = welch_psd_complex(&x, fs);
-            assert_eq!(df_fast.to_bits(), df_slow.to_bits());
-            assert_eq!(fast.len(), slow.len());
-            let top = slow.iter().cloned().fold(0.0, f64::max);
-            for (i, (f, s)) in fast.iter().zip(&slow).enumerate() {
-                assert!((f - s).abs() <= 1e-12 * top, "fs={fs} bin {i}: {f} vs {s}");
+            // Every segment (0 and a cap above the 29 segments), and every
+            // 2nd, 3rd, 5th segment (caps 15, 10, 6).
+            for max_segments in [0, 64, 15, 10, 6] {
+                let (fast, df_fast) = welch_psd(&x, fs, max_segments, &mut RealFftPlanner::new());
+                let (slow, df_slow) = welch_psd_complex(&x, fs, max_segments);
+                assert_eq!(df_fast.to_bits(), df_slow.to_bits());
+                assert_eq!(fast.len(), slow.len());
+                let top = slow.iter().cloned().fold(0.0, f64::max);
+                for (i, (f, s)) in fast.iter().zip(&slow).enumerate() {
+                    assert!(
+                        (f - s).abs() <= 1e-12 * top,
+                        "fs={fs} max={max_segments} bin {i}: {f} vs {s}"
+                    );
+                }
+            }
+        }
+    }
+
+    // The stride keeps at most the cap, and every segment when they are at
+    // most the cap; counted against a direct enumeration of the segments.
+    #[test]
+    fn segment_stride_keeps_at_most_the_cap() {
+        for n in [
+            0usize, 999, 1000, 1001, 1500, 2000, 61_300, 225_000, 650_000,
+        ] {
+            for max in [0usize, 1, 2, 6, 64, 1000] {
+                let nseg = 1000usize.min(n.max(2));
+                let s = segment_stride(n, nseg, max);
+                let all = (0..)
+                    .map(|j| j * 500)
+                    .take_while(|&a| a + nseg <= n)
+                    .count();
+                let kept = (0..all).filter(|j| j % s == 0).count();
+                if max == 0 || all <= max {
+                    assert_eq!(s, 1, "n={n} max={max}");
+                } else {
+                    assert!(
+                        kept <= max && kept >= max / 2,
+                        "n={n} max={max} kept={kept}"
+                    );
+                }
             }
         }
     }
