@@ -48,6 +48,36 @@ fn ptp(x: &[f64]) -> f64 {
     }
 }
 
+/// Smallest and largest of `c` (`(inf, -inf)` when empty) by plain
+/// comparisons in four independent lanes, which the compiler turns into
+/// vector min/max. For values without NaN this is the same pair as a fold
+/// with `f64::min`/`f64::max` (the test oracle), up to the sign of a zero
+/// extreme, which neither a difference of extremes nor a comparison with a
+/// threshold sees. NaN is never passed here (the callers' signals are
+/// finite).
+fn min_max(c: &[f64]) -> (f64, f64) {
+    let mut lo = [f64::INFINITY; 4];
+    let mut hi = [f64::NEG_INFINITY; 4];
+    let mut quads = c.chunks_exact(4);
+    for q in &mut quads {
+        for k in 0..4 {
+            lo[k] = if q[k] < lo[k] { q[k] } else { lo[k] };
+            hi[k] = if q[k] > hi[k] { q[k] } else { hi[k] };
+        }
+    }
+    for &v in quads.remainder() {
+        lo[0] = if v < lo[0] { v } else { lo[0] };
+        hi[0] = if v > hi[0] { v } else { hi[0] };
+    }
+    let l = lo
+        .iter()
+        .fold(f64::INFINITY, |a, &b| if b < a { b } else { a });
+    let h = hi
+        .iter()
+        .fold(f64::NEG_INFINITY, |a, &b| if b > a { b } else { a });
+    (l, h)
+}
+
 /// Minimum and maximum of each run of `hop` samples, so that the peak-to-peak
 /// value of a window starting on a multiple of `hop` costs a few operations
 /// instead of a pass over the window. The extremes of finite values do not
@@ -61,15 +91,7 @@ struct HopRanges {
 
 impl HopRanges {
     fn new(x: &[f64], hop: usize) -> Self {
-        let (lo, hi) = x
-            .chunks(hop)
-            .map(|c| {
-                c.iter()
-                    .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), &v| {
-                        (l.min(v), h.max(v))
-                    })
-            })
-            .unzip();
+        let (lo, hi) = x.chunks(hop).map(min_max).unzip();
         Self { hop, lo, hi }
     }
 
@@ -147,6 +169,95 @@ pub(crate) fn lead_mask(
         }
     }
     let run_min = pt::ms_to_samples(cfg.saturation_run_ms, fs);
+    if hi > lo {
+        // Only runs at an extreme can be clipping: jump from one extreme
+        // sample to the next. A run found this way is a whole run of equal
+        // values (the sample before it is either not extreme or the end of
+        // the previous run), so the marks equal those of a walk over every
+        // run ([`saturation_runs_reference`] is the test oracle).
+        let mut i = 0;
+        while let Some(k) = raw[i..].iter().position(|&v| v == hi || v == lo) {
+            let a = i + k;
+            let v = raw[a];
+            let mut j = a + 1;
+            while j < n && raw[j] == v {
+                j += 1;
+            }
+            if j - a >= run_min {
+                for s in &mut m[a..j] {
+                    *s = LeadState::Saturated;
+                }
+            }
+            i = j;
+        }
+    }
+    if gaps {
+        for (s, v) in m.iter_mut().zip(raw) {
+            if !v.is_finite() {
+                *s = LeadState::Flat;
+            }
+        }
+    }
+    m
+}
+
+/// [`lead_mask`] walking every run of equal samples and taking window
+/// extremes by `f64::min`/`f64::max` folds (the form it replaced; test oracle).
+#[cfg(test)]
+fn saturation_runs_reference(
+    raw: &[f64],
+    x: &[f64],
+    bp: &[f64],
+    fs: f64,
+    cfg: &DetectConfig,
+) -> Vec<LeadState> {
+    let n = x.len();
+    let mut m = vec![LeadState::Ok; n];
+    let w = pt::ms_to_samples(cfg.flat_window_ms, fs).min(n.max(1));
+    let hop = (w / 4).max(1);
+    // Windows start on multiples of `hop`: their extremes come from per-hop
+    // extremes plus the few samples after the last whole hop.
+    let (xr, bpr) = (
+        HopRangesReference::new(x, hop),
+        HopRangesReference::new(bp, hop),
+    );
+    let mut start = 0usize;
+    loop {
+        let end = (start + w).min(n);
+        if end > start {
+            let state = if xr.ptp(x, start, end) < cfg.flat_ptp_mv {
+                Some(LeadState::Flat)
+            } else if bpr.ptp(bp, start, end) < cfg.saturation_bp_ptp_mv {
+                Some(LeadState::Saturated)
+            } else {
+                None
+            };
+            if let Some(s) = state {
+                for v in &mut m[start..end] {
+                    if *v == LeadState::Ok {
+                        *v = s;
+                    }
+                }
+            }
+        }
+        if end >= n {
+            break;
+        }
+        start += hop;
+    }
+    // Clipping: identical samples at the lead's extreme value for a long run.
+    // Extremes of the finite samples in one pass (each fold sees the same
+    // values in the same order as two separate folds would).
+    let (mut hi, mut lo, mut gaps) = (f64::NEG_INFINITY, f64::INFINITY, false);
+    for &v in raw {
+        if v.is_finite() {
+            hi = hi.max(v);
+            lo = lo.min(v);
+        } else {
+            gaps = true;
+        }
+    }
+    let run_min = pt::ms_to_samples(cfg.saturation_run_ms, fs);
     let mut i = 0;
     while i < n {
         let v = raw[i];
@@ -169,6 +280,29 @@ pub(crate) fn lead_mask(
         }
     }
     m
+}
+
+/// [`HopRanges`] with extremes by `f64::min`/`f64::max` folds (test oracle).
+#[cfg(test)]
+struct HopRangesReference(HopRanges);
+
+#[cfg(test)]
+impl HopRangesReference {
+    fn new(x: &[f64], hop: usize) -> Self {
+        let (lo, hi) = x
+            .chunks(hop)
+            .map(|c| {
+                c.iter()
+                    .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), &v| {
+                        (l.min(v), h.max(v))
+                    })
+            })
+            .unzip();
+        Self(HopRanges { hop, lo, hi })
+    }
+    fn ptp(&self, x: &[f64], start: usize, end: usize) -> f64 {
+        self.0.ptp(x, start, end)
+    }
 }
 
 /// How the samples of one run of [`Blocks::runs`] get a per-block value.
@@ -303,33 +437,65 @@ fn median(v: &mut [f64]) -> Option<f64> {
     (!v.is_empty()).then(|| crate::label::median(v))
 }
 
-/// Local beat level of a signal: median of block maxima over neighbouring
-/// blocks, ignoring masked samples. `None` where no block has usable samples.
-fn local_scale(
+/// Largest value (of `|x|` when `abs`) of the unmasked samples of each
+/// block; `None` for a block without one. A block with no masked sample
+/// (the usual case) takes its maximum by plain comparisons without the
+/// per-sample mask test; for the finite signals of detection that is the
+/// value of an `f64::max` fold ([`block_maxima_reference`], the test
+/// oracle), up to the sign of a zero maximum, which no caller sees (the
+/// scale drops maxima that are not positive, and a zero peak gives a zero
+/// peakiness whatever its sign).
+fn block_maxima(x: &[f64], abs: bool, mask: &[LeadState], blocks: &Blocks) -> Vec<Option<f64>> {
+    (0..blocks.count)
+        .map(|b| {
+            let (a, e) = blocks.range(b);
+            if a < e && mask[a..e].iter().all(|&m| m == LeadState::Ok) {
+                let (lo, hi) = min_max(&x[a..e]);
+                Some(if abs { hi.max(-lo) } else { hi })
+            } else {
+                let mut best: Option<f64> = None;
+                for i in a..e {
+                    if mask[i] == LeadState::Ok {
+                        let v = if abs { x[i].abs() } else { x[i] };
+                        best = Some(best.map_or(v, |m: f64| m.max(v)));
+                    }
+                }
+                best
+            }
+        })
+        .collect()
+}
+
+/// [`block_maxima`] sample by sample (test oracle).
+#[cfg(test)]
+fn block_maxima_reference(
     x: &[f64],
     abs: bool,
     mask: &[LeadState],
     blocks: &Blocks,
-    cfg: &DetectConfig,
 ) -> Vec<Option<f64>> {
-    let maxima: Vec<Option<f64>> = (0..blocks.count)
-        .map(|b| {
-            let (a, e) = blocks.range(b);
-            let mut best: Option<f64> = None;
-            for i in a..e {
-                if mask[i] == LeadState::Ok {
-                    let v = if abs { x[i].abs() } else { x[i] };
-                    best = Some(best.map_or(v, |m: f64| m.max(v)));
-                }
-            }
-            best.filter(|m| *m > 0.0)
-        })
-        .collect();
-    let k = cfg.fusion_scale_blocks / 2;
     (0..blocks.count)
         .map(|b| {
+            let (a, e) = blocks.range(b);
+            (a..e)
+                .filter(|&i| mask[i] == LeadState::Ok)
+                .map(|i| if abs { x[i].abs() } else { x[i] })
+                .reduce(f64::max)
+        })
+        .collect()
+}
+
+/// Local beat level of a signal from its [`block_maxima`]: median of the
+/// positive block maxima over neighbouring blocks. `None` where no block
+/// has usable samples.
+fn local_scale(maxima: &[Option<f64>], cfg: &DetectConfig) -> Vec<Option<f64>> {
+    let maxima: Vec<Option<f64>> = maxima.iter().map(|m| m.filter(|m| *m > 0.0)).collect();
+    let count = maxima.len();
+    let k = cfg.fusion_scale_blocks / 2;
+    (0..count)
+        .map(|b| {
             let lo = b.saturating_sub(k);
-            let hi = (b + k + 1).min(blocks.count);
+            let hi = (b + k + 1).min(count);
             let mut v: Vec<f64> = maxima[lo..hi].iter().flatten().cloned().collect();
             median(&mut v)
         })
@@ -504,22 +670,15 @@ fn stepped(a: usize, e: usize, step: usize) -> std::iter::StepBy<std::ops::Range
     (a.div_ceil(step) * step..e).step_by(step)
 }
 
+/// `maxima` are the [`block_maxima`] of `mwi`.
 fn block_peakiness(
     mwi: &[f64],
+    maxima: &[Option<f64>],
     mask: &[LeadState],
     blocks: &Blocks,
     step: usize,
     cfg: &DetectConfig,
 ) -> Vec<Option<Peakiness>> {
-    let maxima: Vec<Option<f64>> = (0..blocks.count)
-        .map(|b| {
-            let (a, e) = blocks.range(b);
-            (a..e)
-                .filter(|&i| mask[i] == LeadState::Ok)
-                .map(|i| mwi[i])
-                .reduce(f64::max)
-        })
-        .collect();
     // The usable samples of each block as sorted `total_key`s, sorted once:
     // a block's percentile is then one index, and that of three blocks a
     // short merge walk, instead of a selection over fresh copies for every
@@ -712,11 +871,13 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
         .collect();
     let blocks = Blocks::new(n, fs, cfg);
 
-    let sc_i: Vec<Vec<Option<f64>>> = (0..nl)
-        .map(|l| local_scale(&feats[l].mwi, false, &masks[l], &blocks, cfg))
+    // Block maxima of the integrated signal serve both its scale and its peakiness.
+    let max_i: Vec<Vec<Option<f64>>> = (0..nl)
+        .map(|l| block_maxima(&feats[l].mwi, false, &masks[l], &blocks))
         .collect();
+    let sc_i: Vec<Vec<Option<f64>>> = max_i.iter().map(|m| local_scale(m, cfg)).collect();
     let sc_f: Vec<Vec<Option<f64>>> = (0..nl)
-        .map(|l| local_scale(&feats[l].bp, true, &masks[l], &blocks, cfg))
+        .map(|l| local_scale(&block_maxima(&feats[l].bp, true, &masks[l], &blocks), cfg))
         .collect();
     // A block without a scale takes the nearest known one (the weight of such
     // a lead there is zero anyway through its mask).
@@ -745,7 +906,7 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     // quiet background without peaks is a pause, not noise.
     let bg_step = pt::ms_to_samples(cfg.quality_background_step_ms, fs).max(1);
     let pb: Vec<Vec<Option<Peakiness>>> = (0..nl)
-        .map(|l| block_peakiness(&feats[l].mwi, &masks[l], &blocks, bg_step, cfg))
+        .map(|l| block_peakiness(&feats[l].mwi, &max_i[l], &masks[l], &blocks, bg_step, cfg))
         .collect();
     let level: Vec<f64> = (0..nl)
         .map(|l| {
@@ -888,6 +1049,99 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
 mod block_tests {
     use super::*;
 
+    // Quad-lane extremes against the `f64::min`/`f64::max` fold (oracle) for
+    // every length up to 40 and every position of the extremes.
+    #[test]
+    fn min_max_equals_fold() {
+        for n in 0..40usize {
+            let x: Vec<f64> = (0..n)
+                .map(|i| ((i * 7919) % 1013) as f64 / 100.0 - 5.0)
+                .collect();
+            let fold = x
+                .iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), &v| {
+                    (l.min(v), h.max(v))
+                });
+            assert_eq!(min_max(&x), fold, "n={n}");
+        }
+    }
+
+    // Block maxima with the all-usable shortcut against the per-sample fold
+    // (oracle): signed and absolute values, masked stretches inside and
+    // across blocks, a short last block.
+    #[test]
+    fn block_maxima_equal_per_sample_fold() {
+        let n = 5_321usize;
+        let x: Vec<f64> = (0..n)
+            .map(|i| ((i * 7919) % 1013) as f64 / 100.0 - 6.0)
+            .collect();
+        let mask: Vec<LeadState> = (0..n)
+            .map(|i| match i {
+                1000..=1999 => LeadState::Flat,
+                2500..=2800 => LeadState::Saturated,
+                _ if i % 997 == 0 => LeadState::Flat,
+                _ => LeadState::Ok,
+            })
+            .collect();
+        for len in [500usize, 333, 1000, 7] {
+            let blocks = Blocks {
+                len,
+                count: n.div_ceil(len),
+                n,
+            };
+            for abs in [false, true] {
+                assert_eq!(
+                    block_maxima(&x, abs, &mask, &blocks),
+                    block_maxima_reference(&x, abs, &mask, &blocks),
+                    "len={len} abs={abs}"
+                );
+            }
+        }
+    }
+
+    // Lead masks with the jump to extreme samples and lane extremes against
+    // the walk over every run with fold extremes (oracle): clipped runs at
+    // both extremes (long and short), a flat stretch, a run at the extreme
+    // that ends the signal, gaps (NaN) and a lead without any run.
+    #[test]
+    fn lead_mask_equals_run_walk() {
+        let fs = 250.0;
+        let cfg = DetectConfig::default();
+        let n = 20_000;
+        let base: Vec<f64> = (0..n)
+            .map(|i| (i as f64 * 0.031).sin() * 1.5 + ((i * 7919) % 101) as f64 / 500.0)
+            .collect();
+        let mut cases: Vec<Vec<f64>> = vec![base.clone()];
+        let mut clip = base.clone();
+        for v in &mut clip {
+            *v = v.clamp(-1.2, 1.3);
+        }
+        cases.push(clip.clone());
+        let mut mixed = clip.clone();
+        mixed[5000..8000].iter_mut().for_each(|v| *v = 0.2);
+        mixed[n - 30..].iter_mut().for_each(|v| *v = 1.3);
+        mixed[12_000] = f64::NAN;
+        mixed[12_001..12_400].iter_mut().for_each(|v| *v = f64::NAN);
+        cases.push(mixed);
+        let mut short = base.clone();
+        short[300..305].iter_mut().for_each(|v| *v = 9.0);
+        short[900..960].iter_mut().for_each(|v| *v = -9.0);
+        cases.push(short);
+        for (c, raw) in cases.iter().enumerate() {
+            let x: Vec<f64> = raw
+                .iter()
+                .map(|v| if v.is_finite() { *v } else { 0.0 })
+                .collect();
+            let bp: Vec<f64> = x.windows(2).map(|w| w[1] - w[0]).chain([0.0]).collect();
+            let fast = lead_mask(raw, &x, &bp, fs, &cfg);
+            let slow = saturation_runs_reference(raw, &x, &bp, fs, &cfg);
+            assert_eq!(fast, slow, "case {c}");
+            if c == 1 {
+                assert!(fast.contains(&LeadState::Saturated), "clipping found");
+            }
+        }
+    }
+
     // Peak-to-peak from per-hop extremes against the direct pass (oracle) for
     // every window start and several window lengths, including windows cut
     // short by the end of the signal.
@@ -1004,7 +1258,8 @@ mod block_tests {
                 count: n.div_ceil(500),
                 n,
             };
-            let fast = block_peakiness(&mwi, &mask, &blocks, step, &cfg);
+            let maxima = block_maxima(&mwi, false, &mask, &blocks);
+            let fast = block_peakiness(&mwi, &maxima, &mask, &blocks, step, &cfg);
             let slow = block_peakiness_reference(&mwi, &mask, &blocks, step, &cfg);
             assert_eq!(fast.len(), slow.len());
             let bits = |p: &Option<Peakiness>| {
