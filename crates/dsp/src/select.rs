@@ -16,9 +16,7 @@ pub fn kth_abs(x: &[f64], k: usize) -> Option<f64> {
     const SHIFT: u32 = 48;
     const SIGN: u64 = 1 << 63;
     if x.len() < 1 << 16 {
-        // Below this the histogram's fixed cost dominates: select directly.
-        let mut keys: Vec<u64> = x.iter().map(|v| v.to_bits() & !SIGN).collect();
-        return Some(f64::from_bits(*keys.select_nth_unstable(k).1));
+        return Some(kth_abs_short(x, k));
     }
     if let Some(v) = kth_abs_bracketed(x, k) {
         return Some(v);
@@ -44,6 +42,41 @@ pub fn kth_abs(x: &[f64], k: usize) -> Option<f64> {
     );
     let r = k - below;
     Some(f64::from_bits(*cand.select_nth_unstable(r).1))
+}
+
+/// [`kth_abs`] of an array shorter than 2^16 (and `k < x.len()`): a
+/// histogram of the 11 exponent bits (the top bits of the sign-less key)
+/// finds the exponent holding rank `k`, and a selection among the keys with
+/// that exponent (a fraction of them: the |values| of a signal spread over
+/// many binades) finishes. Exact for the reason [`kth_abs`] gives; arrays
+/// of at most 64 values are selected directly.
+fn kth_abs_short(x: &[f64], k: usize) -> f64 {
+    const SIGN: u64 = 1 << 63;
+    const SHIFT: u32 = 52;
+    if x.len() <= 64 {
+        let mut keys: Vec<u64> = x.iter().map(|v| v.to_bits() & !SIGN).collect();
+        return f64::from_bits(*keys.select_nth_unstable(k).1);
+    }
+    let mut hist = [0u16; 1 << (63 - SHIFT)];
+    for &v in x {
+        hist[((v.to_bits() & !SIGN) >> SHIFT) as usize] += 1;
+    }
+    let mut below = 0usize;
+    let mut bucket = 0u64;
+    for (b, &c) in hist.iter().enumerate() {
+        if below + c as usize > k {
+            bucket = b as u64;
+            break;
+        }
+        below += c as usize;
+    }
+    let mut cand: Vec<u64> = Vec::with_capacity(hist[bucket as usize] as usize);
+    cand.extend(
+        x.iter()
+            .map(|v| v.to_bits() & !SIGN)
+            .filter(|b| b >> SHIFT == bucket),
+    );
+    f64::from_bits(*cand.select_nth_unstable(k - below).1)
 }
 
 /// [`kth_abs`] of a long array by bracketing (Floyd and Rivest, CACM
@@ -168,7 +201,9 @@ mod tests {
             s ^= s << 17;
             s
         };
-        for n in [1usize, 2, 3, 10, 101, 1000, 5001, 70_001, 250_003] {
+        for n in [
+            1usize, 2, 3, 10, 64, 65, 101, 1000, 1226, 5001, 65_535, 70_001, 250_003,
+        ] {
             // Mixed magnitudes, repeated values, signed zeros and a NaN and infinities.
             let mut x: Vec<f64> = (0..n)
                 .map(|i| {
