@@ -70,6 +70,57 @@ fn nd<T: Clone>(
     })
 }
 
+/// A one-dimensional variable-length string dataset. Written through a
+/// transfer property list whose conversion buffer fits the data: with the
+/// default list the library allocates and zeroes a 1 MiB conversion buffer
+/// for every string dataset, however few strings it holds. The dataset
+/// itself (type, shape, layout) is the one `with_data` creates.
+fn write_text(g: &hdf5::Group, name: &str, v: &[VarLenUnicode]) -> hdf5::Result<hdf5::Dataset> {
+    use hdf5_sys::{h5d, h5i::hid_t, h5p, h5s};
+    let ds = g
+        .new_dataset::<VarLenUnicode>()
+        .shape(v.len())
+        .create(name)?;
+    if v.is_empty() {
+        return Ok(ds);
+    }
+    let mem = hdf5::Datatype::from_type::<VarLenUnicode>()?;
+    // Memory and file elements are both a pointer-sized handle pair or
+    // smaller; 32 bytes per string holds either, at least one page.
+    let bytes = (v.len() * 32).clamp(4096, 1 << 20);
+    let _guard = hdf5_sys::LOCK.lock();
+    // SAFETY: `ds` and `mem` are open handles kept alive for the call, `v`
+    // holds `v.len()` elements of the memory type, and the property list is
+    // closed on every path; the library lock serialises the calls.
+    let status = unsafe {
+        let dxpl: hid_t = h5p::H5Pcreate(*h5p::H5P_CLS_DATASET_XFER);
+        if dxpl < 0 {
+            -1
+        } else {
+            let mut r = h5p::H5Pset_buffer(dxpl, bytes, std::ptr::null_mut(), std::ptr::null_mut());
+            if r >= 0 {
+                r = h5d::H5Dwrite(
+                    ds.id(),
+                    mem.id(),
+                    h5s::H5S_ALL,
+                    h5s::H5S_ALL,
+                    dxpl,
+                    v.as_ptr().cast(),
+                );
+            }
+            h5p::H5Pclose(dxpl);
+            r
+        }
+    };
+    if status < 0 {
+        return Err(hdf5::Error::from(format!(
+            "writing {} strings to `{name}` failed",
+            v.len()
+        )));
+    }
+    Ok(ds)
+}
+
 fn write_group(g: &hdf5::Group, path: &Path, tree: &Group) -> Result<(), StoreError> {
     let e = h5err(path);
     for (name, a) in &tree.attrs {
@@ -86,7 +137,7 @@ fn write_group(g: &hdf5::Group, path: &Path, tree: &Group) -> Result<(), StoreEr
                     .iter()
                     .map(|s| vlu(path, s))
                     .collect::<Result<Vec<_>, _>>()?;
-                b.with_data(v.as_slice()).create(name.as_str())
+                write_text(g, name, &v)
             }
             Data::F32Matrix { cols, values } => {
                 let rows = values.len().checked_div(*cols).unwrap_or(0);
@@ -225,6 +276,11 @@ mod tests {
             .dataset_with_units("qrs_peak", Data::I64(vec![10, 20]), "sample");
         r.group("beats")
             .dataset("label", Data::Text(vec!["N".into(), "V".into()]));
+        // Many strings (a conversion buffer of its own size) and an empty
+        // string dataset.
+        let many: Vec<String> = (0..5000).map(|i| format!("s{i}\u{e9}")).collect();
+        r.dataset("many", Data::Text(many.clone()));
+        r.dataset("none", Data::Text(Vec::new()));
         r.dataset(
             "m",
             Data::F32Matrix {
@@ -247,6 +303,18 @@ mod tests {
             .read_raw()
             .unwrap();
         assert_eq!(q, vec![10, 20]);
+        let read_text = |name: &str| -> Vec<String> {
+            let ds = f.dataset(name).unwrap();
+            assert_eq!(ds.shape().len(), 1, "{name} is one-dimensional");
+            ds.read_raw::<VarLenUnicode>()
+                .unwrap()
+                .iter()
+                .map(|s| s.as_str().to_string())
+                .collect()
+        };
+        assert_eq!(read_text("records/rec1/beats/label"), vec!["N", "V"]);
+        assert_eq!(read_text("records/rec1/many"), many);
+        assert!(read_text("records/rec1/none").is_empty());
         let fs: f64 = f
             .group("records/rec1")
             .unwrap()
