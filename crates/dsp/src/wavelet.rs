@@ -71,9 +71,12 @@ pub fn swt_quadratic_spline(x: &[f64], n_scales: usize) -> Vec<Vec<f64>> {
     }
     let pad = 4usize << n_scales;
     let len = n + 2 * pad;
-    let mut approx: Vec<f64> = (0..len)
-        .map(|i| x[mirror(i as isize - pad as isize, n)])
-        .collect();
+    // The reflected extension: `x` itself in the middle, the index
+    // arithmetic of `mirror` only for the pads.
+    let mut approx: Vec<f64> = Vec::with_capacity(len);
+    approx.extend((0..pad).map(|i| x[mirror(i as isize - pad as isize, n)]));
+    approx.extend_from_slice(x);
+    approx.extend((pad + n..len).map(|i| x[mirror(i as isize - pad as isize, n)]));
     let mut next = vec![0.0; len];
     let mut out = Vec::with_capacity(n_scales);
     for k in 1..=n_scales {
@@ -153,9 +156,12 @@ pub fn swt_quadratic_spline_reference(x: &[f64], n_scales: usize) -> Vec<Vec<f64
     // cropped part never sees the zero beyond the padded buffer.
     let pad = 4usize << n_scales;
     let len = n + 2 * pad;
-    let mut approx: Vec<f64> = (0..len)
-        .map(|i| x[mirror(i as isize - pad as isize, n)])
-        .collect();
+    // The reflected extension: `x` itself in the middle, the index
+    // arithmetic of `mirror` only for the pads.
+    let mut approx: Vec<f64> = Vec::with_capacity(len);
+    approx.extend((0..pad).map(|i| x[mirror(i as isize - pad as isize, n)]));
+    approx.extend_from_slice(x);
+    approx.extend((pad + n..len).map(|i| x[mirror(i as isize - pad as isize, n)]));
     let mut out = Vec::with_capacity(n_scales);
     let mut next = vec![0.0; len];
     let mut detail = vec![0.0; len];
