@@ -560,6 +560,44 @@ impl LeadAnalysis {
                 || (d <= wide_gap && v > wide_frac * m_all)
                 || (opposite && d <= adj_gap && v > cfg.qrs_adjacent_frac * m_all)
         };
+        // Outermost run of same-sign maxima (no sign change of W_2 between
+        // them) in a chain ordered outward from the main pair: where |W_2|
+        // between two of them falls below `frac` of the inner one, the
+        // slope has levelled off and the later maxima of the same direction
+        // (a rising ST segment, slow T upstroke) are another wave; the
+        // complex ends at the inner one. A run followed by an opposite lobe
+        // that joined (a small terminal s or r') is not outermost and stays.
+        let trim = |chain: &[usize], frac: f64| -> usize {
+            let n = chain.len();
+            if frac <= 0.0 || n < 2 {
+                return chain[n - 1];
+            }
+            let same_run = |a: usize, b: usize| {
+                let (lo, hi) = (a.min(b), a.max(b));
+                let s = w2[a].signum();
+                w2[lo..=hi].iter().all(|v| v.signum() == s)
+            };
+            let mut j = n - 1;
+            while j > 0 && same_run(chain[j - 1], chain[j]) {
+                j -= 1;
+            }
+            for i in j..n - 1 {
+                let (lo, hi) = (chain[i].min(chain[i + 1]), chain[i].max(chain[i + 1]));
+                let valley = w2[lo + 1..hi]
+                    .iter()
+                    .fold(f64::INFINITY, |m, v| m.min(v.abs()));
+                // Only small maxima, and a run that goes on (a persisting
+                // slope), not one terminal lobe of a slurred S.
+                let small = chain[i + 1..]
+                    .iter()
+                    .all(|&e| w2[e].abs() < cfg.qrs_valley_lobe_frac * m_all);
+                let persists = n - 1 - i >= cfg.qrs_valley_min_lobes;
+                if valley < frac * w2[chain[i]].abs() && small && persists {
+                    return chain[i];
+                }
+            }
+            chain[n - 1]
+        };
         let mut first = p1;
         for &e in ext.iter().rev().filter(|&&e| e < p1) {
             if first - e > gap.max(wide_gap) {
@@ -576,6 +614,7 @@ impl LeadAnalysis {
             }
         }
         let mut last = p2;
+        let mut chain_post = vec![p2];
         for &e in ext.iter().filter(|&&e| e > p2) {
             if e - last > gap.max(wide_gap) {
                 break;
@@ -588,8 +627,10 @@ impl LeadAnalysis {
                 w2[e].signum() != w2[last].signum(),
             ) {
                 last = e;
+                chain_post.push(e);
             }
         }
+        last = trim(&chain_post, cfg.qrs_valley_frac_post);
         let qsearch = self.ms_i(cfg.qrs_boundary_search_ms);
         // The threshold is relative to the outer maximum (Martínez 2004), but
         // not below a fraction of the complex's largest maximum: from a
