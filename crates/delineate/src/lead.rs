@@ -584,7 +584,11 @@ impl LeadAnalysis {
             if joins(
                 e - last,
                 w2[e].abs(),
-                cfg.qrs_gamma_post,
+                if w2[e].signum() == w2[last].signum() {
+                    cfg.qrs_gamma_post.max(cfg.qrs_gamma_post_same)
+                } else {
+                    cfg.qrs_gamma_post
+                },
                 cfg.qrs_wide_frac_post,
                 w2[e].signum() != w2[last].signum(),
             ) {
