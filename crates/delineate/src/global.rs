@@ -218,6 +218,11 @@ pub(crate) fn combine(
     cfg: &DelineateConfig,
 ) -> Vec<BeatMarks> {
     let outlier = cfg.global_outlier_ms * fs / 1000.0;
+    let outlier_qrs = if cfg.global_outlier_qrs_ms > 0.0 {
+        cfg.global_outlier_qrs_ms * fs / 1000.0
+    } else {
+        outlier
+    };
     let upright_bonus = cfg.global_t_upright_bonus_ms * fs / 1000.0;
     // P boundaries have their own confidence floor.
     let cfg_p = DelineateConfig {
@@ -251,7 +256,7 @@ pub(crate) fn combine(
             g.qrs_on = extreme(
                 &gather(&|m| m.qrs_on),
                 Pick::Earliest,
-                outlier,
+                outlier_qrs,
                 cfg.global_pair_qrs_on,
                 exp(&|m| m.qrs_on, cfg.global_pair_qrs_on),
                 cfg,
@@ -259,7 +264,7 @@ pub(crate) fn combine(
             g.qrs_end = extreme(
                 &gather(&|m| m.qrs_end),
                 Pick::Latest,
-                outlier,
+                outlier_qrs,
                 cfg.global_pair_qrs_end,
                 exp(&|m| m.qrs_end, cfg.global_pair_qrs_end),
                 cfg,

@@ -576,6 +576,7 @@ impl LeadAnalysis {
             }
         }
         let mut last = p2;
+        let mut chain_post = vec![p2];
         for &e in ext.iter().filter(|&&e| e > p2) {
             if e - last > gap.max(wide_gap) {
                 break;
@@ -583,13 +584,25 @@ impl LeadAnalysis {
             if joins(
                 e - last,
                 w2[e].abs(),
-                cfg.qrs_gamma_post,
+                if w2[e].signum() == w2[last].signum() {
+                    cfg.qrs_gamma_post.max(cfg.qrs_gamma_post_same)
+                } else {
+                    cfg.qrs_gamma_post
+                },
                 cfg.qrs_wide_frac_post,
                 w2[e].signum() != w2[last].signum(),
             ) {
                 last = e;
+                chain_post.push(e);
             }
         }
+        last = trim_same_sign_run(
+            w2,
+            &chain_post,
+            cfg.qrs_valley_frac_post,
+            cfg.qrs_valley_lobe_frac * m_all,
+            cfg.qrs_valley_min_lobes,
+        );
         let qsearch = self.ms_i(cfg.qrs_boundary_search_ms);
         // The threshold is relative to the outer maximum (Martínez 2004), but
         // not below a fraction of the complex's largest maximum: from a
@@ -964,6 +977,50 @@ impl LeadAnalysis {
     }
 }
 
+/// Where a chain of |W_k| maxima (`chain`, ordered outward from the main
+/// pair, at least one) ends once its outermost run of same-sign maxima (no
+/// sign change of `w` between them) is trimmed: where |w| between two of
+/// them falls below `frac` of the inner one, the slope has levelled off and
+/// the later maxima of the same direction (a rising ST segment, a slow T
+/// upstroke) are another wave, so the chain ends at the inner one. Only
+/// when every later maximum is below `lobe_max` and there are at least
+/// `min_lobes` of them (a persisting slope, not one terminal lobe of a
+/// slurred S). A run followed by an opposite lobe that joined (a small
+/// terminal s or r') is not outermost and stays. `frac` <= 0: no trim.
+fn trim_same_sign_run(
+    w: &[f64],
+    chain: &[usize],
+    frac: f64,
+    lobe_max: f64,
+    min_lobes: usize,
+) -> usize {
+    let n = chain.len();
+    if frac <= 0.0 || n < 2 {
+        return chain[n - 1];
+    }
+    let same_run = |a: usize, b: usize| {
+        let (lo, hi) = (a.min(b), a.max(b));
+        let s = w[a].signum();
+        w[lo..=hi].iter().all(|v| v.signum() == s)
+    };
+    let mut j = n - 1;
+    while j > 0 && same_run(chain[j - 1], chain[j]) {
+        j -= 1;
+    }
+    for i in j..n - 1 {
+        let (lo, hi) = (chain[i].min(chain[i + 1]), chain[i].max(chain[i + 1]));
+        let valley = w[lo + 1..hi]
+            .iter()
+            .fold(f64::INFINITY, |m, v| m.min(v.abs()));
+        let small = chain[i + 1..].iter().all(|&e| w[e].abs() < lobe_max);
+        let persists = n - 1 - i >= min_lobes;
+        if valley < frac * w[chain[i]].abs() && small && persists {
+            return chain[i];
+        }
+    }
+    chain[n - 1]
+}
+
 fn ext_max(w: &[f64], lo: isize, hi: isize) -> f64 {
     let lo = lo.max(0) as usize;
     let hi = (hi.max(0) as usize).min(w.len());
@@ -1014,5 +1071,40 @@ mod tests {
         assert!(la
             .find_pair_near(3, (lo, hi), 250 + la.ms_i(60.0), la.ms_i(30.0), cfg.p_gamma)
             .is_none());
+    }
+
+    /// Invented |W_2| sequences (no signal): a falling R slope (maximum 2.0
+    /// at 2) whose |W_2| nearly vanishes at 5, then same-sign bumps of 0.25
+    /// at 7, 10 and 13 with shallow dips between them (a rising ST segment).
+    fn st_ramp() -> Vec<f64> {
+        vec![
+            0.0, 1.0, 2.0, 1.0, 0.4, 0.1, 0.2, 0.25, 0.2, 0.2, 0.25, 0.2, 0.2, 0.25, 0.1, 0.0,
+        ]
+    }
+
+    #[test]
+    fn same_sign_run_beyond_a_deep_valley_is_trimmed() {
+        let w = st_ramp();
+        let chain = [2, 7, 10, 13];
+        // Off, or too shallow a valley for `frac`: the chain is kept.
+        assert_eq!(trim_same_sign_run(&w, &chain, 0.0, 1.0, 2), 13);
+        assert_eq!(trim_same_sign_run(&w, &chain, 0.04, 1.0, 2), 13);
+        // Valley 0.1 below 0.1 x 2.0 after maximum 2: the run after it goes.
+        assert_eq!(trim_same_sign_run(&w, &chain, 0.1, 1.0, 2), 2);
+        // Later maxima not small enough, or too few of them: kept.
+        assert_eq!(trim_same_sign_run(&w, &chain, 0.1, 0.2, 2), 13);
+        assert_eq!(trim_same_sign_run(&w, &chain[..2], 0.1, 1.0, 2), 7);
+        assert_eq!(trim_same_sign_run(&w, &chain[..2], 0.1, 1.0, 1), 2);
+        // A sign change between the maxima: not one run, nothing trimmed.
+        let mut w2 = w.clone();
+        w2[5] = -0.05;
+        assert_eq!(trim_same_sign_run(&w2, &chain, 0.1, 1.0, 2), 13);
+        // An opposite lobe at the end: the same-sign run is not outermost.
+        let mut w3 = w.clone();
+        w3.extend([-0.3, 0.0]);
+        assert_eq!(
+            trim_same_sign_run(&w3, &[2, 7, 10, 13, 16], 0.1, 1.0, 2),
+            16
+        );
     }
 }
