@@ -710,8 +710,7 @@ impl LeadAnalysis {
                         // A lone lobe at the window start may be the final
                         // limb of a T wave that follows the QRS closely:
                         // look again from just after the QRS end.
-                        let early_lo =
-                            qend_i + self.ms_i(cfg.t_window_early_after_qrs_end_ms);
+                        let early_lo = qend_i + self.ms_i(cfg.t_window_early_after_qrs_end_ms);
                         let early = (cfg.t_window_early_after_qrs_end_ms > 0.0
                             && l.idx.len() == 1
                             && early_lo < t_lo
