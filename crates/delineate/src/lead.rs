@@ -719,7 +719,21 @@ impl LeadAnalysis {
                                 .then(|| self.find_wave(k, t_lo, t_hi_slow, &rule))
                                 .flatten()
                                 .filter(|m| m.idx.len() >= 2 && m.idx.contains(&l.idx[0]));
-                        t_found = Some((k, retry.unwrap_or(l)));
+                        let l = retry.unwrap_or(l);
+                        // A lone lobe at the window start may be the final
+                        // limb of a T wave that follows the QRS closely:
+                        // look again from just after the QRS end.
+                        let early_lo = qend_i + self.ms_i(cfg.t_window_early_after_qrs_end_ms);
+                        let early = (cfg.t_window_early_after_qrs_end_ms > 0.0
+                            && l.idx.len() == 1
+                            && early_lo < t_lo
+                            && t_expect.is_none())
+                        .then(|| self.find_wave(k, early_lo, t_hi, &rule))
+                        .flatten()
+                        .filter(|m| {
+                            m.idx.len() >= 2 && m.idx.contains(&l.idx[0]) && m.idx[0] < l.idx[0]
+                        });
+                        t_found = Some((k, early.unwrap_or(l)));
                         break;
                     }
                 }

@@ -427,6 +427,55 @@ mod tests {
         }
     }
 
+    /// Invented beats (500 Hz, 60 beats/min): a narrow QRS and a T wave
+    /// peaking 120 ms after the R peak with no ST segment, so the default
+    /// T window start (100 ms after the R peak, 60 ms after the QRS end)
+    /// cuts off its first limb.
+    fn t_after_short_st(n_beats: usize) -> (Vec<f64>, Vec<usize>) {
+        let fs = 500.0;
+        let rr = 500;
+        let g = |t: f64, c: f64, s: f64| (-(t - c) * (t - c) / (2.0 * s * s)).exp();
+        let qrs: Vec<usize> = (1..=n_beats).map(|k| k * rr).collect();
+        let x = (0..rr * (n_beats + 1))
+            .map(|i| {
+                let t = i as f64 / fs;
+                qrs.iter()
+                    .map(|&r| {
+                        let c = r as f64 / fs;
+                        g(t, c, 0.01) + 0.4 * g(t, c + 0.12, 0.035)
+                    })
+                    .sum()
+            })
+            .collect();
+        (x, qrs)
+    }
+
+    #[test]
+    fn t_wave_right_after_the_qrs_is_found_from_its_first_limb() {
+        let fs = 500.0;
+        let (x, qrs) = t_after_short_st(6);
+        let off = DelineateConfig {
+            t_window_early_after_qrs_end_ms: 0.0,
+            ..Default::default()
+        };
+        let near_peak = |b: &BeatMarks, r: usize| {
+            b.t_peak
+                .is_some_and(|p| (p.sample as f64 - (r as f64 + 0.12 * fs)).abs() <= 5.0)
+        };
+        let inner = 1..qrs.len() - 1;
+        // Without the second look the window holds only the final limb: the
+        // T peak is missed or misplaced.
+        let d = delineate_lead(&x, fs, &qrs, &off);
+        assert!(inner.clone().all(|i| !near_peak(&d[i], qrs[i])));
+        // With it, the T peak is at 120 ms (within 10 ms) and the T end after it.
+        let d = delineate_lead(&x, fs, &qrs, &DelineateConfig::default());
+        for i in inner {
+            assert!(near_peak(&d[i], qrs[i]), "beat {i}: {:?}", d[i].t_peak);
+            let end = d[i].t_end.expect("T end").sample;
+            assert!(end > qrs[i] + 60, "beat {i}: T end {end}");
+        }
+    }
+
     #[test]
     fn config_rejects_unknown_keys() {
         // deny_unknown_fields: a typo is an error, not silently ignored.
