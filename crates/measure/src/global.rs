@@ -14,10 +14,12 @@
 //!   median can arbitrate: if one T wave is upright and the other inverted and
 //!   `prefer_upright_t` is set, the upright one is kept, otherwise the lead with the
 //!   larger T wave (the clearer T end). The lead is recorded.
-//! - Superimposed-leads QT: earliest QRS onset to latest T end over the valid leads
-//!   (two leads: the leads kept above); with three or more leads a single outlying
-//!   earliest onset (more than `onset_outlier_ms` before the next) and a single
-//!   outlying latest end (more than `end_outlier_ms` after the next) are dropped.
+//! - Superimposed-leads QT: earliest QRS onset to latest T end. The T ends come from
+//!   the valid leads (two leads: the leads kept above); the QRS onsets from every
+//!   usable lead (`qrs_onset_all_leads`, else from the same leads as the T ends). With
+//!   three or more leads a single outlying earliest onset (more than
+//!   `onset_outlier_ms` before the next) and a single outlying latest end (more than
+//!   `end_outlier_ms` after the next) are dropped.
 //! - QRS: earliest QRS onset to latest QRS end by the same rule; PR: earliest P onset
 //!   (same onset rule) to the global QRS onset.
 
@@ -123,16 +125,21 @@ pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
     let qrs_end = |m: &LeadMeasure| m.marks.qrs_end.map(|k| k.sample as f64);
     let p_on = |m: &LeadMeasure| m.marks.p_on.map(|k| k.sample as f64);
 
-    let sup_set = if valid.len() >= 3 { &valid } else { &accepted };
-    let on_valid = robust_min(&samples(qrs_on, sup_set), on_tol);
-    let superimposed_ms = on_valid
-        .zip(robust_max(&samples(t_end, sup_set), end_tol))
-        .map(|(a, b)| ms(b - a))
-        .filter(|&q| plausible(q));
-
     // QRS and PR from every usable lead with the marks (a lead's T end need not be valid).
     let usable: Vec<usize> = (0..leads.len()).filter(|&l| leads[l].usable).collect();
     let on_all = robust_min(&samples(qrs_on, &usable), on_tol);
+
+    let sup_set = if valid.len() >= 3 { &valid } else { &accepted };
+    let sup_end = robust_max(&samples(t_end, sup_set), end_tol);
+    let sup_on = if cfg.qrs_onset_all_leads && sup_end.is_some() {
+        on_all
+    } else {
+        robust_min(&samples(qrs_on, sup_set), on_tol)
+    };
+    let superimposed_ms = sup_on
+        .zip(sup_end)
+        .map(|(a, b)| ms(b - a))
+        .filter(|&q| plausible(q));
     let qrs_ms = on_all
         .zip(robust_max(&samples(qrs_end, &usable), end_tol))
         .map(|(a, b)| ms(b - a))
