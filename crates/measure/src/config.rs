@@ -122,10 +122,11 @@ pub struct MeasureConfig {
     /// (true), not only of the leads whose T end is valid (false). The QRS onset is a
     /// property of the whole heart beat: a lead with a flat or unreadable T wave still
     /// shows where ventricular depolarisation begins, and leaving it out made the
-    /// onset late. On QTDB (annotator 1, window QT, superimposed leads): mean -4.2 ->
-    /// -2.2 ms, SD 23.3 -> 22.6 ms; odd-positioned records of RECORDS SD 23.9 -> 22.7,
-    /// even 22.4 -> 22.2 (measured offline from the median-beat marks before the
-    /// change). Default true. No unit (switch).
+    /// onset late (QTDB sel43: a 70 ms later onset). On QTDB (annotator 1, window QT,
+    /// superimposed leads): mean -4.2 -> -2.2 ms, SD 23.3 -> 22.6 ms; odd-positioned
+    /// records of RECORDS SD 23.9 -> 22.7, even 22.4 -> 22.2. LUDB window QT
+    /// (validation report) -20.9 +/- 24.6 -> -19.9 +/- 23.9 ms. Default true. No unit
+    /// (switch).
     pub qrs_onset_all_leads: bool,
     /// Superimposed leads, three or more leads: the earliest onset is dropped if it
     /// precedes the next earliest by more than this (ms); also used for P onset; default 20.

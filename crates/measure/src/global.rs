@@ -275,6 +275,31 @@ mod tests {
     }
 
     #[test]
+    fn superimposed_onset_comes_from_every_usable_lead() {
+        // Invented marks (logic check, fs = 1000 Hz so samples are ms): lead 1's T wave
+        // is too flat for a T end, but its QRS starts 30 ms before lead 0's.
+        let cfg = MeasureConfig::default();
+        let mut flat = lead(70, 190, 600);
+        flat.t_amplitude_mv = Some(0.01);
+        let leads = vec![lead(100, 190, 500), flat];
+        let g = combine(&leads, 1000.0, &cfg);
+        assert_eq!(g.accepted_leads, vec![0]);
+        assert_eq!(g.superimposed_ms, Some(430.0));
+        // The longest-lead QT stays within one lead.
+        assert_eq!(g.longest_ms, Some(400.0));
+        // Switched off: onset from the leads with a valid T end only.
+        let own = MeasureConfig {
+            qrs_onset_all_leads: false,
+            ..MeasureConfig::default()
+        };
+        assert_eq!(combine(&leads, 1000.0, &own).superimposed_ms, Some(400.0));
+        // An unusable lead gives no onset either way.
+        let mut off = leads.clone();
+        off[1].usable = false;
+        assert_eq!(combine(&off, 1000.0, &cfg).superimposed_ms, Some(400.0));
+    }
+
+    #[test]
     fn two_leads_use_both() {
         let cfg = MeasureConfig::default();
         let g = combine(&[lead(100, 190, 480), lead(90, 180, 500)], 1000.0, &cfg);

@@ -166,21 +166,23 @@ fn qtdb_window_qt_against_annotator_1() {
         sup.len()
     );
     // Regression ceilings just above what was measured with the default pipeline
-    // (superimposed mean -4.2, SD 23.3 ms; longest lead mean -7.4, SD 23.1 ms; see
+    // (superimposed mean -2.2, SD 22.6 ms; longest lead mean -7.4, SD 23.1 ms; see
     // validation/results). The project's mean target (|mean| <= 10 ms) is met, the SD
     // target (<= 20 ms) not yet; these bounds stop the figures getting worse unnoticed.
     assert!(
-        ms.abs() <= MAX_ABS_MEAN_MS && ss <= MAX_SD_MS,
-        "superimposed QT error mean {ms:.1} SD {ss:.1} ms (ceilings {MAX_ABS_MEAN_MS}, {MAX_SD_MS})"
+        ms.abs() <= SUP_MAX_ABS_MEAN_MS && ss <= SUP_MAX_SD_MS,
+        "superimposed QT error mean {ms:.1} SD {ss:.1} ms (ceilings {SUP_MAX_ABS_MEAN_MS}, {SUP_MAX_SD_MS})"
     );
     assert!(
-        ml.abs() <= MAX_ABS_MEAN_MS + 3.0 && sl <= MAX_SD_MS,
-        "longest-lead QT error mean {ml:.1} SD {sl:.1} ms"
+        ml.abs() <= LONGEST_MAX_ABS_MEAN_MS && sl <= LONGEST_MAX_SD_MS,
+        "longest-lead QT error mean {ml:.1} SD {sl:.1} ms (ceilings {LONGEST_MAX_ABS_MEAN_MS}, {LONGEST_MAX_SD_MS})"
     );
 }
 
-const MAX_ABS_MEAN_MS: f64 = 5.0;
-const MAX_SD_MS: f64 = 23.5;
+const SUP_MAX_ABS_MEAN_MS: f64 = 3.0;
+const SUP_MAX_SD_MS: f64 = 23.0;
+const LONGEST_MAX_ABS_MEAN_MS: f64 = 8.0;
+const LONGEST_MAX_SD_MS: f64 = 23.5;
 
 #[test]
 fn ludb_window_qt_against_longest_lead_reference() {
