@@ -12,6 +12,33 @@ squared error, to be looked at by hand (median beats and marks are in results.h5
 
 Usage: python validation/scripts/window_qt_errors.py [RUN] [--data DIR] [--top N]
 Needs numpy and wfdb (the repository's .venv).
+
+Findings when it was written (superimposed-leads window QT minus annotator 1, SD in ms
+over all / odd / even positions in RECORDS; measured, not estimated):
+- After `measure.qrs_onset_all_leads`: -2.2 +/- 22.6 (22.7 / 22.2); 70 % of the squared
+  error lies between records (the same lead or morphology problem in every window of a
+  record), 30 % within. Against the reference marks placed on the median beat: QRS
+  onset error 1.1 +/- 10.9, T end -1.4 +/- 21.9 (correlation 0.21): the T end dominates.
+- Choosing per window the better of the two leads' T ends (an oracle) gives 17.6: the
+  rest is both leads wrong (long, flat or notched T; biphasic ends).
+- Tried and not kept (before the onset change the base was 23.3 (23.9 / 22.4)):
+  median of the window's beat-level global QTs alone 27.0; averaged with the median-beat
+  QT 22.6 after the onset change (no gain); replacing it when the two disagree by more
+  than 10-60 ms 26.7-27.6. Mean with the neighbouring windows (RR within 20 %,
+  Fridericia-carried) 22.4 from 23.3. T end method on the median beat: tangent 32.0,
+  area 28.9, median of three 24.9 (wavelet 23.3). T amplitude gate measured from the
+  T-end level 28.5. Two disagreeing leads: upright then larger T (current) 22.6; larger T
+  only 27.6; lower noise/T ratio 25.1; nearer the beat-level QT 27.4; higher T-end
+  confidence 27.2. Split-half check (median beats of odd and even beats): median of the
+  three T ends 22.5 (LUDB 23.9 unchanged); dropping a lead whose halves differ by more
+  than 20 ms 21.7 on 374 windows but LUDB 23.9 -> 24.9 (mean -19.9 -> -22.1). Trimmed
+  mean instead of the median beat (0, 0.1, 0.25 trimmed per side) 24.4, 23.9, 22.7.
+- Existing settings moved one at a time: min_correlation 0.75 / 0.92 22.8 / 23.6;
+  rr_stability 0.1 / 0.3 22.8 / 22.2 (LUDB 23.7 / 24.0); align_half_width_ms 40 / 100
+  22.6 / 22.7; linear interpolation 22.5; min_t_amplitude_mv 0.03 / 0.08 23.2 / 22.8
+  (LUDB 22.7 / 26.6); max_noise_t_ratio 0.1 / 0.25 23.1 / 22.5; lead_outlier_ms 40 / 50 /
+  80 / 100 22.7 / 22.4 / 23.6 / 27.0; delineate.t_xi_end 0.3 / 0.5 23.2 / 22.7 (means
+  +5.0 / -8.2). None moves the SD by more than the odd/even halves disagree.
 """
 
 import argparse
