@@ -34,7 +34,8 @@ pub(crate) struct LeadAnalysis {
     x: Vec<f64>,
     /// `w[k-1]` = W_k, scales 2^1..2^5 (see `tendline_dsp::wavelet`).
     w: Vec<Vec<f64>>,
-    /// Robust activity level of each W_k (1.4826 × median |W_k|).
+    /// Robust activity level of W_2..W_5 (1.4826 × median |W_k|), read
+    /// through [`Self::noise`]; W_1's is never used, so not computed.
     noise: Vec<f64>,
     /// Input samples per analysis sample.
     ratio: f64,
@@ -115,7 +116,7 @@ impl LeadAnalysis {
         // values: the transform skips those runs (its details are exactly
         // zero there) and the noise levels count them as zeros.
         let (w, keep) = swt_quadratic_spline_flat_ends(&xa, 5);
-        let noise = w
+        let noise = w[1..]
             .iter()
             // Median |W_k| by linear-time selection (same value as `median` of the |W_k|).
             .map(|wk| 1.4826 * median_abs_zero_padded(&wk[keep.clone()], wk.len()) + 1e-9)
@@ -159,8 +160,13 @@ impl LeadAnalysis {
         })
     }
 
+    /// Noise level of W_k, k in 2..=5.
+    fn noise(&self, k: usize) -> f64 {
+        self.noise[k - 2]
+    }
+
     fn confidence(&self, amp: f64, k: usize, cfg: &DelineateConfig) -> f64 {
-        let snr = amp / self.noise[k - 1];
+        let snr = amp / self.noise(k);
         snr / (snr + cfg.confidence_snr_half)
     }
 
@@ -629,7 +635,7 @@ impl LeadAnalysis {
         // the q trough (the sign change between the lobes), 10-40 ms late.
         let q_gap = self.ms_i(cfg.qrs_q_gap_ms);
         if q_gap > 0 {
-            let q_floor = (cfg.qrs_q_noise_k * self.noise[1]).max(cfg.qrs_q_min_frac * m_all);
+            let q_floor = (cfg.qrs_q_noise_k * self.noise(2)).max(cfg.qrs_q_min_frac * m_all);
             let sf = w2[first].signum();
             // Largest opposite-sign maximum between the last sign change
             // before `first` and the one before that (one lobe).
