@@ -222,12 +222,19 @@ pub fn measure_record(
     cfg: &MeasureConfig,
     dcfg: &tendline_delineate::DelineateConfig,
 ) -> Result<RecordMeasures, MeasureError> {
-    measure_record_with(leads, lead_names, fs, detection, sex, cfg, |x, fs, qrs| {
-        tendline_delineate::delineate_lead(x, fs, qrs, dcfg)
-    })
+    measure_record_with(
+        leads,
+        lead_names,
+        fs,
+        detection,
+        sex,
+        cfg,
+        |x, fs, qrs, i| tendline_delineate::delineate_lead_beat(x, fs, qrs, i, dcfg),
+    )
 }
 
-/// [`measure_record`] with any single-lead delineator `delineate(x, fs, qrs) -> marks per qrs`.
+/// [`measure_record`] with any single-lead delineator `delineate(x, fs, qrs, i) -> marks of
+/// beat i` (only the marks of one beat of each tiled median beat are read).
 #[allow(clippy::too_many_arguments)]
 pub fn measure_record_with<D>(
     leads: &[&[f64]],
@@ -239,7 +246,7 @@ pub fn measure_record_with<D>(
     mut delineate: D,
 ) -> Result<RecordMeasures, MeasureError>
 where
-    D: FnMut(&[f64], f64, &[usize]) -> Vec<BeatMarks>,
+    D: FnMut(&[f64], f64, &[usize], usize) -> BeatMarks,
 {
     cfg.validate().map_err(MeasureError::Config)?;
     if !(fs.is_finite() && fs > 0.0) {
@@ -361,7 +368,7 @@ fn concat_centred<'a>(
 
 fn measure_window<D>(ctx: &Ctx, ws: usize, we: usize, delineate: &mut D) -> WindowMeasure
 where
-    D: FnMut(&[f64], f64, &[usize]) -> Vec<BeatMarks>,
+    D: FnMut(&[f64], f64, &[usize], usize) -> BeatMarks,
 {
     let cfg = ctx.cfg;
     let fs = ctx.fs;
@@ -633,7 +640,7 @@ where
 /// outside the median beat are dropped).
 fn delineate_median<D>(m: &[f64], fid: usize, rr: usize, fs: f64, delineate: &mut D) -> BeatMarks
 where
-    D: FnMut(&[f64], f64, &[usize]) -> Vec<BeatMarks>,
+    D: FnMut(&[f64], f64, &[usize], usize) -> BeatMarks,
 {
     let l = m.len();
     let after = l - 1 - fid;
@@ -653,14 +660,7 @@ where
         }
     }
     let filled = fill_gaps(&buf);
-    let out = delineate(&filled, fs, &[c - rr, c, c + rr]);
-    let Some(bm) = (if out.len() == 3 {
-        out.into_iter().nth(1)
-    } else {
-        None
-    }) else {
-        return BeatMarks::default();
-    };
+    let bm = delineate(&filled, fs, &[c - rr, c, c + rr], 1);
     let origin = c - fid;
     let shift = |mk: Option<Mark>| {
         mk.and_then(|mk| {
