@@ -19,7 +19,7 @@ fn extreme(
     pick: Pick,
     outlier: f64,
     pair: PairRule,
-    expect: Option<f64>,
+    expect: &dyn Fn() -> Option<f64>,
     cfg: &DelineateConfig,
 ) -> Option<Mark> {
     extreme_pref(cands, &[], pick, outlier, pair, expect, 0.0, cfg)
@@ -28,7 +28,8 @@ fn extreme(
 /// [`extreme`] where `preferred[i]` (if given) marks candidate `i` as the
 /// preferred kind of wave: with `PairRule::Consistent`, when two leads
 /// disagree and only one is preferred, its distance to the expected place
-/// counts `bonus` samples less.
+/// counts `bonus` samples less. `expect` gives the expected place; it is
+/// called only in that case (it costs a median over the neighbouring beats).
 #[allow(clippy::too_many_arguments)]
 fn extreme_pref(
     cands: &[Mark],
@@ -36,7 +37,7 @@ fn extreme_pref(
     pick: Pick,
     outlier: f64,
     pair: PairRule,
-    expect: Option<f64>,
+    expect: &dyn Fn() -> Option<f64>,
     bonus: f64,
     cfg: &DelineateConfig,
 ) -> Option<Mark> {
@@ -68,7 +69,7 @@ fn extreme_pref(
             PairRule::Confident => m1.confidence > m0.confidence,
             PairRule::Outer => false,
             PairRule::Inner => true,
-            PairRule::Consistent => match expect {
+            PairRule::Consistent => match expect() {
                 Some(e) => {
                     let credit = |p: bool, q: bool| if p && !q { bonus } else { 0.0 };
                     dist(&m0, e) - credit(p0, p1) > dist(&m1, e) - credit(p1, p0)
@@ -185,13 +186,14 @@ fn best_lead(cands: &[(usize, Mark)]) -> Option<(usize, Mark)> {
 
 /// `chosen` if it lies strictly between `on` and `end` (where given);
 /// otherwise the candidate inside them nearest `expect` (or the most
-/// confident one); otherwise `chosen` unchanged.
+/// confident one); otherwise `chosen` unchanged. `expect` is called only
+/// when `chosen` lies outside.
 fn inside_or(
     chosen: Option<(usize, Mark)>,
     cands: &[(usize, Mark)],
     on: Option<Mark>,
     end: Option<Mark>,
-    expect: Option<f64>,
+    expect: &dyn Fn() -> Option<f64>,
 ) -> Option<(usize, Mark)> {
     let inside = |m: &Mark| {
         on.is_none_or(|o| m.sample > o.sample) && end.is_none_or(|e| m.sample < e.sample)
@@ -200,7 +202,7 @@ fn inside_or(
         return chosen;
     }
     let ok: Vec<(usize, Mark)> = cands.iter().copied().filter(|(_, m)| inside(m)).collect();
-    let pick = match expect {
+    let pick = match expect() {
         Some(e) => ok.iter().copied().min_by(|a, b| {
             (a.1.sample as f64 - e)
                 .abs()
@@ -258,7 +260,7 @@ pub(crate) fn combine(
                 Pick::Earliest,
                 outlier_qrs,
                 cfg.global_pair_qrs_on,
-                exp(&|m| m.qrs_on, cfg.global_pair_qrs_on),
+                &|| exp(&|m| m.qrs_on, cfg.global_pair_qrs_on),
                 cfg,
             );
             g.qrs_end = extreme(
@@ -266,7 +268,7 @@ pub(crate) fn combine(
                 Pick::Latest,
                 outlier_qrs,
                 cfg.global_pair_qrs_end,
-                exp(&|m| m.qrs_end, cfg.global_pair_qrs_end),
+                &|| exp(&|m| m.qrs_end, cfg.global_pair_qrs_end),
                 cfg,
             );
             g.p_on = extreme(
@@ -274,7 +276,7 @@ pub(crate) fn combine(
                 Pick::Earliest,
                 outlier,
                 cfg.global_pair_p,
-                exp(&|m| m.p_on, cfg.global_pair_p),
+                &|| exp(&|m| m.p_on, cfg.global_pair_p),
                 &cfg_p,
             );
             g.p_end = extreme(
@@ -282,7 +284,7 @@ pub(crate) fn combine(
                 Pick::Latest,
                 outlier,
                 cfg.global_pair_p,
-                exp(&|m| m.p_end, cfg.global_pair_p),
+                &|| exp(&|m| m.p_end, cfg.global_pair_p),
                 &cfg_p,
             );
             g.t_on = extreme(
@@ -290,7 +292,7 @@ pub(crate) fn combine(
                 Pick::Earliest,
                 outlier,
                 cfg.global_pair_t,
-                exp(&|m| m.t_on, cfg.global_pair_t),
+                &|| exp(&|m| m.t_on, cfg.global_pair_t),
                 cfg,
             );
             // T ends: an upright T is preferred over an inverted or biphasic
@@ -306,7 +308,7 @@ pub(crate) fn combine(
                     Pick::Latest,
                     outlier,
                     cfg.global_pair_t,
-                    exp(get, cfg.global_pair_t),
+                    &|| exp(get, cfg.global_pair_t),
                     upright_bonus,
                     cfg,
                 )
@@ -322,8 +324,14 @@ pub(crate) fn combine(
             let t_peaks = gather_l(&|m| m.t_peak);
             // With the consistency rule, the T peak comes from the lead whose
             // peak lies nearest the neighbouring beats' pattern.
-            let t_peak_lead = match exp(&|m| m.t_peak, cfg.global_pair_t) {
-                Some(e) if t_peaks.len() >= 2 => t_peaks.iter().copied().min_by(|a, b| {
+            // (The expected place is only worked out when there is a choice.)
+            let t_expect = if t_peaks.len() >= 2 {
+                exp(&|m| m.t_peak, cfg.global_pair_t)
+            } else {
+                None
+            };
+            let t_peak_lead = match t_expect {
+                Some(e) => t_peaks.iter().copied().min_by(|a, b| {
                     (a.1.sample as f64 - e)
                         .abs()
                         .total_cmp(&(b.1.sample as f64 - e).abs())
@@ -334,13 +342,9 @@ pub(crate) fn combine(
             // outside its own boundaries (a lead that took another wave) is
             // replaced by the nearest-to-expected peak that lies inside them,
             // so the written wave stays `(` peak `)`.
-            let t_peak_lead = inside_or(
-                t_peak_lead,
-                &t_peaks,
-                g.t_on,
-                g.t_end,
-                exp(&|m| m.t_peak, cfg.global_pair_t),
-            );
+            let t_peak_lead = inside_or(t_peak_lead, &t_peaks, g.t_on, g.t_end, &|| {
+                exp(&|m| m.t_peak, cfg.global_pair_t)
+            });
             if let Some((l, m)) = t_peak_lead {
                 g.t_peak = Some(m);
                 g.t_morphology = beats[l].t_morphology;
@@ -348,10 +352,11 @@ pub(crate) fn combine(
                 g.t_morphology = beats[l].t_morphology;
             }
             let p_peaks = gather_l(&|m| m.p_peak);
-            g.p_peak = inside_or(best_lead(&p_peaks), &p_peaks, g.p_on, g.p_end, None).map(|x| x.1);
+            g.p_peak =
+                inside_or(best_lead(&p_peaks), &p_peaks, g.p_on, g.p_end, &|| None).map(|x| x.1);
             let q_peaks = gather_l(&|m| m.qrs_peak);
-            g.qrs_peak =
-                inside_or(best_lead(&q_peaks), &q_peaks, g.qrs_on, g.qrs_end, None).map(|x| x.1);
+            g.qrs_peak = inside_or(best_lead(&q_peaks), &q_peaks, g.qrs_on, g.qrs_end, &|| None)
+                .map(|x| x.1);
             g
         })
         .collect();
@@ -458,23 +463,37 @@ mod tests {
         // Three leads agree near 100, one is 30 samples early: dropped.
         let c = [m(100, 0.9), m(102, 0.9), m(70, 0.9), m(101, 0.9)];
         assert_eq!(
-            extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, None, &cfg)
-                .unwrap()
-                .sample,
+            extreme(
+                &c,
+                Pick::Earliest,
+                10.0,
+                PairRule::Confident,
+                &|| None,
+                &cfg
+            )
+            .unwrap()
+            .sample,
             100
         );
         // Without the outlier the earliest is kept as is.
         let c = [m(100, 0.9), m(102, 0.9), m(95, 0.9)];
         assert_eq!(
-            extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, None, &cfg)
-                .unwrap()
-                .sample,
+            extreme(
+                &c,
+                Pick::Earliest,
+                10.0,
+                PairRule::Confident,
+                &|| None,
+                &cfg
+            )
+            .unwrap()
+            .sample,
             95
         );
         // Latest: one late outlier is dropped, but only one.
         let c = [m(200, 0.9), m(204, 0.9), m(260, 0.9), m(203, 0.9)];
         assert_eq!(
-            extreme(&c, Pick::Latest, 10.0, PairRule::Confident, None, &cfg)
+            extreme(&c, Pick::Latest, 10.0, PairRule::Confident, &|| None, &cfg)
                 .unwrap()
                 .sample,
             204
@@ -482,9 +501,16 @@ mod tests {
         // Two leads far apart: the more confident one wins.
         let c = [m(200, 0.3), m(260, 0.8)];
         assert_eq!(
-            extreme(&c, Pick::Earliest, 10.0, PairRule::Confident, None, &cfg)
-                .unwrap()
-                .sample,
+            extreme(
+                &c,
+                Pick::Earliest,
+                10.0,
+                PairRule::Confident,
+                &|| None,
+                &cfg
+            )
+            .unwrap()
+            .sample,
             260
         );
         // Low-confidence marks are not used.
@@ -493,10 +519,42 @@ mod tests {
             Pick::Earliest,
             10.0,
             PairRule::Confident,
-            None,
+            &|| None,
             &cfg
         )
         .is_none());
+    }
+
+    // The expected place (a median over neighbouring beats) is worked out
+    // only where the consistency rule has to choose between two leads, and
+    // the choice is the one an expectation given up front makes.
+    #[test]
+    fn expected_place_is_asked_for_only_when_two_leads_disagree() {
+        let cfg = DelineateConfig::default();
+        let calls = std::cell::Cell::new(0);
+        let expect = || {
+            calls.set(calls.get() + 1);
+            Some(250.0)
+        };
+        let run = |c: &[Mark]| extreme(c, Pick::Latest, 10.0, PairRule::Consistent, &expect, &cfg);
+        // Agreeing pair, single lead, three leads: not asked.
+        run(&[m(200, 0.9), m(205, 0.5)]);
+        run(&[m(200, 0.9)]);
+        run(&[m(200, 0.9), m(260, 0.5), m(203, 0.7)]);
+        assert_eq!(calls.get(), 0);
+        // Disagreeing pair: asked once, same pick as with the value given.
+        let lazy = run(&[m(200, 0.9), m(260, 0.5)]);
+        assert_eq!(calls.get(), 1);
+        let given = extreme(
+            &[m(200, 0.9), m(260, 0.5)],
+            Pick::Latest,
+            10.0,
+            PairRule::Consistent,
+            &|| Some(250.0),
+            &cfg,
+        );
+        assert_eq!(lazy, given);
+        assert_eq!(lazy.unwrap().sample, 260);
     }
 
     #[test]
@@ -504,7 +562,7 @@ mod tests {
         let cfg = DelineateConfig::default();
         let c = [m(200, 0.9), m(260, 0.5)];
         let pick = |rule, expect| {
-            extreme(&c, Pick::Latest, 10.0, rule, expect, &cfg)
+            extreme(&c, Pick::Latest, 10.0, rule, &|| expect, &cfg)
                 .unwrap()
                 .sample
         };
@@ -531,7 +589,7 @@ mod tests {
                 Pick::Latest,
                 10.0,
                 PairRule::Consistent,
-                Some(225.0),
+                &|| Some(225.0),
                 bonus,
                 &cfg,
             )

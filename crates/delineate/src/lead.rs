@@ -7,7 +7,7 @@
 //! positions in the analysis domain (fractional where the rule interpolates),
 //! then mapped back to input samples by rounding.
 
-use tendline_dsp::wavelet::swt_quadratic_spline;
+use tendline_dsp::wavelet::swt_quadratic_spline_flat_ends;
 
 use crate::{BeatMarks, DelineateConfig, Mark, TEndMethod, TMorphology};
 
@@ -34,7 +34,8 @@ pub(crate) struct LeadAnalysis {
     x: Vec<f64>,
     /// `w[k-1]` = W_k, scales 2^1..2^5 (see `tendline_dsp::wavelet`).
     w: Vec<Vec<f64>>,
-    /// Robust activity level of each W_k (1.4826 × median |W_k|).
+    /// Robust activity level of W_2..W_5 (1.4826 × median |W_k|), read
+    /// through [`Self::noise`]; W_1's is never used, so not computed.
     noise: Vec<f64>,
     /// Input samples per analysis sample.
     ratio: f64,
@@ -69,6 +70,19 @@ pub(crate) fn resample_cubic(x: &[f64], fs_in: f64, fs_out: f64) -> Vec<f64> {
         .collect()
 }
 
+/// Element `n / 2` of the sorted |values| of an array of `n` values made of
+/// `inner` and `n - inner.len()` zeros (0 when `n` is 0): the zeros are the
+/// smallest keys, so they take the first ranks and the rest is a selection
+/// in `inner`. Equals `kth_abs` of the whole array (the test oracle).
+fn median_abs_zero_padded(inner: &[f64], n: usize) -> f64 {
+    let k = n / 2;
+    let zeros = n - inner.len();
+    if k < zeros {
+        return 0.0;
+    }
+    tendline_dsp::select::kth_abs(inner, k - zeros).unwrap_or(0.0)
+}
+
 fn median(v: &mut [f64]) -> f64 {
     if v.is_empty() {
         return 0.0;
@@ -98,13 +112,14 @@ impl LeadAnalysis {
             .into_iter()
             .map(|v| if v.is_finite() { v } else { 0.0 })
             .collect();
-        let w = swt_quadratic_spline(&xa, 5);
-        let noise = w
+        // A tiled median beat starts and ends with a second of its edge
+        // values: the transform skips those runs (its details are exactly
+        // zero there) and the noise levels count them as zeros.
+        let (w, keep) = swt_quadratic_spline_flat_ends(&xa, 5);
+        let noise = w[1..]
             .iter()
             // Median |W_k| by linear-time selection (same value as `median` of the |W_k|).
-            .map(|wk| {
-                1.4826 * tendline_dsp::select::kth_abs(wk, wk.len() / 2).unwrap_or(0.0) + 1e-9
-            })
+            .map(|wk| 1.4826 * median_abs_zero_padded(&wk[keep.clone()], wk.len()) + 1e-9)
             .collect();
         Self {
             x: xa,
@@ -145,8 +160,13 @@ impl LeadAnalysis {
         })
     }
 
+    /// Noise level of W_k, k in 2..=5.
+    fn noise(&self, k: usize) -> f64 {
+        self.noise[k - 2]
+    }
+
     fn confidence(&self, amp: f64, k: usize, cfg: &DelineateConfig) -> f64 {
-        let snr = amp / self.noise[k - 1];
+        let snr = amp / self.noise(k);
         snr / (snr + cfg.confidence_snr_half)
     }
 
@@ -615,7 +635,7 @@ impl LeadAnalysis {
         // the q trough (the sign change between the lobes), 10-40 ms late.
         let q_gap = self.ms_i(cfg.qrs_q_gap_ms);
         if q_gap > 0 {
-            let q_floor = (cfg.qrs_q_noise_k * self.noise[1]).max(cfg.qrs_q_min_frac * m_all);
+            let q_floor = (cfg.qrs_q_noise_k * self.noise(2)).max(cfg.qrs_q_min_frac * m_all);
             let sf = w2[first].signum();
             // Largest opposite-sign maximum between the last sign change
             // before `first` and the one before that (one lobe).
@@ -1044,6 +1064,44 @@ fn ext_max(w: &[f64], lo: isize, hi: isize) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // Noise level of a zero-padded array from its inner part against the
+    // selection over the whole array (oracle, `kth_abs` itself tested against
+    // a sort): zero runs shorter and longer than half, empty inner parts,
+    // signed zeros inside.
+    #[test]
+    fn median_abs_of_zero_padded_array_equals_whole_array_selection() {
+        let mut s = 0x2545_f491_4f6c_dd1du64;
+        let mut next = || {
+            s ^= s << 13;
+            s ^= s >> 7;
+            s ^= s << 17;
+            (s >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+        };
+        for inner_len in [0usize, 1, 2, 7, 100, 1001] {
+            for (z0, z1) in [
+                (0usize, 0usize),
+                (1, 0),
+                (0, 3),
+                (50, 50),
+                (600, 700),
+                (5000, 1),
+            ] {
+                let mut inner: Vec<f64> = (0..inner_len).map(|_| next()).collect();
+                if inner_len > 3 {
+                    inner[1] = -0.0;
+                    inner[2] = 0.0;
+                }
+                let mut whole = vec![0.0; z0];
+                whole.extend_from_slice(&inner);
+                whole.extend(std::iter::repeat_n(0.0, z1));
+                let n = whole.len();
+                let oracle = tendline_dsp::select::kth_abs(&whole, n / 2).unwrap_or(0.0);
+                let fast = median_abs_zero_padded(&inner, n);
+                assert_eq!(fast.to_bits(), oracle.to_bits(), "{inner_len} {z0} {z1}");
+            }
+        }
+    }
 
     /// A small P wave (Gaussian, 0.03 mV, SD 12 ms, peak at 1.0 s) followed
     /// 100 ms later by a 0.3 mV step (invented shapes, 250 Hz): the step's

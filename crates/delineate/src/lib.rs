@@ -118,6 +118,37 @@ pub fn delineate_lead(x: &[f64], fs: f64, qrs: &[usize], cfg: &DelineateConfig) 
 }
 
 /// [`delineate_lead`] on a lead already transformed.
+/// Marks of beat `i` of `qrs` on one lead, equal to
+/// `delineate_lead(x, fs, qrs, cfg)[i]` (default marks for `i` out of range).
+/// With at most three beats the second T pass never changes a beat (it needs
+/// three other beats with a T peak), and each beat depends only on the ones
+/// before it (the previous T end bounds the P search), so the beats after `i`
+/// are not delineated (a tiled median beat needs only the middle of three);
+/// longer lists take the whole delineation.
+pub fn delineate_lead_beat(
+    x: &[f64],
+    fs: f64,
+    qrs: &[usize],
+    i: usize,
+    cfg: &DelineateConfig,
+) -> BeatMarks {
+    if i >= qrs.len() {
+        return BeatMarks::default();
+    }
+    if qrs.len() > 3 || !(fs.is_finite() && fs > 0.0) || x.is_empty() {
+        return delineate_lead(x, fs, qrs, cfg).swap_remove(i);
+    }
+    let la = lead::LeadAnalysis::new(x, fs, cfg);
+    let mut prev_t_end = None;
+    for j in 0..i {
+        let prev = j.checked_sub(1).map(|p| qrs[p]);
+        let bm = la.beat(qrs[j], prev, Some(qrs[j + 1]), prev_t_end, None, cfg);
+        prev_t_end = bm.t_end_wavelet.map(|m| m.sample);
+    }
+    let prev = i.checked_sub(1).map(|p| qrs[p]);
+    la.beat(qrs[i], prev, qrs.get(i + 1).copied(), prev_t_end, None, cfg)
+}
+
 fn delineate_analysed(
     la: &lead::LeadAnalysis,
     fs: f64,
@@ -374,6 +405,33 @@ mod tests {
 
     /// Synthetic beats (invented data): Gaussian P (peak 160 ms before the R
     /// peak), QRS and T waves at 60 beats/min, 500 Hz; `p_mv` P amplitude.
+    // One beat of a short list against the whole delineation (oracle): every
+    // beat of lists of 1 to 3 beats (the path that stops after the beat) and
+    // of 5 beats (the whole delineation), on invented beats with P, QRS and T.
+    #[test]
+    fn one_beat_equals_that_beat_of_the_whole_delineation() {
+        let cfg = DelineateConfig::default();
+        let (x, qrs) = synthetic_lead(0.15, 5);
+        for fs in [500.0, 250.0] {
+            let x: Vec<f64> = if fs == 500.0 {
+                x.clone()
+            } else {
+                x.iter().step_by(2).copied().collect()
+            };
+            let qrs: Vec<usize> = qrs.iter().map(|&q| q * fs as usize / 500).collect();
+            for list in [&qrs[1..2], &qrs[1..3], &qrs[1..4], &qrs[..]] {
+                let whole = delineate_lead(&x, fs, list, &cfg);
+                for (i, w) in whole.iter().enumerate() {
+                    let one = delineate_lead_beat(&x, fs, list, i, &cfg);
+                    assert_eq!(&one, w, "fs {fs} beats {} beat {i}", list.len());
+                }
+                assert!(whole.iter().any(|b| b.t_end.is_some() && b.p_on.is_some()));
+                let past = delineate_lead_beat(&x, fs, list, list.len(), &cfg);
+                assert_eq!(past, BeatMarks::default());
+            }
+        }
+    }
+
     fn synthetic_lead(p_mv: f64, n_beats: usize) -> (Vec<f64>, Vec<usize>) {
         let fs = 500.0;
         let rr = 500;

@@ -48,12 +48,14 @@ pub fn kth_abs(x: &[f64], k: usize) -> Option<f64> {
 /// histogram of the 11 exponent bits (the top bits of the sign-less key)
 /// finds the exponent holding rank `k`, and a selection among the keys with
 /// that exponent (a fraction of them: the |values| of a signal spread over
-/// many binades) finishes. Exact for the reason [`kth_abs`] gives; arrays
-/// of at most 64 values are selected directly.
+/// many binades) finishes. Exact for the reason [`kth_abs`] gives. Arrays
+/// of at most 4096 values are selected directly among their keys: for the
+/// noise levels of tiled median beats (about 800 values) that took 28 M
+/// instructions against 36 M by the histogram (callgrind, two QTDB records).
 fn kth_abs_short(x: &[f64], k: usize) -> f64 {
     const SIGN: u64 = 1 << 63;
     const SHIFT: u32 = 52;
-    if x.len() <= 64 {
+    if x.len() <= 4096 {
         let mut keys: Vec<u64> = x.iter().map(|v| v.to_bits() & !SIGN).collect();
         return f64::from_bits(*keys.select_nth_unstable(k).1);
     }
@@ -202,7 +204,7 @@ mod tests {
             s
         };
         for n in [
-            1usize, 2, 3, 10, 64, 65, 101, 1000, 1226, 5001, 65_535, 70_001, 250_003,
+            1usize, 2, 3, 10, 64, 65, 101, 1000, 1226, 4096, 4097, 5001, 65_535, 70_001, 250_003,
         ] {
             // Mixed magnitudes, repeated values, signed zeros and a NaN and infinities.
             let mut x: Vec<f64> = (0..n)

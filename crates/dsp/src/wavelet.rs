@@ -64,6 +64,78 @@ fn mirror(i: isize, n: usize) -> usize {
 /// per-tap bounds tests in the interior, writes the cropped details straight
 /// into the outputs and skips the approximation nobody reads.
 pub fn swt_quadratic_spline(x: &[f64], n_scales: usize) -> Vec<Vec<f64>> {
+    swt_extended(x, n_scales, false, false)
+}
+
+/// [`swt_quadratic_spline`] of an input that may begin and end with long
+/// runs of one value (the padding of a tiled median beat), with the same
+/// result bit for bit, and the range outside which every detail is exactly
+/// zero.
+///
+/// Why the runs can be skipped: where every input within a filter's reach
+/// is the same finite value `c`, every approximation of a level is computed
+/// from equal inputs by the same operations, hence equal, and the detail
+/// `2a - 2a` is exactly `+0.0`. At scale `2^k` a detail reaches `2^k - 1`
+/// samples ahead and `2^k - 2` back, so details more than `2^K` (K =
+/// `n_scales`) samples inside a run are zero. The transform runs on the
+/// input cut `2^K` samples inside each run of at least `2^K + 4·2^K`
+/// samples (a run that long makes the full input's reflected extension
+/// constant too), with that side extended by repeating its edge value
+/// instead of reflecting: every kept detail then sees the same values as in
+/// the full transform. The zero details of the cut parts are filled in.
+/// ([`swt_quadratic_spline`] is the test oracle.)
+pub fn swt_quadratic_spline_flat_ends(
+    x: &[f64],
+    n_scales: usize,
+) -> (Vec<Vec<f64>>, std::ops::Range<usize>) {
+    let k = n_scales.min(12);
+    let n = x.len();
+    let whole = |x: &[f64]| (swt_quadratic_spline(x, n_scales), 0..x.len());
+    if n == 0 {
+        return whole(x);
+    }
+    let (pad, keep) = (4usize << k, 1usize << k);
+    // Bounded values only: a NaN or infinite run gives NaN details, and
+    // values near the largest f64 could overflow in `2a`.
+    let flat = |c: f64| c.abs() < 1e300;
+    let run = |it: &mut dyn Iterator<Item = &f64>, c: f64| {
+        it.take_while(|v| v.to_bits() == c.to_bits()).count()
+    };
+    let lead = run(&mut x.iter(), x[0]);
+    if lead == n {
+        return whole(x);
+    }
+    let trail = run(&mut x.iter().rev(), x[n - 1]);
+    let cut = |len: usize, c: f64| {
+        if len >= pad + keep && flat(c) {
+            len - keep
+        } else {
+            0
+        }
+    };
+    let (c0, c1) = (cut(lead, x[0]), cut(trail, x[n - 1]));
+    // The reflected side of a cut input must not wrap around (at least
+    // `pad` samples, as in the full input).
+    if (c0 == 0 && c1 == 0) || n - c0 - c1 < pad {
+        return whole(x);
+    }
+    let inner = swt_extended(&x[c0..n - c1], n_scales, c0 > 0, c1 > 0);
+    let w = inner
+        .into_iter()
+        .map(|v| {
+            let mut full = Vec::with_capacity(n);
+            full.resize(c0, 0.0);
+            full.extend_from_slice(&v);
+            full.resize(n, 0.0);
+            full
+        })
+        .collect();
+    (w, c0..n - c1)
+}
+
+/// The transform with each side extended by reflection, or by repeating the
+/// edge value (`clamp_start`, `clamp_end`).
+fn swt_extended(x: &[f64], n_scales: usize, clamp_start: bool, clamp_end: bool) -> Vec<Vec<f64>> {
     let n_scales = n_scales.min(12);
     let n = x.len();
     if n == 0 {
@@ -71,12 +143,20 @@ pub fn swt_quadratic_spline(x: &[f64], n_scales: usize) -> Vec<Vec<f64>> {
     }
     let pad = 4usize << n_scales;
     let len = n + 2 * pad;
-    // The reflected extension: `x` itself in the middle, the index
-    // arithmetic of `mirror` only for the pads.
+    // The extension: `x` itself in the middle, the index arithmetic of
+    // `mirror` only for the pads.
     let mut approx: Vec<f64> = Vec::with_capacity(len);
-    approx.extend((0..pad).map(|i| x[mirror(i as isize - pad as isize, n)]));
+    if clamp_start {
+        approx.resize(pad, x[0]);
+    } else {
+        approx.extend((0..pad).map(|i| x[mirror(i as isize - pad as isize, n)]));
+    }
     approx.extend_from_slice(x);
-    approx.extend((pad + n..len).map(|i| x[mirror(i as isize - pad as isize, n)]));
+    if clamp_end {
+        approx.resize(len, x[n - 1]);
+    } else {
+        approx.extend((pad + n..len).map(|i| x[mirror(i as isize - pad as isize, n)]));
+    }
     let mut next = vec![0.0; len];
     let mut out = Vec::with_capacity(n_scales);
     for k in 1..=n_scales {

@@ -186,3 +186,65 @@ fn fast_transform_equals_reference_bit_for_bit() {
         swt_quadratic_spline_reference(&z, 5)
     );
 }
+
+// The transform that skips long constant runs at the ends (a tiled median
+// beat's padding) against the full transform (oracle): equal bit for bit,
+// zero outside the range it reports, for runs just below, at and above the
+// length it needs, on either or both sides, constants of either sign and
+// zero, and 1 to 6 scales; non-finite runs are not cut.
+#[test]
+fn flat_ends_transform_equals_full_transform_bit_for_bit() {
+    use tendline_dsp::wavelet::swt_quadratic_spline_flat_ends;
+    let mut state = 0x9e37_79b9_7f4a_7c15u64;
+    let mut next = || {
+        state ^= state << 13;
+        state ^= state >> 7;
+        state ^= state << 17;
+        (state >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+    };
+    let mut cut_somewhere = false;
+    for scales in 1..=6usize {
+        let need = (4usize << scales) + (1 << scales);
+        for (lead, trail) in [
+            (0, 0),
+            (need - 1, need - 1),
+            (need, 0),
+            (0, need),
+            (need, need),
+            (need + 1, need + 7),
+            (3 * need, 2 * need + 3),
+            (3 * need, 10),
+        ] {
+            for mid in [1usize, 40, 300] {
+                for (c0, c1) in [(0.7, -1.3), (0.0, -0.0), (-2.5, 2.5)] {
+                    let mut x = vec![c0; lead];
+                    x.extend((0..mid).map(|_| next()));
+                    x.extend(std::iter::repeat_n(c1, trail));
+                    let full = swt_quadratic_spline(&x, scales);
+                    let (fast, keep) = swt_quadratic_spline_flat_ends(&x, scales);
+                    cut_somewhere |= keep.len() < x.len();
+                    assert_eq!(fast.len(), full.len());
+                    for (k, (f, s)) in fast.iter().zip(&full).enumerate() {
+                        assert_eq!(f.len(), s.len());
+                        for (i, (a, b)) in f.iter().zip(s).enumerate() {
+                            assert_eq!(
+                                a.to_bits(),
+                                b.to_bits(),
+                                "scales={scales} lead={lead} trail={trail} mid={mid} W{k} [{i}]"
+                            );
+                            if !keep.contains(&i) {
+                                assert_eq!(a.to_bits(), 0.0f64.to_bits());
+                            }
+                        }
+                    }
+                }
+            }
+        }
+    }
+    assert!(cut_somewhere, "the test never exercised a cut");
+    // A NaN run is not cut (its details are NaN, not zero).
+    let mut x = vec![f64::NAN; 400];
+    x.extend((0..50).map(|i| i as f64));
+    let (_, keep) = swt_quadratic_spline_flat_ends(&x, 5);
+    assert_eq!(keep, 0..x.len());
+}

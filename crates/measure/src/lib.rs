@@ -222,12 +222,19 @@ pub fn measure_record(
     cfg: &MeasureConfig,
     dcfg: &tendline_delineate::DelineateConfig,
 ) -> Result<RecordMeasures, MeasureError> {
-    measure_record_with(leads, lead_names, fs, detection, sex, cfg, |x, fs, qrs| {
-        tendline_delineate::delineate_lead(x, fs, qrs, dcfg)
-    })
+    measure_record_with(
+        leads,
+        lead_names,
+        fs,
+        detection,
+        sex,
+        cfg,
+        |x, fs, qrs, i| tendline_delineate::delineate_lead_beat(x, fs, qrs, i, dcfg),
+    )
 }
 
-/// [`measure_record`] with any single-lead delineator `delineate(x, fs, qrs) -> marks per qrs`.
+/// [`measure_record`] with any single-lead delineator `delineate(x, fs, qrs, i) -> marks of
+/// beat i` (only the marks of one beat of each tiled median beat are read).
 #[allow(clippy::too_many_arguments)]
 pub fn measure_record_with<D>(
     leads: &[&[f64]],
@@ -239,7 +246,7 @@ pub fn measure_record_with<D>(
     mut delineate: D,
 ) -> Result<RecordMeasures, MeasureError>
 where
-    D: FnMut(&[f64], f64, &[usize]) -> Vec<BeatMarks>,
+    D: FnMut(&[f64], f64, &[usize], usize) -> BeatMarks,
 {
     cfg.validate().map_err(MeasureError::Config)?;
     if !(fs.is_finite() && fs > 0.0) {
@@ -361,7 +368,7 @@ fn concat_centred<'a>(
 
 fn measure_window<D>(ctx: &Ctx, ws: usize, we: usize, delineate: &mut D) -> WindowMeasure
 where
-    D: FnMut(&[f64], f64, &[usize]) -> Vec<BeatMarks>,
+    D: FnMut(&[f64], f64, &[usize], usize) -> BeatMarks,
 {
     let cfg = ctx.cfg;
     let fs = ctx.fs;
@@ -633,7 +640,7 @@ where
 /// outside the median beat are dropped).
 fn delineate_median<D>(m: &[f64], fid: usize, rr: usize, fs: f64, delineate: &mut D) -> BeatMarks
 where
-    D: FnMut(&[f64], f64, &[usize]) -> Vec<BeatMarks>,
+    D: FnMut(&[f64], f64, &[usize], usize) -> BeatMarks,
 {
     let l = m.len();
     let after = l - 1 - fid;
@@ -653,14 +660,7 @@ where
         }
     }
     let filled = fill_gaps(&buf);
-    let out = delineate(&filled, fs, &[c - rr, c, c + rr]);
-    let Some(bm) = (if out.len() == 3 {
-        out.into_iter().nth(1)
-    } else {
-        None
-    }) else {
-        return BeatMarks::default();
-    };
+    let bm = delineate(&filled, fs, &[c - rr, c, c + rr], 1);
     let origin = c - fid;
     let shift = |mk: Option<Mark>| {
         mk.and_then(|mk| {
@@ -727,33 +727,42 @@ fn t_amplitude(m: &[f64], marks: &BeatMarks) -> Option<f64> {
 
 /// Fill `None` runs by a straight line between their neighbours, or by the nearest value at the ends.
 fn fill_gaps(buf: &[Option<f64>]) -> Vec<f64> {
-    let known: Vec<usize> = (0..buf.len()).filter(|&i| buf[i].is_some()).collect();
-    if known.is_empty() {
-        return vec![0.0; buf.len()];
-    }
-    // `j` = number of known samples before `i`, advanced as `i` grows
-    // (the same index a binary search finds, [`fill_gaps_reference`]).
-    let mut j = 0usize;
-    buf.iter()
-        .enumerate()
-        .map(|(i, v)| match v {
-            Some(v) => *v,
-            None => {
-                while j < known.len() && known[j] < i {
-                    j += 1;
+    // One pass over runs: known samples are copied, a `None` run between
+    // known samples `a` and `b` is filled with the same expression the
+    // binary-search form evaluates per sample ([`fill_gaps_reference`]).
+    let n = buf.len();
+    let Some(first) = buf.iter().position(Option::is_some) else {
+        return vec![0.0; n];
+    };
+    let mut out = Vec::with_capacity(n);
+    let v0 = buf[first].unwrap_or(0.0);
+    out.resize(first, v0);
+    let mut a = first;
+    let mut i = first;
+    while i < n {
+        if let Some(v) = buf[i] {
+            out.push(v);
+            a = i;
+            i += 1;
+            continue;
+        }
+        let b = buf[i..].iter().position(Option::is_some).map(|k| i + k);
+        let va = buf[a].unwrap_or(0.0);
+        match b {
+            Some(b) => {
+                let vb = buf[b].unwrap_or(0.0);
+                for t in i..b {
+                    out.push(va + (vb - va) * (t - a) as f64 / (b - a) as f64);
                 }
-                match (j.checked_sub(1).map(|p| known[p]), known.get(j)) {
-                    (Some(a), Some(&b)) => {
-                        let (va, vb) = (buf[a].unwrap_or(0.0), buf[b].unwrap_or(0.0));
-                        va + (vb - va) * (i - a) as f64 / (b - a) as f64
-                    }
-                    (Some(a), None) => buf[a].unwrap_or(0.0),
-                    (None, Some(&b)) => buf[b].unwrap_or(0.0),
-                    (None, None) => 0.0,
-                }
+                i = b;
             }
-        })
-        .collect()
+            None => {
+                out.resize(n, va);
+                i = n;
+            }
+        }
+    }
+    out
 }
 
 /// [`fill_gaps`] with a binary search per gap sample (test oracle).

@@ -32,6 +32,11 @@ fn expected_qt_ms(s: &Shape) -> f64 {
     (K * s.qrs_sigma + s.t_center + K * s.t_sigma) * 1000.0
 }
 
+/// [`threshold_delineator`]'s marks of beat `i` (the form `measure_record_with` takes).
+fn threshold_beat(x: &[f64], fs: f64, qrs: &[usize], i: usize) -> BeatMarks {
+    threshold_delineator(x, fs, qrs).swap_remove(i)
+}
+
 /// Stand-in delineator: QRS onset/end where the signal leaves/returns below 5 % of the
 /// QRS peak within ±60 ms; T end where it falls below 5 % of the T peak, searched up to
 /// 70 % of the following RR. Returns one entry per `qrs`.
@@ -156,7 +161,7 @@ fn run(r: &Rec, cfg: &MeasureConfig, sex: Option<Sex>) -> RecordMeasures {
         &r.det,
         sex,
         cfg,
-        threshold_delineator,
+        threshold_beat,
     )
     .unwrap()
 }
@@ -359,30 +364,14 @@ fn bad_input_is_a_typed_error() {
     let y = vec![0.0; 99];
     let det = Detection::default();
     let cfg = MeasureConfig::default();
-    let e = measure_record_with(
-        &[&x, &y],
-        &names(2),
-        FS,
-        &det,
-        None,
-        &cfg,
-        threshold_delineator,
-    )
-    .unwrap_err();
+    let e = measure_record_with(&[&x, &y], &names(2), FS, &det, None, &cfg, threshold_beat)
+        .unwrap_err();
     assert!(
         matches!(e, MeasureError::LeadLength { index: 1, .. }),
         "{e}"
     );
-    let e = measure_record_with(
-        &[&x],
-        &names(1),
-        0.0,
-        &det,
-        None,
-        &cfg,
-        threshold_delineator,
-    )
-    .unwrap_err();
+    let e =
+        measure_record_with(&[&x], &names(1), 0.0, &det, None, &cfg, threshold_beat).unwrap_err();
     assert!(e.to_string().contains("sampling rate"));
     let det = Detection {
         beats: vec![Beat {
@@ -391,8 +380,8 @@ fn bad_input_is_a_typed_error() {
         }],
         ..Detection::default()
     };
-    let e = measure_record_with(&[&x], &names(1), FS, &det, None, &cfg, threshold_delineator)
-        .unwrap_err();
+    let e =
+        measure_record_with(&[&x], &names(1), FS, &det, None, &cfg, threshold_beat).unwrap_err();
     assert!(matches!(
         e,
         MeasureError::BeatOutOfRange {
@@ -411,7 +400,7 @@ fn bad_input_is_a_typed_error() {
         &Detection::default(),
         None,
         &bad,
-        threshold_delineator,
+        threshold_beat,
     )
     .unwrap_err();
     assert!(e.to_string().contains("measure.window_s"), "{e}");
