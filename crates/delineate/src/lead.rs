@@ -116,6 +116,16 @@ impl LeadAnalysis {
         }
     }
 
+    /// W_2 at the analysis rate (multi-lead QRS envelope in `global`).
+    pub(crate) fn w2(&self) -> &[f64] {
+        &self.w[1]
+    }
+
+    /// Input samples per analysis sample.
+    pub(crate) fn ratio(&self) -> f64 {
+        self.ratio
+    }
+
     fn ms(&self, v: f64) -> f64 {
         v * self.fs_a / 1000.0
     }
