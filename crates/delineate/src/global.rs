@@ -213,7 +213,8 @@ fn inside_or(
 }
 
 /// QRS onset and end of beat `b` on the multi-lead envelope
-/// E(n) = sqrt(sum over leads of W_2(n)^2) (input samples): the first and
+/// E(n) = sqrt(sum over leads of W_k(n)^2), k = `global_env_qrs_scale`
+/// (input samples): the first and
 /// last analysis samples around the beat's QRS peak (median over leads)
 /// where E reaches `global_env_qrs_on_frac` / `global_env_qrs_end_frac` of
 /// its largest value between `qrs_pre_ms` before and `qrs_post_ms` after the
@@ -226,7 +227,11 @@ fn envelope_qrs(
     b: usize,
     cfg: &DelineateConfig,
 ) -> (Option<f64>, Option<f64>) {
-    let ws: Vec<&[f64]> = leads.iter().flatten().map(|l| l.w2()).collect();
+    let ws: Vec<&[f64]> = leads
+        .iter()
+        .flatten()
+        .map(|l| l.w_k(cfg.global_env_qrs_scale))
+        .collect();
     let Some(ratio) = leads.iter().flatten().map(|l| l.ratio()).next() else {
         return (None, None);
     };

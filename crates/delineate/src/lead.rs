@@ -116,9 +116,10 @@ impl LeadAnalysis {
         }
     }
 
-    /// W_2 at the analysis rate (multi-lead QRS envelope in `global`).
-    pub(crate) fn w2(&self) -> &[f64] {
-        &self.w[1]
+    /// W_k (k = 1..=5, clamped) at the analysis rate (multi-lead QRS
+    /// envelope in `global`).
+    pub(crate) fn w_k(&self, k: usize) -> &[f64] {
+        &self.w[k.clamp(1, self.w.len()) - 1]
     }
 
     /// Input samples per analysis sample.
