@@ -428,8 +428,12 @@ pub struct DelineateConfig {
     /// `qrs_pre_ms` before and `qrs_post_ms` after the beat's QRS peak
     /// (dimensionless). Used only with `global_pair_qrs_on = envelope`,
     /// which is off by default: on QTDB it raised the global QRS-onset SD at
-    /// every fraction tried (13.7 ms with `confident`; 0.05: 14.7, 0.2: 14.7,
-    /// 0.3: 15.1 ms).
+    /// every fraction tried (13.7 ms with `confident`; envelope at scale 2^2,
+    /// 0.05: 14.7, 0.2: 14.7, 0.3: 15.1 ms; at 2^3, 0.1: 14.8, 0.2: 14.9 ms).
+    /// Moving a global onset later than the envelope's onset by more than
+    /// 10 or 20 ms to it (scale 2^3, fractions 0.05 and 0.1) was tried and
+    /// dropped: QTDB SD 13.7 -> 13.7-14.1 ms (odd-positioned records better,
+    /// even worse), LUDB global SD 13.1 -> 13.9-15.1 ms.
     pub global_env_qrs_on_frac: f64,
     /// Same, for the QRS end: where the envelope last falls below this
     /// fraction of its largest value (dimensionless). Default 0.2, chosen
