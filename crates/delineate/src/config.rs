@@ -397,9 +397,13 @@ pub struct DelineateConfig {
     /// on a QRS onset. Default `confident` for all four: on QTDB neither
     /// `outer` nor `inner` helped on both halves of the records.
     pub global_pair_qrs_on: PairRule,
-    /// Same, for the QRS end. Default `envelope` (see
-    /// `global_env_qrs_end_frac`); `consistent` gave QTDB 6.5 +/- 21.6 ms and
-    /// `inner` 3.7 +/- 21.2 ms (`confident` 4.6 +/- 20.3 ms).
+    /// Same, for the QRS end. Default `confident`. Alone, `envelope` (see
+    /// `global_env_qrs_end_frac`) gave QTDB 4.4 +/- 19.3 ms, `consistent`
+    /// 6.5 +/- 21.6 ms and `inner` 3.7 +/- 21.2 ms (`confident`
+    /// 4.6 +/- 20.3 ms); with `global_env_qrs_end_slack_ms` and
+    /// `global_env_qrs_end_early_ms` at their defaults (scale 2^3)
+    /// `envelope` and `confident` are equal within 0.1 ms (QTDB
+    /// 4.1 +/- 17.8 ms both), so the simpler rule stays.
     pub global_pair_qrs_end: PairRule,
     /// Same, for P onset and end.
     pub global_pair_p: PairRule,
@@ -447,8 +451,8 @@ pub struct DelineateConfig {
     /// (`global_env_qrs_end_frac`) by more than this is left out of the
     /// latest pick while a lead within it remains (ms; 0 = off): the
     /// latest-of-leads rule otherwise takes one lead's late mark that the
-    /// leads' joint activity does not support. Default 45. With
-    /// `global_pair_qrs_end = envelope` and the fraction 0.2, 0 -> 30 -> 45
+    /// leads' joint activity does not support. Default 45. Chosen at scale
+    /// 2^2 with `global_pair_qrs_end = envelope` and the fraction 0.2, 0 -> 30 -> 45
     /// -> 55 ms: QTDB global QRS end 4.4 +/- 19.3 -> 0.2 +/- 19.0 ->
     /// 3.4 +/- 18.7 -> (with `global_env_qrs_end_early_ms` 10)
     /// 4.2 +/- 18.3 ms (45: odd half SD 16.1 -> 15.1, even 21.7 -> 21.5);
@@ -586,7 +590,7 @@ impl Default for DelineateConfig {
             global_min_confidence_p: 0.15,
             global_min_leads: 1,
             global_pair_qrs_on: PairRule::Confident,
-            global_pair_qrs_end: PairRule::Envelope,
+            global_pair_qrs_end: PairRule::Confident,
             global_pair_p: PairRule::Consistent,
             global_pair_t: PairRule::Consistent,
             global_context_beats: 8,

@@ -27,9 +27,8 @@
 //!   P end and T end the latest usable lead mark after rejecting at most one
 //!   outlying lead (with two leads that disagree, `global_pair_*` decides,
 //!   and for T ends an upright T is favoured, `global_t_upright_bonus_ms`;
-//!   for QRS ends the multi-lead wavelet envelope referees the pair, bounds
-//!   how late a lead may end and how early the global end may be,
-//!   `global_env_qrs_end_*`);
+//!   for QRS ends a multi-lead wavelet envelope bounds how late a lead's
+//!   end may be and how early the global end may be, `global_env_qrs_*`);
 //!   peaks and the T morphology come from the lead with the highest
 //!   confidence for that mark.
 //! * A biphasic T is reported as such, but its onset and end are searched

@@ -144,9 +144,8 @@ fn qtdb_global_marks_against_annotator_1() {
         ("qrs_on", 99.8, 1.5, 13.6),
         // QRS end with `qrs_xi_end_neg` 0.10 / `qrs_xi_end_pos` 0.16: mean
         // 3.5 -> 4.1 ms, SD 21.4 -> 20.6 ms; with the multi-lead envelope
-        // referee (`global_pair_qrs_end = envelope`, `global_env_qrs_end_*`)
-        // mean 3.16, SD 18.42 ms at scale 2^2, 3.60 and 18.16 ms at 2^3
-        // (`global_env_qrs_scale` 3).
+        // bounds (`global_env_qrs_end_*`, `global_env_qrs_scale` 3, pair rule
+        // `confident`): mean 3.54, SD 18.16 ms.
         ("qrs_end", 99.8, 3.9, 18.4),
         // T peak and T ends with `t_window_early_after_qrs_end_ms` 20: T peak
         // Se 99.72 %, mean 5.1, SD 36.8 ms; T end Se 99.66 %, mean 0.3, SD
