@@ -397,7 +397,13 @@ pub struct DelineateConfig {
     /// on a QRS onset. Default `confident` for all four: on QTDB neither
     /// `outer` nor `inner` helped on both halves of the records.
     pub global_pair_qrs_on: PairRule,
-    /// Same, for the QRS end.
+    /// Same, for the QRS end. Default `confident`. Alone, `envelope` (see
+    /// `global_env_qrs_end_frac`) gave QTDB 4.4 +/- 19.3 ms, `consistent`
+    /// 6.5 +/- 21.6 ms and `inner` 3.7 +/- 21.2 ms (`confident`
+    /// 4.6 +/- 20.3 ms); with `global_env_qrs_end_slack_ms` and
+    /// `global_env_qrs_end_early_ms` at their defaults (scale 2^3)
+    /// `envelope` and `confident` are equal within 0.1 ms (QTDB
+    /// 4.1 +/- 17.8 ms both), so the simpler rule stays.
     pub global_pair_qrs_end: PairRule,
     /// Same, for P onset and end.
     pub global_pair_p: PairRule,
@@ -418,6 +424,65 @@ pub struct DelineateConfig {
     /// even 36.8 -> 34.9 ms (20 ms: 31.5 and 36.2); LUDB unchanged (12 leads rarely leave a disagreeing pair).
     /// 0 turns the preference off.
     pub global_t_upright_bonus_ms: f64,
+    /// Multi-lead QRS referee (`PairRule::Envelope`,
+    /// `global_env_qrs_end_slack_ms`, `global_env_qrs_end_early_ms`): the QRS
+    /// onset is where the envelope of all leads' wavelet coefficients at
+    /// scale 2^k (`global_env_qrs_scale`), sqrt(sum over leads of W_k^2) (a
+    /// spatial-velocity measure), first reaches this fraction of its largest value within
+    /// `qrs_pre_ms` before and `qrs_post_ms` after the beat's QRS peak
+    /// (dimensionless). Used only with `global_pair_qrs_on = envelope`,
+    /// which is off by default: on QTDB it raised the global QRS-onset SD at
+    /// every fraction tried (13.7 ms with `confident`; envelope at scale 2^2,
+    /// 0.05: 14.7, 0.2: 14.7, 0.3: 15.1 ms; at 2^3, 0.1: 14.8, 0.2: 14.9 ms).
+    /// Moving a global onset later than the envelope's onset by more than
+    /// 10 or 20 ms to it (scale 2^3, fractions 0.05 and 0.1) was tried and
+    /// dropped: QTDB SD 13.7 -> 13.7-14.1 ms (odd-positioned records better,
+    /// even worse), LUDB global SD 13.1 -> 13.9-15.1 ms.
+    pub global_env_qrs_on_frac: f64,
+    /// Same, for the QRS end: where the envelope last falls below this
+    /// fraction of its largest value (dimensionless). Default 0.2, chosen
+    /// with `global_pair_qrs_end = envelope` alone on QTDB global QRS end
+    /// (annotator 1; 4.6 +/- 20.3 ms with `confident`): 0.05 6.9 +/- 21.3,
+    /// 0.1 5.3 +/- 19.9, 0.2 4.4 +/- 19.3 (odd-positioned records of RECORDS
+    /// SD 16.9 -> 16.1, even 23.0 -> 21.7), 0.3 4.2 +/- 19.7, 0.45
+    /// 4.1 +/- 19.9 ms.
+    pub global_env_qrs_end_frac: f64,
+    /// A lead's QRS end later than the multi-lead envelope's end
+    /// (`global_env_qrs_end_frac`) by more than this is left out of the
+    /// latest pick while a lead within it remains (ms; 0 = off): the
+    /// latest-of-leads rule otherwise takes one lead's late mark that the
+    /// leads' joint activity does not support. Default 45. Chosen at scale
+    /// 2^2 with `global_pair_qrs_end = envelope` and the fraction 0.2, 0 -> 30 -> 45
+    /// -> 55 ms: QTDB global QRS end 4.4 +/- 19.3 -> 0.2 +/- 19.0 ->
+    /// 3.4 +/- 18.7 -> (with `global_env_qrs_end_early_ms` 10)
+    /// 4.2 +/- 18.3 ms (45: odd half SD 16.1 -> 15.1, even 21.7 -> 21.5);
+    /// LUDB global 0.6 +/- 17.3 -> -11.5 +/- 13.6 -> -5.3 +/- 14.5 (MAE
+    /// 12.7 -> 10.9 ms, odd-numbered records SD 17.0 -> 12.9, even
+    /// 17.6 -> 15.8) -> -3.0 +/- 15.3 ms. Larger values trade LUDB's
+    /// early mean against its SD. LUDB per-lead marks are not changed.
+    pub global_env_qrs_end_slack_ms: f64,
+    /// A global QRS end earlier than the multi-lead envelope's end by more
+    /// than this is moved to the envelope's end (ms; 0 = off): every lead
+    /// stopped on an inner lobe while the leads together are still active.
+    /// Default 10. With the slack at 45 ms, off -> 40 -> 20 -> 10 ms: QTDB
+    /// global QRS end 3.4 +/- 18.7 -> 3.4 +/- 18.7 -> 3.5 +/- 18.3 ->
+    /// 3.6 +/- 18.0 ms (odd half SD 15.1 -> 14.9 -> 14.8 -> 14.5, even
+    /// 21.5 -> 21.5 -> 21.0 -> 20.7; the paced sel102 -40.5 -> -34.1 ms); LUDB
+    /// unchanged (it never applied).
+    pub global_env_qrs_end_early_ms: f64,
+    /// Wavelet scale 2^k of the multi-lead envelope (k, 1-5). Default 3: the
+    /// fraction, slack and early limit above were chosen at k = 2; with them
+    /// unchanged, k = 3 gave QTDB global QRS end 3.6 +/- 18.0 -> 4.1 +/- 17.8
+    /// ms (odd-positioned records SD 14.5 -> 14.2, even 20.7 -> 20.5) and
+    /// LUDB global -5.3 +/- 14.5 -> -3.0 +/- 14.5 ms (odd-numbered records SD
+    /// 12.9 -> 14.1, even 15.8 -> 14.8; MAE 10.9 both). At k = 3, early
+    /// limit 0 / 10 / 20 ms: QTDB SD 18.5 / 17.8 / 18.2 ms (both halves best
+    /// at 10); slack 35 / 45 / 55 ms: QTDB 2.7 +/- 17.6 / 4.1 +/- 17.8 /
+    /// 4.6 +/- 18.2 ms, LUDB -6.8 +/- 12.9 / -3.0 +/- 14.5 / -2.0 +/- 15.1 ms;
+    /// fraction 0.15 / 0.3: QTDB SD 18.1 / 18.0 ms. Weighting the leads
+    /// equally (each lead's W_2 over its own largest value in the window)
+    /// instead of by amplitude was worse at k = 2: QTDB 5.0 +/- 19.3 ms.
+    pub global_env_qrs_scale: usize,
 }
 
 /// How to combine two leads whose marks of a boundary disagree by more than
@@ -437,6 +502,10 @@ pub enum PairRule {
     /// QT and PR change little from beat to beat, so the lead that breaks
     /// the pattern is the one that picked the wrong wave.
     Consistent,
+    /// The mark nearer the multi-lead wavelet envelope's boundary
+    /// (`global_env_qrs_on_frac`, `global_env_qrs_end_frac`; QRS only,
+    /// elsewhere as `confident`).
+    Envelope,
 }
 
 impl Default for DelineateConfig {
@@ -526,6 +595,11 @@ impl Default for DelineateConfig {
             global_pair_t: PairRule::Consistent,
             global_context_beats: 8,
             global_t_upright_bonus_ms: 80.0,
+            global_env_qrs_on_frac: 0.2,
+            global_env_qrs_end_frac: 0.2,
+            global_env_qrs_end_slack_ms: 45.0,
+            global_env_qrs_end_early_ms: 10.0,
+            global_env_qrs_scale: 3,
         }
     }
 }
@@ -799,6 +873,34 @@ impl DelineateConfig {
                 "",
             )
             .range(
+                "global_env_qrs_on_frac",
+                self.global_env_qrs_on_frac,
+                0.0,
+                1.0,
+                "",
+            )
+            .range(
+                "global_env_qrs_end_frac",
+                self.global_env_qrs_end_frac,
+                0.0,
+                1.0,
+                "",
+            )
+            .range(
+                "global_env_qrs_end_slack_ms",
+                self.global_env_qrs_end_slack_ms,
+                0.0,
+                500.0,
+                "ms",
+            )
+            .range(
+                "global_env_qrs_end_early_ms",
+                self.global_env_qrs_end_early_ms,
+                0.0,
+                500.0,
+                "ms",
+            )
+            .range(
                 "global_t_upright_bonus_ms",
                 self.global_t_upright_bonus_ms,
                 0.0,
@@ -825,6 +927,13 @@ impl DelineateConfig {
                 1.0,
                 64.0,
                 "leads",
+            )
+            .range(
+                "global_env_qrs_scale",
+                self.global_env_qrs_scale as f64,
+                1.0,
+                5.0,
+                "",
             );
         c.finish()
     }

@@ -1,5 +1,6 @@
 //! Combination of per-lead marks into one set of global marks per beat.
 
+use crate::lead::LeadAnalysis;
 use crate::{BeatMarks, DelineateConfig, Mark, PairRule, TEndMethod, TMorphology};
 
 /// Which end of the spread a boundary takes.
@@ -69,7 +70,7 @@ fn extreme_pref(
             PairRule::Confident => m1.confidence > m0.confidence,
             PairRule::Outer => false,
             PairRule::Inner => true,
-            PairRule::Consistent => match expect() {
+            PairRule::Consistent | PairRule::Envelope => match expect() {
                 Some(e) => {
                     let credit = |p: bool, q: bool| if p && !q { bonus } else { 0.0 };
                     dist(&m0, e) - credit(p0, p1) > dist(&m1, e) - credit(p1, p0)
@@ -213,8 +214,87 @@ fn inside_or(
     pick.or(chosen)
 }
 
+/// QRS onset and end of beat `b` on the multi-lead envelope
+/// E(n) = sqrt(sum over leads of W_k(n)^2), k = `global_env_qrs_scale`
+/// (input samples): the first and
+/// last analysis samples around the beat's QRS peak (median over leads)
+/// where E reaches `global_env_qrs_on_frac` / `global_env_qrs_end_frac` of
+/// its largest value between `qrs_pre_ms` before and `qrs_post_ms` after the
+/// peak. Spatial-velocity style: one lead's slow terminal slope that the
+/// other leads do not share adds little to E, while a QRS lobe that only one
+/// lead shows still raises it.
+fn envelope_qrs(
+    leads: &[Option<&LeadAnalysis>],
+    per_lead: &[Vec<BeatMarks>],
+    b: usize,
+    cfg: &DelineateConfig,
+) -> (Option<f64>, Option<f64>) {
+    let ws: Vec<&[f64]> = leads
+        .iter()
+        .flatten()
+        .map(|l| l.w_k(cfg.global_env_qrs_scale))
+        .collect();
+    let Some(ratio) = leads.iter().flatten().map(|l| l.ratio()).next() else {
+        return (None, None);
+    };
+    let n = ws.iter().map(|w| w.len()).min().unwrap_or(0);
+    let mut peaks: Vec<usize> = per_lead
+        .iter()
+        .filter_map(|l| l.get(b).and_then(|m| m.qrs_peak))
+        .map(|m| m.sample)
+        .collect();
+    if peaks.is_empty() || n < 3 {
+        return (None, None);
+    }
+    let mid = peaks.len() / 2;
+    let pk = *peaks.select_nth_unstable(mid).1 as f64 / ratio;
+    let fs_a = cfg.analysis_fs_hz;
+    let lo = (pk - cfg.qrs_pre_ms * fs_a / 1000.0).round().max(0.0) as usize;
+    let hi = ((pk + cfg.qrs_post_ms * fs_a / 1000.0).round() as usize).min(n - 1);
+    let pk = (pk.round() as usize).min(n - 1);
+    if hi <= lo {
+        return (None, None);
+    }
+    let e: Vec<f64> = (lo..=hi)
+        .map(|i| ws.iter().map(|w| w[i] * w[i]).sum::<f64>().sqrt())
+        .collect();
+    let emax = e.iter().copied().fold(0.0, f64::max);
+    if emax <= 0.0 {
+        return (None, None);
+    }
+    let k = pk.clamp(lo, hi) - lo;
+    let on_thr = cfg.global_env_qrs_on_frac * emax;
+    let end_thr = cfg.global_env_qrs_end_frac * emax;
+    let on = e[..=k].iter().position(|&v| v >= on_thr);
+    let end = e[k..].iter().rposition(|&v| v >= end_thr).map(|j| j + k);
+    let to_in = |i: usize| (lo + i) as f64 * ratio;
+    (on.map(to_in), end.map(to_in))
+}
+
+/// `cands` without the marks beyond `limit` (after it for `Pick::Latest`,
+/// before it for `Pick::Earliest`) when a usable mark within it remains.
+fn within_slack(
+    cands: Vec<Mark>,
+    limit: Option<f64>,
+    pick: Pick,
+    cfg: &DelineateConfig,
+) -> Vec<Mark> {
+    let Some(limit) = limit else { return cands };
+    let ok = |m: &Mark| match pick {
+        Pick::Latest => m.sample as f64 <= limit,
+        Pick::Earliest => m.sample as f64 >= limit,
+    };
+    let usable = |m: &Mark| m.confidence as f64 >= cfg.global_min_confidence;
+    if cands.iter().any(|m| ok(m) && usable(m)) {
+        cands.into_iter().filter(ok).collect()
+    } else {
+        cands
+    }
+}
+
 pub(crate) fn combine(
     per_lead: &[Vec<BeatMarks>],
+    leads: &[Option<&LeadAnalysis>],
     n_beats: usize,
     fs: f64,
     cfg: &DelineateConfig,
@@ -226,6 +306,8 @@ pub(crate) fn combine(
         outlier
     };
     let upright_bonus = cfg.global_t_upright_bonus_ms * fs / 1000.0;
+    let slack = cfg.global_env_qrs_end_slack_ms * fs / 1000.0;
+    let early = cfg.global_env_qrs_end_early_ms * fs / 1000.0;
     // P boundaries have their own confidence floor.
     let cfg_p = DelineateConfig {
         global_min_confidence: cfg.global_min_confidence_p,
@@ -255,22 +337,49 @@ pub(crate) fn combine(
                 t_end_method: cfg.t_end_method,
                 ..Default::default()
             };
+            let use_env = slack > 0.0
+                || early > 0.0
+                || cfg.global_pair_qrs_on == PairRule::Envelope
+                || cfg.global_pair_qrs_end == PairRule::Envelope;
+            let (env_on, env_end) = if use_env {
+                envelope_qrs(leads, per_lead, b, cfg)
+            } else {
+                (None, None)
+            };
+            let exp_qrs = |get: &dyn Fn(&BeatMarks) -> Option<Mark>, rule, env: Option<f64>| {
+                if rule == PairRule::Envelope {
+                    env
+                } else {
+                    exp(get, rule)
+                }
+            };
+            let slack_end = (slack > 0.0)
+                .then_some(env_end.map(|e| e + slack))
+                .flatten();
             g.qrs_on = extreme(
                 &gather(&|m| m.qrs_on),
                 Pick::Earliest,
                 outlier_qrs,
                 cfg.global_pair_qrs_on,
-                &|| exp(&|m| m.qrs_on, cfg.global_pair_qrs_on),
+                &|| exp_qrs(&|m| m.qrs_on, cfg.global_pair_qrs_on, env_on),
                 cfg,
             );
             g.qrs_end = extreme(
-                &gather(&|m| m.qrs_end),
+                &within_slack(gather(&|m| m.qrs_end), slack_end, Pick::Latest, cfg),
                 Pick::Latest,
                 outlier_qrs,
                 cfg.global_pair_qrs_end,
-                &|| exp(&|m| m.qrs_end, cfg.global_pair_qrs_end),
+                &|| exp_qrs(&|m| m.qrs_end, cfg.global_pair_qrs_end, env_end),
                 cfg,
             );
+            if let (Some(q), Some(e)) = (g.qrs_end, env_end) {
+                if early > 0.0 && e - q.sample as f64 > early {
+                    g.qrs_end = Some(Mark {
+                        sample: e.round() as usize,
+                        confidence: q.confidence,
+                    });
+                }
+            }
             g.p_on = extreme(
                 &gather(&|m| m.p_on),
                 Pick::Earliest,
@@ -622,12 +731,12 @@ mod tests {
             ..Default::default()
         };
         let per_lead = vec![vec![lead(110, 115)], vec![lead(130, 140)]];
-        let g = combine(&per_lead, 1, 250.0, &cfg);
+        let g = combine(&per_lead, &[], 1, 250.0, &cfg);
         assert_eq!(g[0].qrs_end.unwrap().sample, 130);
         assert_eq!(g[0].t_on.unwrap().sample, 140);
         // No lead onset after the QRS end: no global T onset.
         let per_lead = vec![vec![lead(110, 115)], vec![lead(130, 120)]];
-        let g = combine(&per_lead, 1, 250.0, &cfg);
+        let g = combine(&per_lead, &[], 1, 250.0, &cfg);
         assert!(g[0].t_on.is_none());
     }
 
@@ -695,5 +804,135 @@ mod tests {
                 );
             }
         }
+    }
+
+    /// Two leads with a smooth QRS-like bump (Gaussian, sigma 10 ms) at
+    /// sample 500 of 1000 at 250 Hz; lead 1 has an extra later lobe at
+    /// `late` samples after the peak (0 = none).
+    fn bump_leads(late: usize) -> Vec<Vec<f64>> {
+        let g = |i: usize, c: usize, a: f64| {
+            let t = (i as f64 - c as f64) / 2.5;
+            a * (-0.5 * t * t).exp()
+        };
+        let l0: Vec<f64> = (0..1000).map(|i| g(i, 500, 1.0)).collect();
+        let l1: Vec<f64> = (0..1000)
+            .map(|i| {
+                g(i, 500, 0.8)
+                    + if late > 0 {
+                        g(i, 500 + late, -0.6)
+                    } else {
+                        0.0
+                    }
+            })
+            .collect();
+        vec![l0, l1]
+    }
+
+    fn qrs_beat(peak: usize, on: usize, end: usize) -> BeatMarks {
+        BeatMarks {
+            qrs_peak: Some(m(peak, 0.9)),
+            qrs_on: Some(m(on, 0.9)),
+            qrs_end: Some(m(end, 0.9)),
+            ..Default::default()
+        }
+    }
+
+    #[test]
+    fn envelope_boundaries_are_symmetric_about_a_symmetric_bump_and_follow_a_late_lobe() {
+        let cfg = DelineateConfig::default();
+        let sig = bump_leads(0);
+        let las: Vec<LeadAnalysis> = sig
+            .iter()
+            .map(|x| LeadAnalysis::new(x, 250.0, &cfg))
+            .collect();
+        let refs: Vec<Option<&LeadAnalysis>> = las.iter().map(Some).collect();
+        let per_lead = vec![vec![qrs_beat(500, 480, 520)], vec![qrs_beat(500, 480, 520)]];
+        let (on, end) = envelope_qrs(&refs, &per_lead, 0, &cfg);
+        let (on, end) = (on.unwrap(), end.unwrap());
+        // A Gaussian is symmetric, its derivative antisymmetric: |W_2| and
+        // the envelope are symmetric about the peak up to the filters'
+        // half-sample delay, so the two boundaries are too (within 2 samples).
+        assert!(on < 500.0 && end > 500.0, "on {on} end {end}");
+        assert!(
+            ((500.0 - on) - (end - 500.0)).abs() <= 2.0,
+            "on {on} end {end}"
+        );
+        // Inside the search window (80 ms before, 120 ms after the peak).
+        assert!(on >= 480.0 && end <= 530.0, "on {on} end {end}");
+        // A second lobe 40 ms later in one lead moves the end later.
+        let sig = bump_leads(10);
+        let las: Vec<LeadAnalysis> = sig
+            .iter()
+            .map(|x| LeadAnalysis::new(x, 250.0, &cfg))
+            .collect();
+        let refs: Vec<Option<&LeadAnalysis>> = las.iter().map(Some).collect();
+        let (_, end_late) = envelope_qrs(&refs, &per_lead, 0, &cfg);
+        assert!(end_late.unwrap() >= end + 8.0, "{end} -> {end_late:?}");
+        // No leads: no referee.
+        assert_eq!(envelope_qrs(&[], &per_lead, 0, &cfg), (None, None));
+    }
+
+    #[test]
+    fn lead_ends_beyond_the_envelope_slack_are_dropped_while_one_remains() {
+        let cfg = DelineateConfig::default();
+        let c = vec![m(100, 0.9), m(130, 0.9), m(108, 0.1)];
+        // Limit 110: 130 goes; 108 stays in the list (confidence is
+        // judged later) but does not alone keep the filter on.
+        let kept = within_slack(c.clone(), Some(110.0), Pick::Latest, &cfg);
+        assert_eq!(kept, vec![m(100, 0.9), m(108, 0.1)]);
+        let kept = within_slack(c.clone(), Some(105.0), Pick::Latest, &cfg);
+        assert_eq!(kept, vec![m(100, 0.9)]);
+        // No mark within the limit: nothing is dropped.
+        let kept = within_slack(c.clone(), Some(99.0), Pick::Latest, &cfg);
+        assert_eq!(kept, c);
+        // Earliest: marks before the limit go.
+        let kept = within_slack(c.clone(), Some(105.0), Pick::Earliest, &cfg);
+        assert_eq!(kept, vec![m(130, 0.9), m(108, 0.1)]);
+        // Only an unusable mark within the limit: nothing is dropped.
+        let c2 = vec![m(100, 0.9), m(108, 0.1)];
+        let kept = within_slack(c2.clone(), Some(105.0), Pick::Earliest, &cfg);
+        assert_eq!(kept, c2);
+        assert_eq!(within_slack(c.clone(), None, Pick::Latest, &cfg), c);
+    }
+
+    #[test]
+    fn global_qrs_end_is_refereed_by_the_multi_lead_envelope() {
+        let cfg = DelineateConfig::default();
+        let sig = bump_leads(0);
+        let las: Vec<LeadAnalysis> = sig
+            .iter()
+            .map(|x| LeadAnalysis::new(x, 250.0, &cfg))
+            .collect();
+        let refs: Vec<Option<&LeadAnalysis>> = las.iter().map(Some).collect();
+        let probe = vec![vec![qrs_beat(500, 480, 520)], vec![qrs_beat(500, 480, 520)]];
+        let env_end = envelope_qrs(&refs, &probe, 0, &cfg).1.unwrap();
+        let e = env_end.round() as usize;
+        let slack = (cfg.global_env_qrs_end_slack_ms * 250.0 / 1000.0) as usize;
+        let early = (cfg.global_env_qrs_end_early_ms * 250.0 / 1000.0) as usize;
+        let end_of = |a: usize, b: usize| {
+            let per_lead = vec![vec![qrs_beat(500, 480, a)], vec![qrs_beat(500, 480, b)]];
+            combine(&per_lead, &refs, 1, 250.0, &cfg)[0]
+                .qrs_end
+                .unwrap()
+                .sample
+        };
+        // Both within the slack and closer than `global_outlier_ms`: the
+        // latest, as without the referee.
+        assert_eq!(end_of(e, e + 3), e + 3);
+        // One lead beyond the slack: the other lead's end.
+        assert_eq!(end_of(e + 1, e + slack + 2), e + 1);
+        // Both beyond it: the latest is kept (no lead within the limit).
+        assert_eq!(end_of(e + slack + 2, e + slack + 4), e + slack + 4);
+        // Both ending well before the envelope: its end instead.
+        assert_eq!(end_of(e - early - 5, e - early - 3), e);
+        // Without leads to referee, the latest lead mark as before.
+        let per_lead = vec![vec![qrs_beat(500, 480, 510)], vec![qrs_beat(500, 480, 530)]];
+        assert_eq!(
+            combine(&per_lead, &[], 1, 250.0, &cfg)[0]
+                .qrs_end
+                .unwrap()
+                .sample,
+            530
+        );
     }
 }

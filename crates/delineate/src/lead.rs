@@ -131,6 +131,17 @@ impl LeadAnalysis {
         }
     }
 
+    /// W_k (k = 1..=5, clamped) at the analysis rate (multi-lead QRS
+    /// envelope in `global`).
+    pub(crate) fn w_k(&self, k: usize) -> &[f64] {
+        &self.w[k.clamp(1, self.w.len()) - 1]
+    }
+
+    /// Input samples per analysis sample.
+    pub(crate) fn ratio(&self) -> f64 {
+        self.ratio
+    }
+
     fn ms(&self, v: f64) -> f64 {
         v * self.fs_a / 1000.0
     }

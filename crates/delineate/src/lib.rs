@@ -26,7 +26,9 @@
 //! * Global marks: QRS onset, P onset and T onset are the earliest, QRS end,
 //!   P end and T end the latest usable lead mark after rejecting at most one
 //!   outlying lead (with two leads that disagree, `global_pair_*` decides,
-//!   and for T ends an upright T is favoured, `global_t_upright_bonus_ms`);
+//!   and for T ends an upright T is favoured, `global_t_upright_bonus_ms`;
+//!   for QRS ends a multi-lead wavelet envelope bounds how late a lead's
+//!   end may be and how early the global end may be, `global_env_qrs_*`);
 //!   peaks and the T morphology come from the lead with the highest
 //!   confidence for that mark.
 //! * A biphasic T is reported as such, but its onset and end are searched
@@ -271,7 +273,7 @@ pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig
     prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
     let refs: Vec<Option<&lead::LeadAnalysis>> = las.iter().map(Option::as_ref).collect();
     prhythm::fill_weak_p(&refs, &mut per_lead, cfg);
-    let global = global::combine(&per_lead, qrs.len(), fs, cfg);
+    let global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
     Delineation { per_lead, global }
 }
 
@@ -355,7 +357,7 @@ pub fn delineate_prepared(
     prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
     let refs: Vec<Option<&lead::LeadAnalysis>> = leads.iter().map(|l| l.la.as_ref()).collect();
     prhythm::fill_weak_p(&refs, &mut per_lead, cfg);
-    let global = global::combine(&per_lead, qrs.len(), fs, cfg);
+    let global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
     Delineation { per_lead, global }
 }
 
