@@ -526,88 +526,123 @@ struct LeadBlocks<'a> {
 /// weight zeroed where the lead is masked; the weights are also returned per
 /// sample, with their sum per lead (`Iterator::sum` order).
 ///
-/// The three interpolations of a lead share the block geometry, so one pass
-/// computes each sample's interpolation fraction once and uses it for every
-/// lead and value, without per-sample arrays of scales; every value is the
-/// same expression as [`Blocks::interpolate`] followed by [`combine_arrays`]
-/// (the test oracle), hence the same bits.
+/// Lead by lead over the runs of [`Blocks::runs`]: within a run a lead's
+/// two block values of each array are fixed and each sample's interpolation
+/// fraction is computed once, and every lead adds its terms to the
+/// per-sample sums in lead order, as a per-sample loop over the leads would,
+/// so every value is the same expression as [`Blocks::interpolate`]
+/// followed by [`combine_arrays`] (the test oracle), hence the same bits.
 fn combine(
     feats: &[LeadFeatures],
     per_lead: &[LeadBlocks],
     blocks: &Blocks,
 ) -> (Combined, Vec<Vec<f64>>, Vec<f64>) {
     let n = blocks.n;
-    let nl = feats.len();
-    let mut c = Combined {
-        mwi: Vec::with_capacity(n),
-        filt: Vec::with_capacity(n),
-        slope: Vec::with_capacity(n),
-    };
-    let mut w2: Vec<Vec<f64>> = (0..nl).map(|_| Vec::with_capacity(n)).collect();
-    let s0: f64 = std::iter::empty::<f64>().sum();
-    let mut wsum = vec![s0; nl];
-    for (a, e, run) in blocks.runs() {
-        match run {
-            Run::Const(b) => {
-                for t in a..e {
-                    combine_sample(t, |v| v[b], feats, per_lead, &mut c, &mut w2, &mut wsum);
+    let runs = blocks.runs();
+    let (mut den, mut m, mut f, mut s) = (vec![0.0; n], vec![0.0; n], vec![0.0; n], vec![0.0; n]);
+    let mut w2: Vec<Vec<f64>> = Vec::with_capacity(feats.len());
+    let mut wsum: Vec<f64> = Vec::with_capacity(feats.len());
+    for (fe, lb) in feats.iter().zip(per_lead) {
+        let mut wl = vec![0.0; n];
+        let mut sum: f64 = std::iter::empty::<f64>().sum();
+        for &(a, e, run) in &runs {
+            let sums = LeadRun {
+                mask: &lb.mask[a..e],
+                mwi: &fe.mwi[a..e],
+                bp: &fe.bp[a..e],
+                d2: &fe.d2[a..e],
+                w: &mut wl[a..e],
+                den: &mut den[a..e],
+                m: &mut m[a..e],
+                f: &mut f[a..e],
+                s: &mut s[a..e],
+            };
+            match run {
+                Run::Const(b) => {
+                    let (w, si, sf) = (lb.weight[b], lb.scale_i[b], lb.scale_f[b]);
+                    sums.add(&mut sum, |_| (w, si, sf));
                 }
-            }
-            Run::Lerp(b) => {
-                let (c0, c1) = (blocks.centre(b), blocks.centre(b + 1));
-                for t in a..e {
-                    let fr = ((t as f64 - c0) / (c1 - c0)).clamp(0.0, 1.0);
-                    let value = |v: &[f64]| v[b] * (1.0 - fr) + v[b + 1] * fr;
-                    combine_sample(t, value, feats, per_lead, &mut c, &mut w2, &mut wsum);
+                Run::Lerp(b) => {
+                    let (c0, c1) = (blocks.centre(b), blocks.centre(b + 1));
+                    let (w0, w1) = (lb.weight[b], lb.weight[b + 1]);
+                    let (i0, i1) = (lb.scale_i[b], lb.scale_i[b + 1]);
+                    let (f0, f1) = (lb.scale_f[b], lb.scale_f[b + 1]);
+                    sums.add(&mut sum, |k| {
+                        let t = a + k;
+                        let fr = ((t as f64 - c0) / (c1 - c0)).clamp(0.0, 1.0);
+                        (
+                            w0 * (1.0 - fr) + w1 * fr,
+                            i0 * (1.0 - fr) + i1 * fr,
+                            f0 * (1.0 - fr) + f1 * fr,
+                        )
+                    });
                 }
             }
         }
+        w2.push(wl);
+        wsum.push(sum);
     }
-    (c, w2, wsum)
+    for (((d, m), f), s) in den.iter().zip(&mut m).zip(&mut f).zip(&mut s) {
+        if *d > 0.0 {
+            *m /= d;
+            *f = (*f / d).sqrt();
+            *s = (*s / d).sqrt();
+        } else {
+            (*m, *f, *s) = (0.0, 0.0, 0.0);
+        }
+    }
+    (
+        Combined {
+            mwi: m,
+            filt: f,
+            slope: s,
+        },
+        w2,
+        wsum,
+    )
 }
 
-/// One sample of [`combine`]; `value` interpolates a per-block array at it.
-#[inline(always)]
-fn combine_sample(
-    t: usize,
-    value: impl Fn(&[f64]) -> f64,
-    feats: &[LeadFeatures],
-    per_lead: &[LeadBlocks],
-    c: &mut Combined,
-    w2: &mut [Vec<f64>],
-    wsum: &mut [f64],
-) {
-    let mut den = 0.0;
-    let (mut m, mut f, mut s) = (0.0, 0.0, 0.0);
-    for (l, (fe, lb)) in feats.iter().zip(per_lead).enumerate() {
-        let w = if lb.mask[t] == LeadState::Ok {
-            value(lb.weight)
-        } else {
-            0.0
-        };
-        w2[l].push(w);
-        wsum[l] += w;
-        if w <= 0.0 {
-            continue;
+/// One lead's samples of one run of [`combine`] (all slices of the run's length).
+struct LeadRun<'a> {
+    mask: &'a [LeadState],
+    mwi: &'a [f64],
+    bp: &'a [f64],
+    d2: &'a [f64],
+    w: &'a mut [f64],
+    den: &'a mut [f64],
+    m: &'a mut [f64],
+    f: &'a mut [f64],
+    s: &'a mut [f64],
+}
+
+impl LeadRun<'_> {
+    /// Adds the lead's terms; `at(k)` gives the interpolated weight and
+    /// scales (integrated, band-passed) at the run's `k`-th sample.
+    #[inline(always)]
+    fn add(self, wsum: &mut f64, at: impl Fn(usize) -> (f64, f64, f64)) {
+        let len = self.mask.len();
+        let (mwi, bp, d2) = (&self.mwi[..len], &self.bp[..len], &self.d2[..len]);
+        let (wo, den) = (&mut self.w[..len], &mut self.den[..len]);
+        let (m, f, s) = (&mut self.m[..len], &mut self.f[..len], &mut self.s[..len]);
+        for k in 0..len {
+            if self.mask[k] != LeadState::Ok {
+                // The weight stays 0 (the buffer starts zeroed) and is
+                // added, as the per-sample form does.
+                *wsum += 0.0;
+                continue;
+            }
+            let (w, si, sf) = at(k);
+            wo[k] = w;
+            *wsum += w;
+            if w <= 0.0 || si <= 0.0 || sf <= 0.0 {
+                continue;
+            }
+            den[k] += w;
+            m[k] += w * mwi[k] / si;
+            let b = bp[k] / sf;
+            f[k] += w * b * b;
+            s[k] += w * d2[k] / si;
         }
-        let (si, sf) = (value(lb.scale_i), value(lb.scale_f));
-        if si <= 0.0 || sf <= 0.0 {
-            continue;
-        }
-        den += w;
-        m += w * fe.mwi[t] / si;
-        let b = fe.bp[t] / sf;
-        f += w * b * b;
-        s += w * fe.d2[t] / si;
-    }
-    if den > 0.0 {
-        c.mwi.push(m / den);
-        c.filt.push((f / den).sqrt());
-        c.slope.push((s / den).sqrt());
-    } else {
-        c.mwi.push(0.0);
-        c.filt.push(0.0);
-        c.slope.push(0.0);
     }
 }
 
