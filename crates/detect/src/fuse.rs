@@ -157,16 +157,24 @@ pub(crate) fn lead_mask(
         start += hop;
     }
     // Clipping: identical samples at the lead's extreme value for a long run.
-    // Extremes of the finite samples in one pass (each fold sees the same
-    // values in the same order as two separate folds would).
-    let (mut hi, mut lo, mut gaps) = (f64::NEG_INFINITY, f64::INFINITY, false);
-    for &v in raw {
-        if v.is_finite() {
-            hi = hi.max(v);
-            lo = lo.min(v);
-        } else {
-            gaps = true;
+    // Without gaps `x` is `raw` sample for sample, so the extremes are those
+    // of the per-hop extremes already taken (equal to a fold over the
+    // samples up to a zero's sign, which neither `hi > lo` nor the equality
+    // tests below see). With gaps, the extremes of the finite samples in one
+    // pass (each fold sees the same values in the same order as two separate
+    // folds would).
+    let gaps = raw.iter().fold(false, |g, v| g | !v.is_finite());
+    let (mut hi, mut lo) = (f64::NEG_INFINITY, f64::INFINITY);
+    if gaps {
+        for &v in raw {
+            if v.is_finite() {
+                hi = hi.max(v);
+                lo = lo.min(v);
+            }
         }
+    } else {
+        lo = xr.lo.iter().fold(lo, |a, &b| a.min(b));
+        hi = xr.hi.iter().fold(hi, |a, &b| a.max(b));
     }
     let run_min = pt::ms_to_samples(cfg.saturation_run_ms, fs);
     if hi > lo {
