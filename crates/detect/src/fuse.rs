@@ -882,6 +882,44 @@ fn block_peakiness_reference(
         .collect()
 }
 
+/// Each block's value, or for a block without one that of the nearest block
+/// with one (the lower on a tie; 0 when none has one). A known block is its
+/// own nearest (the only one at distance 0), so only the gaps search.
+fn fill_nearest(v: &[Option<f64>]) -> Vec<f64> {
+    let known: Vec<(usize, f64)> = v
+        .iter()
+        .enumerate()
+        .filter_map(|(i, x)| x.map(|x| (i, x)))
+        .collect();
+    v.iter()
+        .enumerate()
+        .map(|(i, x)| match x {
+            Some(x) => *x,
+            None => nearest_known(&known, i),
+        })
+        .collect()
+}
+
+/// The value of the entry of `known` nearest to block `i` (first on ties).
+fn nearest_known(known: &[(usize, f64)], i: usize) -> f64 {
+    known
+        .iter()
+        .min_by_key(|(j, _)| (*j as i64 - i as i64).unsigned_abs())
+        .map(|(_, x)| *x)
+        .unwrap_or(0.0)
+}
+
+/// [`fill_nearest`] searching for every block (the form it replaced; test oracle).
+#[cfg(test)]
+fn fill_nearest_reference(v: &[Option<f64>]) -> Vec<f64> {
+    let known: Vec<(usize, f64)> = v
+        .iter()
+        .enumerate()
+        .filter_map(|(i, x)| x.map(|x| (i, x)))
+        .collect();
+    (0..v.len()).map(|i| nearest_known(&known, i)).collect()
+}
+
 pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Detection {
     let n = leads[0].len();
     let nl = leads.len();
@@ -924,24 +962,8 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
         .collect();
     // A block without a scale takes the nearest known one (the weight of such
     // a lead there is zero anyway through its mask).
-    let fill = |v: &Vec<Option<f64>>| -> Vec<f64> {
-        let known: Vec<(usize, f64)> = v
-            .iter()
-            .enumerate()
-            .filter_map(|(i, x)| x.map(|x| (i, x)))
-            .collect();
-        (0..v.len())
-            .map(|i| {
-                known
-                    .iter()
-                    .min_by_key(|(j, _)| (*j as i64 - i as i64).unsigned_abs())
-                    .map(|(_, x)| *x)
-                    .unwrap_or(0.0)
-            })
-            .collect()
-    };
-    let scale_i: Vec<Vec<f64>> = sc_i.iter().map(&fill).collect();
-    let scale_f: Vec<Vec<f64>> = sc_f.iter().map(&fill).collect();
+    let scale_i: Vec<Vec<f64>> = sc_i.iter().map(|v| fill_nearest(v)).collect();
+    let scale_f: Vec<Vec<f64>> = sc_f.iter().map(|v| fill_nearest(v)).collect();
 
     // Lead weights: relative peakiness, zero for a lead that looks like noise.
     // A lead is noise in a block when it has lost its peaks because its
@@ -1333,6 +1355,39 @@ mod block_tests {
         for (k, v) in all.iter().enumerate() {
             assert_eq!(kth_of_sorted_runs(&runs, k), *v, "k={k}");
         }
+    }
+
+    // Nearest-known filling with the shortcut for known blocks against the
+    // search for every block (oracle): gaps at both ends, inside, ties
+    // between two known blocks, nothing known, everything known.
+    #[test]
+    fn fill_nearest_equals_search() {
+        let cases: Vec<Vec<Option<f64>>> = vec![
+            vec![],
+            vec![None, None, None],
+            vec![Some(1.0), Some(2.0), Some(-0.0)],
+            vec![None, Some(1.5), None, None, Some(2.5), None, None, None],
+            vec![
+                Some(3.0),
+                None,
+                Some(4.0),
+                None,
+                None,
+                None,
+                Some(5.0),
+                None,
+            ],
+        ];
+        for v in &cases {
+            let bits = |w: Vec<f64>| w.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(
+                bits(fill_nearest(v)),
+                bits(fill_nearest_reference(v)),
+                "{v:?}"
+            );
+        }
+        // The tie goes to the lower block.
+        assert_eq!(fill_nearest(&[Some(1.0), None, Some(2.0)])[1], 1.0);
     }
 
     // The one-pass combination against interpolated arrays and the per-sample

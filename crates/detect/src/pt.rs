@@ -32,12 +32,12 @@ pub(crate) struct LeadFeatures {
 /// truncated at the ends and divided by the samples actually inside).
 pub(crate) fn moving_mean(x: &[f64], w: usize) -> Vec<f64> {
     let n = x.len();
-    let mut pre = Vec::with_capacity(n + 1);
+    // Prefix sums written in place (no per-sample capacity check of a push).
+    let mut pre = vec![0.0; n + 1];
     let mut acc = 0.0;
-    pre.push(acc);
-    for v in x {
+    for (p, v) in pre[1..].iter_mut().zip(x) {
         acc += v;
-        pre.push(acc);
+        *p = acc;
     }
     let half = w / 2;
     let at = |i: usize| {
