@@ -1027,30 +1027,38 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     fid.dedup();
 
     // Unreadable: every lead flat, saturated or noise.
+    // Block by block (the blocks cover `0..n` in order), so that a sample's
+    // block is known without a division.
     let mut reason_at = vec![None; n];
-    for (t, r) in reason_at.iter_mut().enumerate() {
-        let b = (t / blocks.len).min(blocks.count - 1);
-        let mut all_bad = true;
-        let (mut flat, mut sat) = (0, 0);
-        for m in &masks {
-            match m[t] {
-                LeadState::Flat => flat += 1,
-                LeadState::Saturated => sat += 1,
-                LeadState::Ok => {
-                    if !noise_block[b] {
-                        all_bad = false;
+    for (b, &noise) in noise_block.iter().enumerate() {
+        let (a, e) = blocks.range(b);
+        for (t, r) in reason_at[a..e]
+            .iter_mut()
+            .enumerate()
+            .map(|(k, r)| (a + k, r))
+        {
+            let mut all_bad = true;
+            let (mut flat, mut sat) = (0, 0);
+            for m in &masks {
+                match m[t] {
+                    LeadState::Flat => flat += 1,
+                    LeadState::Saturated => sat += 1,
+                    LeadState::Ok => {
+                        if !noise {
+                            all_bad = false;
+                        }
                     }
                 }
             }
-        }
-        if all_bad {
-            *r = Some(if sat > 0 && sat >= flat {
-                "saturation"
-            } else if flat > 0 {
-                "flat"
-            } else {
-                "noise"
-            });
+            if all_bad {
+                *r = Some(if sat > 0 && sat >= flat {
+                    "saturation"
+                } else if flat > 0 {
+                    "flat"
+                } else {
+                    "noise"
+                });
+            }
         }
     }
     let min_len = pt::ms_to_samples(cfg.unreadable_min_ms, fs);
