@@ -157,16 +157,24 @@ pub(crate) fn lead_mask(
         start += hop;
     }
     // Clipping: identical samples at the lead's extreme value for a long run.
-    // Extremes of the finite samples in one pass (each fold sees the same
-    // values in the same order as two separate folds would).
-    let (mut hi, mut lo, mut gaps) = (f64::NEG_INFINITY, f64::INFINITY, false);
-    for &v in raw {
-        if v.is_finite() {
-            hi = hi.max(v);
-            lo = lo.min(v);
-        } else {
-            gaps = true;
+    // Without gaps `x` is `raw` sample for sample, so the extremes are those
+    // of the per-hop extremes already taken (equal to a fold over the
+    // samples up to a zero's sign, which neither `hi > lo` nor the equality
+    // tests below see). With gaps, the extremes of the finite samples in one
+    // pass (each fold sees the same values in the same order as two separate
+    // folds would).
+    let gaps = raw.iter().fold(false, |g, v| g | !v.is_finite());
+    let (mut hi, mut lo) = (f64::NEG_INFINITY, f64::INFINITY);
+    if gaps {
+        for &v in raw {
+            if v.is_finite() {
+                hi = hi.max(v);
+                lo = lo.min(v);
+            }
         }
+    } else {
+        lo = xr.lo.iter().fold(lo, |a, &b| a.min(b));
+        hi = xr.hi.iter().fold(hi, |a, &b| a.max(b));
     }
     let run_min = pt::ms_to_samples(cfg.saturation_run_ms, fs);
     if hi > lo {
@@ -526,88 +534,123 @@ struct LeadBlocks<'a> {
 /// weight zeroed where the lead is masked; the weights are also returned per
 /// sample, with their sum per lead (`Iterator::sum` order).
 ///
-/// The three interpolations of a lead share the block geometry, so one pass
-/// computes each sample's interpolation fraction once and uses it for every
-/// lead and value, without per-sample arrays of scales; every value is the
-/// same expression as [`Blocks::interpolate`] followed by [`combine_arrays`]
-/// (the test oracle), hence the same bits.
+/// Lead by lead over the runs of [`Blocks::runs`]: within a run a lead's
+/// two block values of each array are fixed and each sample's interpolation
+/// fraction is computed once, and every lead adds its terms to the
+/// per-sample sums in lead order, as a per-sample loop over the leads would,
+/// so every value is the same expression as [`Blocks::interpolate`]
+/// followed by [`combine_arrays`] (the test oracle), hence the same bits.
 fn combine(
     feats: &[LeadFeatures],
     per_lead: &[LeadBlocks],
     blocks: &Blocks,
 ) -> (Combined, Vec<Vec<f64>>, Vec<f64>) {
     let n = blocks.n;
-    let nl = feats.len();
-    let mut c = Combined {
-        mwi: Vec::with_capacity(n),
-        filt: Vec::with_capacity(n),
-        slope: Vec::with_capacity(n),
-    };
-    let mut w2: Vec<Vec<f64>> = (0..nl).map(|_| Vec::with_capacity(n)).collect();
-    let s0: f64 = std::iter::empty::<f64>().sum();
-    let mut wsum = vec![s0; nl];
-    for (a, e, run) in blocks.runs() {
-        match run {
-            Run::Const(b) => {
-                for t in a..e {
-                    combine_sample(t, |v| v[b], feats, per_lead, &mut c, &mut w2, &mut wsum);
+    let runs = blocks.runs();
+    let (mut den, mut m, mut f, mut s) = (vec![0.0; n], vec![0.0; n], vec![0.0; n], vec![0.0; n]);
+    let mut w2: Vec<Vec<f64>> = Vec::with_capacity(feats.len());
+    let mut wsum: Vec<f64> = Vec::with_capacity(feats.len());
+    for (fe, lb) in feats.iter().zip(per_lead) {
+        let mut wl = vec![0.0; n];
+        let mut sum: f64 = std::iter::empty::<f64>().sum();
+        for &(a, e, run) in &runs {
+            let sums = LeadRun {
+                mask: &lb.mask[a..e],
+                mwi: &fe.mwi[a..e],
+                bp: &fe.bp[a..e],
+                d2: &fe.d2[a..e],
+                w: &mut wl[a..e],
+                den: &mut den[a..e],
+                m: &mut m[a..e],
+                f: &mut f[a..e],
+                s: &mut s[a..e],
+            };
+            match run {
+                Run::Const(b) => {
+                    let (w, si, sf) = (lb.weight[b], lb.scale_i[b], lb.scale_f[b]);
+                    sums.add(&mut sum, |_| (w, si, sf));
                 }
-            }
-            Run::Lerp(b) => {
-                let (c0, c1) = (blocks.centre(b), blocks.centre(b + 1));
-                for t in a..e {
-                    let fr = ((t as f64 - c0) / (c1 - c0)).clamp(0.0, 1.0);
-                    let value = |v: &[f64]| v[b] * (1.0 - fr) + v[b + 1] * fr;
-                    combine_sample(t, value, feats, per_lead, &mut c, &mut w2, &mut wsum);
+                Run::Lerp(b) => {
+                    let (c0, c1) = (blocks.centre(b), blocks.centre(b + 1));
+                    let (w0, w1) = (lb.weight[b], lb.weight[b + 1]);
+                    let (i0, i1) = (lb.scale_i[b], lb.scale_i[b + 1]);
+                    let (f0, f1) = (lb.scale_f[b], lb.scale_f[b + 1]);
+                    sums.add(&mut sum, |k| {
+                        let t = a + k;
+                        let fr = ((t as f64 - c0) / (c1 - c0)).clamp(0.0, 1.0);
+                        (
+                            w0 * (1.0 - fr) + w1 * fr,
+                            i0 * (1.0 - fr) + i1 * fr,
+                            f0 * (1.0 - fr) + f1 * fr,
+                        )
+                    });
                 }
             }
         }
+        w2.push(wl);
+        wsum.push(sum);
     }
-    (c, w2, wsum)
+    for (((d, m), f), s) in den.iter().zip(&mut m).zip(&mut f).zip(&mut s) {
+        if *d > 0.0 {
+            *m /= d;
+            *f = (*f / d).sqrt();
+            *s = (*s / d).sqrt();
+        } else {
+            (*m, *f, *s) = (0.0, 0.0, 0.0);
+        }
+    }
+    (
+        Combined {
+            mwi: m,
+            filt: f,
+            slope: s,
+        },
+        w2,
+        wsum,
+    )
 }
 
-/// One sample of [`combine`]; `value` interpolates a per-block array at it.
-#[inline(always)]
-fn combine_sample(
-    t: usize,
-    value: impl Fn(&[f64]) -> f64,
-    feats: &[LeadFeatures],
-    per_lead: &[LeadBlocks],
-    c: &mut Combined,
-    w2: &mut [Vec<f64>],
-    wsum: &mut [f64],
-) {
-    let mut den = 0.0;
-    let (mut m, mut f, mut s) = (0.0, 0.0, 0.0);
-    for (l, (fe, lb)) in feats.iter().zip(per_lead).enumerate() {
-        let w = if lb.mask[t] == LeadState::Ok {
-            value(lb.weight)
-        } else {
-            0.0
-        };
-        w2[l].push(w);
-        wsum[l] += w;
-        if w <= 0.0 {
-            continue;
+/// One lead's samples of one run of [`combine`] (all slices of the run's length).
+struct LeadRun<'a> {
+    mask: &'a [LeadState],
+    mwi: &'a [f64],
+    bp: &'a [f64],
+    d2: &'a [f64],
+    w: &'a mut [f64],
+    den: &'a mut [f64],
+    m: &'a mut [f64],
+    f: &'a mut [f64],
+    s: &'a mut [f64],
+}
+
+impl LeadRun<'_> {
+    /// Adds the lead's terms; `at(k)` gives the interpolated weight and
+    /// scales (integrated, band-passed) at the run's `k`-th sample.
+    #[inline(always)]
+    fn add(self, wsum: &mut f64, at: impl Fn(usize) -> (f64, f64, f64)) {
+        let len = self.mask.len();
+        let (mwi, bp, d2) = (&self.mwi[..len], &self.bp[..len], &self.d2[..len]);
+        let (wo, den) = (&mut self.w[..len], &mut self.den[..len]);
+        let (m, f, s) = (&mut self.m[..len], &mut self.f[..len], &mut self.s[..len]);
+        for k in 0..len {
+            if self.mask[k] != LeadState::Ok {
+                // The weight stays 0 (the buffer starts zeroed) and is
+                // added, as the per-sample form does.
+                *wsum += 0.0;
+                continue;
+            }
+            let (w, si, sf) = at(k);
+            wo[k] = w;
+            *wsum += w;
+            if w <= 0.0 || si <= 0.0 || sf <= 0.0 {
+                continue;
+            }
+            den[k] += w;
+            m[k] += w * mwi[k] / si;
+            let b = bp[k] / sf;
+            f[k] += w * b * b;
+            s[k] += w * d2[k] / si;
         }
-        let (si, sf) = (value(lb.scale_i), value(lb.scale_f));
-        if si <= 0.0 || sf <= 0.0 {
-            continue;
-        }
-        den += w;
-        m += w * fe.mwi[t] / si;
-        let b = fe.bp[t] / sf;
-        f += w * b * b;
-        s += w * fe.d2[t] / si;
-    }
-    if den > 0.0 {
-        c.mwi.push(m / den);
-        c.filt.push((f / den).sqrt());
-        c.slope.push((s / den).sqrt());
-    } else {
-        c.mwi.push(0.0);
-        c.filt.push(0.0);
-        c.slope.push(0.0);
     }
 }
 
@@ -839,6 +882,44 @@ fn block_peakiness_reference(
         .collect()
 }
 
+/// Each block's value, or for a block without one that of the nearest block
+/// with one (the lower on a tie; 0 when none has one). A known block is its
+/// own nearest (the only one at distance 0), so only the gaps search.
+fn fill_nearest(v: &[Option<f64>]) -> Vec<f64> {
+    let known: Vec<(usize, f64)> = v
+        .iter()
+        .enumerate()
+        .filter_map(|(i, x)| x.map(|x| (i, x)))
+        .collect();
+    v.iter()
+        .enumerate()
+        .map(|(i, x)| match x {
+            Some(x) => *x,
+            None => nearest_known(&known, i),
+        })
+        .collect()
+}
+
+/// The value of the entry of `known` nearest to block `i` (first on ties).
+fn nearest_known(known: &[(usize, f64)], i: usize) -> f64 {
+    known
+        .iter()
+        .min_by_key(|(j, _)| (*j as i64 - i as i64).unsigned_abs())
+        .map(|(_, x)| *x)
+        .unwrap_or(0.0)
+}
+
+/// [`fill_nearest`] searching for every block (the form it replaced; test oracle).
+#[cfg(test)]
+fn fill_nearest_reference(v: &[Option<f64>]) -> Vec<f64> {
+    let known: Vec<(usize, f64)> = v
+        .iter()
+        .enumerate()
+        .filter_map(|(i, x)| x.map(|x| (i, x)))
+        .collect();
+    (0..v.len()).map(|i| nearest_known(&known, i)).collect()
+}
+
 pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Detection {
     let n = leads[0].len();
     let nl = leads.len();
@@ -881,24 +962,8 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
         .collect();
     // A block without a scale takes the nearest known one (the weight of such
     // a lead there is zero anyway through its mask).
-    let fill = |v: &Vec<Option<f64>>| -> Vec<f64> {
-        let known: Vec<(usize, f64)> = v
-            .iter()
-            .enumerate()
-            .filter_map(|(i, x)| x.map(|x| (i, x)))
-            .collect();
-        (0..v.len())
-            .map(|i| {
-                known
-                    .iter()
-                    .min_by_key(|(j, _)| (*j as i64 - i as i64).unsigned_abs())
-                    .map(|(_, x)| *x)
-                    .unwrap_or(0.0)
-            })
-            .collect()
-    };
-    let scale_i: Vec<Vec<f64>> = sc_i.iter().map(&fill).collect();
-    let scale_f: Vec<Vec<f64>> = sc_f.iter().map(&fill).collect();
+    let scale_i: Vec<Vec<f64>> = sc_i.iter().map(|v| fill_nearest(v)).collect();
+    let scale_f: Vec<Vec<f64>> = sc_f.iter().map(|v| fill_nearest(v)).collect();
 
     // Lead weights: relative peakiness, zero for a lead that looks like noise.
     // A lead is noise in a block when it has lost its peaks because its
@@ -962,30 +1027,38 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     fid.dedup();
 
     // Unreadable: every lead flat, saturated or noise.
+    // Block by block (the blocks cover `0..n` in order), so that a sample's
+    // block is known without a division.
     let mut reason_at = vec![None; n];
-    for (t, r) in reason_at.iter_mut().enumerate() {
-        let b = (t / blocks.len).min(blocks.count - 1);
-        let mut all_bad = true;
-        let (mut flat, mut sat) = (0, 0);
-        for m in &masks {
-            match m[t] {
-                LeadState::Flat => flat += 1,
-                LeadState::Saturated => sat += 1,
-                LeadState::Ok => {
-                    if !noise_block[b] {
-                        all_bad = false;
+    for (b, &noise) in noise_block.iter().enumerate() {
+        let (a, e) = blocks.range(b);
+        for (t, r) in reason_at[a..e]
+            .iter_mut()
+            .enumerate()
+            .map(|(k, r)| (a + k, r))
+        {
+            let mut all_bad = true;
+            let (mut flat, mut sat) = (0, 0);
+            for m in &masks {
+                match m[t] {
+                    LeadState::Flat => flat += 1,
+                    LeadState::Saturated => sat += 1,
+                    LeadState::Ok => {
+                        if !noise {
+                            all_bad = false;
+                        }
                     }
                 }
             }
-        }
-        if all_bad {
-            *r = Some(if sat > 0 && sat >= flat {
-                "saturation"
-            } else if flat > 0 {
-                "flat"
-            } else {
-                "noise"
-            });
+            if all_bad {
+                *r = Some(if sat > 0 && sat >= flat {
+                    "saturation"
+                } else if flat > 0 {
+                    "flat"
+                } else {
+                    "noise"
+                });
+            }
         }
     }
     let min_len = pt::ms_to_samples(cfg.unreadable_min_ms, fs);
@@ -1290,6 +1363,39 @@ mod block_tests {
         for (k, v) in all.iter().enumerate() {
             assert_eq!(kth_of_sorted_runs(&runs, k), *v, "k={k}");
         }
+    }
+
+    // Nearest-known filling with the shortcut for known blocks against the
+    // search for every block (oracle): gaps at both ends, inside, ties
+    // between two known blocks, nothing known, everything known.
+    #[test]
+    fn fill_nearest_equals_search() {
+        let cases: Vec<Vec<Option<f64>>> = vec![
+            vec![],
+            vec![None, None, None],
+            vec![Some(1.0), Some(2.0), Some(-0.0)],
+            vec![None, Some(1.5), None, None, Some(2.5), None, None, None],
+            vec![
+                Some(3.0),
+                None,
+                Some(4.0),
+                None,
+                None,
+                None,
+                Some(5.0),
+                None,
+            ],
+        ];
+        for v in &cases {
+            let bits = |w: Vec<f64>| w.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(
+                bits(fill_nearest(v)),
+                bits(fill_nearest_reference(v)),
+                "{v:?}"
+            );
+        }
+        // The tie goes to the lower block.
+        assert_eq!(fill_nearest(&[Some(1.0), None, Some(2.0)])[1], 1.0);
     }
 
     // The one-pass combination against interpolated arrays and the per-sample

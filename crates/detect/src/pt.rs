@@ -32,12 +32,12 @@ pub(crate) struct LeadFeatures {
 /// truncated at the ends and divided by the samples actually inside).
 pub(crate) fn moving_mean(x: &[f64], w: usize) -> Vec<f64> {
     let n = x.len();
-    let mut pre = Vec::with_capacity(n + 1);
+    // Prefix sums written in place (no per-sample capacity check of a push).
+    let mut pre = vec![0.0; n + 1];
     let mut acc = 0.0;
-    pre.push(acc);
-    for v in x {
+    for (p, v) in pre[1..].iter_mut().zip(x) {
         acc += v;
-        pre.push(acc);
+        *p = acc;
     }
     let half = w / 2;
     let at = |i: usize| {
@@ -143,14 +143,15 @@ pub(crate) struct PtBeat {
 }
 
 #[derive(Debug, Clone, Copy)]
-struct Cand {
-    k: usize,
+pub(crate) struct Cand {
+    /// Sample of the integrated-signal peak.
+    pub k: usize,
     /// Integrated-signal peak.
-    pi: f64,
+    pub pi: f64,
     /// Filtered-signal peak in the QRS region.
-    pf: f64,
+    pub pf: f64,
     /// Largest slope in the QRS region.
-    sl: f64,
+    pub sl: f64,
 }
 
 /// Running state of the dual thresholds and RR averages.
@@ -228,23 +229,59 @@ impl State {
     }
 }
 
-/// Pan–Tompkins decisions on `mwi` (integrated), `filt` (magnitude of the
-/// band-passed signal) and `slope` (magnitude of its derivative).
-pub(crate) fn decide(
+/// Peaks of the integrated signal with the filtered and slope maxima within
+/// `h` samples; `mwi` has at least 3 samples. The first and last samples
+/// count as peaks when the signal rises towards them: a QRS cut by the
+/// record edge still has its beat (an extension of the paper, which
+/// describes a running detector). The edge rules are tested once, outside
+/// the loop over the inner samples (oracle: [`candidates_reference`]).
+pub(crate) fn candidates(mwi: &[f64], filt: &[f64], slope: &[f64], h: usize) -> Vec<Cand> {
+    let n = mwi.len();
+    let cand_at = |k: usize| -> Option<Cand> {
+        let a = k.saturating_sub(h);
+        let b = (k + h + 1).min(n);
+        let pf = filt[a..b].iter().cloned().fold(0.0, f64::max);
+        let sl = slope[a..b].iter().cloned().fold(0.0, f64::max);
+        if k == 0 || k + 1 == n {
+            // At an edge, only a complex whose filtered peak lies inside
+            // the record counts; a step at the very last or first sample does not.
+            let f = crate::fuse::argmax_in(filt, a, b);
+            if f == 0 || f + 1 == n {
+                return None;
+            }
+        }
+        Some(Cand {
+            k,
+            pi: mwi[k],
+            pf,
+            sl,
+        })
+    };
+    let mut cands = Vec::new();
+    if mwi[0] > mwi[1] {
+        cands.extend(cand_at(0));
+    }
+    for (i, w) in mwi.windows(3).enumerate() {
+        if w[1] > w[0] && w[1] >= w[2] {
+            cands.extend(cand_at(i + 1));
+        }
+    }
+    if mwi[n - 1] > mwi[n - 2] {
+        cands.extend(cand_at(n - 1));
+    }
+    cands
+}
+
+/// [`candidates`] testing every sample with the edge rules inline (the form
+/// it replaced; test oracle).
+#[cfg(test)]
+pub(crate) fn candidates_reference(
     mwi: &[f64],
     filt: &[f64],
     slope: &[f64],
-    fs: f64,
-    cfg: &DetectConfig,
-) -> Vec<PtBeat> {
+    h: usize,
+) -> Vec<Cand> {
     let n = mwi.len();
-    if n < 3 {
-        return Vec::new();
-    }
-    let h = ms_to_samples(cfg.mwi_window_ms, fs) / 2;
-    let refractory = ms_to_samples(cfg.refractory_ms, fs);
-    let t_window = ms_to_samples(cfg.t_wave_window_ms, fs);
-
     let mut cands = Vec::new();
     // The first and last samples count as peaks when the signal rises
     // towards them: a QRS cut by the record edge still has its beat (an
@@ -277,6 +314,28 @@ pub(crate) fn decide(
             });
         }
     }
+
+    cands
+}
+
+/// Pan–Tompkins decisions on `mwi` (integrated), `filt` (magnitude of the
+/// band-passed signal) and `slope` (magnitude of its derivative).
+pub(crate) fn decide(
+    mwi: &[f64],
+    filt: &[f64],
+    slope: &[f64],
+    fs: f64,
+    cfg: &DetectConfig,
+) -> Vec<PtBeat> {
+    let n = mwi.len();
+    if n < 3 {
+        return Vec::new();
+    }
+    let h = ms_to_samples(cfg.mwi_window_ms, fs) / 2;
+    let refractory = ms_to_samples(cfg.refractory_ms, fs);
+    let t_window = ms_to_samples(cfg.t_wave_window_ms, fs);
+
+    let cands = candidates(mwi, filt, slope, h);
 
     // Learning phase: initial signal and noise levels from the first seconds.
     let learn = ms_to_samples(cfg.learning_ms, fs).min(n);

@@ -547,3 +547,42 @@ fn moving_mean_equals_per_sample_form() {
         }
     }
 }
+
+// Candidate peaks with the edge rules outside the loop against the per-sample
+// test of every sample (oracle), bit for bit: peaks at both edges, plateaus,
+// a step at the last sample, short signals.
+#[test]
+fn candidates_equal_per_sample_test() {
+    let mut cases: Vec<Vec<f64>> = vec![
+        vec![3.0, 1.0, 2.0],
+        vec![1.0, 2.0, 3.0],
+        vec![2.0, 2.0, 2.0],
+    ];
+    let wave: Vec<f64> = (0..2000)
+        .map(|i| ((i as f64 * 0.05).sin() * 3.0 + ((i * 7919) % 13) as f64 * 0.1).max(0.0))
+        .collect();
+    cases.push(wave.clone());
+    let mut plateau = wave.clone();
+    plateau[500..520].iter_mut().for_each(|v| *v = 9.0);
+    plateau[1990..].iter_mut().for_each(|v| *v = 8.0);
+    cases.push(plateau);
+    let mut step = wave.clone();
+    step[1999] = 50.0;
+    step[0] = 40.0;
+    cases.push(step);
+    for (c, mwi) in cases.iter().enumerate() {
+        let filt: Vec<f64> = mwi.iter().rev().map(|v| v * 0.5 + 0.1).collect();
+        let slope: Vec<f64> = mwi.iter().map(|v| (v * 1.7).cos().abs()).collect();
+        for h in [0usize, 1, 7, 19] {
+            let fast = pt::candidates(mwi, &filt, &slope, h);
+            let slow = pt::candidates_reference(mwi, &filt, &slope, h);
+            let key = |v: &[pt::Cand]| {
+                v.iter()
+                    .map(|c| (c.k, c.pi.to_bits(), c.pf.to_bits(), c.sl.to_bits()))
+                    .collect::<Vec<_>>()
+            };
+            assert_eq!(key(&fast), key(&slow), "case {c} h={h}");
+            assert!(c < 3 || !fast.is_empty(), "case {c}: peaks found");
+        }
+    }
+}
