@@ -314,6 +314,34 @@ pub struct DelineateConfig {
     /// it lowered the P boundary SD by 3-6 ms at a cost of ~2 points of P
     /// sensitivity.
     pub p_lobe_reach_ms: f64,
+    /// Both opposite-sign neighbours of the largest |W_4| maximum in the P
+    /// window above this fraction of it make the P biphasic, and its onset
+    /// and end are then searched from the outer lobes (fraction; above 1:
+    /// never, the P is always read from its main lobe pair). Default 1.1
+    /// (off). Measured (P on / P end mean ± SD ms; QTDB global, q1c; LUDB
+    /// per-lead and global), with `p_outer_max_quiet_ms`:
+    /// Off: QTDB 0.7 ± 20.9 / -4.5 ± 21.4 (odd records by name SD
+    ///   17.21 / 16.13, even 24.09 / 25.39); LUDB per-lead -3.5 ± 19.55
+    ///   (MAE 10.96) / -5.4 ± 19.88, global -0.2 ± 19.69 / -8.5 ± 13.67.
+    /// 0.25, no check (-1): QTDB -1.4 ± 20.1 / -2.9 ± 20.2, odd P on SD
+    ///   17.21 -> 17.8 (worse); LUDB per-lead P on -7.1 ± 23.0 (the earlier
+    ///   lobe of another deflection pulls the onset one lobe early).
+    /// 0.25, quiet 4 / 8 / 12 / 20 / 40 ms: QTDB P on SD 20.15 / 19.77 /
+    ///   19.91 / 20.2 / 20.2, P end 21.17 / 21.08 / 21.21 / 21.1 / 20.0;
+    ///   LUDB per-lead P on SD 19.55 / 19.60 / 19.74 / 20.0 / 20.3.
+    ///   At 8: QTDB even records better (P on SD 24.09 -> 22.24, P end 25.39
+    ///   -> 24.92), odd level (17.21 -> 17.19, MAE 11.56 both); LUDB per-lead
+    ///   P on MAE 10.96 -> 11.03, global P end SD 13.67 -> 13.83, global P
+    ///   on Se 99.40 -> 99.25 %: LUDB slightly worse, so left off.
+    /// 0.40, quiet 12: QTDB 20.1 / 21.4; LUDB per-lead P on 19.6.
+    pub p_biphasic_frac: f64,
+    /// The outer lobe of a biphasic P is kept only when contiguous with the
+    /// main pair: its slope reaches `p_min_slope_mv_per_s`, W_4 changes sign
+    /// once between them, and |W_4| stays below that slope (baseline) for at
+    /// most this long (ms) in between. Negative: no such check. Only acts
+    /// with `p_biphasic_frac` <= 1. Default 8, the best of the sweep under
+    /// `p_biphasic_frac`.
+    pub p_outer_max_quiet_ms: f64,
     /// ξ for P onset (Martínez 2004: 0.5).
     pub p_xi_on: f64,
     /// ξ for P end (Martínez 2004: 0.9).
@@ -572,6 +600,8 @@ impl Default for DelineateConfig {
             p_min_rel_qrs: 0.02,
             p_gamma: 0.25,
             p_lobe_reach_ms: 120.0,
+            p_biphasic_frac: 1.1,
+            p_outer_max_quiet_ms: 8.0,
             p_xi_on: 0.5,
             p_xi_end: 0.9,
             p_boundary_search_ms: 100.0,
@@ -797,6 +827,14 @@ impl DelineateConfig {
             .range("p_min_rel_qrs", self.p_min_rel_qrs, 0.0, 1.0, "")
             .range("p_gamma", self.p_gamma, 0.0, 1.0, "")
             .range("p_lobe_reach_ms", self.p_lobe_reach_ms, 20.0, 2000.0, "ms")
+            .range("p_biphasic_frac", self.p_biphasic_frac, 0.0, 2.0, "")
+            .range(
+                "p_outer_max_quiet_ms",
+                self.p_outer_max_quiet_ms,
+                -1.0,
+                1000.0,
+                "ms",
+            )
             .range("p_xi_on", self.p_xi_on, 0.0, 1.0, "")
             .range("p_xi_end", self.p_xi_end, 0.0, 1.0, "")
             .range(

@@ -26,6 +26,22 @@ struct WaveRule {
     lone_peak: bool,
     /// The earlier neighbour wins if at least this fraction of the later.
     early_frac: f64,
+    /// When set, the outer lobe of a three-lobe wave is kept only if
+    /// [`OuterCheck`] confirms it.
+    outer_check: Option<OuterCheck>,
+}
+
+/// Confirmation of the outer (third) lobe of a biphasic wave: it must be
+/// contiguous with the main pair, not a separate deflection (another wave,
+/// baseline drift) that happens to lie within reach.
+#[derive(Debug, Clone, Copy)]
+struct OuterCheck {
+    /// Significance level as a slope (mV/s): the outer lobe must reach it,
+    /// and |W_k| below it counts as baseline.
+    min_slope_mv_per_s: f64,
+    /// Longest stretch (analysis samples) of baseline between the outer
+    /// lobe and the adjacent lobe of the pair.
+    max_quiet: usize,
 }
 
 /// One lead prepared for analysis.
@@ -300,6 +316,7 @@ impl LeadAnalysis {
             reach,
             lone_peak,
             early_frac,
+            outer_check,
         } = *rule;
         // Maxima further than `reach` samples from the largest one belong to
         // another wave.
@@ -340,7 +357,14 @@ impl LeadAnalysis {
                 } else {
                     (a, c)
                 };
-                if vb.min(vc) >= biphasic_frac * amp {
+                // The outer lobe is the one left out of the dominant pair;
+                // `a` (the largest) is always its neighbour.
+                let outer = if dominant.0 == b { c } else { b };
+                let confirmed = outer_check.is_none_or(|oc| {
+                    let thr = oc.min_slope_mv_per_s * (1u32 << k) as f64 / self.fs_a;
+                    Self::outer_lobe_contiguous(w, outer, a, thr, oc.max_quiet)
+                });
+                if vb.min(vc) >= biphasic_frac * amp && confirmed {
                     biphasic = Some(w[b] > 0.0);
                     if three_lobe_bounds {
                         (vec![b, a, c], dominant)
@@ -388,6 +412,33 @@ impl LeadAnalysis {
             amp,
             morph,
         })
+    }
+
+    /// Whether the lobe of `w` at `outer` joins the opposite-sign lobe at
+    /// `inner` as one wave: |w[outer]| reaches `thr`, `w` changes sign once
+    /// between them, and |w| stays below `thr` (back at the baseline) for at
+    /// most `max_quiet` consecutive samples in between.
+    fn outer_lobe_contiguous(
+        w: &[f64],
+        outer: usize,
+        inner: usize,
+        thr: f64,
+        max_quiet: usize,
+    ) -> bool {
+        if w[outer].abs() < thr {
+            return false;
+        }
+        let seg = &w[outer.min(inner)..=outer.max(inner)];
+        let crossings = seg
+            .windows(2)
+            .filter(|p| (p[0] > 0.0) != (p[1] > 0.0))
+            .count();
+        let (mut run, mut longest) = (0usize, 0usize);
+        for v in seg {
+            run = if v.abs() < thr { run + 1 } else { 0 };
+            longest = longest.max(run);
+        }
+        crossings == 1 && longest <= max_quiet
     }
 
     /// The wave of W_k in `[lo, hi]` whose peak (a zero crossing of W_k
@@ -738,6 +789,7 @@ impl LeadAnalysis {
                     reach,
                     lone_peak: cfg.t_peak_from_one_limb,
                     early_frac: cfg.t_early_pair_frac,
+                    outer_check: None,
                 };
                 if let Some(l) = self.find_wave(k, t_lo, t_hi, &rule) {
                     let slope = l.amp / (1u32 << k) as f64 * self.fs_a;
@@ -923,11 +975,15 @@ impl LeadAnalysis {
     fn p_rule(&self, cfg: &DelineateConfig) -> WaveRule {
         WaveRule {
             gamma: cfg.p_gamma,
-            biphasic_frac: 1.1,
+            biphasic_frac: cfg.p_biphasic_frac,
             three_lobe_bounds: true,
             reach: self.ms_i(cfg.p_lobe_reach_ms) as usize,
             lone_peak: false,
             early_frac: 1.0,
+            outer_check: (cfg.p_outer_max_quiet_ms >= 0.0).then(|| OuterCheck {
+                min_slope_mv_per_s: cfg.p_min_slope_mv_per_s,
+                max_quiet: self.ms_i(cfg.p_outer_max_quiet_ms) as usize,
+            }),
         }
     }
 
@@ -1189,5 +1245,92 @@ mod tests {
             trim_same_sign_run(&w3, &[2, 7, 10, 13, 16], 0.1, 1.0, 2),
             16
         );
+    }
+
+    /// Raised-cosine pulses (invented shapes, 250 Hz): `(start s, length s,
+    /// mV)`, each `a (1 - cos)/2` on its support and 0 outside, so a wave's
+    /// onset and end are known exactly.
+    fn pulses(spec: &[(f64, f64, f64)]) -> LeadAnalysis {
+        let fs = 250.0;
+        let x: Vec<f64> = (0..500)
+            .map(|i| {
+                let t = i as f64 / fs;
+                spec.iter()
+                    .filter(|&&(t0, d, _)| t >= t0 && t <= t0 + d)
+                    .map(|&(t0, d, a)| {
+                        a * 0.5 * (1.0 - (2.0 * std::f64::consts::PI * (t - t0) / d).cos())
+                    })
+                    .sum()
+            })
+            .collect();
+        LeadAnalysis::new(&x, fs, &DelineateConfig::default())
+    }
+
+    /// P end (analysis samples) from the last lobe of the P window's wave at
+    /// 2^4, as the P search reads it; and the number of lobes.
+    fn p_end_of(la: &LeadAnalysis, cfg: &DelineateConfig, lo: isize, hi: isize) -> (f64, usize) {
+        let l = la.find_wave(4, lo, hi, &la.p_rule(cfg)).expect("P wave");
+        let last = *l.idx.last().unwrap();
+        let psearch = la.ms_i(cfg.p_boundary_search_ms);
+        let end = LeadAnalysis::search_fwd(&la.w[3], last, cfg.p_xi_end, psearch, hi + psearch)
+            .expect("P end");
+        (end, l.idx.len())
+    }
+
+    #[test]
+    fn contiguous_outer_lobe_of_a_biphasic_p_sets_its_end() {
+        // Biphasic P: +0.10 mV on 0.96-1.02 s, then -0.08 mV on 1.02-1.08 s
+        // (one wave, no baseline between): true end 1.08 s = sample 270.
+        let la = pulses(&[(0.96, 0.06, 0.10), (1.02, 0.06, -0.08)]);
+        let (lo, hi) = (225, 300); // 0.90-1.20 s
+        let off = DelineateConfig::default();
+        let on = DelineateConfig {
+            p_biphasic_frac: 0.25,
+            p_outer_max_quiet_ms: 8.0,
+            ..off.clone()
+        };
+        // Off: the main pair only, the end falls inside the negative half.
+        let (end_off, n_off) = p_end_of(&la, &off, lo, hi);
+        assert_eq!(n_off, 2);
+        assert!(end_off < 270.0 - 5.0, "end without the rule {end_off}");
+        // On: the third lobe is confirmed and the end comes within 4
+        // samples (16 ms) of the true end.
+        let (end_on, n_on) = p_end_of(&la, &on, lo, hi);
+        assert_eq!(n_on, 3);
+        assert!((end_on - 270.0).abs() <= 4.0, "end with the rule {end_on}");
+    }
+
+    #[test]
+    fn outer_lobe_behind_a_baseline_stretch_is_not_taken() {
+        // Monophasic P +0.10 mV on 0.96-1.04 s, and 0.06 mV on 0.70-0.76 s
+        // (another wave, 200 ms of baseline between), within a reach widened
+        // to 400 ms so its falling slope is a candidate outer lobe.
+        let la = pulses(&[(0.70, 0.06, 0.06), (0.96, 0.08, 0.10)]);
+        let (lo, hi) = (165, 300); // 0.66-1.20 s
+        let base = DelineateConfig {
+            p_biphasic_frac: 0.25,
+            p_lobe_reach_ms: 400.0,
+            ..DelineateConfig::default()
+        };
+        let unchecked = DelineateConfig {
+            p_outer_max_quiet_ms: -1.0,
+            ..base.clone()
+        };
+        let checked = DelineateConfig {
+            p_outer_max_quiet_ms: 8.0,
+            ..base
+        };
+        let first = |cfg: &DelineateConfig| {
+            let l = la.find_wave(4, lo, hi, &la.p_rule(cfg)).expect("P wave");
+            (l.idx[0], l.idx.len())
+        };
+        // Unchecked, the earlier wave's lobe opens the P (before 0.80 s).
+        let (f, n) = first(&unchecked);
+        assert_eq!(n, 3);
+        assert!(f < 200, "first lobe {f}");
+        // Checked: the pair of the P itself (its rising slope after 0.90 s).
+        let (f, n) = first(&checked);
+        assert_eq!(n, 2);
+        assert!(f > 225, "first lobe {f}");
     }
 }
