@@ -308,6 +308,10 @@ pub(crate) fn combine(
     let upright_bonus = cfg.global_t_upright_bonus_ms * fs / 1000.0;
     let slack = cfg.global_env_qrs_end_slack_ms * fs / 1000.0;
     let early = cfg.global_env_qrs_end_early_ms * fs / 1000.0;
+    let use_env = slack > 0.0
+        || early > 0.0
+        || cfg.global_pair_qrs_on == PairRule::Envelope
+        || cfg.global_pair_qrs_end == PairRule::Envelope;
     // P boundaries have their own confidence floor.
     let cfg_p = DelineateConfig {
         global_min_confidence: cfg.global_min_confidence_p,
@@ -337,10 +341,6 @@ pub(crate) fn combine(
                 t_end_method: cfg.t_end_method,
                 ..Default::default()
             };
-            let use_env = slack > 0.0
-                || early > 0.0
-                || cfg.global_pair_qrs_on == PairRule::Envelope
-                || cfg.global_pair_qrs_end == PairRule::Envelope;
             let (env_on, env_end) = if use_env {
                 envelope_qrs(leads, per_lead, b, cfg)
             } else {

@@ -360,11 +360,14 @@ impl LeadAnalysis {
                 // The outer lobe is the one left out of the dominant pair;
                 // `a` (the largest) is always its neighbour.
                 let outer = if dominant.0 == b { c } else { b };
-                let confirmed = outer_check.is_none_or(|oc| {
-                    let thr = oc.min_slope_mv_per_s * (1u32 << k) as f64 / self.fs_a;
-                    Self::outer_lobe_contiguous(w, outer, a, thr, oc.max_quiet)
-                });
-                if vb.min(vc) >= biphasic_frac * amp && confirmed {
+                // (Checked only when the lobes are large enough to count.)
+                let confirmed = || {
+                    outer_check.is_none_or(|oc| {
+                        let thr = oc.min_slope_mv_per_s * (1u32 << k) as f64 / self.fs_a;
+                        Self::outer_lobe_contiguous(w, outer, a, thr, oc.max_quiet)
+                    })
+                };
+                if vb.min(vc) >= biphasic_frac * amp && confirmed() {
                     biphasic = Some(w[b] > 0.0);
                     if three_lobe_bounds {
                         (vec![b, a, c], dominant)

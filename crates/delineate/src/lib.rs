@@ -119,7 +119,6 @@ pub fn delineate_lead(x: &[f64], fs: f64, qrs: &[usize], cfg: &DelineateConfig) 
     delineate_analysed(&la, fs, qrs, cfg)
 }
 
-/// [`delineate_lead`] on a lead already transformed.
 /// Marks of beat `i` of `qrs` on one lead, equal to
 /// `delineate_lead(x, fs, qrs, cfg)[i]` (default marks for `i` out of range).
 /// With at most three beats the second T pass never changes a beat (it needs
@@ -141,30 +140,35 @@ pub fn delineate_lead_beat(
         return delineate_lead(x, fs, qrs, cfg).swap_remove(i);
     }
     let la = lead::LeadAnalysis::new(x, fs, cfg);
-    let mut prev_t_end = None;
-    for j in 0..i {
-        let prev = j.checked_sub(1).map(|p| qrs[p]);
-        let bm = la.beat(qrs[j], prev, Some(qrs[j + 1]), prev_t_end, None, cfg);
-        prev_t_end = bm.t_end_wavelet.map(|m| m.sample);
-    }
-    let prev = i.checked_sub(1).map(|p| qrs[p]);
-    la.beat(qrs[i], prev, qrs.get(i + 1).copied(), prev_t_end, None, cfg)
+    first_pass(&la, qrs, i + 1, cfg).pop().unwrap_or_default()
 }
 
+/// The first pass over beats `0..count` of `qrs`, in order.
+fn first_pass(
+    la: &lead::LeadAnalysis,
+    qrs: &[usize],
+    count: usize,
+    cfg: &DelineateConfig,
+) -> Vec<BeatMarks> {
+    let mut out: Vec<BeatMarks> = Vec::with_capacity(count);
+    for i in 0..count.min(qrs.len()) {
+        let prev = i.checked_sub(1).map(|p| qrs[p]);
+        let next = qrs.get(i + 1).copied();
+        // The previous beat's T end bounds this beat's P search.
+        let prev_t_end = out.last().and_then(|b| b.t_end_wavelet).map(|m| m.sample);
+        out.push(la.beat(qrs[i], prev, next, prev_t_end, None, cfg));
+    }
+    out
+}
+
+/// [`delineate_lead`] on a lead already transformed.
 fn delineate_analysed(
     la: &lead::LeadAnalysis,
     fs: f64,
     qrs: &[usize],
     cfg: &DelineateConfig,
 ) -> Vec<BeatMarks> {
-    let mut out: Vec<BeatMarks> = Vec::with_capacity(qrs.len());
-    for i in 0..qrs.len() {
-        let prev = if i > 0 { Some(qrs[i - 1]) } else { None };
-        let next = qrs.get(i + 1).copied();
-        // The previous beat's T end bounds this beat's P search.
-        let prev_t_end = out.last().and_then(|b| b.t_end_wavelet).map(|m| m.sample);
-        out.push(la.beat(qrs[i], prev, next, prev_t_end, None, cfg));
-    }
+    let mut out = first_pass(la, qrs, qrs.len(), cfg);
     if cfg.t_recheck_ms > 0.0 {
         recheck_t(la, &mut out, qrs, fs, cfg);
     }
@@ -405,8 +409,6 @@ mod tests {
         );
     }
 
-    /// Synthetic beats (invented data): Gaussian P (peak 160 ms before the R
-    /// peak), QRS and T waves at 60 beats/min, 500 Hz; `p_mv` P amplitude.
     // One beat of a short list against the whole delineation (oracle): every
     // beat of lists of 1 to 3 beats (the path that stops after the beat) and
     // of 5 beats (the whole delineation), on invented beats with P, QRS and T.
@@ -434,6 +436,8 @@ mod tests {
         }
     }
 
+    /// Synthetic beats (invented data): Gaussian P (peak 160 ms before the R
+    /// peak), QRS and T waves at 60 beats/min, 500 Hz; `p_mv` P amplitude.
     fn synthetic_lead(p_mv: f64, n_beats: usize) -> (Vec<f64>, Vec<usize>) {
         let fs = 500.0;
         let rr = 500;
