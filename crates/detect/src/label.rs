@@ -20,7 +20,7 @@
 
 use crate::pt::{self, moving_mean};
 use crate::{BeatLabel, DetectConfig};
-use tendline_dsp::select::{median_of_keys, total_key};
+use tendline_dsp::select::median_of_rows;
 
 /// Median (mean of the two middle values for even counts, 0 for none), by
 /// selection: the k-th value in `total_cmp` order is unique bit for bit, so
@@ -81,16 +81,10 @@ pub fn correlation(a: &[f64], b: &[f64]) -> f64 {
 }
 
 fn elementwise_median(vs: &[&Vec<f64>]) -> Vec<f64> {
-    let len = vs[0].len();
-    let mut col = Vec::with_capacity(vs.len());
-    (0..len)
-        .map(|j| {
-            col.clear();
-            col.extend(vs.iter().map(|v| total_key(v[j])));
-            // The same value as `median` of the column (0 when empty).
-            median_of_keys(&mut col).unwrap_or(0.0)
-        })
-        .collect()
+    // The same value as `median` of each column, all columns at once.
+    let mut out = Vec::new();
+    median_of_rows(vs, &mut out);
+    out
 }
 
 /// Labels for `beats` (sorted fiducial samples). `weights[i][l]` is lead `l`'s

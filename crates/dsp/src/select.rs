@@ -176,6 +176,139 @@ pub fn median_of_keys(keys: &mut [i64]) -> Option<f64> {
     })
 }
 
+/// Sample-wise median of equal-length rows (a median beat from its beats):
+/// `out[c]` is the median of `rows[r][c]` over `r`, by the rule of
+/// [`median_of_keys`] (mean of the two middle values for an even count), bit
+/// for bit; `NaN` columns when `rows` is empty. Rows must share one length.
+///
+/// Sorting each column on its own costs a small sort with unpredictable
+/// branches per sample. Here the rows are sorted all columns at once by a
+/// sorting network (Batcher's odd-even merge sort, pruned to the row count
+/// and to the comparators that reach the middle rows): each comparator is a
+/// branch-free minimum and maximum of two whole rows, which the compiler
+/// turns into vector instructions. Plain `<` orders the values exactly as
+/// `f64::total_cmp` when there is no NaN and no zero (the two values where
+/// the orders part: `-0.0` against `0.0`, and NaN); blocks holding either,
+/// and counts beyond [`NETWORK_MAX_ROWS`], take the per-column path of
+/// [`median_of_keys`] (the test oracle).
+pub fn median_of_rows<S: AsRef<[f64]>>(rows: &[S], out: &mut Vec<f64>) {
+    out.clear();
+    let Some(first) = rows.first() else {
+        return;
+    };
+    let len = first.as_ref().len();
+    let n = rows.len();
+    let plain = n <= NETWORK_MAX_ROWS
+        && rows
+            .iter()
+            .all(|r| r.as_ref().iter().all(|v| !v.is_nan() && *v != 0.0));
+    if !plain {
+        let mut col = Vec::with_capacity(n);
+        out.extend((0..len).map(|c| {
+            col.clear();
+            col.extend(rows.iter().map(|r| total_key(r.as_ref()[c])));
+            median_of_keys(&mut col).unwrap_or(f64::NAN)
+        }));
+        return;
+    }
+    let m = n / 2;
+    let net = median_network(n);
+    // Columns in blocks, so that the rows of a block stay in the first-level
+    // cache while every comparator passes over them.
+    const BLOCK: usize = 64;
+    let mut work = vec![0.0f64; n * BLOCK];
+    out.reserve(len);
+    let mut c0 = 0;
+    while c0 < len {
+        let w = BLOCK.min(len - c0);
+        for (r, row) in rows.iter().enumerate() {
+            work[r * BLOCK..r * BLOCK + w].copy_from_slice(&row.as_ref()[c0..c0 + w]);
+        }
+        for &(i, j) in net {
+            let (lo, hi) = work.split_at_mut(j as usize * BLOCK);
+            let a = &mut lo[i as usize * BLOCK..i as usize * BLOCK + w];
+            let b = &mut hi[..w];
+            for (x, y) in a.iter_mut().zip(b.iter_mut()) {
+                let (p, q) = (*x, *y);
+                // The forms of the processor's minimum and maximum
+                // instructions (exact here: no NaN, no zero).
+                *x = if p < q { p } else { q };
+                *y = if p > q { p } else { q };
+            }
+        }
+        let mid = &work[m * BLOCK..m * BLOCK + w];
+        if n % 2 == 1 {
+            out.extend_from_slice(mid);
+        } else {
+            let below = &work[(m - 1) * BLOCK..(m - 1) * BLOCK + w];
+            out.extend(below.iter().zip(mid).map(|(b, v)| 0.5 * (b + v)));
+        }
+        c0 += w;
+    }
+}
+
+/// Largest row count [`median_of_rows`] sorts by a network.
+pub const NETWORK_MAX_ROWS: usize = 64;
+
+/// Comparators `(i, j)`, `i < j`, of Batcher's odd-even merge sort for `n`
+/// values, in order, keeping only those that decide rows `n/2` and
+/// `n/2 − 1`. Built once per count.
+fn median_network(n: usize) -> &'static [(u16, u16)] {
+    use std::sync::OnceLock;
+    static NETS: OnceLock<Vec<Vec<(u16, u16)>>> = OnceLock::new();
+    let nets = NETS.get_or_init(|| (0..=NETWORK_MAX_ROWS).map(build_median_network).collect());
+    &nets[n]
+}
+
+fn build_median_network(n: usize) -> Vec<(u16, u16)> {
+    let size = n.next_power_of_two();
+    let mut all = Vec::new();
+    let mut p = 1;
+    while p < size {
+        let mut k = p;
+        while k >= 1 {
+            let mut j = k % p;
+            while j + k < size {
+                for i in 0..k.min(size - j - k) {
+                    if (i + j) / (2 * p) == (i + j + k) / (2 * p) {
+                        // Rows at n and beyond are +infinity padding: a
+                        // comparator reaching them never swaps.
+                        if i + j + k < n {
+                            all.push(((i + j) as u16, (i + j + k) as u16));
+                        }
+                    }
+                }
+                j += 2 * k;
+            }
+            k /= 2;
+        }
+        p *= 2;
+    }
+    // Backwards from the outputs: a comparator matters only if it writes a
+    // row that a later kept comparator or the result reads.
+    let mut needed = vec![false; n];
+    if n > 0 {
+        needed[n / 2] = true;
+        if n.is_multiple_of(2) {
+            needed[n / 2 - 1] = true;
+        }
+    }
+    let mut kept: Vec<(u16, u16)> = all
+        .into_iter()
+        .rev()
+        .filter(|&(i, j)| {
+            let keep = needed[i as usize] || needed[j as usize];
+            if keep {
+                needed[i as usize] = true;
+                needed[j as usize] = true;
+            }
+            keep
+        })
+        .collect();
+    kept.reverse();
+    kept
+}
+
 /// Median of `v` by a full `total_cmp` sort: the obvious definition.
 pub fn median_sorted(v: &mut [f64]) -> Option<f64> {
     if v.is_empty() {
@@ -234,6 +367,86 @@ mod tests {
         }
         assert_eq!(kth_abs(&[], 0), None);
         assert_eq!(kth_abs(&[-3.0, 1.0, 2.0], 2), Some(3.0));
+    }
+
+    // Column medians by the network against median_of_keys per column
+    // (oracle), bit for bit: every row count from 1 to 70 (past the network
+    // limit), lengths around the block size, repeated values, and blocks
+    // with signed zeros or NaN (the per-column path).
+    #[test]
+    fn median_of_rows_equals_per_column_keys() {
+        let mut s = 0x2545_f491_4f6c_dd1du64;
+        let mut next = || {
+            s ^= s << 13;
+            s ^= s >> 7;
+            s ^= s << 17;
+            s
+        };
+        for n in 1..=70usize {
+            for len in [1usize, 63, 64, 65, 200] {
+                for special in 0..3 {
+                    let mut rows: Vec<Vec<f64>> = (0..n)
+                        .map(|_| {
+                            (0..len)
+                                .map(|_| {
+                                    let r = next();
+                                    if r % 5 == 0 {
+                                        0.125 // ties
+                                    } else {
+                                        ((r >> 11) as f64 / (1u64 << 53) as f64 - 0.5) * 3.0
+                                    }
+                                })
+                                .collect()
+                        })
+                        .collect();
+                    match special {
+                        1 => rows[n / 2][len / 2] = -0.0,
+                        2 => rows[0][0] = f64::NAN,
+                        _ => {}
+                    }
+                    let mut fast = Vec::new();
+                    median_of_rows(&rows, &mut fast);
+                    assert_eq!(fast.len(), len);
+                    for c in 0..len {
+                        let mut col: Vec<i64> = rows.iter().map(|r| total_key(r[c])).collect();
+                        let slow = median_of_keys(&mut col).unwrap();
+                        assert_eq!(
+                            fast[c].to_bits(),
+                            slow.to_bits(),
+                            "n={n} len={len} c={c} special={special}"
+                        );
+                    }
+                }
+            }
+        }
+        let mut out = vec![1.0];
+        median_of_rows::<Vec<f64>>(&[], &mut out);
+        assert!(out.is_empty());
+    }
+
+    // The pruned network sorts the middle: on every 0/1 input of up to 16
+    // values (the 0-1 principle of sorting networks, Knuth TAOCP vol. 3,
+    // 5.3.4), rows n/2 and n/2 - 1 come out as in the sorted input.
+    #[test]
+    fn median_network_zero_one_principle() {
+        for n in 1..=16usize {
+            let net = build_median_network(n);
+            for bits in 0u32..(1 << n) {
+                let mut v: Vec<u8> = (0..n).map(|b| ((bits >> b) & 1) as u8).collect();
+                let mut sorted = v.clone();
+                sorted.sort();
+                for &(i, j) in &net {
+                    let (i, j) = (i as usize, j as usize);
+                    if v[j] < v[i] {
+                        v.swap(i, j);
+                    }
+                }
+                assert_eq!(v[n / 2], sorted[n / 2], "n={n} bits={bits:b}");
+                if n % 2 == 0 {
+                    assert_eq!(v[n / 2 - 1], sorted[n / 2 - 1], "n={n} bits={bits:b}");
+                }
+            }
+        }
     }
 
     // The bracketed path alone against sorting: it either declines (None)

@@ -8,7 +8,7 @@
 //! a signal read its nearest edge sample.
 
 use serde::{Deserialize, Serialize};
-use tendline_dsp::select::{median_of_keys, total_key};
+use tendline_dsp::select::median_of_rows;
 
 /// How a beat is resampled at a fractional position.
 #[derive(Deserialize, Serialize, Clone, Copy, Debug, PartialEq, Eq, Default)]
@@ -198,17 +198,11 @@ fn extract_into_reference(
 
 /// Sample-wise median of equal-length segments (mean of the two middle values for even counts).
 pub fn median_beat<S: AsRef<[f64]>>(segments: &[S]) -> Vec<f64> {
-    let Some(first) = segments.first() else {
-        return Vec::new();
-    };
-    let mut col = Vec::with_capacity(segments.len());
-    (0..first.as_ref().len())
-        .map(|k| {
-            col.clear();
-            col.extend(segments.iter().map(|s| total_key(s.as_ref()[k])));
-            median_of_keys(&mut col).unwrap_or(f64::NAN)
-        })
-        .collect()
+    // All columns at once by a sorting network (same bits as a per-column
+    // median, see `median_of_rows`).
+    let mut out = Vec::new();
+    median_of_rows(segments, &mut out);
+    out
 }
 
 /// Median of a slice (reorders it); NaN for an empty slice.
