@@ -157,7 +157,8 @@ fn swt_extended(x: &[f64], n_scales: usize, clamp_start: bool, clamp_end: bool) 
     } else {
         approx.extend((pad + n..len).map(|i| x[mirror(i as isize - pad as isize, n)]));
     }
-    let mut next = vec![0.0; len];
+    // Every sample of `next` is written each scale: no zero fill needed.
+    let mut next: Vec<f64> = Vec::with_capacity(len);
     let mut out = Vec::with_capacity(n_scales);
     for k in 1..=n_scales {
         let s = 1usize << (k - 1);
@@ -200,24 +201,30 @@ fn swt_extended(x: &[f64], n_scales: usize, clamp_start: bool, clamp_end: bool) 
             }
             v
         };
-        for i in (0..lo).chain(hi..len) {
-            next[i] = edge(i, &approx);
-        }
+        next.clear();
+        next.extend((0..lo).map(|i| edge(i, &approx)));
         let (p2, p1, p0, m1) = (
             &approx[lo + 2 * s..hi + 2 * s],
             &approx[lo + s..hi + s],
             &approx[lo..hi],
             &approx[lo - s..hi - s],
         );
-        for ((((o, &a2), &a1), &a0), &am) in next[lo..hi].iter_mut().zip(p2).zip(p1).zip(p0).zip(m1)
-        {
-            let mut v = 0.0;
-            v += H[0] * a2;
-            v += H[1] * a1;
-            v += H[2] * a0;
-            v += H[3] * am;
-            *o = v;
-        }
+        next.extend(
+            p2.iter()
+                .zip(p1)
+                .zip(p0)
+                .zip(m1)
+                .map(|(((&a2, &a1), &a0), &am)| {
+                    let mut v = 0.0;
+                    v += H[0] * a2;
+                    v += H[1] * a1;
+                    v += H[2] * a0;
+                    v += H[3] * am;
+                    v
+                }),
+        );
+        next.extend((hi..len).map(|i| edge(i, &approx)));
+        debug_assert_eq!(next.len(), len);
         std::mem::swap(&mut approx, &mut next);
     }
     out
