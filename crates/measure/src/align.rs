@@ -85,6 +85,54 @@ pub fn extract_into(
     interp: Interpolation,
     out: &mut Vec<f64>,
 ) {
+    extract_with(
+        x,
+        center,
+        before,
+        after,
+        interp,
+        out,
+        &mut LanczosCache::default(),
+    );
+}
+
+/// The Lanczos weights of the last fractional offset [`extract_with`] saw.
+///
+/// The weights depend only on the fractional part of a segment's start, and
+/// the leads of one beat, its template and correlation segments and its
+/// final segment mostly share it bit for bit: reusing them saves sixteen
+/// sines per repeat, and equal input bits give equal weights.
+#[derive(Debug, Clone, Default)]
+pub struct LanczosCache {
+    fr_bits: Option<u64>,
+    weights: [f64; 2 * LANCZOS_A as usize],
+    wsum: f64,
+}
+
+impl LanczosCache {
+    fn get(&mut self, fr: f64) -> ([f64; 2 * LANCZOS_A as usize], f64) {
+        if self.fr_bits != Some(fr.to_bits()) {
+            for (w, j) in self.weights.iter_mut().zip((1 - LANCZOS_A)..=LANCZOS_A) {
+                *w = lanczos(fr - j as f64);
+            }
+            self.wsum = self.weights.iter().sum();
+            self.fr_bits = Some(fr.to_bits());
+        }
+        (self.weights, self.wsum)
+    }
+}
+
+/// [`extract_into`] with the Lanczos weights taken from `cache` when the
+/// fractional offset repeats (the same result bit for bit).
+pub fn extract_with(
+    x: &[f64],
+    center: f64,
+    before: usize,
+    after: usize,
+    interp: Interpolation,
+    out: &mut Vec<f64>,
+    cache: &mut LanczosCache,
+) {
     out.clear();
     let start = center - before as f64;
     let i0 = start.floor() as i64;
@@ -101,11 +149,7 @@ pub fn extract_into(
     // Every output sample has the same fractional offset, so the Lanczos weights are
     // computed once per beat instead of once per sample (the same result as
     // `sample_at`, which the tests use as the oracle).
-    let mut weights = [0.0; 2 * LANCZOS_A as usize];
-    for (w, j) in weights.iter_mut().zip((1 - LANCZOS_A)..=LANCZOS_A) {
-        *w = lanczos(fr - j as f64);
-    }
-    let wsum: f64 = weights.iter().sum();
+    let (weights, wsum) = cache.get(fr);
     let n = x.len() as i64;
     let len = before + after + 1;
     // Output `k` reads `x[i0 + k + j]`, j in 1−A..=A: inside the signal for
@@ -197,7 +241,130 @@ fn extract_into_reference(
 }
 
 /// Sample-wise median of equal-length segments (mean of the two middle values for even counts).
+///
+/// Every column is the median in the order of `f64::total_cmp`, bit for bit the
+/// same as [`median_beat_keys`] (the test oracle). For 2 to [`NET_MAX`]
+/// segments the columns are sorted all at once by a comparator network
+/// applied row against row ([`median_network`]): each comparator is a
+/// branch-free min/max over whole rows, which the compiler vectorises,
+/// instead of a small sort with data-dependent branches per column. Plain
+/// `<` agrees with `total_cmp` on finite non-zero values (equal ones then have
+/// equal bits); a column holding a zero (signed zeros are ordered by
+/// `total_cmp` only) or a non-finite value is taken again by the key path.
 pub fn median_beat<S: AsRef<[f64]>>(segments: &[S]) -> Vec<f64> {
+    let n = segments.len();
+    if !(2..=NET_MAX).contains(&n) {
+        return median_beat_keys(segments);
+    }
+    let len = segments[0].as_ref().len();
+    let mut rows = Vec::with_capacity(n * len);
+    for s in segments {
+        rows.extend_from_slice(&s.as_ref()[..len]);
+    }
+    median_rows(&mut rows, n, len)
+}
+
+/// Largest segment count [`median_beat`] sorts by a comparator network.
+pub const NET_MAX: usize = 32;
+
+/// [`median_beat`] of `n` segments of `len` values stored one after the other
+/// in `rows` (reordered in place: each column is permuted).
+pub fn median_rows(rows: &mut [f64], n: usize, len: usize) -> Vec<f64> {
+    assert_eq!(rows.len(), n * len, "{n} rows of {len} values");
+    if !(2..=NET_MAX).contains(&n) {
+        return median_beat_keys(&rows.chunks_exact(len.max(1)).collect::<Vec<_>>());
+    }
+    // Columns the network may order differently from `total_cmp`.
+    let mut odd = vec![false; len];
+    for r in rows.chunks_exact(len.max(1)) {
+        for (b, v) in odd.iter_mut().zip(r) {
+            *b |= !(v.is_finite() && *v != 0.0);
+        }
+    }
+    for &(i, j) in median_network(n) {
+        let (lo, hi) = rows.split_at_mut(j as usize * len);
+        let a = &mut lo[i as usize * len..(i as usize + 1) * len];
+        // Either the pair or its swap: every column stays a permutation of
+        // its values, NaN included.
+        for (x, y) in a.iter_mut().zip(&mut hi[..len]) {
+            let (p, q) = (*x, *y);
+            let lt = p < q;
+            *x = if lt { p } else { q };
+            *y = if lt { q } else { p };
+        }
+    }
+    let m = n / 2;
+    let mid = &rows[m * len..(m + 1) * len];
+    let mut out: Vec<f64> = if n % 2 == 1 {
+        mid.to_vec()
+    } else {
+        let below = &rows[(m - 1) * len..m * len];
+        below.iter().zip(mid).map(|(b, c)| 0.5 * (b + c)).collect()
+    };
+    let mut col = Vec::with_capacity(n);
+    for ((k, o), _) in out.iter_mut().enumerate().zip(&odd).filter(|(_, &b)| b) {
+        col.clear();
+        col.extend((0..n).map(|r| total_key(rows[r * len + k])));
+        *o = median_of_keys(&mut col).unwrap_or(f64::NAN);
+    }
+    out
+}
+
+/// Comparators `(i, j)`, `i < j`, that leave the median rank(s) of `n`
+/// inputs (`n / 2`, and `n / 2 − 1` for even `n`) in place, smaller value
+/// at `i`: Batcher's odd–even merge sort (AFIPS SJCC 1968) for the next
+/// power of two, without the comparators that touch an input beyond `n`
+/// (padding with +∞ makes them no-ops) and without those whose outputs never
+/// reach a median position. Built once per `n`.
+fn median_network(n: usize) -> &'static [(u8, u8)] {
+    use std::sync::OnceLock;
+    static NETS: [OnceLock<Vec<(u8, u8)>>; NET_MAX + 1] = [const { OnceLock::new() }; NET_MAX + 1];
+    NETS[n].get_or_init(|| {
+        let full = batcher_network(n);
+        let mut needed = vec![false; n];
+        // The middle rank, and the one below it for even `n`.
+        needed[n / 2] = true;
+        needed[(n - 1) / 2] = true;
+        let mut keep: Vec<(u8, u8)> = Vec::new();
+        for &(i, j) in full.iter().rev() {
+            if needed[i as usize] || needed[j as usize] {
+                needed[i as usize] = true;
+                needed[j as usize] = true;
+                keep.push((i, j));
+            }
+        }
+        keep.reverse();
+        keep
+    })
+}
+
+/// Batcher's odd–even merge sort network for `n` inputs (`n <= 256`).
+fn batcher_network(n: usize) -> Vec<(u8, u8)> {
+    let size = n.next_power_of_two();
+    let mut net = Vec::new();
+    let mut p = 1;
+    while p < size {
+        let mut k = p;
+        while k >= 1 {
+            let mut j = k % p;
+            while j + k < size {
+                for i in 0..k.min(size - j - k) {
+                    if (i + j) / (2 * p) == (i + j + k) / (2 * p) && i + j + k < n {
+                        net.push(((i + j) as u8, (i + j + k) as u8));
+                    }
+                }
+                j += 2 * k;
+            }
+            k /= 2;
+        }
+        p *= 2;
+    }
+    net
+}
+
+/// Sample-wise median by integer keys, one small sort per column: the form
+/// [`median_beat`] replaces and its test oracle.
+pub fn median_beat_keys<S: AsRef<[f64]>>(segments: &[S]) -> Vec<f64> {
     let Some(first) = segments.first() else {
         return Vec::new();
     };
@@ -281,13 +448,14 @@ fn xcorr(
     h: usize,
     interp: Interpolation,
     buf: &mut Vec<f64>,
+    cache: &mut LanczosCache,
 ) -> f64 {
     let mut c = 0.0;
     for ((x, w), t) in leads.iter().zip(weights).zip(templ) {
         if *w <= 0.0 {
             continue;
         }
-        extract_into(x, center + lag as f64, h, h, interp, buf);
+        extract_with(x, center + lag as f64, h, h, interp, buf, cache);
         // The segment de-meaned on the fly: the same operations as `demeaned`.
         let m = buf.iter().sum::<f64>() / buf.len().max(1) as f64;
         c += w * buf.iter().zip(t).map(|(a, b)| (a - m) * b).sum::<f64>();
@@ -315,6 +483,7 @@ fn xcorr_shared(
     interp: Interpolation,
     long: &mut [Vec<f64>],
     cc: &mut Vec<f64>,
+    cache: &mut LanczosCache,
 ) -> bool {
     if interp != Interpolation::Sinc {
         return false;
@@ -337,7 +506,15 @@ fn xcorr_shared(
     let extra = 2 * (l as usize + 1);
     for ((x, w), seg) in leads.iter().zip(weights).zip(long.iter_mut()) {
         if *w > 0.0 {
-            extract_into(x, center + (-l - 1) as f64, h, h + extra, interp, seg);
+            extract_with(
+                x,
+                center + (-l - 1) as f64,
+                h,
+                h + extra,
+                interp,
+                seg,
+                cache,
+            );
         }
     }
     for off in 0..=extra {
@@ -388,30 +565,47 @@ fn align_impl(
     }
     let h = p.half_width;
     let l = p.max_lag as i64;
+    let span = 2 * h + 1;
+    let nb = pos.len();
+    let mut rows: Vec<Vec<f64>> = vec![Vec::with_capacity(nb * span); leads.len()];
+    let mut buf = Vec::with_capacity(span);
+    let mut cc = Vec::with_capacity(2 * p.max_lag + 3);
+    let mut long: Vec<Vec<f64>> = vec![Vec::new(); leads.len()];
     for _ in 0..p.passes.max(1) {
-        let templ: Vec<Vec<f64>> = leads
-            .iter()
-            .map(|x| {
-                let segs: Vec<Vec<f64>> =
-                    pos.iter().map(|&c| extract(x, c, h, h, p.interp)).collect();
-                demeaned(median_beat(&segs))
+        // Beat by beat, so that the leads of a beat and then its correlation
+        // segments reuse the beat's Lanczos weights. Leads without weight are
+        // never correlated: their templates stay empty.
+        let mut caches = vec![LanczosCache::default(); nb];
+        rows.iter_mut().for_each(Vec::clear);
+        for (&c, cache) in pos.iter().zip(caches.iter_mut()) {
+            for ((x, w), r) in leads.iter().zip(weights).zip(rows.iter_mut()) {
+                if *w > 0.0 {
+                    extract_with(x, c, h, h, p.interp, &mut buf, cache);
+                    r.extend_from_slice(&buf);
+                }
+            }
+        }
+        let templ: Vec<Vec<f64>> = rows
+            .iter_mut()
+            .map(|r| {
+                if r.is_empty() {
+                    Vec::new()
+                } else {
+                    demeaned(median_rows(r, nb, span))
+                }
             })
             .collect();
         let mut new = Vec::with_capacity(pos.len());
-        let mut buf = Vec::with_capacity(2 * h + 1);
-        let mut cc = Vec::with_capacity(2 * p.max_lag + 3);
-        let mut long: Vec<Vec<f64>> = vec![Vec::new(); leads.len()];
-        for &c in &pos {
+        for (&c, cache) in pos.iter().zip(caches.iter_mut()) {
             cc.clear();
             if !(share_segments
                 && xcorr_shared(
-                    leads, weights, &templ, c, l, h, p.interp, &mut long, &mut cc,
+                    leads, weights, &templ, c, l, h, p.interp, &mut long, &mut cc, cache,
                 ))
             {
-                cc.extend(
-                    (-l - 1..=l + 1)
-                        .map(|lag| xcorr(leads, weights, &templ, c, lag, h, p.interp, &mut buf)),
-                );
+                cc.extend((-l - 1..=l + 1).map(|lag| {
+                    xcorr(leads, weights, &templ, c, lag, h, p.interp, &mut buf, cache)
+                }));
             }
             // Peak over the searched lags; the extra lag each side feeds the parabola.
             let (mut best, mut bi) = (f64::NEG_INFINITY, 1usize);
@@ -506,6 +700,99 @@ mod tests {
         // Column [-0, 0, -0, 7] sorts as -0, -0, 0, 7: (−0 + 0)/2 = +0.
         assert_eq!(median_beat(&e)[1].to_bits(), 0.0f64.to_bits());
         assert_eq!(median(&mut [4.0, 1.0, 3.0, 2.0]), 2.5);
+    }
+
+    // The comparator networks sort by the 0-1 principle (Knuth, TAOCP vol. 3,
+    // 5.3.4): a network puts the right value at an output for every input iff
+    // it does so for every input of zeros and ones. Full networks are checked
+    // at every position, the pruned ones at the median position(s).
+    #[test]
+    fn networks_sort_every_zero_one_input() {
+        for n in 1..=16usize {
+            let full = batcher_network(n);
+            let med = median_network(n);
+            assert!(med.len() <= full.len());
+            for bits in 0u32..(1 << n) {
+                let input: Vec<u8> = (0..n).map(|i| ((bits >> i) & 1) as u8).collect();
+                let mut sorted = input.clone();
+                sorted.sort_unstable();
+                let run = |net: &[(u8, u8)]| {
+                    let mut v = input.clone();
+                    for &(i, j) in net {
+                        let (i, j) = (i as usize, j as usize);
+                        if v[i] > v[j] {
+                            v.swap(i, j);
+                        }
+                    }
+                    v
+                };
+                assert_eq!(run(&full), sorted, "n={n} bits={bits:b}");
+                let m = run(med);
+                assert_eq!(m[n / 2], sorted[n / 2], "n={n} bits={bits:b}");
+                if n % 2 == 0 {
+                    assert_eq!(m[n / 2 - 1], sorted[n / 2 - 1], "n={n} bits={bits:b}");
+                }
+            }
+        }
+        // Larger counts: random 0-1 inputs.
+        let mut s = 5u64;
+        for n in 17..=NET_MAX {
+            let med = median_network(n);
+            for _ in 0..20_000 {
+                let input: Vec<u8> = (0..n).map(|_| (lcg(&mut s) < 0.5) as u8).collect();
+                let mut sorted = input.clone();
+                sorted.sort_unstable();
+                let mut v = input.clone();
+                for &(i, j) in med {
+                    let (i, j) = (i as usize, j as usize);
+                    if v[i] > v[j] {
+                        v.swap(i, j);
+                    }
+                }
+                assert_eq!(v[n / 2], sorted[n / 2], "n={n}");
+                if n % 2 == 0 {
+                    assert_eq!(v[n / 2 - 1], sorted[n / 2 - 1], "n={n}");
+                }
+            }
+        }
+    }
+
+    // The network median against one key sort per column (oracle), bit for
+    // bit: 1 to 40 segments (network and key paths), ties, signed zeros,
+    // NaN and infinities in some columns, values of mixed magnitudes.
+    #[test]
+    fn network_median_equals_key_median() {
+        let mut s = 17u64;
+        for n in 1..=40usize {
+            for round in 0..6 {
+                let len: usize = 1 + (round * 37) % 90;
+                let segs: Vec<Vec<f64>> = (0..n)
+                    .map(|_| {
+                        (0..len)
+                            .map(|k| {
+                                let r = lcg(&mut s);
+                                match (k + round) % 11 {
+                                    0 if r < 0.3 => 0.0,
+                                    1 if r < 0.3 => -0.0,
+                                    2 if r < 0.05 => f64::NAN,
+                                    3 if r < 0.05 => f64::INFINITY,
+                                    4 if r < 0.05 => f64::NEG_INFINITY,
+                                    5 => (r * 4.0).floor() - 2.0, // many ties
+                                    _ => (r - 0.5) * 10f64.powi((k % 5) as i32 - 2),
+                                }
+                            })
+                            .collect()
+                    })
+                    .collect();
+                let fast = median_beat(&segs);
+                let slow = median_beat_keys(&segs);
+                let fb: Vec<u64> = fast.iter().map(|v| v.to_bits()).collect();
+                let sb: Vec<u64> = slow.iter().map(|v| v.to_bits()).collect();
+                assert_eq!(fb, sb, "n={n} len={len}");
+            }
+        }
+        let empty: Vec<Vec<f64>> = Vec::new();
+        assert!(median_beat(&empty).is_empty());
     }
 
     // Selection against the full sort (oracle), bit for bit, odd and even counts,
@@ -695,6 +982,28 @@ mod tests {
                     (v - expect).abs() < tol,
                     "{interp:?} k={k} got {v} want {expect}"
                 );
+            }
+        }
+    }
+
+    // Extraction with weights reused from the cache against fresh weights
+    // for every segment (oracle), bit for bit: repeated and changing
+    // fractional offsets, integer starts, both interpolations.
+    #[test]
+    fn cached_weights_equal_fresh_weights() {
+        let x: Vec<f64> = (0..400).map(|i| (i as f64 * 0.21).cos() * 0.8).collect();
+        let mut cache = LanczosCache::default();
+        let centres = [
+            100.3, 150.3, 150.3, 151.3, 200.0, 200.7, 10.7, 390.7, 3.25, 3.25, 120.3,
+        ];
+        for interp in [Interpolation::Sinc, Interpolation::Linear] {
+            for &c in &centres {
+                let (mut a, mut b) = (Vec::new(), Vec::new());
+                extract_with(&x, c, 20, 35, interp, &mut a, &mut cache);
+                extract_into(&x, c, 20, 35, interp, &mut b);
+                let ab: Vec<u64> = a.iter().map(|v| v.to_bits()).collect();
+                let bb: Vec<u64> = b.iter().map(|v| v.to_bits()).collect();
+                assert_eq!(ab, bb, "c={c} {interp:?}");
             }
         }
     }
