@@ -167,7 +167,7 @@ pub fn extract_with(
     };
     out.extend((0..k_lo).map(edge));
     if k_hi > k_lo {
-        // Tap by tap over the whole interior: every output still adds its
+        // Tap by tap over blocks of the interior: every output still adds its
         // products in tap order onto the same start value as `Iterator::sum`,
         // so each equals the per-sample dot product bit for bit
         // ([`extract_into_reference`]), and the inner loop runs over
@@ -178,17 +178,70 @@ pub fn extract_with(
         let src = &x[lo..lo + m + weights.len() - 1];
         let at0 = out.len();
         out.resize(at0 + m, s0);
-        let acc = &mut out[at0..];
+        interior_taps(&mut out[at0..], src, &weights, wsum, s0);
+    }
+    out.extend((k_hi..len).map(edge));
+}
+
+type Taps = [f64; 2 * LANCZOS_A as usize];
+
+/// `acc[k] = (s0 + Σ_j weights[j]·src[k + j]) / wsum`, the products added in
+/// tap order (the interior of [`extract_with`]); with AVX where the CPU has
+/// it. Only multiplications and additions in the same order: the SIMD width
+/// does not change a bit (no fused multiply–add is enabled).
+fn interior_taps(acc: &mut [f64], src: &[f64], weights: &Taps, wsum: f64, s0: f64) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the CPU supports AVX (checked just above).
+        unsafe { interior_taps_avx(acc, src, weights, wsum, s0) };
+        return;
+    }
+    interior_taps_body(acc, src, weights, wsum, s0);
+}
+
+/// [`interior_taps`] compiled for AVX.
+///
+/// # Safety
+/// The CPU must support AVX.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn interior_taps_avx(acc: &mut [f64], src: &[f64], weights: &Taps, wsum: f64, s0: f64) {
+    interior_taps_body(acc, src, weights, wsum, s0);
+}
+
+#[inline(always)]
+fn interior_taps_body(acc: &mut [f64], src: &[f64], weights: &Taps, wsum: f64, s0: f64) {
+    // Blocks of eight outputs kept in registers through all taps (one load
+    // and store per output instead of one per tap), then the rest.
+    const B: usize = 8;
+    let mut blocks = acc.chunks_exact_mut(B);
+    let mut base = 0;
+    for block in &mut blocks {
+        let mut t = [s0; B];
         for (j, &w) in weights.iter().enumerate() {
-            for (a, &v) in acc.iter_mut().zip(&src[j..j + m]) {
+            let v: &[f64; B] = src[base + j..base + j + B]
+                .try_into()
+                .expect("slice of B values");
+            for (a, &v) in t.iter_mut().zip(v) {
                 *a += w * v;
             }
         }
-        for a in acc.iter_mut() {
-            *a /= wsum;
+        for (o, a) in block.iter_mut().zip(t) {
+            *o = a / wsum;
+        }
+        base += B;
+    }
+    let rest = blocks.into_remainder();
+    let r = rest.len();
+    rest.fill(s0);
+    for (j, &w) in weights.iter().enumerate() {
+        for (a, &v) in rest.iter_mut().zip(&src[base + j..base + j + r]) {
+            *a += w * v;
         }
     }
-    out.extend((k_hi..len).map(edge));
+    for a in rest.iter_mut() {
+        *a /= wsum;
+    }
 }
 
 /// The per-sample form of [`extract_into`] (test oracle for its interior loop).
@@ -274,40 +327,119 @@ pub fn median_rows(rows: &mut [f64], n: usize, len: usize) -> Vec<f64> {
     if !(2..=NET_MAX).contains(&n) {
         return median_beat_keys(&rows.chunks_exact(len.max(1)).collect::<Vec<_>>());
     }
-    // Columns the network may order differently from `total_cmp`.
-    let mut odd = vec![false; len];
+    // A column holding NaN or an infinity ends with a NaN sum here (v · 0).
+    let mut nonfinite = vec![0.0f64; len];
     for r in rows.chunks_exact(len.max(1)) {
-        for (b, v) in odd.iter_mut().zip(r) {
-            *b |= !(v.is_finite() && *v != 0.0);
+        for (acc, v) in nonfinite.iter_mut().zip(r) {
+            *acc += v * 0.0;
         }
     }
     for &(i, j) in median_network(n) {
         let (lo, hi) = rows.split_at_mut(j as usize * len);
-        let a = &mut lo[i as usize * len..(i as usize + 1) * len];
-        // Either the pair or its swap: every column stays a permutation of
-        // its values, NaN included.
-        for (x, y) in a.iter_mut().zip(&mut hi[..len]) {
-            let (p, q) = (*x, *y);
-            let lt = p < q;
-            *x = if lt { p } else { q };
-            *y = if lt { q } else { p };
-        }
+        compare_rows(
+            &mut lo[i as usize * len..(i as usize + 1) * len],
+            &mut hi[..len],
+        );
     }
     let m = n / 2;
     let mid = &rows[m * len..(m + 1) * len];
+    // The value below the middle for even `n`; the middle itself for odd `n`.
+    let lo = m + n % 2 - 1;
+    let below = &rows[lo * len..(lo + 1) * len];
     let mut out: Vec<f64> = if n % 2 == 1 {
         mid.to_vec()
     } else {
-        let below = &rows[(m - 1) * len..m * len];
         below.iter().zip(mid).map(|(b, c)| 0.5 * (b + c)).collect()
     };
+    // Without NaN, `<` orders as `total_cmp` except that it ties −0 and +0,
+    // so the network's middle values are exact unless one of them is a zero
+    // (of either sign), or the column holds a NaN. Infinities take the key
+    // path as well (a rare case not worth a finer test).
     let mut col = Vec::with_capacity(n);
-    for ((k, o), _) in out.iter_mut().enumerate().zip(&odd).filter(|(_, &b)| b) {
+    for k in 0..len {
+        if nonfinite[k] == 0.0 && mid[k] != 0.0 && below[k] != 0.0 {
+            continue;
+        }
         col.clear();
         col.extend((0..n).map(|r| total_key(rows[r * len + k])));
-        *o = median_of_keys(&mut col).unwrap_or(f64::NAN);
+        out[k] = median_of_keys(&mut col).unwrap_or(f64::NAN);
     }
     out
+}
+
+/// One comparator over two whole rows: per column, `(p, q)` becomes
+/// `(p, q)` if `p < q` and `(q, p)` otherwise (also when unordered, so a
+/// column stays a permutation of its values, NaN included).
+fn compare_rows(a: &mut [f64], b: &mut [f64]) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx") {
+            // SAFETY: the CPU supports AVX (checked just above).
+            unsafe { compare_rows_avx(a, b) };
+        } else {
+            compare_rows_sse2(a, b);
+        }
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    compare_rows_scalar(a, b);
+}
+
+/// [`compare_rows`] column by column: the plain form and the SIMD forms' oracle.
+fn compare_rows_scalar(a: &mut [f64], b: &mut [f64]) {
+    for (x, y) in a.iter_mut().zip(b.iter_mut()) {
+        let (p, q) = (*x, *y);
+        if p < q {
+            continue;
+        }
+        *x = q;
+        *y = p;
+    }
+}
+
+// MINPD(p, q) is `p < q ? p : q` and MAXPD(q, p) is `q > p ? q : p` lane by
+// lane (Intel SDM, MINPD/MAXPD: the second operand when unordered or
+// equal): exactly the scalar rule above.
+#[cfg(target_arch = "x86_64")]
+fn compare_rows_sse2(a: &mut [f64], b: &mut [f64]) {
+    use std::arch::x86_64::{_mm_loadu_pd, _mm_max_pd, _mm_min_pd, _mm_storeu_pd};
+    let n = a.len().min(b.len());
+    let mut k = 0;
+    while k + 2 <= n {
+        // SAFETY: SSE2 is part of x86_64; `k + 2 <= n` keeps the two lanes in
+        // both slices, which do not overlap (two `&mut`).
+        unsafe {
+            let p = _mm_loadu_pd(a.as_ptr().add(k));
+            let q = _mm_loadu_pd(b.as_ptr().add(k));
+            _mm_storeu_pd(a.as_mut_ptr().add(k), _mm_min_pd(p, q));
+            _mm_storeu_pd(b.as_mut_ptr().add(k), _mm_max_pd(q, p));
+        }
+        k += 2;
+    }
+    compare_rows_scalar(&mut a[k..n], &mut b[k..n]);
+}
+
+/// [`compare_rows_sse2`] four lanes at a time.
+///
+/// # Safety
+/// The CPU must support AVX.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn compare_rows_avx(a: &mut [f64], b: &mut [f64]) {
+    use std::arch::x86_64::{_mm256_loadu_pd, _mm256_max_pd, _mm256_min_pd, _mm256_storeu_pd};
+    let n = a.len().min(b.len());
+    let mut k = 0;
+    while k + 4 <= n {
+        // SAFETY: as in `compare_rows_sse2`, with four lanes; AVX is
+        // guaranteed by the caller.
+        unsafe {
+            let p = _mm256_loadu_pd(a.as_ptr().add(k));
+            let q = _mm256_loadu_pd(b.as_ptr().add(k));
+            _mm256_storeu_pd(a.as_mut_ptr().add(k), _mm256_min_pd(p, q));
+            _mm256_storeu_pd(b.as_mut_ptr().add(k), _mm256_max_pd(q, p));
+        }
+        k += 4;
+    }
+    compare_rows_sse2(&mut a[k..n], &mut b[k..n]);
 }
 
 /// Comparators `(i, j)`, `i < j`, that leave the median rank(s) of `n`
@@ -752,6 +884,65 @@ mod tests {
                 assert_eq!(v[n / 2], sorted[n / 2], "n={n}");
                 if n % 2 == 0 {
                     assert_eq!(v[n / 2 - 1], sorted[n / 2 - 1], "n={n}");
+                }
+            }
+        }
+    }
+
+    // The interior taps as dispatched (AVX where the CPU has it) against the
+    // body compiled for the base target, bit for bit, blocks and tails.
+    #[test]
+    fn dispatched_taps_equal_base_taps() {
+        let mut s = 11u64;
+        let w: Taps = std::array::from_fn(|_| lcg(&mut s) - 0.3);
+        let wsum: f64 = w.iter().sum();
+        for m in 0..40 {
+            let src: Vec<f64> = (0..m + w.len() - 1)
+                .map(|_| lcg(&mut s) * 3.0 - 1.0)
+                .collect();
+            let (mut a, mut b) = (vec![7.0; m], vec![-3.0; m]);
+            interior_taps(&mut a, &src, &w, wsum, -0.0);
+            interior_taps_body(&mut b, &src, &w, wsum, -0.0);
+            let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(bits(&a), bits(&b), "m={m}");
+        }
+    }
+
+    // The SIMD comparators against the scalar rule (oracle), bit for bit:
+    // ties, signed zeros, NaN on either side, infinities, every tail length.
+    #[test]
+    fn simd_comparator_equals_scalar_rule() {
+        let mut s = 3u64;
+        let pick = |r: f64| -> f64 {
+            match (r * 10.0) as u32 {
+                0 => 0.0,
+                1 => -0.0,
+                2 => f64::NAN,
+                3 => f64::INFINITY,
+                4 => f64::NEG_INFINITY,
+                5 => 1.0,
+                _ => r - 0.5,
+            }
+        };
+        for len in 0..23 {
+            for _ in 0..50 {
+                let a: Vec<f64> = (0..len).map(|_| pick(lcg(&mut s))).collect();
+                let b: Vec<f64> = (0..len).map(|_| pick(lcg(&mut s))).collect();
+                let (mut fa, mut fb) = (a.clone(), b.clone());
+                let (mut sa, mut sb) = (a.clone(), b.clone());
+                compare_rows(&mut fa, &mut fb);
+                compare_rows_scalar(&mut sa, &mut sb);
+                let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                assert_eq!(
+                    (bits(&fa), bits(&fb)),
+                    (bits(&sa), bits(&sb)),
+                    "{a:?} {b:?}"
+                );
+                #[cfg(target_arch = "x86_64")]
+                {
+                    let (mut ta, mut tb) = (a.clone(), b.clone());
+                    compare_rows_sse2(&mut ta, &mut tb);
+                    assert_eq!((bits(&ta), bits(&tb)), (bits(&sa), bits(&sb)));
                 }
             }
         }
