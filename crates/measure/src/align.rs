@@ -298,12 +298,12 @@ fn extract_into_reference(
 /// Every column is the median in the order of `f64::total_cmp`, bit for bit the
 /// same as [`median_beat_keys`] (the test oracle). For 2 to [`NET_MAX`]
 /// segments the columns are sorted all at once by a comparator network
-/// applied row against row ([`median_network`]): each comparator is a
-/// branch-free min/max over whole rows, which the compiler vectorises,
-/// instead of a small sort with data-dependent branches per column. Plain
-/// `<` agrees with `total_cmp` on finite non-zero values (equal ones then have
-/// equal bits); a column holding a zero (signed zeros are ordered by
-/// `total_cmp` only) or a non-finite value is taken again by the key path.
+/// (Batcher's odd–even merge sort, pruned to the median ranks) applied row
+/// against row: each comparator is a branch-free SIMD min/max over whole
+/// rows instead of a small sort with data-dependent branches per column.
+/// Without NaN, plain `<` agrees with `total_cmp` except that it ties −0 and
+/// +0, so a column holding NaN or an infinity, or with a zero among its
+/// middle values, is taken again by the key path ([`median_rows`]).
 pub fn median_beat<S: AsRef<[f64]>>(segments: &[S]) -> Vec<f64> {
     let n = segments.len();
     if !(2..=NET_MAX).contains(&n) {
