@@ -649,7 +649,25 @@ fn xcorr_shared(
             );
         }
     }
-    for off in 0..=extra {
+    // Four lags at a time, one lane per lag: each lane adds its terms in the
+    // same order as the one-lag form below, so the values are the same bit
+    // for bit, while the lanes run side by side.
+    let mut off = 0;
+    while off + LAGS <= extra + 1 {
+        let mut c = [0.0; LAGS];
+        for (((_, w), t), seg) in leads.iter().zip(weights).zip(templ).zip(long.iter()) {
+            if *w <= 0.0 {
+                continue;
+            }
+            let d = lag_block(&seg[off..off + span + LAGS - 1], &t[..span]);
+            for (c, d) in c.iter_mut().zip(d) {
+                *c += w * d;
+            }
+        }
+        cc.extend_from_slice(&c);
+        off += LAGS;
+    }
+    for off in off..=extra {
         let mut c = 0.0;
         for (((_, w), t), seg) in leads.iter().zip(weights).zip(templ).zip(long.iter()) {
             if *w <= 0.0 {
@@ -662,6 +680,56 @@ fn xcorr_shared(
         cc.push(c);
     }
     true
+}
+
+/// Lags computed side by side by [`lag_block`].
+const LAGS: usize = 4;
+
+/// For `q` in `0..LAGS`: the de-meaned correlation of `seg[q..q + t.len()]`
+/// with `t`, `Σ (a − m)·b` with `m` the segment's mean, both sums in index
+/// order from the start value of `Iterator::sum` (the one-lag form of
+/// [`xcorr_shared`]); with AVX where the CPU has it (no fused
+/// multiply–add: the same operations).
+fn lag_block(seg: &[f64], t: &[f64]) -> [f64; LAGS] {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the CPU supports AVX (checked just above).
+        return unsafe { lag_block_avx(seg, t) };
+    }
+    lag_block_body(seg, t)
+}
+
+/// [`lag_block`] compiled for AVX.
+///
+/// # Safety
+/// The CPU must support AVX.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn lag_block_avx(seg: &[f64], t: &[f64]) -> [f64; LAGS] {
+    lag_block_body(seg, t)
+}
+
+#[inline(always)]
+fn lag_block_body(seg: &[f64], t: &[f64]) -> [f64; LAGS] {
+    let span = t.len();
+    assert!(seg.len() >= span + LAGS - 1, "segment covers every lag");
+    let s0: f64 = std::iter::empty::<f64>().sum();
+    let mut sum = [s0; LAGS];
+    for k in 0..span {
+        let v: &[f64; LAGS] = seg[k..k + LAGS].try_into().expect("LAGS values");
+        for (a, &v) in sum.iter_mut().zip(v) {
+            *a += v;
+        }
+    }
+    let m = sum.map(|a| a / span as f64);
+    let mut dot = [s0; LAGS];
+    for (k, &b) in t.iter().enumerate() {
+        let v: &[f64; LAGS] = seg[k..k + LAGS].try_into().expect("LAGS values");
+        for ((a, &v), &m) in dot.iter_mut().zip(v).zip(&m) {
+            *a += (v - m) * b;
+        }
+    }
+    dot
 }
 
 /// Fractional offset of the maximum of a parabola through (−1,a), (0,b), (1,c).
@@ -886,6 +954,37 @@ mod tests {
                     assert_eq!(v[n / 2 - 1], sorted[n / 2 - 1], "n={n}");
                 }
             }
+        }
+    }
+
+    // Four lags side by side against the one-lag sums (oracle), bit for
+    // bit, dispatched and base-target forms.
+    #[test]
+    fn lag_block_equals_one_lag_sums() {
+        let mut s = 21u64;
+        for span in [1usize, 2, 7, 31, 33] {
+            let t: Vec<f64> = (0..span).map(|_| lcg(&mut s) - 0.5).collect();
+            let seg: Vec<f64> = (0..span + LAGS + 2)
+                .map(|_| lcg(&mut s) * 4.0 - 1.0)
+                .collect();
+            let slow: Vec<u64> = (0..LAGS)
+                .map(|q| {
+                    let w = &seg[q..q + span];
+                    let m = w.iter().sum::<f64>() / span as f64;
+                    w.iter()
+                        .zip(&t)
+                        .map(|(a, b)| (a - m) * b)
+                        .sum::<f64>()
+                        .to_bits()
+                })
+                .collect();
+            let fast: Vec<u64> = lag_block(&seg, &t).iter().map(|v| v.to_bits()).collect();
+            let base: Vec<u64> = lag_block_body(&seg, &t)
+                .iter()
+                .map(|v| v.to_bits())
+                .collect();
+            assert_eq!(fast, slow, "span={span}");
+            assert_eq!(base, slow, "span={span}");
         }
     }
 
