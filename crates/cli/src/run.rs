@@ -2,7 +2,8 @@
 //!
 //! Output folder layout (all files written atomically):
 //! - `parts/<record>.json`: a finished record's results and the key they were
-//!   computed under (tool version, config, input checksums); reused on re-runs;
+//!   computed under (tool version, config, input checksums); reused on re-runs
+//!   (format: DEVELOPERS.md, "Part files");
 //! - `annotations/<record>.mark` and `.leadmark`: WFDB annotation files;
 //! - `results.h5`, `summary.csv`, `windows.csv`, `failures.csv`, `run.json`:
 //!   rebuilt by every run for the records named on the command line. During a

@@ -8,7 +8,7 @@
 //! a signal read its nearest edge sample.
 
 use serde::{Deserialize, Serialize};
-use tendline_dsp::select::median_of_rows;
+use tendline_dsp::select::{median_of_keys, total_key};
 
 /// How a beat is resampled at a fractional position.
 #[derive(Deserialize, Serialize, Clone, Copy, Debug, PartialEq, Eq, Default)]
@@ -85,6 +85,54 @@ pub fn extract_into(
     interp: Interpolation,
     out: &mut Vec<f64>,
 ) {
+    extract_with(
+        x,
+        center,
+        before,
+        after,
+        interp,
+        out,
+        &mut LanczosCache::default(),
+    );
+}
+
+/// The Lanczos weights of the last fractional offset [`extract_with`] saw.
+///
+/// The weights depend only on the fractional part of a segment's start, and
+/// the leads of one beat, its template and correlation segments and its
+/// final segment mostly share it bit for bit: reusing them saves sixteen
+/// sines per repeat, and equal input bits give equal weights.
+#[derive(Debug, Clone, Default)]
+pub struct LanczosCache {
+    fr_bits: Option<u64>,
+    weights: [f64; 2 * LANCZOS_A as usize],
+    wsum: f64,
+}
+
+impl LanczosCache {
+    fn get(&mut self, fr: f64) -> ([f64; 2 * LANCZOS_A as usize], f64) {
+        if self.fr_bits != Some(fr.to_bits()) {
+            for (w, j) in self.weights.iter_mut().zip((1 - LANCZOS_A)..=LANCZOS_A) {
+                *w = lanczos(fr - j as f64);
+            }
+            self.wsum = self.weights.iter().sum();
+            self.fr_bits = Some(fr.to_bits());
+        }
+        (self.weights, self.wsum)
+    }
+}
+
+/// [`extract_into`] with the Lanczos weights taken from `cache` when the
+/// fractional offset repeats (the same result bit for bit).
+pub fn extract_with(
+    x: &[f64],
+    center: f64,
+    before: usize,
+    after: usize,
+    interp: Interpolation,
+    out: &mut Vec<f64>,
+    cache: &mut LanczosCache,
+) {
     out.clear();
     let start = center - before as f64;
     let i0 = start.floor() as i64;
@@ -101,11 +149,7 @@ pub fn extract_into(
     // Every output sample has the same fractional offset, so the Lanczos weights are
     // computed once per beat instead of once per sample (the same result as
     // `sample_at`, which the tests use as the oracle).
-    let mut weights = [0.0; 2 * LANCZOS_A as usize];
-    for (w, j) in weights.iter_mut().zip((1 - LANCZOS_A)..=LANCZOS_A) {
-        *w = lanczos(fr - j as f64);
-    }
-    let wsum: f64 = weights.iter().sum();
+    let (weights, wsum) = cache.get(fr);
     let n = x.len() as i64;
     let len = before + after + 1;
     // Output `k` reads `x[i0 + k + j]`, j in 1−A..=A: inside the signal for
@@ -123,7 +167,7 @@ pub fn extract_into(
     };
     out.extend((0..k_lo).map(edge));
     if k_hi > k_lo {
-        // Tap by tap over the whole interior: every output still adds its
+        // Tap by tap over blocks of the interior: every output still adds its
         // products in tap order onto the same start value as `Iterator::sum`,
         // so each equals the per-sample dot product bit for bit
         // ([`extract_into_reference`]), and the inner loop runs over
@@ -134,17 +178,70 @@ pub fn extract_into(
         let src = &x[lo..lo + m + weights.len() - 1];
         let at0 = out.len();
         out.resize(at0 + m, s0);
-        let acc = &mut out[at0..];
+        interior_taps(&mut out[at0..], src, &weights, wsum, s0);
+    }
+    out.extend((k_hi..len).map(edge));
+}
+
+type Taps = [f64; 2 * LANCZOS_A as usize];
+
+/// `acc[k] = (s0 + Σ_j weights[j]·src[k + j]) / wsum`, the products added in
+/// tap order (the interior of [`extract_with`]); with AVX where the CPU has
+/// it. Only multiplications and additions in the same order: the SIMD width
+/// does not change a bit (no fused multiply–add is enabled).
+fn interior_taps(acc: &mut [f64], src: &[f64], weights: &Taps, wsum: f64, s0: f64) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the CPU supports AVX (checked just above).
+        unsafe { interior_taps_avx(acc, src, weights, wsum, s0) };
+        return;
+    }
+    interior_taps_body(acc, src, weights, wsum, s0);
+}
+
+/// [`interior_taps`] compiled for AVX.
+///
+/// # Safety
+/// The CPU must support AVX.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn interior_taps_avx(acc: &mut [f64], src: &[f64], weights: &Taps, wsum: f64, s0: f64) {
+    interior_taps_body(acc, src, weights, wsum, s0);
+}
+
+#[inline(always)]
+fn interior_taps_body(acc: &mut [f64], src: &[f64], weights: &Taps, wsum: f64, s0: f64) {
+    // Blocks of eight outputs kept in registers through all taps (one load
+    // and store per output instead of one per tap), then the rest.
+    const B: usize = 8;
+    let mut blocks = acc.chunks_exact_mut(B);
+    let mut base = 0;
+    for block in &mut blocks {
+        let mut t = [s0; B];
         for (j, &w) in weights.iter().enumerate() {
-            for (a, &v) in acc.iter_mut().zip(&src[j..j + m]) {
+            let v: &[f64; B] = src[base + j..base + j + B]
+                .try_into()
+                .expect("slice of B values");
+            for (a, &v) in t.iter_mut().zip(v) {
                 *a += w * v;
             }
         }
-        for a in acc.iter_mut() {
-            *a /= wsum;
+        for (o, a) in block.iter_mut().zip(t) {
+            *o = a / wsum;
+        }
+        base += B;
+    }
+    let rest = blocks.into_remainder();
+    let r = rest.len();
+    rest.fill(s0);
+    for (j, &w) in weights.iter().enumerate() {
+        for (a, &v) in rest.iter_mut().zip(&src[base + j..base + j + r]) {
+            *a += w * v;
         }
     }
-    out.extend((k_hi..len).map(edge));
+    for a in rest.iter_mut() {
+        *a /= wsum;
+    }
 }
 
 /// The per-sample form of [`extract_into`] (test oracle for its interior loop).
@@ -197,12 +294,220 @@ fn extract_into_reference(
 }
 
 /// Sample-wise median of equal-length segments (mean of the two middle values for even counts).
+///
+/// Every column is the median in the order of `f64::total_cmp`, bit for bit the
+/// same as [`median_beat_keys`] (the test oracle). For 2 to [`NET_MAX`]
+/// segments the columns are sorted all at once by a comparator network
+/// (Batcher's odd–even merge sort, pruned to the median ranks) applied row
+/// against row: each comparator is a branch-free SIMD min/max over whole
+/// rows instead of a small sort with data-dependent branches per column.
+/// Without NaN, plain `<` agrees with `total_cmp` except that it ties −0 and
+/// +0, so a column holding NaN or an infinity, or with a zero among its
+/// middle values, is taken again by the key path ([`median_rows`]).
 pub fn median_beat<S: AsRef<[f64]>>(segments: &[S]) -> Vec<f64> {
-    // All columns at once by a sorting network (same bits as a per-column
-    // median, see `median_of_rows`).
-    let mut out = Vec::new();
-    median_of_rows(segments, &mut out);
+    let n = segments.len();
+    if !(2..=NET_MAX).contains(&n) {
+        return median_beat_keys(segments);
+    }
+    let len = segments[0].as_ref().len();
+    let mut rows = Vec::with_capacity(n * len);
+    for s in segments {
+        rows.extend_from_slice(&s.as_ref()[..len]);
+    }
+    median_rows(&mut rows, n, len)
+}
+
+/// Largest segment count [`median_beat`] sorts by a comparator network.
+pub const NET_MAX: usize = 32;
+
+/// [`median_beat`] of `n` segments of `len` values stored one after the other
+/// in `rows` (reordered in place: each column is permuted).
+pub fn median_rows(rows: &mut [f64], n: usize, len: usize) -> Vec<f64> {
+    assert_eq!(rows.len(), n * len, "{n} rows of {len} values");
+    if !(2..=NET_MAX).contains(&n) {
+        return median_beat_keys(&rows.chunks_exact(len.max(1)).collect::<Vec<_>>());
+    }
+    // A column holding NaN or an infinity ends with a NaN sum here (v · 0).
+    let mut nonfinite = vec![0.0f64; len];
+    for r in rows.chunks_exact(len.max(1)) {
+        for (acc, v) in nonfinite.iter_mut().zip(r) {
+            *acc += v * 0.0;
+        }
+    }
+    for &(i, j) in median_network(n) {
+        let (lo, hi) = rows.split_at_mut(j as usize * len);
+        compare_rows(
+            &mut lo[i as usize * len..(i as usize + 1) * len],
+            &mut hi[..len],
+        );
+    }
+    let m = n / 2;
+    let mid = &rows[m * len..(m + 1) * len];
+    // The value below the middle for even `n`; the middle itself for odd `n`.
+    let lo = m + n % 2 - 1;
+    let below = &rows[lo * len..(lo + 1) * len];
+    let mut out: Vec<f64> = if n % 2 == 1 {
+        mid.to_vec()
+    } else {
+        below.iter().zip(mid).map(|(b, c)| 0.5 * (b + c)).collect()
+    };
+    // Without NaN, `<` orders as `total_cmp` except that it ties −0 and +0,
+    // so the network's middle values are exact unless one of them is a zero
+    // (of either sign), or the column holds a NaN. Infinities take the key
+    // path as well (a rare case not worth a finer test).
+    let mut col = Vec::with_capacity(n);
+    for k in 0..len {
+        if nonfinite[k] == 0.0 && mid[k] != 0.0 && below[k] != 0.0 {
+            continue;
+        }
+        col.clear();
+        col.extend((0..n).map(|r| total_key(rows[r * len + k])));
+        out[k] = median_of_keys(&mut col).unwrap_or(f64::NAN);
+    }
     out
+}
+
+/// One comparator over two whole rows: per column, `(p, q)` becomes
+/// `(p, q)` if `p < q` and `(q, p)` otherwise (also when unordered, so a
+/// column stays a permutation of its values, NaN included).
+fn compare_rows(a: &mut [f64], b: &mut [f64]) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx") {
+            // SAFETY: the CPU supports AVX (checked just above).
+            unsafe { compare_rows_avx(a, b) };
+        } else {
+            compare_rows_sse2(a, b);
+        }
+    }
+    #[cfg(not(target_arch = "x86_64"))]
+    compare_rows_scalar(a, b);
+}
+
+/// [`compare_rows`] column by column: the plain form and the SIMD forms' oracle.
+fn compare_rows_scalar(a: &mut [f64], b: &mut [f64]) {
+    for (x, y) in a.iter_mut().zip(b.iter_mut()) {
+        let (p, q) = (*x, *y);
+        if p < q {
+            continue;
+        }
+        *x = q;
+        *y = p;
+    }
+}
+
+// MINPD(p, q) is `p < q ? p : q` and MAXPD(q, p) is `q > p ? q : p` lane by
+// lane (Intel SDM, MINPD/MAXPD: the second operand when unordered or
+// equal): exactly the scalar rule above.
+#[cfg(target_arch = "x86_64")]
+fn compare_rows_sse2(a: &mut [f64], b: &mut [f64]) {
+    use std::arch::x86_64::{_mm_loadu_pd, _mm_max_pd, _mm_min_pd, _mm_storeu_pd};
+    let n = a.len().min(b.len());
+    let mut k = 0;
+    while k + 2 <= n {
+        // SAFETY: SSE2 is part of x86_64; `k + 2 <= n` keeps the two lanes in
+        // both slices, which do not overlap (two `&mut`).
+        unsafe {
+            let p = _mm_loadu_pd(a.as_ptr().add(k));
+            let q = _mm_loadu_pd(b.as_ptr().add(k));
+            _mm_storeu_pd(a.as_mut_ptr().add(k), _mm_min_pd(p, q));
+            _mm_storeu_pd(b.as_mut_ptr().add(k), _mm_max_pd(q, p));
+        }
+        k += 2;
+    }
+    compare_rows_scalar(&mut a[k..n], &mut b[k..n]);
+}
+
+/// [`compare_rows_sse2`] four lanes at a time.
+///
+/// # Safety
+/// The CPU must support AVX.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn compare_rows_avx(a: &mut [f64], b: &mut [f64]) {
+    use std::arch::x86_64::{_mm256_loadu_pd, _mm256_max_pd, _mm256_min_pd, _mm256_storeu_pd};
+    let n = a.len().min(b.len());
+    let mut k = 0;
+    while k + 4 <= n {
+        // SAFETY: as in `compare_rows_sse2`, with four lanes; AVX is
+        // guaranteed by the caller.
+        unsafe {
+            let p = _mm256_loadu_pd(a.as_ptr().add(k));
+            let q = _mm256_loadu_pd(b.as_ptr().add(k));
+            _mm256_storeu_pd(a.as_mut_ptr().add(k), _mm256_min_pd(p, q));
+            _mm256_storeu_pd(b.as_mut_ptr().add(k), _mm256_max_pd(q, p));
+        }
+        k += 4;
+    }
+    compare_rows_sse2(&mut a[k..n], &mut b[k..n]);
+}
+
+/// Comparators `(i, j)`, `i < j`, that leave the median rank(s) of `n`
+/// inputs (`n / 2`, and `n / 2 − 1` for even `n`) in place, smaller value
+/// at `i`: Batcher's odd–even merge sort (AFIPS SJCC 1968) for the next
+/// power of two, without the comparators that touch an input beyond `n`
+/// (padding with +∞ makes them no-ops) and without those whose outputs never
+/// reach a median position. Built once per `n`.
+fn median_network(n: usize) -> &'static [(u8, u8)] {
+    use std::sync::OnceLock;
+    static NETS: [OnceLock<Vec<(u8, u8)>>; NET_MAX + 1] = [const { OnceLock::new() }; NET_MAX + 1];
+    NETS[n].get_or_init(|| {
+        let full = batcher_network(n);
+        let mut needed = vec![false; n];
+        // The middle rank, and the one below it for even `n`.
+        needed[n / 2] = true;
+        needed[(n - 1) / 2] = true;
+        let mut keep: Vec<(u8, u8)> = Vec::new();
+        for &(i, j) in full.iter().rev() {
+            if needed[i as usize] || needed[j as usize] {
+                needed[i as usize] = true;
+                needed[j as usize] = true;
+                keep.push((i, j));
+            }
+        }
+        keep.reverse();
+        keep
+    })
+}
+
+/// Batcher's odd–even merge sort network for `n` inputs (`n <= 256`).
+fn batcher_network(n: usize) -> Vec<(u8, u8)> {
+    let size = n.next_power_of_two();
+    let mut net = Vec::new();
+    let mut p = 1;
+    while p < size {
+        let mut k = p;
+        while k >= 1 {
+            let mut j = k % p;
+            while j + k < size {
+                for i in 0..k.min(size - j - k) {
+                    if (i + j) / (2 * p) == (i + j + k) / (2 * p) && i + j + k < n {
+                        net.push(((i + j) as u8, (i + j + k) as u8));
+                    }
+                }
+                j += 2 * k;
+            }
+            k /= 2;
+        }
+        p *= 2;
+    }
+    net
+}
+
+/// Sample-wise median by integer keys, one small sort per column: the form
+/// [`median_beat`] replaces and its test oracle.
+pub fn median_beat_keys<S: AsRef<[f64]>>(segments: &[S]) -> Vec<f64> {
+    let Some(first) = segments.first() else {
+        return Vec::new();
+    };
+    let mut col = Vec::with_capacity(segments.len());
+    (0..first.as_ref().len())
+        .map(|k| {
+            col.clear();
+            col.extend(segments.iter().map(|s| total_key(s.as_ref()[k])));
+            median_of_keys(&mut col).unwrap_or(f64::NAN)
+        })
+        .collect()
 }
 
 /// Median of a slice (reorders it); NaN for an empty slice.
@@ -275,13 +580,14 @@ fn xcorr(
     h: usize,
     interp: Interpolation,
     buf: &mut Vec<f64>,
+    cache: &mut LanczosCache,
 ) -> f64 {
     let mut c = 0.0;
     for ((x, w), t) in leads.iter().zip(weights).zip(templ) {
         if *w <= 0.0 {
             continue;
         }
-        extract_into(x, center + lag as f64, h, h, interp, buf);
+        extract_with(x, center + lag as f64, h, h, interp, buf, cache);
         // The segment de-meaned on the fly: the same operations as `demeaned`.
         let m = buf.iter().sum::<f64>() / buf.len().max(1) as f64;
         c += w * buf.iter().zip(t).map(|(a, b)| (a - m) * b).sum::<f64>();
@@ -309,6 +615,7 @@ fn xcorr_shared(
     interp: Interpolation,
     long: &mut [Vec<f64>],
     cc: &mut Vec<f64>,
+    cache: &mut LanczosCache,
 ) -> bool {
     if interp != Interpolation::Sinc {
         return false;
@@ -331,10 +638,36 @@ fn xcorr_shared(
     let extra = 2 * (l as usize + 1);
     for ((x, w), seg) in leads.iter().zip(weights).zip(long.iter_mut()) {
         if *w > 0.0 {
-            extract_into(x, center + (-l - 1) as f64, h, h + extra, interp, seg);
+            extract_with(
+                x,
+                center + (-l - 1) as f64,
+                h,
+                h + extra,
+                interp,
+                seg,
+                cache,
+            );
         }
     }
-    for off in 0..=extra {
+    // Four lags at a time, one lane per lag: each lane adds its terms in the
+    // same order as the one-lag form below, so the values are the same bit
+    // for bit, while the lanes run side by side.
+    let mut off = 0;
+    while off + LAGS <= extra + 1 {
+        let mut c = [0.0; LAGS];
+        for (((_, w), t), seg) in leads.iter().zip(weights).zip(templ).zip(long.iter()) {
+            if *w <= 0.0 {
+                continue;
+            }
+            let d = lag_block(&seg[off..off + span + LAGS - 1], &t[..span]);
+            for (c, d) in c.iter_mut().zip(d) {
+                *c += w * d;
+            }
+        }
+        cc.extend_from_slice(&c);
+        off += LAGS;
+    }
+    for off in off..=extra {
         let mut c = 0.0;
         for (((_, w), t), seg) in leads.iter().zip(weights).zip(templ).zip(long.iter()) {
             if *w <= 0.0 {
@@ -347,6 +680,56 @@ fn xcorr_shared(
         cc.push(c);
     }
     true
+}
+
+/// Lags computed side by side by [`lag_block`].
+const LAGS: usize = 4;
+
+/// For `q` in `0..LAGS`: the de-meaned correlation of `seg[q..q + t.len()]`
+/// with `t`, `Σ (a − m)·b` with `m` the segment's mean, both sums in index
+/// order from the start value of `Iterator::sum` (the one-lag form of
+/// [`xcorr_shared`]); with AVX where the CPU has it (no fused
+/// multiply–add: the same operations).
+fn lag_block(seg: &[f64], t: &[f64]) -> [f64; LAGS] {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx") {
+        // SAFETY: the CPU supports AVX (checked just above).
+        return unsafe { lag_block_avx(seg, t) };
+    }
+    lag_block_body(seg, t)
+}
+
+/// [`lag_block`] compiled for AVX.
+///
+/// # Safety
+/// The CPU must support AVX.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx")]
+unsafe fn lag_block_avx(seg: &[f64], t: &[f64]) -> [f64; LAGS] {
+    lag_block_body(seg, t)
+}
+
+#[inline(always)]
+fn lag_block_body(seg: &[f64], t: &[f64]) -> [f64; LAGS] {
+    let span = t.len();
+    assert!(seg.len() >= span + LAGS - 1, "segment covers every lag");
+    let s0: f64 = std::iter::empty::<f64>().sum();
+    let mut sum = [s0; LAGS];
+    for k in 0..span {
+        let v: &[f64; LAGS] = seg[k..k + LAGS].try_into().expect("LAGS values");
+        for (a, &v) in sum.iter_mut().zip(v) {
+            *a += v;
+        }
+    }
+    let m = sum.map(|a| a / span as f64);
+    let mut dot = [s0; LAGS];
+    for (k, &b) in t.iter().enumerate() {
+        let v: &[f64; LAGS] = seg[k..k + LAGS].try_into().expect("LAGS values");
+        for ((a, &v), &m) in dot.iter_mut().zip(v).zip(&m) {
+            *a += (v - m) * b;
+        }
+    }
+    dot
 }
 
 /// Fractional offset of the maximum of a parabola through (−1,a), (0,b), (1,c).
@@ -382,30 +765,47 @@ fn align_impl(
     }
     let h = p.half_width;
     let l = p.max_lag as i64;
+    let span = 2 * h + 1;
+    let nb = pos.len();
+    let mut rows: Vec<Vec<f64>> = vec![Vec::with_capacity(nb * span); leads.len()];
+    let mut buf = Vec::with_capacity(span);
+    let mut cc = Vec::with_capacity(2 * p.max_lag + 3);
+    let mut long: Vec<Vec<f64>> = vec![Vec::new(); leads.len()];
     for _ in 0..p.passes.max(1) {
-        let templ: Vec<Vec<f64>> = leads
-            .iter()
-            .map(|x| {
-                let segs: Vec<Vec<f64>> =
-                    pos.iter().map(|&c| extract(x, c, h, h, p.interp)).collect();
-                demeaned(median_beat(&segs))
+        // Beat by beat, so that the leads of a beat and then its correlation
+        // segments reuse the beat's Lanczos weights. Leads without weight are
+        // never correlated: their templates stay empty.
+        let mut caches = vec![LanczosCache::default(); nb];
+        rows.iter_mut().for_each(Vec::clear);
+        for (&c, cache) in pos.iter().zip(caches.iter_mut()) {
+            for ((x, w), r) in leads.iter().zip(weights).zip(rows.iter_mut()) {
+                if *w > 0.0 {
+                    extract_with(x, c, h, h, p.interp, &mut buf, cache);
+                    r.extend_from_slice(&buf);
+                }
+            }
+        }
+        let templ: Vec<Vec<f64>> = rows
+            .iter_mut()
+            .map(|r| {
+                if r.is_empty() {
+                    Vec::new()
+                } else {
+                    demeaned(median_rows(r, nb, span))
+                }
             })
             .collect();
         let mut new = Vec::with_capacity(pos.len());
-        let mut buf = Vec::with_capacity(2 * h + 1);
-        let mut cc = Vec::with_capacity(2 * p.max_lag + 3);
-        let mut long: Vec<Vec<f64>> = vec![Vec::new(); leads.len()];
-        for &c in &pos {
+        for (&c, cache) in pos.iter().zip(caches.iter_mut()) {
             cc.clear();
             if !(share_segments
                 && xcorr_shared(
-                    leads, weights, &templ, c, l, h, p.interp, &mut long, &mut cc,
+                    leads, weights, &templ, c, l, h, p.interp, &mut long, &mut cc, cache,
                 ))
             {
-                cc.extend(
-                    (-l - 1..=l + 1)
-                        .map(|lag| xcorr(leads, weights, &templ, c, lag, h, p.interp, &mut buf)),
-                );
+                cc.extend((-l - 1..=l + 1).map(|lag| {
+                    xcorr(leads, weights, &templ, c, lag, h, p.interp, &mut buf, cache)
+                }));
             }
             // Peak over the searched lags; the extra lag each side feeds the parabola.
             let (mut best, mut bi) = (f64::NEG_INFINITY, 1usize);
@@ -500,6 +900,189 @@ mod tests {
         // Column [-0, 0, -0, 7] sorts as -0, -0, 0, 7: (−0 + 0)/2 = +0.
         assert_eq!(median_beat(&e)[1].to_bits(), 0.0f64.to_bits());
         assert_eq!(median(&mut [4.0, 1.0, 3.0, 2.0]), 2.5);
+    }
+
+    // The comparator networks sort by the 0-1 principle (Knuth, TAOCP vol. 3,
+    // 5.3.4): a network puts the right value at an output for every input iff
+    // it does so for every input of zeros and ones. Full networks are checked
+    // at every position, the pruned ones at the median position(s).
+    #[test]
+    fn networks_sort_every_zero_one_input() {
+        for n in 1..=16usize {
+            let full = batcher_network(n);
+            let med = median_network(n);
+            assert!(med.len() <= full.len());
+            for bits in 0u32..(1 << n) {
+                let input: Vec<u8> = (0..n).map(|i| ((bits >> i) & 1) as u8).collect();
+                let mut sorted = input.clone();
+                sorted.sort_unstable();
+                let run = |net: &[(u8, u8)]| {
+                    let mut v = input.clone();
+                    for &(i, j) in net {
+                        let (i, j) = (i as usize, j as usize);
+                        if v[i] > v[j] {
+                            v.swap(i, j);
+                        }
+                    }
+                    v
+                };
+                assert_eq!(run(&full), sorted, "n={n} bits={bits:b}");
+                let m = run(med);
+                assert_eq!(m[n / 2], sorted[n / 2], "n={n} bits={bits:b}");
+                if n % 2 == 0 {
+                    assert_eq!(m[n / 2 - 1], sorted[n / 2 - 1], "n={n} bits={bits:b}");
+                }
+            }
+        }
+        // Larger counts: random 0-1 inputs.
+        let mut s = 5u64;
+        for n in 17..=NET_MAX {
+            let med = median_network(n);
+            for _ in 0..20_000 {
+                let input: Vec<u8> = (0..n).map(|_| (lcg(&mut s) < 0.5) as u8).collect();
+                let mut sorted = input.clone();
+                sorted.sort_unstable();
+                let mut v = input.clone();
+                for &(i, j) in med {
+                    let (i, j) = (i as usize, j as usize);
+                    if v[i] > v[j] {
+                        v.swap(i, j);
+                    }
+                }
+                assert_eq!(v[n / 2], sorted[n / 2], "n={n}");
+                if n % 2 == 0 {
+                    assert_eq!(v[n / 2 - 1], sorted[n / 2 - 1], "n={n}");
+                }
+            }
+        }
+    }
+
+    // Four lags side by side against the one-lag sums (oracle), bit for
+    // bit, dispatched and base-target forms.
+    #[test]
+    fn lag_block_equals_one_lag_sums() {
+        let mut s = 21u64;
+        for span in [1usize, 2, 7, 31, 33] {
+            let t: Vec<f64> = (0..span).map(|_| lcg(&mut s) - 0.5).collect();
+            let seg: Vec<f64> = (0..span + LAGS + 2)
+                .map(|_| lcg(&mut s) * 4.0 - 1.0)
+                .collect();
+            let slow: Vec<u64> = (0..LAGS)
+                .map(|q| {
+                    let w = &seg[q..q + span];
+                    let m = w.iter().sum::<f64>() / span as f64;
+                    w.iter()
+                        .zip(&t)
+                        .map(|(a, b)| (a - m) * b)
+                        .sum::<f64>()
+                        .to_bits()
+                })
+                .collect();
+            let fast: Vec<u64> = lag_block(&seg, &t).iter().map(|v| v.to_bits()).collect();
+            let base: Vec<u64> = lag_block_body(&seg, &t)
+                .iter()
+                .map(|v| v.to_bits())
+                .collect();
+            assert_eq!(fast, slow, "span={span}");
+            assert_eq!(base, slow, "span={span}");
+        }
+    }
+
+    // The interior taps as dispatched (AVX where the CPU has it) against the
+    // body compiled for the base target, bit for bit, blocks and tails.
+    #[test]
+    fn dispatched_taps_equal_base_taps() {
+        let mut s = 11u64;
+        let w: Taps = std::array::from_fn(|_| lcg(&mut s) - 0.3);
+        let wsum: f64 = w.iter().sum();
+        for m in 0..40 {
+            let src: Vec<f64> = (0..m + w.len() - 1)
+                .map(|_| lcg(&mut s) * 3.0 - 1.0)
+                .collect();
+            let (mut a, mut b) = (vec![7.0; m], vec![-3.0; m]);
+            interior_taps(&mut a, &src, &w, wsum, -0.0);
+            interior_taps_body(&mut b, &src, &w, wsum, -0.0);
+            let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            assert_eq!(bits(&a), bits(&b), "m={m}");
+        }
+    }
+
+    // The SIMD comparators against the scalar rule (oracle), bit for bit:
+    // ties, signed zeros, NaN on either side, infinities, every tail length.
+    #[test]
+    fn simd_comparator_equals_scalar_rule() {
+        let mut s = 3u64;
+        let pick = |r: f64| -> f64 {
+            match (r * 10.0) as u32 {
+                0 => 0.0,
+                1 => -0.0,
+                2 => f64::NAN,
+                3 => f64::INFINITY,
+                4 => f64::NEG_INFINITY,
+                5 => 1.0,
+                _ => r - 0.5,
+            }
+        };
+        for len in 0..23 {
+            for _ in 0..50 {
+                let a: Vec<f64> = (0..len).map(|_| pick(lcg(&mut s))).collect();
+                let b: Vec<f64> = (0..len).map(|_| pick(lcg(&mut s))).collect();
+                let (mut fa, mut fb) = (a.clone(), b.clone());
+                let (mut sa, mut sb) = (a.clone(), b.clone());
+                compare_rows(&mut fa, &mut fb);
+                compare_rows_scalar(&mut sa, &mut sb);
+                let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                assert_eq!(
+                    (bits(&fa), bits(&fb)),
+                    (bits(&sa), bits(&sb)),
+                    "{a:?} {b:?}"
+                );
+                #[cfg(target_arch = "x86_64")]
+                {
+                    let (mut ta, mut tb) = (a.clone(), b.clone());
+                    compare_rows_sse2(&mut ta, &mut tb);
+                    assert_eq!((bits(&ta), bits(&tb)), (bits(&sa), bits(&sb)));
+                }
+            }
+        }
+    }
+
+    // The network median against one key sort per column (oracle), bit for
+    // bit: 1 to 40 segments (network and key paths), ties, signed zeros,
+    // NaN and infinities in some columns, values of mixed magnitudes.
+    #[test]
+    fn network_median_equals_key_median() {
+        let mut s = 17u64;
+        for n in 1..=40usize {
+            for round in 0..6 {
+                let len: usize = 1 + (round * 37) % 90;
+                let segs: Vec<Vec<f64>> = (0..n)
+                    .map(|_| {
+                        (0..len)
+                            .map(|k| {
+                                let r = lcg(&mut s);
+                                match (k + round) % 11 {
+                                    0 if r < 0.3 => 0.0,
+                                    1 if r < 0.3 => -0.0,
+                                    2 if r < 0.05 => f64::NAN,
+                                    3 if r < 0.05 => f64::INFINITY,
+                                    4 if r < 0.05 => f64::NEG_INFINITY,
+                                    5 => (r * 4.0).floor() - 2.0, // many ties
+                                    _ => (r - 0.5) * 10f64.powi((k % 5) as i32 - 2),
+                                }
+                            })
+                            .collect()
+                    })
+                    .collect();
+                let fast = median_beat(&segs);
+                let slow = median_beat_keys(&segs);
+                let fb: Vec<u64> = fast.iter().map(|v| v.to_bits()).collect();
+                let sb: Vec<u64> = slow.iter().map(|v| v.to_bits()).collect();
+                assert_eq!(fb, sb, "n={n} len={len}");
+            }
+        }
+        let empty: Vec<Vec<f64>> = Vec::new();
+        assert!(median_beat(&empty).is_empty());
     }
 
     // Selection against the full sort (oracle), bit for bit, odd and even counts,
@@ -689,6 +1272,28 @@ mod tests {
                     (v - expect).abs() < tol,
                     "{interp:?} k={k} got {v} want {expect}"
                 );
+            }
+        }
+    }
+
+    // Extraction with weights reused from the cache against fresh weights
+    // for every segment (oracle), bit for bit: repeated and changing
+    // fractional offsets, integer starts, both interpolations.
+    #[test]
+    fn cached_weights_equal_fresh_weights() {
+        let x: Vec<f64> = (0..400).map(|i| (i as f64 * 0.21).cos() * 0.8).collect();
+        let mut cache = LanczosCache::default();
+        let centres = [
+            100.3, 150.3, 150.3, 151.3, 200.0, 200.7, 10.7, 390.7, 3.25, 3.25, 120.3,
+        ];
+        for interp in [Interpolation::Sinc, Interpolation::Linear] {
+            for &c in &centres {
+                let (mut a, mut b) = (Vec::new(), Vec::new());
+                extract_with(&x, c, 20, 35, interp, &mut a, &mut cache);
+                extract_into(&x, c, 20, 35, interp, &mut b);
+                let ab: Vec<u64> = a.iter().map(|v| v.to_bits()).collect();
+                let bb: Vec<u64> = b.iter().map(|v| v.to_bits()).collect();
+                assert_eq!(ab, bb, "c={c} {interp:?}");
             }
         }
     }

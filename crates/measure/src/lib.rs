@@ -471,9 +471,23 @@ where
     let segs: Vec<Vec<Vec<f64>>> = keep_pos
         .iter()
         .map(|&k| {
+            // The leads of a beat share its Lanczos weights.
+            let mut cache = align::LanczosCache::default();
             ctx.leads
                 .iter()
-                .map(|x| align::extract(x, pos[k], before, after, cfg.interpolation))
+                .map(|x| {
+                    let mut v = Vec::with_capacity(before + after + 1);
+                    align::extract_with(
+                        x,
+                        pos[k],
+                        before,
+                        after,
+                        cfg.interpolation,
+                        &mut v,
+                        &mut cache,
+                    );
+                    v
+                })
                 .collect()
         })
         .collect();

@@ -57,12 +57,13 @@ fn write_attr(loc: &hdf5::Location, path: &Path, name: &str, a: &Attr) -> Result
     .map_err(e)
 }
 
-fn nd<T: Clone>(
+/// A view of `values` with `shape` (no copy: the writer reads the slice).
+fn nd<'a, T>(
     path: &Path,
     shape: &[usize],
-    values: &[T],
-) -> Result<ndarray::ArrayD<T>, StoreError> {
-    ndarray::ArrayD::from_shape_vec(ndarray::IxDyn(shape), values.to_vec()).map_err(|e| {
+    values: &'a [T],
+) -> Result<ndarray::ArrayViewD<'a, T>, StoreError> {
+    ndarray::ArrayViewD::from_shape(ndarray::IxDyn(shape), values).map_err(|e| {
         StoreError::Invalid {
             path: path.to_path_buf(),
             message: format!("array of shape {shape:?} with {} values: {e}", values.len()),
@@ -141,18 +142,23 @@ fn write_group(g: &hdf5::Group, path: &Path, tree: &Group) -> Result<(), StoreEr
             }
             Data::F32Matrix { cols, values } => {
                 let rows = values.len().checked_div(*cols).unwrap_or(0);
-                let arr = ndarray::Array2::from_shape_vec((rows, *cols), values.clone())
-                    .expect("rows * cols == len by construction");
-                b.with_data(&arr).create(name.as_str())
+                assert_eq!(
+                    rows * cols,
+                    values.len(),
+                    "rows * cols == len by construction"
+                );
+                let arr = ndarray::ArrayView2::from_shape((rows, *cols), values.as_slice())
+                    .expect("rows * cols == len");
+                b.with_data(arr).create(name.as_str())
             }
             Data::I64Nd { shape, values } => {
-                b.with_data(&nd(path, shape, values)?).create(name.as_str())
+                b.with_data(nd(path, shape, values)?).create(name.as_str())
             }
             Data::F64Nd { shape, values } => {
-                b.with_data(&nd(path, shape, values)?).create(name.as_str())
+                b.with_data(nd(path, shape, values)?).create(name.as_str())
             }
             Data::F32Nd { shape, values } => {
-                b.with_data(&nd(path, shape, values)?).create(name.as_str())
+                b.with_data(nd(path, shape, values)?).create(name.as_str())
             }
         }
         .map_err(&e)?;

@@ -150,6 +150,49 @@ mod tests {
         assert!(e.contains("r.json") && e.contains("damaged"), "{e}");
     }
 
+    // Part files of earlier versions wrote f32 arrays as JSON arrays with
+    // `null` for NaN: they still load, as the same values.
+    #[test]
+    fn part_with_f32_arrays_in_the_array_form_loads() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path().join("old.json");
+        std::fs::write(
+            &p,
+            br#"{"record":"r","key":"k","group":{"attrs":{},"datasets":{
+                "c":{"data":{"F32":[0.5,null,-2.25]},"attrs":{}},
+                "m":{"data":{"F32Matrix":{"cols":2,"values":[1.0,2.0,null,4.0]}},"attrs":{}},
+                "n":{"data":{"F32Nd":{"shape":[1,2],"values":[3.5,null]}},"attrs":{}}},
+                "groups":{}}}"#,
+        )
+        .unwrap();
+        let part = Part::load(&p).unwrap().unwrap();
+        let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+        let Data::F32(c) = &part.group.datasets["c"].data else {
+            panic!("F32 expected");
+        };
+        assert_eq!(bits(c), bits(&[0.5, f32::NAN, -2.25]));
+        let Data::F32Matrix { cols, values } = &part.group.datasets["m"].data else {
+            panic!("F32Matrix expected");
+        };
+        assert_eq!((*cols, bits(values)), (2, bits(&[1.0, 2.0, f32::NAN, 4.0])));
+        let Data::F32Nd { shape, values } = &part.group.datasets["n"].data else {
+            panic!("F32Nd expected");
+        };
+        assert_eq!(
+            (shape.clone(), bits(values)),
+            (vec![1, 2], bits(&[3.5, f32::NAN]))
+        );
+        // Saved again, the values come back in the packed form with the same bits.
+        part.save(&p).unwrap();
+        let text = std::fs::read_to_string(&p).unwrap();
+        assert!(text.contains(r#""F32":""#), "{text}");
+        let again = Part::load(&p).unwrap().unwrap();
+        let Data::F32(c2) = &again.group.datasets["c"].data else {
+            panic!("F32 expected");
+        };
+        assert_eq!(bits(c2), bits(c));
+    }
+
     // A resumed record reads its values back from its part file, a fresh one
     // writes them from memory: both must be the same bits (serde_json parses
     // floats exactly only with its `float_roundtrip` feature). The first value
