@@ -20,7 +20,7 @@
 
 use crate::pt::{self, moving_mean};
 use crate::{BeatLabel, DetectConfig};
-use tendline_dsp::select::median_of_rows;
+use tendline_dsp::colmedian::column_median;
 
 /// Median (mean of the two middle values for even counts, 0 for none), by
 /// selection: the k-th value in `total_cmp` order is unique bit for bit, so
@@ -82,9 +82,7 @@ pub fn correlation(a: &[f64], b: &[f64]) -> f64 {
 
 fn elementwise_median(vs: &[&Vec<f64>]) -> Vec<f64> {
     // The same value as `median` of each column, all columns at once.
-    let mut out = Vec::new();
-    median_of_rows(vs, &mut out);
-    out
+    column_median(vs)
 }
 
 /// Labels for `beats` (sorted fiducial samples). `weights[i][l]` is lead `l`'s

@@ -30,6 +30,7 @@
 //! * **Non-finite samples** are not screened here (the readers reject them);
 //!   a NaN propagates through an IIR filter to the end of the signal.
 
+pub mod colmedian;
 pub mod filter;
 pub mod resample;
 pub mod select;
