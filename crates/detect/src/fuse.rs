@@ -943,10 +943,8 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
             }
         })
         .collect();
-    let feats: Vec<LeadFeatures> = clean
-        .iter()
-        .map(|x| pt::lead_features(x, fs, cfg))
-        .collect();
+    let clean_refs: Vec<&[f64]> = clean.iter().map(|x| x.as_ref()).collect();
+    let feats: Vec<LeadFeatures> = pt::leads_features(&clean_refs, fs, cfg);
     let masks: Vec<Vec<LeadState>> = (0..nl)
         .map(|l| lead_mask(leads[l], &clean[l], &feats[l].bp, fs, cfg))
         .collect();

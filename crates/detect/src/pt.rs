@@ -87,26 +87,44 @@ pub(crate) fn moving_mean_reference(x: &[f64], w: usize) -> Vec<f64> {
 /// `order` each, forward and backward). Padding is three periods of `lo_hz`, enough
 /// for the high-pass transient to decay. `detect` has already checked the band
 /// against `fs`, so a failed design cannot happen here; it would leave `x` unfiltered.
-fn bandpass(x: &[f64], fs: f64, lo_hz: f64, hi_hz: f64, order: usize) -> Vec<f64> {
+///
+/// Several leads at once: equal-length leads run in pairs through one
+/// cascade ([`tendline_dsp::filter::filtfilt_sos_padded_many`]), with the same
+/// result as one at a time.
+fn bandpass(xs: &[&[f64]], fs: f64, lo_hz: f64, hi_hz: f64, order: usize) -> Vec<Vec<f64>> {
     use tendline_dsp::filter::{
-        butterworth_highpass_sos, butterworth_lowpass_sos, filtfilt_sos_padded,
+        butterworth_highpass_sos, butterworth_lowpass_sos, filtfilt_sos_padded_many,
     };
     let mut sos = butterworth_highpass_sos(order, lo_hz, fs).unwrap_or_default();
     sos.extend(butterworth_lowpass_sos(order, hi_hz, fs).unwrap_or_default());
     let pad = (3.0 * fs / lo_hz).ceil() as usize;
-    filtfilt_sos_padded(&sos, x, pad)
+    filtfilt_sos_padded_many(&sos, xs, pad)
 }
 
 /// Band-pass, derivative (in mV/s, so values do not depend on `fs`), squaring
 /// and moving-window integration.
 pub(crate) fn lead_features(x: &[f64], fs: f64, cfg: &DetectConfig) -> LeadFeatures {
-    let bp = bandpass(
-        x,
+    leads_features(&[x], fs, cfg)
+        .pop()
+        .expect("one lead in, one out")
+}
+
+/// [`lead_features`] of every lead, the band-pass run on the leads together.
+pub(crate) fn leads_features(xs: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Vec<LeadFeatures> {
+    bandpass(
+        xs,
         fs,
         cfg.bandpass_low_hz,
         cfg.bandpass_high_hz,
         cfg.bandpass_order,
-    );
+    )
+    .into_iter()
+    .map(|bp| features_of_bandpassed(bp, fs, cfg))
+    .collect()
+}
+
+/// Derivative, squaring and moving-window integration of a band-passed lead.
+fn features_of_bandpassed(bp: Vec<f64>, fs: f64, cfg: &DetectConfig) -> LeadFeatures {
     let n = bp.len();
     // Central difference inside, one-sided at the two ends.
     let sq_deriv = |i: usize| {
