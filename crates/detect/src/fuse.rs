@@ -534,26 +534,33 @@ struct LeadBlocks<'a> {
 /// weight zeroed where the lead is masked; the weights are also returned per
 /// sample, with their sum per lead (`Iterator::sum` order).
 ///
-/// Lead by lead over the runs of [`Blocks::runs`]: within a run a lead's
-/// two block values of each array are fixed and each sample's interpolation
-/// fraction is computed once, and every lead adds its terms to the
-/// per-sample sums in lead order, as a per-sample loop over the leads would,
-/// so every value is the same expression as [`Blocks::interpolate`]
-/// followed by [`combine_arrays`] (the test oracle), hence the same bits.
+/// Run by run of [`Blocks::runs`], and within a run lead by lead: a lead's
+/// two block values of each array are fixed in a run, and each sample's
+/// interpolation fraction (the same for every lead) is computed once per
+/// run. Every lead adds its terms to the per-sample sums in lead order, as a
+/// per-sample loop over the leads would, so every value is the same
+/// expression as [`Blocks::interpolate`] followed by [`combine_arrays`] (the
+/// test oracle), hence the same bits. The per-sample loops have no branches
+/// (a skipped term is an added `+0.0`, which leaves a sum that starts at
+/// `+0.0` unchanged), so the compiler vectorises their divisions and square
+/// roots; the weight sums, sequential by definition, are taken afterwards
+/// in one pass over all leads, whose independent chains then overlap.
 fn combine(
     feats: &[LeadFeatures],
     per_lead: &[LeadBlocks],
     blocks: &Blocks,
 ) -> (Combined, Vec<Vec<f64>>, Vec<f64>) {
     let n = blocks.n;
-    let runs = blocks.runs();
     let (mut den, mut m, mut f, mut s) = (vec![0.0; n], vec![0.0; n], vec![0.0; n], vec![0.0; n]);
-    let mut w2: Vec<Vec<f64>> = Vec::with_capacity(feats.len());
-    let mut wsum: Vec<f64> = Vec::with_capacity(feats.len());
-    for (fe, lb) in feats.iter().zip(per_lead) {
-        let mut wl = vec![0.0; n];
-        let mut sum: f64 = std::iter::empty::<f64>().sum();
-        for &(a, e, run) in &runs {
+    let mut w2: Vec<Vec<f64>> = (0..feats.len()).map(|_| vec![0.0; n]).collect();
+    let mut frac: Vec<f64> = Vec::with_capacity(blocks.len + 1);
+    for (a, e, run) in blocks.runs() {
+        if let Run::Lerp(b) = run {
+            let (c0, c1) = (blocks.centre(b), blocks.centre(b + 1));
+            frac.clear();
+            frac.extend((a..e).map(|t| ((t as f64 - c0) / (c1 - c0)).clamp(0.0, 1.0)));
+        }
+        for ((fe, lb), wl) in feats.iter().zip(per_lead).zip(&mut w2) {
             let sums = LeadRun {
                 mask: &lb.mask[a..e],
                 mwi: &fe.mwi[a..e],
@@ -568,36 +575,25 @@ fn combine(
             match run {
                 Run::Const(b) => {
                     let (w, si, sf) = (lb.weight[b], lb.scale_i[b], lb.scale_f[b]);
-                    sums.add(&mut sum, |_| (w, si, sf));
+                    sums.add_const(w, si, sf);
                 }
-                Run::Lerp(b) => {
-                    let (c0, c1) = (blocks.centre(b), blocks.centre(b + 1));
-                    let (w0, w1) = (lb.weight[b], lb.weight[b + 1]);
-                    let (i0, i1) = (lb.scale_i[b], lb.scale_i[b + 1]);
-                    let (f0, f1) = (lb.scale_f[b], lb.scale_f[b + 1]);
-                    sums.add(&mut sum, |k| {
-                        let t = a + k;
-                        let fr = ((t as f64 - c0) / (c1 - c0)).clamp(0.0, 1.0);
-                        (
-                            w0 * (1.0 - fr) + w1 * fr,
-                            i0 * (1.0 - fr) + i1 * fr,
-                            f0 * (1.0 - fr) + f1 * fr,
-                        )
-                    });
-                }
+                Run::Lerp(b) => sums.add_lerp(
+                    &frac,
+                    (lb.weight[b], lb.weight[b + 1]),
+                    (lb.scale_i[b], lb.scale_i[b + 1]),
+                    (lb.scale_f[b], lb.scale_f[b + 1]),
+                ),
             }
         }
-        w2.push(wl);
-        wsum.push(sum);
     }
+    let wsum = sums_in_order(&w2);
     for (((d, m), f), s) in den.iter().zip(&mut m).zip(&mut f).zip(&mut s) {
-        if *d > 0.0 {
-            *m /= d;
-            *f = (*f / d).sqrt();
-            *s = (*s / d).sqrt();
-        } else {
-            (*m, *f, *s) = (0.0, 0.0, 0.0);
-        }
+        // Both branches computed, one kept: vector division and square root.
+        let ok = *d > 0.0;
+        let (qm, qf, qs) = (*m / d, (*f / d).sqrt(), (*s / d).sqrt());
+        *m = if ok { qm } else { 0.0 };
+        *f = if ok { qf } else { 0.0 };
+        *s = if ok { qs } else { 0.0 };
     }
     (
         Combined {
@@ -608,6 +604,49 @@ fn combine(
         w2,
         wsum,
     )
+}
+
+/// `v.iter().sum::<f64>()` of each of `vs` (equal lengths), walking the
+/// arrays side by side in groups of up to four: each sum adds its values in
+/// its own order, as the iterator does, and the chains of additions of the
+/// leads of a group are independent, so they run overlapped instead of one
+/// after the other.
+fn sums_in_order(vs: &[Vec<f64>]) -> Vec<f64> {
+    let mut out: Vec<f64> = Vec::with_capacity(vs.len());
+    for group in vs.chunks(4) {
+        let mut acc = [std::iter::empty::<f64>().sum::<f64>(); 4];
+        match group {
+            [a] => {
+                for x in a {
+                    acc[0] += x;
+                }
+            }
+            [a, b] => {
+                for (x, y) in a.iter().zip(b) {
+                    acc[0] += x;
+                    acc[1] += y;
+                }
+            }
+            [a, b, c] => {
+                for ((x, y), z) in a.iter().zip(b).zip(c) {
+                    acc[0] += x;
+                    acc[1] += y;
+                    acc[2] += z;
+                }
+            }
+            [a, b, c, d] => {
+                for (((x, y), z), u) in a.iter().zip(b).zip(c).zip(d) {
+                    acc[0] += x;
+                    acc[1] += y;
+                    acc[2] += z;
+                    acc[3] += u;
+                }
+            }
+            _ => unreachable!("chunks of 1 to 4"),
+        }
+        out.extend_from_slice(&acc[..group.len()]);
+    }
+    out
 }
 
 /// One lead's samples of one run of [`combine`] (all slices of the run's length).
@@ -624,33 +663,80 @@ struct LeadRun<'a> {
 }
 
 impl LeadRun<'_> {
-    /// Adds the lead's terms; `at(k)` gives the interpolated weight and
-    /// scales (integrated, band-passed) at the run's `k`-th sample.
-    #[inline(always)]
-    fn add(self, wsum: &mut f64, at: impl Fn(usize) -> (f64, f64, f64)) {
+    /// Adds the lead's terms with fixed weight and scales (integrated,
+    /// band-passed).
+    fn add_const(self, w: f64, si: f64, sf: f64) {
         let len = self.mask.len();
         let (mwi, bp, d2) = (&self.mwi[..len], &self.bp[..len], &self.d2[..len]);
         let (wo, den) = (&mut self.w[..len], &mut self.den[..len]);
         let (m, f, s) = (&mut self.m[..len], &mut self.f[..len], &mut self.s[..len]);
         for k in 0..len {
-            if self.mask[k] != LeadState::Ok {
-                // The weight stays 0 (the buffer starts zeroed) and is
-                // added, as the per-sample form does.
-                *wsum += 0.0;
-                continue;
-            }
-            let (w, si, sf) = at(k);
-            wo[k] = w;
-            *wsum += w;
-            if w <= 0.0 || si <= 0.0 || sf <= 0.0 {
-                continue;
-            }
-            den[k] += w;
-            m[k] += w * mwi[k] / si;
-            let b = bp[k] / sf;
-            f[k] += w * b * b;
-            s[k] += w * d2[k] / si;
+            let t = terms(self.mask[k], w, si, sf, mwi[k], bp[k], d2[k]);
+            wo[k] = t.0;
+            den[k] += t.1;
+            m[k] += t.2;
+            f[k] += t.3;
+            s[k] += t.4;
         }
+    }
+
+    /// Adds the lead's terms with weight and scales interpolated between two
+    /// block values by `frac` (one fraction per sample of the run).
+    fn add_lerp(
+        self,
+        frac: &[f64],
+        (w0, w1): (f64, f64),
+        (i0, i1): (f64, f64),
+        (f0, f1): (f64, f64),
+    ) {
+        let len = self.mask.len();
+        let fr = &frac[..len];
+        let (mwi, bp, d2) = (&self.mwi[..len], &self.bp[..len], &self.d2[..len]);
+        let (wo, den) = (&mut self.w[..len], &mut self.den[..len]);
+        let (m, f, s) = (&mut self.m[..len], &mut self.f[..len], &mut self.s[..len]);
+        for k in 0..len {
+            let r = fr[k];
+            let (w, si, sf) = (
+                w0 * (1.0 - r) + w1 * r,
+                i0 * (1.0 - r) + i1 * r,
+                f0 * (1.0 - r) + f1 * r,
+            );
+            let t = terms(self.mask[k], w, si, sf, mwi[k], bp[k], d2[k]);
+            wo[k] = t.0;
+            den[k] += t.1;
+            m[k] += t.2;
+            f[k] += t.3;
+            s[k] += t.4;
+        }
+    }
+}
+
+/// One lead's contribution at one sample: (its weight, then its terms of
+/// the denominator and of the three sums). A masked sample has weight 0 and
+/// no terms; a sample with a weight or scale that is not positive keeps its
+/// weight but adds no terms. "No term" is `+0.0`: the sums start at `+0.0`,
+/// a sum of finite or infinite values is never `−0.0` (`x + y` is `−0.0`
+/// only when both are), and adding `+0.0` to anything but `−0.0` returns it
+/// unchanged, so this equals skipping the term. Every value is computed and
+/// the results chosen by selection (no branches).
+#[inline(always)]
+fn terms(
+    mask: LeadState,
+    w: f64,
+    si: f64,
+    sf: f64,
+    mwi: f64,
+    bp: f64,
+    d2: f64,
+) -> (f64, f64, f64, f64, f64) {
+    let w = if mask == LeadState::Ok { w } else { 0.0 };
+    let skip = w <= 0.0 || si <= 0.0 || sf <= 0.0;
+    let b = bp / sf;
+    let (tm, tf, ts) = (w * mwi / si, w * b * b, w * d2 / si);
+    if skip {
+        (w, 0.0, 0.0, 0.0, 0.0)
+    } else {
+        (w, w, tm, tf, ts)
     }
 }
 
@@ -1399,17 +1485,25 @@ mod block_tests {
     }
 
     // The one-pass combination against interpolated arrays and the per-sample
-    // combination (oracle), bit for bit: two leads, masked stretches, blocks
+    // combination (oracle), bit for bit: one to six leads (the weight sums
+    // go in groups of up to four), masked stretches, blocks
     // with zero weight or zero scale, a short last block, one block only.
     #[test]
     fn fused_combination_equals_interpolated_arrays() {
-        for (n, len) in [(10_250usize, 500usize), (700, 1000), (2_001, 200)] {
+        for (n, len, nl) in [
+            (10_250usize, 500usize, 2usize),
+            (700, 1000, 2),
+            (2_001, 200, 2),
+            (3_100, 250, 1),
+            (3_100, 250, 3),
+            (4_321, 300, 6),
+        ] {
             let blocks = Blocks {
                 len,
                 count: n.div_ceil(len),
                 n,
             };
-            let feats: Vec<LeadFeatures> = (0..2)
+            let feats: Vec<LeadFeatures> = (0..nl)
                 .map(|l| {
                     let bp: Vec<f64> = (0..n)
                         .map(|i| ((i * (3 + l)) as f64 * 0.05).sin())
@@ -1427,10 +1521,10 @@ mod block_tests {
                     })
                     .collect()
             };
-            let scale_i: Vec<Vec<f64>> = (0..2).map(|l| per_block(l, 1)).collect();
-            let scale_f: Vec<Vec<f64>> = (0..2).map(|l| per_block(l, 2)).collect();
-            let weight: Vec<Vec<f64>> = (0..2).map(|l| per_block(l, 3)).collect();
-            let masks: Vec<Vec<LeadState>> = (0..2)
+            let scale_i: Vec<Vec<f64>> = (0..nl).map(|l| per_block(l, 1)).collect();
+            let scale_f: Vec<Vec<f64>> = (0..nl).map(|l| per_block(l, 2)).collect();
+            let weight: Vec<Vec<f64>> = (0..nl).map(|l| per_block(l, 3)).collect();
+            let masks: Vec<Vec<LeadState>> = (0..nl)
                 .map(|l| {
                     (0..n)
                         .map(|i| {
@@ -1443,7 +1537,7 @@ mod block_tests {
                         .collect()
                 })
                 .collect();
-            let per_lead: Vec<LeadBlocks> = (0..2)
+            let per_lead: Vec<LeadBlocks> = (0..nl)
                 .map(|l| LeadBlocks {
                     scale_i: &scale_i[l],
                     scale_f: &scale_f[l],
@@ -1454,7 +1548,7 @@ mod block_tests {
             let (fast, w2, wsum) = combine(&feats, &per_lead, &blocks);
             let si: Vec<Vec<f64>> = scale_i.iter().map(|v| blocks.interpolate(v)).collect();
             let sf: Vec<Vec<f64>> = scale_f.iter().map(|v| blocks.interpolate(v)).collect();
-            let ws: Vec<Vec<f64>> = (0..2)
+            let ws: Vec<Vec<f64>> = (0..nl)
                 .map(|l| {
                     blocks
                         .interpolate(&weight[l])
@@ -1469,7 +1563,7 @@ mod block_tests {
             assert_eq!(bits(&fast.mwi), bits(&slow.mwi), "n={n}");
             assert_eq!(bits(&fast.filt), bits(&slow.filt), "n={n}");
             assert_eq!(bits(&fast.slope), bits(&slow.slope), "n={n}");
-            for l in 0..2 {
+            for l in 0..nl {
                 assert_eq!(bits(&w2[l]), bits(&ws[l]), "n={n} lead {l}");
                 assert_eq!(wsum[l].to_bits(), ws[l].iter().sum::<f64>().to_bits());
             }
