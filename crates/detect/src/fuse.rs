@@ -601,14 +601,13 @@ fn combine(
         }
     }
     let wsum = sums_in_order(&w2);
-    for (((d, m), f), s) in den.iter().zip(&mut m).zip(&mut f).zip(&mut s) {
-        // Both branches computed, one kept: vector division and square root.
-        let ok = *d > 0.0;
-        let (qm, qf, qs) = (*m / d, (*f / d).sqrt(), (*s / d).sqrt());
-        *m = if ok { qm } else { 0.0 };
-        *f = if ok { qf } else { 0.0 };
-        *s = if ok { qs } else { 0.0 };
-    }
+    // SAFETY: SSE2 is part of every x86-64 processor.
+    #[cfg(target_arch = "x86_64")]
+    unsafe {
+        normalise_pairs(&den, &mut m, &mut f, &mut s)
+    };
+    #[cfg(not(target_arch = "x86_64"))]
+    normalise_scalar(&den, &mut m, &mut f, &mut s);
     (
         Combined {
             mwi: m,
@@ -618,6 +617,47 @@ fn combine(
         w2,
         wsum,
     )
+}
+
+/// The sums divided by the denominator (`f` and `s` then square-rooted),
+/// 0 where the denominator is not positive; sample by sample.
+#[cfg_attr(target_arch = "x86_64", allow(dead_code))]
+fn normalise_scalar(den: &[f64], m: &mut [f64], f: &mut [f64], s: &mut [f64]) {
+    for (((d, m), f), s) in den.iter().zip(m).zip(f).zip(s) {
+        if *d > 0.0 {
+            *m /= d;
+            *f = (*f / d).sqrt();
+            *s = (*s / d).sqrt();
+        } else {
+            (*m, *f, *s) = (0.0, 0.0, 0.0);
+        }
+    }
+}
+
+/// [`normalise_scalar`] two samples at a time in SSE2 lanes: both results
+/// computed, the kept one chosen by a bit mask (`+0.0` where the
+/// denominator is not positive), so every lane has the scalar bits.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "sse2")]
+fn normalise_pairs(den: &[f64], m: &mut [f64], f: &mut [f64], s: &mut [f64]) {
+    use std::arch::x86_64::{_mm_and_pd, _mm_cmpgt_pd, _mm_div_pd, _mm_setzero_pd, _mm_sqrt_pd};
+    let n = den.len();
+    let (m, f, s) = (&mut m[..n], &mut f[..n], &mut s[..n]);
+    let z = _mm_setzero_pd();
+    let mut k = 0;
+    while k + 2 <= n {
+        let r = k..k + 2;
+        let d = lanes::load(&den[r.clone()]);
+        let ok = _mm_cmpgt_pd(d, z);
+        let qm = _mm_div_pd(lanes::load(&m[r.clone()]), d);
+        let qf = _mm_sqrt_pd(_mm_div_pd(lanes::load(&f[r.clone()]), d));
+        let qs = _mm_sqrt_pd(_mm_div_pd(lanes::load(&s[r.clone()]), d));
+        lanes::store(&mut m[r.clone()], _mm_and_pd(ok, qm));
+        lanes::store(&mut f[r.clone()], _mm_and_pd(ok, qf));
+        lanes::store(&mut s[r], _mm_and_pd(ok, qs));
+        k += 2;
+    }
+    normalise_scalar(&den[k..], &mut m[k..], &mut f[k..], &mut s[k..]);
 }
 
 /// `v.iter().sum::<f64>()` of each of `vs` (equal lengths), walking the
@@ -1135,6 +1175,105 @@ fn fill_nearest_reference(v: &[Option<f64>]) -> Vec<f64> {
     (0..v.len()).map(|i| nearest_known(&known, i)).collect()
 }
 
+/// Why each sample is unreadable (every lead flat, saturated or, in a
+/// noise block, noise), `None` where it is readable.
+fn unreadable_reasons(
+    masks: &[Vec<LeadState>],
+    noise_block: &[bool],
+    blocks: &Blocks,
+) -> Vec<Option<&'static str>> {
+    let n = blocks.n;
+    // Block by block (the blocks cover `0..n` in order), so that a sample's
+    // block is known without a division.
+    let mut reason_at = vec![None; n];
+    let mut any_ok: Vec<bool> = Vec::with_capacity(blocks.len);
+    for (b, &noise) in noise_block.iter().enumerate() {
+        let (a, e) = blocks.range(b);
+        if !noise {
+            // Outside noise blocks a sample is unreadable only when no lead
+            // is usable there: a block where some lead is usable at every
+            // sample (the usual case) has none, found by a pass per lead
+            // instead of the per-sample walk over the leads below.
+            any_ok.clear();
+            any_ok.resize(e - a, false);
+            for m in masks {
+                for (o, s) in any_ok.iter_mut().zip(&m[a..e]) {
+                    *o |= *s == LeadState::Ok;
+                }
+            }
+            if any_ok.iter().all(|&o| o) {
+                continue;
+            }
+        }
+        for (t, r) in reason_at[a..e]
+            .iter_mut()
+            .enumerate()
+            .map(|(k, r)| (a + k, r))
+        {
+            let mut all_bad = true;
+            let (mut flat, mut sat) = (0, 0);
+            for m in masks {
+                match m[t] {
+                    LeadState::Flat => flat += 1,
+                    LeadState::Saturated => sat += 1,
+                    LeadState::Ok => {
+                        if !noise {
+                            all_bad = false;
+                        }
+                    }
+                }
+            }
+            if all_bad {
+                *r = Some(if sat > 0 && sat >= flat {
+                    "saturation"
+                } else if flat > 0 {
+                    "flat"
+                } else {
+                    "noise"
+                });
+            }
+        }
+    }
+    reason_at
+}
+
+/// [`unreadable_reasons`] by the walk over the leads at every sample (the
+/// form it replaced; test oracle).
+#[cfg(test)]
+fn unreadable_reasons_reference(
+    masks: &[Vec<LeadState>],
+    noise_block: &[bool],
+    blocks: &Blocks,
+) -> Vec<Option<&'static str>> {
+    let mut reason_at = vec![None; blocks.n];
+    for (t, r) in reason_at.iter_mut().enumerate() {
+        let noise = noise_block[t / blocks.len];
+        let mut all_bad = true;
+        let (mut flat, mut sat) = (0, 0);
+        for m in masks {
+            match m[t] {
+                LeadState::Flat => flat += 1,
+                LeadState::Saturated => sat += 1,
+                LeadState::Ok => {
+                    if !noise {
+                        all_bad = false;
+                    }
+                }
+            }
+        }
+        if all_bad {
+            *r = Some(if sat > 0 && sat >= flat {
+                "saturation"
+            } else if flat > 0 {
+                "flat"
+            } else {
+                "noise"
+            });
+        }
+    }
+    reason_at
+}
+
 pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Detection {
     let n = leads[0].len();
     let nl = leads.len();
@@ -1242,40 +1381,7 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     fid.dedup();
 
     // Unreadable: every lead flat, saturated or noise.
-    // Block by block (the blocks cover `0..n` in order), so that a sample's
-    // block is known without a division.
-    let mut reason_at = vec![None; n];
-    for (b, &noise) in noise_block.iter().enumerate() {
-        let (a, e) = blocks.range(b);
-        for (t, r) in reason_at[a..e]
-            .iter_mut()
-            .enumerate()
-            .map(|(k, r)| (a + k, r))
-        {
-            let mut all_bad = true;
-            let (mut flat, mut sat) = (0, 0);
-            for m in &masks {
-                match m[t] {
-                    LeadState::Flat => flat += 1,
-                    LeadState::Saturated => sat += 1,
-                    LeadState::Ok => {
-                        if !noise {
-                            all_bad = false;
-                        }
-                    }
-                }
-            }
-            if all_bad {
-                *r = Some(if sat > 0 && sat >= flat {
-                    "saturation"
-                } else if flat > 0 {
-                    "flat"
-                } else {
-                    "noise"
-                });
-            }
-        }
-    }
+    let reason_at = unreadable_reasons(&masks, &noise_block, &blocks);
     let min_len = pt::ms_to_samples(cfg.unreadable_min_ms, fs);
     let mut unreadable: Vec<Span> = Vec::new();
     let mut t = 0;
@@ -1689,6 +1795,79 @@ mod block_tests {
                     assert_eq!(run(true, lerp), run(false, lerp), "len={len} lerp={lerp}");
                 }
             }
+        }
+    }
+
+    // The two-lane normalisation against the sample-by-sample form (oracle),
+    // bit for bit: denominators positive, zero, negative, NaN; odd length.
+    #[test]
+    fn normalise_lanes_equal_scalar() {
+        let odd = [0.0, -0.0, 2.5, -1.0, f64::NAN, f64::INFINITY, 1e-310, 7.0];
+        let n = 203;
+        let v = |seed: usize| -> Vec<f64> {
+            (0..n)
+                .map(|i| {
+                    let j = i * 13 + seed;
+                    if j.is_multiple_of(5) {
+                        odd[j % odd.len()]
+                    } else {
+                        ((j * 7919) % 1013) as f64 / 50.0 - 3.0
+                    }
+                })
+                .collect()
+        };
+        let den = v(1);
+        let (m0, f0, s0) = (v(2), v(3), v(4));
+        let run = |lanes: bool| {
+            let (mut m, mut f, mut s) = (m0.clone(), f0.clone(), s0.clone());
+            if lanes {
+                // SAFETY: SSE2 is part of every x86-64 processor.
+                #[cfg(target_arch = "x86_64")]
+                unsafe {
+                    normalise_pairs(&den, &mut m, &mut f, &mut s)
+                };
+                #[cfg(not(target_arch = "x86_64"))]
+                normalise_scalar(&den, &mut m, &mut f, &mut s);
+            } else {
+                normalise_scalar(&den, &mut m, &mut f, &mut s);
+            }
+            [m, f, s].map(|a| a.iter().map(|x| x.to_bits()).collect::<Vec<_>>())
+        };
+        assert_eq!(run(true), run(false));
+    }
+
+    // Unreadable reasons with the per-block shortcut against the per-sample
+    // walk (oracle): three leads, flat and saturated stretches overlapping
+    // in every combination, noise blocks, a short last block.
+    #[test]
+    fn unreadable_reasons_equal_per_sample_walk() {
+        let n = 7_777usize;
+        let blocks = Blocks {
+            len: 500,
+            count: n.div_ceil(500),
+            n,
+        };
+        let masks: Vec<Vec<LeadState>> = (0..3)
+            .map(|l| {
+                (0..n)
+                    .map(|i| match (i / (97 + 40 * l)) % 5 {
+                        1 => LeadState::Flat,
+                        3 if l != 1 => LeadState::Saturated,
+                        _ => LeadState::Ok,
+                    })
+                    .collect()
+            })
+            .collect();
+        for noise_every in [0usize, 2, 3] {
+            let noise: Vec<bool> = (0..blocks.count)
+                .map(|b| noise_every > 0 && b % noise_every == 1)
+                .collect();
+            let fast = unreadable_reasons(&masks, &noise, &blocks);
+            assert_eq!(fast, unreadable_reasons_reference(&masks, &noise, &blocks));
+            assert!(
+                fast.iter().any(|r| r.is_some()),
+                "the case has unreadable samples"
+            );
         }
     }
 
