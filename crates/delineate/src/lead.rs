@@ -897,21 +897,11 @@ impl LeadAnalysis {
                     .map(|e| e.round() as isize + self.ms_i(cfg.t_area_search_after_ms))
                     .unwrap_or(s as isize + tsearch)
                     .min(t_limit);
-                let mut best: Option<(usize, f64)> = None;
-                for kk in s..=(a_hi.max(s as isize) as usize) {
-                    if kk + 1 < win || kk >= self.x.len() {
-                        continue;
-                    }
-                    let xk = self.x[kk];
-                    let area: f64 = self.x[kk + 1 - win..=kk].iter().map(|&v| v - xk).sum();
-                    // Descending final limb (sign < 0) leaves the signal above
-                    // the end level: positive area.
-                    let val = -sign * area;
-                    if best.is_none_or(|(_, bv)| val > bv) {
-                        best = Some((kk, val));
-                    }
-                }
-                if let Some((kk, _)) = best {
+                // Descending final limb (sign < 0) leaves the signal above
+                // the end level: positive area.
+                let best =
+                    area_indicator_best(&self.x, s, a_hi.max(s as isize) as usize, win, sign);
+                if let Some(kk) = best {
                     bm.t_end_area = self.mark(Some(kk as f64), tconf);
                 }
             }
@@ -1081,6 +1071,73 @@ impl LeadAnalysis {
     }
 }
 
+/// The first `k` in `lo..=hi` (those with a whole window inside `x`) where
+/// `-sign` × A(k) is largest, A(k) = Σ (x[j] − x[k]) over the `win` samples
+/// ending at `k` (Zhang et al. 2006), each sum taken in sample order.
+/// The sums of eight consecutive `k` are taken side by side: each is the
+/// same sequence of additions as on its own, but the eight chains are
+/// independent, so they overlap instead of waiting on one another
+/// ([`area_indicator_best_reference`] is the test oracle).
+fn area_indicator_best(x: &[f64], lo: usize, hi: usize, win: usize, sign: f64) -> Option<usize> {
+    const G: usize = 8;
+    let start = lo.max(win.saturating_sub(1));
+    let end = hi.min(x.len().checked_sub(1)?);
+    let mut best: Option<(usize, f64)> = None;
+    let mut take = |k: usize, area: f64| {
+        let val = -sign * area;
+        if best.is_none_or(|(_, bv)| val > bv) {
+            best = Some((k, val));
+        }
+    };
+    let zero = std::iter::empty::<f64>().sum::<f64>();
+    let mut k = start;
+    while k + G <= end + 1 {
+        let xs = &x[k + 1 - win..k + G];
+        let xk: [f64; G] = std::array::from_fn(|q| x[k + q]);
+        let mut acc = [zero; G];
+        for j in 0..win {
+            let row = &xs[j..j + G];
+            for q in 0..G {
+                acc[q] += row[q] - xk[q];
+            }
+        }
+        for (q, a) in acc.into_iter().enumerate() {
+            take(k + q, a);
+        }
+        k += G;
+    }
+    while k <= end {
+        let xk = x[k];
+        take(k, x[k + 1 - win..=k].iter().map(|&v| v - xk).sum());
+        k += 1;
+    }
+    best.map(|(k, _)| k)
+}
+
+/// [`area_indicator_best`] one `k` at a time (the form it replaced; test oracle).
+#[cfg(test)]
+fn area_indicator_best_reference(
+    x: &[f64],
+    lo: usize,
+    hi: usize,
+    win: usize,
+    sign: f64,
+) -> Option<usize> {
+    let mut best: Option<(usize, f64)> = None;
+    for kk in lo..=hi {
+        if kk + 1 < win || kk >= x.len() {
+            continue;
+        }
+        let xk = x[kk];
+        let area: f64 = x[kk + 1 - win..=kk].iter().map(|&v| v - xk).sum();
+        let val = -sign * area;
+        if best.is_none_or(|(_, bv)| val > bv) {
+            best = Some((kk, val));
+        }
+    }
+    best.map(|(k, _)| k)
+}
+
 /// Where a chain of |W_k| maxima (`chain`, ordered outward from the main
 /// pair, at least one) ends once its outermost run of same-sign maxima (no
 /// sign change of `w` between them) is trimmed: where |w| between two of
@@ -1134,6 +1191,35 @@ fn ext_max(w: &[f64], lo: isize, hi: isize) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // The area indicator with eight sums side by side against one sum at a
+    // time (oracle): windows at the start and past the end of the signal,
+    // both limb signs, ranges shorter and longer than a group, ties (a flat
+    // signal), and a signal with a NaN.
+    #[test]
+    fn area_indicator_equals_one_at_a_time() {
+        let x: Vec<f64> = (0..300)
+            .map(|i| (i as f64 * 0.07).sin() + ((i * 7919) % 101) as f64 / 400.0)
+            .collect();
+        let flat = vec![0.25; 120];
+        let mut nan = x.clone();
+        nan[150] = f64::NAN;
+        for sig in [&x, &flat, &nan] {
+            for win in [2usize, 3, 8, 32] {
+                for (lo, hi) in [(0, 0), (0, 40), (5, 12), (20, 90), (250, 320), (290, 299)] {
+                    for sign in [1.0, -1.0] {
+                        assert_eq!(
+                            area_indicator_best(sig, lo, hi, win, sign),
+                            area_indicator_best_reference(sig, lo, hi, win, sign),
+                            "win={win} lo={lo} hi={hi} sign={sign} len={}",
+                            sig.len()
+                        );
+                    }
+                }
+            }
+        }
+        assert!(area_indicator_best(&x, 20, 90, 32, 1.0).is_some());
+    }
 
     // Noise level of a zero-padded array from its inner part against the
     // selection over the whole array (oracle, `kth_abs` itself tested against
