@@ -198,7 +198,34 @@ impl LeadAnalysis {
     }
 
     /// Local extrema of `w` (positive maxima, negative minima) in `[lo, hi]`.
+    ///
+    /// Without branches on the data: every index is written at the end of
+    /// the list, which grows only when the sample is an extremum (the tests
+    /// of the samples of a W_k change outcome too irregularly for branch
+    /// prediction). [`Self::extrema_reference`] is the test oracle.
     fn extrema(w: &[f64], lo: isize, hi: isize) -> Vec<usize> {
+        let lo = lo.max(1) as usize;
+        let hi = (hi.min(w.len() as isize - 2)).max(0) as usize;
+        if hi < lo {
+            return Vec::new();
+        }
+        let mut out = vec![0usize; hi - lo + 1];
+        let mut count = 0;
+        for (i, t) in (lo..=hi).zip(w[lo - 1..=hi + 1].windows(3)) {
+            let (a, b, c) = (t[0], t[1], t[2]);
+            let max = (b > 0.0) & (b >= a) & (b > c);
+            let min = (b < 0.0) & (b <= a) & (b < c);
+            out[count] = i;
+            count += usize::from(max | min);
+        }
+        out.truncate(count);
+        out
+    }
+
+    /// [`Self::extrema`] with a push per extremum (the form it replaced;
+    /// test oracle).
+    #[cfg(test)]
+    fn extrema_reference(w: &[f64], lo: isize, hi: isize) -> Vec<usize> {
         let lo = lo.max(1) as usize;
         let hi = (hi.min(w.len() as isize - 2)).max(0) as usize;
         let mut out = Vec::new();
@@ -1191,6 +1218,35 @@ fn ext_max(w: &[f64], lo: isize, hi: isize) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // Branch-free extrema against the push per extremum (oracle): plateaus,
+    // zeros, NaN, windows cut by both ends, empty and reversed windows.
+    #[test]
+    fn extrema_equal_pushes() {
+        let mut w: Vec<f64> = (0..400)
+            .map(|i| (i as f64 * 0.13).sin() * ((i * 7919) % 7) as f64)
+            .collect();
+        w[100..110].iter_mut().for_each(|v| *v = 0.5);
+        w[200..204].iter_mut().for_each(|v| *v = -0.0);
+        w[250] = f64::NAN;
+        for (lo, hi) in [
+            (-5, 500),
+            (0, 0),
+            (1, 1),
+            (50, 40),
+            (90, 130),
+            (395, 399),
+            (398, 600),
+        ] {
+            assert_eq!(
+                LeadAnalysis::extrema(&w, lo, hi),
+                LeadAnalysis::extrema_reference(&w, lo, hi),
+                "lo={lo} hi={hi}"
+            );
+        }
+        assert!(LeadAnalysis::extrema(&w, -5, 500).len() > 20);
+        assert!(LeadAnalysis::extrema(&[1.0, 2.0], 0, 5).is_empty());
+    }
 
     // The area indicator with eight sums side by side against one sum at a
     // time (oracle): windows at the start and past the end of the signal,
