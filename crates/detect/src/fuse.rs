@@ -1175,13 +1175,33 @@ fn fill_nearest_reference(v: &[Option<f64>]) -> Vec<f64> {
     (0..v.len()).map(|i| nearest_known(&known, i)).collect()
 }
 
+/// Why a sample is unreadable; one byte per sample (`Option<Reason>`), where
+/// a `&str` per sample took sixteen.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Reason {
+    Saturation,
+    Flat,
+    Noise,
+}
+
+impl Reason {
+    /// The name written into [`Span::reason`].
+    fn name(self) -> &'static str {
+        match self {
+            Reason::Saturation => "saturation",
+            Reason::Flat => "flat",
+            Reason::Noise => "noise",
+        }
+    }
+}
+
 /// Why each sample is unreadable (every lead flat, saturated or, in a
 /// noise block, noise), `None` where it is readable.
 fn unreadable_reasons(
     masks: &[Vec<LeadState>],
     noise_block: &[bool],
     blocks: &Blocks,
-) -> Vec<Option<&'static str>> {
+) -> Vec<Option<Reason>> {
     let n = blocks.n;
     // Block by block (the blocks cover `0..n` in order), so that a sample's
     // block is known without a division.
@@ -1225,11 +1245,11 @@ fn unreadable_reasons(
             }
             if all_bad {
                 *r = Some(if sat > 0 && sat >= flat {
-                    "saturation"
+                    Reason::Saturation
                 } else if flat > 0 {
-                    "flat"
+                    Reason::Flat
                 } else {
-                    "noise"
+                    Reason::Noise
                 });
             }
         }
@@ -1244,7 +1264,7 @@ fn unreadable_reasons_reference(
     masks: &[Vec<LeadState>],
     noise_block: &[bool],
     blocks: &Blocks,
-) -> Vec<Option<&'static str>> {
+) -> Vec<Option<Reason>> {
     let mut reason_at = vec![None; blocks.n];
     for (t, r) in reason_at.iter_mut().enumerate() {
         let noise = noise_block[t / blocks.len];
@@ -1263,11 +1283,11 @@ fn unreadable_reasons_reference(
         }
         if all_bad {
             *r = Some(if sat > 0 && sat >= flat {
-                "saturation"
+                Reason::Saturation
             } else if flat > 0 {
-                "flat"
+                Reason::Flat
             } else {
-                "noise"
+                Reason::Noise
             });
         }
     }
@@ -1385,37 +1405,40 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     let min_len = pt::ms_to_samples(cfg.unreadable_min_ms, fs);
     let mut unreadable: Vec<Span> = Vec::new();
     let mut t = 0;
-    while t < n {
-        if let Some(reason) = reason_at[t] {
-            let mut e = t + 1;
-            while e < n && reason_at[e].is_some() {
-                e += 1;
-            }
-            if e - t >= min_len {
-                // Name the stretch after its most frequent reason.
-                let mut counts = [("saturation", 0usize), ("flat", 0), ("noise", 0)];
-                for r in reason_at[t..e].iter().flatten() {
-                    for c in &mut counts {
-                        if c.0 == *r {
-                            c.1 += 1;
-                        }
+    // From one unreadable sample to the next (a jump over the readable ones).
+    while let Some(k) = reason_at[t..].iter().position(|r| r.is_some()) {
+        t += k;
+        let reason = reason_at[t].unwrap_or(Reason::Noise);
+        let mut e = t + 1;
+        while e < n && reason_at[e].is_some() {
+            e += 1;
+        }
+        if e - t >= min_len {
+            // Name the stretch after its most frequent reason.
+            let mut counts = [
+                (Reason::Saturation, 0usize),
+                (Reason::Flat, 0),
+                (Reason::Noise, 0),
+            ];
+            for r in reason_at[t..e].iter().flatten() {
+                for c in &mut counts {
+                    if c.0 == *r {
+                        c.1 += 1;
                     }
                 }
-                let best = counts
-                    .iter()
-                    .max_by_key(|c| c.1)
-                    .map(|c| c.0)
-                    .unwrap_or(reason);
-                unreadable.push(Span {
-                    start: t,
-                    end: e,
-                    reason: best.to_string(),
-                });
             }
-            t = e;
-        } else {
-            t += 1;
+            let best = counts
+                .iter()
+                .max_by_key(|c| c.1)
+                .map(|c| c.0)
+                .unwrap_or(reason);
+            unreadable.push(Span {
+                start: t,
+                end: e,
+                reason: best.name().to_string(),
+            });
         }
+        t = e;
     }
     let inside = |s: usize| unreadable.iter().any(|u| s >= u.start && s < u.end);
     fid.retain(|&s| !inside(s));
