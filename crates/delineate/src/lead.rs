@@ -86,6 +86,22 @@ pub(crate) fn resample_cubic(x: &[f64], fs_in: f64, fs_out: f64) -> Vec<f64> {
         .collect()
 }
 
+/// The lead at the analysis rate with gaps (non-finite values) read as 0.
+/// At the analysis rate already, one pass over the input: [`resample_cubic`]
+/// would copy it first (the form this replaces; test oracle).
+fn analysis_signal(x: &[f64], fs: f64, fs_a: f64) -> Vec<f64> {
+    let finite = |v: f64| if v.is_finite() { v } else { 0.0 };
+    // The same test as `resample_cubic`'s for returning its input.
+    if (fs - fs_a).abs() < 1e-9 {
+        x.iter().map(|&v| finite(v)).collect()
+    } else {
+        resample_cubic(x, fs, fs_a)
+            .into_iter()
+            .map(finite)
+            .collect()
+    }
+}
+
 /// Element `n / 2` of the sorted |values| of an array of `n` values made of
 /// `inner` and `n - inner.len()` zeros (0 when `n` is 0): the zeros are the
 /// smallest keys, so they take the first ranks and the rest is a selection
@@ -124,10 +140,7 @@ struct Lobes {
 impl LeadAnalysis {
     pub(crate) fn new(x: &[f64], fs: f64, cfg: &DelineateConfig) -> Self {
         let fs_a = cfg.analysis_fs_hz;
-        let xa: Vec<f64> = resample_cubic(x, fs, fs_a)
-            .into_iter()
-            .map(|v| if v.is_finite() { v } else { 0.0 })
-            .collect();
+        let xa = analysis_signal(x, fs, fs_a);
         // A tiled median beat starts and ends with a second of its edge
         // values: the transform skips those runs (its details are exactly
         // zero there) and the noise levels count them as zeros.
@@ -198,7 +211,32 @@ impl LeadAnalysis {
     }
 
     /// Local extrema of `w` (positive maxima, negative minima) in `[lo, hi]`.
+    ///
+    /// Without branches on the data: every index is written at the end of
+    /// the list, which grows only when the sample is an extremum (the tests
+    /// of the samples of a W_k change outcome too irregularly for branch
+    /// prediction); on x86-64 the tests of two samples at a time in SSE2
+    /// lanes. [`Self::extrema_reference`] is the test oracle.
     fn extrema(w: &[f64], lo: isize, hi: isize) -> Vec<usize> {
+        let lo = lo.max(1) as usize;
+        let hi = (hi.min(w.len() as isize - 2)).max(0) as usize;
+        if hi < lo {
+            return Vec::new();
+        }
+        let mut out = vec![0usize; hi - lo + 1];
+        // SAFETY: SSE2 is part of every x86-64 processor.
+        #[cfg(target_arch = "x86_64")]
+        let count = unsafe { extrema_lanes(w, lo, hi, &mut out) };
+        #[cfg(not(target_arch = "x86_64"))]
+        let count = extrema_scalar(w, lo, hi, &mut out, 0);
+        out.truncate(count);
+        out
+    }
+
+    /// [`Self::extrema`] with a push per extremum (the form it replaced;
+    /// test oracle).
+    #[cfg(test)]
+    fn extrema_reference(w: &[f64], lo: isize, hi: isize) -> Vec<usize> {
         let lo = lo.max(1) as usize;
         let hi = (hi.min(w.len() as isize - 2)).max(0) as usize;
         let mut out = Vec::new();
@@ -897,21 +935,11 @@ impl LeadAnalysis {
                     .map(|e| e.round() as isize + self.ms_i(cfg.t_area_search_after_ms))
                     .unwrap_or(s as isize + tsearch)
                     .min(t_limit);
-                let mut best: Option<(usize, f64)> = None;
-                for kk in s..=(a_hi.max(s as isize) as usize) {
-                    if kk + 1 < win || kk >= self.x.len() {
-                        continue;
-                    }
-                    let xk = self.x[kk];
-                    let area: f64 = self.x[kk + 1 - win..=kk].iter().map(|&v| v - xk).sum();
-                    // Descending final limb (sign < 0) leaves the signal above
-                    // the end level: positive area.
-                    let val = -sign * area;
-                    if best.is_none_or(|(_, bv)| val > bv) {
-                        best = Some((kk, val));
-                    }
-                }
-                if let Some((kk, _)) = best {
+                // Descending final limb (sign < 0) leaves the signal above
+                // the end level: positive area.
+                let best =
+                    area_indicator_best(&self.x, s, a_hi.max(s as isize) as usize, win, sign);
+                if let Some(kk) = best {
                     bm.t_end_area = self.mark(Some(kk as f64), tconf);
                 }
             }
@@ -1081,6 +1109,128 @@ impl LeadAnalysis {
     }
 }
 
+/// The extrema of `w` at `lo..=hi` (`1 <= lo`, `hi <= w.len() - 2`) written
+/// to `out` from index `count` on, one test per sample, each index written
+/// and kept only when the test holds; returns the new count.
+fn extrema_scalar(w: &[f64], lo: usize, hi: usize, out: &mut [usize], mut count: usize) -> usize {
+    for (i, t) in (lo..=hi).zip(w[lo - 1..=hi + 1].windows(3)) {
+        let (a, b, c) = (t[0], t[1], t[2]);
+        let max = (b > 0.0) & (b >= a) & (b > c);
+        let min = (b < 0.0) & (b <= a) & (b < c);
+        out[count] = i;
+        count += usize::from(max | min);
+    }
+    count
+}
+
+/// [`extrema_scalar`] from `count` 0, two samples at a time: the same
+/// ordered comparisons (false with NaN, as in the scalar tests) in SSE2
+/// lanes, their outcomes as two bits.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "sse2")]
+fn extrema_lanes(w: &[f64], lo: usize, hi: usize, out: &mut [usize]) -> usize {
+    use std::arch::x86_64::{
+        __m128d, _mm_and_pd, _mm_cmpge_pd, _mm_cmpgt_pd, _mm_cmple_pd, _mm_cmplt_pd,
+        _mm_movemask_pd, _mm_or_pd, _mm_set_pd, _mm_setzero_pd,
+    };
+    let load = |x: &[f64]| -> __m128d { _mm_set_pd(x[1], x[0]) };
+    let z = _mm_setzero_pd();
+    let mut count = 0;
+    let mut i = lo;
+    while i < hi {
+        let (a, b, c) = (
+            load(&w[i - 1..i + 1]),
+            load(&w[i..i + 2]),
+            load(&w[i + 1..i + 3]),
+        );
+        let max = _mm_and_pd(
+            _mm_and_pd(_mm_cmpgt_pd(b, z), _mm_cmpge_pd(b, a)),
+            _mm_cmpgt_pd(b, c),
+        );
+        let min = _mm_and_pd(
+            _mm_and_pd(_mm_cmplt_pd(b, z), _mm_cmple_pd(b, a)),
+            _mm_cmplt_pd(b, c),
+        );
+        let bits = _mm_movemask_pd(_mm_or_pd(max, min)) as usize;
+        out[count] = i;
+        count += bits & 1;
+        out[count] = i + 1;
+        count += (bits >> 1) & 1;
+        i += 2;
+    }
+    if i == hi {
+        count = extrema_scalar(w, hi, hi, out, count);
+    }
+    count
+}
+
+/// The first `k` in `lo..=hi` (those with a whole window inside `x`) where
+/// `-sign` × A(k) is largest, A(k) = Σ (x[j] − x[k]) over the `win` samples
+/// ending at `k` (Zhang et al. 2006), each sum taken in sample order.
+/// The sums of eight consecutive `k` are taken side by side: each is the
+/// same sequence of additions as on its own, but the eight chains are
+/// independent, so they overlap instead of waiting on one another
+/// ([`area_indicator_best_reference`] is the test oracle).
+fn area_indicator_best(x: &[f64], lo: usize, hi: usize, win: usize, sign: f64) -> Option<usize> {
+    const G: usize = 8;
+    let start = lo.max(win.saturating_sub(1));
+    let end = hi.min(x.len().checked_sub(1)?);
+    let mut best: Option<(usize, f64)> = None;
+    let mut take = |k: usize, area: f64| {
+        let val = -sign * area;
+        if best.is_none_or(|(_, bv)| val > bv) {
+            best = Some((k, val));
+        }
+    };
+    let zero = std::iter::empty::<f64>().sum::<f64>();
+    let mut k = start;
+    while k + G <= end + 1 {
+        let xs = &x[k + 1 - win..k + G];
+        let xk: [f64; G] = std::array::from_fn(|q| x[k + q]);
+        let mut acc = [zero; G];
+        for j in 0..win {
+            let row = &xs[j..j + G];
+            for q in 0..G {
+                acc[q] += row[q] - xk[q];
+            }
+        }
+        for (q, a) in acc.into_iter().enumerate() {
+            take(k + q, a);
+        }
+        k += G;
+    }
+    while k <= end {
+        let xk = x[k];
+        take(k, x[k + 1 - win..=k].iter().map(|&v| v - xk).sum());
+        k += 1;
+    }
+    best.map(|(k, _)| k)
+}
+
+/// [`area_indicator_best`] one `k` at a time (the form it replaced; test oracle).
+#[cfg(test)]
+fn area_indicator_best_reference(
+    x: &[f64],
+    lo: usize,
+    hi: usize,
+    win: usize,
+    sign: f64,
+) -> Option<usize> {
+    let mut best: Option<(usize, f64)> = None;
+    for kk in lo..=hi {
+        if kk + 1 < win || kk >= x.len() {
+            continue;
+        }
+        let xk = x[kk];
+        let area: f64 = x[kk + 1 - win..=kk].iter().map(|&v| v - xk).sum();
+        let val = -sign * area;
+        if best.is_none_or(|(_, bv)| val > bv) {
+            best = Some((kk, val));
+        }
+    }
+    best.map(|(k, _)| k)
+}
+
 /// Where a chain of |W_k| maxima (`chain`, ordered outward from the main
 /// pair, at least one) ends once its outermost run of same-sign maxima (no
 /// sign change of `w` between them) is trimmed: where |w| between two of
@@ -1134,6 +1284,91 @@ fn ext_max(w: &[f64], lo: isize, hi: isize) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // The analysis signal without the copy at an equal rate against
+    // resampling then mapping (oracle), bit for bit: gaps, infinities, a
+    // signed zero, an empty lead, equal and different rates.
+    #[test]
+    fn analysis_signal_equals_resample_then_map() {
+        let x = [0.5, f64::NAN, -0.0, 2.0, f64::INFINITY, -1.25, 3.0];
+        for (fs, fs_a) in [
+            (250.0, 250.0),
+            (250.0, 250.0 + 1e-12),
+            (500.0, 250.0),
+            (360.0, 250.0),
+        ] {
+            for sig in [&x[..], &[]] {
+                let slow: Vec<u64> = resample_cubic(sig, fs, fs_a)
+                    .into_iter()
+                    .map(|v| if v.is_finite() { v } else { 0.0 })
+                    .map(f64::to_bits)
+                    .collect();
+                let fast: Vec<u64> = analysis_signal(sig, fs, fs_a)
+                    .into_iter()
+                    .map(f64::to_bits)
+                    .collect();
+                assert_eq!(fast, slow, "fs={fs} fs_a={fs_a} len={}", sig.len());
+            }
+        }
+    }
+
+    // Branch-free extrema against the push per extremum (oracle): plateaus,
+    // zeros, NaN, windows cut by both ends, empty and reversed windows.
+    #[test]
+    fn extrema_equal_pushes() {
+        let mut w: Vec<f64> = (0..400)
+            .map(|i| (i as f64 * 0.13).sin() * ((i * 7919) % 7) as f64)
+            .collect();
+        w[100..110].iter_mut().for_each(|v| *v = 0.5);
+        w[200..204].iter_mut().for_each(|v| *v = -0.0);
+        w[250] = f64::NAN;
+        for (lo, hi) in [
+            (-5, 500),
+            (0, 0),
+            (1, 1),
+            (50, 40),
+            (90, 130),
+            (395, 399),
+            (398, 600),
+        ] {
+            assert_eq!(
+                LeadAnalysis::extrema(&w, lo, hi),
+                LeadAnalysis::extrema_reference(&w, lo, hi),
+                "lo={lo} hi={hi}"
+            );
+        }
+        assert!(LeadAnalysis::extrema(&w, -5, 500).len() > 20);
+        assert!(LeadAnalysis::extrema(&[1.0, 2.0], 0, 5).is_empty());
+    }
+
+    // The area indicator with eight sums side by side against one sum at a
+    // time (oracle): windows at the start and past the end of the signal,
+    // both limb signs, ranges shorter and longer than a group, ties (a flat
+    // signal), and a signal with a NaN.
+    #[test]
+    fn area_indicator_equals_one_at_a_time() {
+        let x: Vec<f64> = (0..300)
+            .map(|i| (i as f64 * 0.07).sin() + ((i * 7919) % 101) as f64 / 400.0)
+            .collect();
+        let flat = vec![0.25; 120];
+        let mut nan = x.clone();
+        nan[150] = f64::NAN;
+        for sig in [&x, &flat, &nan] {
+            for win in [2usize, 3, 8, 32] {
+                for (lo, hi) in [(0, 0), (0, 40), (5, 12), (20, 90), (250, 320), (290, 299)] {
+                    for sign in [1.0, -1.0] {
+                        assert_eq!(
+                            area_indicator_best(sig, lo, hi, win, sign),
+                            area_indicator_best_reference(sig, lo, hi, win, sign),
+                            "win={win} lo={lo} hi={hi} sign={sign} len={}",
+                            sig.len()
+                        );
+                    }
+                }
+            }
+        }
+        assert!(area_indicator_best(&x, 20, 90, 32, 1.0).is_some());
+    }
 
     // Noise level of a zero-padded array from its inner part against the
     // selection over the whole array (oracle, `kth_abs` itself tested against

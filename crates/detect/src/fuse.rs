@@ -534,26 +534,33 @@ struct LeadBlocks<'a> {
 /// weight zeroed where the lead is masked; the weights are also returned per
 /// sample, with their sum per lead (`Iterator::sum` order).
 ///
-/// Lead by lead over the runs of [`Blocks::runs`]: within a run a lead's
-/// two block values of each array are fixed and each sample's interpolation
-/// fraction is computed once, and every lead adds its terms to the
-/// per-sample sums in lead order, as a per-sample loop over the leads would,
-/// so every value is the same expression as [`Blocks::interpolate`]
-/// followed by [`combine_arrays`] (the test oracle), hence the same bits.
+/// Run by run of [`Blocks::runs`], and within a run lead by lead: a lead's
+/// two block values of each array are fixed in a run, and each sample's
+/// interpolation fraction (the same for every lead) is computed once per
+/// run. Every lead adds its terms to the per-sample sums in lead order, as a
+/// per-sample loop over the leads would, so every value is the same
+/// expression as [`Blocks::interpolate`] followed by [`combine_arrays`] (the
+/// test oracle), hence the same bits. The per-sample loops have no branches
+/// (a skipped term is an added `+0.0`, which leaves a sum that starts at
+/// `+0.0` unchanged), so the compiler vectorises their divisions and square
+/// roots; the weight sums, sequential by definition, are taken afterwards
+/// in one pass over all leads, whose independent chains then overlap.
 fn combine(
     feats: &[LeadFeatures],
     per_lead: &[LeadBlocks],
     blocks: &Blocks,
 ) -> (Combined, Vec<Vec<f64>>, Vec<f64>) {
     let n = blocks.n;
-    let runs = blocks.runs();
     let (mut den, mut m, mut f, mut s) = (vec![0.0; n], vec![0.0; n], vec![0.0; n], vec![0.0; n]);
-    let mut w2: Vec<Vec<f64>> = Vec::with_capacity(feats.len());
-    let mut wsum: Vec<f64> = Vec::with_capacity(feats.len());
-    for (fe, lb) in feats.iter().zip(per_lead) {
-        let mut wl = vec![0.0; n];
-        let mut sum: f64 = std::iter::empty::<f64>().sum();
-        for &(a, e, run) in &runs {
+    let mut w2: Vec<Vec<f64>> = (0..feats.len()).map(|_| vec![0.0; n]).collect();
+    let mut frac: Vec<f64> = Vec::with_capacity(blocks.len + 1);
+    for (a, e, run) in blocks.runs() {
+        if let Run::Lerp(b) = run {
+            let (c0, c1) = (blocks.centre(b), blocks.centre(b + 1));
+            frac.clear();
+            frac.extend((a..e).map(|t| ((t as f64 - c0) / (c1 - c0)).clamp(0.0, 1.0)));
+        }
+        for ((fe, lb), wl) in feats.iter().zip(per_lead).zip(&mut w2) {
             let sums = LeadRun {
                 mask: &lb.mask[a..e],
                 mwi: &fe.mwi[a..e],
@@ -568,37 +575,39 @@ fn combine(
             match run {
                 Run::Const(b) => {
                     let (w, si, sf) = (lb.weight[b], lb.scale_i[b], lb.scale_f[b]);
-                    sums.add(&mut sum, |_| (w, si, sf));
+                    // SAFETY: SSE2 is part of every x86-64 processor.
+                    #[cfg(target_arch = "x86_64")]
+                    unsafe {
+                        sums.add_const(w, si, sf)
+                    };
+                    #[cfg(not(target_arch = "x86_64"))]
+                    sums.add_const(w, si, sf);
                 }
                 Run::Lerp(b) => {
-                    let (c0, c1) = (blocks.centre(b), blocks.centre(b + 1));
-                    let (w0, w1) = (lb.weight[b], lb.weight[b + 1]);
-                    let (i0, i1) = (lb.scale_i[b], lb.scale_i[b + 1]);
-                    let (f0, f1) = (lb.scale_f[b], lb.scale_f[b + 1]);
-                    sums.add(&mut sum, |k| {
-                        let t = a + k;
-                        let fr = ((t as f64 - c0) / (c1 - c0)).clamp(0.0, 1.0);
-                        (
-                            w0 * (1.0 - fr) + w1 * fr,
-                            i0 * (1.0 - fr) + i1 * fr,
-                            f0 * (1.0 - fr) + f1 * fr,
-                        )
-                    });
+                    let (wt, sci, scf) = (
+                        (lb.weight[b], lb.weight[b + 1]),
+                        (lb.scale_i[b], lb.scale_i[b + 1]),
+                        (lb.scale_f[b], lb.scale_f[b + 1]),
+                    );
+                    // SAFETY: SSE2 is part of every x86-64 processor.
+                    #[cfg(target_arch = "x86_64")]
+                    unsafe {
+                        sums.add_lerp(&frac, wt, sci, scf)
+                    };
+                    #[cfg(not(target_arch = "x86_64"))]
+                    sums.add_lerp(&frac, wt, sci, scf);
                 }
             }
         }
-        w2.push(wl);
-        wsum.push(sum);
     }
-    for (((d, m), f), s) in den.iter().zip(&mut m).zip(&mut f).zip(&mut s) {
-        if *d > 0.0 {
-            *m /= d;
-            *f = (*f / d).sqrt();
-            *s = (*s / d).sqrt();
-        } else {
-            (*m, *f, *s) = (0.0, 0.0, 0.0);
-        }
-    }
+    let wsum = sums_in_order(&w2);
+    // SAFETY: SSE2 is part of every x86-64 processor.
+    #[cfg(target_arch = "x86_64")]
+    unsafe {
+        normalise_pairs(&den, &mut m, &mut f, &mut s)
+    };
+    #[cfg(not(target_arch = "x86_64"))]
+    normalise_scalar(&den, &mut m, &mut f, &mut s);
     (
         Combined {
             mwi: m,
@@ -608,6 +617,90 @@ fn combine(
         w2,
         wsum,
     )
+}
+
+/// The sums divided by the denominator (`f` and `s` then square-rooted),
+/// 0 where the denominator is not positive; sample by sample.
+#[cfg_attr(target_arch = "x86_64", allow(dead_code))]
+fn normalise_scalar(den: &[f64], m: &mut [f64], f: &mut [f64], s: &mut [f64]) {
+    for (((d, m), f), s) in den.iter().zip(m).zip(f).zip(s) {
+        if *d > 0.0 {
+            *m /= d;
+            *f = (*f / d).sqrt();
+            *s = (*s / d).sqrt();
+        } else {
+            (*m, *f, *s) = (0.0, 0.0, 0.0);
+        }
+    }
+}
+
+/// [`normalise_scalar`] two samples at a time in SSE2 lanes: both results
+/// computed, the kept one chosen by a bit mask (`+0.0` where the
+/// denominator is not positive), so every lane has the scalar bits.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "sse2")]
+fn normalise_pairs(den: &[f64], m: &mut [f64], f: &mut [f64], s: &mut [f64]) {
+    use std::arch::x86_64::{_mm_and_pd, _mm_cmpgt_pd, _mm_div_pd, _mm_setzero_pd, _mm_sqrt_pd};
+    let n = den.len();
+    let (m, f, s) = (&mut m[..n], &mut f[..n], &mut s[..n]);
+    let z = _mm_setzero_pd();
+    let mut k = 0;
+    while k + 2 <= n {
+        let r = k..k + 2;
+        let d = lanes::load(&den[r.clone()]);
+        let ok = _mm_cmpgt_pd(d, z);
+        let qm = _mm_div_pd(lanes::load(&m[r.clone()]), d);
+        let qf = _mm_sqrt_pd(_mm_div_pd(lanes::load(&f[r.clone()]), d));
+        let qs = _mm_sqrt_pd(_mm_div_pd(lanes::load(&s[r.clone()]), d));
+        lanes::store(&mut m[r.clone()], _mm_and_pd(ok, qm));
+        lanes::store(&mut f[r.clone()], _mm_and_pd(ok, qf));
+        lanes::store(&mut s[r], _mm_and_pd(ok, qs));
+        k += 2;
+    }
+    normalise_scalar(&den[k..], &mut m[k..], &mut f[k..], &mut s[k..]);
+}
+
+/// `v.iter().sum::<f64>()` of each of `vs` (equal lengths), walking the
+/// arrays side by side in groups of up to four: each sum adds its values in
+/// its own order, as the iterator does, and the chains of additions of the
+/// leads of a group are independent, so they run overlapped instead of one
+/// after the other.
+fn sums_in_order(vs: &[Vec<f64>]) -> Vec<f64> {
+    let mut out: Vec<f64> = Vec::with_capacity(vs.len());
+    for group in vs.chunks(4) {
+        let mut acc = [std::iter::empty::<f64>().sum::<f64>(); 4];
+        match group {
+            [a] => {
+                for x in a {
+                    acc[0] += x;
+                }
+            }
+            [a, b] => {
+                for (x, y) in a.iter().zip(b) {
+                    acc[0] += x;
+                    acc[1] += y;
+                }
+            }
+            [a, b, c] => {
+                for ((x, y), z) in a.iter().zip(b).zip(c) {
+                    acc[0] += x;
+                    acc[1] += y;
+                    acc[2] += z;
+                }
+            }
+            [a, b, c, d] => {
+                for (((x, y), z), u) in a.iter().zip(b).zip(c).zip(d) {
+                    acc[0] += x;
+                    acc[1] += y;
+                    acc[2] += z;
+                    acc[3] += u;
+                }
+            }
+            _ => unreachable!("chunks of 1 to 4"),
+        }
+        out.extend_from_slice(&acc[..group.len()]);
+    }
+    out
 }
 
 /// One lead's samples of one run of [`combine`] (all slices of the run's length).
@@ -624,33 +717,195 @@ struct LeadRun<'a> {
 }
 
 impl LeadRun<'_> {
-    /// Adds the lead's terms; `at(k)` gives the interpolated weight and
-    /// scales (integrated, band-passed) at the run's `k`-th sample.
+    /// Adds the lead's terms with fixed weight and scales (integrated,
+    /// band-passed).
+    #[cfg_attr(target_arch = "x86_64", target_feature(enable = "sse2"))]
+    fn add_const(self, w: f64, si: f64, sf: f64) {
+        #[cfg(target_arch = "x86_64")]
+        {
+            use std::arch::x86_64::_mm_set1_pd;
+            let v = (_mm_set1_pd(w), _mm_set1_pd(si), _mm_set1_pd(sf));
+            self.add_pairs(|_| v, |_| (w, si, sf));
+        }
+        #[cfg(not(target_arch = "x86_64"))]
+        self.add_scalar(|_| (w, si, sf));
+    }
+
+    /// Adds the lead's terms with weight and scales interpolated between two
+    /// block values by `frac` (one fraction per sample of the run).
+    #[cfg_attr(target_arch = "x86_64", target_feature(enable = "sse2"))]
+    fn add_lerp(
+        self,
+        frac: &[f64],
+        (w0, w1): (f64, f64),
+        (i0, i1): (f64, f64),
+        (f0, f1): (f64, f64),
+    ) {
+        let fr = &frac[..self.mask.len()];
+        let at = |k: usize| {
+            let r = fr[k];
+            (
+                w0 * (1.0 - r) + w1 * r,
+                i0 * (1.0 - r) + i1 * r,
+                f0 * (1.0 - r) + f1 * r,
+            )
+        };
+        #[cfg(target_arch = "x86_64")]
+        {
+            use std::arch::x86_64::{_mm_add_pd, _mm_mul_pd, _mm_set1_pd, _mm_sub_pd};
+            let one = _mm_set1_pd(1.0);
+            let (vw0, vw1) = (_mm_set1_pd(w0), _mm_set1_pd(w1));
+            let (vi0, vi1) = (_mm_set1_pd(i0), _mm_set1_pd(i1));
+            let (vf0, vf1) = (_mm_set1_pd(f0), _mm_set1_pd(f1));
+            // The scalar expressions above, two samples at a time.
+            let at2 = |k: usize| {
+                let r = lanes::load(&fr[k..k + 2]);
+                let q = _mm_sub_pd(one, r);
+                (
+                    _mm_add_pd(_mm_mul_pd(vw0, q), _mm_mul_pd(vw1, r)),
+                    _mm_add_pd(_mm_mul_pd(vi0, q), _mm_mul_pd(vi1, r)),
+                    _mm_add_pd(_mm_mul_pd(vf0, q), _mm_mul_pd(vf1, r)),
+                )
+            };
+            self.add_pairs(at2, at);
+        }
+        #[cfg(not(target_arch = "x86_64"))]
+        self.add_scalar(at);
+    }
+
+    /// The loop sample by sample: `at(k)` gives the weight and scales at
+    /// the run's `k`-th sample.
+    #[cfg_attr(target_arch = "x86_64", allow(dead_code))]
     #[inline(always)]
-    fn add(self, wsum: &mut f64, at: impl Fn(usize) -> (f64, f64, f64)) {
+    fn add_scalar(self, at: impl Fn(usize) -> (f64, f64, f64)) {
         let len = self.mask.len();
         let (mwi, bp, d2) = (&self.mwi[..len], &self.bp[..len], &self.d2[..len]);
         let (wo, den) = (&mut self.w[..len], &mut self.den[..len]);
         let (m, f, s) = (&mut self.m[..len], &mut self.f[..len], &mut self.s[..len]);
         for k in 0..len {
-            if self.mask[k] != LeadState::Ok {
-                // The weight stays 0 (the buffer starts zeroed) and is
-                // added, as the per-sample form does.
-                *wsum += 0.0;
-                continue;
-            }
             let (w, si, sf) = at(k);
-            wo[k] = w;
-            *wsum += w;
-            if w <= 0.0 || si <= 0.0 || sf <= 0.0 {
-                continue;
-            }
-            den[k] += w;
-            m[k] += w * mwi[k] / si;
-            let b = bp[k] / sf;
-            f[k] += w * b * b;
-            s[k] += w * d2[k] / si;
+            let t = terms(self.mask[k], w, si, sf, mwi[k], bp[k], d2[k]);
+            wo[k] = t.0;
+            den[k] += t.1;
+            m[k] += t.2;
+            f[k] += t.3;
+            s[k] += t.4;
         }
+    }
+
+    /// The loop two samples at a time in SSE2 lanes (part of every x86-64
+    /// processor): the compiler's cost model for the baseline target does
+    /// not vectorise the scalar loop, although a two-lane division costs
+    /// about what one scalar division does on current processors. Each lane
+    /// performs [`terms`]' operations on its sample in the same order, with
+    /// the selections as bit masks, so the results are the same bits;
+    /// `at2(k)` gives the weights and scales of samples `k` and `k + 1`, and
+    /// `at(k)` that of the odd last sample.
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "sse2")]
+    #[inline]
+    fn add_pairs(
+        self,
+        at2: impl Fn(usize) -> (lanes::F2, lanes::F2, lanes::F2),
+        at: impl Fn(usize) -> (f64, f64, f64),
+    ) {
+        use std::arch::x86_64::{
+            _mm_add_pd, _mm_and_pd, _mm_andnot_pd, _mm_castsi128_pd, _mm_cmple_pd, _mm_div_pd,
+            _mm_mul_pd, _mm_or_pd, _mm_set_epi64x, _mm_setzero_pd,
+        };
+        let len = self.mask.len();
+        let (mwi, bp, d2) = (&self.mwi[..len], &self.bp[..len], &self.d2[..len]);
+        let (wo, den) = (&mut self.w[..len], &mut self.den[..len]);
+        let (m, f, s) = (&mut self.m[..len], &mut self.f[..len], &mut self.s[..len]);
+        let z = _mm_setzero_pd();
+        let ok = |v: LeadState| -i64::from(v == LeadState::Ok);
+        let mut k = 0;
+        while k + 2 <= len {
+            let r = k..k + 2;
+            let (w, si, sf) = at2(k);
+            let keep = _mm_castsi128_pd(_mm_set_epi64x(ok(self.mask[k + 1]), ok(self.mask[k])));
+            let w = _mm_and_pd(w, keep);
+            let skip = _mm_or_pd(
+                _mm_or_pd(_mm_cmple_pd(w, z), _mm_cmple_pd(si, z)),
+                _mm_cmple_pd(sf, z),
+            );
+            let b = _mm_div_pd(lanes::load(&bp[r.clone()]), sf);
+            let tm = _mm_div_pd(_mm_mul_pd(w, lanes::load(&mwi[r.clone()])), si);
+            let tf = _mm_mul_pd(_mm_mul_pd(w, b), b);
+            let ts = _mm_div_pd(_mm_mul_pd(w, lanes::load(&d2[r.clone()])), si);
+            lanes::store(&mut wo[r.clone()], w);
+            let add = |x: &mut [f64], t| {
+                let v = _mm_add_pd(lanes::load(x), _mm_andnot_pd(skip, t));
+                lanes::store(x, v);
+            };
+            add(&mut den[r.clone()], w);
+            add(&mut m[r.clone()], tm);
+            add(&mut f[r.clone()], tf);
+            add(&mut s[r], ts);
+            k += 2;
+        }
+        if k < len {
+            let (w, si, sf) = at(k);
+            let t = terms(self.mask[k], w, si, sf, mwi[k], bp[k], d2[k]);
+            wo[k] = t.0;
+            den[k] += t.1;
+            m[k] += t.2;
+            f[k] += t.3;
+            s[k] += t.4;
+        }
+    }
+}
+
+/// Two `f64` lanes in an SSE2 register, moved from and to slices without
+/// `unsafe` (the compiler merges the two element moves into one).
+#[cfg(target_arch = "x86_64")]
+mod lanes {
+    use std::arch::x86_64::{__m128d, _mm_cvtsd_f64, _mm_set_pd, _mm_unpackhi_pd};
+
+    pub(super) type F2 = __m128d;
+
+    /// `x[0]` in the low lane, `x[1]` in the high one.
+    #[target_feature(enable = "sse2")]
+    #[inline]
+    pub(super) fn load(x: &[f64]) -> F2 {
+        _mm_set_pd(x[1], x[0])
+    }
+
+    /// The low lane to `x[0]`, the high one to `x[1]`.
+    #[target_feature(enable = "sse2")]
+    #[inline]
+    pub(super) fn store(x: &mut [f64], v: F2) {
+        x[0] = _mm_cvtsd_f64(v);
+        x[1] = _mm_cvtsd_f64(_mm_unpackhi_pd(v, v));
+    }
+}
+
+/// One lead's contribution at one sample: (its weight, then its terms of
+/// the denominator and of the three sums). A masked sample has weight 0 and
+/// no terms; a sample with a weight or scale that is not positive keeps its
+/// weight but adds no terms. "No term" is `+0.0`: the sums start at `+0.0`,
+/// a sum of finite or infinite values is never `−0.0` (`x + y` is `−0.0`
+/// only when both are), and adding `+0.0` to anything but `−0.0` returns it
+/// unchanged, so this equals skipping the term. Every value is computed and
+/// the results chosen by selection (no branches).
+#[inline(always)]
+fn terms(
+    mask: LeadState,
+    w: f64,
+    si: f64,
+    sf: f64,
+    mwi: f64,
+    bp: f64,
+    d2: f64,
+) -> (f64, f64, f64, f64, f64) {
+    let w = if mask == LeadState::Ok { w } else { 0.0 };
+    let skip = w <= 0.0 || si <= 0.0 || sf <= 0.0;
+    let b = bp / sf;
+    let (tm, tf, ts) = (w * mwi / si, w * b * b, w * d2 / si);
+    if skip {
+        (w, 0.0, 0.0, 0.0, 0.0)
+    } else {
+        (w, w, tm, tf, ts)
     }
 }
 
@@ -920,6 +1175,125 @@ fn fill_nearest_reference(v: &[Option<f64>]) -> Vec<f64> {
     (0..v.len()).map(|i| nearest_known(&known, i)).collect()
 }
 
+/// Why a sample is unreadable; one byte per sample (`Option<Reason>`), where
+/// a `&str` per sample took sixteen.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Reason {
+    Saturation,
+    Flat,
+    Noise,
+}
+
+impl Reason {
+    /// The name written into [`Span::reason`].
+    fn name(self) -> &'static str {
+        match self {
+            Reason::Saturation => "saturation",
+            Reason::Flat => "flat",
+            Reason::Noise => "noise",
+        }
+    }
+}
+
+/// Why each sample is unreadable (every lead flat, saturated or, in a
+/// noise block, noise), `None` where it is readable.
+fn unreadable_reasons(
+    masks: &[Vec<LeadState>],
+    noise_block: &[bool],
+    blocks: &Blocks,
+) -> Vec<Option<Reason>> {
+    let n = blocks.n;
+    // Block by block (the blocks cover `0..n` in order), so that a sample's
+    // block is known without a division.
+    let mut reason_at = vec![None; n];
+    let mut any_ok: Vec<bool> = Vec::with_capacity(blocks.len);
+    for (b, &noise) in noise_block.iter().enumerate() {
+        let (a, e) = blocks.range(b);
+        if !noise {
+            // Outside noise blocks a sample is unreadable only when no lead
+            // is usable there: a block where some lead is usable at every
+            // sample (the usual case) has none, found by a pass per lead
+            // instead of the per-sample walk over the leads below.
+            any_ok.clear();
+            any_ok.resize(e - a, false);
+            for m in masks {
+                for (o, s) in any_ok.iter_mut().zip(&m[a..e]) {
+                    *o |= *s == LeadState::Ok;
+                }
+            }
+            if any_ok.iter().all(|&o| o) {
+                continue;
+            }
+        }
+        for (t, r) in reason_at[a..e]
+            .iter_mut()
+            .enumerate()
+            .map(|(k, r)| (a + k, r))
+        {
+            let mut all_bad = true;
+            let (mut flat, mut sat) = (0, 0);
+            for m in masks {
+                match m[t] {
+                    LeadState::Flat => flat += 1,
+                    LeadState::Saturated => sat += 1,
+                    LeadState::Ok => {
+                        if !noise {
+                            all_bad = false;
+                        }
+                    }
+                }
+            }
+            if all_bad {
+                *r = Some(if sat > 0 && sat >= flat {
+                    Reason::Saturation
+                } else if flat > 0 {
+                    Reason::Flat
+                } else {
+                    Reason::Noise
+                });
+            }
+        }
+    }
+    reason_at
+}
+
+/// [`unreadable_reasons`] by the walk over the leads at every sample (the
+/// form it replaced; test oracle).
+#[cfg(test)]
+fn unreadable_reasons_reference(
+    masks: &[Vec<LeadState>],
+    noise_block: &[bool],
+    blocks: &Blocks,
+) -> Vec<Option<Reason>> {
+    let mut reason_at = vec![None; blocks.n];
+    for (t, r) in reason_at.iter_mut().enumerate() {
+        let noise = noise_block[t / blocks.len];
+        let mut all_bad = true;
+        let (mut flat, mut sat) = (0, 0);
+        for m in masks {
+            match m[t] {
+                LeadState::Flat => flat += 1,
+                LeadState::Saturated => sat += 1,
+                LeadState::Ok => {
+                    if !noise {
+                        all_bad = false;
+                    }
+                }
+            }
+        }
+        if all_bad {
+            *r = Some(if sat > 0 && sat >= flat {
+                Reason::Saturation
+            } else if flat > 0 {
+                Reason::Flat
+            } else {
+                Reason::Noise
+            });
+        }
+    }
+    reason_at
+}
+
 pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Detection {
     let n = leads[0].len();
     let nl = leads.len();
@@ -1025,74 +1399,44 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
     fid.dedup();
 
     // Unreadable: every lead flat, saturated or noise.
-    // Block by block (the blocks cover `0..n` in order), so that a sample's
-    // block is known without a division.
-    let mut reason_at = vec![None; n];
-    for (b, &noise) in noise_block.iter().enumerate() {
-        let (a, e) = blocks.range(b);
-        for (t, r) in reason_at[a..e]
-            .iter_mut()
-            .enumerate()
-            .map(|(k, r)| (a + k, r))
-        {
-            let mut all_bad = true;
-            let (mut flat, mut sat) = (0, 0);
-            for m in &masks {
-                match m[t] {
-                    LeadState::Flat => flat += 1,
-                    LeadState::Saturated => sat += 1,
-                    LeadState::Ok => {
-                        if !noise {
-                            all_bad = false;
-                        }
-                    }
-                }
-            }
-            if all_bad {
-                *r = Some(if sat > 0 && sat >= flat {
-                    "saturation"
-                } else if flat > 0 {
-                    "flat"
-                } else {
-                    "noise"
-                });
-            }
-        }
-    }
+    let reason_at = unreadable_reasons(&masks, &noise_block, &blocks);
     let min_len = pt::ms_to_samples(cfg.unreadable_min_ms, fs);
     let mut unreadable: Vec<Span> = Vec::new();
     let mut t = 0;
-    while t < n {
-        if let Some(reason) = reason_at[t] {
-            let mut e = t + 1;
-            while e < n && reason_at[e].is_some() {
-                e += 1;
-            }
-            if e - t >= min_len {
-                // Name the stretch after its most frequent reason.
-                let mut counts = [("saturation", 0usize), ("flat", 0), ("noise", 0)];
-                for r in reason_at[t..e].iter().flatten() {
-                    for c in &mut counts {
-                        if c.0 == *r {
-                            c.1 += 1;
-                        }
+    // From one unreadable sample to the next (a jump over the readable ones).
+    while let Some(k) = reason_at[t..].iter().position(|r| r.is_some()) {
+        t += k;
+        let reason = reason_at[t].unwrap_or(Reason::Noise);
+        let mut e = t + 1;
+        while e < n && reason_at[e].is_some() {
+            e += 1;
+        }
+        if e - t >= min_len {
+            // Name the stretch after its most frequent reason.
+            let mut counts = [
+                (Reason::Saturation, 0usize),
+                (Reason::Flat, 0),
+                (Reason::Noise, 0),
+            ];
+            for r in reason_at[t..e].iter().flatten() {
+                for c in &mut counts {
+                    if c.0 == *r {
+                        c.1 += 1;
                     }
                 }
-                let best = counts
-                    .iter()
-                    .max_by_key(|c| c.1)
-                    .map(|c| c.0)
-                    .unwrap_or(reason);
-                unreadable.push(Span {
-                    start: t,
-                    end: e,
-                    reason: best.to_string(),
-                });
             }
-            t = e;
-        } else {
-            t += 1;
+            let best = counts
+                .iter()
+                .max_by_key(|c| c.1)
+                .map(|c| c.0)
+                .unwrap_or(reason);
+            unreadable.push(Span {
+                start: t,
+                end: e,
+                reason: best.name().to_string(),
+            });
         }
+        t = e;
     }
     let inside = |s: usize| unreadable.iter().any(|u| s >= u.start && s < u.end);
     fid.retain(|&s| !inside(s));
@@ -1396,18 +1740,178 @@ mod block_tests {
         assert_eq!(fill_nearest(&[Some(1.0), None, Some(2.0)])[1], 1.0);
     }
 
+    // The two-lane loop of a run against the sample-by-sample loop (oracle),
+    // bit for bit: odd and even lengths, masked samples, weights and scales
+    // that are negative, zero, infinite or NaN, sums holding NaN or infinity.
+    #[test]
+    fn lead_run_lanes_equal_scalar_loop() {
+        let odd = [0.0, -0.0, 1.5, -2.0, f64::INFINITY, f64::NAN, 3.25, 1e-300];
+        for len in [0usize, 1, 2, 3, 8, 17, 64] {
+            let v = |seed: usize, k: usize| {
+                let i = seed * 31 + k * 7;
+                if i % 11 == 3 {
+                    odd[i % odd.len()]
+                } else {
+                    ((i * 7919) % 1013) as f64 / 97.0 - 1.0
+                }
+            };
+            let col = |seed: usize| (0..len).map(|k| v(seed, k)).collect::<Vec<f64>>();
+            let mask: Vec<LeadState> = (0..len)
+                .map(|k| match k % 7 {
+                    2 => LeadState::Flat,
+                    5 => LeadState::Saturated,
+                    _ => LeadState::Ok,
+                })
+                .collect();
+            let frac: Vec<f64> = (0..len).map(|k| (k as f64 / 13.0).fract()).collect();
+            let (mwi, bp, d2) = (col(1), col(2), col(3));
+            let sums0 = [col(4), col(5), col(6), col(7)];
+            let params = [
+                ((0.5, 0.9), (1.0, 2.0), (0.3, 0.7)),
+                ((-0.5, 0.9), (0.0, 2.0), (0.3, -0.7)),
+                ((f64::NAN, 0.9), (1.0, f64::INFINITY), (0.0, 0.7)),
+            ];
+            for (wp, ip, fp) in params {
+                let run = |lanes: bool, lerp: bool| {
+                    let mut wo = vec![0.0; len];
+                    let [mut den, mut m, mut f, mut s] = sums0.clone();
+                    let r = LeadRun {
+                        mask: &mask,
+                        mwi: &mwi,
+                        bp: &bp,
+                        d2: &d2,
+                        w: &mut wo,
+                        den: &mut den,
+                        m: &mut m,
+                        f: &mut f,
+                        s: &mut s,
+                    };
+                    let at = |k: usize| {
+                        let r: f64 = frac[k];
+                        (
+                            wp.0 * (1.0 - r) + wp.1 * r,
+                            ip.0 * (1.0 - r) + ip.1 * r,
+                            fp.0 * (1.0 - r) + fp.1 * r,
+                        )
+                    };
+                    match (lanes, lerp) {
+                        // SAFETY: SSE2 is part of every x86-64 processor.
+                        #[cfg(target_arch = "x86_64")]
+                        (true, true) => unsafe { r.add_lerp(&frac, wp, ip, fp) },
+                        #[cfg(target_arch = "x86_64")]
+                        (true, false) => unsafe { r.add_const(wp.1, ip.1, fp.1) },
+                        #[cfg(not(target_arch = "x86_64"))]
+                        (true, true) => r.add_lerp(&frac, wp, ip, fp),
+                        #[cfg(not(target_arch = "x86_64"))]
+                        (true, false) => r.add_const(wp.1, ip.1, fp.1),
+                        (false, true) => r.add_scalar(at),
+                        (false, false) => r.add_scalar(|_| (wp.1, ip.1, fp.1)),
+                    }
+                    [wo, den, m, f, s]
+                        .iter()
+                        .map(|a| a.iter().map(|x| x.to_bits()).collect::<Vec<_>>())
+                        .collect::<Vec<_>>()
+                };
+                for lerp in [true, false] {
+                    assert_eq!(run(true, lerp), run(false, lerp), "len={len} lerp={lerp}");
+                }
+            }
+        }
+    }
+
+    // The two-lane normalisation against the sample-by-sample form (oracle),
+    // bit for bit: denominators positive, zero, negative, NaN; odd length.
+    #[test]
+    fn normalise_lanes_equal_scalar() {
+        let odd = [0.0, -0.0, 2.5, -1.0, f64::NAN, f64::INFINITY, 1e-310, 7.0];
+        let n = 203;
+        let v = |seed: usize| -> Vec<f64> {
+            (0..n)
+                .map(|i| {
+                    let j = i * 13 + seed;
+                    if j.is_multiple_of(5) {
+                        odd[j % odd.len()]
+                    } else {
+                        ((j * 7919) % 1013) as f64 / 50.0 - 3.0
+                    }
+                })
+                .collect()
+        };
+        let den = v(1);
+        let (m0, f0, s0) = (v(2), v(3), v(4));
+        let run = |lanes: bool| {
+            let (mut m, mut f, mut s) = (m0.clone(), f0.clone(), s0.clone());
+            if lanes {
+                // SAFETY: SSE2 is part of every x86-64 processor.
+                #[cfg(target_arch = "x86_64")]
+                unsafe {
+                    normalise_pairs(&den, &mut m, &mut f, &mut s)
+                };
+                #[cfg(not(target_arch = "x86_64"))]
+                normalise_scalar(&den, &mut m, &mut f, &mut s);
+            } else {
+                normalise_scalar(&den, &mut m, &mut f, &mut s);
+            }
+            [m, f, s].map(|a| a.iter().map(|x| x.to_bits()).collect::<Vec<_>>())
+        };
+        assert_eq!(run(true), run(false));
+    }
+
+    // Unreadable reasons with the per-block shortcut against the per-sample
+    // walk (oracle): three leads, flat and saturated stretches overlapping
+    // in every combination, noise blocks, a short last block.
+    #[test]
+    fn unreadable_reasons_equal_per_sample_walk() {
+        let n = 7_777usize;
+        let blocks = Blocks {
+            len: 500,
+            count: n.div_ceil(500),
+            n,
+        };
+        let masks: Vec<Vec<LeadState>> = (0..3)
+            .map(|l| {
+                (0..n)
+                    .map(|i| match (i / (97 + 40 * l)) % 5 {
+                        1 => LeadState::Flat,
+                        3 if l != 1 => LeadState::Saturated,
+                        _ => LeadState::Ok,
+                    })
+                    .collect()
+            })
+            .collect();
+        for noise_every in [0usize, 2, 3] {
+            let noise: Vec<bool> = (0..blocks.count)
+                .map(|b| noise_every > 0 && b % noise_every == 1)
+                .collect();
+            let fast = unreadable_reasons(&masks, &noise, &blocks);
+            assert_eq!(fast, unreadable_reasons_reference(&masks, &noise, &blocks));
+            assert!(
+                fast.iter().any(|r| r.is_some()),
+                "the case has unreadable samples"
+            );
+        }
+    }
+
     // The one-pass combination against interpolated arrays and the per-sample
-    // combination (oracle), bit for bit: two leads, masked stretches, blocks
+    // combination (oracle), bit for bit: one to six leads (the weight sums
+    // go in groups of up to four), masked stretches, blocks
     // with zero weight or zero scale, a short last block, one block only.
     #[test]
     fn fused_combination_equals_interpolated_arrays() {
-        for (n, len) in [(10_250usize, 500usize), (700, 1000), (2_001, 200)] {
+        for (n, len, nl) in [
+            (10_250usize, 500usize, 2usize),
+            (700, 1000, 2),
+            (2_001, 200, 2),
+            (3_100, 250, 1),
+            (3_100, 250, 3),
+            (4_321, 300, 6),
+        ] {
             let blocks = Blocks {
                 len,
                 count: n.div_ceil(len),
                 n,
             };
-            let feats: Vec<LeadFeatures> = (0..2)
+            let feats: Vec<LeadFeatures> = (0..nl)
                 .map(|l| {
                     let bp: Vec<f64> = (0..n)
                         .map(|i| ((i * (3 + l)) as f64 * 0.05).sin())
@@ -1425,10 +1929,10 @@ mod block_tests {
                     })
                     .collect()
             };
-            let scale_i: Vec<Vec<f64>> = (0..2).map(|l| per_block(l, 1)).collect();
-            let scale_f: Vec<Vec<f64>> = (0..2).map(|l| per_block(l, 2)).collect();
-            let weight: Vec<Vec<f64>> = (0..2).map(|l| per_block(l, 3)).collect();
-            let masks: Vec<Vec<LeadState>> = (0..2)
+            let scale_i: Vec<Vec<f64>> = (0..nl).map(|l| per_block(l, 1)).collect();
+            let scale_f: Vec<Vec<f64>> = (0..nl).map(|l| per_block(l, 2)).collect();
+            let weight: Vec<Vec<f64>> = (0..nl).map(|l| per_block(l, 3)).collect();
+            let masks: Vec<Vec<LeadState>> = (0..nl)
                 .map(|l| {
                     (0..n)
                         .map(|i| {
@@ -1441,7 +1945,7 @@ mod block_tests {
                         .collect()
                 })
                 .collect();
-            let per_lead: Vec<LeadBlocks> = (0..2)
+            let per_lead: Vec<LeadBlocks> = (0..nl)
                 .map(|l| LeadBlocks {
                     scale_i: &scale_i[l],
                     scale_f: &scale_f[l],
@@ -1452,7 +1956,7 @@ mod block_tests {
             let (fast, w2, wsum) = combine(&feats, &per_lead, &blocks);
             let si: Vec<Vec<f64>> = scale_i.iter().map(|v| blocks.interpolate(v)).collect();
             let sf: Vec<Vec<f64>> = scale_f.iter().map(|v| blocks.interpolate(v)).collect();
-            let ws: Vec<Vec<f64>> = (0..2)
+            let ws: Vec<Vec<f64>> = (0..nl)
                 .map(|l| {
                     blocks
                         .interpolate(&weight[l])
@@ -1467,7 +1971,7 @@ mod block_tests {
             assert_eq!(bits(&fast.mwi), bits(&slow.mwi), "n={n}");
             assert_eq!(bits(&fast.filt), bits(&slow.filt), "n={n}");
             assert_eq!(bits(&fast.slope), bits(&slow.slope), "n={n}");
-            for l in 0..2 {
+            for l in 0..nl {
                 assert_eq!(bits(&w2[l]), bits(&ws[l]), "n={n} lead {l}");
                 assert_eq!(wsum[l].to_bits(), ws[l].iter().sum::<f64>().to_bits());
             }

@@ -32,13 +32,16 @@ pub(crate) struct LeadFeatures {
 /// truncated at the ends and divided by the samples actually inside).
 pub(crate) fn moving_mean(x: &[f64], w: usize) -> Vec<f64> {
     let n = x.len();
-    // Prefix sums written in place (no per-sample capacity check of a push).
-    let mut pre = vec![0.0; n + 1];
+    // Prefix sums appended by `extend` from a slice iterator (exact length:
+    // no per-sample capacity check, unlike a push loop) into an unzeroed
+    // buffer (a zero-filled one costs a pass of its own).
+    let mut pre = Vec::with_capacity(n + 1);
+    pre.push(0.0);
     let mut acc = 0.0;
-    for (p, v) in pre[1..].iter_mut().zip(x) {
+    pre.extend(x.iter().map(|v| {
         acc += v;
-        *p = acc;
-    }
+        acc
+    }));
     let half = w / 2;
     let at = |i: usize| {
         let a = i.saturating_sub(half);
