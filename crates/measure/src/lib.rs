@@ -326,6 +326,16 @@ struct Ctx<'a> {
     n: usize,
 }
 
+/// Whether every value is finite. The exponent test without early exit
+/// (an OR over all values, which the compiler vectorises) instead of a
+/// short-circuiting `all(is_finite)` that walks one value at a time: a value
+/// is finite exactly when its exponent bits are not all ones (IEEE 754).
+fn all_finite(x: &[f64]) -> bool {
+    const EXP: u64 = 0x7ff0_0000_0000_0000;
+    !x.iter()
+        .fold(false, |any, v| any | (v.to_bits() & EXP == EXP))
+}
+
 fn ms_to_samples(ms: f64, fs: f64) -> usize {
     (ms * fs / 1000.0).round() as usize
 }
@@ -356,14 +366,27 @@ fn concat_centred<'a>(
     c1: usize,
     lead: impl Fn(usize) -> &'a [f64],
 ) -> Vec<f64> {
-    leads
-        .iter()
-        .flat_map(|&l| {
-            let s = &lead(l)[c0..=c1];
-            let m = s.iter().sum::<f64>() / s.len() as f64;
-            s.iter().map(move |v| v - m)
-        })
-        .collect()
+    let mut out = Vec::new();
+    concat_centred_into(leads, c0, c1, lead, &mut out);
+    out
+}
+
+/// [`concat_centred`] into a reused buffer (one lead slice at a time: a
+/// flattened iterator filled the vector value by value).
+fn concat_centred_into<'a>(
+    leads: &[usize],
+    c0: usize,
+    c1: usize,
+    lead: impl Fn(usize) -> &'a [f64],
+    out: &mut Vec<f64>,
+) {
+    out.clear();
+    out.reserve(leads.len() * (c1 + 1).saturating_sub(c0));
+    for &l in leads {
+        let s = &lead(l)[c0..=c1];
+        let m = s.iter().sum::<f64>() / s.len() as f64;
+        out.extend(s.iter().map(|v| v - m));
+    }
 }
 
 fn measure_window<D>(ctx: &Ctx, ws: usize, we: usize, delineate: &mut D) -> WindowMeasure
@@ -437,9 +460,7 @@ where
         // Gaps in the recording (non-finite samples) would poison the median beat.
         .filter(|&i| {
             let span = beats[i].sample - before..=beats[i].sample + after;
-            ctx.leads
-                .iter()
-                .all(|x| x[span.clone()].iter().all(|v| v.is_finite()))
+            ctx.leads.iter().all(|x| all_finite(&x[span.clone()]))
         })
         .filter(|&i| {
             irregular || (stable(prev_rr(i)) && (next_rr(i).is_none() || stable(next_rr(i))))
@@ -514,9 +535,10 @@ where
         let tc = concat_centred(&usable_leads, c0, c1, |l| {
             templ[l].as_deref().unwrap_or_default()
         });
+        let mut beat = Vec::new();
         (0..segs.len())
             .filter(|&k| {
-                let beat = concat_centred(&usable_leads, c0, c1, |l| segs[k][l].as_slice());
+                concat_centred_into(&usable_leads, c0, c1, |l| segs[k][l].as_slice(), &mut beat);
                 pearson(&beat, &tc) >= cfg.min_correlation
             })
             .collect()

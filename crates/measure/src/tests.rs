@@ -458,3 +458,35 @@ fn fill_gaps_equals_binary_search_form() {
         }
     }
 }
+
+// The OR form against `is_finite` value by value (oracle): every kind of
+// value in every position of short and long slices.
+#[test]
+fn all_finite_equals_is_finite() {
+    let kinds = [
+        0.0,
+        -0.0,
+        1.5,
+        -3.0e300,
+        f64::MIN_POSITIVE / 2.0,
+        f64::MAX,
+        f64::NAN,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+    ];
+    for n in [0usize, 1, 3, 8, 33] {
+        for &k in &kinds {
+            for pos in 0..n.max(1) {
+                let mut x = vec![0.25; n];
+                if pos < n {
+                    x[pos] = k;
+                }
+                assert_eq!(
+                    super::all_finite(&x),
+                    x.iter().all(|v| v.is_finite()),
+                    "n={n} k={k} pos={pos}"
+                );
+            }
+        }
+    }
+}
