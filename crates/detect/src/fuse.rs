@@ -1230,31 +1230,36 @@ fn unreadable_reasons(
             .enumerate()
             .map(|(k, r)| (a + k, r))
         {
-            let mut all_bad = true;
-            let (mut flat, mut sat) = (0, 0);
-            for m in masks {
-                match m[t] {
-                    LeadState::Flat => flat += 1,
-                    LeadState::Saturated => sat += 1,
-                    LeadState::Ok => {
-                        if !noise {
-                            all_bad = false;
-                        }
-                    }
-                }
-            }
-            if all_bad {
-                *r = Some(if sat > 0 && sat >= flat {
-                    Reason::Saturation
-                } else if flat > 0 {
-                    Reason::Flat
-                } else {
-                    Reason::Noise
-                });
-            }
+            *r = reason_at_sample(masks, t, noise);
         }
     }
     reason_at
+}
+
+/// Why sample `t` is unreadable, if it is: no lead is usable there (a lead
+/// in a noisy block counts as unusable); saturation when at least as many
+/// leads are saturated as flat, then flatness, then noise.
+fn reason_at_sample(masks: &[Vec<LeadState>], t: usize, noise: bool) -> Option<Reason> {
+    let mut all_bad = true;
+    let (mut flat, mut sat) = (0, 0);
+    for m in masks {
+        match m[t] {
+            LeadState::Flat => flat += 1,
+            LeadState::Saturated => sat += 1,
+            LeadState::Ok => {
+                if !noise {
+                    all_bad = false;
+                }
+            }
+        }
+    }
+    all_bad.then_some(if sat > 0 && sat >= flat {
+        Reason::Saturation
+    } else if flat > 0 {
+        Reason::Flat
+    } else {
+        Reason::Noise
+    })
 }
 
 /// [`unreadable_reasons`] by the walk over the leads at every sample (the
@@ -1267,29 +1272,7 @@ fn unreadable_reasons_reference(
 ) -> Vec<Option<Reason>> {
     let mut reason_at = vec![None; blocks.n];
     for (t, r) in reason_at.iter_mut().enumerate() {
-        let noise = noise_block[t / blocks.len];
-        let mut all_bad = true;
-        let (mut flat, mut sat) = (0, 0);
-        for m in masks {
-            match m[t] {
-                LeadState::Flat => flat += 1,
-                LeadState::Saturated => sat += 1,
-                LeadState::Ok => {
-                    if !noise {
-                        all_bad = false;
-                    }
-                }
-            }
-        }
-        if all_bad {
-            *r = Some(if sat > 0 && sat >= flat {
-                Reason::Saturation
-            } else if flat > 0 {
-                Reason::Flat
-            } else {
-                Reason::Noise
-            });
-        }
+        *r = reason_at_sample(masks, t, noise_block[t / blocks.len]);
     }
     reason_at
 }
