@@ -29,6 +29,12 @@
 //!   `ceil(len · up / down)` ([`resample::resample_poly`]).
 //! * **Non-finite samples** are not screened here (the readers reject them);
 //!   a NaN propagates through an IIR filter to the end of the signal.
+//! * **Column medians** ([`colmedian`]) are medians in the order of
+//!   `f64::total_cmp`, the mean of the two middle values for even counts.
+//! * **Same bits everywhere.** Fast forms (lead pairs in one cascade, AVX
+//!   copies chosen at run time, comparator networks) give the bits of the
+//!   plain forms they replace, which remain as test oracles; no fused
+//!   multiply-add is used.
 
 pub mod colmedian;
 pub mod filter;
