@@ -14,11 +14,11 @@ data=../shared/data/qtdb
 tmp=$(mktemp -d)
 trap 'rm -rf "$tmp"' EXIT
 
-measure() { # label, command...  -> "label seconds kb"
+measure() { # label, command...  -> "label wall_seconds kb cpu_seconds"
   local label=$1; shift
-  /usr/bin/time -f "%e %M" -o "$tmp/time" "$@" >/dev/null 2>"$tmp/err" || { cat "$tmp/err"; exit 1; }
-  read -r secs kb < "$tmp/time"
-  echo "$label $secs $kb"
+  /usr/bin/time -f "%e %M %U %S" -o "$tmp/time" "$@" >/dev/null 2>"$tmp/err" || { cat "$tmp/err"; exit 1; }
+  read -r secs kb user sys < "$tmp/time"
+  echo "$label $secs $kb $(python3 -c "print(f'{$user + $sys:.2f}')")"
 }
 [ -x /usr/bin/time ] || { echo "needs /usr/bin/time (apt-get install time)"; exit 1; }
 
@@ -37,25 +37,34 @@ done
 load_after=$(cut -d' ' -f1 /proc/loadavg)
 
 # Everything from the history marker on (earlier measurements, the tuning
-# section of scripts/bench_tune.sh) is kept as it is.
+# section of scripts/bench_tune.sh) is kept as it is, and the run this one
+# replaces at the top moves into it, so no measurement is lost.
 history=$(sed -n '/<!-- bench-history -->/,$p' bench/results.md 2>/dev/null || true)
 if [ -z "$history" ]; then
   history=$(printf '<!-- bench-history -->\n%s' "$(sed -n '/<!-- tune-bench -->/,/<!-- \/tune-bench -->/p' bench/results.md 2>/dev/null || true)")
+fi
+previous=$(sed -n '3,/<!-- bench-history -->/p' bench/results.md 2>/dev/null | sed '$d' || true)
+if [ -n "$previous" ]; then
+  history=$(printf '%s\n\n## Earlier run of scripts/bench.sh\n\n%s\n\n%s' \
+    '<!-- bench-history -->' "$previous" "$(printf '%s\n' "$history" | sed '1d')")
 fi
 summary=$(python3 - "$tmp/runs" <<'PY'
 import statistics, sys
 runs = {}
 for line in open(sys.argv[1]):
-    label, secs, kb = line.split()
-    runs.setdefault(label, []).append((float(secs), int(kb)))
-med = {k: statistics.median(s for s, _ in v) for k, v in runs.items()}
-rss = {k: max(m for _, m in v) // 1024 for k, v in runs.items()}
+    label, secs, kb, cpu = line.split()
+    runs.setdefault(label, []).append((float(secs), int(kb), float(cpu)))
+med = {k: statistics.median(r[0] for r in v) for k, v in runs.items()}
+cpu = {k: statistics.median(r[2] for r in v) for k, v in runs.items()}
+rss = {k: max(r[1] for r in v) // 1024 for k, v in runs.items()}
 names = {"jobs1": "tendline, 1 thread", "jobs2": "tendline, 2 threads",
          "python": "Python: wfdb read + scipy filtfilt only"}
-print("| run | median wall s | all runs s | peak RSS MB |")
-print("|---|---:|---|---:|")
+# CPU time (user + system) drifts less than wall time with the neighbours'
+# load on a shared machine: the column to compare runs of different days.
+print("| run | median wall s | all runs s | median CPU s | peak RSS MB |")
+print("|---|---:|---|---:|---:|")
 for k in ("jobs1", "jobs2", "python"):
-    print(f"| {names[k]} | {med[k]:.2f} | {', '.join(f'{s:.2f}' for s, _ in runs[k])} | {rss[k]} |")
+    print(f"| {names[k]} | {med[k]:.2f} | {', '.join(f'{r[0]:.2f}' for r in runs[k])} | {cpu[k]:.2f} | {rss[k]} |")
 print()
 print(f"Speed-up 1→2 threads (medians): {med['jobs1'] / med['jobs2']:.2f}×; "
       f"tendline (2 threads) / Python read+filter: {med['jobs2'] / med['python']:.2f}.")
