@@ -778,11 +778,18 @@ impl LeadRun<'_> {
     #[cfg_attr(target_arch = "x86_64", allow(dead_code))]
     #[inline(always)]
     fn add_scalar(self, at: impl Fn(usize) -> (f64, f64, f64)) {
+        self.add_scalar_from(0, at)
+    }
+
+    /// [`Self::add_scalar`] from the run's `start`-th sample on (also the odd
+    /// last sample of [`Self::add_pairs`]).
+    #[inline(always)]
+    fn add_scalar_from(self, start: usize, at: impl Fn(usize) -> (f64, f64, f64)) {
         let len = self.mask.len();
         let (mwi, bp, d2) = (&self.mwi[..len], &self.bp[..len], &self.d2[..len]);
         let (wo, den) = (&mut self.w[..len], &mut self.den[..len]);
         let (m, f, s) = (&mut self.m[..len], &mut self.f[..len], &mut self.s[..len]);
-        for k in 0..len {
+        for k in start..len {
             let (w, si, sf) = at(k);
             let t = terms(self.mask[k], w, si, sf, mwi[k], bp[k], d2[k]);
             wo[k] = t.0;
@@ -844,15 +851,7 @@ impl LeadRun<'_> {
             add(&mut s[r], ts);
             k += 2;
         }
-        if k < len {
-            let (w, si, sf) = at(k);
-            let t = terms(self.mask[k], w, si, sf, mwi[k], bp[k], d2[k]);
-            wo[k] = t.0;
-            den[k] += t.1;
-            m[k] += t.2;
-            f[k] += t.3;
-            s[k] += t.4;
-        }
+        self.add_scalar_from(k, at);
     }
 }
 
