@@ -5,6 +5,8 @@ themselves read with the `wfdb` Python package (`wfdb.rdann`):
 - beat sensitivity and positive predictivity of the run's `.mark` files against
   the QTDB `.atr` reference beats;
 - the QRS-onset and T-end error count, mean and SD against the `.q1c` reference;
+- the window QT (the run's `windows.csv`) against the mean `.q1c` beat QT of each
+  window, and the same for annotator 2 (`.q2c`) on the windows both annotators mark;
 and asserts agreement with the run's `report.json` (rates to 0.01 percentage
 points, times to 0.01 ms, counts exactly).
 
@@ -30,6 +32,7 @@ also restated in every report's `protocol.rules`):
   error = test - reference in ms; SD with n - 1.
 """
 
+import csv
 import json
 import math
 import os
@@ -194,3 +197,75 @@ def test_qrs_onset_and_t_end_match_report():
         assert s["tp"] == e.size
         assert abs(st["mean_ms"] - e.mean()) < 0.01
         assert abs(st["sd_ms"] - e.std(ddof=1)) < 0.01
+
+
+def _window_mean_qt(beats, start_s, end_s, fs, min_beats):
+    """Mean beat QT (ms) of the beats with QRS peak in [start_s, end_s), or None."""
+    lo, hi = start_s * fs, end_s * fs
+    qts = [
+        (t - on) * 1000.0 / fs
+        for peak, on, t in beats
+        if lo <= peak < hi and on is not None and t is not None
+    ]
+    return float(np.mean(qts)) if len(qts) >= min_beats else None
+
+
+def _bland_altman(pairs):
+    d = np.array([a - b for a, b in pairs])
+    return d.size, d.mean(), d.std(ddof=1)
+
+
+def _check_ba(name, pairs, ba):
+    n, mean, sd = _bland_altman(pairs)
+    print(f"{name}: python n={n} bias={mean:.4f} sd={sd:.4f}; report n={ba['n']} bias={ba['bias_ms']:.4f} sd={ba['sd_ms']:.4f}")
+    assert ba["n"] == n
+    assert abs(ba["bias_ms"] - mean) < 0.01
+    assert abs(ba["sd_ms"] - sd) < 0.01
+
+
+def test_window_qt_matches_report():
+    """Window QT against annotator 1, and annotator 2 against annotator 1 on the same
+    windows (the human reference of the window QT), recomputed from the run's
+    windows.csv and the QTDB .q1c/.q2c files read with the `wfdb` package."""
+    run, qtdb, report = _paths()
+    qt = report.get("qt")
+    assert qt is not None and qt.get("window_superimposed"), "report.json has no window QT"
+    min_beats = report["protocol"]["min_window_beats"]
+    with open(run / "windows.csv", newline="") as f:
+        rows = list(csv.DictReader(f))
+
+    def val(v):
+        return float(v) if v not in ("", "NaN", "nan") else None
+
+    sup, ann, tool = [], [], []
+    cache = {}
+    for row in rows:
+        rec = row["record"]
+        if rec not in report["records"] or not (qtdb / f"{rec}.q1c").is_file():
+            continue
+        if rec not in cache:
+            fs = _fs(qtdb, rec)
+            q2 = (
+                _beats_qrs_on_t_end(qtdb / rec, "q2c", fs)
+                if (qtdb / f"{rec}.q2c").is_file()
+                else None
+            )
+            cache[rec] = (fs, _beats_qrs_on_t_end(qtdb / rec, "q1c", fs), q2)
+        fs, q1, q2 = cache[rec]
+        s, e = float(row["start_s"]), float(row["end_s"])
+        m1 = _window_mean_qt(q1, s, e, fs, min_beats)
+        if m1 is None:
+            continue
+        v = val(row["qt_superimposed_ms"])
+        if v is not None:
+            sup.append((v, m1))
+        m2 = _window_mean_qt(q2, s, e, fs, min_beats) if q2 is not None else None
+        if m2 is not None:
+            ann.append((m2, m1))
+            if v is not None:
+                tool.append((v, m1))
+    _check_ba("window QT, superimposed", sup, qt["window_superimposed"])
+    human = report.get("human")
+    assert human is not None and human.get("annotator_qt_window"), "report.json has no human window QT"
+    _check_ba("window QT, annotator 2", ann, human["annotator_qt_window"])
+    _check_ba("window QT, tool on the same windows", tool, human["tool_qt_window"])

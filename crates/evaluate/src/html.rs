@@ -493,6 +493,13 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
                 ("beat QT, tendline", &h.tool_qt_beat),
             ],
         );
+        if let Some(a) = &h.annotator_qt_window {
+            let mut rows: Vec<(&str, &BlandAltman)> = vec![("window QT, annotator 2", a)];
+            if let Some(t) = &h.tool_qt_window {
+                rows.push(("window QT, tendline (superimposed leads)", t));
+            }
+            ba_rows(&mut o, &rows);
+        }
     }
     if let Some(p) = &r.per_lead {
         section_html(&mut o, "perlead", "Per-lead boundaries", p, hist_range)?;

@@ -375,7 +375,7 @@ fn protocol(opts: &ValidateOptions) -> Protocol {
             "Statistics: SD with n - 1; mean of per-record SDs over records with >= 2 errors; p95 of |error| linear interpolation; CSE pass = pooled SD <= CSE 1985 tolerance (P on 10.2, P end 12.7, QRS on 6.5, QRS end 11.6, T end 30.6 ms).".into(),
             "QT: beat QT = T end - QRS on on paired beats where both sides mark both (no fiducial window); window QT = windows.csv qt_superimposed_ms / qt_ms vs mean reference beat QT of reference beats with QRS peak in [start_s, end_s), windows with >= min_window_beats; Bland-Altman limits = bias +/- 1.96 SD.".into(),
             "Global reference without .q1c (LUDB): beats of all lead files clustered by QRS peak as above; per beat the earliest onset, latest offset and median peak over the leads that mark them (common practice for global boundaries).".into(),
-            "Human reference: .q2c (annotator 2) scored against .q1c (annotator 1) with the same code, on the beats both annotators selected (.q1c beats paired with a .q2c beat) and the fiducials annotator 2 marks; the tool is shown on the same beats and fiducials.".into(),
+            "Human reference: .q2c (annotator 2) scored against .q1c (annotator 1) with the same code, on the beats both annotators selected (.q1c beats paired with a .q2c beat) and the fiducials annotator 2 marks; the tool is shown on the same beats and fiducials. Window QT: per window of windows.csv, the mean beat QT of each annotator's beats with QRS peak in [start_s, end_s), on windows where both annotators have >= min_window_beats such beats; annotator 2 vs annotator 1, and the tool's qt_superimposed_ms vs annotator 1 on the same windows.".into(),
         ],
     }
 }
@@ -520,6 +520,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 &ppv,
                 None,
             ));
+            let windows = load_windows(opts, &mut warnings)?;
             // Human reference.
             let pairs: Vec<&Loaded> = recs
                 .iter()
@@ -562,6 +563,8 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                         .collect();
                     BlandAltman::from_pairs(&p)
                 };
+                let (annotator_qt_window, tool_qt_window) =
+                    human_window_qt(opts, windows.as_deref(), &pairs);
                 human = Some(HumanSection {
                     records: pairs.iter().map(|r| r.name.clone()).collect(),
                     annotator: report::build_section(
@@ -582,6 +585,8 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                     ),
                     annotator_qt_beat: ba(&ann_scores),
                     tool_qt_beat: ba(&tool_scores),
+                    annotator_qt_window,
+                    tool_qt_window,
                 });
             }
             // QT.
@@ -589,7 +594,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 .iter()
                 .flat_map(|x| x.qt_pairs.iter().map(|q| (q.0, q.1)))
                 .collect();
-            let (ws, wsingle, n_w) = window_qt(opts, &recs, &mut warnings)?;
+            let (ws, wsingle, n_w) = window_qt(opts, windows.as_deref(), &recs);
             qt = Some(QtSection {
                 reference: ref_label.clone(),
                 beat: BlandAltman::from_pairs(&p),
@@ -698,44 +703,66 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
 
 type WindowQt = (Option<BlandAltman>, Option<BlandAltman>, usize);
 
-fn window_qt(
+/// The run's `windows.csv`, or None (with a warning) when the run has none.
+fn load_windows(
     opts: &ValidateOptions,
-    recs: &[Loaded],
     warnings: &mut Vec<String>,
-) -> Result<WindowQt, EvalError> {
+) -> Result<Option<Vec<inputs::WindowRow>>, EvalError> {
     let path = opts.run_dir.join("windows.csv");
     if !path.is_file() {
         warnings.push(format!(
             "{} not found: window QT not scored",
             path.display()
         ));
-        return Ok((None, None, 0));
+        return Ok(None);
     }
     let text = std::fs::read_to_string(&path).map_err(|source| EvalError::Io {
         path: path.clone(),
         source,
     })?;
-    let rows = inputs::parse_windows_csv(&text, &path)?;
+    inputs::parse_windows_csv(&text, &path).map(Some)
+}
+
+/// Mean QT (ms) of the beats of `beats` whose QRS peak lies in the window
+/// `[start_s, end_s)`, if at least `min_beats` of them mark both QRS onset and T end.
+fn window_mean_qt(
+    beats: &ParsedBeats,
+    w: &inputs::WindowRow,
+    fs: f64,
+    min_beats: usize,
+) -> Option<f64> {
+    let (lo, hi) = (w.start_s * fs, w.end_s * fs);
+    let qts: Vec<f64> = beats
+        .beats
+        .iter()
+        .filter(|b| (b.qrs_peak as f64) >= lo && (b.qrs_peak as f64) < hi)
+        .filter_map(|b| b.qt_samples())
+        .map(|s| s as f64 * 1000.0 / fs)
+        .collect();
+    (qts.len() >= min_beats)
+        .then(|| stats::mean(&qts))
+        .flatten()
+}
+
+fn window_qt(
+    opts: &ValidateOptions,
+    rows: Option<&[inputs::WindowRow]>,
+    recs: &[Loaded],
+) -> WindowQt {
+    let Some(rows) = rows else {
+        return (None, None, 0);
+    };
     let by_name: BTreeMap<&str, &Loaded> = recs.iter().map(|r| (r.name.as_str(), r)).collect();
     let (mut sup, mut single, mut n) = (Vec::new(), Vec::new(), 0);
-    for w in &rows {
+    for w in rows {
         let Some(r) = by_name.get(w.record.as_str()) else {
             continue;
         };
         let Some(q) = r.global_ref() else { continue };
-        let (lo, hi) = (w.start_s * r.hdr.fs, w.end_s * r.hdr.fs);
-        let qts: Vec<f64> = q
-            .beats
-            .iter()
-            .filter(|b| (b.qrs_peak as f64) >= lo && (b.qrs_peak as f64) < hi)
-            .filter_map(|b| b.qt_samples())
-            .map(|s| s as f64 * 1000.0 / r.hdr.fs)
-            .collect();
-        if qts.len() < opts.min_window_beats {
+        let Some(m) = window_mean_qt(q, w, r.hdr.fs, opts.min_window_beats) else {
             continue;
-        }
+        };
         n += 1;
-        let m = stats::mean(&qts).unwrap_or(f64::NAN);
         if let Some(v) = w.qt_superimposed_ms {
             sup.push((v, m));
         }
@@ -744,7 +771,44 @@ fn window_qt(
         }
     }
     let f = |v: Vec<(f64, f64)>| (!v.is_empty()).then(|| BlandAltman::from_pairs(&v));
-    Ok((f(sup), f(single), n))
+    (f(sup), f(single), n)
+}
+
+/// Window QT of annotator 2 and of the tool (superimposed leads) against annotator 1,
+/// on the windows of the records both annotators marked where each annotator marks
+/// at least `min_window_beats` beats: how far two cardiologists' window QTs lie apart
+/// beside how far the tool lies from the first.
+fn human_window_qt(
+    opts: &ValidateOptions,
+    rows: Option<&[inputs::WindowRow]>,
+    pairs: &[&Loaded],
+) -> (Option<BlandAltman>, Option<BlandAltman>) {
+    let Some(rows) = rows else {
+        return (None, None);
+    };
+    let by_name: BTreeMap<&str, &Loaded> = pairs.iter().map(|r| (r.name.as_str(), *r)).collect();
+    let (mut ann, mut tool) = (Vec::new(), Vec::new());
+    for w in rows {
+        let Some(r) = by_name.get(w.record.as_str()) else {
+            continue;
+        };
+        let (Some(q1), Some(q2)) = (&r.q1c, &r.q2c) else {
+            continue;
+        };
+        let fs = r.hdr.fs;
+        let (Some(m1), Some(m2)) = (
+            window_mean_qt(q1, w, fs, opts.min_window_beats),
+            window_mean_qt(q2, w, fs, opts.min_window_beats),
+        ) else {
+            continue;
+        };
+        ann.push((m2, m1));
+        if let Some(v) = w.qt_superimposed_ms {
+            tool.push((v, m1));
+        }
+    }
+    let f = |v: Vec<(f64, f64)>| (!v.is_empty()).then(|| BlandAltman::from_pairs(&v));
+    (f(ann), f(tool))
 }
 
 fn worst_beats(

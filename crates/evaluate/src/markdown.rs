@@ -194,6 +194,14 @@ pub fn render(r: &ValidationReport) -> String {
         ba_row(&mut out, "annotator 2", &h.annotator_qt_beat);
         ba_row(&mut out, "tendline", &h.tool_qt_beat);
         out.push('\n');
+        if let Some(a) = &h.annotator_qt_window {
+            let _ = writeln!(out, "Window QT (mean annotated beat QT per window of `windows.csv`, windows where both annotators mark enough beats):\n\n| window QT | n | bias ms | SD ms | 95% limits ms | MAE ms |\n|---|---:|---:|---:|---:|---:|");
+            ba_row(&mut out, "annotator 2", a);
+            if let Some(t) = &h.tool_qt_window {
+                ba_row(&mut out, "tendline, superimposed leads", t);
+            }
+            out.push('\n');
+        }
     }
     if let Some(p) = &r.per_lead {
         section_md(&mut out, "Per-lead boundaries", p);

@@ -167,6 +167,16 @@ pub struct HumanSection {
     pub tool: DelineationSection,
     pub annotator_qt_beat: BlandAltman,
     pub tool_qt_beat: BlandAltman,
+    /// Window QT: the mean annotated beat QT of each window of `windows.csv` by
+    /// annotator 2 against the same by annotator 1, on the windows where both
+    /// annotators mark at least `min_window_beats` beats. None without a run's
+    /// `windows.csv` or without such windows.
+    #[serde(default)]
+    pub annotator_qt_window: Option<BlandAltman>,
+    /// The tool's superimposed-leads window QT against annotator 1 on the same
+    /// windows (those of them where the tool gives a value).
+    #[serde(default)]
+    pub tool_qt_window: Option<BlandAltman>,
 }
 
 /// A beat with a large error, with both sets of marks (samples) and a signal strip.
