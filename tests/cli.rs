@@ -93,6 +93,46 @@ fn bad_record_fails_alone_and_sets_exit_code() {
     assert!(leftovers.is_empty(), "{leftovers:?}");
 }
 
+#[test]
+fn record_whose_output_cannot_be_put_in_place_fails_alone() {
+    // The record's annotation file is made durable and renamed into place after
+    // processing, off the worker threads; a failure there (here: a folder sits
+    // where `2.leadmark` must go) must still fail that record alone, keep it out
+    // of results.h5 and the tables, write no part file for it, and leave no
+    // temporary file behind.
+    let inp = tempfile::tempdir().unwrap();
+    let out = tempfile::tempdir().unwrap();
+    copy_ludb(inp.path(), "1");
+    copy_ludb(inp.path(), "2");
+    std::fs::create_dir_all(out.path().join("annotations/2.leadmark/blocker")).unwrap();
+    let o = bin()
+        .arg("run")
+        .arg(inp.path())
+        .arg("--out")
+        .arg(out.path())
+        .arg("--quiet")
+        .output()
+        .unwrap();
+    let t = text(&o);
+    assert_eq!(o.status.code(), Some(1), "{t}");
+    assert!(t.contains("1 record(s) failed"), "{t}");
+    let failures = std::fs::read_to_string(out.path().join("failures.csv")).unwrap();
+    assert!(
+        failures.contains("2,") && failures.contains("2.leadmark"),
+        "{failures}"
+    );
+    assert!(out.path().join("parts/1.json").is_file());
+    assert!(!out.path().join("parts/2.json").exists());
+    let summary = std::fs::read_to_string(out.path().join("summary.csv")).unwrap();
+    assert_eq!(summary.lines().count(), 2, "{summary}");
+    assert!(summary.lines().nth(1).unwrap().starts_with("1,"), "{summary}");
+    let leftovers: Vec<_> = walk(out.path())
+        .into_iter()
+        .filter(|p| p.to_string_lossy().contains(".tmp-"))
+        .collect();
+    assert!(leftovers.is_empty(), "{leftovers:?}");
+}
+
 fn walk(d: &Path) -> Vec<PathBuf> {
     let mut v = Vec::new();
     for e in std::fs::read_dir(d).unwrap() {

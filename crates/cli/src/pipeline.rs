@@ -8,9 +8,7 @@ use std::path::Path;
 use tendline_delineate::{BeatMarks, Mark, TEndMethod, TMorphology};
 use tendline_detect::Detection;
 use tendline_dsp::filter::FilterCache;
-use tendline_formats::annotation::{
-    boundary_annotations, write_annotations, Annotation, WaveMarks,
-};
+use tendline_formats::annotation::{boundary_annotations, Annotation, WaveMarks};
 use tendline_formats::subjects::SubjectRow;
 use tendline_formats::Record;
 use tendline_store::{Attr, Data, Group};
@@ -349,12 +347,4 @@ pub fn beat_annotations(
         })
         .collect();
     boundary_annotations(&waves, chan)
-}
-
-/// Write `<record>.mark` and `<record>.leadmark` into `dir`.
-pub fn write_record_annotations(dir: &Path, name: &str, p: &Processed) -> Result<()> {
-    std::fs::create_dir_all(dir).with_context(|| format!("{}: cannot create", dir.display()))?;
-    write_annotations(&dir.join(format!("{name}.mark")), &p.marks)?;
-    write_annotations(&dir.join(format!("{name}.leadmark")), &p.leadmarks)?;
-    Ok(())
 }

@@ -23,6 +23,7 @@ use std::collections::BTreeMap;
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::mpsc::{sync_channel, SyncSender};
 use std::sync::Mutex;
 use std::time::Instant;
 use tendline_formats::subjects::SubjectRow;
@@ -163,16 +164,60 @@ impl Sink {
     }
 }
 
+/// A finished record on its way out through the committer thread: its staged
+/// files (temporary path, final path), made durable and renamed in this order (the
+/// part file last, so a part on disk always has its annotations), then its tree
+/// into `results.h5` and its CSV rows.
+struct Job {
+    index: usize,
+    staged: Staged,
+    part: Part,
+}
+
+/// Files written to temporary siblings: (temporary path, final path).
+type Staged = Vec<(PathBuf, PathBuf)>;
+
+/// Make every staged file of `job` durable and put it in place, in order; on the
+/// first failure the remaining temporary files are removed and the error returned.
+fn commit_job(job: &Job) -> Result<()> {
+    for (i, (tmp, path)) in job.staged.iter().enumerate() {
+        if let Err(e) = tendline_store::commit(tmp, path) {
+            for (t, _) in &job.staged[i + 1..] {
+                let _ = std::fs::remove_file(t);
+            }
+            return Err(e.into());
+        }
+    }
+    Ok(())
+}
+
+/// Write `files` (final path, bytes) to temporary siblings; none is left behind on failure.
+fn stage_all(files: Vec<(PathBuf, Vec<u8>)>) -> Result<Staged> {
+    let mut staged = Vec::with_capacity(files.len());
+    for (path, bytes) in files {
+        match tendline_store::stage(&path, &bytes) {
+            Ok(tmp) => staged.push((tmp, path)),
+            Err(e) => {
+                for (t, _) in &staged {
+                    let _ = std::fs::remove_file(t);
+                }
+                return Err(e.into());
+            }
+        }
+    }
+    Ok(staged)
+}
+
 fn process_one(
     input: &RecordInput,
     ctx: &Context,
     opts: &RunOptions,
     samples: &AtomicU64,
-    sink: Option<(&Sink, usize)>,
+    out: (&SyncSender<Job>, usize),
 ) -> (Outcome, Option<Part>) {
     let t0 = Instant::now();
     let part_path = opts.out.join("parts").join(format!("{}.json", input.name));
-    let result = (|| -> Result<(Outcome, Part)> {
+    let result = (|| -> Result<(Outcome, Part, Staged)> {
         let files = input_files(input);
         let checksums: Vec<(String, String)> = files
             .iter()
@@ -194,33 +239,63 @@ fn process_one(
                 let anns_present = ann_dir.join(format!("{}.mark", input.name)).is_file()
                     && ann_dir.join(format!("{}.leadmark", input.name)).is_file();
                 if part.key == key && anns_present {
-                    return Ok((Outcome::Reused, part));
+                    return Ok((Outcome::Reused, part, Vec::new()));
                 }
             }
         }
         let processed = pipeline::process_record(input, ctx, subject, &checksums)?;
         samples.fetch_add(processed.n_samples, Ordering::Relaxed);
-        pipeline::write_record_annotations(&ann_dir, &input.name, &processed)?;
+        let encode = |path: PathBuf, anns: &[tendline_formats::Annotation]| {
+            tendline_formats::annotation::encode_annotations(anns)
+                .map(|bytes| (path.clone(), bytes))
+                .map_err(|m| anyhow::anyhow!("{}: {m}", path.display()))
+        };
         let part = Part {
             record: input.name.clone(),
             key,
             group: processed.group,
         };
-        part.save(&part_path)?;
+        // The files are written here, in parallel with the other records; their
+        // fsync and rename (slow on a real disk) wait for the committer thread.
+        let staged = stage_all(vec![
+            encode(
+                ann_dir.join(format!("{}.mark", input.name)),
+                &processed.marks,
+            )?,
+            encode(
+                ann_dir.join(format!("{}.leadmark", input.name)),
+                &processed.leadmarks,
+            )?,
+            (part_path.clone(), part.to_json(&part_path)?),
+        ])?;
         Ok((
             Outcome::Done {
                 seconds: t0.elapsed().as_secs_f64(),
                 samples: processed.n_samples,
             },
             part,
+            staged,
         ))
     })();
     match result {
-        Ok((o, p)) => {
-            let short = brief(&p);
-            if let Some((sink, index)) = sink {
-                let mut p = p;
-                sink.emit(index, &mut p);
+        Ok((o, part, staged)) => {
+            let short = brief(&part);
+            let (tx, index) = out;
+            let job = Job {
+                index,
+                staged,
+                part,
+            };
+            if let Err(e) = tx.send(job) {
+                for (t, _) in &e.0.staged {
+                    let _ = std::fs::remove_file(t);
+                }
+                return (
+                    Outcome::Failed {
+                        error: "results writer stopped before this record".into(),
+                    },
+                    None,
+                );
             }
             (o, Some(short))
         }
@@ -295,43 +370,48 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
         error: Mutex::new(None),
         rows: Mutex::new(vec![None; n]),
     };
-    let results: Vec<(Outcome, Option<Part>)> = pool.install(|| {
-        opts.records
-            .par_iter()
-            .enumerate()
-            .map(|(index, input)| {
+    // One committer thread makes each record's files durable (fsync, rename) and
+    // streams it into results.h5 while the workers go on with the next records:
+    // the workers neither wait on the disk nor on each other for the HDF5 writer.
+    // The bounded queue keeps memory bounded when the committer falls behind.
+    let (tx, rx) = sync_channel::<Job>(2 * opts.jobs.max(1));
+    let (results, late_failures) = std::thread::scope(|scope| {
+        let committer = scope.spawn(|| {
+            let mut failed: Vec<(usize, String)> = Vec::new();
+            for mut job in rx {
                 let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                    process_one(input, &ctx, opts, &samples, Some((&sink, index)))
-                }))
-                .unwrap_or_else(|p| {
-                    (
-                        Outcome::Failed {
-                            error: format!("internal error (panic): {}", panic_text(p)),
-                        },
-                        None,
-                    )
-                });
-                let k = done.fetch_add(1, Ordering::Relaxed) + 1;
-                let rate =
-                    samples.load(Ordering::Relaxed) as f64 / t0.elapsed().as_secs_f64().max(1e-9);
-                pb.set_message(format!("{:.1} M samples/s", rate / 1e6));
-                pb.inc(1);
-                if plain {
-                    let _g = log.lock();
-                    let what = match &r.0 {
-                        Outcome::Done { seconds, samples } => {
-                            format!("done, {samples} samples in {seconds:.2} s")
-                        }
-                        Outcome::Reused => "unchanged, kept".to_string(),
-                        Outcome::Failed { error } => format!("FAILED: {error}"),
-                    };
-                    eprintln!("[{k}/{n}] {}: {what}", input.name);
+                    commit_job(&job).map(|()| sink.emit(job.index, &mut job.part))
+                }));
+                match r {
+                    Ok(Ok(())) => {}
+                    Ok(Err(e)) => failed.push((job.index, format!("{e:#}"))),
+                    Err(p) => failed.push((
+                        job.index,
+                        format!("internal error (panic): {}", panic_text(p)),
+                    )),
                 }
-                r
-            })
-            .collect()
+            }
+            failed
+        });
+        let results = run_records(
+            opts, &pool, &ctx, &samples, &done, &log, &pb, plain, t0, &tx,
+        );
+        drop(tx);
+        // The committer catches the panics of its jobs; any other is re-raised.
+        let failed = committer
+            .join()
+            .unwrap_or_else(|p| std::panic::resume_unwind(p));
+        (results, failed)
     });
     pb.finish_and_clear();
+    let mut results = results;
+    for (index, error) in late_failures {
+        if let Some(r) = results.get_mut(index) {
+            if !matches!(r.0, Outcome::Failed { .. }) {
+                *r = (Outcome::Failed { error }, None);
+            }
+        }
+    }
     let mut outcomes = Vec::with_capacity(n);
     let mut parts = Vec::new();
     for (input, (o, p)) in opts.records.iter().zip(results) {
@@ -361,6 +441,59 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
     };
     write_tables(opts, &ctx, &report, &csv)?;
     Ok(report)
+}
+
+/// The records on the worker pool, in input order; finished ones go to `tx`.
+#[allow(clippy::too_many_arguments)]
+fn run_records(
+    opts: &RunOptions,
+    pool: &rayon::ThreadPool,
+    ctx: &Context,
+    samples: &AtomicU64,
+    done: &AtomicU64,
+    log: &Mutex<()>,
+    pb: &ProgressBar,
+    plain: bool,
+    t0: Instant,
+    tx: &SyncSender<Job>,
+) -> Vec<(Outcome, Option<Part>)> {
+    let n = opts.records.len();
+    pool.install(|| {
+        opts.records
+            .par_iter()
+            .enumerate()
+            .map(|(index, input)| {
+                let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+                    process_one(input, ctx, opts, samples, (tx, index))
+                }))
+                .unwrap_or_else(|p| {
+                    (
+                        Outcome::Failed {
+                            error: format!("internal error (panic): {}", panic_text(p)),
+                        },
+                        None,
+                    )
+                });
+                let k = done.fetch_add(1, Ordering::Relaxed) + 1;
+                let rate =
+                    samples.load(Ordering::Relaxed) as f64 / t0.elapsed().as_secs_f64().max(1e-9);
+                pb.set_message(format!("{:.1} M samples/s", rate / 1e6));
+                pb.inc(1);
+                if plain {
+                    let _g = log.lock();
+                    let what = match &r.0 {
+                        Outcome::Done { seconds, samples } => {
+                            format!("done, {samples} samples in {seconds:.2} s")
+                        }
+                        Outcome::Reused => "unchanged, kept".to_string(),
+                        Outcome::Failed { error } => format!("FAILED: {error}"),
+                    };
+                    eprintln!("[{k}/{n}] {}: {what}", input.name);
+                }
+                r
+            })
+            .collect()
+    })
 }
 
 /// Rewrite `results.h5`, `summary.csv`, `windows.csv` and `subjects.csv` of a finished

@@ -37,6 +37,15 @@ pub enum StoreError {
 
 /// Write `bytes` to `path` atomically: a temporary sibling file, fsync, rename.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), StoreError> {
+    let tmp = stage(path, bytes)?;
+    commit(&tmp, path)
+}
+
+/// First half of [`write_atomic`]: write `bytes` to the temporary sibling of `path`
+/// (created with its folder if needed), without fsync; returns the temporary path.
+/// [`commit`] finishes the write, possibly on another thread: `path` itself is not
+/// touched until then, so a reader never sees a half-written file.
+pub fn stage(path: &Path, bytes: &[u8]) -> Result<PathBuf, StoreError> {
     use std::io::Write;
     let io = |source| StoreError::Io {
         path: path.to_path_buf(),
@@ -48,12 +57,27 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), StoreError> {
         .unwrap_or(Path::new("."));
     std::fs::create_dir_all(dir).map_err(io)?;
     let tmp = tmp_sibling(path);
-    {
-        let mut f = std::fs::File::create(&tmp).map_err(io)?;
-        f.write_all(bytes).map_err(io)?;
-        f.sync_all().map_err(io)?;
+    let written = std::fs::File::create(&tmp).and_then(|mut f| f.write_all(bytes));
+    if let Err(e) = written {
+        let _ = std::fs::remove_file(&tmp);
+        return Err(io(e));
     }
-    std::fs::rename(&tmp, path).map_err(io)
+    Ok(tmp)
+}
+
+/// Second half of [`write_atomic`]: fsync the staged file `tmp` and rename it to
+/// `path`. On failure the temporary file is removed and `path` is left as it was.
+pub fn commit(tmp: &Path, path: &Path) -> Result<(), StoreError> {
+    let r = std::fs::File::open(tmp)
+        .and_then(|f| f.sync_all())
+        .and_then(|()| std::fs::rename(tmp, path));
+    r.map_err(|source| {
+        let _ = std::fs::remove_file(tmp);
+        StoreError::Io {
+            path: path.to_path_buf(),
+            source,
+        }
+    })
 }
 
 /// The temporary name used while `path` is being written (`.<name>.tmp-<pid>`).
@@ -78,11 +102,15 @@ pub struct Part {
 impl Part {
     /// Save atomically as JSON.
     pub fn save(&self, path: &Path) -> Result<(), StoreError> {
-        let bytes = serde_json::to_vec(self).map_err(|e| StoreError::Invalid {
+        write_atomic(path, &self.to_json(path)?)
+    }
+
+    /// The JSON bytes [`Part::save`] writes (`path` names the file in errors).
+    pub fn to_json(&self, path: &Path) -> Result<Vec<u8>, StoreError> {
+        serde_json::to_vec(self).map_err(|e| StoreError::Invalid {
             path: path.to_path_buf(),
             message: e.to_string(),
-        })?;
-        write_atomic(path, &bytes)
+        })
     }
 
     /// Load a part; a missing file is `Ok(None)`, a damaged one an error.
@@ -117,6 +145,25 @@ mod tests {
         assert_eq!(std::fs::read(&p).unwrap(), b"hello");
         let names: Vec<_> = std::fs::read_dir(p.parent().unwrap()).unwrap().collect();
         assert_eq!(names.len(), 1);
+    }
+
+    #[test]
+    fn staged_file_replaces_the_target_only_at_commit() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path().join("c/d.txt");
+        write_atomic(&p, b"old").unwrap();
+        let tmp = stage(&p, b"new").unwrap();
+        // Until the commit the target keeps its old content.
+        assert_eq!(std::fs::read(&p).unwrap(), b"old");
+        assert_ne!(tmp, p);
+        commit(&tmp, &p).unwrap();
+        assert_eq!(std::fs::read(&p).unwrap(), b"new");
+        assert!(!tmp.exists());
+        // A commit that cannot happen (staged file gone) names the target and
+        // leaves it as it was.
+        let e = commit(&tmp, &p).unwrap_err();
+        assert!(e.to_string().contains("d.txt"), "{e}");
+        assert_eq!(std::fs::read(&p).unwrap(), b"new");
     }
 
     #[test]
