@@ -13,6 +13,7 @@
 //!
 //! Entry point: [`read_record`] picks the reader from the file extension.
 
+pub mod aecg;
 pub mod annotation;
 pub mod csv;
 pub mod edf;
@@ -86,7 +87,8 @@ impl ReadOptions {
 }
 
 /// Read a record, choosing the reader by extension: `.hea` (or a path without
-/// extension that has a sibling `.hea`) → WFDB, `.edf` → EDF/EDF+, `.csv` → CSV.
+/// extension that has a sibling `.hea`) → WFDB, `.edf` → EDF/EDF+, `.csv` → CSV,
+/// `.xml` → HL7 aECG ([`aecg`]).
 pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatError> {
     let ext = path
         .extension()
@@ -95,12 +97,13 @@ pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatErro
         Some("hea") => wfdb::read_record(path),
         Some("edf") => edf::read_edf(path),
         Some("csv") => csv::read_csv(path, opts.csv_fs),
+        Some("xml") => aecg::read_aecg(path),
         _ if wfdb::header_path_of(path).is_file() => wfdb::read_record(path),
         _ => Err(FormatError::Invalid {
             path: path.to_path_buf(),
             message:
-                "unknown input type: expected a .hea, .edf or .csv file, or a WFDB record path \
-                      with a sibling .hea"
+                "unknown input type: expected a .hea, .edf, .csv or .xml (HL7 aECG) file, or a \
+                      WFDB record path with a sibling .hea"
                     .into(),
         }),
     }
