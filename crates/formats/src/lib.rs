@@ -1,9 +1,16 @@
 //! Readers and writers for the open ECG formats tendline accepts.
 //!
-//! Every signal reader produces the same [`Record`]: one sampling rate, leads with
-//! their names exactly as the input header gives them, samples in physical units
-//! (millivolts where the input's units allow the conversion) and metadata.
-//! Annotation files (WFDB) are read and written by [`annotation`].
+//! Readers: [`wfdb`] (WFDB records), [`edf`] (EDF/EDF+), [`csv`] (one column per
+//! lead) and [`aecg`] (HL7 v3 annotated ECG XML). Every signal reader produces the
+//! same [`Record`]: one sampling rate, leads with their names exactly as the input
+//! header gives them (aECG: the MDC lead code without its `MDC_ECG_LEAD_` prefix,
+//! see [`aecg`]), samples in physical units (millivolts where the input's units
+//! allow the conversion) and metadata. Annotation files (WFDB) are read and
+//! written by [`annotation`].
+//!
+//! Every reader passes the same contract test (`tests/reader_contract.rs`): the
+//! invariants of [`Record`] on files it reads, and an error naming the file for an
+//! empty file, a truncated file and an unknown extension.
 //!
 //! Conventions: sample indices are 0-based from the first sample of the record;
 //! time in seconds is `sample / fs`. Physical values are converted to millivolts
@@ -33,7 +40,8 @@ use serde::{Deserialize, Serialize};
 /// One lead of a record.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Lead {
-    /// Lead name exactly as in the input (WFDB description, EDF label, CSV header).
+    /// Lead name exactly as in the input (WFDB description, EDF label, CSV header;
+    /// aECG: the lead code without `MDC_ECG_LEAD_`).
     pub name: String,
     /// Units of `samples` after conversion (normally `mV`).
     pub units: String,
@@ -44,7 +52,7 @@ pub struct Lead {
 /// A recording as every reader returns it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Record {
-    /// Record name (file stem for EDF/CSV, record name for WFDB).
+    /// Record name (file stem for EDF/CSV/aECG, record name for WFDB).
     pub name: String,
     /// Sampling rate in Hz, shared by all leads.
     pub fs: f64,
