@@ -327,6 +327,15 @@ fn time_fs(path: &Path, value: Node, code: &str, ty: &str) -> Result<f64, Format
         ));
     }
     let fs = 1.0 / secs;
+    if !fs.is_finite() {
+        return Err(bad(
+            path,
+            format!(
+                "time sequence ({code}) {}: increment {v} {unit} gives no finite sampling rate",
+                at(inc)
+            ),
+        ));
+    }
     // Increments like 0.002 s are not exact in binary; 1/0.002 may miss 500 by an ulp.
     let r = fs.round();
     Ok(if r > 0.0 && ((fs - r) / r).abs() < 1e-9 {
@@ -393,7 +402,18 @@ fn lead_of(path: &Path, value: Node, code: &str, ty: &str) -> Result<Lead, Forma
                 ),
             )
         })?;
-        samples.push(o + s * d as f64);
+        let x = o + s * d as f64;
+        if !x.is_finite() {
+            return Err(bad(
+                path,
+                format!(
+                    "{what} {}: digit {} ({d}) gives a value out of range with this origin and scale",
+                    at(digits),
+                    k + 1
+                ),
+            ));
+        }
+        samples.push(x);
     }
     let name = code.strip_prefix(LEAD_PREFIX).unwrap_or(code);
     if name.is_empty() {
@@ -618,6 +638,21 @@ mod tests {
         assert!(err(&doc(t, &two_leads(), "")).contains("must be positive"));
         let t = r#"<value xsi:type="GLIST_TS"><increment value="NaN" unit="s"/></value>"#;
         assert!(err(&doc(t, &two_leads(), "")).contains("not finite"));
+        // Subnormal increment: 1 / 1e-320 overflows (found by tests/aecg_mutation.rs).
+        let t = r#"<value xsi:type="GLIST_TS"><increment value="1e-320" unit="s"/></value>"#;
+        assert!(err(&doc(t, &two_leads(), "")).contains("no finite sampling rate"));
+    }
+
+    #[test]
+    fn overflowing_values() {
+        let mut l = two_leads();
+        l[0].3 = "1e308";
+        l[0].4 = "0 9000000000000000000 1 1";
+        let e = err(&doc(TIME, &l, ""));
+        assert!(
+            e.contains("digit 2 (9000000000000000000) gives a value out of range"),
+            "{e}"
+        );
     }
 
     #[test]
