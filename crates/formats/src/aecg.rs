@@ -370,14 +370,29 @@ fn lead_of(path: &Path, value: Node, code: &str, ty: &str) -> Result<Lead, Forma
         ));
     }
     let digits = get("digits")?;
-    // Both quantities are brought to mV when they are voltages; otherwise they must share a unit.
-    let (fo, fsc, units) = match (to_mv_factor(ou), to_mv_factor(su)) {
+    // The scale's unit is the lead's unit (to mV when a voltage). The origin is
+    // brought to the same unit; a zero origin may omit its unit.
+    if su.is_empty() {
+        return Err(bad(
+            path,
+            format!("{what} {}: no unit (expected uV, mV or V)", at(scale_node)),
+        ));
+    }
+    let origin_unit = if ou.is_empty() && origin == 0.0 {
+        su
+    } else {
+        ou
+    };
+    let (fo, fsc, units) = match (to_mv_factor(origin_unit), to_mv_factor(su)) {
         (Some(a), Some(b)) => (a, b, "mV".to_string()),
-        _ if ou == su || (origin == 0.0 && ou.is_empty()) => (1.0, 1.0, su.to_string()),
+        _ if origin_unit == su => (1.0, 1.0, su.to_string()),
         _ => {
             return Err(bad(
                 path,
-                format!("{what} {}: origin unit `{ou}` and scale unit `{su}` differ and are not both voltages", at(value)),
+                format!(
+                    "{what} {}: origin unit `{ou}` and scale unit `{su}` differ and are not both voltages",
+                    at(value)
+                ),
             ))
         }
     };
@@ -641,6 +656,39 @@ mod tests {
         // Subnormal increment: 1 / 1e-320 overflows (found by tests/aecg_mutation.rs).
         let t = r#"<value xsi:type="GLIST_TS"><increment value="1e-320" unit="s"/></value>"#;
         assert!(err(&doc(t, &two_leads(), "")).contains("no finite sampling rate"));
+    }
+
+    #[test]
+    fn units() {
+        // A zero origin without a unit takes the scale's: still converted to mV.
+        let d = doc(TIME, &two_leads(), "").replacen(
+            r#"<origin value="0" unit="uV"/>"#,
+            r#"<origin value="0"/>"#,
+            1,
+        );
+        let r = parse_aecg(&d, Path::new(P)).unwrap();
+        assert_eq!(r.leads[0].units, "mV");
+        assert_eq!(r.leads[0].samples[1], 1.0);
+        // Origin in mV, scale in uV: both to mV (crate docs: uV / 1000, mV x 1).
+        let d = doc(TIME, &two_leads(), "").replacen(
+            r#"<origin value="0" unit="uV"/>"#,
+            r#"<origin value="2" unit="mV"/>"#,
+            1,
+        );
+        let r = parse_aecg(&d, Path::new(P)).unwrap();
+        assert_eq!(r.leads[0].samples[1], 3.0);
+        // Scale without a unit; non-voltage units that differ.
+        let d = doc(TIME, &two_leads(), "").replacen(
+            r#"<scale value="5" unit="uV"/>"#,
+            r#"<scale value="5"/>"#,
+            1,
+        );
+        assert!(err(&d).contains("<scale> (line"));
+        let d = doc(TIME, &two_leads(), "").replace(r#"unit="uV""#, r#"unit="mmHg""#);
+        let r = parse_aecg(&d, Path::new(P)).unwrap();
+        assert_eq!(r.leads[0].units, "mmHg");
+        let d = doc(TIME, &two_leads(), "").replacen(r#"unit="uV""#, r#"unit="mmHg""#, 1);
+        assert!(err(&d).contains("differ and are not both voltages"));
     }
 
     #[test]
