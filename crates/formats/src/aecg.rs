@@ -22,7 +22,9 @@
 //! ```
 //!
 //! Samples: physical = origin + scale × digit, converted to millivolts when the
-//! units are a voltage (`uV`, `mV`, `V`; see the crate docs); `fs` = 1 / increment,
+//! units are a voltage (`uV`, `mV`, `V`; see the crate docs). The scale's unit is
+//! the lead's unit (a non-voltage unit is kept unconverted and then the origin must
+//! share it); a zero origin may omit its unit. `fs` = 1 / increment,
 //! rounded to the nearest integer when within 1e-9 of it (so that `0.002 s` gives
 //! exactly 500 Hz).
 //!
