@@ -2,12 +2,14 @@
 //!
 //! An INPUT is a folder, a `RECORDS` list or a record path:
 //! - a folder with a `RECORDS` file: the records it lists;
-//! - a folder without one: every WFDB header (`*.hea`), EDF (`*.edf`) and CSV
-//!   (`*.csv`, except `subjects.csv`) directly inside it, sorted by name;
+//! - a folder without one: every WFDB header (`*.hea`), EDF (`*.edf`), CSV
+//!   (`*.csv`, except `subjects.csv`) and HL7 aECG (`*.xml`) file directly inside
+//!   it, sorted by name. Any `*.xml` is taken: an XML file that is not an aECG
+//!   document fails as its own record with a clear message, and the batch goes on;
 //! - a `RECORDS` file (any file named `RECORDS`): one record per line, relative
 //!   to the file's folder, with or without an extension (`.hea` assumed without);
 //!   entries that would leave that folder (`..`, absolute paths) are rejected;
-//! - a path to a `.hea`, `.edf` or `.csv` file, or a WFDB record path without
+//! - a path to a `.hea`, `.edf`, `.csv` or `.xml` file, or a WFDB record path without
 //!   extension whose `.hea` exists.
 
 use anyhow::{bail, Context, Result};
@@ -19,11 +21,11 @@ use std::path::{Component, Path, PathBuf};
 pub struct RecordInput {
     /// Unique name within the run (file stem).
     pub name: String,
-    /// Path handed to the reader (`.hea`, `.edf` or `.csv`).
+    /// Path handed to the reader (`.hea`, `.edf`, `.csv` or `.xml`).
     pub path: PathBuf,
 }
 
-const SIGNAL_EXTS: [&str; 3] = ["hea", "edf", "csv"];
+const SIGNAL_EXTS: [&str; 4] = ["hea", "edf", "csv", "xml"];
 
 fn ext_of(p: &Path) -> Option<String> {
     p.extension()
@@ -39,8 +41,8 @@ fn from_path(p: &Path) -> Result<RecordInput> {
                 hea
             } else {
                 bail!(
-                    "{}: not a record: expected a folder, a RECORDS file, a .hea, .edf or .csv file, \
-                     or a WFDB record name with a .hea beside it",
+                    "{}: not a record: expected a folder, a RECORDS file, a .hea, .edf, .csv or \
+                     .xml (HL7 aECG) file, or a WFDB record name with a .hea beside it",
                     p.display()
                 )
             }
@@ -152,6 +154,7 @@ mod tests {
             "a.dat",
             "b.edf",
             "c.csv",
+            "d.xml",
             "subjects.csv",
             "notes.txt",
         ] {
@@ -162,7 +165,7 @@ mod tests {
             .into_iter()
             .map(|r| r.name)
             .collect();
-        assert_eq!(names, ["a", "b", "c"]);
+        assert_eq!(names, ["a", "b", "c", "d"]);
     }
 
     #[test]

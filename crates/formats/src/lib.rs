@@ -1,9 +1,16 @@
 //! Readers and writers for the open ECG formats tendline accepts.
 //!
-//! Every signal reader produces the same [`Record`]: one sampling rate, leads with
-//! their names exactly as the input header gives them, samples in physical units
-//! (millivolts where the input's units allow the conversion) and metadata.
-//! Annotation files (WFDB) are read and written by [`annotation`].
+//! Readers: [`wfdb`] (WFDB records), [`edf`] (EDF/EDF+), [`csv`] (one column per
+//! lead) and [`aecg`] (HL7 v3 annotated ECG XML). Every signal reader produces the
+//! same [`Record`]: one sampling rate, leads with their names exactly as the input
+//! header gives them (aECG: the MDC lead code without its `MDC_ECG_LEAD_` prefix,
+//! see [`aecg`]), samples in physical units (millivolts where the input's units
+//! allow the conversion) and metadata. Annotation files (WFDB) are read and
+//! written by [`annotation`].
+//!
+//! Every reader passes the same contract test (`tests/reader_contract.rs`): the
+//! invariants of [`Record`] on files it reads, and an error naming the file for an
+//! empty file, a truncated file and an unknown extension.
 //!
 //! Conventions: sample indices are 0-based from the first sample of the record;
 //! time in seconds is `sample / fs`. Physical values are converted to millivolts
@@ -13,6 +20,7 @@
 //!
 //! Entry point: [`read_record`] picks the reader from the file extension.
 
+pub mod aecg;
 pub mod annotation;
 pub mod csv;
 pub mod edf;
@@ -32,7 +40,8 @@ use serde::{Deserialize, Serialize};
 /// One lead of a record.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Lead {
-    /// Lead name exactly as in the input (WFDB description, EDF label, CSV header).
+    /// Lead name exactly as in the input (WFDB description, EDF label, CSV header;
+    /// aECG: the lead code without `MDC_ECG_LEAD_`).
     pub name: String,
     /// Units of `samples` after conversion (normally `mV`).
     pub units: String,
@@ -43,7 +52,7 @@ pub struct Lead {
 /// A recording as every reader returns it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Record {
-    /// Record name (file stem for EDF/CSV, record name for WFDB).
+    /// Record name (file stem for EDF/CSV/aECG, record name for WFDB).
     pub name: String,
     /// Sampling rate in Hz, shared by all leads.
     pub fs: f64,
@@ -86,7 +95,8 @@ impl ReadOptions {
 }
 
 /// Read a record, choosing the reader by extension: `.hea` (or a path without
-/// extension that has a sibling `.hea`) → WFDB, `.edf` → EDF/EDF+, `.csv` → CSV.
+/// extension that has a sibling `.hea`) → WFDB, `.edf` → EDF/EDF+, `.csv` → CSV,
+/// `.xml` → HL7 aECG ([`aecg`]).
 pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatError> {
     let ext = path
         .extension()
@@ -95,12 +105,13 @@ pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatErro
         Some("hea") => wfdb::read_record(path),
         Some("edf") => edf::read_edf(path),
         Some("csv") => csv::read_csv(path, opts.csv_fs),
+        Some("xml") => aecg::read_aecg(path),
         _ if wfdb::header_path_of(path).is_file() => wfdb::read_record(path),
         _ => Err(FormatError::Invalid {
             path: path.to_path_buf(),
             message:
-                "unknown input type: expected a .hea, .edf or .csv file, or a WFDB record path \
-                      with a sibling .hea"
+                "unknown input type: expected a .hea, .edf, .csv or .xml (HL7 aECG) file, or a \
+                      WFDB record path with a sibling .hea"
                     .into(),
         }),
     }

@@ -23,7 +23,8 @@ pub struct Metadata {
     /// Age in years.
     pub age: Option<f64>,
     pub sex: Option<Sex>,
-    /// Subject identifier (from a subjects CSV), linking serial records.
+    /// Subject identifier (from a subjects CSV, or an aECG `trialSubject/id`), linking
+    /// serial records.
     pub subject: Option<String>,
     /// Timepoint label (e.g. `baseline`, `post-dose`), from a subjects CSV.
     pub timepoint: Option<String>,
