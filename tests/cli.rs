@@ -125,7 +125,10 @@ fn record_whose_output_cannot_be_put_in_place_fails_alone() {
     assert!(!out.path().join("parts/2.json").exists());
     let summary = std::fs::read_to_string(out.path().join("summary.csv")).unwrap();
     assert_eq!(summary.lines().count(), 2, "{summary}");
-    assert!(summary.lines().nth(1).unwrap().starts_with("1,"), "{summary}");
+    assert!(
+        summary.lines().nth(1).unwrap().starts_with("1,"),
+        "{summary}"
+    );
     let leftovers: Vec<_> = walk(out.path())
         .into_iter()
         .filter(|p| p.to_string_lossy().contains(".tmp-"))

@@ -96,7 +96,7 @@ struct RunArgs {
     /// Subjects CSV (record, subject, sex, age, timepoint); default: subjects.csv in an input folder.
     #[arg(long)]
     subjects: Option<PathBuf>,
-    /// Worker threads (default: all cores).
+    /// Worker threads (default: all cores); one more thread makes finished records durable and writes results.h5.
     #[arg(long)]
     jobs: Option<usize>,
     /// Redo records even when complete results under the same config and inputs exist.
