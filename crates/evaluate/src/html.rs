@@ -520,6 +520,12 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
         if let Some(b) = &q.window_single {
             rows.push(("window, single lead", b));
         }
+        if let Some(b) = &q.window_superimposed_lead_ref {
+            rows.push(("window, superimposed leads, vs longest reference lead", b));
+        }
+        if let Some(b) = &q.window_single_lead_ref {
+            rows.push(("window, single lead, vs longest reference lead", b));
+        }
         ba_rows(&mut o, &rows);
         o.push_str("<div class=plots>");
         for (name, b) in rows {

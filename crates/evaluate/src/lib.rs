@@ -373,7 +373,7 @@ fn protocol(opts: &ValidateOptions) -> Protocol {
             "Fiducials: reference beats paired to test beats by QRS peak; a reference fiducial is detected when the paired test beat marks it within the fiducial window; error = test - reference (ms); undetected and unpaired reference fiducials are false negatives.".into(),
             "False positives (positive predictivity): on paired beats only, where the reference annotates the wave exhaustively (any file of that reference kind marks it) and the reference beat lacks the whole wave while the test mark lies within the span the reference annotates on that channel (first to last reference mark), or the test mark lies outside the fiducial window of a present reference mark.".into(),
             "Statistics: SD with n - 1; mean of per-record SDs over records with >= 2 errors; p95 of |error| linear interpolation; CSE pass = pooled SD <= CSE 1985 tolerance (P on 10.2, P end 12.7, QRS on 6.5, QRS end 11.6, T end 30.6 ms).".into(),
-            "QT: beat QT = T end - QRS on on paired beats where both sides mark both (no fiducial window); window QT = windows.csv qt_superimposed_ms / qt_ms vs mean reference beat QT of reference beats with QRS peak in [start_s, end_s), windows with >= min_window_beats; Bland-Altman limits = bias +/- 1.96 SD.".into(),
+            "QT: beat QT = T end - QRS on on paired beats where both sides mark both (no fiducial window); window QT = windows.csv qt_superimposed_ms / qt_ms vs mean reference beat QT of reference beats with QRS peak in [start_s, end_s), windows with >= min_window_beats; with per-lead references also vs the longest per-lead reference QT (each lead file's mean beat QT in the window, >= min_window_beats beats; the longest lead's mean); Bland-Altman limits = bias +/- 1.96 SD.".into(),
             "Global reference without .q1c (LUDB): beats of all lead files clustered by QRS peak as above; per beat the earliest onset, latest offset and median peak over the leads that mark them (common practice for global boundaries).".into(),
             "Human reference: .q2c (annotator 2) scored against .q1c (annotator 1) with the same code, on the beats both annotators selected (.q1c beats paired with a .q2c beat) and the fiducials annotator 2 marks; the tool is shown on the same beats and fiducials. Window QT: per window of windows.csv, the mean beat QT of each annotator's beats with QRS peak in [start_s, end_s), on windows where both annotators have >= min_window_beats such beats; annotator 2 vs annotator 1, and the tool's qt_superimposed_ms vs annotator 1 on the same windows.".into(),
         ],
@@ -467,6 +467,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
     let mut global = None;
     let mut human = None;
     let mut qt = None;
+    let windows = load_windows(opts, &mut warnings)?;
     let mut global_scores: Vec<RecordScore> = Vec::new();
     if want_global {
         let refs: Vec<&ParsedBeats> = recs.iter().filter_map(|r| r.global_ref()).collect();
@@ -520,7 +521,6 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 &ppv,
                 None,
             ));
-            let windows = load_windows(opts, &mut warnings)?;
             // Human reference.
             let pairs: Vec<&Loaded> = recs
                 .iter()
@@ -602,6 +602,8 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 window_superimposed: ws,
                 window_single: wsingle,
                 windows_scored: n_w,
+                window_superimposed_lead_ref: None,
+                window_single_lead_ref: None,
             });
         }
     }
@@ -657,19 +659,21 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                     .flat_map(|x| x.qt_pairs.iter().map(|q| (q.0, q.1)))
                     .collect();
                 let ba = BlandAltman::from_pairs(&p);
-                match &mut qt {
-                    Some(q) => q.beat_per_lead = Some(ba),
-                    None => {
-                        qt = Some(QtSection {
-                            reference: "lead files".into(),
-                            beat: BlandAltman::default(),
-                            beat_per_lead: Some(ba),
-                            window_superimposed: None,
-                            window_single: None,
-                            windows_scored: 0,
-                        })
-                    }
-                }
+                let (lead_sup, lead_single) =
+                    window_qt_longest_lead_ref(opts, windows.as_deref(), &recs);
+                let q = qt.get_or_insert_with(|| QtSection {
+                    reference: "lead files".into(),
+                    beat: BlandAltman::default(),
+                    beat_per_lead: None,
+                    window_superimposed: None,
+                    window_single: None,
+                    windows_scored: 0,
+                    window_superimposed_lead_ref: None,
+                    window_single_lead_ref: None,
+                });
+                q.beat_per_lead = Some(ba);
+                q.window_superimposed_lead_ref = lead_sup;
+                q.window_single_lead_ref = lead_single;
             }
         }
     }
@@ -772,6 +776,41 @@ fn window_qt(
     }
     let f = |v: Vec<(f64, f64)>| (!v.is_empty()).then(|| BlandAltman::from_pairs(&v));
     (f(sup), f(single), n)
+}
+
+/// Window QT against the longest per-lead reference QT (per-lead references such as
+/// LUDB's): per window, each lead file's mean beat QT over its beats with QRS peak
+/// in the window (at least `min_window_beats` of them), and the longest of those
+/// means is the reference; (superimposed-leads QT, QTc-feeding QT) against it.
+fn window_qt_longest_lead_ref(
+    opts: &ValidateOptions,
+    rows: Option<&[inputs::WindowRow]>,
+    recs: &[Loaded],
+) -> (Option<BlandAltman>, Option<BlandAltman>) {
+    let Some(rows) = rows else {
+        return (None, None);
+    };
+    let by_name: BTreeMap<&str, &Loaded> = recs.iter().map(|r| (r.name.as_str(), r)).collect();
+    let (mut sup, mut single) = (Vec::new(), Vec::new());
+    for w in rows {
+        let Some(r) = by_name.get(w.record.as_str()) else {
+            continue;
+        };
+        let longest = r
+            .leads
+            .values()
+            .filter_map(|b| window_mean_qt(b, w, r.hdr.fs, opts.min_window_beats))
+            .reduce(f64::max);
+        let Some(m) = longest else { continue };
+        if let Some(v) = w.qt_superimposed_ms {
+            sup.push((v, m));
+        }
+        if let Some(v) = w.qt_ms {
+            single.push((v, m));
+        }
+    }
+    let f = |v: Vec<(f64, f64)>| (!v.is_empty()).then(|| BlandAltman::from_pairs(&v));
+    (f(sup), f(single))
 }
 
 /// Window QT of annotator 2 and of the tool (superimposed leads) against annotator 1,

@@ -159,6 +159,16 @@ fn qt_md(out: &mut String, q: &QtSection) {
     if let Some(b) = &q.window_single {
         ba_row(out, "window, single lead", b);
     }
+    if let Some(b) = &q.window_superimposed_lead_ref {
+        ba_row(
+            out,
+            "window, superimposed leads, vs longest reference lead",
+            b,
+        );
+    }
+    if let Some(b) = &q.window_single_lead_ref {
+        ba_row(out, "window, single lead, vs longest reference lead", b);
+    }
     out.push('\n');
 }
 

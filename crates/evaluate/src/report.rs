@@ -157,6 +157,13 @@ pub struct QtSection {
     pub window_single: Option<BlandAltman>,
     /// Windows with enough reference beats.
     pub windows_scored: usize,
+    /// Per-lead references: window QT from superimposed leads vs the longest per-lead
+    /// reference QT of the window (each lead's mean beat QT; the longest lead's).
+    #[serde(default)]
+    pub window_superimposed_lead_ref: Option<BlandAltman>,
+    /// Per-lead references: the QTc-feeding window QT vs the same reference.
+    #[serde(default)]
+    pub window_single_lead_ref: Option<BlandAltman>,
 }
 
 /// Second annotator vs first, and the tool on the same records.
