@@ -85,12 +85,7 @@ fn bad_record_fails_alone_and_sets_exit_code() {
     let summary = std::fs::read_to_string(out.path().join("summary.csv")).unwrap();
     assert_eq!(summary.lines().count(), 3, "{summary}");
     assert!(out.path().join("results.h5").is_file());
-    // No temporary files left behind.
-    let leftovers: Vec<_> = walk(out.path())
-        .into_iter()
-        .filter(|p| p.to_string_lossy().contains(".tmp-"))
-        .collect();
-    assert!(leftovers.is_empty(), "{leftovers:?}");
+    assert_no_temporaries(out.path());
 }
 
 #[test]
@@ -129,7 +124,12 @@ fn record_whose_output_cannot_be_put_in_place_fails_alone() {
         summary.lines().nth(1).unwrap().starts_with("1,"),
         "{summary}"
     );
-    let leftovers: Vec<_> = walk(out.path())
+    assert_no_temporaries(out.path());
+}
+
+/// No temporary file (`.<name>.tmp-…`) is left anywhere below `out`.
+fn assert_no_temporaries(out: &Path) {
+    let leftovers: Vec<_> = walk(out)
         .into_iter()
         .filter(|p| p.to_string_lossy().contains(".tmp-"))
         .collect();

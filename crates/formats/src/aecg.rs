@@ -65,19 +65,7 @@ fn bad(path: &Path, msg: String) -> FormatError {
 
 /// Read an aECG XML file.
 pub fn read_aecg(path: &Path) -> Result<Record, FormatError> {
-    let bytes = std::fs::read(path).map_err(|e| FormatError::Io {
-        path: path.to_path_buf(),
-        source: e,
-    })?;
-    let text = String::from_utf8(bytes).map_err(|e| {
-        bad(
-            path,
-            format!(
-                "not UTF-8 text (invalid byte at offset {})",
-                e.utf8_error().valid_up_to()
-            ),
-        )
-    })?;
+    let text = crate::read_utf8(path)?;
     parse_aecg(&text, path)
 }
 
@@ -267,17 +255,7 @@ pub fn parse_aecg(text: &str, path: &Path) -> Result<Record, FormatError> {
     }
     let mut meta = metadata(root, &mut warnings);
     meta.comments = comments;
-    Ok(Record {
-        name: path
-            .file_stem()
-            .map(|s| s.to_string_lossy().into_owned())
-            .unwrap_or_default(),
-        fs,
-        leads,
-        meta,
-        files: vec![path.to_path_buf()],
-        warnings,
-    })
+    Ok(Record::from_file(path, fs, leads, meta, warnings))
 }
 
 /// Sampling rate from the time sequence's `value` (GLIST_TS or GLIST_PQ).

@@ -72,19 +72,7 @@ fn fs_of_comment(c: &str) -> Option<&str> {
 
 /// Read a CSV recording; `fs_hz` (if given) sets the sampling rate.
 pub fn read_csv(path: &Path, fs_hz: Option<f64>) -> Result<Record, FormatError> {
-    let bytes = std::fs::read(path).map_err(|e| FormatError::Io {
-        path: path.to_path_buf(),
-        source: e,
-    })?;
-    let text = String::from_utf8(bytes).map_err(|e| {
-        bad(
-            path,
-            format!(
-                "not UTF-8 text (invalid byte at offset {})",
-                e.utf8_error().valid_up_to()
-            ),
-        )
-    })?;
+    let text = crate::read_utf8(path)?;
     parse_csv(&text, path, fs_hz)
 }
 
@@ -247,20 +235,11 @@ pub fn parse_csv(text: &str, path: &Path, fs_hz: Option<f64>) -> Result<Record, 
             samples,
         });
     }
-    Ok(Record {
-        name: path
-            .file_stem()
-            .map(|s| s.to_string_lossy().into_owned())
-            .unwrap_or_default(),
-        fs,
-        leads,
-        meta: Metadata {
-            comments,
-            ..Metadata::default()
-        },
-        files: vec![path.to_path_buf()],
-        warnings: Vec::new(),
-    })
+    let meta = Metadata {
+        comments,
+        ..Metadata::default()
+    };
+    Ok(Record::from_file(path, fs, leads, meta, Vec::new()))
 }
 
 #[cfg(test)]

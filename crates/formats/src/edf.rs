@@ -580,17 +580,7 @@ pub fn edf_to_record(file: EdfFile, path: &Path) -> Result<Record, FormatError> 
     if header.variant == EdfVariant::EdfPlusC {
         patient_meta(&header, &mut meta);
     }
-    Ok(Record {
-        name: path
-            .file_stem()
-            .map(|s| s.to_string_lossy().into_owned())
-            .unwrap_or_default(),
-        fs,
-        leads,
-        meta,
-        files: vec![path.to_path_buf()],
-        warnings,
-    })
+    Ok(Record::from_file(path, fs, leads, meta, warnings))
 }
 
 const MONTHS: [&str; 12] = [

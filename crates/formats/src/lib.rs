@@ -68,10 +68,48 @@ pub struct Record {
 }
 
 impl Record {
+    /// A record read from the single file `path` (EDF, CSV, aECG): named by the
+    /// file's stem, with that file as its only input.
+    pub fn from_file(
+        path: &Path,
+        fs: f64,
+        leads: Vec<Lead>,
+        meta: Metadata,
+        warnings: Vec<String>,
+    ) -> Self {
+        Self {
+            name: path
+                .file_stem()
+                .map(|s| s.to_string_lossy().into_owned())
+                .unwrap_or_default(),
+            fs,
+            leads,
+            meta,
+            files: vec![path.to_path_buf()],
+            warnings,
+        }
+    }
+
     /// Number of samples per lead (all leads have the same length).
     pub fn n_samples(&self) -> usize {
         self.leads.first().map_or(0, |l| l.samples.len())
     }
+}
+
+/// The whole file at `path` as UTF-8 text; errors name the file and, for bytes
+/// that are not UTF-8, the offset of the first bad one (text formats: CSV, aECG).
+pub(crate) fn read_utf8(path: &Path) -> Result<String, FormatError> {
+    let bytes = std::fs::read(path).map_err(|source| FormatError::Io {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    String::from_utf8(bytes).map_err(|e| FormatError::Invalid {
+        path: path.to_path_buf(),
+        message: format!(
+            "not UTF-8 text (invalid byte at offset {})",
+            e.utf8_error().valid_up_to()
+        ),
+    })
 }
 
 /// Options of [`read_record`] (TOML table `input`). Default: every option unset.

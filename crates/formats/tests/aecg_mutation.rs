@@ -5,22 +5,12 @@
 //! record contract (equal lead lengths > 0, finite fs > 0). Complements the
 //! cargo-fuzz target fuzz/fuzz_targets/aecg.rs.
 
+mod mutation_util;
+
+use mutation_util::Rng;
 use std::path::Path;
 
 use tendline_formats::aecg::parse_aecg;
-
-struct Rng(u64);
-impl Rng {
-    fn next(&mut self) -> u64 {
-        self.0 ^= self.0 >> 12;
-        self.0 ^= self.0 << 25;
-        self.0 ^= self.0 >> 27;
-        self.0.wrapping_mul(0x2545_f491_4f6c_dd1d)
-    }
-    fn below(&mut self, n: usize) -> usize {
-        (self.next() % n.max(1) as u64) as usize
-    }
-}
 
 /// HL7 aECG layout (from memory of the HL7 v3 aECG standard), two leads.
 const SEED: &str = r#"<?xml version="1.0" encoding="UTF-8"?>

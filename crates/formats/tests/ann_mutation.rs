@@ -4,25 +4,14 @@
 //! never panic, and whatever it accepts must re-encode and parse back equal.
 //! (Complements the cargo-fuzz target fuzz/fuzz_targets/annotation.rs.)
 
+mod mutation_util;
+
+use mutation_util::Rng;
 use std::path::{Path, PathBuf};
 
 use tendline_formats::annotation::{
     encode_annotation_file, parse_annotation_file, parse_annotations, Annotation,
 };
-
-/// xorshift64*: a small deterministic generator (no dependency needed).
-struct Rng(u64);
-impl Rng {
-    fn next(&mut self) -> u64 {
-        self.0 ^= self.0 >> 12;
-        self.0 ^= self.0 << 25;
-        self.0 ^= self.0 >> 27;
-        self.0.wrapping_mul(0x2545_f491_4f6c_dd1d)
-    }
-    fn below(&mut self, n: usize) -> usize {
-        (self.next() % n.max(1) as u64) as usize
-    }
-}
 
 fn mutate(rng: &mut Rng, seed: &[u8]) -> Vec<u8> {
     let mut b = seed.to_vec();

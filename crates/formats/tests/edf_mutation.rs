@@ -4,23 +4,13 @@
 //! through `parse_edf` and `edf_to_record`; they must return Ok or Err, never
 //! panic. (Complements the cargo-fuzz target fuzz/fuzz_targets/edf.rs.)
 
+mod mutation_util;
+
+use mutation_util::Rng;
 use std::path::{Path, PathBuf};
 
 use tendline_formats::edf::{edf_to_record, encode_edf, parse_edf, EdfAnnotation};
 use tendline_formats::{Lead, Metadata, Record, Sex};
-
-struct Rng(u64);
-impl Rng {
-    fn next(&mut self) -> u64 {
-        self.0 ^= self.0 >> 12;
-        self.0 ^= self.0 << 25;
-        self.0 ^= self.0 >> 27;
-        self.0.wrapping_mul(0x2545_f491_4f6c_dd1d)
-    }
-    fn below(&mut self, n: usize) -> usize {
-        (self.next() % n.max(1) as u64) as usize
-    }
-}
 
 /// Text a header field might plausibly (or implausibly) hold.
 const FIELD_VALUES: [&[u8]; 12] = [
