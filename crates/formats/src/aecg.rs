@@ -485,6 +485,111 @@ fn metadata(root: Node, warnings: &mut Vec<String>) -> Metadata {
     m
 }
 
+/// MDC code of a lead name: `MDC_ECG_LEAD_` and the name upper-cased (`aVR` →
+/// `MDC_ECG_LEAD_AVR`, the form of the MDC nomenclature, ISO/IEEE 11073-10101);
+/// a name that already carries the prefix is kept.
+pub fn lead_code(name: &str) -> String {
+    if name.starts_with(LEAD_PREFIX) {
+        name.to_string()
+    } else {
+        format!("{LEAD_PREFIX}{}", name.to_ascii_uppercase())
+    }
+}
+
+fn xml_escape(v: &str) -> String {
+    v.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
+/// The HL7 aECG document of `rec`, as [`parse_aecg`] reads it: one rhythm series
+/// with one sequence set holding a regular relative time axis (`TIME_RELATIVE`,
+/// `GLIST_PQ`, increment 1/fs in s) and one `SLIST_PQ` sequence per lead (origin
+/// 0 µV, scale `step_uv` µV, samples rounded to whole steps); the lead codes come
+/// from [`lead_code`]; sex and subject id from `rec.meta` when known (the age is
+/// not written: the standard derives it from a birth date this crate does not
+/// keep). Errors (as text): a lead not in mV, a non-finite sample, a step that is
+/// not positive, a sample beyond ±2^53 steps.
+pub fn encode_aecg(rec: &Record, step_uv: f64) -> Result<String, String> {
+    use std::fmt::Write;
+    if !(step_uv.is_finite() && step_uv > 0.0) {
+        return Err(format!("step_uv: must be positive, got {step_uv}"));
+    }
+    if !(rec.fs.is_finite() && rec.fs > 0.0) {
+        return Err(format!("fs: must be positive, got {}", rec.fs));
+    }
+    let mut x = String::with_capacity(64 + rec.leads.len() * (rec.n_samples() * 6 + 300));
+    x.push_str("<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n");
+    let _ = writeln!(
+        x,
+        "<AnnotatedECG xmlns=\"{HL7_NS}\" xmlns:xsi=\"{XSI_NS}\">\n  <id extension=\"{}\"/>\n  <code code=\"93000\" codeSystem=\"2.16.840.1.113883.6.12\" codeSystemName=\"CPT-4\"/>",
+        xml_escape(&rec.name)
+    );
+    if rec.meta.subject.is_some() || rec.meta.sex.is_some() {
+        x.push_str("  <componentOf><timepointEvent><componentOf><subjectAssignment><subject><trialSubject>\n");
+        if let Some(sub) = &rec.meta.subject {
+            let _ = writeln!(x, "    <id extension=\"{}\"/>", xml_escape(sub));
+        }
+        if let Some(sex) = rec.meta.sex {
+            let code = match sex {
+                Sex::Male => "M",
+                Sex::Female => "F",
+            };
+            let _ = writeln!(
+                x,
+                "    <subjectDemographicPerson><administrativeGenderCode code=\"{code}\" codeSystem=\"2.16.840.1.113883.5.1\"/></subjectDemographicPerson>"
+            );
+        }
+        x.push_str("  </trialSubject></subject></subjectAssignment></componentOf></timepointEvent></componentOf>\n");
+    }
+    let _ = writeln!(
+        x,
+        "  <component><series>\n    <code code=\"RHYTHM\" codeSystem=\"2.16.840.1.113883.5.4\"/>\n    <component><sequenceSet>\n      <component><sequence><code code=\"TIME_RELATIVE\" codeSystem=\"2.16.840.1.113883.5.4\"/><value xsi:type=\"GLIST_PQ\"><head value=\"0\" unit=\"s\"/><increment value=\"{}\" unit=\"s\"/></value></sequence></component>",
+        1.0 / rec.fs
+    );
+    // Steps beyond 2^53 are no longer whole numbers in an f64.
+    let limit = 9_007_199_254_740_992.0;
+    for l in &rec.leads {
+        if l.units != "mV" {
+            return Err(format!(
+                "lead {}: units `{}`, only mV can be written",
+                l.name, l.units
+            ));
+        }
+        let _ = write!(
+            x,
+            "      <component><sequence><code code=\"{}\" codeSystem=\"2.16.840.1.113883.6.24\"/><value xsi:type=\"SLIST_PQ\"><origin value=\"0\" unit=\"uV\"/><scale value=\"{step_uv}\" unit=\"uV\"/><digits>",
+            xml_escape(&lead_code(&l.name))
+        );
+        for (k, &v) in l.samples.iter().enumerate() {
+            let d = (v * 1000.0 / step_uv).round();
+            if !d.is_finite() || d.abs() > limit {
+                return Err(format!(
+                    "lead {}: sample {k} ({v} mV) cannot be written in steps of {step_uv} uV",
+                    l.name
+                ));
+            }
+            if k > 0 {
+                x.push(' ');
+            }
+            let _ = write!(x, "{}", d as i64);
+        }
+        x.push_str("</digits></value></sequence></component>\n");
+    }
+    x.push_str("    </sequenceSet></component>\n  </series></component>\n</AnnotatedECG>\n");
+    Ok(x)
+}
+
+/// Write [`encode_aecg`] of `rec` to `path` atomically (temporary file, rename).
+pub fn write_aecg(path: &Path, rec: &Record, step_uv: f64) -> Result<(), FormatError> {
+    let text = encode_aecg(rec, step_uv).map_err(|message| FormatError::Invalid {
+        path: path.to_path_buf(),
+        message,
+    })?;
+    crate::annotation::write_atomic(path, text.as_bytes())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -781,5 +886,48 @@ mod tests {
         assert_eq!(ts_date("2021"), None);
         assert_eq!(ts_date("20211315"), None);
         assert_eq!(ts_date("20210615093000.000+0100"), Some((2021, 6, 15)));
+    }
+
+    // Writer and reader agree: every sample on the 1 µV grid comes back exactly
+    // (the reader's physical value is origin + scale × digit, HL7 aECG SLIST_PQ).
+    #[test]
+    fn written_document_reads_back() {
+        let lead = |name: &str, k: f64| Lead {
+            name: name.into(),
+            units: "mV".into(),
+            samples: (0..500)
+                .map(|i| ((i as f64 * k).sin() * 1000.0).round() / 1000.0)
+                .collect(),
+        };
+        let rec = Record {
+            name: "r<1>".into(),
+            fs: 500.0,
+            leads: vec![lead("I", 0.01), lead("aVR", 0.02), lead("V1", 0.03)],
+            meta: Metadata {
+                sex: Some(Sex::Female),
+                subject: Some("S&1".into()),
+                ..Metadata::default()
+            },
+            files: vec![],
+            warnings: vec![],
+        };
+        let text = encode_aecg(&rec, 1.0).unwrap();
+        let back = parse_aecg(&text, Path::new("r.xml")).unwrap();
+        assert_eq!(back.fs, 500.0);
+        assert!(back.warnings.is_empty(), "{:?}", back.warnings);
+        assert_eq!(back.meta.sex, Some(Sex::Female));
+        assert_eq!(back.meta.subject.as_deref(), Some("S&1"));
+        let names: Vec<&str> = back.leads.iter().map(|l| l.name.as_str()).collect();
+        assert_eq!(names, ["I", "AVR", "V1"]);
+        for (a, b) in rec.leads.iter().zip(&back.leads) {
+            assert_eq!(a.samples.len(), b.samples.len());
+            for (x, y) in a.samples.iter().zip(&b.samples) {
+                assert!((x - y).abs() < 1e-12, "{x} {y}");
+            }
+        }
+        assert!(encode_aecg(&rec, 0.0).unwrap_err().contains("step_uv"));
+        let mut bad = rec.clone();
+        bad.leads[1].samples[3] = f64::NAN;
+        assert!(encode_aecg(&bad, 1.0).unwrap_err().contains("aVR"));
     }
 }

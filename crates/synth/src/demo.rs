@@ -5,7 +5,8 @@
 //! lengthens the QT at 1 s RR (the true QTcF, since β = 1/3) by 11–13 ms in five
 //! volunteers. S04 has a fast heart rate where Bazett and Fridericia disagree by
 //! 45–50 ms; S06 (a woman) has a prolonged QTcF (480 → 492 ms); the post-dose
-//! recording of S08 is noisy; the baseline of S03 is stored as EDF.
+//! recording of S08 is noisy; the baseline of S03 is stored as EDF and the
+//! post-dose ECG of S05 as HL7 aECG XML.
 //!
 //! Nothing here is a real person, drug or recording.
 
@@ -213,6 +214,9 @@ pub const TIMEPOINTS: [&str; 2] = ["baseline", "post-dose"];
 const SUFFIX: [&str; 2] = ["base", "post"];
 /// The record stored as EDF instead of WFDB.
 pub const EDF_RECORD: &str = "s03_base";
+/// The record stored as HL7 aECG XML instead of WFDB (the exchange format of
+/// cardiac-safety studies).
+pub const AECG_RECORD: &str = "s05_post";
 /// The noisy record.
 pub const NOISY_RECORD: &str = "s08_post";
 
@@ -237,6 +241,8 @@ pub struct DemoRecord {
     pub spec: SynthSpec,
     pub noisy: bool,
     pub edf: bool,
+    /// Stored as HL7 aECG XML ([`AECG_RECORD`]).
+    pub aecg: bool,
 }
 
 /// SplitMix64 step: decorrelates the per-record seeds derived from one seed.
@@ -277,6 +283,7 @@ pub fn scenario(seed: u64) -> Vec<DemoRecord> {
             };
             out.push(DemoRecord {
                 edf: name == EDF_RECORD,
+                aecg: name == AECG_RECORD,
                 name,
                 volunteer: *v,
                 timepoint: tp,
@@ -343,6 +350,8 @@ pub fn write_demo(out: &Path, seed: u64) -> Result<Vec<PathBuf>, SynthError> {
         };
         let path = if d.edf {
             write::write_edf(out, &d.name, &rec, meta)?
+        } else if d.aecg {
+            write::write_aecg(out, &d.name, &rec, meta)?
         } else {
             write::write_wfdb(out, &d.name, &rec, meta)?
         };
@@ -383,7 +392,13 @@ pub fn write_demo(out: &Path, seed: u64) -> Result<Vec<PathBuf>, SynthError> {
             v.sex.code(),
             v.age,
             tp,
-            if d.edf { "edf" } else { "wfdb" },
+            if d.edf {
+                "edf"
+            } else if d.aecg {
+                "aecg"
+            } else {
+                "wfdb"
+            },
             s.n_beats,
             s.mean_rr_ms,
             60_000.0 / s.mean_rr_ms,
@@ -397,9 +412,11 @@ pub fn write_demo(out: &Path, seed: u64) -> Result<Vec<PathBuf>, SynthError> {
             expected_flag(s.mean_qtcb_ms, v.sex),
         )
         .expect("string");
-        // The EDF record is listed with its extension; WFDB records by name.
+        // The EDF and aECG records are listed with their extension; WFDB records by name.
         if d.edf {
             writeln!(records_list, "{}.edf", d.name).expect("string");
+        } else if d.aecg {
+            writeln!(records_list, "{}.xml", d.name).expect("string");
         } else {
             writeln!(records_list, "{}", d.name).expect("string");
         }
@@ -462,6 +479,15 @@ fn readme(seed: u64, generated: &[(DemoRecord, SynthRecord, TruthSummary)]) -> S
          WFDB record); `subjects.csv` and `truth.csv` name every record by its file stem."
     )
     .expect("string");
+    writeln!(
+        s,
+        "* `{AECG_RECORD}.xml`: the post-dose ECG of S05, stored as an HL7 aECG document (the \
+         format sponsors exchange in cardiac-safety studies): one rhythm series, a regular time \
+         axis and one SLIST_PQ sequence per lead on a 1 µV grid, lead codes \
+         `MDC_ECG_LEAD_I` … `MDC_ECG_LEAD_V6` (read back as I … V6, with AVR, AVL, AVF \
+         upper-cased as the MDC codes have them); listed as `{AECG_RECORD}.xml` in `RECORDS`."
+    )
+    .expect("string");
     s.push_str(
         "* `<record>.truth`: global ground truth as a WFDB annotation file, per beat \
          `(` P onset, `p` P peak, `)` P end, `(` QRS onset, `N` R peak, `)` QRS end, `(` T onset, \
@@ -502,6 +528,9 @@ fn readme(seed: u64, generated: &[(DemoRecord, SynthRecord, TruthSummary)]) -> S
         }
         if d.edf {
             note.push_str(", EDF");
+        }
+        if d.aecg {
+            note.push_str(", aECG");
         }
         writeln!(
             s,

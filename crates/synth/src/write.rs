@@ -116,6 +116,20 @@ pub fn write_wfdb(
     Ok(hea)
 }
 
+/// Write the recording as `<dir>/<name>.xml` (HL7 aECG, 1 µV steps) with its
+/// truth files; returns the XML path.
+pub fn write_aecg(
+    dir: &Path,
+    name: &str,
+    rec: &SynthRecord,
+    meta: Metadata,
+) -> Result<PathBuf, SynthError> {
+    let path = dir.join(format!("{name}.xml"));
+    tendline_formats::aecg::write_aecg(&path, &to_record(rec, name, meta), 1000.0 / ADC_GAIN)?;
+    write_truth(dir, name, rec)?;
+    Ok(path)
+}
+
 /// Write the recording as `<dir>/<name>.edf` (EDF+C) with its truth files;
 /// returns the EDF path.
 pub fn write_edf(

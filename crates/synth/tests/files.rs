@@ -140,6 +140,8 @@ fn demo_scenario_has_the_promised_cases() {
     assert!(drug >= 4, "{drug} volunteers with a drug effect");
     assert_eq!(recs.iter().filter(|r| r.noisy).count(), 1);
     assert_eq!(recs.iter().filter(|r| r.edf).count(), 1);
+    assert_eq!(recs.iter().filter(|r| r.aecg).count(), 1);
+    assert!(recs.iter().all(|r| !(r.edf && r.aecg)));
 }
 
 fn assert_same_dir(a: &Path, b: &Path) {
@@ -177,14 +179,16 @@ fn shipped_demo_folder_is_regenerated_exactly() {
         .map(|e| e.unwrap().metadata().unwrap().len())
         .sum();
     assert!(total < 5_000_000, "{total} bytes");
-    // subjects.csv names every record by its file stem, EDF included.
+    // subjects.csv names every record by its file stem, EDF and aECG included.
     let subjects =
         tendline_formats::subjects::read_subjects(&dir.path().join("subjects.csv")).unwrap();
     assert_eq!(subjects.len(), 16);
     for name in subjects.keys() {
         let p = dir.path().join(name);
         assert!(
-            p.with_extension("hea").exists() || p.with_extension("edf").exists(),
+            ["hea", "edf", "xml"]
+                .iter()
+                .any(|e| p.with_extension(e).exists()),
             "{name}"
         );
     }
