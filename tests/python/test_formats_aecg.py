@@ -225,3 +225,53 @@ def test_run_on_aecg_equals_run_on_wfdb(tmp_path):
     for k in ra:
         if k not in ("record", "subject"):
             assert ra[k] == rb[k], f"{k}: aECG {ra[k]} vs WFDB {rb[k]}"
+
+
+def test_written_demo_record_decodes_with_an_independent_xml_parser(tmp_path):
+    """The demo's s05_post.xml is written by tendline's aECG writer
+    (tendline_formats::aecg::write_aecg, via tendline-synth). Decoded here with the
+    Python standard library's ElementTree, by the HL7 aECG structure (from memory:
+    AnnotatedECG/component/series[code RHYTHM]/component/sequenceSet/component/
+    sequence; SLIST_PQ physical value = origin + scale x digit), it must be a
+    well-formed HL7 v3 document with 12 standard MDC lead codes and equal, sample
+    for sample, what tendline's reader returns."""
+    import xml.etree.ElementTree as ET
+
+    path = REPO / "demo-signals" / "s05_post.xml"
+    ns = {"h": "urn:hl7-org:v3"}
+    xsi = "{http://www.w3.org/2001/XMLSchema-instance}type"
+    root = ET.parse(path).getroot()
+    assert root.tag == "{urn:hl7-org:v3}AnnotatedECG"
+    series = [
+        s for s in root.findall("h:component/h:series", ns)
+        if s.find("h:code", ns).get("code") == "RHYTHM"
+    ]
+    assert len(series) == 1
+    seqs = series[0].findall("h:component/h:sequenceSet/h:component/h:sequence", ns)
+    time = [s for s in seqs if s.find("h:code", ns).get("code").startswith("TIME_")]
+    assert len(time) == 1
+    inc = time[0].find("h:value/h:increment", ns)
+    assert time[0].find("h:value", ns).get(xsi) == "GLIST_PQ"
+    fs = 1.0 / float(inc.get("value")) * (1000.0 if inc.get("unit") == "ms" else 1.0)
+    leads, names = [], []
+    for s in seqs:
+        code = s.find("h:code", ns).get("code")
+        if code.startswith("TIME_"):
+            continue
+        v = s.find("h:value", ns)
+        assert v.get(xsi) == "SLIST_PQ"
+        scale = {"uV": 1e-3, "mV": 1.0}
+        o, sc = v.find("h:origin", ns), v.find("h:scale", ns)
+        digits = np.array(v.find("h:digits", ns).text.split(), dtype=np.int64)
+        leads.append(float(o.get("value")) * scale[o.get("unit")]
+                     + float(sc.get("value")) * scale[sc.get("unit")] * digits)
+        names.append(code)
+    assert names == ["MDC_ECG_LEAD_" + n for n in
+                     ["I", "II", "III", "AVR", "AVL", "AVF", "V1", "V2", "V3", "V4", "V5", "V6"]]
+    ref = np.stack(leads, axis=1)
+    (meta, mine), = dump([path], tmp_path / "out")
+    assert "error" not in meta, meta.get("error")
+    assert meta["fs"] == fs == 500.0
+    assert meta["lead_names"] == [n.removeprefix("MDC_ECG_LEAD_") for n in names]
+    assert mine.shape == ref.shape == (5000, 12)
+    assert np.max(np.abs(mine - ref)) < 1e-12
