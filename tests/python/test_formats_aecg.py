@@ -269,6 +269,10 @@ def test_written_demo_record_decodes_with_an_independent_xml_parser(tmp_path):
     assert names == ["MDC_ECG_LEAD_" + n for n in
                      ["I", "II", "III", "AVR", "AVL", "AVF", "V1", "V2", "V3", "V4", "V5", "V6"]]
     ref = np.stack(leads, axis=1)
+    # Einthoven's law on the stored 1 uV steps (handbook relation III = II - I; each
+    # lead is rounded on its own, so at most one step apart), as for the WFDB demo records.
+    steps = np.rint(ref * 1000.0).astype(np.int64)
+    assert np.max(np.abs(steps[:, 2] - (steps[:, 1] - steps[:, 0]))) <= 1
     (meta, mine), = dump([path], tmp_path / "out")
     assert "error" not in meta, meta.get("error")
     assert meta["fs"] == fs == 500.0

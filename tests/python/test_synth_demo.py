@@ -3,7 +3,8 @@
 
 - every WFDB record reads with the `wfdb` package (`rdrecord`), and its
   `.truth` / `.leadtruth` annotation files with `wfdb.rdann`;
-- the EDF record reads with `pyedflib`;
+- the EDF record reads with `pyedflib` (the aECG record is checked with
+  ElementTree in test_formats_aecg.py);
 - the truth marks give the QT and RR that `truth.csv` states;
 - the limb leads obey Einthoven's law III = II - I (handbook relation);
 - the noisy record carries 50 Hz interference visible in a `scipy.signal.welch`
@@ -43,11 +44,12 @@ def test_subjects_name_every_record_by_stem():
     assert len(rows) == 16
     for r in rows:
         stem = DEMO / r["record"]
-        assert stem.with_suffix(".hea").exists() or stem.with_suffix(".edf").exists()
+        assert any(stem.with_suffix(e).exists() for e in (".hea", ".edf", ".xml"))
         assert r["timepoint"] in ("baseline", "post-dose")
-    # RECORDS: WFDB records by name, the EDF record with its extension.
+    # RECORDS: WFDB records by name, the EDF and aECG records with their extension.
     listed = (DEMO / "RECORDS").read_text().split()
-    want = [r["record"] + (".edf" if r["format"] == "edf" else "") for r in truth_rows()]
+    ext = {"wfdb": "", "edf": ".edf", "aecg": ".xml"}
+    want = [r["record"] + ext[r["format"]] for r in truth_rows()]
     assert listed == want
 
 
