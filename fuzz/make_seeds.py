@@ -108,3 +108,8 @@ demo = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "demo-sign
 if os.path.exists(demo):
     with open(demo, "rb") as f:
         w(f"{C}/wfdb_header/demo1.hea", f.read())
+
+# Multi-segment records: master header \0 segment header \0 segment signal file.
+w(f"{C}/wfdb_multiseg/two16", b"m/2 2 250 8\ns 4\ns 4\n# <age>: 50\n\x00s 2 250 4\ns.dat 16 200 16 0 0 0 0 I\ns.dat 16 200 16 0 0 0 0 II\n\x00" + bytes(range(16)))
+w(f"{C}/wfdb_multiseg/one212", b"m/3 1 360 9\ns 3\ns 3\ns 3\n\x00s 1 360\ns.dat 212 100(5)/uV 12 0 0 0 0 MLII\n\x00" + bytes(range(5)))
+w(f"{C}/wfdb_multiseg/spf2", b"m/1 2 100 3\ns 3\n\x00s 2 100 3\ns.dat 8x2 200 8 0 0 0 0 A\ns.dat 8 200 8 0 0 0 0 B\n\x00" + bytes(range(9)))
