@@ -1,7 +1,8 @@
 //! HL7 v3 annotated ECG (aECG) XML files: the format cardiac-safety core labs
 //! use to exchange ECGs.
 //!
-//! Structure read (HL7 aECG, namespace `urn:hl7-org:v3`; element names are
+//! Structure read (HL7 aECG, from memory of the HL7 v3 aECG standard; namespace
+//! `urn:hl7-org:v3`; element names are
 //! matched by local name so a file with another or no namespace is read too,
 //! with a warning):
 //!
@@ -486,7 +487,8 @@ fn metadata(root: Node, warnings: &mut Vec<String>) -> Metadata {
 }
 
 /// MDC code of a lead name: `MDC_ECG_LEAD_` and the name upper-cased (`aVR` →
-/// `MDC_ECG_LEAD_AVR`, the form of the MDC nomenclature, ISO/IEEE 11073-10101);
+/// `MDC_ECG_LEAD_AVR`, the form of the MDC nomenclature, ISO/IEEE 11073-10101,
+/// from memory);
 /// a name that already carries the prefix is kept.
 pub fn lead_code(name: &str) -> String {
     if name.starts_with(LEAD_PREFIX) {
