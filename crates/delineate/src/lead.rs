@@ -256,6 +256,13 @@ impl LeadAnalysis {
         (a + 1..=b).find(|&n| w[n].signum() != s || w[n] == 0.0)
     }
 
+    /// Last sample in `[lo, b)` where `w` has left the sign of `w[b]` (or is
+    /// zero), searching back from `b`; `None` if `w` keeps that sign.
+    fn zero_cross_back(w: &[f64], lo: usize, b: usize) -> Option<usize> {
+        let s = w[b].signum();
+        (lo..b).rev().find(|&n| w[n].signum() != s || w[n] == 0.0)
+    }
+
     /// Boundary before maximum `m`: where |w| first falls below `xi·|w[m]|`
     /// or reaches a local minimum, searching back at most `max_len` samples
     /// and not before `limit`.
@@ -887,14 +894,9 @@ impl LeadAnalysis {
                     None => l.peak = None,
                 }
             }
-            let tconf = self.confidence(l.amp, k, cfg);
-            bm.t_morphology = l.morph;
-            bm.t_peak = self.mark(l.peak.map(|p| p as f64), tconf);
             let first = l.idx[0];
             let tsearch = self.ms_i(cfg.t_end_search_ms);
             let last = *l.idx.last().unwrap();
-            let t_on = Self::search_back(w, first, cfg.t_xi_on, tsearch, qend_i);
-            bm.t_on = self.mark(t_on, tconf);
             let t_end_w = Self::search_fwd_at(
                 w,
                 last,
@@ -903,6 +905,35 @@ impl LeadAnalysis {
                 t_limit,
                 cfg.t_end_interpolate,
             );
+            // A lone lobe with no peak ahead of it may be the final limb of a
+            // T wave whose first limb merges with the end of the QRS: its peak
+            // is then the last zero crossing of W_k between the QRS end and
+            // the lobe, and the wave's polarity is the opposite reading. Read
+            // so, the wave must end inside the T window (before the next
+            // complex), and it has no first limb to search its onset from.
+            let looked_back = cfg.t_lone_limb_look_back
+                && l.idx.len() == 1
+                && l.peak.is_none()
+                && t_end_w.is_some_and(|e| e <= t_hi as f64);
+            if looked_back {
+                if let Some(z) = Self::zero_cross_back(w, qend_i.max(0) as usize, first) {
+                    l.peak = Some(z);
+                    l.morph = if w[first] < 0.0 {
+                        TMorphology::Upright
+                    } else {
+                        TMorphology::Inverted
+                    };
+                }
+            }
+            let tconf = self.confidence(l.amp, k, cfg);
+            bm.t_morphology = l.morph;
+            bm.t_peak = self.mark(l.peak.map(|p| p as f64), tconf);
+            let t_on = if l.peak.is_some_and(|p| p < first) {
+                None
+            } else {
+                Self::search_back(w, first, cfg.t_xi_on, tsearch, qend_i)
+            };
+            bm.t_on = self.mark(t_on, tconf);
             bm.t_end_wavelet = self.mark(t_end_w, tconf);
 
             // Tangent: steepest point of the final limb at scale 2^3 (the

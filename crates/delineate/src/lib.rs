@@ -520,6 +520,7 @@ mod tests {
         let (x, qrs) = t_after_short_st(6);
         let off = DelineateConfig {
             t_window_early_after_qrs_end_ms: 0.0,
+            t_lone_limb_look_back: false,
             ..Default::default()
         };
         let near_peak = |b: &BeatMarks, r: usize| {
@@ -531,6 +532,13 @@ mod tests {
         // T peak is missed or misplaced.
         let d = delineate_lead(&x, fs, &qrs, &off);
         assert!(inner.clone().all(|i| !near_peak(&d[i], qrs[i])));
+        // Reading that final limb back to its peak finds it on its own.
+        let back = DelineateConfig {
+            t_lone_limb_look_back: true,
+            ..off
+        };
+        let d = delineate_lead(&x, fs, &qrs, &back);
+        assert!(inner.clone().all(|i| near_peak(&d[i], qrs[i])));
         // With it, the T peak is at 120 ms (within 10 ms) and the T end after it.
         let d = delineate_lead(&x, fs, &qrs, &DelineateConfig::default());
         for i in inner {

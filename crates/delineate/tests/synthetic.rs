@@ -433,3 +433,48 @@ fn small_initial_q_wave_joins_the_complex() {
         assert!(t_on < q.at_ms, "onset {t_on} ms not before the q wave");
     }
 }
+
+/// A QS complex whose T wave rises straight out of the S upstroke (no ST
+/// segment, as in QTDB sel40): the T window holds only the falling limb,
+/// and the peak lies between the QRS end and that limb.
+fn qs_with_early_t() -> Vec<Wave> {
+    vec![
+        Wave {
+            amp: -1.0,
+            at_ms: 0.0,
+            sigma_ms: 12.0,
+        },
+        Wave {
+            amp: 0.3,
+            at_ms: T_EARLY_MS,
+            sigma_ms: 40.0,
+        },
+    ]
+}
+const T_EARLY_MS: f64 = 110.0;
+
+#[test]
+fn t_wave_read_from_its_final_limb_has_a_peak_and_an_end() {
+    let fs = 250.0;
+    let (x, rs) = synth(fs, 6, 800.0, &qs_with_early_t());
+    let off = DelineateConfig {
+        t_lone_limb_look_back: false,
+        ..DelineateConfig::default()
+    };
+    let beats_off = delineate_lead(&x, fs, &rs, &off);
+    let beats = delineate_lead(&x, fs, &rs, &DelineateConfig::default());
+    for ((b0, b), &r) in beats_off.iter().zip(&beats).zip(&rs).skip(1).take(4) {
+        print(b0, r, fs);
+        print(b, r, fs);
+        // Without the look-back the lone falling limb yields an end but no
+        // peak, so no T wave could be written.
+        assert!(b0.t_peak.is_none(), "{b0:?}");
+        assert_eq!(b.t_morphology, TMorphology::Upright, "{b:?}");
+        let pk = rel(b.t_peak, r, fs);
+        assert!((pk - T_EARLY_MS).abs() <= 8.0, "T peak {pk} ms");
+        // The end comes from the falling limb, after the peak; no onset is
+        // claimed, as the rising limb is lost in the QRS.
+        assert!(rel(b.t_end, r, fs) > pk + 20.0);
+        assert!(b.t_on.is_none());
+    }
+}
