@@ -457,6 +457,21 @@ pub(crate) fn combine(
             if let Some((l, m)) = t_peak_lead {
                 g.t_peak = Some(m);
                 g.t_morphology = beats[l].t_morphology;
+                // A T wave reported present keeps an end: when no lead's end
+                // clears the confidence floor, the peak's own lead gives it,
+                // with its low confidence (`global_t_end_from_peak_lead`).
+                if cfg.global_t_end_from_peak_lead {
+                    let after = |e: Option<Mark>| e.filter(|e| e.sample > m.sample);
+                    let own = beats[l];
+                    g.t_end_wavelet = g.t_end_wavelet.or(after(own.t_end_wavelet));
+                    g.t_end_tangent = g.t_end_tangent.or(after(own.t_end_tangent));
+                    g.t_end_area = g.t_end_area.or(after(own.t_end_area));
+                    g.t_end = match cfg.t_end_method {
+                        TEndMethod::Wavelet => g.t_end_wavelet,
+                        TEndMethod::Tangent => g.t_end_tangent,
+                        TEndMethod::Area => g.t_end_area,
+                    };
+                }
             } else if let Some((l, _)) = best_lead(&gather_l(&|m| m.t_end)) {
                 g.t_morphology = beats[l].t_morphology;
             }
@@ -715,6 +730,38 @@ mod tests {
         assert_eq!(pick(&[true, true], 50.0), 200);
         // The credit goes only to the preferred lead.
         assert_eq!(pick(&[true, false], 50.0), 200);
+    }
+
+    #[test]
+    fn t_peak_without_a_confident_end_takes_its_own_leads_end() {
+        // Two leads with a T peak and wavelet T end, both ends below the
+        // confidence floor (0.2). Lead 1's peak is the more confident one
+        // and is taken; its end follows it, with its own low confidence.
+        let lead = |pk: (usize, f32), te: usize| BeatMarks {
+            qrs_peak: Some(m(100, 0.9)),
+            t_peak: Some(m(pk.0, pk.1)),
+            t_end_wavelet: Some(m(te, 0.1)),
+            t_end: Some(m(te, 0.1)),
+            ..Default::default()
+        };
+        let per_lead = vec![vec![lead((200, 0.1), 230)], vec![lead((205, 0.15), 240)]];
+        let on = DelineateConfig::default();
+        let g = combine(&per_lead, &[], 1, 250.0, &on)[0].clone();
+        let (p, e) = (g.t_peak.unwrap(), g.t_end.unwrap());
+        assert_eq!((p.sample, e.sample), (205, 240));
+        assert_eq!(g.t_end_wavelet, g.t_end);
+        assert!(e.confidence < 0.2);
+        // Off: the end is left out, as the floor says.
+        let off = DelineateConfig {
+            global_t_end_from_peak_lead: false,
+            ..on
+        };
+        let g = combine(&per_lead, &[], 1, 250.0, &off)[0].clone();
+        assert!(g.t_peak.is_some() && g.t_end.is_none());
+        // An end of the peak's lead that lies before the peak is not taken.
+        let per_lead = vec![vec![lead((200, 0.1), 190)]];
+        let g = combine(&per_lead, &[], 1, 250.0, &DelineateConfig::default())[0].clone();
+        assert!(g.t_peak.is_some() && g.t_end.is_none());
     }
 
     #[test]

@@ -153,10 +153,13 @@ fn qtdb_global_marks_against_annotator_1() {
         ("t_peak", 99.5, 5.4, 37.0),
         // T ends with `global_t_upright_bonus_ms` 80 and `t_min_slope_mv_per_s`
         // 0.3: wavelet mean 1.1, SD 37.1 ms, tangent SD 44.5 ms, area mean
-        // 3.0 ms (this test's matching, not the report's).
-        ("t_end", 99.5, 0.6, 37.1),
-        ("t_end_wavelet", 99.5, 0.6, 37.1),
-        ("t_end_tangent", 97.7, 6.5, 44.4),
+        // 3.0 ms (this test's matching, not the report's). With the peak
+        // lead's end kept for a T peak without a confident end
+        // (`global_t_end_from_peak_lead`): mean 0.26, SD 37.31 ms; tangent
+        // mean -6.30, SD 44.51 ms.
+        ("t_end", 99.5, 0.6, 37.5),
+        ("t_end_wavelet", 99.5, 0.6, 37.5),
+        ("t_end_tangent", 97.7, 6.5, 44.7),
         // The area T end moved with the later QRS ends (the T window starts
         // after them): SD 43.17 -> 43.32 ms.
         ("t_end_area", 99.5, 2.1, 42.5),
