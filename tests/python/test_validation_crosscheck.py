@@ -172,9 +172,14 @@ def test_qrs_onset_and_t_end_match_report():
     bw_ms = report["protocol"]["beat_window_ms"]
     fw_ms = report["protocol"]["fiducial_window_ms"]
     errs = {"qrs_on": [], "t_end": []}
+    # The same errors record by record, in the report's record order, for the
+    # stability figures (halves and bootstrap over records).
+    per_rec = {"qrs_on": [], "t_end": []}
     for rec in report["records"]:
         if not (qtdb / f"{rec}.q1c").is_file():
             continue
+        for key in per_rec:
+            per_rec[key].append([])
         fs = _fs(qtdb, rec)
         ref = _beats_qrs_on_t_end(qtdb / rec, "q1c", fs)
         test = _beats_qrs_on_t_end(run / "annotations" / rec, "mark", fs)
@@ -185,6 +190,7 @@ def test_qrs_onset_and_t_end_match_report():
                 r, t = ref[i][k], test[j][k]
                 if r is not None and t is not None and abs(t - r) <= fw:
                     errs[key].append((t - r) * 1000.0 / fs)
+                    per_rec[key][-1].append((t - r) * 1000.0 / fs)
     for key in ("qrs_on", "t_end"):
         e = np.array(errs[key])
         s = next(f for f in glob_sec["fiducials"] if f["fiducial"] == key)
@@ -197,6 +203,49 @@ def test_qrs_onset_and_t_end_match_report():
         assert s["tp"] == e.size
         assert abs(st["mean_ms"] - e.mean()) < 0.01
         assert abs(st["sd_ms"] - e.std(ddof=1)) < 0.01
+        _check_stability(key, per_rec[key], s["stability"])
+
+
+def _splitmix64(seed):
+    """SplitMix64 (Steele, Lea and Flood, OOPSLA 2014), the published
+    constants, as an endless generator of 64-bit values."""
+    mask = (1 << 64) - 1
+    state = seed & mask
+    while True:
+        state = (state + 0x9E3779B97F4A7C15) & mask
+        z = state
+        z = ((z ^ (z >> 30)) * 0xBF58476D1CE4E5B9) & mask
+        z = ((z ^ (z >> 27)) * 0x94D049BB133111EB) & mask
+        yield z ^ (z >> 31)
+
+
+def _check_stability(key, recs, st):
+    """Halves and bootstrap intervals of the pooled mean and SD, rebuilt from the
+    per-record errors by the rules the report states (crates/evaluate stability):
+    halves by odd/even position; B resamples of the records with replacement,
+    index = next() mod (number of records); 2.5th and 97.5th percentiles with
+    numpy's linear interpolation."""
+    for name, part in (("odd", recs[0::2]), ("even", recs[1::2])):
+        e = np.concatenate([np.asarray(r, float) for r in part])
+        h = st[name]
+        assert h["records"] == len(part) and h["n"] == e.size, (key, name)
+        assert abs(h["mean_ms"] - e.mean()) < 0.01, (key, name)
+        assert abs(h["sd_ms"] - e.std(ddof=1)) < 0.01, (key, name)
+    b = st["bootstrap"]
+    rng = _splitmix64(b["seed"])
+    k = len(recs)
+    arrays = [np.asarray(r, float) for r in recs]
+    means, sds = [], []
+    for _ in range(b["replicates"]):
+        e = np.concatenate([arrays[next(rng) % k] for _ in range(k)])
+        if e.size >= 1:
+            means.append(e.mean())
+        if e.size >= 2:
+            sds.append(e.std(ddof=1))
+    for name, vals in (("mean_ci_ms", means), ("sd_ci_ms", sds)):
+        lo, hi = np.percentile(vals, [2.5, 97.5])
+        print(f"{key} {name}: python {lo:.4f} to {hi:.4f}; report {b[name][0]:.4f} to {b[name][1]:.4f}")
+        assert abs(lo - b[name][0]) < 0.01 and abs(hi - b[name][1]) < 0.01, (key, name)
 
 
 def _window_mean_qt(beats, start_s, end_s, fs, min_beats):

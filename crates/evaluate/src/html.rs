@@ -327,6 +327,26 @@ fn fiducial_table_html(out: &mut String, s: &DelineationSection) {
     out.push_str("</table>\n");
 }
 
+fn stability_html(out: &mut String, s: &DelineationSection) {
+    let rows = crate::markdown::stability_rows(s);
+    if rows.is_empty() {
+        return;
+    }
+    out.push_str("<p>Stability over records: 95 % bootstrap intervals (records resampled) and the two halves of the record list (odd and even positions).</p><table><tr>");
+    for h in crate::markdown::STABILITY_HEADS {
+        let _ = write!(out, "<th>{}</th>", esc(h));
+    }
+    out.push_str("</tr>\n");
+    for r in rows {
+        out.push_str("<tr>");
+        for c in r {
+            let _ = write!(out, "<td>{}</td>", esc(&c));
+        }
+        out.push_str("</tr>\n");
+    }
+    out.push_str("</table>\n");
+}
+
 fn rows_html(out: &mut String, rows: &[RecordRow], first: &str) {
     let fids = [
         Fiducial::POn,
@@ -385,6 +405,7 @@ fn section_html(
         s.paired_beats
     );
     fiducial_table_html(out, s);
+    stability_html(out, s);
     out.push_str("<div class=plots>");
     for f in &s.fiducials {
         if let Some(e) = s.errors.get(&f.fiducial) {

@@ -54,6 +54,7 @@ pub mod markdown;
 pub mod matching;
 pub mod report;
 pub mod score;
+pub mod stability;
 pub mod stats;
 pub mod waves;
 

@@ -79,6 +79,71 @@ pub fn fiducial_table(out: &mut String, s: &DelineationSection) {
     out.push('\n');
 }
 
+/// Column heads of the stability table (see [`stability_rows`]).
+pub const STABILITY_HEADS: [&str; 8] = [
+    "Fiducial",
+    "SD ms (95 % CI)",
+    "mean ms (95 % CI)",
+    "Se % (95 % CI)",
+    "odd records: n, SD ms",
+    "even records: n, SD ms",
+    "odd Se %",
+    "even Se %",
+];
+
+/// One row per fiducial of a section: its pooled SD, mean and sensitivity with
+/// their bootstrap intervals over records, and the SD and sensitivity on each
+/// half of the records (`crate::stability`). Shared by the Markdown and HTML
+/// reports.
+pub fn stability_rows(s: &DelineationSection) -> Vec<[String; 8]> {
+    let with_ci = |v: Option<f64>, ci: Option<[f64; 2]>, d: usize| match ci {
+        Some([lo, hi]) => format!("{} ({lo:.d$} to {hi:.d$})", num(v, d)),
+        None => num(v, d),
+    };
+    s.fiducials
+        .iter()
+        .filter_map(|f| {
+            let st = f.stability.as_ref()?;
+            let b = &st.bootstrap;
+            let half = |h: &crate::stability::Half| format!("{}, {}", h.n, num(h.sd_ms, 1));
+            Some([
+                f.fiducial.label().to_string(),
+                with_ci(f.stats.sd_ms, b.sd_ci_ms, 1),
+                with_ci(f.stats.mean_ms, b.mean_ci_ms, 1),
+                with_ci(f.sensitivity_pct, b.sensitivity_ci_pct, 2),
+                half(&st.odd),
+                half(&st.even),
+                num(st.odd.sensitivity_pct, 2),
+                num(st.even.sensitivity_pct, 2),
+            ])
+        })
+        .collect()
+}
+
+fn stability_md(out: &mut String, s: &DelineationSection) {
+    let rows = stability_rows(s);
+    let Some(first) = s.fiducials.iter().find_map(|f| f.stability.as_ref()) else {
+        return;
+    };
+    let _ = writeln!(
+        out,
+        "### Stability over records
+
+95 % intervals from {} bootstrap resamples of the records (seed {}); halves: records at odd and even positions of the record list. A target met at the point estimate but not across the interval may be missed on unseen records.
+",
+        first.bootstrap.replicates, first.bootstrap.seed
+    );
+    let _ = writeln!(
+        out,
+        "| {} |\n|---|---:|---:|---:|---:|---:|---:|---:|",
+        STABILITY_HEADS.join(" | ")
+    );
+    for r in rows {
+        let _ = writeln!(out, "| {} |", r.join(" | "));
+    }
+    out.push('\n');
+}
+
 fn rows_table(out: &mut String, rows: &[RecordRow], first: &str, limit: usize) {
     let fids = [Fiducial::QrsOn, Fiducial::QrsEnd, Fiducial::TEnd];
     let _ = writeln!(
@@ -120,6 +185,7 @@ fn section_md(out: &mut String, title: &str, s: &DelineationSection) {
         s.reference, s.test, s.n_records, s.ref_beats, s.paired_beats
     );
     fiducial_table(out, s);
+    stability_md(out, s);
     if !s.per_lead_name.is_empty() {
         let _ = writeln!(out, "### Per lead\n");
         rows_table(out, &s.per_lead_name, "lead", usize::MAX);

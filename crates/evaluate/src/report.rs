@@ -3,6 +3,7 @@
 
 use crate::matching::Counts;
 use crate::score::RecordScore;
+use crate::stability::{stability, RecordErrors, Stability, REPLICATES, SEED};
 use crate::stats::{BlandAltman, ErrorStats};
 use crate::waves::{BeatMarks, Fiducial};
 use serde::{Deserialize, Serialize};
@@ -119,6 +120,11 @@ pub struct FiducialSummary {
     pub cse_tolerance_ms: Option<f64>,
     /// Pooled SD ≤ tolerance.
     pub cse_pass: Option<bool>,
+    /// The same figures on the two halves of the records and their bootstrap
+    /// intervals over records (`crate::stability`); absent in reports written
+    /// before it existed.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub stability: Option<Stability>,
 }
 
 /// Per-record (or per-lead-name) row.
@@ -297,6 +303,19 @@ pub fn build_section(
         }
         let refs: Vec<&[f64]> = groups.iter().map(|g| g.as_slice()).collect();
         let stats = ErrorStats::from_groups(&refs);
+        let per_record: Vec<RecordErrors> = scores
+            .iter()
+            .zip(&groups)
+            .map(|(s, g)| {
+                let c = s.counts.get(&f).cloned().unwrap_or_default();
+                RecordErrors {
+                    errors: g,
+                    tp: c.tp,
+                    fn_: c.fn_,
+                }
+            })
+            .collect();
+        let stab = stability(&per_record, REPLICATES, SEED);
         let tol = f.cse_tolerance_ms();
         let pass = match (tol, stats.sd_ms) {
             (Some(t), Some(sd)) => Some(sd <= t),
@@ -316,6 +335,7 @@ pub fn build_section(
             stats,
             cse_tolerance_ms: tol,
             cse_pass: pass,
+            stability: stab,
         });
         errors.insert(f, groups.concat());
     }
