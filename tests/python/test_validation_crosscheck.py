@@ -287,6 +287,7 @@ def test_window_qt_matches_report():
         return float(v) if v not in ("", "NaN", "nan") else None
 
     sup, ann, tool = [], [], []
+    sup_by_rec = {}
     cache = {}
     for row in rows:
         rec = row["record"]
@@ -308,12 +309,18 @@ def test_window_qt_matches_report():
         v = val(row["qt_superimposed_ms"])
         if v is not None:
             sup.append((v, m1))
+            sup_by_rec.setdefault(rec, []).append(v - m1)
         m2 = _window_mean_qt(q2, s, e, fs, min_beats) if q2 is not None else None
         if m2 is not None:
             ann.append((m2, m1))
             if v is not None:
                 tool.append((v, m1))
     _check_ba("window QT, superimposed", sup, qt["window_superimposed"])
+    # Its stability over records: records with scored windows, in report order.
+    order = [r for r in report["records"] if r in sup_by_rec]
+    _check_stability(
+        "window QT", [sup_by_rec[r] for r in order], qt["window_superimposed"]["stability"]
+    )
     human = report.get("human")
     assert human is not None and human.get("annotator_qt_window"), "report.json has no human window QT"
     _check_ba("window QT, annotator 2", ann, human["annotator_qt_window"])

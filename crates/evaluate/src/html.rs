@@ -329,21 +329,38 @@ fn fiducial_table_html(out: &mut String, s: &DelineationSection) {
 
 fn stability_html(out: &mut String, s: &DelineationSection) {
     let rows = crate::markdown::stability_rows(s);
-    if rows.is_empty() {
+    plain_table_html(
+        out,
+        "Stability over records: 95 % bootstrap intervals (records resampled) and the two halves of the record list (odd and even positions).",
+        &crate::markdown::STABILITY_HEADS,
+        rows.iter().map(|r| r.as_slice()),
+    );
+}
+
+/// A paragraph and a table of text cells; nothing without rows.
+fn plain_table_html<'a>(
+    out: &mut String,
+    intro: &str,
+    heads: &[&str],
+    rows: impl Iterator<Item = &'a [String]>,
+) {
+    let mut body = String::new();
+    for r in rows {
+        body.push_str("<tr>");
+        for c in r {
+            let _ = write!(body, "<td>{}</td>", esc(c));
+        }
+        body.push_str("</tr>\n");
+    }
+    if body.is_empty() {
         return;
     }
-    out.push_str("<p>Stability over records: 95 % bootstrap intervals (records resampled) and the two halves of the record list (odd and even positions).</p><table><tr>");
-    for h in crate::markdown::STABILITY_HEADS {
+    let _ = write!(out, "<p>{}</p><table><tr>", esc(intro));
+    for h in heads {
         let _ = write!(out, "<th>{}</th>", esc(h));
     }
     out.push_str("</tr>\n");
-    for r in rows {
-        out.push_str("<tr>");
-        for c in r {
-            let _ = write!(out, "<td>{}</td>", esc(&c));
-        }
-        out.push_str("</tr>\n");
-    }
+    out.push_str(&body);
     out.push_str("</table>\n");
 }
 
@@ -548,6 +565,13 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
             rows.push(("window, single lead, vs longest reference lead", b));
         }
         ba_rows(&mut o, &rows);
+        let st = crate::markdown::qt_stability_rows(q);
+        plain_table_html(
+            &mut o,
+            "Window QT over records: 95 % bootstrap intervals (records resampled) and the two halves of the record list.",
+            &crate::markdown::QT_STABILITY_HEADS,
+            st.iter().map(|r| r.as_slice()),
+        );
         o.push_str("<div class=plots>");
         for (name, b) in rows {
             if b.n > 0 {

@@ -757,10 +757,14 @@ fn window_qt(
     let Some(rows) = rows else {
         return (None, None, 0);
     };
-    let by_name: BTreeMap<&str, &Loaded> = recs.iter().map(|r| (r.name.as_str(), r)).collect();
+    let by_name: BTreeMap<&str, (usize, &Loaded)> = recs
+        .iter()
+        .enumerate()
+        .map(|(k, r)| (r.name.as_str(), (k, r)))
+        .collect();
     let (mut sup, mut single, mut n) = (Vec::new(), Vec::new(), 0);
     for w in rows {
-        let Some(r) = by_name.get(w.record.as_str()) else {
+        let Some(&(k, r)) = by_name.get(w.record.as_str()) else {
             continue;
         };
         let Some(q) = r.global_ref() else { continue };
@@ -769,14 +773,17 @@ fn window_qt(
         };
         n += 1;
         if let Some(v) = w.qt_superimposed_ms {
-            sup.push((v, m));
+            sup.push((k, v, m));
         }
         if let Some(v) = w.qt_ms {
-            single.push((v, m));
+            single.push((k, v, m));
         }
     }
-    let f = |v: Vec<(f64, f64)>| (!v.is_empty()).then(|| BlandAltman::from_pairs(&v));
-    (f(sup), f(single), n)
+    (
+        BlandAltman::by_record(&sup),
+        BlandAltman::by_record(&single),
+        n,
+    )
 }
 
 /// Window QT against the longest per-lead reference QT (per-lead references such as
@@ -791,10 +798,14 @@ fn window_qt_longest_lead_ref(
     let Some(rows) = rows else {
         return (None, None);
     };
-    let by_name: BTreeMap<&str, &Loaded> = recs.iter().map(|r| (r.name.as_str(), r)).collect();
+    let by_name: BTreeMap<&str, (usize, &Loaded)> = recs
+        .iter()
+        .enumerate()
+        .map(|(k, r)| (r.name.as_str(), (k, r)))
+        .collect();
     let (mut sup, mut single) = (Vec::new(), Vec::new());
     for w in rows {
-        let Some(r) = by_name.get(w.record.as_str()) else {
+        let Some(&(k, r)) = by_name.get(w.record.as_str()) else {
             continue;
         };
         let longest = r
@@ -804,14 +815,16 @@ fn window_qt_longest_lead_ref(
             .reduce(f64::max);
         let Some(m) = longest else { continue };
         if let Some(v) = w.qt_superimposed_ms {
-            sup.push((v, m));
+            sup.push((k, v, m));
         }
         if let Some(v) = w.qt_ms {
-            single.push((v, m));
+            single.push((k, v, m));
         }
     }
-    let f = |v: Vec<(f64, f64)>| (!v.is_empty()).then(|| BlandAltman::from_pairs(&v));
-    (f(sup), f(single))
+    (
+        BlandAltman::by_record(&sup),
+        BlandAltman::by_record(&single),
+    )
 }
 
 /// Window QT of annotator 2 and of the tool (superimposed leads) against annotator 1,

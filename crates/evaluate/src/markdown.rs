@@ -236,6 +236,64 @@ fn qt_md(out: &mut String, q: &QtSection) {
         ba_row(out, "window, single lead, vs longest reference lead", b);
     }
     out.push('\n');
+    let rows = qt_stability_rows(q);
+    if !rows.is_empty() {
+        let _ = writeln!(
+            out,
+            "Window QT over records: 95 % bootstrap intervals (records resampled, as for the boundaries) and the two halves of the record list.\n\n| {} |\n|---|---:|---:|---:|---:|",
+            QT_STABILITY_HEADS.join(" | ")
+        );
+        for r in rows {
+            let _ = writeln!(out, "| {} |", r.join(" | "));
+        }
+        out.push('\n');
+    }
+}
+
+/// Column heads of the window-QT stability table (see [`qt_stability_rows`]).
+pub const QT_STABILITY_HEADS: [&str; 5] = [
+    "QT",
+    "bias ms (95 % CI)",
+    "SD ms (95 % CI)",
+    "odd records: n, bias, SD ms",
+    "even records: n, bias, SD ms",
+];
+
+/// One row per window-QT agreement that carries its stability over records.
+/// Shared by the Markdown and HTML reports.
+pub fn qt_stability_rows(q: &QtSection) -> Vec<[String; 5]> {
+    let named = [
+        ("window, superimposed leads", &q.window_superimposed),
+        ("window, single lead", &q.window_single),
+        (
+            "window, superimposed leads, vs longest reference lead",
+            &q.window_superimposed_lead_ref,
+        ),
+        (
+            "window, single lead, vs longest reference lead",
+            &q.window_single_lead_ref,
+        ),
+    ];
+    let ci = |v: Option<f64>, c: Option<[f64; 2]>| match c {
+        Some([lo, hi]) => format!("{} ({lo:.1} to {hi:.1})", num(v, 1)),
+        None => num(v, 1),
+    };
+    let half =
+        |h: &crate::stability::Half| format!("{}, {}, {}", h.n, num(h.mean_ms, 1), num(h.sd_ms, 1));
+    named
+        .iter()
+        .filter_map(|(name, b)| {
+            let b = b.as_ref()?;
+            let st = b.stability.as_ref()?;
+            Some([
+                name.to_string(),
+                ci(b.bias_ms, st.bootstrap.mean_ci_ms),
+                ci(b.sd_ms, st.bootstrap.sd_ci_ms),
+                half(&st.odd),
+                half(&st.even),
+            ])
+        })
+        .collect()
 }
 
 /// Render the whole summary.

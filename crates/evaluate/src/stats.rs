@@ -92,6 +92,11 @@ pub struct BlandAltman {
     /// (mean of the pair, difference) for the plot; not written to JSON.
     #[serde(skip)]
     pub points: Vec<(f64, f64)>,
+    /// Bias and SD on the two halves of the records and their bootstrap
+    /// intervals over records, where the pairs are known by record
+    /// ([`BlandAltman::by_record`]).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub stability: Option<crate::stability::Stability>,
 }
 
 impl BlandAltman {
@@ -113,7 +118,37 @@ impl BlandAltman {
             loa_high_ms: hi,
             mae_ms: mean(&abs),
             points: pairs.iter().map(|(t, r)| ((t + r) / 2.0, t - r)).collect(),
+            stability: None,
         }
+    }
+
+    /// Agreement of `(record position, test, reference)` triples, with the
+    /// stability of bias and SD over records (`crate::stability`; records
+    /// ordered by position, sensitivity not applicable). `None` when empty.
+    pub fn by_record(triples: &[(usize, f64, f64)]) -> Option<BlandAltman> {
+        if triples.is_empty() {
+            return None;
+        }
+        let pairs: Vec<(f64, f64)> = triples.iter().map(|&(_, t, r)| (t, r)).collect();
+        let mut ba = BlandAltman::from_pairs(&pairs);
+        let mut by: std::collections::BTreeMap<usize, Vec<f64>> = Default::default();
+        for &(k, t, r) in triples {
+            by.entry(k).or_default().push(t - r);
+        }
+        let recs: Vec<crate::stability::RecordErrors> = by
+            .values()
+            .map(|e| crate::stability::RecordErrors {
+                errors: e,
+                tp: 0,
+                fn_: 0,
+            })
+            .collect();
+        ba.stability = crate::stability::stability(
+            &recs,
+            crate::stability::REPLICATES,
+            crate::stability::SEED,
+        );
+        Some(ba)
     }
 }
 
