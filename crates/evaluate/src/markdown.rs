@@ -133,10 +133,17 @@ fn stability_md(out: &mut String, s: &DelineationSection) {
 ",
         first.bootstrap.replicates, first.bootstrap.seed
     );
+    text_table(out, &STABILITY_HEADS, rows.iter().map(|r| r.as_slice()));
+}
+
+/// A table of text cells, the first column left-aligned and the others
+/// right-aligned, followed by a blank line.
+fn text_table<'a>(out: &mut String, heads: &[&str], rows: impl Iterator<Item = &'a [String]>) {
     let _ = writeln!(
         out,
-        "| {} |\n|---|---:|---:|---:|---:|---:|---:|---:|",
-        STABILITY_HEADS.join(" | ")
+        "| {} |\n|---|{}",
+        heads.join(" | "),
+        "---:|".repeat(heads.len().saturating_sub(1))
     );
     for r in rows {
         let _ = writeln!(out, "| {} |", r.join(" | "));
@@ -240,13 +247,9 @@ fn qt_md(out: &mut String, q: &QtSection) {
     if !rows.is_empty() {
         let _ = writeln!(
             out,
-            "Window QT over records: 95 % bootstrap intervals (records resampled, as for the boundaries) and the two halves of the record list.\n\n| {} |\n|---|---:|---:|---:|---:|",
-            QT_STABILITY_HEADS.join(" | ")
+            "Window QT over records: 95 % bootstrap intervals (records resampled, as for the boundaries) and the two halves of the record list.\n"
         );
-        for r in rows {
-            let _ = writeln!(out, "| {} |", r.join(" | "));
-        }
-        out.push('\n');
+        text_table(out, &QT_STABILITY_HEADS, rows.iter().map(|r| r.as_slice()));
     }
 }
 
