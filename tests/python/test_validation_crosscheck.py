@@ -136,6 +136,78 @@ def _beats_qrs_on_t_end(path_no_ext, ext, fs):
     return beats
 
 
+MAX_P_TO_QRS_MS = 600.0
+
+
+def _beats_qrs_pr(path_no_ext, ext, fs):
+    """Beats of a global annotation file: (qrs peak, qrs onset, qrs end, P onset) per
+    beat; the P wave is the last one before the QRS, its peak at most 600 ms before
+    it (the report's protocol rule)."""
+    a = wfdb.rdann(str(path_no_ext), ext)
+    order = np.argsort(a.sample, kind="stable")
+    smp = [int(a.sample[k]) for k in order]
+    sym = [a.symbol[k] for k in order]
+    beats, p_waves = [], []
+    for i, y in enumerate(sym):
+        on = smp[i - 1] if i > 0 and sym[i - 1] == "(" else None
+        off = smp[i + 1] if i + 1 < len(sym) and sym[i + 1] == ")" else None
+        if y in BEAT_SYMBOLS:
+            beats.append([smp[i], on, off, None])
+        elif y == "p":
+            p_waves.append((smp[i], on))
+    peaks = [b[0] for b in beats]
+    max_p = math.floor(MAX_P_TO_QRS_MS * fs / 1000.0)
+    for k, (pp, pon) in enumerate(p_waves):
+        j = int(np.searchsorted(peaks, pp, side="right"))  # first QRS strictly after
+        if j >= len(peaks):
+            continue
+        if k + 1 < len(p_waves) and p_waves[k + 1][0] < peaks[j]:
+            continue  # not the last P before that QRS
+        if peaks[j] - pp <= max_p:
+            beats[j][3] = pon
+    return beats
+
+
+def _window_mean(values, start_s, end_s, fs, min_beats):
+    """Mean (ms) of the (peak, samples) values with peak in [start_s, end_s), or None."""
+    lo, hi = start_s * fs, end_s * fs
+    v = [x * 1000.0 / fs for peak, x in values if lo <= peak < hi and x is not None]
+    return float(np.mean(v)) if len(v) >= min_beats else None
+
+
+def test_window_qrs_and_pr_match_report():
+    """Window QRS duration and PR interval (windows.csv qrs_ms, pr_ms) against the
+    mean annotator-1 QRS duration and PR of each window's beats, recomputed from the
+    QTDB .q1c files with the `wfdb` package."""
+    run, qtdb, report = _paths()
+    qt = report.get("qt")
+    assert qt is not None and qt.get("window_qrs") and qt.get("window_pr")
+    min_beats = report["protocol"]["min_window_beats"]
+    with open(run / "windows.csv", newline="") as f:
+        rows = list(csv.DictReader(f))
+    cache = {}
+    got = {"qrs": [], "pr": []}
+    for row in rows:
+        rec = row["record"]
+        if rec not in report["records"] or not (qtdb / f"{rec}.q1c").is_file():
+            continue
+        if rec not in cache:
+            fs = _fs(qtdb, rec)
+            b = _beats_qrs_pr(qtdb / rec, "q1c", fs)
+            qrs = [(p, e - o if o is not None and e is not None else None) for p, o, e, _ in b]
+            pr = [(p, o - po if o is not None and po is not None else None) for p, o, _, po in b]
+            cache[rec] = (fs, qrs, pr)
+        fs, qrs, pr = cache[rec]
+        s, e = float(row["start_s"]), float(row["end_s"])
+        for key, vals, col in (("qrs", qrs, "qrs_ms"), ("pr", pr, "pr_ms")):
+            m = _window_mean(vals, s, e, fs, min_beats)
+            v = row[col]
+            if m is not None and v not in ("", "NaN", "nan"):
+                got[key].append((float(v), m))
+    _check_ba("window QRS duration", got["qrs"], qt["window_qrs"])
+    _check_ba("window PR interval", got["pr"], qt["window_pr"])
+
+
 def test_beats_match_report():
     run, qtdb, report = _paths()
     beats = report.get("beats")

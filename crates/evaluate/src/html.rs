@@ -454,7 +454,7 @@ fn section_html(
 }
 
 fn ba_rows(out: &mut String, rows: &[(&str, &BlandAltman)]) {
-    out.push_str("<table><tr><th>QT</th><th>n</th><th>bias ms</th><th>SD ms</th><th>95 % limits ms</th><th>MAE ms</th></tr>\n");
+    out.push_str("<table><tr><th>interval</th><th>n</th><th>bias ms</th><th>SD ms</th><th>95 % limits ms</th><th>MAE ms</th></tr>\n");
     for (name, b) in rows {
         let _ = writeln!(
             out,
@@ -545,7 +545,7 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
     if let Some(q) = &r.qt {
         let _ = writeln!(
             o,
-            "<h2 id=qt>QT</h2><p>Reference: {}.</p>",
+            "<h2 id=qt>QT, QRS and PR intervals</h2><p>Reference: {}.</p>",
             esc(&q.reference)
         );
         let mut rows = vec![("beat, global marks", &q.beat)];
@@ -564,11 +564,17 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
         if let Some(b) = &q.window_single_lead_ref {
             rows.push(("window, single lead, vs longest reference lead", b));
         }
+        if let Some(b) = &q.window_qrs {
+            rows.push(("window QRS duration", b));
+        }
+        if let Some(b) = &q.window_pr {
+            rows.push(("window PR interval", b));
+        }
         ba_rows(&mut o, &rows);
         let st = crate::markdown::qt_stability_rows(q);
         plain_table_html(
             &mut o,
-            "Window QT over records: 95 % bootstrap intervals (records resampled) and the two halves of the record list.",
+            "Window intervals over records: 95 % bootstrap intervals (records resampled) and the two halves of the record list.",
             &crate::markdown::QT_STABILITY_HEADS,
             st.iter().map(|r| r.as_slice()),
         );

@@ -152,11 +152,15 @@ pub struct WindowRow {
     pub qt_ms: Option<f64>,
     /// Window QT from the superimposed leads, ms.
     pub qt_superimposed_ms: Option<f64>,
+    /// Window QRS duration (earliest onset to latest end across leads), ms.
+    pub qrs_ms: Option<f64>,
+    /// Window PR interval (earliest P onset to earliest QRS onset), ms.
+    pub pr_ms: Option<f64>,
 }
 
 /// Parse `windows.csv` text: a header row naming the columns, comma-separated values
 /// without quoting. Required columns: `record, start_s, end_s`; `window`, `qt_ms`,
-/// `qt_superimposed_ms` optional. Empty, `NaN` or `NA` cells are missing values.
+/// `qt_superimposed_ms`, `qrs_ms`, `pr_ms` optional. Empty, `NaN` or `NA` cells are missing values.
 pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, EvalError> {
     let bad = |line: usize, message: String| EvalError::Csv {
         path: path.to_path_buf(),
@@ -186,6 +190,7 @@ pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, Eval
         }
     };
     let (win_c, qt_c, qts_c) = (col("window"), col("qt_ms"), col("qt_superimposed_ms"));
+    let (qrs_c, pr_c) = (col("qrs_ms"), col("pr_ms"));
     let mut rows = Vec::new();
     for (i, l) in lines {
         let line = i + 1;
@@ -212,6 +217,8 @@ pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, Eval
             end_s: num(Some(end_c), "end_s", true)?.unwrap_or(0.0),
             qt_ms: num(qt_c, "qt_ms", false)?,
             qt_superimposed_ms: num(qts_c, "qt_superimposed_ms", false)?,
+            qrs_ms: num(qrs_c, "qrs_ms", false)?,
+            pr_ms: num(pr_c, "pr_ms", false)?,
         });
     }
     Ok(rows)

@@ -34,7 +34,8 @@
 //!   (per-lead marks, `chan` = signal index in the input header), WFDB annotation
 //!   files with the boundary convention of [`waves`]; aux text is ignored.
 //! - `<run>/windows.csv`: header row, columns found by name; `record`, `start_s`,
-//!   `end_s` required, `qt_ms` and `qt_superimposed_ms` used when present.
+//!   `end_s` required, `qt_ms`, `qt_superimposed_ms`, `qrs_ms` and `pr_ms` used
+//!   when present.
 //! - `<data>/<record>.hea`: the first line gives the rate, signal lines the lead names.
 //!
 //! Files written by [`write_report`] (in `out_dir`):
@@ -374,7 +375,7 @@ fn protocol(opts: &ValidateOptions) -> Protocol {
             "Fiducials: reference beats paired to test beats by QRS peak; a reference fiducial is detected when the paired test beat marks it within the fiducial window; error = test - reference (ms); undetected and unpaired reference fiducials are false negatives.".into(),
             "False positives (positive predictivity): on paired beats only, where the reference annotates the wave exhaustively (any file of that reference kind marks it) and the reference beat lacks the whole wave while the test mark lies within the span the reference annotates on that channel (first to last reference mark), or the test mark lies outside the fiducial window of a present reference mark.".into(),
             "Statistics: SD with n - 1; mean of per-record SDs over records with >= 2 errors; p95 of |error| linear interpolation; CSE pass = pooled SD <= CSE 1985 tolerance (P on 10.2, P end 12.7, QRS on 6.5, QRS end 11.6, T end 30.6 ms).".into(),
-            "QT: beat QT = T end - QRS on on paired beats where both sides mark both (no fiducial window); window QT = windows.csv qt_superimposed_ms / qt_ms vs mean reference beat QT of reference beats with QRS peak in [start_s, end_s), windows with >= min_window_beats; with per-lead references also vs the longest per-lead reference QT (each lead file's mean beat QT in the window, >= min_window_beats beats; the longest lead's mean); Bland-Altman limits = bias +/- 1.96 SD.".into(),
+            "QT: beat QT = T end - QRS on on paired beats where both sides mark both (no fiducial window); window QT = windows.csv qt_superimposed_ms / qt_ms vs mean reference beat QT of reference beats with QRS peak in [start_s, end_s), windows with >= min_window_beats; with per-lead references also vs the longest per-lead reference QT (each lead file's mean beat QT in the window, >= min_window_beats beats; the longest lead's mean); window QRS duration / PR = windows.csv qrs_ms / pr_ms vs the mean reference QRS end - QRS on / QRS on - P on of the same beats, the same way; Bland-Altman limits = bias +/- 1.96 SD.".into(),
             "Global reference without .q1c (LUDB): beats of all lead files clustered by QRS peak as above; per beat the earliest onset, latest offset and median peak over the leads that mark them (common practice for global boundaries).".into(),
             "Human reference: .q2c (annotator 2) scored against .q1c (annotator 1) with the same code, on the beats both annotators selected (.q1c beats paired with a .q2c beat) and the fiducials annotator 2 marks; the tool is shown on the same beats and fiducials. Window QT: per window of windows.csv, the mean beat QT of each annotator's beats with QRS peak in [start_s, end_s), on windows where both annotators have >= min_window_beats such beats; annotator 2 vs annotator 1, and the tool's qt_superimposed_ms vs annotator 1 on the same windows.".into(),
         ],
@@ -596,6 +597,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 .flat_map(|x| x.qt_pairs.iter().map(|q| (q.0, q.1)))
                 .collect();
             let (ws, wsingle, n_w) = window_qt(opts, windows.as_deref(), &recs);
+            let (window_qrs, window_pr) = window_qrs_pr(opts, windows.as_deref(), &recs);
             qt = Some(QtSection {
                 reference: ref_label.clone(),
                 beat: BlandAltman::from_pairs(&p),
@@ -605,6 +607,8 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 windows_scored: n_w,
                 window_superimposed_lead_ref: None,
                 window_single_lead_ref: None,
+                window_qrs,
+                window_pr,
             });
         }
     }
@@ -671,6 +675,8 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                     windows_scored: 0,
                     window_superimposed_lead_ref: None,
                     window_single_lead_ref: None,
+                    window_qrs: None,
+                    window_pr: None,
                 });
                 q.beat_per_lead = Some(ba);
                 q.window_superimposed_lead_ref = lead_sup;
@@ -728,25 +734,67 @@ fn load_windows(
     inputs::parse_windows_csv(&text, &path).map(Some)
 }
 
-/// Mean QT (ms) of the beats of `beats` whose QRS peak lies in the window
-/// `[start_s, end_s)`, if at least `min_beats` of them mark both QRS onset and T end.
+/// Mean interval (ms) of the beats of `beats` whose QRS peak lies in the window
+/// `[start_s, end_s)`, if at least `min_beats` of them mark both ends of it
+/// (`interval`: e.g. [`waves::BeatMarks::qt_samples`]).
+fn window_mean(
+    beats: &ParsedBeats,
+    w: &inputs::WindowRow,
+    fs: f64,
+    min_beats: usize,
+    interval: fn(&waves::BeatMarks) -> Option<i64>,
+) -> Option<f64> {
+    let (lo, hi) = (w.start_s * fs, w.end_s * fs);
+    let v: Vec<f64> = beats
+        .beats
+        .iter()
+        .filter(|b| (b.qrs_peak as f64) >= lo && (b.qrs_peak as f64) < hi)
+        .filter_map(interval)
+        .map(|s| s as f64 * 1000.0 / fs)
+        .collect();
+    (v.len() >= min_beats).then(|| stats::mean(&v)).flatten()
+}
+
 fn window_mean_qt(
     beats: &ParsedBeats,
     w: &inputs::WindowRow,
     fs: f64,
     min_beats: usize,
 ) -> Option<f64> {
-    let (lo, hi) = (w.start_s * fs, w.end_s * fs);
-    let qts: Vec<f64> = beats
-        .beats
+    window_mean(beats, w, fs, min_beats, waves::BeatMarks::qt_samples)
+}
+
+/// Agreement of a window value of `windows.csv` (`value`) with the mean
+/// reference interval (`interval`) of the global reference's beats in the
+/// window, over the windows with at least `min_window_beats` such beats; with
+/// its stability over records. Also returns how many windows had a reference.
+fn window_agreement(
+    opts: &ValidateOptions,
+    rows: &[inputs::WindowRow],
+    recs: &[Loaded],
+    interval: fn(&waves::BeatMarks) -> Option<i64>,
+    value: fn(&inputs::WindowRow) -> Option<f64>,
+) -> (Option<BlandAltman>, usize) {
+    let by_name: BTreeMap<&str, (usize, &Loaded)> = recs
         .iter()
-        .filter(|b| (b.qrs_peak as f64) >= lo && (b.qrs_peak as f64) < hi)
-        .filter_map(|b| b.qt_samples())
-        .map(|s| s as f64 * 1000.0 / fs)
+        .enumerate()
+        .map(|(k, r)| (r.name.as_str(), (k, r)))
         .collect();
-    (qts.len() >= min_beats)
-        .then(|| stats::mean(&qts))
-        .flatten()
+    let (mut v, mut n) = (Vec::new(), 0);
+    for w in rows {
+        let Some(&(k, r)) = by_name.get(w.record.as_str()) else {
+            continue;
+        };
+        let Some(q) = r.global_ref() else { continue };
+        let Some(m) = window_mean(q, w, r.hdr.fs, opts.min_window_beats, interval) else {
+            continue;
+        };
+        n += 1;
+        if let Some(x) = value(w) {
+            v.push((k, x, m));
+        }
+    }
+    (BlandAltman::by_record(&v), n)
 }
 
 fn window_qt(
@@ -757,33 +805,27 @@ fn window_qt(
     let Some(rows) = rows else {
         return (None, None, 0);
     };
-    let by_name: BTreeMap<&str, (usize, &Loaded)> = recs
-        .iter()
-        .enumerate()
-        .map(|(k, r)| (r.name.as_str(), (k, r)))
-        .collect();
-    let (mut sup, mut single, mut n) = (Vec::new(), Vec::new(), 0);
-    for w in rows {
-        let Some(&(k, r)) = by_name.get(w.record.as_str()) else {
-            continue;
-        };
-        let Some(q) = r.global_ref() else { continue };
-        let Some(m) = window_mean_qt(q, w, r.hdr.fs, opts.min_window_beats) else {
-            continue;
-        };
-        n += 1;
-        if let Some(v) = w.qt_superimposed_ms {
-            sup.push((k, v, m));
-        }
-        if let Some(v) = w.qt_ms {
-            single.push((k, v, m));
-        }
-    }
-    (
-        BlandAltman::by_record(&sup),
-        BlandAltman::by_record(&single),
-        n,
-    )
+    let qt = waves::BeatMarks::qt_samples;
+    let (sup, n) = window_agreement(opts, rows, recs, qt, |w| w.qt_superimposed_ms);
+    let (single, _) = window_agreement(opts, rows, recs, qt, |w| w.qt_ms);
+    (sup, single, n)
+}
+
+/// Window QRS duration and PR interval against the mean reference interval of the
+/// window's beats (global references), as for the window QT.
+fn window_qrs_pr(
+    opts: &ValidateOptions,
+    rows: Option<&[inputs::WindowRow]>,
+    recs: &[Loaded],
+) -> (Option<BlandAltman>, Option<BlandAltman>) {
+    let Some(rows) = rows else {
+        return (None, None);
+    };
+    let qrs = window_agreement(opts, rows, recs, waves::BeatMarks::qrs_samples, |w| {
+        w.qrs_ms
+    });
+    let pr = window_agreement(opts, rows, recs, waves::BeatMarks::pr_samples, |w| w.pr_ms);
+    (qrs.0, pr.0)
 }
 
 /// Window QT against the longest per-lead reference QT (per-lead references such as

@@ -217,7 +217,7 @@ fn ba_row(out: &mut String, name: &str, b: &BlandAltman) {
 fn qt_md(out: &mut String, q: &QtSection) {
     let _ = writeln!(
         out,
-        "## QT (Bland–Altman)\n\nReference: {}.\n\n| QT | n | bias ms | SD ms | 95% limits ms | MAE ms |\n|---|---:|---:|---:|---:|---:|",
+        "## QT, QRS and PR intervals (Bland–Altman)\n\nReference: {}.\n\n| interval | n | bias ms | SD ms | 95% limits ms | MAE ms |\n|---|---:|---:|---:|---:|---:|",
         q.reference
     );
     if q.beat.n > 0 {
@@ -242,27 +242,34 @@ fn qt_md(out: &mut String, q: &QtSection) {
     if let Some(b) = &q.window_single_lead_ref {
         ba_row(out, "window, single lead, vs longest reference lead", b);
     }
+    if let Some(b) = &q.window_qrs {
+        ba_row(out, "window QRS duration", b);
+    }
+    if let Some(b) = &q.window_pr {
+        ba_row(out, "window PR interval", b);
+    }
     out.push('\n');
     let rows = qt_stability_rows(q);
     if !rows.is_empty() {
         let _ = writeln!(
             out,
-            "Window QT over records: 95 % bootstrap intervals (records resampled, as for the boundaries) and the two halves of the record list.\n"
+            "Window intervals over records: 95 % bootstrap intervals (records resampled, as for the boundaries) and the two halves of the record list.\n"
         );
         text_table(out, &QT_STABILITY_HEADS, rows.iter().map(|r| r.as_slice()));
     }
 }
 
-/// Column heads of the window-QT stability table (see [`qt_stability_rows`]).
+/// Column heads of the window-interval stability table (see [`qt_stability_rows`]).
 pub const QT_STABILITY_HEADS: [&str; 5] = [
-    "QT",
+    "interval",
     "bias ms (95 % CI)",
     "SD ms (95 % CI)",
     "odd records: n, bias, SD ms",
     "even records: n, bias, SD ms",
 ];
 
-/// One row per window-QT agreement that carries its stability over records.
+/// One row per window-interval agreement (QT, QRS, PR) that carries its
+/// stability over records.
 /// Shared by the Markdown and HTML reports.
 pub fn qt_stability_rows(q: &QtSection) -> Vec<[String; 5]> {
     let named = [
@@ -276,6 +283,8 @@ pub fn qt_stability_rows(q: &QtSection) -> Vec<[String; 5]> {
             "window, single lead, vs longest reference lead",
             &q.window_single_lead_ref,
         ),
+        ("window QRS duration", &q.window_qrs),
+        ("window PR interval", &q.window_pr),
     ];
     let ci = |v: Option<f64>, c: Option<[f64; 2]>| match c {
         Some([lo, hi]) => format!("{} ({lo:.1} to {hi:.1})", num(v, 1)),

@@ -170,6 +170,14 @@ pub struct QtSection {
     /// Per-lead references: the QTc-feeding window QT vs the same reference.
     #[serde(default)]
     pub window_single_lead_ref: Option<BlandAltman>,
+    /// Window QRS duration (`windows.csv` `qrs_ms`) vs the mean reference QRS
+    /// duration (QRS end − QRS onset) of the window's beats.
+    #[serde(default)]
+    pub window_qrs: Option<BlandAltman>,
+    /// Window PR interval (`pr_ms`) vs the mean reference PR (QRS onset − P
+    /// onset) of the window's beats.
+    #[serde(default)]
+    pub window_pr: Option<BlandAltman>,
 }
 
 /// Second annotator vs first, and the tool on the same records.

@@ -173,6 +173,16 @@ impl BeatMarks {
         Some(self.t_end? - self.qrs_on?)
     }
 
+    /// QRS duration (QRS end − QRS onset), samples.
+    pub fn qrs_samples(&self) -> Option<i64> {
+        Some(self.qrs_end? - self.qrs_on?)
+    }
+
+    /// PR interval (QRS onset − P onset), samples.
+    pub fn pr_samples(&self) -> Option<i64> {
+        Some(self.qrs_on? - self.p_on?)
+    }
+
     /// Every marked sample of the beat (for plotting and spans).
     pub fn all_marks(&self) -> Vec<i64> {
         [

@@ -224,7 +224,7 @@ fn hand_made_record_window_qt_and_beats() {
     write_ann(&run.path().join("annotations"), "r1", "mark", &mark);
     std::fs::write(
         run.path().join("windows.csv"),
-        "record,window,start_s,end_s,qt_ms,qt_superimposed_ms\nr1,0,0,2.1,405,410\nr1,1,2.1,4,300,300\n",
+        "record,window,start_s,end_s,qt_ms,qt_superimposed_ms,qrs_ms,pr_ms\nr1,0,0,2.1,405,410,90,150\nr1,1,2.1,4,300,300,70,150\n",
     )
     .unwrap();
     let r = validate(&ValidateOptions {
@@ -245,6 +245,12 @@ fn hand_made_record_window_qt_and_beats() {
     assert!((ws.bias_ms.unwrap() - 2.0).abs() < 1e-9);
     let wq = q.window_single.as_ref().unwrap();
     assert!((wq.bias_ms.unwrap() + 3.0).abs() < 1e-9);
+    // QRS duration: reference 20 samples (80 ms) on every beat; window 0 reports
+    // 90 ms (window 1 again not scored). No reference P wave: no PR agreement.
+    let wr = q.window_qrs.as_ref().unwrap();
+    assert_eq!(wr.n, 1);
+    assert!((wr.bias_ms.unwrap() - 10.0).abs() < 1e-9);
+    assert!(q.window_pr.is_none());
     // Beat QT: tool 400 ms everywhere vs 400, 408, 416, 600 → differences 0, −8, −16, −200.
     assert_eq!(q.beat.n, 4);
     assert!((q.beat.bias_ms.unwrap() + 56.0).abs() < 1e-9);
