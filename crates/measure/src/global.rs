@@ -127,6 +127,19 @@ pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
 
     // QRS and PR from every usable lead with the marks (a lead's T end need not be valid).
     let usable: Vec<usize> = (0..leads.len()).filter(|&l| leads[l].usable).collect();
+    // Two leads that disagree beyond the tolerance: the more confident mark
+    // (the outlier rule needs a third lead to tell which one is off).
+    let confident_of_two =
+        |get: fn(&LeadMeasure) -> Option<tendline_delineate::Mark>, tol: f64| -> Option<f64> {
+            let m: Vec<tendline_delineate::Mark> =
+                usable.iter().filter_map(|&l| get(&leads[l])).collect();
+            match m.as_slice() {
+                [a, b] if (a.sample as f64 - b.sample as f64).abs() > tol => {
+                    Some(if b.confidence > a.confidence { b } else { a }.sample as f64)
+                }
+                _ => None,
+            }
+        };
     let on_all = robust_min(&samples(qrs_on, &usable), on_tol);
 
     let sup_set = if valid.len() >= 3 { &valid } else { &accepted };
@@ -140,8 +153,13 @@ pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
         .zip(sup_end)
         .map(|(a, b)| ms(b - a))
         .filter(|&q| plausible(q));
+    let qrs_end_all = cfg
+        .two_lead_qrs_end_confident
+        .then(|| confident_of_two(|m| m.marks.qrs_end, end_tol))
+        .flatten()
+        .or_else(|| robust_max(&samples(qrs_end, &usable), end_tol));
     let qrs_ms = on_all
-        .zip(robust_max(&samples(qrs_end, &usable), end_tol))
+        .zip(qrs_end_all)
         .map(|(a, b)| ms(b - a))
         .filter(|&q| q > 0.0);
     let pr_ms = robust_min(&samples(p_on, &usable), on_tol)
@@ -211,6 +229,40 @@ mod tests {
         // QRS over all usable leads: 98 → 195 (no outlier).
         assert_eq!(g.qrs_ms, Some(97.0));
         assert_eq!(g.pr_ms, Some(150.0));
+    }
+
+    #[test]
+    fn two_leads_with_distant_qrs_ends_take_the_confident_one() {
+        let cfg = MeasureConfig::default();
+        // fs = 1000 Hz. Lead 1's QRS end is 80 ms after lead 0's (> 40 ms) and
+        // less confident: the QRS ends at lead 0's mark, 100 -> 190.
+        let sure = lead(100, 190, 500);
+        let mut unsure = lead(100, 270, 500);
+        unsure.marks.qrs_end.as_mut().unwrap().confidence = 0.3;
+        let g = combine(&[sure.clone(), unsure.clone()], 1000.0, &cfg);
+        assert_eq!(g.qrs_ms, Some(90.0));
+        // The more confident late end is kept.
+        let g = combine(&[unsure.clone(), sure.clone()], 1000.0, &cfg);
+        assert_eq!(g.qrs_ms, Some(90.0));
+        let mut late_sure = lead(100, 270, 500);
+        late_sure.marks.qrs_end.as_mut().unwrap().confidence = 1.0;
+        let mut early_unsure = sure.clone();
+        early_unsure.marks.qrs_end.as_mut().unwrap().confidence = 0.3;
+        assert_eq!(
+            combine(&[early_unsure, late_sure], 1000.0, &cfg).qrs_ms,
+            Some(170.0)
+        );
+        // Within the tolerance, or with the rule off, the latest end counts.
+        let near = lead(100, 220, 500);
+        assert_eq!(
+            combine(&[sure.clone(), near], 1000.0, &cfg).qrs_ms,
+            Some(120.0)
+        );
+        let off = MeasureConfig {
+            two_lead_qrs_end_confident: false,
+            ..MeasureConfig::default()
+        };
+        assert_eq!(combine(&[sure, unsure], 1000.0, &off).qrs_ms, Some(170.0));
     }
 
     #[test]
