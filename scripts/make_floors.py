@@ -55,4 +55,6 @@ for db in ["qtdb", "ludb"]:
     agreement(db, "qt_beat", q.get("beat"))
     agreement(db, "qt_beat_per_lead", q.get("beat_per_lead"))
     agreement(db, "qt_window_superimposed", q.get("window_superimposed"))
+    agreement(db, "window_qrs", q.get("window_qrs"))
+    agreement(db, "window_pr", q.get("window_pr"))
 print("\n".join(out))

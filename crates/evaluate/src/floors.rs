@@ -13,7 +13,8 @@
 //! max_sd_ms = 35.0
 //!
 //! [qtdb.qt_beat]                 # Bland–Altman of beat QT (also qt_beat_per_lead,
-//!                                # qt_window_superimposed)
+//!                                # qt_window_superimposed, window_qrs,
+//!                                # window_pr)
 //! max_abs_bias_ms = 20.0
 //! max_sd_ms = 40.0
 //!
@@ -52,6 +53,8 @@ pub struct DatabaseFloors {
     pub qt_beat: Option<AgreementFloors>,
     pub qt_beat_per_lead: Option<AgreementFloors>,
     pub qt_window_superimposed: Option<AgreementFloors>,
+    pub window_qrs: Option<AgreementFloors>,
+    pub window_pr: Option<AgreementFloors>,
 }
 
 /// Beat detection floors (percent).
@@ -150,6 +153,8 @@ impl Floors {
                 ("qt_beat", &d.qt_beat),
                 ("qt_beat_per_lead", &d.qt_beat_per_lead),
                 ("qt_window_superimposed", &d.qt_window_superimposed),
+                ("window_qrs", &d.window_qrs),
+                ("window_pr", &d.window_pr),
             ] {
                 if let Some(a) = a {
                     ms(
@@ -314,6 +319,18 @@ pub fn check_floors(report: &ValidationReport, floors: &Floors) -> Vec<String> {
         &format!("{db}.qt_window_superimposed"),
         qt.and_then(|q| q.window_superimposed.as_ref()),
         d.qt_window_superimposed.as_ref(),
+    );
+    check_agreement(
+        &mut v,
+        &format!("{db}.window_qrs"),
+        qt.and_then(|q| q.window_qrs.as_ref()),
+        d.window_qrs.as_ref(),
+    );
+    check_agreement(
+        &mut v,
+        &format!("{db}.window_pr"),
+        qt.and_then(|q| q.window_pr.as_ref()),
+        d.window_pr.as_ref(),
     );
     v
 }
