@@ -175,6 +175,16 @@ def _window_mean(values, start_s, end_s, fs, min_beats):
     return float(np.mean(v)) if len(v) >= min_beats else None
 
 
+def _scored_window_rows(run, qtdb, report):
+    """(record, row) for the rows of the run's windows.csv whose record the report
+    scores against annotator 1, each record's parsing left to the caller."""
+    with open(run / "windows.csv", newline="") as f:
+        for row in csv.DictReader(f):
+            rec = row["record"]
+            if rec in report["records"] and (qtdb / f"{rec}.q1c").is_file():
+                yield rec, row
+
+
 def test_window_qrs_and_pr_match_report():
     """Window QRS duration and PR interval (windows.csv qrs_ms, pr_ms) against the
     mean annotator-1 QRS duration and PR of each window's beats, recomputed from the
@@ -183,14 +193,9 @@ def test_window_qrs_and_pr_match_report():
     qt = report.get("qt")
     assert qt is not None and qt.get("window_qrs") and qt.get("window_pr")
     min_beats = report["protocol"]["min_window_beats"]
-    with open(run / "windows.csv", newline="") as f:
-        rows = list(csv.DictReader(f))
     cache = {}
     got = {"qrs": [], "pr": []}
-    for row in rows:
-        rec = row["record"]
-        if rec not in report["records"] or not (qtdb / f"{rec}.q1c").is_file():
-            continue
+    for rec, row in _scored_window_rows(run, qtdb, report):
         if rec not in cache:
             fs = _fs(qtdb, rec)
             b = _beats_qrs_pr(qtdb / rec, "q1c", fs)
@@ -352,8 +357,6 @@ def test_window_qt_matches_report():
     qt = report.get("qt")
     assert qt is not None and qt.get("window_superimposed"), "report.json has no window QT"
     min_beats = report["protocol"]["min_window_beats"]
-    with open(run / "windows.csv", newline="") as f:
-        rows = list(csv.DictReader(f))
 
     def val(v):
         return float(v) if v not in ("", "NaN", "nan") else None
@@ -361,10 +364,7 @@ def test_window_qt_matches_report():
     sup, ann, tool = [], [], []
     sup_by_rec = {}
     cache = {}
-    for row in rows:
-        rec = row["record"]
-        if rec not in report["records"] or not (qtdb / f"{rec}.q1c").is_file():
-            continue
+    for rec, row in _scored_window_rows(run, qtdb, report):
         if rec not in cache:
             fs = _fs(qtdb, rec)
             q2 = (

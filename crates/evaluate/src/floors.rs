@@ -302,36 +302,32 @@ pub fn check_floors(report: &ValidationReport, floors: &Floors) -> Vec<String> {
         &d.per_lead,
     );
     let qt = report.qt.as_ref();
-    check_agreement(
-        &mut v,
-        &format!("{db}.qt_beat"),
-        qt.map(|q| &q.beat),
-        d.qt_beat.as_ref(),
-    );
-    check_agreement(
-        &mut v,
-        &format!("{db}.qt_beat_per_lead"),
-        qt.and_then(|q| q.beat_per_lead.as_ref()),
-        d.qt_beat_per_lead.as_ref(),
-    );
-    check_agreement(
-        &mut v,
-        &format!("{db}.qt_window_superimposed"),
-        qt.and_then(|q| q.window_superimposed.as_ref()),
-        d.qt_window_superimposed.as_ref(),
-    );
-    check_agreement(
-        &mut v,
-        &format!("{db}.window_qrs"),
-        qt.and_then(|q| q.window_qrs.as_ref()),
-        d.window_qrs.as_ref(),
-    );
-    check_agreement(
-        &mut v,
-        &format!("{db}.window_pr"),
-        qt.and_then(|q| q.window_pr.as_ref()),
-        d.window_pr.as_ref(),
-    );
+    let checks = [
+        ("qt_beat", qt.map(|q| &q.beat), &d.qt_beat),
+        (
+            "qt_beat_per_lead",
+            qt.and_then(|q| q.beat_per_lead.as_ref()),
+            &d.qt_beat_per_lead,
+        ),
+        (
+            "qt_window_superimposed",
+            qt.and_then(|q| q.window_superimposed.as_ref()),
+            &d.qt_window_superimposed,
+        ),
+        (
+            "window_qrs",
+            qt.and_then(|q| q.window_qrs.as_ref()),
+            &d.window_qrs,
+        ),
+        (
+            "window_pr",
+            qt.and_then(|q| q.window_pr.as_ref()),
+            &d.window_pr,
+        ),
+    ];
+    for (k, got, floors) in checks {
+        check_agreement(&mut v, &format!("{db}.{k}"), got, floors.as_ref());
+    }
     v
 }
 

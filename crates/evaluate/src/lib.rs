@@ -764,6 +764,14 @@ fn window_mean_qt(
     window_mean(beats, w, fs, min_beats, waves::BeatMarks::qt_samples)
 }
 
+/// The records by name, with their position in the report's record order.
+fn by_position(recs: &[Loaded]) -> BTreeMap<&str, (usize, &Loaded)> {
+    recs.iter()
+        .enumerate()
+        .map(|(k, r)| (r.name.as_str(), (k, r)))
+        .collect()
+}
+
 /// Agreement of a window value of `windows.csv` (`value`) with the mean
 /// reference interval (`interval`) of the global reference's beats in the
 /// window, over the windows with at least `min_window_beats` such beats; with
@@ -775,11 +783,7 @@ fn window_agreement(
     interval: fn(&waves::BeatMarks) -> Option<i64>,
     value: fn(&inputs::WindowRow) -> Option<f64>,
 ) -> (Option<BlandAltman>, usize) {
-    let by_name: BTreeMap<&str, (usize, &Loaded)> = recs
-        .iter()
-        .enumerate()
-        .map(|(k, r)| (r.name.as_str(), (k, r)))
-        .collect();
+    let by_name = by_position(recs);
     let (mut v, mut n) = (Vec::new(), 0);
     for w in rows {
         let Some(&(k, r)) = by_name.get(w.record.as_str()) else {
@@ -840,11 +844,7 @@ fn window_qt_longest_lead_ref(
     let Some(rows) = rows else {
         return (None, None);
     };
-    let by_name: BTreeMap<&str, (usize, &Loaded)> = recs
-        .iter()
-        .enumerate()
-        .map(|(k, r)| (r.name.as_str(), (k, r)))
-        .collect();
+    let by_name = by_position(recs);
     let (mut sup, mut single) = (Vec::new(), Vec::new());
     for w in rows {
         let Some(&(k, r)) = by_name.get(w.record.as_str()) else {
