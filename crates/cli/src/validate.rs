@@ -32,6 +32,12 @@ pub struct ValidateArgs {
     /// Largest |error| for a boundary to count as found (ms).
     #[arg(long, default_value_t = 150.0)]
     pub fiducial_window_ms: f64,
+    /// Bootstrap resamples of the records behind each 95 % interval (100 to 100000).
+    #[arg(long, default_value_t = tendline_evaluate::stability::REPLICATES)]
+    pub bootstrap: usize,
+    /// Seed of the bootstrap's record draws (the same seed gives the same intervals).
+    #[arg(long, default_value_t = tendline_evaluate::stability::SEED)]
+    pub seed: u64,
     /// Committed accuracy floors (TOML); the command fails (exit 1) when any is not met.
     #[arg(long)]
     pub floors: Option<PathBuf>,
@@ -95,6 +101,10 @@ pub fn cmd_validate(a: ValidateArgs) -> Result<ExitCode> {
         database: a.database.clone(),
         beat_window_ms: a.beat_window_ms,
         fiducial_window_ms: a.fiducial_window_ms,
+        resampling: tendline_evaluate::stability::Resampling {
+            replicates: a.bootstrap,
+            seed: a.seed,
+        },
         ..ValidateOptions::default()
     };
     let report = tendline_evaluate::validate_and_write(&opts).with_context(|| {

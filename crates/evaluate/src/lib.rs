@@ -129,6 +129,10 @@ pub struct ValidateOptions {
     pub strip_s: f64,
     /// Score `.q2c` against `.q1c` as human reference where both exist (default true).
     pub human_reference: bool,
+    /// Bootstrap over records for the intervals of every pooled figure
+    /// (default 2000 replicates, a fixed seed; [`stability`]).
+    #[serde(default)]
+    pub resampling: stability::Resampling,
 }
 
 impl Default for ValidateOptions {
@@ -146,6 +150,7 @@ impl Default for ValidateOptions {
             worst_beats: 8,
             strip_s: 1.5,
             human_reference: true,
+            resampling: stability::Resampling::default(),
         }
     }
 }
@@ -182,7 +187,14 @@ impl ValidateOptions {
             "beats",
         )
         .range("worst_beats", self.worst_beats as f64, 0.0, 100.0, "beats")
-        .range("strip_s", self.strip_s, 0.5, 10.0, "s");
+        .range("strip_s", self.strip_s, 0.5, 10.0, "s")
+        .range(
+            "bootstrap",
+            self.resampling.replicates as f64,
+            100.0,
+            100_000.0,
+            "resamples",
+        );
         if let Some(r) = &self.records {
             c.require(
                 !r.is_empty(),
@@ -522,6 +534,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 &fids,
                 &ppv,
                 None,
+                opts.resampling,
             ));
             // Human reference.
             let pairs: Vec<&Loaded> = recs
@@ -576,6 +589,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                         &hf,
                         &ppv,
                         None,
+                        opts.resampling,
                     ),
                     tool: report::build_section(
                         ".q1c (annotator 1)",
@@ -584,6 +598,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                         &hf,
                         &ppv,
                         None,
+                        opts.resampling,
                     ),
                     annotator_qt_beat: ba(&ann_scores),
                     tool_qt_beat: ba(&tool_scores),
@@ -658,6 +673,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                     &fids,
                     &ppv,
                     Some(&names),
+                    opts.resampling,
                 ));
                 let p: Vec<(f64, f64)> = lead_scores
                     .iter()
@@ -798,7 +814,7 @@ fn window_agreement(
             v.push((k, x, m));
         }
     }
-    (BlandAltman::by_record(&v), n)
+    (BlandAltman::by_record(&v, opts.resampling), n)
 }
 
 fn window_qt(
@@ -864,8 +880,8 @@ fn window_qt_longest_lead_ref(
         }
     }
     (
-        BlandAltman::by_record(&sup),
-        BlandAltman::by_record(&single),
+        BlandAltman::by_record(&sup, opts.resampling),
+        BlandAltman::by_record(&single, opts.resampling),
     )
 }
 
@@ -1046,6 +1062,17 @@ mod tests {
         let e = o.validate().unwrap_err();
         assert_eq!(e.len(), 1);
         assert_eq!(e[0].key, "validate.beat_window_ms");
+        let o = ValidateOptions {
+            run_dir: "r".into(),
+            data_dir: "d".into(),
+            resampling: stability::Resampling {
+                replicates: 50,
+                seed: 1,
+            },
+            ..Default::default()
+        };
+        let e = o.validate().unwrap_err();
+        assert_eq!(e[0].key, "validate.bootstrap");
         let o: ValidateOptions =
             toml::from_str("run_dir = 'r'\ndata_dir = 'd'\nreference = 'per-lead'").unwrap();
         assert_eq!(o.reference, ReferenceKind::PerLead);

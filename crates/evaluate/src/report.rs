@@ -3,7 +3,7 @@
 
 use crate::matching::Counts;
 use crate::score::RecordScore;
-use crate::stability::{stability, RecordErrors, Stability, REPLICATES, SEED};
+use crate::stability::{stability, RecordErrors, Resampling, Stability};
 use crate::stats::{BlandAltman, ErrorStats};
 use crate::waves::{BeatMarks, Fiducial};
 use serde::{Deserialize, Serialize};
@@ -298,6 +298,7 @@ pub fn build_section(
     fiducials: &[Fiducial],
     ppv_fiducials: &[Fiducial],
     lead_names: Option<&BTreeMap<String, Vec<String>>>,
+    boot: Resampling,
 ) -> DelineationSection {
     let mut sums = Vec::new();
     let mut errors = BTreeMap::new();
@@ -323,7 +324,7 @@ pub fn build_section(
                 }
             })
             .collect();
-        let stab = stability(&per_record, REPLICATES, SEED);
+        let stab = stability(&per_record, boot.replicates, boot.seed);
         let tol = f.cse_tolerance_ms();
         let pass = match (tol, stats.sd_ms) {
             (Some(t), Some(sd)) => Some(sd <= t),

@@ -35,6 +35,22 @@ pub const REPLICATES: usize = 2000;
 /// Default seed of the record draws.
 pub const SEED: u64 = 0x7e4d_11e5_2026_0001;
 
+/// How the bootstrap is drawn (`tendline validate --bootstrap`, `--seed`).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Resampling {
+    pub replicates: usize,
+    pub seed: u64,
+}
+
+impl Default for Resampling {
+    fn default() -> Self {
+        Resampling {
+            replicates: REPLICATES,
+            seed: SEED,
+        }
+    }
+}
+
 /// One half of the records.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
 pub struct Half {

@@ -125,7 +125,10 @@ impl BlandAltman {
     /// Agreement of `(record position, test, reference)` triples, with the
     /// stability of bias and SD over records (`crate::stability`; records
     /// ordered by position, sensitivity not applicable). `None` when empty.
-    pub fn by_record(triples: &[(usize, f64, f64)]) -> Option<BlandAltman> {
+    pub fn by_record(
+        triples: &[(usize, f64, f64)],
+        boot: crate::stability::Resampling,
+    ) -> Option<BlandAltman> {
         if triples.is_empty() {
             return None;
         }
@@ -143,11 +146,7 @@ impl BlandAltman {
                 fn_: 0,
             })
             .collect();
-        ba.stability = crate::stability::stability(
-            &recs,
-            crate::stability::REPLICATES,
-            crate::stability::SEED,
-        );
+        ba.stability = crate::stability::stability(&recs, boot.replicates, boot.seed);
         Some(ba)
     }
 }

@@ -261,4 +261,37 @@ fn hand_made_record_window_qt_and_beats() {
     assert_eq!((te.tp, te.fn_, te.fp), (3, 1, 1));
     let qo = g.fiducial(Fiducial::QrsOn).unwrap();
     assert!((qo.stats.mean_ms.unwrap() - 2.0).abs() < 1e-9); // (8 + 0 + 0 + 0) / 4
+                                                             // Stability over records: one record, so every resample is that record and
+                                                             // the interval has no width; the default draw is recorded with it.
+    let st = qo.stability.as_ref().unwrap();
+    assert_eq!(
+        (st.bootstrap.replicates, st.bootstrap.seed),
+        (
+            tendline_evaluate::stability::REPLICATES,
+            tendline_evaluate::stability::SEED
+        )
+    );
+    let [lo, hi] = st.bootstrap.mean_ci_ms.unwrap();
+    assert!((lo - 2.0).abs() < 1e-9 && (hi - 2.0).abs() < 1e-9);
+    assert_eq!((st.odd.records, st.even.records), (1, 0));
+    // A chosen draw is used and recorded.
+    let r2 = validate(&ValidateOptions {
+        run_dir: run.path().into(),
+        data_dir: data.path().into(),
+        worst_beats: 0,
+        resampling: tendline_evaluate::stability::Resampling {
+            replicates: 300,
+            seed: 9,
+        },
+        ..Default::default()
+    })
+    .unwrap();
+    let b = &r2
+        .global
+        .as_ref()
+        .unwrap()
+        .fiducial(Fiducial::QrsOn)
+        .unwrap();
+    let b = &b.stability.as_ref().unwrap().bootstrap;
+    assert_eq!((b.replicates, b.seed), (300, 9));
 }
