@@ -241,9 +241,10 @@ mod tests {
         unsure.marks.qrs_end.as_mut().unwrap().confidence = 0.3;
         let g = combine(&[sure.clone(), unsure.clone()], 1000.0, &cfg);
         assert_eq!(g.qrs_ms, Some(90.0));
-        // The more confident late end is kept.
+        // The order of the leads does not matter.
         let g = combine(&[unsure.clone(), sure.clone()], 1000.0, &cfg);
         assert_eq!(g.qrs_ms, Some(90.0));
+        // A more confident late end is kept.
         let mut late_sure = lead(100, 270, 500);
         late_sure.marks.qrs_end.as_mut().unwrap().confidence = 1.0;
         let mut early_unsure = sure.clone();
