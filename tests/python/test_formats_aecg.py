@@ -21,36 +21,20 @@ The Rust side is reached through the dev binary `formats-dump record`
 
 import csv
 import json
-import os
 import subprocess
 from pathlib import Path
 from xml.sax.saxutils import quoteattr
 
 import numpy as np
-import pytest
 import wfdb
 
-REPO = Path(__file__).resolve().parents[2]
-DATA = REPO.parent / "shared" / "data"
-BIN = Path(os.environ.get("TENDLINE_BIN_DIR", REPO / "target" / "release")) / "formats-dump"
+from _devtools import DATA, REPO, dev_bin, need_data
 
 # MDC lead-name spelling of the 12 standard leads (MDC_ECG_LEAD_I ... _V6, from memory
 # of ISO/IEEE 11073-10101); LUDB writes them in lower case.
 MDC = {n.lower(): n for n in ["I", "II", "III", "aVR", "aVL", "aVF", "V1", "V2", "V3", "V4", "V5", "V6"]}
 
 
-def _need_data():
-    if not DATA.is_dir():
-        pytest.skip(f"reference data not found at {DATA}")
-
-
-def _bin():
-    if not BIN.is_file():
-        pytest.fail(
-            f"dev binary {BIN} missing: run `cargo build --release -p tendline-formats "
-            "--bin formats-dump` or set TENDLINE_BIN_DIR"
-        )
-    return str(BIN)
 
 
 def write_aecg(path, rec, time_code, time_value, sex=None, birth=None):
@@ -102,7 +86,7 @@ def write_aecg(path, rec, time_code, time_value, sex=None, birth=None):
 
 
 def dump(inputs, out_dir):
-    subprocess.run([_bin(), "record", str(out_dir), *map(str, inputs)], check=True)
+    subprocess.run([dev_bin("formats-dump"), "record", str(out_dir), *map(str, inputs)], check=True)
     res = []
     for i in range(len(inputs)):
         meta = json.loads((Path(out_dir) / f"{i}.json").read_text())
@@ -134,7 +118,7 @@ def compare(meta, mine, ref, names):
 
 
 def test_ludb_12_lead_500hz(tmp_path):
-    _need_data()
+    need_data()
     # LUDB record 1: 12 leads at 500 Hz, 10 s (wfdb.rdrecord reads the reference).
     ref = wfdb.rdrecord(str(DATA / "ludb" / "1"), physical=False)
     assert ref.fs == 500 and ref.n_sig == 12
@@ -157,7 +141,7 @@ def test_ludb_12_lead_500hz(tmp_path):
 
 
 def test_qtdb_cut_250hz_relative_time_ms(tmp_path):
-    _need_data()
+    need_data()
     # QTDB sel100 (MIT-BIH 100 excerpt), first 4 s at 250 Hz, leads MLII and V5.
     ref = wfdb.rdrecord(str(DATA / "qtdb" / "sel100"), physical=False, sampto=1000)
     assert ref.fs == 250
@@ -172,7 +156,7 @@ def test_qtdb_cut_250hz_relative_time_ms(tmp_path):
 
 
 def test_bad_files_name_the_file(tmp_path):
-    _need_data()
+    need_data()
     ref = wfdb.rdrecord(str(DATA / "qtdb" / "sel100"), physical=False, sampto=500)
     good = tmp_path / "good.xml"
     time = '<value xsi:type="GLIST_TS"><increment value="0.004" unit="s"/></value>'
@@ -201,10 +185,8 @@ def test_run_on_aecg_equals_run_on_wfdb(tmp_path):
     WFDB original (same samples, so the same summary row apart from the record
     name and the subject id the aECG file carries); an XML file in the same folder
     that is not an aECG document fails as its own record and the batch goes on."""
-    _need_data()
-    tl = BIN.parent / "tendline"
-    if not tl.is_file():
-        pytest.fail(f"{tl} missing: run `cargo build --release -p tendline` or set TENDLINE_BIN_DIR")
+    need_data()
+    tl = dev_bin("tendline", "tendline")
     ref = wfdb.rdrecord(str(DATA / "ludb" / "1"), physical=False)
     inp = tmp_path / "in"
     inp.mkdir()

@@ -10,7 +10,6 @@ The Rust side is reached through the dev binary `annot-dump`
 """
 
 import json
-import os
 import subprocess
 from pathlib import Path
 
@@ -19,31 +18,17 @@ import pytest
 import wfdb
 from wfdb.io import annotation as wfdb_annotation
 
-REPO = Path(__file__).resolve().parents[2]
-DATA = REPO.parent / "shared" / "data"
-BIN = Path(os.environ.get("TENDLINE_BIN_DIR", REPO / "target" / "release")) / "annot-dump"
+from _devtools import DATA, dev_bin, need_data
 
 LUDB_LEADS = ["i", "ii", "iii", "avr", "avl", "avf", "v1", "v2", "v3", "v4", "v5", "v6"]
 QTDB_EXTS = ["atr", "man", "q1c", "q2c", "qt1", "qt2"]
 
 
-def _need_data():
-    if not DATA.is_dir():
-        pytest.skip(f"reference data not found at {DATA}")
-
-
-def _dump_bin():
-    if not BIN.is_file():
-        pytest.fail(
-            f"dev binary {BIN} missing: run `cargo build --release -p tendline-formats "
-            "--bin annot-dump` or set TENDLINE_BIN_DIR"
-        )
-    return str(BIN)
 
 
 def ours(path):
     out = subprocess.run(
-        [_dump_bin(), "read", str(path)], capture_output=True, text=True, check=True
+        [dev_bin("annot-dump"), "read", str(path)], capture_output=True, text=True, check=True
     ).stdout
     return [json.loads(line) for line in out.splitlines()]
 
@@ -94,7 +79,7 @@ GROUPS = ["conformance"] + [f"qtdb.{e}" for e in QTDB_EXTS] + [f"ludb.{lead}" fo
 @pytest.mark.parametrize("group", GROUPS)
 def test_read_matches_rdann(group):
     # Reference: wfdb.rdann (wfdb-python 4.3), all six fields per annotation.
-    _need_data()
+    need_data()
     files = annotation_files(group)
     assert files, f"no files for {group}"
     bad = []
@@ -112,11 +97,11 @@ def test_read_matches_rdann(group):
 def test_our_writer_reads_back_in_rdann(group, tmp_path):
     # Files written by tendline's writer, read by wfdb.rdann, equal the original
     # read by wfdb.rdann (reference: wfdb-python 4.3).
-    _need_data()
+    need_data()
     bad = []
     for f in annotation_files(group):
         out = tmp_path / f.name
-        subprocess.run([_dump_bin(), "copy", str(f), str(out)], check=True, capture_output=True)
+        subprocess.run([dev_bin("annot-dump"), "copy", str(f), str(out)], check=True, capture_output=True)
         mine = [
             {
                 "sample": int(s),
@@ -140,7 +125,7 @@ def _fields(a):
 def test_code_table_matches_wfdb():
     # Reference: wfdb.io.annotation.ann_label_table and is_qrs (wfdb-python 4.3).
     table = {int(r.label_store): r.symbol for r in wfdb_annotation.ann_label_table.itertuples()}
-    out = subprocess.run([_dump_bin(), "codes"], capture_output=True, text=True, check=True).stdout
+    out = subprocess.run([dev_bin("annot-dump"), "codes"], capture_output=True, text=True, check=True).stdout
     rows = [json.loads(line) for line in out.splitlines()]
     assert len(rows) == 50
     for r in rows:
@@ -169,7 +154,7 @@ def test_wrann_file_with_every_field(tmp_path):
     assert len(ref.sample) == n
     assert not compare(f, ours(f), ref)
     out = tmp_path / "c.tst"
-    subprocess.run([_dump_bin(), "copy", str(f), str(out)], check=True, capture_output=True)
+    subprocess.run([dev_bin("annot-dump"), "copy", str(f), str(out)], check=True, capture_output=True)
     assert not compare(out, ours(out), ref)
     assert not compare(out, ours(f), theirs(out))
 
@@ -177,10 +162,10 @@ def test_wrann_file_with_every_field(tmp_path):
 def test_truncated_file_is_a_clear_error(tmp_path):
     # Cutting the 100.atr file (reference data) inside its first AUX field must
     # give an error naming the file, not a crash.
-    _need_data()
+    need_data()
     data = (DATA / "wfdb-conformance" / "100.atr").read_bytes()
     bad = tmp_path / "cut.atr"
     bad.write_bytes(data[:5])
-    r = subprocess.run([_dump_bin(), "read", str(bad)], capture_output=True, text=True)
+    r = subprocess.run([dev_bin("annot-dump"), "read", str(bad)], capture_output=True, text=True)
     assert r.returncode != 0
     assert "cut.atr" in r.stderr and "truncated" in r.stderr, r.stderr

@@ -14,44 +14,28 @@ The Rust side is reached through the dev binary `annot-dump`
 
 import datetime
 import json
-import os
 import re
 import subprocess
-from pathlib import Path
 
 import numpy as np
 import pyedflib
 import pytest
 import wfdb
 
-REPO = Path(__file__).resolve().parents[2]
-DATA = REPO.parent / "shared" / "data"
+from _devtools import DATA, dev_bin, need_data
 CONF = DATA / "wfdb-conformance"
-BIN = Path(os.environ.get("TENDLINE_BIN_DIR", REPO / "target" / "release")) / "annot-dump"
 
 
-def _bin():
-    if not BIN.is_file():
-        pytest.fail(
-            f"dev binary {BIN} missing: run `cargo build --release -p tendline-formats "
-            "--bin annot-dump` or set TENDLINE_BIN_DIR"
-        )
-    return str(BIN)
-
-
-def _need_data():
-    if not DATA.is_dir():
-        pytest.skip(f"reference data not found at {DATA}")
 
 
 def ours_edf(path):
-    out = subprocess.run([_bin(), "edf", str(path)], capture_output=True, text=True, check=True).stdout
+    out = subprocess.run([dev_bin("annot-dump"), "edf", str(path)], capture_output=True, text=True, check=True).stdout
     lines = [json.loads(x) for x in out.splitlines()]
     return lines[0], {x["name"]: np.array(x["samples"]) for x in lines[1:]}
 
 
 def ours_ann(path):
-    out = subprocess.run([_bin(), "edf-ann", str(path)], capture_output=True, text=True, check=True).stdout
+    out = subprocess.run([dev_bin("annot-dump"), "edf-ann", str(path)], capture_output=True, text=True, check=True).stdout
     return [json.loads(x) for x in out.splitlines()]
 
 
@@ -75,7 +59,7 @@ def ascii_copy_of_generator(tmp_path):
 
 
 def test_generator_edf_matches_pyedflib_and_wfdb(tmp_path):
-    _need_data()
+    need_data()
     head, sig = ours_edf(CONF / "test_generator_2.edf")
     assert head["fs"] == 200.0
     assert head["n_samples"] == 120000
@@ -112,7 +96,7 @@ def test_generator_edf_matches_pyedflib_and_wfdb(tmp_path):
 
 
 def test_edfann_annotations_match_pyedflib():
-    _need_data()
+    need_data()
     r = pyedflib.EdfReader(str(CONF / "test_edfann.edf"))
     on, du, tx = r.readAnnotations()
     r.close()
@@ -123,7 +107,7 @@ def test_edfann_annotations_match_pyedflib():
     # pyedflib reports a missing duration as -1.
     assert np.allclose([-1.0 if a["duration_s"] is None else a["duration_s"] for a in mine], du)
     # The file has no signal channel: reading it as a record is a clear error.
-    p = subprocess.run([_bin(), "edf", str(CONF / "test_edfann.edf")], capture_output=True, text=True)
+    p = subprocess.run([dev_bin("annot-dump"), "edf", str(CONF / "test_edfann.edf")], capture_output=True, text=True)
     assert p.returncode != 0 and "test_edfann.edf" in p.stderr and "no signal" in p.stderr
 
 
@@ -167,7 +151,7 @@ def test_pyedflib_written_database_records(db, name, tmp_path):
     # in tendline within the EDF quantisation step, with age and sex from the
     # EDF+ patient field; and tendline's own rewrite reads back in pyedflib
     # within tendline's quantisation step.
-    _need_data()
+    need_data()
     rec = wfdb.rdrecord(str(DATA / db / name))
     age, sex = _age_sex(rec)
     p = tmp_path / f"{name}.edf"
@@ -193,7 +177,7 @@ def test_pyedflib_written_database_records(db, name, tmp_path):
 
     # Our writer, read by pyedflib.
     q = tmp_path / f"{name}_ours.edf"
-    subprocess.run([_bin(), "edf-copy", str(p), str(q)], check=True, capture_output=True)
+    subprocess.run([dev_bin("annot-dump"), "edf-copy", str(p), str(q)], check=True, capture_output=True)
     r = pyedflib.EdfReader(str(q))
     assert r.getSignalLabels() == rec.sig_name
     assert r.filetype == pyedflib.FILETYPE_EDFPLUS

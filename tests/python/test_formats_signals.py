@@ -21,10 +21,8 @@ import numpy as np
 import pytest
 import wfdb
 
-REPO = Path(__file__).resolve().parents[2]
-DATA = REPO.parent / "shared" / "data"
+from _devtools import DATA, dev_bin, need_data
 CONF = DATA / "wfdb-conformance"
-BIN = Path(os.environ.get("TENDLINE_BIN_DIR", REPO / "target" / "release")) / "formats-dump"
 
 # Variants our reader rejects on purpose (documented in crates/formats/src/wfdb/mod.rs):
 # FLAC formats 508/516/524, MATLAB `.mat` signal files, variable-layout multi-segment.
@@ -43,23 +41,11 @@ MULTI_RATE = {"multi-segment/041s/041s", "multi-segment/041s/041s01", "multi-seg
 MV = {"mV": 1.0, "uV": 1e-3, "μV": 1e-3, "µV": 1e-3, "V": 1e3}
 
 
-def _need_data():
-    if not DATA.is_dir():
-        pytest.skip(f"reference data not found at {DATA}")
-
-
-def _bin():
-    if not BIN.is_file():
-        pytest.fail(
-            f"dev binary {BIN} missing: run `cargo build --release -p tendline-formats "
-            "--bin formats-dump` or set TENDLINE_BIN_DIR"
-        )
-    return str(BIN)
 
 
 def dump(mode, inputs, out_dir):
     """Run formats-dump once over `inputs`; yield (input, meta, out_dir, index)."""
-    subprocess.run([_bin(), mode, str(out_dir), *map(str, inputs)], check=True)
+    subprocess.run([dev_bin("formats-dump"), mode, str(out_dir), *map(str, inputs)], check=True)
     for i, path in enumerate(inputs):
         meta = json.loads((Path(out_dir) / f"{i}.json").read_text())
         yield path, meta, Path(out_dir), i
@@ -162,7 +148,7 @@ def batches(items, n):
 @pytest.mark.parametrize("db", ["qtdb", "ludb"])
 def test_database_digital_and_physical(db, scratch):
     """Every QTDB (105) and LUDB (100) record: digital identical, physical within 1e-9 (wfdb package)."""
-    _need_data()
+    need_data()
     recs = records(db)
     assert len(recs) == {"qtdb": 105, "ludb": 100}[db]
     for k, batch in enumerate(batches(recs, 15)):
@@ -181,7 +167,7 @@ def manifest():
 
 def test_conformance_manifest(tmp_path):
     """Every record wfdb reads (MANIFEST.tsv) is read identically, or rejected as unsupported."""
-    _need_data()
+    need_data()
     rows = [r for r in manifest() if r["wfdb_reads"] == "yes"]
     paths = [CONF / r["record"] for r in rows]
     seen_unsupported = set()
@@ -202,7 +188,7 @@ def test_conformance_manifest(tmp_path):
 
 def test_conformance_records_physical(tmp_path):
     """Records readable as one-rate Records: physical values vs wfdb p_signal."""
-    _need_data()
+    need_data()
     rows = [r for r in manifest() if r["wfdb_reads"] == "yes"]
     # The long records are covered digitally; keep this test quick.
     skip = set(UNSUPPORTED) | {"100", "100-no-len", "100skew", "p10143", "a103l", "multi-segment/s25047/3234460_0016"}
@@ -217,7 +203,7 @@ def test_conformance_records_physical(tmp_path):
 
 def test_skew_beyond_file_is_invalid_like_wfdb(tmp_path):
     """100skew: the skewed signal runs 3 frames past the file; wfdb gives NaN there, so do we."""
-    _need_data()
+    need_data()
     [(path, meta, o, i)] = dump("record", [CONF / "100skew.hea"], tmp_path)
     p = our_physical(meta, o, i)
     assert np.isnan(p[-3:, 1]).all() and not np.isnan(p[:-3, 1]).any()
@@ -226,7 +212,7 @@ def test_skew_beyond_file_is_invalid_like_wfdb(tmp_path):
 
 def test_metadata_from_comments(tmp_path):
     """Age/sex from both header conventions (values read off the headers in ../shared/data)."""
-    _need_data()
+    need_data()
     paths = [DATA / "qtdb" / "sel100.hea", DATA / "ludb" / "1.hea", DATA / "qtdb" / "sele0107.hea"]
     got = [(m["age"], m["sex"]) for _, m, _, _ in dump("record", paths, tmp_path)]
     assert got == [(69.0, "M"), (51.0, "F"), (52.0, "M")]
@@ -234,7 +220,7 @@ def test_metadata_from_comments(tmp_path):
 
 def test_written_records_read_back_with_wfdb(tmp_path):
     """Our writer's output, read by wfdb.rdrecord: same lead names, fs, values within half a step."""
-    _need_data()
+    need_data()
     inputs = [DATA / "ludb" / "1.hea", DATA / "qtdb" / "sel100.hea"]
     gain = 1000.0
     for path, meta, o, i in dump(f"write:{gain}", inputs, tmp_path / "w"):
