@@ -489,6 +489,45 @@ pub(crate) fn combine(
     g
 }
 
+/// Keeps each lead's boundaries within the global span of their wave
+/// (`lead_marks_within_global`): an onset before the global onset, or an end
+/// after the global end, is moved onto the global mark (taking its
+/// confidence). A move that would put the boundary on the wrong side of the
+/// lead's own peak is not made: that lead has marked another wave.
+pub(crate) fn clip_leads_to_global(per_lead: &mut [Vec<BeatMarks>], global: &[BeatMarks]) {
+    fn onset(m: &mut Option<Mark>, g: Option<Mark>, peak: Option<Mark>) {
+        if let (Some(lm), Some(gm)) = (*m, g) {
+            if lm.sample < gm.sample && peak.is_none_or(|p| gm.sample < p.sample) {
+                *m = Some(gm);
+            }
+        }
+    }
+    fn end(m: &mut Option<Mark>, g: Option<Mark>, peak: Option<Mark>) {
+        if let (Some(lm), Some(gm)) = (*m, g) {
+            if lm.sample > gm.sample && peak.is_none_or(|p| gm.sample > p.sample) {
+                *m = Some(gm);
+            }
+        }
+    }
+    for lead in per_lead.iter_mut() {
+        for (b, g) in lead.iter_mut().zip(global) {
+            onset(&mut b.p_on, g.p_on, b.p_peak);
+            end(&mut b.p_end, g.p_end, b.p_peak);
+            onset(&mut b.qrs_on, g.qrs_on, b.qrs_peak);
+            end(&mut b.qrs_end, g.qrs_end, b.qrs_peak);
+            onset(&mut b.t_on, g.t_on, b.t_peak);
+            end(&mut b.t_end_wavelet, g.t_end_wavelet, b.t_peak);
+            end(&mut b.t_end_tangent, g.t_end_tangent, b.t_peak);
+            end(&mut b.t_end_area, g.t_end_area, b.t_peak);
+            b.t_end = match b.t_end_method {
+                TEndMethod::Wavelet => b.t_end_wavelet,
+                TEndMethod::Tangent => b.t_end_tangent,
+                TEndMethod::Area => b.t_end_area,
+            };
+        }
+    }
+}
+
 /// The T wave starts after the QRS complex ends (common practice: ST
 /// segment). The earliest lead T onset can fall before the latest lead QRS
 /// end (wide or paced complexes), which would interleave the two waves in
@@ -762,6 +801,63 @@ mod tests {
         let per_lead = vec![vec![lead((200, 0.1), 190)]];
         let g = combine(&per_lead, &[], 1, 250.0, &DelineateConfig::default())[0].clone();
         assert!(g.t_peak.is_some() && g.t_end.is_none());
+    }
+
+    #[test]
+    fn lead_boundaries_beyond_the_global_span_are_moved_onto_it() {
+        let cfg = DelineateConfig::default();
+        // Three leads agree on a QRS from 90 to 130 and a T ending at 250;
+        // lead 3 (noise) puts the QRS from 80 to 160 and its T end at 290.
+        // 30-40 samples at 250 Hz is beyond the 40 ms outlier limit, so the
+        // global marks follow the three.
+        let lead = |on: usize, end: usize, te: usize| BeatMarks {
+            qrs_on: Some(m(on, 0.9)),
+            qrs_peak: Some(m(110, 0.9)),
+            qrs_end: Some(m(end, 0.9)),
+            t_peak: Some(m(220, 0.9)),
+            t_end_wavelet: Some(m(te, 0.9)),
+            t_end_tangent: Some(m(te - 5, 0.9)),
+            t_end: Some(m(te, 0.9)),
+            ..Default::default()
+        };
+        let mut per_lead = vec![
+            vec![lead(90, 130, 250)],
+            vec![lead(91, 128, 248)],
+            vec![lead(92, 129, 249)],
+            vec![lead(80, 160, 290)],
+        ];
+        let g = combine(&per_lead, &[], 1, 250.0, &cfg);
+        let (gon, gend) = (g[0].qrs_on.unwrap(), g[0].qrs_end.unwrap());
+        let gte = g[0].t_end.unwrap();
+        assert_eq!((gon.sample, gend.sample, gte.sample), (90, 130, 250));
+        let before = per_lead.clone();
+        clip_leads_to_global(&mut per_lead, &g);
+        // The three agreeing leads lie inside the span and keep their marks.
+        assert_eq!(per_lead[..3], before[..3]);
+        let b = &per_lead[3][0];
+        assert_eq!(b.qrs_on, Some(gon));
+        assert_eq!(b.qrs_end, Some(gend));
+        assert_eq!(b.t_end, Some(gte));
+        assert_eq!(b.t_end_wavelet, Some(gte));
+        // Each T-end method is held to its own global end (tangent: 245).
+        assert_eq!(b.t_end_tangent, g[0].t_end_tangent);
+        assert_eq!(b.t_end_tangent.unwrap().sample, 245);
+
+        // A global end before the lead's own peak is not imposed: that lead
+        // took another wave, and moving its end would put it before its peak.
+        let mut odd = vec![vec![BeatMarks {
+            t_peak: Some(m(300, 0.9)),
+            t_end: Some(m(330, 0.9)),
+            t_end_wavelet: Some(m(330, 0.9)),
+            ..Default::default()
+        }]];
+        let kept = odd.clone();
+        clip_leads_to_global(&mut odd, &g);
+        assert_eq!(odd, kept);
+        // No global mark: nothing to hold the lead to.
+        let mut alone = before.clone();
+        clip_leads_to_global(&mut alone, &[BeatMarks::default()]);
+        assert_eq!(alone, before);
     }
 
     #[test]

@@ -278,6 +278,9 @@ pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig
     let refs: Vec<Option<&lead::LeadAnalysis>> = las.iter().map(Option::as_ref).collect();
     prhythm::fill_weak_p(&refs, &mut per_lead, cfg);
     let global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
+    if cfg.lead_marks_within_global {
+        global::clip_leads_to_global(&mut per_lead, &global);
+    }
     Delineation { per_lead, global }
 }
 
@@ -362,6 +365,9 @@ pub fn delineate_prepared(
     let refs: Vec<Option<&lead::LeadAnalysis>> = leads.iter().map(|l| l.la.as_ref()).collect();
     prhythm::fill_weak_p(&refs, &mut per_lead, cfg);
     let global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
+    if cfg.lead_marks_within_global {
+        global::clip_leads_to_global(&mut per_lead, &global);
+    }
     Delineation { per_lead, global }
 }
 

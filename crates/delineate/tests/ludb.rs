@@ -184,23 +184,26 @@ fn ludb_per_lead_marks_against_cardiologists() {
     let limits: [(&str, f64, f64, f64); 14] = [
         ("qrs_sens", 99.6, 0.0, 0.0),
         ("qrs_ppv", 99.8, 0.0, 0.0),
-        ("qrs_on", 99.8, 5.5, 15.0),
-        ("qrs_end", 99.8, 1.7, 20.4),
+        // Rows with lead_marks_within_global (lead marks held inside the
+        // global span): QRS end SD 19.1 -> 16.6 ms (mean -1.5 -> -2.8),
+        // T end 26.7 -> 24.8, P onset 19.8 -> 19.0, P end 19.8 -> 19.1.
+        ("qrs_on", 99.8, 5.5, 14.4),
+        ("qrs_end", 99.8, 3.1, 17.0),
         // T rows with t_min_slope_mv_per_s 0.3 (more low T waves found: T
         // sensitivity 98.9 %, the added ones harder: SDs up 0.3-0.6 ms).
         ("t_sens", 98.6, 0.0, 0.0),
         ("t_ppv", 98.8, 0.0, 0.0),
         ("t_peak", 99.6, 1.3, 23.0),
-        ("t_end", 99.8, 2.8, 27.2),
-        ("t_end_tangent", 93.8, 2.4, 34.3),
-        ("t_end_area", 99.8, 6.6, 32.7),
+        ("t_end", 99.8, 2.2, 25.4),
+        ("t_end_tangent", 93.8, 3.2, 31.4),
+        ("t_end_area", 99.8, 5.0, 28.8),
         // P rows with p_fill_fine_peak_ms 30 (flat P waves found at 2^3
         // where the other leads have one: P sensitivity 95.2 -> 97.7 %,
         // the added ones harder: SDs up 0.5-0.6 ms).
         ("p_sens", 97.5, 0.0, 0.0),
         ("p_ppv", 97.5, 0.0, 0.0),
-        ("p_on", 99.7, 3.8, 19.9),
-        ("p_end", 99.8, 5.6, 19.9),
+        ("p_on", 99.7, 3.6, 19.5),
+        ("p_end", 99.8, 6.0, 19.5),
     ];
     for (k, sens, mean, sd) in limits {
         let a = &t[k];
