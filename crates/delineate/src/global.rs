@@ -58,11 +58,19 @@ fn extreme_pref(
     let total = c.len();
     let dist = |a: &Mark, b: f64| (a.sample as f64 - b).abs();
     if c.len() >= 3 {
-        let mut rest: Vec<f64> = c[1..].iter().map(|(m, _)| m.sample as f64).collect();
-        rest.sort_by(|a, b| a.total_cmp(b));
-        let med = rest[rest.len() / 2];
-        if dist(&c[0].0, med) > outlier {
+        // A quarter of twelve leads may be off together (noise on the limb
+        // leads); with three to seven leads this is the one-lead rule.
+        let max_drop = ((cfg.global_outlier_max_frac * total as f64).floor() as usize).max(1);
+        let mut dropped = 0;
+        while dropped < max_drop && c.len() >= 3 {
+            let mut rest: Vec<f64> = c[1..].iter().map(|(m, _)| m.sample as f64).collect();
+            rest.sort_by(|a, b| a.total_cmp(b));
+            let med = rest[rest.len() / 2];
+            if dist(&c[0].0, med) <= outlier {
+                break;
+            }
             c.remove(0);
+            dropped += 1;
         }
     } else if c.len() == 2 && dist(&c[0].0, c[1].0.sample as f64) > outlier {
         let ((m0, p0), (m1, p1)) = (c[0], c[1]);
@@ -801,6 +809,42 @@ mod tests {
         let per_lead = vec![vec![lead((200, 0.1), 190)]];
         let g = combine(&per_lead, &[], 1, 250.0, &DelineateConfig::default())[0].clone();
         assert!(g.t_peak.is_some() && g.t_end.is_none());
+    }
+
+    #[test]
+    fn up_to_a_quarter_of_the_leads_may_be_dropped_as_outliers() {
+        // Twelve leads: nine agree on an end near 250, three (noise) lie
+        // 30-50 samples later, each beyond the 10-sample limit from the
+        // median of the leads left.
+        let mut c: Vec<Mark> = (0..9).map(|i| m(245 + i, 0.9)).collect();
+        c.extend([m(300, 0.9), m(290, 0.9), m(280, 0.9)]);
+        let latest = |frac: f64| {
+            let cfg = DelineateConfig {
+                global_outlier_max_frac: frac,
+                ..DelineateConfig::default()
+            };
+            extreme(&c, Pick::Latest, 10.0, PairRule::Confident, &|| None, &cfg)
+                .unwrap()
+                .sample
+        };
+        // 0.25 of 12 = 3: all three go, the latest of the nine is taken.
+        assert_eq!(latest(0.25), 253);
+        // 0.2 of 12 = 2 (rounded down): the third outlier stays.
+        assert_eq!(latest(0.2), 280);
+        // 0: at least one lead is still dropped (the one-lead rule).
+        assert_eq!(latest(0.0), 290);
+        // Never more than the outliers: a lead within the limit is kept.
+        let tight: Vec<Mark> = (0..12).map(|i| m(245 + i, 0.9)).collect();
+        let cfg = DelineateConfig::default();
+        let e = extreme(
+            &tight,
+            Pick::Latest,
+            10.0,
+            PairRule::Confident,
+            &|| None,
+            &cfg,
+        );
+        assert_eq!(e.unwrap().sample, 256);
     }
 
     #[test]

@@ -186,7 +186,10 @@ fn ludb_per_lead_marks_against_cardiologists() {
         ("qrs_ppv", 99.8, 0.0, 0.0),
         // Rows with lead_marks_within_global (lead marks held inside the
         // global span): QRS end SD 19.1 -> 16.6 ms (mean -1.5 -> -2.8),
-        // T end 26.7 -> 24.8, P onset 19.8 -> 19.0, P end 19.8 -> 19.1.
+        // T end 26.7 -> 24.8, P onset 19.8 -> 19.0, P end 19.8 -> 19.1;
+        // then global_outlier_max_frac 0.25 (up to three of twelve leads
+        // dropped from the global marks): T end 24.8 -> 23.5, tangent
+        // 30.9 -> 29.0, area 28.3 -> 26.4.
         ("qrs_on", 99.8, 5.5, 14.4),
         ("qrs_end", 99.8, 3.1, 17.0),
         // T rows with t_min_slope_mv_per_s 0.3 (more low T waves found: T
@@ -194,9 +197,9 @@ fn ludb_per_lead_marks_against_cardiologists() {
         ("t_sens", 98.6, 0.0, 0.0),
         ("t_ppv", 98.8, 0.0, 0.0),
         ("t_peak", 99.6, 1.3, 23.0),
-        ("t_end", 99.8, 2.2, 25.4),
-        ("t_end_tangent", 93.8, 3.2, 31.4),
-        ("t_end_area", 99.8, 5.0, 28.8),
+        ("t_end", 99.8, 1.5, 24.2),
+        ("t_end_tangent", 93.8, 4.2, 29.6),
+        ("t_end_area", 99.8, 3.4, 27.1),
         // P rows with p_fill_fine_peak_ms 30 (flat P waves found at 2^3
         // where the other leads have one: P sensitivity 95.2 -> 97.7 %,
         // the added ones harder: SDs up 0.5-0.6 ms).
