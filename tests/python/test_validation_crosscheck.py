@@ -283,6 +283,57 @@ def test_qrs_onset_and_t_end_match_report():
         _check_stability(key, per_rec[key], s["stability"])
 
 
+def test_t_end_confidence_quartiles_match_report():
+    """The report's confidence calibration of the global T end, rebuilt from
+    results.h5 (read with h5py; the Rust side reads the part files) and the
+    annotation files (wfdb): the matched T ends with their confidence
+    (`marks/global/t_end_confidence` at the mark's sample), sorted by
+    confidence then error, cut into four groups of n // 4 (the first n % 4
+    groups one larger); mean absolute error and SD (n - 1) per group."""
+    h5py = pytest.importorskip("h5py")
+    run, qtdb, report = _paths()
+    rows = [r for r in report["global"].get("calibration", []) if r["fiducial"] == "t_end"]
+    assert len(rows) == 4, "report.json has no T-end calibration rows"
+    bw_ms = report["protocol"]["beat_window_ms"]
+    fw_ms = report["protocol"]["fiducial_window_ms"]
+    pts = []
+    with h5py.File(run / "results.h5", "r") as h5:
+        for rec in report["records"]:
+            if not (qtdb / f"{rec}.q1c").is_file():
+                continue
+            g = h5[f"records/{rec}/marks/global"]
+            conf = dict(zip(g["t_end"][:].tolist(), g["t_end_confidence"][:].tolist()))
+            fs = _fs(qtdb, rec)
+            ref = _beats_qrs_on_t_end(qtdb / rec, "q1c", fs)
+            test = _beats_qrs_on_t_end(run / "annotations" / rec, "mark", fs)
+            pairs = _match([b[0] for b in ref], [b[0] for b in test], _window(bw_ms, fs))
+            fw = _window(fw_ms, fs)
+            for i, j in pairs:
+                r, t = ref[i][2], test[j][2]
+                if r is not None and t is not None and abs(t - r) <= fw:
+                    c = conf.get(t)
+                    if c is not None and math.isfinite(c):
+                        pts.append((c, (t - r) * 1000.0 / fs))
+    pts.sort()
+    n, start = len(pts), 0
+    assert sum(r["n"] for r in rows) == n
+    for q, row in enumerate(sorted(rows, key=lambda r: r["quartile"])):
+        size = n // 4 + (1 if q < n % 4 else 0)
+        grp = pts[start:start + size]
+        start += size
+        e = np.array([x[1] for x in grp])
+        print(
+            f"T end quartile {q + 1}: python n={e.size} conf {grp[0][0]:.4f}-{grp[-1][0]:.4f} "
+            f"mean|e|={np.abs(e).mean():.4f} sd={e.std(ddof=1):.4f}; report n={row['n']} "
+            f"mean|e|={row['mean_abs_ms']:.4f} sd={row['sd_ms']:.4f}"
+        )
+        assert row["n"] == e.size
+        assert abs(row["confidence_min"] - grp[0][0]) < 1e-6
+        assert abs(row["confidence_max"] - grp[-1][0]) < 1e-6
+        assert abs(row["mean_abs_ms"] - np.abs(e).mean()) < 0.01
+        assert abs(row["sd_ms"] - e.std(ddof=1)) < 0.01
+
+
 def _splitmix64(seed):
     """SplitMix64 (Steele, Lea and Flood, OOPSLA 2014), the published
     constants, as an endless generator of 64-bit values."""

@@ -296,6 +296,21 @@ pub struct DelineateConfig {
     pub t_area_window_ms: f64,
     /// Search for the area T end up to this long (ms) after the wavelet T end.
     pub t_area_search_after_ms: f64,
+    /// Two T-end methods of a beat agree when their ends lie within this (ms)
+    /// of each other (0 = the agreement is not used).
+    pub t_end_method_agree_ms: f64,
+    /// Weight w of the agreement between T-end methods in the reported
+    /// confidence of each T-end mark (per lead and global): the confidence
+    /// is multiplied by 1 - w + w * a, a the fraction of the beat's other
+    /// T-end marks that agree with it (a mark with no other method to compare
+    /// keeps its confidence). It is applied last: choices between leads and
+    /// the confidence floors use the confidence from slope and noise (used
+    /// there, the agreement lowered QTDB global T-end sensitivity from 99.15
+    /// to 98.87 % at w = 0.5). On QTDB global T ends matched to annotator 1,
+    /// ends whose methods all agree erred by 19.7 ms on average (mean
+    /// absolute error), against 36.8 ms when half agree and 33.9 ms when none
+    /// does.
+    pub t_end_method_agree_weight: f64,
 
     /// P window starts this long (ms) before the QRS onset, bounded by the
     /// previous T end (`p_after_t_end_ms`). Default 340 (250 before), see
@@ -639,6 +654,8 @@ impl Default for DelineateConfig {
             t_end_method: TEndMethod::Wavelet,
             t_area_window_ms: 128.0,
             t_area_search_after_ms: 120.0,
+            t_end_method_agree_ms: 40.0,
+            t_end_method_agree_weight: 0.5,
             p_window_ms: 340.0,
             p_window_gap_ms: 20.0,
             p_after_t_end_ms: 0.0,
@@ -844,6 +861,20 @@ impl DelineateConfig {
             .range("t_xi_end", self.t_xi_end, 0.0, 1.0, "")
             .range("t_end_search_ms", self.t_end_search_ms, 20.0, 600.0, "ms")
             .range("t_area_window_ms", self.t_area_window_ms, 8.0, 400.0, "ms")
+            .range(
+                "t_end_method_agree_ms",
+                self.t_end_method_agree_ms,
+                0.0,
+                200.0,
+                "ms",
+            )
+            .range(
+                "t_end_method_agree_weight",
+                self.t_end_method_agree_weight,
+                0.0,
+                1.0,
+                "",
+            )
             .range(
                 "t_area_search_after_ms",
                 self.t_area_search_after_ms,

@@ -423,6 +423,16 @@ fn section_html(
     );
     fiducial_table_html(out, s);
     stability_html(out, s);
+    let cal = crate::markdown::calibration_rows(s);
+    plain_table_html(
+        out,
+        &format!(
+            "Confidence against error. {}",
+            crate::markdown::CALIBRATION_INTRO
+        ),
+        &crate::markdown::CALIBRATION_HEADS,
+        cal.iter().map(|r| r.as_slice()),
+    );
     out.push_str("<div class=plots>");
     for f in &s.fiducials {
         if let Some(e) = s.errors.get(&f.fiducial) {

@@ -47,6 +47,7 @@
 //!
 //! The regression gate: [`Floors`] (TOML, format in [`floors`]) and [`check_floors`].
 
+pub mod calibration;
 pub mod error;
 pub mod floors;
 pub mod html;
@@ -702,6 +703,22 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
     }
 
     let worst = worst_beats(opts, &recs, &global_scores, &lead_scores, &mut warnings);
+    if global.is_some() || per_lead.is_some() {
+        use calibration::Marks;
+        let confs = calibration::load_all(&opts.run_dir, &names, &mut warnings);
+        let global_conf = |rec: &str, ch: u8, f: Fiducial, s: i64| {
+            confs.get(rec).and_then(|c| c.get(Marks::Global, ch, f, s))
+        };
+        let lead_conf = |rec: &str, ch: u8, f: Fiducial, s: i64| {
+            confs.get(rec).and_then(|c| c.get(Marks::Leads, ch, f, s))
+        };
+        if let Some(g) = &mut global {
+            g.calibration = calibration::rows(&global_scores, &Fiducial::ALL, &global_conf);
+        }
+        if let Some(p) = &mut per_lead {
+            p.calibration = calibration::rows(&lead_scores, &Fiducial::ALL, &lead_conf);
+        }
+    }
     let database = opts.database.clone().unwrap_or_else(|| {
         opts.data_dir
             .canonicalize()

@@ -120,6 +120,52 @@ pub fn stability_rows(s: &DelineationSection) -> Vec<[String; 8]> {
         .collect()
 }
 
+/// Column heads of the confidence calibration table.
+pub const CALIBRATION_HEADS: [&str; 6] = [
+    "fiducial",
+    "confidence quartile",
+    "confidence range",
+    "marks",
+    "mean |error| ms",
+    "SD ms",
+];
+
+/// What the calibration table shows (Markdown and HTML).
+pub const CALIBRATION_INTRO: &str = "The scored marks of each fiducial in four equal groups by the confidence the tool gave them (quartile 1 = lowest). A confidence worth using puts the larger errors in the lower quartiles: those are the marks to over-read first.";
+
+/// Rows of the calibration table (`crate::calibration`), shared by the
+/// Markdown and HTML reports.
+pub fn calibration_rows(s: &DelineationSection) -> Vec<[String; 6]> {
+    s.calibration
+        .iter()
+        .map(|r| {
+            [
+                r.fiducial.label().to_string(),
+                r.quartile.to_string(),
+                format!("{:.2} to {:.2}", r.confidence_min, r.confidence_max),
+                r.n.to_string(),
+                format!("{:.1}", r.mean_abs_ms),
+                format!("{:.1}", r.sd_ms),
+            ]
+        })
+        .collect()
+}
+
+fn calibration_md(out: &mut String, s: &DelineationSection) {
+    if s.calibration.is_empty() {
+        return;
+    }
+    let _ = writeln!(
+        out,
+        "### Confidence against error
+
+{CALIBRATION_INTRO}
+"
+    );
+    let rows = calibration_rows(s);
+    text_table(out, &CALIBRATION_HEADS, rows.iter().map(|r| r.as_slice()));
+}
+
 fn stability_md(out: &mut String, s: &DelineationSection) {
     let rows = stability_rows(s);
     let Some(first) = s.fiducials.iter().find_map(|f| f.stability.as_ref()) else {
@@ -193,6 +239,7 @@ fn section_md(out: &mut String, title: &str, s: &DelineationSection) {
     );
     fiducial_table(out, s);
     stability_md(out, s);
+    calibration_md(out, s);
     if !s.per_lead_name.is_empty() {
         let _ = writeln!(out, "### Per lead\n");
         rows_table(out, &s.per_lead_name, "lead", usize::MAX);

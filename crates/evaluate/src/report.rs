@@ -1,6 +1,7 @@
 //! The validation report: what is written to `report.json` and summarised in
 //! `report.md` and `report.html`, and its assembly from per-record scores.
 
+use crate::calibration::CalibrationRow;
 use crate::matching::Counts;
 use crate::score::RecordScore;
 use crate::stability::{stability, RecordErrors, Resampling, Stability};
@@ -102,6 +103,11 @@ pub struct DelineationSection {
     /// Errors per fiducial (ms) for the histograms; not written to JSON.
     #[serde(skip)]
     pub errors: BTreeMap<Fiducial, Vec<f64>>,
+    /// Error by confidence quartile of the scored marks
+    /// (`crate::calibration`); empty when the run's confidences could not be
+    /// read (and in reports written before it existed).
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub calibration: Vec<CalibrationRow>,
 }
 
 /// One fiducial's detection rates and error statistics.
@@ -419,6 +425,7 @@ pub fn build_section(
         per_record,
         per_lead_name,
         errors,
+        calibration: Vec::new(),
     }
 }
 
