@@ -497,6 +497,56 @@ pub(crate) fn combine(
     g
 }
 
+/// A peak outside `lo..=hi` (false when any of the three is missing).
+fn outside(peak: Option<Mark>, lo: Option<Mark>, hi: Option<Mark>) -> bool {
+    match (peak, lo, hi) {
+        (Some(pk), Some(lo), Some(hi)) => pk.sample < lo.sample || pk.sample > hi.sample,
+        _ => false,
+    }
+}
+
+/// The lead's T peak lies outside the global T span (global T onset, or the
+/// QRS end without one, to the global T end).
+pub(crate) fn t_outside(b: &BeatMarks, g: &BeatMarks) -> bool {
+    outside(b.t_peak, g.t_on.or(g.qrs_end), g.t_end)
+}
+
+/// Drops the P wave (`p`) and the T wave (`t`) of a lead whose peak lies
+/// outside the global span of that wave (P: global P onset to P end; T:
+/// global T onset, or the QRS end without one, to the T end): the leads agree
+/// on where the one atrial or ventricular recovery wave of the beat is, and a
+/// lead peak outside it is another deflection (noise, a U wave, the P of the
+/// next beat). Returns whether any wave was dropped.
+pub(crate) fn drop_waves_outside_global(
+    per_lead: &mut [Vec<BeatMarks>],
+    global: &[BeatMarks],
+    p: bool,
+    t: bool,
+) -> bool {
+    let mut any = false;
+    for lead in per_lead.iter_mut() {
+        for (b, g) in lead.iter_mut().zip(global) {
+            if p && outside(b.p_peak, g.p_on, g.p_end) {
+                b.p_on = None;
+                b.p_peak = None;
+                b.p_end = None;
+                any = true;
+            }
+            if t && t_outside(b, g) {
+                b.t_on = None;
+                b.t_peak = None;
+                b.t_end = None;
+                b.t_end_wavelet = None;
+                b.t_end_tangent = None;
+                b.t_end_area = None;
+                b.t_morphology = TMorphology::Absent;
+                any = true;
+            }
+        }
+    }
+    any
+}
+
 /// Keeps each lead's boundaries within the global span of their wave
 /// (`lead_marks_within_global`): an onset before the global onset, or an end
 /// after the global end, is moved onto the global mark (taking its
@@ -845,6 +895,54 @@ mod tests {
             &cfg,
         );
         assert_eq!(e.unwrap().sample, 256);
+    }
+
+    #[test]
+    fn lead_waves_with_a_peak_outside_the_global_span_are_dropped() {
+        let wave = |p: usize, t: usize| BeatMarks {
+            p_on: Some(m(p - 10, 0.9)),
+            p_peak: Some(m(p, 0.9)),
+            p_end: Some(m(p + 10, 0.9)),
+            qrs_end: Some(m(130, 0.9)),
+            t_peak: Some(m(t, 0.9)),
+            t_end: Some(m(t + 30, 0.9)),
+            t_end_wavelet: Some(m(t + 30, 0.9)),
+            t_morphology: TMorphology::Upright,
+            ..Default::default()
+        };
+        // Global P 40..60, T from the QRS end (130, no T onset) to 250.
+        let g = vec![BeatMarks {
+            p_on: Some(m(40, 0.9)),
+            p_end: Some(m(60, 0.9)),
+            qrs_end: Some(m(130, 0.9)),
+            t_end: Some(m(250, 0.9)),
+            ..Default::default()
+        }];
+        // Lead 0 agrees; lead 1's P peak (80) and T peak (270) lie outside.
+        let mut per_lead = vec![vec![wave(50, 220)], vec![wave(80, 270)]];
+        let before = per_lead.clone();
+        // P only (the default): lead 1 loses its P wave and keeps its T.
+        assert!(drop_waves_outside_global(&mut per_lead, &g, true, false));
+        assert_eq!(per_lead[0], before[0]);
+        let b = &per_lead[1][0];
+        assert!(b.p_on.is_none() && b.p_peak.is_none() && b.p_end.is_none());
+        assert_eq!(b.t_peak, before[1][0].t_peak);
+        // With T as well: lead 1's T goes too, with its morphology.
+        assert!(drop_waves_outside_global(&mut per_lead, &g, true, true));
+        let b = &per_lead[1][0];
+        assert!(b.t_peak.is_none() && b.t_end.is_none() && b.t_end_wavelet.is_none());
+        assert_eq!(b.t_morphology, TMorphology::Absent);
+        // Nothing outside: nothing changes and nothing is reported.
+        let mut ok = vec![vec![wave(50, 220)]];
+        assert!(!drop_waves_outside_global(&mut ok, &g, true, true));
+        // No global span: no judgement.
+        let mut alone = vec![vec![wave(80, 270)]];
+        assert!(!drop_waves_outside_global(
+            &mut alone,
+            &[BeatMarks::default()],
+            true,
+            true
+        ));
     }
 
     #[test]

@@ -33,8 +33,10 @@
 //!   for QRS ends a multi-lead wavelet envelope bounds how late a lead's
 //!   end may be and how early the global end may be, `global_env_qrs_*`);
 //!   peaks and the T morphology come from the lead with the highest
-//!   confidence for that mark. Each lead's boundaries are then held within
-//!   the global span of their wave (`lead_marks_within_global`).
+//!   confidence for that mark. A lead P wave whose peak lies outside the
+//!   global P span is searched again near the other leads' P
+//!   (`lead_p_within_global`), and each lead's boundaries are then held
+//!   within the global span of their wave (`lead_marks_within_global`).
 //! * A biphasic T is reported as such, but its onset and end are searched
 //!   from its dominant slope pair unless `t_biphasic_outer_bounds` is set.
 //! * P waves are dropped in every lead where the PR interval scatters over
@@ -228,6 +230,77 @@ fn delineate_analysed(
     out
 }
 
+/// Lead waves outside the global span of their wave (`lead_p_within_global`,
+/// `lead_t_within_global`): a P wave is dropped and searched again near the
+/// other leads' P peak (`p_fill_*`); a T wave is searched again in a window of
+/// ±`t_recheck_window_ms` around the global T peak and kept only if its peak
+/// then lies inside the span, else dropped. Returns whether any lead changed
+/// (the global marks must then be combined again).
+fn within_global(
+    las: &[Option<&lead::LeadAnalysis>],
+    per_lead: &mut [Vec<BeatMarks>],
+    global: &[BeatMarks],
+    qrs: &[usize],
+    cfg: &DelineateConfig,
+) -> bool {
+    if !(cfg.lead_p_within_global || cfg.lead_t_within_global) {
+        return false;
+    }
+    // T waves to search again, before they are dropped.
+    let mut redo: Vec<(usize, usize)> = Vec::new();
+    if cfg.lead_t_within_global {
+        for (l, lead) in per_lead.iter().enumerate() {
+            for (i, (b, g)) in lead.iter().zip(global).enumerate() {
+                if global::t_outside(b, g) && g.t_peak.is_some() {
+                    redo.push((l, i));
+                }
+            }
+        }
+    }
+    let changed = global::drop_waves_outside_global(
+        per_lead,
+        global,
+        cfg.lead_p_within_global,
+        cfg.lead_t_within_global,
+    );
+    if !changed {
+        return false;
+    }
+    if cfg.lead_p_within_global {
+        prhythm::fill_weak_p(las, per_lead, cfg);
+    }
+    for (l, i) in redo {
+        let (Some(la), Some(gp)) = (las.get(l).copied().flatten(), global[i].t_peak) else {
+            continue;
+        };
+        let prev = i.checked_sub(1).map(|p| qrs[p]);
+        let next = qrs.get(i + 1).copied();
+        let prev_t_end = i
+            .checked_sub(1)
+            .and_then(|p| per_lead[l][p].t_end_wavelet)
+            .map(|m| m.sample);
+        let again = la.beat(
+            qrs[i],
+            prev,
+            next,
+            prev_t_end,
+            Some((gp.sample, cfg.t_recheck_window_ms)),
+            cfg,
+        );
+        if !global::t_outside(&again, &global[i]) && again.t_peak.is_some() {
+            let b = &mut per_lead[l][i];
+            b.t_on = again.t_on;
+            b.t_peak = again.t_peak;
+            b.t_end = again.t_end;
+            b.t_end_wavelet = again.t_end_wavelet;
+            b.t_end_tangent = again.t_end_tangent;
+            b.t_end_area = again.t_end_area;
+            b.t_morphology = again.t_morphology;
+        }
+    }
+    true
+}
+
 /// Second pass over the T waves of one lead: the T peak should sit about
 /// where the neighbouring beats put it (median offset from the QRS peak over
 /// `global_context_beats` beats either side, common practice that QT changes
@@ -330,11 +403,13 @@ pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig
     prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
     let refs: Vec<Option<&lead::LeadAnalysis>> = las.iter().map(Option::as_ref).collect();
     prhythm::fill_weak_p(&refs, &mut per_lead, cfg);
-    let global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
+    let mut global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
+    if within_global(&refs, &mut per_lead, &global, qrs, cfg) {
+        global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
+    }
     if cfg.lead_marks_within_global {
         global::clip_leads_to_global(&mut per_lead, &global);
     }
-    let mut global = global;
     for b in per_lead.iter_mut().flatten().chain(global.iter_mut()) {
         weigh_t_end_methods(b, fs, cfg);
     }
@@ -421,11 +496,13 @@ pub fn delineate_prepared(
     prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
     let refs: Vec<Option<&lead::LeadAnalysis>> = leads.iter().map(|l| l.la.as_ref()).collect();
     prhythm::fill_weak_p(&refs, &mut per_lead, cfg);
-    let global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
+    let mut global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
+    if within_global(&refs, &mut per_lead, &global, qrs, cfg) {
+        global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
+    }
     if cfg.lead_marks_within_global {
         global::clip_leads_to_global(&mut per_lead, &global);
     }
-    let mut global = global;
     for b in per_lead.iter_mut().flatten().chain(global.iter_mut()) {
         weigh_t_end_methods(b, fs, cfg);
     }

@@ -189,7 +189,10 @@ fn ludb_per_lead_marks_against_cardiologists() {
         // T end 26.7 -> 24.8, P onset 19.8 -> 19.0, P end 19.8 -> 19.1;
         // then global_outlier_max_frac 0.25 (up to three of twelve leads
         // dropped from the global marks): T end 24.8 -> 23.5, tangent
-        // 30.9 -> 29.0, area 28.3 -> 26.4.
+        // 30.9 -> 29.0, area 28.3 -> 26.4; then lead_p_within_global (a
+        // lead P outside the global P span searched again near the other
+        // leads' P): P onset 19.0 -> 17.1, P end 19.1 -> 17.8, P
+        // sensitivity 97.73 -> 97.88 %, PPV 97.92 -> 98.23 %.
         ("qrs_on", 99.8, 5.5, 14.4),
         ("qrs_end", 99.8, 3.1, 17.0),
         // T rows with t_min_slope_mv_per_s 0.3 (more low T waves found: T
@@ -203,10 +206,10 @@ fn ludb_per_lead_marks_against_cardiologists() {
         // P rows with p_fill_fine_peak_ms 30 (flat P waves found at 2^3
         // where the other leads have one: P sensitivity 95.2 -> 97.7 %,
         // the added ones harder: SDs up 0.5-0.6 ms).
-        ("p_sens", 97.5, 0.0, 0.0),
-        ("p_ppv", 97.5, 0.0, 0.0),
-        ("p_on", 99.7, 3.6, 19.5),
-        ("p_end", 99.8, 6.0, 19.5),
+        ("p_sens", 97.6, 0.0, 0.0),
+        ("p_ppv", 97.9, 0.0, 0.0),
+        ("p_on", 99.7, 3.6, 17.6),
+        ("p_end", 99.8, 6.5, 18.3),
     ];
     for (k, sens, mean, sd) in limits {
         let a = &t[k];
