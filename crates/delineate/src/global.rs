@@ -505,6 +505,11 @@ fn outside(peak: Option<Mark>, lo: Option<Mark>, hi: Option<Mark>) -> bool {
     }
 }
 
+/// The lead's P peak lies outside the global P span (onset to end).
+pub(crate) fn p_outside(b: &BeatMarks, g: &BeatMarks) -> bool {
+    outside(b.p_peak, g.p_on, g.p_end)
+}
+
 /// The lead's T peak lies outside the global T span (global T onset, or the
 /// QRS end without one, to the global T end).
 pub(crate) fn t_outside(b: &BeatMarks, g: &BeatMarks) -> bool {
@@ -526,7 +531,7 @@ pub(crate) fn drop_waves_outside_global(
     let mut any = false;
     for lead in per_lead.iter_mut() {
         for (b, g) in lead.iter_mut().zip(global) {
-            if p && outside(b.p_peak, g.p_on, g.p_end) {
+            if p && p_outside(b, g) {
                 b.p_on = None;
                 b.p_peak = None;
                 b.p_end = None;

@@ -145,18 +145,17 @@ fn weigh_t_end_methods(b: &mut BeatMarks, fs: f64, cfg: &DelineateConfig) {
     let orig = [b.t_end_wavelet, b.t_end_tangent, b.t_end_area];
     let weighed = |i: usize| -> Option<Mark> {
         let m = orig[i]?;
-        let others: Vec<Mark> = (0..orig.len())
-            .filter(|&j| j != i)
-            .filter_map(|j| orig[j])
-            .collect();
-        if others.is_empty() {
+        let (mut others, mut near) = (0usize, 0usize);
+        for (j, o) in orig.iter().enumerate() {
+            if let (true, Some(o)) = (j != i, o) {
+                others += 1;
+                near += usize::from((o.sample as f64 - m.sample as f64).abs() <= tol);
+            }
+        }
+        if others == 0 {
             return Some(m);
         }
-        let near = others
-            .iter()
-            .filter(|o| (o.sample as f64 - m.sample as f64).abs() <= tol)
-            .count();
-        let a = near as f64 / others.len() as f64;
+        let a = near as f64 / others as f64;
         Some(Mark {
             sample: m.sample,
             confidence: (m.confidence as f64 * (1.0 - w + w * a)) as f32,
@@ -257,6 +256,17 @@ fn within_global(
             }
         }
     }
+    let mut refill: Vec<(usize, Option<usize>)> = Vec::new();
+    if cfg.lead_p_within_global {
+        for (l, lead) in per_lead.iter().enumerate() {
+            for (i, (b, g)) in lead.iter().zip(global).enumerate() {
+                if global::p_outside(b, g) {
+                    refill.push((i, Some(l)));
+                }
+            }
+        }
+        refill.sort_unstable();
+    }
     let changed = global::drop_waves_outside_global(
         per_lead,
         global,
@@ -266,9 +276,7 @@ fn within_global(
     if !changed {
         return false;
     }
-    if cfg.lead_p_within_global {
-        prhythm::fill_weak_p(las, per_lead, cfg);
-    }
+    prhythm::fill_weak_p_in(las, per_lead, cfg, refill.into_iter());
     for (l, i) in redo {
         let (Some(la), Some(gp)) = (las.get(l).copied().flatten(), global[i].t_peak) else {
             continue;

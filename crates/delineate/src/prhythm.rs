@@ -93,11 +93,22 @@ pub(crate) fn fill_weak_p(
     per_lead: &mut [Vec<BeatMarks>],
     cfg: &DelineateConfig,
 ) {
+    let n = per_lead.iter().map(Vec::len).max().unwrap_or(0);
+    fill_weak_p_in(las, per_lead, cfg, (0..n).map(|b| (b, None)));
+}
+
+/// [`fill_weak_p`] for the given (beat, lead) pairs only (`None`: every lead
+/// of the beat), beats in increasing order.
+pub(crate) fn fill_weak_p_in(
+    las: &[Option<&LeadAnalysis>],
+    per_lead: &mut [Vec<BeatMarks>],
+    cfg: &DelineateConfig,
+    which: impl Iterator<Item = (usize, Option<usize>)>,
+) {
     if cfg.p_fill_window_ms <= 0.0 || per_lead.len() < 2 {
         return;
     }
-    let n = per_lead.iter().map(Vec::len).max().unwrap_or(0);
-    for b in 0..n {
+    for (b, only) in which {
         let mut peaks: Vec<usize> = per_lead
             .iter()
             .filter_map(|l| l.get(b).and_then(|m| m.p_peak))
@@ -108,7 +119,10 @@ pub(crate) fn fill_weak_p(
         }
         peaks.sort_unstable();
         let expect = peaks[peaks.len() / 2];
-        for (l, la) in per_lead.iter_mut().zip(las) {
+        for (k, (l, la)) in per_lead.iter_mut().zip(las).enumerate() {
+            if only.is_some_and(|o| o != k) {
+                continue;
+            }
             let (Some(bm), Some(la)) = (l.get_mut(b), la) else {
                 continue;
             };
