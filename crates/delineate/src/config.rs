@@ -464,12 +464,13 @@ pub struct DelineateConfig {
     /// A lead's P wave whose peak lies outside the global P span (onset to
     /// end) is another deflection (noise, a bump before the QRS): it is
     /// dropped, the lead is searched again near the other leads' P peak
-    /// (`p_fill_*`), and the global marks are combined again. Default on:
-    /// LUDB per-lead P onset SD 18.8 -> 17.1 ms (odd / even records 16.2 ->
-    /// 15.0 / 21.2 -> 19.1), P end 19.1 -> 17.6, P sensitivity 97.31 ->
-    /// 97.45 %, positive predictivity 97.83 -> 98.15 %; QTDB global P within
-    /// 0.1 ms (P end SD 21.4 -> 21.3). (Searching again every lead without
-    /// a P, not only the dropped ones: 97.48 % and 98.08 %.)
+    /// (`p_fill_*`; a P found there outside the span is refused too), and
+    /// the global marks are combined again. Default on: LUDB per-lead P
+    /// onset SD 18.8 -> 17.0 ms (odd / even records 16.2 -> 14.9 / 21.2 ->
+    /// 19.1), P end 19.1 -> 17.6, P sensitivity 97.31 -> 97.39 %, positive
+    /// predictivity 97.83 -> 98.16 %; QTDB global P within 0.1 ms (P end SD
+    /// 21.4 -> 21.3). (Searching again every lead without a P and keeping
+    /// what is found: 97.48 % and 98.08 %.)
     pub lead_p_within_global: bool,
     /// The same for the T wave (span: global T onset, or the QRS end, to the
     /// T end): the lead is searched again within ±`t_recheck_window_ms` of

@@ -276,7 +276,18 @@ fn within_global(
     if !changed {
         return false;
     }
-    prhythm::fill_weak_p_in(las, per_lead, cfg, refill.into_iter());
+    prhythm::fill_weak_p_in(las, per_lead, cfg, refill.iter().copied());
+    // A P found again must lie in the span too (the search window around the
+    // other leads' P may reach the deflection that was dropped).
+    for &(i, l) in &refill {
+        if let Some(b) = l.and_then(|l| per_lead[l].get_mut(i)) {
+            if global::p_outside(b, &global[i]) {
+                b.p_on = None;
+                b.p_peak = None;
+                b.p_end = None;
+            }
+        }
+    }
     for (l, i) in redo {
         let (Some(la), Some(gp)) = (las.get(l).copied().flatten(), global[i].t_peak) else {
             continue;
@@ -691,6 +702,55 @@ mod tests {
                 (qrs[i] as f64 - p - 80.0).abs() <= 5.0,
                 "beat {i}: P peak {p}"
             );
+        }
+    }
+
+    #[test]
+    fn lead_p_outside_the_global_p_is_searched_again_where_the_others_have_it() {
+        let fs = 500.0;
+        let (strong, qrs) = synthetic_lead(0.15, 8);
+        // A third lead with a weak true P (160 ms before the R peak) and a
+        // larger bump 100 ms before the R peak that its own P search takes.
+        let (mut odd, _) = synthetic_lead(0.012, 8);
+        for (i, v) in odd.iter_mut().enumerate() {
+            let t = i as f64 / fs;
+            for &r in &qrs {
+                let c = r as f64 / fs - 0.1;
+                *v += 0.08 * (-(t - c) * (t - c) / (2.0 * 0.012 * 0.012)).exp();
+            }
+        }
+        let leads: Vec<&[f64]> = vec![&strong, &strong, &odd];
+        let inner = 1..qrs.len() - 1;
+        let p_of = |d: &Delineation, i: usize| d.per_lead[2][i].p_peak.map(|m| m.sample as f64);
+        let off = DelineateConfig {
+            lead_p_within_global: false,
+            ..Default::default()
+        };
+        let d = delineate(&leads, fs, &qrs, &off);
+        // Without the rule the third lead keeps the bump (about 50 samples,
+        // 100 ms, before the R peak), outside the global P.
+        for i in inner.clone() {
+            let p = p_of(&d, i).expect("bump taken as P");
+            assert!(
+                (qrs[i] as f64 - p - 50.0).abs() <= 8.0,
+                "beat {i}: P peak {p}"
+            );
+            let g = &d.global[i];
+            assert!(p > g.p_end.unwrap().sample as f64, "beat {i}");
+        }
+        // With it, the lead's P is where the others have theirs (80 samples,
+        // 160 ms, before the R peak) or absent (here the search around the
+        // others' P reaches the bump again, and that is refused too), never
+        // on the bump; the other leads keep theirs.
+        let d = delineate(&leads, fs, &qrs, &DelineateConfig::default());
+        for i in inner {
+            if let Some(p) = p_of(&d, i) {
+                assert!(
+                    (qrs[i] as f64 - p - 80.0).abs() <= 5.0,
+                    "beat {i}: P peak {p}"
+                );
+            }
+            assert!(d.per_lead[0][i].p_peak.is_some(), "beat {i}");
         }
     }
 

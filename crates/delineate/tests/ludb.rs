@@ -191,8 +191,8 @@ fn ludb_per_lead_marks_against_cardiologists() {
         // dropped from the global marks): T end 24.8 -> 23.5, tangent
         // 30.9 -> 29.0, area 28.3 -> 26.4; then lead_p_within_global (a
         // lead P outside the global P span searched again near the other
-        // leads' P): P onset 19.0 -> 17.1, P end 19.1 -> 17.8, P
-        // sensitivity 97.73 -> 97.88 %, PPV 97.92 -> 98.23 %.
+        // leads' P): P onset 19.0 -> 17.0, P end 19.1 -> 17.7, P
+        // sensitivity 97.73 -> 97.79 %, PPV 97.92 -> 98.23 %.
         ("qrs_on", 99.8, 5.5, 14.4),
         ("qrs_end", 99.8, 3.1, 17.0),
         // T rows with t_min_slope_mv_per_s 0.3 (more low T waves found: T
