@@ -242,26 +242,33 @@ def test_beats_match_report():
         assert (r["tp"], r["fn"], r["fp"]) == per[r["record"]], r["record"]
 
 
-def test_qrs_onset_and_t_end_match_report():
-    run, qtdb, report = _paths()
-    glob_sec = report.get("global")
-    assert glob_sec is not None, "report.json has no global section"
+def _paired_beats(run, qtdb, report):
+    """For every record of the report with a `.q1c` reference: (record, fs,
+    reference beats, test beats, paired indices, fiducial window in samples),
+    beats as in `_beats_qrs_on_t_end`, pairs by the report's beat window."""
     bw_ms = report["protocol"]["beat_window_ms"]
     fw_ms = report["protocol"]["fiducial_window_ms"]
-    errs = {"qrs_on": [], "t_end": []}
-    # The same errors record by record, in the report's record order, for the
-    # stability figures (halves and bootstrap over records).
-    per_rec = {"qrs_on": [], "t_end": []}
     for rec in report["records"]:
         if not (qtdb / f"{rec}.q1c").is_file():
             continue
-        for key in per_rec:
-            per_rec[key].append([])
         fs = _fs(qtdb, rec)
         ref = _beats_qrs_on_t_end(qtdb / rec, "q1c", fs)
         test = _beats_qrs_on_t_end(run / "annotations" / rec, "mark", fs)
         pairs = _match([b[0] for b in ref], [b[0] for b in test], _window(bw_ms, fs))
-        fw = _window(fw_ms, fs)
+        yield rec, fs, ref, test, pairs, _window(fw_ms, fs)
+
+
+def test_qrs_onset_and_t_end_match_report():
+    run, qtdb, report = _paths()
+    glob_sec = report.get("global")
+    assert glob_sec is not None, "report.json has no global section"
+    errs = {"qrs_on": [], "t_end": []}
+    # The same errors record by record, in the report's record order, for the
+    # stability figures (halves and bootstrap over records).
+    per_rec = {"qrs_on": [], "t_end": []}
+    for _rec, fs, ref, test, pairs, fw in _paired_beats(run, qtdb, report):
+        for key in per_rec:
+            per_rec[key].append([])
         for i, j in pairs:
             for key, k in (("qrs_on", 1), ("t_end", 2)):
                 r, t = ref[i][k], test[j][k]
@@ -294,20 +301,11 @@ def test_t_end_confidence_quartiles_match_report():
     run, qtdb, report = _paths()
     rows = [r for r in report["global"].get("calibration", []) if r["fiducial"] == "t_end"]
     assert len(rows) == 4, "report.json has no T-end calibration rows"
-    bw_ms = report["protocol"]["beat_window_ms"]
-    fw_ms = report["protocol"]["fiducial_window_ms"]
     pts = []
     with h5py.File(run / "results.h5", "r") as h5:
-        for rec in report["records"]:
-            if not (qtdb / f"{rec}.q1c").is_file():
-                continue
+        for rec, fs, ref, test, pairs, fw in _paired_beats(run, qtdb, report):
             g = h5[f"records/{rec}/marks/global"]
             conf = dict(zip(g["t_end"][:].tolist(), g["t_end_confidence"][:].tolist()))
-            fs = _fs(qtdb, rec)
-            ref = _beats_qrs_on_t_end(qtdb / rec, "q1c", fs)
-            test = _beats_qrs_on_t_end(run / "annotations" / rec, "mark", fs)
-            pairs = _match([b[0] for b in ref], [b[0] for b in test], _window(bw_ms, fs))
-            fw = _window(fw_ms, fs)
             for i, j in pairs:
                 r, t = ref[i][2], test[j][2]
                 if r is not None and t is not None and abs(t - r) <= fw:

@@ -412,19 +412,33 @@ pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig
                 .then(|| lead::LeadAnalysis::new(x, fs, cfg))
         })
         .collect();
-    let mut per_lead: Vec<Vec<BeatMarks>> = las
+    let per_lead: Vec<Vec<BeatMarks>> = las
         .iter()
         .map(|la| match la {
             Some(la) => delineate_analysed(la, fs, qrs, cfg),
             None => vec![BeatMarks::default(); qrs.len()],
         })
         .collect();
-    prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
     let refs: Vec<Option<&lead::LeadAnalysis>> = las.iter().map(Option::as_ref).collect();
-    prhythm::fill_weak_p(&refs, &mut per_lead, cfg);
-    let mut global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
-    if within_global(&refs, &mut per_lead, &global, qrs, cfg) {
-        global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
+    across_leads(&refs, per_lead, qrs, fs, cfg)
+}
+
+/// What follows the single-lead delineation of every lead: P waves dropped
+/// where the PR scatters and searched again where most leads have one, the
+/// global marks, lead waves outside the global span, lead boundaries held to
+/// it, and the method agreement put into the reported T-end confidences.
+fn across_leads(
+    las: &[Option<&lead::LeadAnalysis>],
+    mut per_lead: Vec<Vec<BeatMarks>>,
+    qrs: &[usize],
+    fs: f64,
+    cfg: &DelineateConfig,
+) -> Delineation {
+    prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
+    prhythm::fill_weak_p(las, &mut per_lead, cfg);
+    let mut global = global::combine(&per_lead, las, qrs.len(), fs, cfg);
+    if within_global(las, &mut per_lead, &global, qrs, cfg) {
+        global = global::combine(&per_lead, las, qrs.len(), fs, cfg);
     }
     if cfg.lead_marks_within_global {
         global::clip_leads_to_global(&mut per_lead, &global);
@@ -487,7 +501,7 @@ pub fn delineate_prepared(
     cfg: &DelineateConfig,
 ) -> Delineation {
     let wanted = |i: usize| want.get(i).copied().unwrap_or(false);
-    let mut per_lead: Vec<Vec<BeatMarks>> = leads
+    let per_lead: Vec<Vec<BeatMarks>> = leads
         .iter()
         .map(|pl| {
             let mut out = vec![BeatMarks::default(); qrs.len()];
@@ -512,20 +526,8 @@ pub fn delineate_prepared(
         })
         .collect();
     let fs = leads.first().map_or(1.0, |l| l.fs);
-    prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
     let refs: Vec<Option<&lead::LeadAnalysis>> = leads.iter().map(|l| l.la.as_ref()).collect();
-    prhythm::fill_weak_p(&refs, &mut per_lead, cfg);
-    let mut global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
-    if within_global(&refs, &mut per_lead, &global, qrs, cfg) {
-        global = global::combine(&per_lead, &refs, qrs.len(), fs, cfg);
-    }
-    if cfg.lead_marks_within_global {
-        global::clip_leads_to_global(&mut per_lead, &global);
-    }
-    for b in per_lead.iter_mut().flatten().chain(global.iter_mut()) {
-        weigh_t_end_methods(b, fs, cfg);
-    }
-    Delineation { per_lead, global }
+    across_leads(&refs, per_lead, qrs, fs, cfg)
 }
 
 /// Beats on either side of a beat that [`delineate_prepared`] must also
