@@ -1,7 +1,7 @@
 //! Combination of per-lead marks into one set of global marks per beat.
 
 use crate::lead::LeadAnalysis;
-use crate::{BeatMarks, DelineateConfig, Mark, PairRule, TEndMethod, TMorphology};
+use crate::{BeatMarks, DelineateConfig, Mark, PairRule, TMorphology};
 
 /// Which end of the spread a boundary takes.
 #[derive(Clone, Copy, PartialEq)]
@@ -433,11 +433,7 @@ pub(crate) fn combine(
             g.t_end_wavelet = t_end_of(&|m| m.t_end_wavelet);
             g.t_end_tangent = t_end_of(&|m| m.t_end_tangent);
             g.t_end_area = t_end_of(&|m| m.t_end_area);
-            g.t_end = match cfg.t_end_method {
-                TEndMethod::Wavelet => g.t_end_wavelet,
-                TEndMethod::Tangent => g.t_end_tangent,
-                TEndMethod::Area => g.t_end_area,
-            };
+            g.t_end = g.t_end_by_method();
             let t_peaks = gather_l(&|m| m.t_peak);
             // With the consistency rule, the T peak comes from the lead whose
             // peak lies nearest the neighbouring beats' pattern.
@@ -474,11 +470,7 @@ pub(crate) fn combine(
                     g.t_end_wavelet = g.t_end_wavelet.or(after(own.t_end_wavelet));
                     g.t_end_tangent = g.t_end_tangent.or(after(own.t_end_tangent));
                     g.t_end_area = g.t_end_area.or(after(own.t_end_area));
-                    g.t_end = match cfg.t_end_method {
-                        TEndMethod::Wavelet => g.t_end_wavelet,
-                        TEndMethod::Tangent => g.t_end_tangent,
-                        TEndMethod::Area => g.t_end_area,
-                    };
+                    g.t_end = g.t_end_by_method();
                 }
             } else if let Some((l, _)) = best_lead(&gather_l(&|m| m.t_end)) {
                 g.t_morphology = beats[l].t_morphology;
@@ -519,9 +511,10 @@ pub(crate) fn t_outside(b: &BeatMarks, g: &BeatMarks) -> bool {
 /// Drops the P wave (`p`) and the T wave (`t`) of a lead whose peak lies
 /// outside the global span of that wave (P: global P onset to P end; T:
 /// global T onset, or the QRS end without one, to the T end): the leads agree
-/// on where the one atrial or ventricular recovery wave of the beat is, and a
-/// lead peak outside it is another deflection (noise, a U wave, the P of the
-/// next beat). Returns whether any wave was dropped.
+/// on where the beat's one atrial depolarisation (P) or ventricular
+/// repolarisation (T) wave is, and a lead peak outside it is another
+/// deflection (noise, a U wave, the P of the next beat). Returns whether any
+/// wave was dropped.
 pub(crate) fn drop_waves_outside_global(
     per_lead: &mut [Vec<BeatMarks>],
     global: &[BeatMarks],
@@ -582,11 +575,7 @@ pub(crate) fn clip_leads_to_global(per_lead: &mut [Vec<BeatMarks>], global: &[Be
             end(&mut b.t_end_wavelet, g.t_end_wavelet, b.t_peak);
             end(&mut b.t_end_tangent, g.t_end_tangent, b.t_peak);
             end(&mut b.t_end_area, g.t_end_area, b.t_peak);
-            b.t_end = match b.t_end_method {
-                TEndMethod::Wavelet => b.t_end_wavelet,
-                TEndMethod::Tangent => b.t_end_tangent,
-                TEndMethod::Area => b.t_end_area,
-            };
+            b.t_end = b.t_end_by_method();
         }
     }
 }

@@ -9,7 +9,7 @@
 
 use tendline_dsp::wavelet::swt_quadratic_spline_flat_ends;
 
-use crate::{BeatMarks, DelineateConfig, Mark, TEndMethod, TMorphology};
+use crate::{BeatMarks, DelineateConfig, Mark, TMorphology};
 
 /// How [`LeadAnalysis::find_wave`] picks the lobes of a P or T wave.
 #[derive(Debug, Clone, Copy)]
@@ -974,11 +974,7 @@ impl LeadAnalysis {
                     bm.t_end_area = self.mark(Some(kk as f64), tconf);
                 }
             }
-            bm.t_end = match cfg.t_end_method {
-                TEndMethod::Wavelet => bm.t_end_wavelet,
-                TEndMethod::Tangent => bm.t_end_tangent,
-                TEndMethod::Area => bm.t_end_area,
-            };
+            bm.t_end = bm.t_end_by_method();
         }
 
         // ---- P wave at scale 2^4 before the QRS onset.

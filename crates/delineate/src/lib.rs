@@ -105,6 +105,18 @@ pub struct BeatMarks {
     pub t_morphology: TMorphology,
 }
 
+impl BeatMarks {
+    /// The T end of the beat's own method (`t_end_method`), the value `t_end`
+    /// holds.
+    pub fn t_end_by_method(&self) -> Option<Mark> {
+        match self.t_end_method {
+            TEndMethod::Wavelet => self.t_end_wavelet,
+            TEndMethod::Tangent => self.t_end_tangent,
+            TEndMethod::Area => self.t_end_area,
+        }
+    }
+}
+
 /// Per-lead and global marks of a record.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct Delineation {
@@ -164,11 +176,7 @@ fn weigh_t_end_methods(b: &mut BeatMarks, fs: f64, cfg: &DelineateConfig) {
     b.t_end_wavelet = weighed(0);
     b.t_end_tangent = weighed(1);
     b.t_end_area = weighed(2);
-    b.t_end = match b.t_end_method {
-        TEndMethod::Wavelet => b.t_end_wavelet,
-        TEndMethod::Tangent => b.t_end_tangent,
-        TEndMethod::Area => b.t_end_area,
-    };
+    b.t_end = b.t_end_by_method();
 }
 
 /// Marks of beat `i` of `qrs` on one lead, equal to
