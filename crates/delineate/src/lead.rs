@@ -9,7 +9,7 @@
 
 use tendline_dsp::wavelet::swt_quadratic_spline_flat_ends;
 
-use crate::{BeatMarks, DelineateConfig, Mark, TMorphology};
+use crate::{BeatMarks, DelineateConfig, Mark, PeakCrossing, TMorphology};
 
 /// How [`LeadAnalysis::find_wave`] picks the lobes of a P or T wave.
 #[derive(Debug, Clone, Copy)]
@@ -29,6 +29,8 @@ struct WaveRule {
     /// When set, the outer lobe of a three-lobe wave is kept only if
     /// [`OuterCheck`] confirms it.
     outer_check: Option<OuterCheck>,
+    /// Which sign change of W_k between the dominant pair is the peak.
+    peak_crossing: PeakCrossing,
 }
 
 /// Confirmation of the outer (third) lobe of a biphasic wave: it must be
@@ -362,6 +364,7 @@ impl LeadAnalysis {
             lone_peak,
             early_frac,
             outer_check,
+            peak_crossing,
         } = *rule;
         // Maxima further than `reach` samples from the largest one belong to
         // another wave.
@@ -453,7 +456,12 @@ impl LeadAnalysis {
             Some(false) => TMorphology::BiphasicNegPos,
             None => morph_pair(idx[0]),
         };
-        let peak = Self::zero_cross(w, pair.0, pair.1);
+        let peak = match peak_crossing {
+            PeakCrossing::BesideLargerLimb if w[pair.1].abs() >= w[pair.0].abs() => {
+                Self::zero_cross_back(w, pair.0, pair.1).map(|n| n + 1)
+            }
+            _ => Self::zero_cross(w, pair.0, pair.1),
+        };
         Some(Lobes {
             idx,
             peak,
@@ -838,6 +846,7 @@ impl LeadAnalysis {
                     lone_peak: cfg.t_peak_from_one_limb,
                     early_frac: cfg.t_early_pair_frac,
                     outer_check: None,
+                    peak_crossing: cfg.t_peak_crossing,
                 };
                 if let Some(l) = self.find_wave(k, t_lo, t_hi, &rule) {
                     let slope = l.amp / (1u32 << k) as f64 * self.fs_a;
@@ -1042,6 +1051,7 @@ impl LeadAnalysis {
                 min_slope_mv_per_s: cfg.p_min_slope_mv_per_s,
                 max_quiet: self.ms_i(cfg.p_outer_max_quiet_ms) as usize,
             }),
+            peak_crossing: PeakCrossing::First,
         }
     }
 
@@ -1529,6 +1539,75 @@ mod tests {
             })
             .collect();
         LeadAnalysis::new(&x, fs, &DelineateConfig::default())
+    }
+
+    /// A low inverted T wave (invented shape for this test): a slow, shallow
+    /// descent from 0.40 s with a small hump on it, then a steep return
+    /// through the trough at about 1.13 s. Between the weak descending limb
+    /// and the strong ascending one W_4 changes sign three times; the hump is
+    /// not the wave's summit.
+    #[test]
+    fn t_peak_sits_beside_the_steep_limb_past_a_wiggle() {
+        let step = |t: f64, t0: f64, d: f64, a: f64| {
+            a * if t < t0 {
+                0.0
+            } else if t > t0 + d {
+                1.0
+            } else {
+                0.5 * (1.0 - (std::f64::consts::PI * (t - t0) / d).cos())
+            }
+        };
+        let x: Vec<f64> = (0..500)
+            .map(|i| {
+                let t = i as f64 / 250.0;
+                step(t, 0.40, 0.20, -0.10)
+                    + step(t, 0.60, 0.10, 0.03)
+                    + step(t, 0.70, 0.24, -0.10)
+                    + step(t, 0.95, 0.12, 0.17)
+            })
+            .collect();
+        let la = LeadAnalysis::new(&x, 250.0, &DelineateConfig::default());
+        let cfg = DelineateConfig::default();
+        let trough = (100..400)
+            .min_by(|&p, &q| la.x[p].total_cmp(&la.x[q]))
+            .unwrap();
+        let rule = |c| WaveRule {
+            gamma: cfg.t_gamma,
+            biphasic_frac: cfg.t_biphasic_frac,
+            three_lobe_bounds: cfg.t_biphasic_outer_bounds,
+            reach: la.ms_i(cfg.t_lobe_reach_ms) as usize,
+            lone_peak: cfg.t_peak_from_one_limb,
+            early_frac: cfg.t_early_pair_frac,
+            outer_check: None,
+            peak_crossing: c,
+        };
+        let first = la
+            .find_wave(4, 90, 320, &rule(PeakCrossing::First))
+            .unwrap();
+        let beside = la
+            .find_wave(4, 90, 320, &rule(PeakCrossing::BesideLargerLimb))
+            .unwrap();
+        // Both rules take the same pair: the larger descending lobe, before
+        // the hump, and the ascending limb.
+        assert_eq!(first.idx, beside.idx);
+        assert!(
+            first.idx[0] < 150 && first.idx[1] > trough,
+            "{:?}",
+            first.idx
+        );
+        let (f, b) = (first.peak.unwrap(), beside.peak.unwrap());
+        assert!(b.abs_diff(trough) <= 3, "beside {b}, trough {trough}");
+        assert!(f + 50 < trough, "first {f}, trough {trough}");
+        // A plain symmetric wave: one crossing, both rules agree on the summit.
+        let plain = pulses(&[(0.5, 0.4, 0.3)]);
+        let p1 = plain
+            .find_wave(4, 90, 320, &rule(PeakCrossing::First))
+            .unwrap();
+        let p2 = plain
+            .find_wave(4, 90, 320, &rule(PeakCrossing::BesideLargerLimb))
+            .unwrap();
+        assert_eq!(p1.peak, p2.peak);
+        assert!(p1.peak.unwrap().abs_diff(175) <= 2, "{:?}", p1.peak);
     }
 
     /// P end (analysis samples) from the last lobe of the P window's wave at

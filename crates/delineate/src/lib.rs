@@ -51,7 +51,7 @@ mod global;
 mod lead;
 mod prhythm;
 
-pub use config::{DelineateConfig, PairRule};
+pub use config::{DelineateConfig, PairRule, PeakCrossing};
 
 use serde::{Deserialize, Serialize};
 

@@ -199,7 +199,8 @@ fn ludb_per_lead_marks_against_cardiologists() {
         // sensitivity 98.9 %, the added ones harder: SDs up 0.3-0.6 ms).
         ("t_sens", 98.6, 0.0, 0.0),
         ("t_ppv", 98.8, 0.0, 0.0),
-        ("t_peak", 99.6, 1.3, 23.0),
+        // T peak with t_peak_crossing beside_larger_limb: SD 22.8 -> 22.4.
+        ("t_peak", 99.6, 1.3, 22.7),
         ("t_end", 99.8, 1.5, 24.2),
         ("t_end_tangent", 93.8, 4.2, 29.6),
         ("t_end_area", 99.8, 3.4, 27.1),
