@@ -1581,12 +1581,15 @@ mod tests {
             outer_check: None,
             peak_crossing: c,
         };
-        let first = la
-            .find_wave(4, 90, 320, &rule(PeakCrossing::First))
-            .unwrap();
-        let beside = la
-            .find_wave(4, 90, 320, &rule(PeakCrossing::BesideLargerLimb))
-            .unwrap();
+        // The wave in 0.36-1.28 s at 2^4 under each rule.
+        let both = |a: &LeadAnalysis| {
+            let find = |c| a.find_wave(4, 90, 320, &rule(c)).unwrap();
+            (
+                find(PeakCrossing::First),
+                find(PeakCrossing::BesideLargerLimb),
+            )
+        };
+        let (first, beside) = both(&la);
         // Both rules take the same pair: the larger descending lobe, before
         // the hump, and the ascending limb.
         assert_eq!(first.idx, beside.idx);
@@ -1600,12 +1603,7 @@ mod tests {
         assert!(f + 50 < trough, "first {f}, trough {trough}");
         // A plain symmetric wave: one crossing, both rules agree on the summit.
         let plain = pulses(&[(0.5, 0.4, 0.3)]);
-        let p1 = plain
-            .find_wave(4, 90, 320, &rule(PeakCrossing::First))
-            .unwrap();
-        let p2 = plain
-            .find_wave(4, 90, 320, &rule(PeakCrossing::BesideLargerLimb))
-            .unwrap();
+        let (p1, p2) = both(&plain);
         assert_eq!(p1.peak, p2.peak);
         assert!(p1.peak.unwrap().abs_diff(175) <= 2, "{:?}", p1.peak);
     }
