@@ -197,11 +197,14 @@ fn ludb_per_lead_marks_against_cardiologists() {
         ("qrs_end", 99.8, 3.1, 17.0),
         // T rows with t_min_slope_mv_per_s 0.3 (more low T waves found: T
         // sensitivity 98.9 %, the added ones harder: SDs up 0.3-0.6 ms).
-        ("t_sens", 98.6, 0.0, 0.0),
-        ("t_ppv", 98.8, 0.0, 0.0),
-        // T peak with t_peak_crossing beside_larger_limb: SD 22.8 -> 22.4.
-        ("t_peak", 99.6, 1.3, 22.7),
-        ("t_end", 99.8, 1.5, 24.2),
+        // T peak with t_peak_crossing beside_larger_limb: SD 22.8 -> 22.4;
+        // then t_recheck_ms 80 (a T peak far from the neighbours' searched
+        // again there): T sensitivity 98.86 -> 99.04 %, PPV 98.97 -> 99.15 %,
+        // T peak SD 22.4 -> 21.9, T end 23.45 -> 23.1.
+        ("t_sens", 98.8, 0.0, 0.0),
+        ("t_ppv", 98.9, 0.0, 0.0),
+        ("t_peak", 99.6, 1.3, 22.3),
+        ("t_end", 99.8, 1.5, 23.6),
         ("t_end_tangent", 93.8, 4.2, 29.6),
         ("t_end_area", 99.8, 3.4, 27.1),
         // P rows with p_fill_fine_peak_ms 30 (flat P waves found at 2^3

@@ -23,9 +23,10 @@ fn check(rec: &str, cfg: &DelineateConfig) {
     let all = delineate_prepared(&prepared, &beats, &vec![true; beats.len()], cfg);
     assert_eq!(all, full, "{rec}: every beat wanted");
 
-    // Every 37th beat as a target, with its margin.
+    // Every 37th beat as a target (further apart when the margins would
+    // touch), with its margin.
     let m = context_margin(cfg);
-    let targets: Vec<usize> = (5..beats.len()).step_by(37).collect();
+    let targets: Vec<usize> = (5..beats.len()).step_by(37.max(2 * m + 3)).collect();
     let mut want = vec![false; beats.len()];
     for &t in &targets {
         for w in want

@@ -150,19 +150,22 @@ fn qtdb_global_marks_against_annotator_1() {
         // T peak and T ends with `t_window_early_after_qrs_end_ms` 20: T peak
         // Se 99.72 %, mean 5.1, SD 36.8 ms; T end Se 99.66 %, mean 0.3, SD
         // 36.9 ms; tangent mean -6.3, SD 44.2 ms; area mean 1.8, SD 42.3 ms.
-        ("t_peak", 99.5, 5.4, 37.0),
+        // With `t_recheck_ms` 80 (a T peak far from the neighbours' searched
+        // again there): T peak mean 7.96, SD 35.5 ms; T end mean 2.33, SD
+        // 36.2 ms; tangent mean -4.2, SD 43.0 ms; area mean 4.4, SD 42.2 ms.
+        ("t_peak", 99.5, 8.3, 36.0),
         // T ends with `global_t_upright_bonus_ms` 80 and `t_min_slope_mv_per_s`
         // 0.3: wavelet mean 1.1, SD 37.1 ms, tangent SD 44.5 ms, area mean
         // 3.0 ms (this test's matching, not the report's). With the peak
         // lead's end kept for a T peak without a confident end
         // (`global_t_end_from_peak_lead`): mean 0.26, SD 37.31 ms; tangent
         // mean -6.30, SD 44.51 ms.
-        ("t_end", 99.5, 0.6, 37.5),
-        ("t_end_wavelet", 99.5, 0.6, 37.5),
-        ("t_end_tangent", 97.7, 6.5, 44.7),
+        ("t_end", 99.5, 2.6, 36.5),
+        ("t_end_wavelet", 99.5, 2.6, 36.5),
+        ("t_end_tangent", 97.7, 6.5, 43.4),
         // The area T end moved with the later QRS ends (the T window starts
         // after them): SD 43.17 -> 43.32 ms.
-        ("t_end_area", 99.5, 2.1, 42.5),
+        ("t_end_area", 99.5, 4.7, 42.5),
     ];
     for (k, sens, mean, sd) in limits {
         let a = &t[k];

@@ -478,3 +478,75 @@ fn t_wave_read_from_its_final_limb_has_a_peak_and_an_end() {
         assert!(b.t_on.is_none());
     }
 }
+
+/// One beat of a steady train carries an extra sharp deflection late in its
+/// T window (invented for this test, like a premature P riding there). The
+/// first pass takes it for that beat's T wave; the second pass
+/// (`t_recheck_ms`) finds the T where the neighbouring beats have theirs
+/// (common practice: QT changes little from beat to beat at a steady rate)
+/// and replaces only the T marks.
+#[test]
+fn t_recheck_finds_the_t_where_the_neighbours_have_it() {
+    let fs = 250.0;
+    let rr = 1000.0;
+    let (mut x, rs) = synth(fs, 12, rr, &all_waves(0.3));
+    let odd = 6;
+    let bump = Wave {
+        amp: 0.4,
+        at_ms: 490.0,
+        sigma_ms: 8.0,
+    };
+    let (b, _) = synth(fs, 1, rr, &[bump]);
+    let shift = rs[odd] - rs[0];
+    for (i, v) in b.iter().enumerate() {
+        if let Some(xi) = x.get_mut(i + shift) {
+            *xi += v;
+        }
+    }
+    let off = DelineateConfig {
+        t_recheck_ms: 0.0,
+        ..DelineateConfig::default()
+    };
+    let on = DelineateConfig::default();
+    assert!(on.t_recheck_ms > 0.0);
+    let first = delineate_lead(&x, fs, &rs, &off);
+    let second = delineate_lead(&x, fs, &rs, &on);
+    let r = rs[odd];
+    print(&first[odd], r, fs);
+    print(&second[odd], r, fs);
+    let t = t_wave(0.3).at_ms;
+    let pk0 = rel(first[odd].t_peak, r, fs);
+    let pk1 = rel(second[odd].t_peak, r, fs);
+    assert!(
+        (pk0 - t).abs() > on.t_recheck_ms,
+        "first pass T peak {pk0} ms"
+    );
+    assert!((pk1 - t).abs() <= 8.0, "second pass T peak {pk1} ms");
+    assert_eq!(second[odd].t_morphology, TMorphology::Upright);
+    // P and QRS marks are the first pass's; the other beats are untouched.
+    let b0 = &first[odd];
+    let b1 = &second[odd];
+    assert_eq!(
+        (
+            b0.p_on,
+            b0.p_peak,
+            b0.p_end,
+            b0.qrs_on,
+            b0.qrs_peak,
+            b0.qrs_end
+        ),
+        (
+            b1.p_on,
+            b1.p_peak,
+            b1.p_end,
+            b1.qrs_on,
+            b1.qrs_peak,
+            b1.qrs_end
+        )
+    );
+    for (i, (a, b)) in first.iter().zip(&second).enumerate() {
+        if i != odd {
+            assert_eq!(a, b, "beat {i}");
+        }
+    }
+}
