@@ -115,6 +115,19 @@ impl BeatMarks {
             TEndMethod::Area => self.t_end_area,
         }
     }
+
+    /// Take the T wave of `other` (onset, peak, every end, morphology),
+    /// keeping this beat's P and QRS marks: what a second T search changes.
+    fn take_t_marks(&mut self, other: &BeatMarks) {
+        self.t_on = other.t_on;
+        self.t_peak = other.t_peak;
+        self.t_end = other.t_end;
+        self.t_end_method = other.t_end_method;
+        self.t_end_wavelet = other.t_end_wavelet;
+        self.t_end_tangent = other.t_end_tangent;
+        self.t_end_area = other.t_end_area;
+        self.t_morphology = other.t_morphology;
+    }
 }
 
 /// Per-lead and global marks of a record.
@@ -315,14 +328,7 @@ fn within_global(
             cfg,
         );
         if !global::t_outside(&again, &global[i]) && again.t_peak.is_some() {
-            let b = &mut per_lead[l][i];
-            b.t_on = again.t_on;
-            b.t_peak = again.t_peak;
-            b.t_end = again.t_end;
-            b.t_end_wavelet = again.t_end_wavelet;
-            b.t_end_tangent = again.t_end_tangent;
-            b.t_end_area = again.t_end_area;
-            b.t_morphology = again.t_morphology;
+            per_lead[l][i].take_t_marks(&again);
         }
     }
     true
@@ -411,15 +417,7 @@ fn recheck_t(
             // T end, which this pass may have moved: QTDB P-onset
             // sensitivity fell from 96.62 to 96.40 % when the whole beat was
             // replaced).
-            let b = &mut out[i];
-            b.t_on = again.t_on;
-            b.t_peak = again.t_peak;
-            b.t_end = again.t_end;
-            b.t_end_method = again.t_end_method;
-            b.t_end_wavelet = again.t_end_wavelet;
-            b.t_end_tangent = again.t_end_tangent;
-            b.t_end_area = again.t_end_area;
-            b.t_morphology = again.t_morphology;
+            out[i].take_t_marks(&again);
         }
     }
 }
