@@ -1543,7 +1543,7 @@ mod tests {
 
     /// A low inverted T wave (invented shape for this test): a slow, shallow
     /// descent from 0.40 s with a small hump on it, then a steep return
-    /// through the trough at about 1.13 s. Between the weak descending limb
+    /// from the trough at about 0.94 s. Between the weak descending limb
     /// and the strong ascending one W_4 changes sign three times; the hump is
     /// not the wave's summit.
     #[test]
@@ -1566,8 +1566,8 @@ mod tests {
                     + step(t, 0.95, 0.12, 0.17)
             })
             .collect();
-        let la = LeadAnalysis::new(&x, 250.0, &DelineateConfig::default());
         let cfg = DelineateConfig::default();
+        let la = LeadAnalysis::new(&x, 250.0, &cfg);
         let trough = (100..400)
             .min_by(|&p, &q| la.x[p].total_cmp(&la.x[q]))
             .unwrap();
