@@ -258,7 +258,19 @@ fn envelope_qrs(
     let pk = *peaks.select_nth_unstable(mid).1 as f64 / ratio;
     let fs_a = cfg.analysis_fs_hz;
     let lo = (pk - cfg.qrs_pre_ms * fs_a / 1000.0).round().max(0.0) as usize;
-    let hi = ((pk + cfg.qrs_post_ms * fs_a / 1000.0).round() as usize).min(n - 1);
+    // A lead whose complex went on past `qrs_post_ms` (wide complexes, see
+    // `qrs_post_wide_ms`) widens the envelope's window the same way.
+    let post_std = pk + cfg.qrs_post_ms * fs_a / 1000.0;
+    let wide = per_lead
+        .iter()
+        .filter_map(|l| l.get(b).and_then(|m| m.qrs_end))
+        .any(|m| m.sample as f64 / ratio > post_std);
+    let post = if wide {
+        cfg.qrs_post_ms.max(cfg.qrs_post_wide_ms)
+    } else {
+        cfg.qrs_post_ms
+    };
+    let hi = ((pk + post * fs_a / 1000.0).round() as usize).min(n - 1);
     let pk = (pk.round() as usize).min(n - 1);
     if hi <= lo {
         return (None, None);

@@ -673,15 +673,25 @@ impl LeadAnalysis {
         // Significant maxima of the complex.
         let mut region_lo = peak as isize - self.ms_i(cfg.qrs_pre_ms);
         let mut region_hi = peak as isize + self.ms_i(cfg.qrs_post_ms);
+        let mut wide_hi = peak as isize + self.ms_i(cfg.qrs_post_wide_ms);
         if let Some(p) = prev_a {
             region_lo = region_lo.max((p + peak as isize) / 2);
         }
         if let Some(q) = next_a {
             region_hi = region_hi.min((q + peak as isize) / 2);
+            wide_hi = wide_hi.min((q + peak as isize) / 2);
         }
-        let ext: Vec<usize> = Self::extrema(w2, region_lo, region_hi)
+        let wide_hi = wide_hi.max(region_hi);
+        let ext_all: Vec<usize> = Self::extrema(w2, region_lo, wide_hi)
             .into_iter()
             .filter(|&e| !masked(e as isize, &spikes))
+            .collect();
+        // The complex's largest maximum is taken within the usual region
+        // only: past it lie the ST segment and T wave.
+        let ext: Vec<usize> = ext_all
+            .iter()
+            .copied()
+            .filter(|&e| e as isize <= region_hi)
             .collect();
         let m_all = ext.iter().map(|&e| w2[e].abs()).fold(qrs_amp, f64::max);
         // Walk outward from the main pair through significant maxima no more
@@ -715,8 +725,16 @@ impl LeadAnalysis {
         }
         let mut last = p2;
         let mut chain_post = vec![p2];
-        for &e in ext.iter().filter(|&&e| e > p2) {
+        for &e in ext_all.iter().filter(|&&e| e > p2) {
             if e - last > gap.max(wide_gap) {
+                break;
+            }
+            // Past the usual region only large slopes, well above the
+            // lead's noise: the final limb of a wide complex.
+            if e as isize > region_hi
+                && (w2[e].abs() <= cfg.qrs_wide_frac_post * m_all
+                    || w2[e].abs() <= cfg.qrs_post_wide_noise_k * self.noise(2))
+            {
                 break;
             }
             if joins(
@@ -786,7 +804,12 @@ impl LeadAnalysis {
             cfg.qrs_xi_end_neg
         };
         let end_thr = (xi_end * w2[last].abs()).max(cfg.qrs_xi_end_rel * m_all);
-        let qrs_end = Self::search_fwd_thr(w2, last, end_thr, qsearch, region_hi + qsearch);
+        let end_hi = if last as isize > region_hi {
+            wide_hi
+        } else {
+            region_hi
+        };
+        let qrs_end = Self::search_fwd_thr(w2, last, end_thr, qsearch, end_hi + qsearch);
         bm.qrs_on = self.mark(qrs_on, qrs_conf);
         bm.qrs_end = self.mark(qrs_end, qrs_conf);
 

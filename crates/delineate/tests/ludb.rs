@@ -194,7 +194,9 @@ fn ludb_per_lead_marks_against_cardiologists() {
         // leads' P): P onset 19.0 -> 17.0, P end 19.1 -> 17.7, P
         // sensitivity 97.73 -> 97.79 %, PPV 97.92 -> 98.23 %.
         ("qrs_on", 99.8, 5.5, 14.4),
-        ("qrs_end", 99.8, 3.1, 17.0),
+        // QRS end with the wide-complex extension (`qrs_post_wide_ms` 160):
+        // mean -2.88 -> -2.27 ms, SD 16.54 -> 15.80 ms.
+        ("qrs_end", 99.8, 3.1, 16.1),
         // T rows with t_min_slope_mv_per_s 0.3 (more low T waves found: T
         // sensitivity 98.9 %, the added ones harder: SDs up 0.3-0.6 ms).
         // T peak with t_peak_crossing beside_larger_limb: SD 22.8 -> 22.4;

@@ -550,3 +550,70 @@ fn t_recheck_finds_the_t_where_the_neighbours_have_it() {
         }
     }
 }
+
+#[test]
+fn wide_complex_ends_after_its_final_limb() {
+    // A wide complex (paced or bundle-branch-block-like, invented for the
+    // test): a sharp R, then a broad S wave centred 110 ms after it whose
+    // rising limb has its W_2 maximum about 133 ms after the R, past the
+    // `qrs_post_ms` limit of narrow complexes. The QRS end belongs after
+    // that limb (the `qrs_xi_end_pos` boundary of the S Gaussian); with the
+    // wide-complex extension off it falls at the S trough.
+    let fs = 250.0;
+    let r_wave = Wave {
+        amp: 1.2,
+        at_ms: 0.0,
+        sigma_ms: 8.0,
+    };
+    let s_wave = Wave {
+        amp: -1.0,
+        at_ms: 110.0,
+        sigma_ms: 22.0,
+    };
+    let t = Wave {
+        amp: 0.35,
+        at_ms: 420.0,
+        sigma_ms: 40.0,
+    };
+    let (x, rs) = synth(fs, 6, 1000.0, &[p_wave(), r_wave, s_wave, t]);
+    let on = DelineateConfig::default();
+    assert!(on.qrs_post_wide_ms > on.qrs_post_ms);
+    let off = DelineateConfig {
+        qrs_post_wide_ms: 0.0,
+        ..on.clone()
+    };
+    let want = xi_boundary(s_wave, 2, on.qrs_xi_end_pos, 1.0);
+    // Both leads alike, so the global mark goes through the multi-lead
+    // envelope check too.
+    let d_on = delineate(&[&x, &x], fs, &rs, &on);
+    let d_off = delineate(&[&x, &x], fs, &rs, &off);
+    for i in 1..rs.len() - 1 {
+        let r = rs[i];
+        print(&d_on.per_lead[0][i], r, fs);
+        print(&d_off.per_lead[0][i], r, fs);
+        near(
+            rel(d_on.per_lead[0][i].qrs_end, r, fs),
+            want,
+            fs,
+            "lead qrs end (wide)",
+        );
+        near(
+            rel(d_on.global[i].qrs_end, r, fs),
+            want,
+            fs,
+            "global qrs end (wide)",
+        );
+        let cut = rel(d_off.per_lead[0][i].qrs_end, r, fs);
+        assert!(
+            cut < s_wave.at_ms + 12.0,
+            "without the extension the end should stop near the S trough: {cut} ms"
+        );
+        // The T wave is still found where it is.
+        near(
+            rel(d_on.global[i].t_peak, r, fs),
+            t.at_ms,
+            fs,
+            "t peak (wide)",
+        );
+    }
+}
