@@ -587,8 +587,7 @@ fn wide_complex_ends_after_its_final_limb() {
     // envelope check too.
     let d_on = delineate(&[&x, &x], fs, &rs, &on);
     let d_off = delineate(&[&x, &x], fs, &rs, &off);
-    for i in 1..rs.len() - 1 {
-        let r = rs[i];
+    for (i, &r) in rs.iter().enumerate().take(rs.len() - 1).skip(1) {
         print(&d_on.per_lead[0][i], r, fs);
         print(&d_off.per_lead[0][i], r, fs);
         near(
