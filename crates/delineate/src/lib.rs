@@ -254,8 +254,10 @@ fn delineate_analysed(
 /// `lead_t_within_global`): a P wave is dropped and searched again near the
 /// other leads' P peak (`p_fill_*`); a T wave is searched again in a window of
 /// ±`t_recheck_window_ms` around the global T peak and kept only if its peak
-/// then lies inside the span, else dropped. Returns whether any lead changed
-/// (the global marks must then be combined again).
+/// then lies inside the span, else dropped. With `lead_t_near_global` instead,
+/// the T wave found again replaces the lead's T marks if its peak is nearer
+/// the global T peak, and nothing is dropped. Returns whether any lead
+/// changed (the global marks must then be combined again).
 fn within_global(
     las: &[Option<&lead::LeadAnalysis>],
     per_lead: &mut [Vec<BeatMarks>],
@@ -263,12 +265,15 @@ fn within_global(
     qrs: &[usize],
     cfg: &DelineateConfig,
 ) -> bool {
-    if !(cfg.lead_p_within_global || cfg.lead_t_within_global) {
+    // Without `lead_t_within_global` (drop), `lead_t_near_global` searches
+    // the same T waves again but only moves them.
+    let near = cfg.lead_t_near_global && !cfg.lead_t_within_global;
+    if !(cfg.lead_p_within_global || cfg.lead_t_within_global || near) {
         return false;
     }
     // T waves to search again, before they are dropped.
     let mut redo: Vec<(usize, usize)> = Vec::new();
-    if cfg.lead_t_within_global {
+    if cfg.lead_t_within_global || near {
         for (l, lead) in per_lead.iter().enumerate() {
             for (i, (b, g)) in lead.iter().zip(global).enumerate() {
                 if global::t_outside(b, g) && g.t_peak.is_some() {
@@ -294,9 +299,10 @@ fn within_global(
         cfg.lead_p_within_global,
         cfg.lead_t_within_global,
     );
-    if !changed {
+    if !changed && redo.is_empty() {
         return false;
     }
+    let mut changed = changed;
     prhythm::fill_weak_p_in(las, per_lead, cfg, refill.iter().copied());
     // A P found again must lie in the span too (the search window around the
     // other leads' P may reach the deflection that was dropped).
@@ -327,11 +333,21 @@ fn within_global(
             Some((gp.sample, cfg.t_recheck_window_ms)),
             cfg,
         );
+        if near {
+            let d = |b: &BeatMarks| b.t_peak.map(|t| t.sample.abs_diff(gp.sample));
+            if let (Some(a), Some(b)) = (d(&again), d(&per_lead[l][i])) {
+                if a < b {
+                    per_lead[l][i].take_t_marks(&again);
+                    changed = true;
+                }
+            }
+            continue;
+        }
         if !global::t_outside(&again, &global[i]) && again.t_peak.is_some() {
             per_lead[l][i].take_t_marks(&again);
         }
     }
-    true
+    changed
 }
 
 /// Second pass over the T waves of one lead: the T peak should sit about

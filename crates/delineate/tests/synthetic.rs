@@ -616,3 +616,48 @@ fn wide_complex_ends_after_its_final_limb() {
         );
     }
 }
+
+#[test]
+fn lead_t_outside_the_global_span_is_searched_again_near_the_global_t() {
+    // Three leads (invented for the test): two with a plain beat, the third
+    // with a low T wave and, on every beat, a sharp deflection 520 ms after
+    // the R that draws its first search away from the T wave (the neighbouring
+    // beats agree with it, so the lead's own second T pass cannot help). The
+    // global T comes from the two plain leads; the third lead's T peak lies
+    // after the global T end and is searched again near the global T peak.
+    let fs = 250.0;
+    let rr = 1000.0;
+    let (plain, rs) = synth(fs, 8, rr, &all_waves(0.35));
+    let mut waves = all_waves(0.08);
+    waves.push(Wave {
+        amp: 0.5,
+        at_ms: 520.0,
+        sigma_ms: 10.0,
+    });
+    let (odd, _) = synth(fs, 8, rr, &waves);
+    let on = DelineateConfig::default();
+    assert!(on.lead_t_near_global && !on.lead_t_within_global);
+    let off = DelineateConfig {
+        lead_t_near_global: false,
+        ..on.clone()
+    };
+    let leads: [&[f64]; 3] = [&plain, &plain, &odd];
+    let d_on = delineate(&leads, fs, &rs, &on);
+    let d_off = delineate(&leads, fs, &rs, &off);
+    let t = t_wave(0.08).at_ms;
+    for (i, &r) in rs.iter().enumerate().take(rs.len() - 1).skip(1) {
+        print(&d_off.per_lead[2][i], r, fs);
+        print(&d_on.per_lead[2][i], r, fs);
+        near(rel(d_on.global[i].t_peak, r, fs), t, fs, "global t peak");
+        let before = rel(d_off.per_lead[2][i].t_peak, r, fs);
+        assert!(
+            (before - t).abs() > 100.0,
+            "first search should be drawn to the late deflection: {before} ms"
+        );
+        near(rel(d_on.per_lead[2][i].t_peak, r, fs), t, fs, "lead t peak");
+        // The plain leads and the third lead's P and QRS are unchanged.
+        assert_eq!(d_on.per_lead[0][i], d_off.per_lead[0][i]);
+        let (a, b) = (&d_on.per_lead[2][i], &d_off.per_lead[2][i]);
+        assert_eq!((a.p_on, a.qrs_on, a.qrs_end), (b.p_on, b.qrs_on, b.qrs_end));
+    }
+}
