@@ -48,7 +48,10 @@ pub struct DelineateConfig {
     /// even 20.4 -> 17.5; the paced sel102 mean -33.5 -> -10.4 ms, sel104
     /// -15.5 -> +1.2 ms), sensitivity 100 -> 99.97 %; LUDB per-lead QRS end
     /// -2.5 +/- 16.0 -> -2.1 +/- 15.4 ms (odd-numbered records SD 14.9 ->
-    /// 14.8, even 16.9 -> 15.9); other marks within 0.1 ms and one beat.
+    /// 14.8, even 16.9 -> 15.9; found on QTDB, it also mends LUDB's paced
+    /// records: 34 -21.5 +/- 30.8 -> -0.7 +/- 12.8 ms, 74 -30.0 -> -10.5 ms
+    /// mean, 45 SD 19.1 -> 15.3, 95 SD 12.8 -> 10.1 ms); other marks within
+    /// 0.1 ms and one beat.
     /// 140 / 200 ms (noise test off): QTDB 4.8 +/- 16.6 / 5.3 +/- 16.2 ms.
     /// Raising `qrs_post_ms` itself to 150 / 180 ms instead: QTDB 5.4 +/-
     /// 16.6 / 8.0 +/- 24.0 ms, narrow complexes of other records worse
