@@ -233,6 +233,85 @@ fn missing_input_and_escaping_records_list_are_rejected() {
 }
 
 #[test]
+fn unresolvable_inputs_fail_alone_and_same_file_twice_runs_once() {
+    let inp = tempfile::tempdir().unwrap();
+    let out = tempfile::tempdir().unwrap();
+    copy_ludb(inp.path(), "1");
+    // Another file with the record name `1`: flagged, not read.
+    std::fs::write(inp.path().join("1.edf"), b"not read").unwrap();
+    std::fs::write(inp.path().join("RECORDS"), "1\nmissing\n../up\n").unwrap();
+    let o = bin()
+        .arg("run")
+        .arg(inp.path().join("RECORDS"))
+        .arg(inp.path().join("1.hea")) // the same file again
+        .arg(inp.path().join("1.edf"))
+        .arg("--out")
+        .arg(out.path())
+        .arg("--quiet")
+        .output()
+        .unwrap();
+    let t = text(&o);
+    assert_eq!(o.status.code(), Some(1), "{t}");
+    assert!(t.contains("3 record(s) failed"), "{t}");
+    let failures = std::fs::read_to_string(out.path().join("failures.csv")).unwrap();
+    for what in ["line 2", "line 3", "leaves", "already taken"] {
+        assert!(failures.contains(what), "{what}: {failures}");
+    }
+    // Record 1 was processed once, and its outputs are complete.
+    let summary = std::fs::read_to_string(out.path().join("summary.csv")).unwrap();
+    assert_eq!(
+        summary.lines().filter(|l| l.starts_with("1,")).count(),
+        1,
+        "{summary}"
+    );
+    assert!(out.path().join("annotations/1.leadmark").is_file());
+    assert_no_temporaries(out.path());
+}
+
+#[test]
+fn non_ecg_signals_and_missing_samples() {
+    // v102s (PhysioNet/Computing in Cardiology Challenge 2015 record, in the
+    // WFDB conformance set): II, V, PLETH, RESP at 250 Hz, with invalid
+    // (missing) samples in every signal; `wfdb.rdrecord` reads 3, 2, 17 and 1
+    // of them as NaN (the reader's cross-check in tests/python).
+    let out = tempfile::tempdir().unwrap();
+    let o = bin()
+        .arg("run")
+        .arg(data().join("wfdb-conformance/v102s.hea"))
+        .arg("--out")
+        .arg(out.path())
+        .arg("--quiet")
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let part = tendline_store::Part::load(&out.path().join("parts/v102s.json"))
+        .unwrap()
+        .unwrap();
+    let floats = |k: &str| match part.group.attrs.get(k) {
+        Some(tendline_store::Attr::Floats(v)) => v.clone(),
+        other => panic!("{k}: {other:?}"),
+    };
+    assert_eq!(floats("analysed"), [1.0, 1.0, 0.0, 0.0]);
+    assert_eq!(floats("missing_samples"), [3.0, 2.0, 17.0, 1.0]);
+    assert_eq!(floats("lead_quality")[2..], [0.0, 0.0]);
+    // QT comes from ECG leads only.
+    let windows = std::fs::read_to_string(out.path().join("windows.csv")).unwrap();
+    let mut with_qt = 0;
+    for row in windows.lines().skip(1) {
+        let lead = row.split(',').nth(8).unwrap();
+        assert!(["", "II", "V"].contains(&lead), "{row}");
+        with_qt += usize::from(!lead.is_empty());
+    }
+    assert!(with_qt > 10, "{windows}");
+    // No global or per-lead mark comes from the excluded signals (channels 2, 3).
+    let anns = tendline_formats::annotation::read_annotations(
+        &out.path().join("annotations/v102s.leadmark"),
+    )
+    .unwrap();
+    assert!(!anns.is_empty() && anns.iter().all(|a| a.chan < 2));
+}
+
+#[test]
 fn results_carry_version_config_and_input_checksums() {
     let inp = tempfile::tempdir().unwrap();
     let out = tempfile::tempdir().unwrap();

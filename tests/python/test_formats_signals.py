@@ -34,7 +34,7 @@ UNSUPPORTED = {
     "a103l-no-len": "MATLAB",
     "multi-segment/s25047/s25047-2704-05-04-10-44": "variable-layout",
 }
-# Read digitally, but rejected as a Record: signals with different samples per frame.
+# Signals with different samples per frame: read as a Record at the fastest rate.
 MULTI_RATE = {"multi-segment/041s/041s", "multi-segment/041s/041s01", "multi-segment/041s/041s02", "03700181", "test01_00s_frame", "test01_00s_skewframe", "test_generator_2"}
 
 # Physical units -> factor to millivolts, as the reader documents it.
@@ -196,9 +196,43 @@ def test_conformance_records_physical(tmp_path):
     for path, meta, o, i in dump("record", [CONF / (n + ".hea") for n in names], tmp_path):
         name = str(path.relative_to(CONF).with_suffix(""))
         if name in MULTI_RATE:
-            assert meta.get("kind") == "unsupported" and "samples per frame" in meta["error"], meta
+            check_multi_rate(path.with_suffix(""), meta, o, i)
             continue
         check_physical(path.with_suffix(""), meta, o, i)
+
+
+def check_multi_rate(path, meta, out_dir, i):
+    """A multi-rate record as one Record: every signal at the fastest rate.
+
+    Reference: wfdb.rdrecord(smooth_frames=False).e_p_signal, each signal at its
+    own rate. Sample j of frame f of a signal with k samples per frame lies at
+    f + j/k frames (WFDB frame layout), so a slower signal's own samples must
+    reappear unchanged every K/k samples of ours (K the largest samples per
+    frame), and the samples between them on the straight line joining them."""
+    assert "error" not in meta, f"{path}: {meta.get('error')}"
+    ref = wfdb.rdrecord(str(path), smooth_frames=False)
+    spf = [s or 1 for s in ref.samps_per_frame]
+    K = max(spf)
+    assert meta["fs"] == pytest.approx(ref.fs * K, rel=1e-12), path
+    mine = our_physical(meta, out_dir, i)
+    assert mine.shape[0] == ref.sig_len * K, path
+    n = mine.shape[0]
+    for ch, (k, u) in enumerate(zip(spf, ref.units)):
+        want = np.asarray(ref.e_p_signal[ch], dtype=float) * MV.get(u, 1.0)
+        assert want.size == ref.sig_len * k, path
+        # Our samples that fall on one of the signal's own samples: unchanged.
+        at = np.flatnonzero((np.arange(n) * k) % K == 0)
+        own, ref_own = mine[at, ch], want[(at * k) // K]
+        ok = ~np.isnan(ref_own)
+        np.testing.assert_array_equal(np.isnan(own), ~ok, err_msg=f"{path} lead {ch}")
+        err = np.max(np.abs(own[ok] - ref_own[ok]), initial=0.0)
+        assert err <= 1e-9, f"{path} lead {ch}: max |difference| {err}"
+        if k < K:
+            # In between: on the straight line joining them (the last one held).
+            lin = np.interp(np.arange(n) * k / K, np.arange(want.size), want)
+            fin = ~np.isnan(lin)
+            err = np.max(np.abs(mine[fin, ch] - lin[fin]), initial=0.0)
+            assert err <= 1e-9, f"{path} lead {ch}: interpolation off by {err}"
 
 
 def test_skew_beyond_file_is_invalid_like_wfdb(tmp_path):

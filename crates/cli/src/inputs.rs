@@ -11,8 +11,14 @@
 //!   entries that would leave that folder (`..`, absolute paths) are rejected;
 //! - a path to a `.hea`, `.edf`, `.csv` or `.xml` file, or a WFDB record path without
 //!   extension whose `.hea` exists.
+//!
+//! A problem with one input (a path that is not a record, a list line that leaves
+//! its folder, a folder that cannot be listed, a record name already taken by
+//! another file) does not stop the others: [`resolve`] returns it as a record
+//! that carries the problem, and the batch reports it as a failed record. The same
+//! file named twice (a folder and one of its records) is processed once.
 
-use anyhow::{bail, Context, Result};
+use anyhow::{bail, Result};
 use std::collections::BTreeMap;
 use std::path::{Component, Path, PathBuf};
 
@@ -23,6 +29,26 @@ pub struct RecordInput {
     pub name: String,
     /// Path handed to the reader (`.hea`, `.edf`, `.csv` or `.xml`).
     pub path: PathBuf,
+    /// Why this input cannot be processed, found while resolving the inputs;
+    /// the batch reports it as a failed record and goes on with the others.
+    pub problem: Option<String>,
+}
+
+impl RecordInput {
+    /// An input that failed to resolve: named after its file stem (or the
+    /// whole path when it has none), so the failure table points at it.
+    fn failed(path: &Path, problem: String) -> Self {
+        let name = path
+            .file_stem()
+            .map(|s| s.to_string_lossy().into_owned())
+            .filter(|s| !s.is_empty())
+            .unwrap_or_else(|| path.display().to_string());
+        RecordInput {
+            name,
+            path: path.to_path_buf(),
+            problem: Some(problem),
+        }
+    }
 }
 
 const SIGNAL_EXTS: [&str; 4] = ["hea", "edf", "csv", "xml"];
@@ -58,13 +84,21 @@ fn from_path(p: &Path) -> Result<RecordInput> {
     Ok(RecordInput {
         name,
         path: resolved,
+        problem: None,
     })
 }
 
-fn from_records_file(list: &Path) -> Result<Vec<RecordInput>> {
+fn from_records_file(list: &Path) -> Vec<RecordInput> {
     let dir = list.parent().unwrap_or(Path::new("."));
-    let text = std::fs::read_to_string(list)
-        .with_context(|| format!("{}: cannot read", list.display()))?;
+    let text = match std::fs::read_to_string(list) {
+        Ok(t) => t,
+        Err(e) => {
+            return vec![RecordInput::failed(
+                list,
+                format!("{}: cannot read: {e}", list.display()),
+            )]
+        }
+    };
     let mut out = Vec::new();
     for (i, line) in text.lines().enumerate() {
         let entry = line.trim();
@@ -73,60 +107,107 @@ fn from_records_file(list: &Path) -> Result<Vec<RecordInput>> {
         }
         let rel = Path::new(entry);
         if rel.components().any(|c| !matches!(c, Component::Normal(_))) {
-            bail!(
-                "{}: line {}: record `{entry}` leaves the list's folder (only plain relative names are allowed)",
-                list.display(),
-                i + 1
-            );
+            out.push(RecordInput::failed(
+                rel,
+                format!(
+                    "{}: line {}: record `{entry}` leaves the list's folder (only plain relative names are allowed)",
+                    list.display(),
+                    i + 1
+                ),
+            ));
+            continue;
         }
-        out.push(
-            from_path(&dir.join(rel))
-                .with_context(|| format!("{}: line {}", list.display(), i + 1))?,
-        );
+        let path = dir.join(rel);
+        out.push(from_path(&path).unwrap_or_else(|e| {
+            RecordInput::failed(&path, format!("{}: line {}: {e:#}", list.display(), i + 1))
+        }));
     }
-    Ok(out)
+    out
 }
 
-fn from_folder(dir: &Path) -> Result<Vec<RecordInput>> {
+fn from_folder(dir: &Path) -> Vec<RecordInput> {
     let list = dir.join("RECORDS");
     if list.is_file() {
         return from_records_file(&list);
     }
-    let mut paths: Vec<PathBuf> = std::fs::read_dir(dir)
-        .with_context(|| format!("{}: cannot list folder", dir.display()))?
+    let entries = match std::fs::read_dir(dir) {
+        Ok(e) => e,
+        Err(e) => {
+            return vec![RecordInput::failed(
+                dir,
+                format!("{}: cannot list folder: {e}", dir.display()),
+            )]
+        }
+    };
+    let mut paths: Vec<PathBuf> = entries
         .filter_map(|e| e.ok().map(|e| e.path()))
         .filter(|p| p.is_file())
         .filter(|p| ext_of(p).is_some_and(|e| SIGNAL_EXTS.contains(&e.as_str())))
         .filter(|p| p.file_name().is_some_and(|n| n != "subjects.csv"))
         .collect();
     paths.sort();
-    paths.iter().map(|p| from_path(p)).collect()
+    paths
+        .iter()
+        .map(|p| from_path(p).unwrap_or_else(|e| RecordInput::failed(p, format!("{e:#}"))))
+        .collect()
 }
 
-/// Resolve all INPUT arguments; record names must be unique across them.
-pub fn resolve(inputs: &[PathBuf]) -> Result<Vec<RecordInput>> {
+/// Resolve all INPUT arguments into records, in the order given.
+///
+/// Never fails as a whole: an input with a problem comes back with
+/// [`RecordInput::problem`] set. Record names are unique among the records
+/// without a problem (outputs are keyed by name): a second file with a name
+/// already taken carries a problem instead, and the same file named twice is
+/// kept once.
+pub fn resolve(inputs: &[PathBuf]) -> Vec<RecordInput> {
     let mut all = Vec::new();
     for inp in inputs {
         if inp.is_dir() {
-            all.extend(from_folder(inp)?);
+            all.extend(from_folder(inp));
         } else if inp.file_name().is_some_and(|n| n == "RECORDS") {
-            all.extend(from_records_file(inp)?);
+            all.extend(from_records_file(inp));
         } else {
-            all.push(from_path(inp)?);
+            all.push(from_path(inp).unwrap_or_else(|e| RecordInput::failed(inp, format!("{e:#}"))));
         }
     }
+    let same_file = |a: &Path, b: &Path| {
+        a == b || matches!((a.canonicalize(), b.canonicalize()), (Ok(x), Ok(y)) if x == y)
+    };
     let mut seen: BTreeMap<String, PathBuf> = BTreeMap::new();
-    for r in &all {
-        if let Some(prev) = seen.insert(r.name.clone(), r.path.clone()) {
-            bail!(
-                "record name `{}` appears twice ({} and {}); results are keyed by record name",
-                r.name,
-                prev.display(),
-                r.path.display()
-            );
+    let mut out: Vec<RecordInput> = Vec::with_capacity(all.len());
+    for mut r in all {
+        if r.problem.is_some() {
+            out.push(r);
+            continue;
         }
+        match seen.get(&r.name) {
+            Some(prev) if same_file(prev, &r.path) => continue,
+            Some(prev) => {
+                r.problem = Some(format!(
+                    "{}: record name `{}` is already taken by {}; results are keyed by record \
+                     name: rename one of the files or run them into separate --out folders",
+                    r.path.display(),
+                    r.name,
+                    prev.display()
+                ));
+            }
+            None => {
+                seen.insert(r.name.clone(), r.path.clone());
+            }
+        }
+        out.push(r);
     }
-    Ok(all)
+    out
+}
+
+/// [`resolve`] for commands that need every input (`tune`, `validate`): the
+/// first problem is an error.
+pub fn resolve_all(inputs: &[PathBuf]) -> Result<Vec<RecordInput>> {
+    let records = resolve(inputs);
+    if let Some(p) = records.iter().find_map(|r| r.problem.as_deref()) {
+        bail!("{p}");
+    }
+    Ok(records)
 }
 
 /// `subjects.csv` inside an input folder, used when `--subjects` is not given.
@@ -161,7 +242,6 @@ mod tests {
             touch(&d.path().join(n));
         }
         let names: Vec<String> = resolve(&[d.path().into()])
-            .unwrap()
             .into_iter()
             .map(|r| r.name)
             .collect();
@@ -169,27 +249,41 @@ mod tests {
     }
 
     #[test]
-    fn records_list_rejects_escapes_and_names_line() {
+    fn records_list_flags_escapes_and_names_line() {
         let d = tempfile::tempdir().unwrap();
         touch(&d.path().join("a.hea"));
-        std::fs::write(d.path().join("RECORDS"), "a\n../etc/passwd\n").unwrap();
-        let e = format!("{:#}", resolve(&[d.path().into()]).unwrap_err());
+        std::fs::write(d.path().join("RECORDS"), "a\n../etc/passwd\nmissing\n").unwrap();
+        let r = resolve(&[d.path().into()]);
+        assert_eq!(r.len(), 3);
+        assert!(r[0].problem.is_none());
+        let e = r[1].problem.as_deref().unwrap();
         assert!(e.contains("line 2") && e.contains("leaves"), "{e}");
+        let e = r[2].problem.as_deref().unwrap();
+        assert!(e.contains("line 3") && e.contains("missing"), "{e}");
+        let e = format!("{:#}", resolve_all(&[d.path().into()]).unwrap_err());
+        assert!(e.contains("line 2"), "{e}");
     }
 
     #[test]
     fn record_without_extension_and_duplicates() {
         let d = tempfile::tempdir().unwrap();
         touch(&d.path().join("r1.hea"));
-        let r = resolve(&[d.path().join("r1")]).unwrap();
+        touch(&d.path().join("r1.edf"));
+        let r = resolve(&[d.path().join("r1")]);
         assert_eq!(r[0].path, d.path().join("r1.hea"));
-        let e = resolve(&[d.path().join("r1"), d.path().join("r1.hea")])
-            .unwrap_err()
-            .to_string();
-        assert!(e.contains("twice"), "{e}");
-        let e = resolve(&[d.path().join("nothing")])
-            .unwrap_err()
-            .to_string();
-        assert!(e.contains("not a record"), "{e}");
+        // The same file twice is one record.
+        let r = resolve(&[d.path().join("r1"), d.path().join("r1.hea")]);
+        assert_eq!(r.len(), 1, "{r:?}");
+        assert!(r[0].problem.is_none());
+        // Another file with the same name is flagged, the first one kept.
+        let r = resolve(&[d.path().into()]);
+        assert_eq!(r.len(), 2, "{r:?}");
+        assert!(r[0].problem.is_none());
+        assert_eq!(r[0].path, d.path().join("r1.edf"));
+        let e = r[1].problem.as_deref().unwrap();
+        assert!(e.contains("already taken") && e.contains("r1.edf"), "{e}");
+        let r = resolve(&[d.path().join("nothing")]);
+        let e = r[0].problem.as_deref().unwrap();
+        assert!(e.contains("not a record") && r[0].name == "nothing", "{e}");
     }
 }

@@ -112,9 +112,17 @@ struct RunArgs {
 
 fn cmd_run(a: RunArgs) -> Result<ExitCode> {
     let config = config::load(a.config.as_deref(), &a.set)?;
-    let records = inputs::resolve(&a.inputs)?;
-    if records.is_empty() {
-        anyhow::bail!("no records found in the inputs given");
+    let records = inputs::resolve(&a.inputs);
+    if records.iter().all(|r| r.problem.is_some()) {
+        // Nothing to run: a usage error rather than a batch of failures.
+        let problems: Vec<&str> = records
+            .iter()
+            .filter_map(|r| r.problem.as_deref())
+            .collect();
+        if problems.is_empty() {
+            anyhow::bail!("no records found in the inputs given");
+        }
+        anyhow::bail!("no record to process:\n  {}", problems.join("\n  "));
     }
     let subjects_file = a
         .subjects

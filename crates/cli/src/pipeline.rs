@@ -68,16 +68,100 @@ fn check_record(rec: &Record, path: &Path) -> Result<()> {
                 l.samples.len()
             );
         }
-        if let Some(k) = l.samples.iter().position(|v| !v.is_finite()) {
+        if let Some(k) = l.samples.iter().position(|v| v.is_infinite()) {
             bail!(
-                "{}: lead {} `{}` has a non-finite value (NaN or infinity) at sample {k}",
+                "{}: lead {} `{}` has an infinite value at sample {k}",
                 path.display(),
                 i,
                 l.name
             );
         }
     }
+    if rec
+        .leads
+        .iter()
+        .all(|l| l.samples.iter().all(|v| v.is_nan()))
+    {
+        bail!(
+            "{}: every sample of every lead is missing (NaN)",
+            path.display()
+        );
+    }
     Ok(())
+}
+
+/// Fill missing samples (NaN) so that the filters and the wavelet transform see
+/// a continuous signal; returns the number filled per lead.
+///
+/// Readers produce NaN only for samples the format itself declares missing (the
+/// WFDB invalid-sample value, and a skewed signal past the end of its file, as
+/// the `wfdb` Python package reads them); other non-finite input is rejected by
+/// the readers. Inside a lead a gap is bridged by a straight line between the
+/// samples around it; at the ends the nearest sample is held. A long bridged gap
+/// is a flat or straight stretch with no QRS slope: detection leaves it to the
+/// other leads or marks it unreadable, and no wave boundary is found in it. A
+/// lead with no sample at all is held at zero, which every stage treats as a
+/// flat (unusable) lead.
+pub(crate) fn fill_missing(rec: &mut Record) -> Vec<usize> {
+    let mut counts = Vec::with_capacity(rec.leads.len());
+    for l in rec.leads.iter_mut() {
+        let x = &mut l.samples;
+        let n_missing = x.iter().filter(|v| v.is_nan()).count();
+        counts.push(n_missing);
+        if n_missing == 0 {
+            continue;
+        }
+        let Some(first) = x.iter().position(|v| !v.is_nan()) else {
+            x.iter_mut().for_each(|v| *v = 0.0);
+            continue;
+        };
+        let head = x[first];
+        x[..first].iter_mut().for_each(|v| *v = head);
+        let mut last = first;
+        for i in first + 1..x.len() {
+            if x[i].is_nan() {
+                continue;
+            }
+            if i > last + 1 {
+                let (a, b) = (x[last], x[i]);
+                let span = (i - last) as f64;
+                for (k, v) in x[last + 1..i].iter_mut().enumerate() {
+                    *v = a + (b - a) * (k + 1) as f64 / span;
+                }
+            }
+            last = i;
+        }
+        let tail = x[last];
+        x[last + 1..].iter_mut().for_each(|v| *v = tail);
+    }
+    counts
+}
+
+/// Signals that are not ECG (see `tendline_formats::signals`): held at zero in
+/// the analysis, so that detection, delineation and QT see a flat, unusable lead,
+/// while every signal keeps its index in the input header. Returns, per lead,
+/// why it was left out (empty for an analysed lead); an error if no lead is left.
+fn non_ecg_leads(rec: &mut Record, path: &Path) -> Result<Vec<String>> {
+    let reasons: Vec<String> = rec
+        .leads
+        .iter()
+        .map(|l| tendline_formats::signals::non_ecg_reason(&l.name, &l.units).unwrap_or_default())
+        .collect();
+    if reasons.iter().all(|r| !r.is_empty()) {
+        bail!(
+            "{}: no ECG lead among the signals ({})",
+            path.display(),
+            reasons.join("; ")
+        );
+    }
+    for (l, r) in rec.leads.iter_mut().zip(&reasons) {
+        if !r.is_empty() {
+            l.samples.iter_mut().for_each(|v| *v = 0.0);
+            rec.warnings
+                .push(format!("signal not analysed as an ECG lead: {r}"));
+        }
+    }
+    Ok(reasons)
 }
 
 /// Run every stage on one record.
@@ -91,6 +175,21 @@ pub fn process_record(
     let mut rec = tendline_formats::read_record(&input.path, &opts)
         .with_context(|| format!("reading {}", input.path.display()))?;
     check_record(&rec, &input.path)?;
+    let missing = fill_missing(&mut rec);
+    let bridged: Vec<String> = rec
+        .leads
+        .iter()
+        .zip(&missing)
+        .filter(|(_, &m)| m > 0)
+        .map(|(l, m)| format!("`{}` {m}", l.name))
+        .collect();
+    if !bridged.is_empty() {
+        rec.warnings.push(format!(
+            "missing samples bridged (see `missing_samples`): {}",
+            bridged.join(", ")
+        ));
+    }
+    let excluded = non_ecg_leads(&mut rec, &input.path)?;
     if let Some(s) = subject {
         s.apply(&mut rec.meta);
     }
@@ -119,7 +218,7 @@ pub fn process_record(
     .map_err(|e| anyhow::anyhow!("{}: measurement: {e}", input.name))?;
 
     let mut g = Group::default();
-    record_attrs(&mut g, &rec, checksums, notch, &det);
+    record_attrs(&mut g, &rec, checksums, notch, &det, &missing, &excluded);
     beats_group(g.group("beats"), &det);
     unreadable_group(g.group("unreadable"), &det);
     let marks = g.group("marks");
@@ -138,6 +237,8 @@ pub fn process_record(
         .per_lead
         .iter()
         .enumerate()
+        // A signal that is not ECG has no beats of its own to annotate.
+        .filter(|(i, _)| excluded[*i].is_empty())
         .flat_map(|(i, l)| beat_annotations(l, &qrs, &labels, i as u8))
         .collect();
     leadmarks.sort_by_key(|a| (a.sample, a.chan));
@@ -155,6 +256,8 @@ fn record_attrs(
     checksums: &[(String, String)],
     notch: Option<f64>,
     det: &Detection,
+    missing: &[usize],
+    excluded: &[String],
 ) {
     g.attr("fs", Attr::Float(rec.fs));
     g.attr("n_samples", Attr::Int(rec.n_samples() as i64));
@@ -187,6 +290,22 @@ fn record_attrs(
         "input_sha256",
         Attr::Texts(checksums.iter().map(|c| c.1.clone()).collect()),
     );
+    g.attr(
+        "missing_samples",
+        Attr::Floats(missing.iter().map(|&m| m as f64).collect()),
+    );
+    g.attr(
+        "analysed",
+        Attr::Floats(
+            excluded
+                .iter()
+                .map(|r| if r.is_empty() { 1.0 } else { 0.0 })
+                .collect(),
+        ),
+    );
+    if !rec.warnings.is_empty() {
+        g.attr("input_warnings", Attr::Texts(rec.warnings.clone()));
+    }
     g.attr("powerline_notch_hz", Attr::Float(notch.unwrap_or(0.0)));
     g.attr("lead_quality", Attr::Floats(det.lead_quality.clone()));
     g.attr("n_beats", Attr::Int(det.beats.len() as i64));
@@ -347,4 +466,60 @@ pub fn beat_annotations(
         })
         .collect();
     boundary_annotations(&waves, chan)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use tendline_formats::{Lead, Metadata};
+
+    fn rec(leads: Vec<(&str, &str, Vec<f64>)>) -> Record {
+        Record::from_file(
+            Path::new("r.csv"),
+            100.0,
+            leads
+                .into_iter()
+                .map(|(n, u, s)| Lead {
+                    name: n.into(),
+                    units: u.into(),
+                    samples: s,
+                })
+                .collect(),
+            Metadata::default(),
+            Vec::new(),
+        )
+    }
+
+    #[test]
+    fn missing_samples_are_bridged_and_counted() {
+        let nan = f64::NAN;
+        let mut r = rec(vec![
+            ("I", "mV", vec![nan, nan, 1.0, nan, nan, 4.0, 2.0, nan]),
+            ("II", "mV", vec![nan; 4]),
+            ("III", "mV", vec![0.5; 4]),
+        ]);
+        let counts = fill_missing(&mut r);
+        assert_eq!(counts, [5, 4, 0]);
+        assert_eq!(r.leads[0].samples, [1.0, 1.0, 1.0, 2.0, 3.0, 4.0, 2.0, 2.0]);
+        assert_eq!(r.leads[1].samples, [0.0; 4]);
+        assert_eq!(r.leads[2].samples, [0.5; 4]);
+    }
+
+    #[test]
+    fn non_ecg_signals_are_held_flat_and_a_record_without_ecg_fails() {
+        let mut r = rec(vec![
+            ("II", "mV", vec![1.0, 2.0]),
+            ("ABP", "mmHg", vec![80.0, 120.0]),
+            ("Pleth", "NU", vec![3.0, 4.0]),
+        ]);
+        let why = non_ecg_leads(&mut r, Path::new("r.csv")).unwrap();
+        assert!(why[0].is_empty() && !why[1].is_empty() && !why[2].is_empty());
+        assert_eq!(r.leads[0].samples, [1.0, 2.0]);
+        assert_eq!(r.leads[1].samples, [0.0, 0.0]);
+        let mut r = rec(vec![("RESP", "NU", vec![1.0, 2.0])]);
+        let e = non_ecg_leads(&mut r, Path::new("r.csv"))
+            .unwrap_err()
+            .to_string();
+        assert!(e.contains("no ECG lead") && e.contains("RESP"), "{e}");
+    }
 }

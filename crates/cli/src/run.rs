@@ -216,6 +216,14 @@ fn process_one(
     out: (&SyncSender<Job>, usize),
 ) -> (Outcome, Option<Part>) {
     let t0 = Instant::now();
+    if let Some(problem) = &input.problem {
+        return (
+            Outcome::Failed {
+                error: problem.clone(),
+            },
+            None,
+        );
+    }
     let part_path = opts.out.join("parts").join(format!("{}.json", input.name));
     let result = (|| -> Result<(Outcome, Part, Staged)> {
         let files = input_files(input);
@@ -522,6 +530,7 @@ pub fn rebuild_outputs(out: &Path) -> Result<()> {
         let input = RecordInput {
             name: name.clone(),
             path: PathBuf::from(r["path"].as_str().unwrap_or_default()),
+            problem: None,
         };
         let outcome = match r["status"].as_str() {
             Some("failed") => Outcome::Failed {

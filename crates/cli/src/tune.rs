@@ -84,7 +84,7 @@ pub fn cmd_tune(a: TuneArgs) -> Result<ExitCode> {
             a.reference_ext
         );
     }
-    let records = crate::inputs::resolve(&a.inputs)?;
+    let records = crate::inputs::resolve_all(&a.inputs)?;
     let mut sources = Vec::new();
     let mut missing = Vec::new();
     for r in records {

@@ -61,7 +61,7 @@ pub struct ValidateArgs {
 pub fn cmd_validate(a: ValidateArgs) -> Result<ExitCode> {
     if a.process {
         let config = crate::config::load(a.config.as_deref(), &a.set)?;
-        let records = crate::inputs::resolve(std::slice::from_ref(&a.data))?;
+        let records = crate::inputs::resolve_all(std::slice::from_ref(&a.data))?;
         let opts = crate::run::RunOptions {
             records,
             out: a.run.clone(),

@@ -469,20 +469,6 @@ fn tal_number(b: &[u8], signed: bool) -> Option<f64> {
     std::str::from_utf8(b).ok()?.parse::<f64>().ok()
 }
 
-/// Lead names that identify an ECG signal (common practice).
-fn is_ecg_label(label: &str) -> bool {
-    let u = label.to_ascii_uppercase();
-    if u.contains("ECG") || u.contains("EKG") {
-        return true;
-    }
-    let name = u.trim();
-    const LEADS: [&str; 22] = [
-        "I", "II", "III", "AVR", "AVL", "AVF", "-AVR", "V1", "V2", "V3", "V4", "V5", "V6", "V7",
-        "V8", "V9", "V3R", "V4R", "MLI", "MLII", "MLIII", "CM5",
-    ];
-    LEADS.contains(&name)
-}
-
 /// Factor to millivolts and the resulting unit, for voltage units.
 fn unit_to_mv(units: &str) -> Option<f64> {
     match units {
@@ -524,7 +510,7 @@ pub fn edf_to_record(file: EdfFile, path: &Path) -> Result<Record, FormatError> 
     let ecg: Vec<usize> = ordinary
         .iter()
         .copied()
-        .filter(|&k| is_ecg_label(&h.signals[k].label))
+        .filter(|&k| crate::signals::is_ecg_name(&h.signals[k].label))
         .collect();
     let candidates = if ecg.is_empty() { &ordinary } else { &ecg };
     // Rate held by most candidates; ties to the higher rate. Counted on samples

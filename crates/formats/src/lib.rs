@@ -26,6 +26,7 @@ pub mod csv;
 pub mod edf;
 pub mod error;
 pub mod meta;
+pub mod signals;
 pub mod subjects;
 pub mod wfdb;
 

@@ -17,9 +17,15 @@
 //! - FLAC-compressed formats 508, 516, 524;
 //! - signal files in `.mat` (MATLAB) or `.wav` containers;
 //! - variable-layout multi-segment records (a layout segment or null `~` segments);
-//! - null signals (file name `~`, format 0);
-//! - in [`read_record`] only: signals with different samples per frame (multi-rate
-//!   records; use [`read_digital`]).
+//! - null signals (file name `~`, format 0).
+//!
+//! Multi-rate records (signals with different samples per frame): [`read_digital`]
+//! returns each signal at its own rate; [`read_record`], which needs one rate,
+//! takes the fastest signal's rate (frame rate × the largest samples per frame)
+//! and brings slower signals to it by linear interpolation between their own
+//! samples. Sample `j` of frame `f` of a signal with `k` samples per frame lies at
+//! `f + j/k` frames; so a slower signal's own samples are kept exactly where its
+//! rate divides the fastest one, and its last sample is held to the end.
 //!
 //! Integrity checks: the header's per-signal checksum (16-bit sum of the signal's
 //! digital samples over the record) and initial value are verified when present.
@@ -576,27 +582,35 @@ pub fn to_physical(s: &DigitalSignal) -> Vec<f64> {
 /// Read a WFDB record into a [`Record`] (samples in mV where the units allow).
 ///
 /// `header_path` is the `.hea` file or the record path without extension.
-/// Records whose signals have different samples per frame are rejected; use
-/// [`read_digital`] for them.
+/// Signals with different samples per frame are brought to the fastest rate
+/// (module docs); a warning on the record says which.
 pub fn read_record(header_path: &Path) -> Result<Record, FormatError> {
-    let w = read_digital(header_path)?;
-    let path = header_path_of(header_path);
-    let spf = w.signals.first().map_or(1, |s| s.spec.samples_per_frame);
-    if let Some(s) = w.signals.iter().find(|s| s.spec.samples_per_frame != spf) {
-        return Err(unsupported(
-            &path,
-            format!(
-                "line {}: signals have different samples per frame ({} and {}); multi-rate records \
-                 cannot form one record with a single sampling rate",
-                s.spec.line, spf, s.spec.samples_per_frame
-            ),
-        ));
-    }
+    let mut w = read_digital(header_path)?;
+    let spf = w
+        .signals
+        .iter()
+        .map(|s| s.spec.samples_per_frame)
+        .max()
+        .unwrap_or(1)
+        .max(1);
+    let fs = w.fs * spf as f64;
+    let mut notes = Vec::new();
     let leads = w
         .signals
         .iter()
         .map(|s| {
             let mut samples = to_physical(s);
+            let k = s.spec.samples_per_frame.max(1);
+            if k != spf {
+                samples = upsample_linear(&samples, k as usize, spf as usize);
+                notes.push(format!(
+                    "line {} (signal `{}`): sampled at {} Hz, interpolated to the record's {} Hz",
+                    s.spec.line,
+                    s.spec.description,
+                    w.fs * k as f64,
+                    fs
+                ));
+            }
             let units = match to_mv_factor(&s.spec.units) {
                 Some(f) => {
                     if f != 1.0 {
@@ -613,15 +627,38 @@ pub fn read_record(header_path: &Path) -> Result<Record, FormatError> {
             }
         })
         .collect();
+    w.warnings.extend(notes);
     let meta = Metadata::from_comments(&w.header.comments);
     Ok(Record {
         name: w.header.name.clone(),
-        fs: w.fs * spf as f64,
+        fs,
         leads,
         meta,
         files: w.files,
         warnings: w.warnings,
     })
+}
+
+/// A signal with `k` samples per frame brought to `spf` samples per frame
+/// (`k < spf`): output sample `i` lies at `i·k/spf` of the input's samples,
+/// linearly interpolated; past the last input sample it is held.
+fn upsample_linear(x: &[f64], k: usize, spf: usize) -> Vec<f64> {
+    let frames = x.len() / k;
+    let n = frames * spf;
+    let last = x.len().saturating_sub(1);
+    (0..n)
+        .map(|i| {
+            // Exact integer position: input index (i·k) / spf, remainder r / spf.
+            let num = i * k;
+            let (j, r) = (num / spf, num % spf);
+            if r == 0 || j >= last {
+                x[j.min(last)]
+            } else {
+                let f = r as f64 / spf as f64;
+                x[j] + (x[j + 1] - x[j]) * f
+            }
+        })
+        .collect()
 }
 
 /// Write `rec` as a format-16 WFDB record `<dir>/<rec.name>.hea` + `.dat`; returns the header path.
@@ -747,6 +784,35 @@ pub fn write_record(dir: &Path, rec: &Record, adc_gain: f64) -> Result<PathBuf, 
 
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn upsampling_equals_interpolation_at_each_output_time() {
+        // Oracle: the time of output sample i is i/spf frames; the input's
+        // sample m lies at m/k frames; interpolate between the two around it.
+        let x: Vec<f64> = (0..13)
+            .map(|m| ((m * 7) % 5) as f64 - 0.3 * m as f64)
+            .collect();
+        for (k, spf) in [(1usize, 4usize), (2, 4), (51, 200), (3, 4), (1, 1)] {
+            let xs = &x[..(x.len() / k) * k];
+            let y = upsample_linear(xs, k, spf);
+            assert_eq!(y.len(), xs.len() / k * spf);
+            for (i, &v) in y.iter().enumerate() {
+                let t = i as f64 / spf as f64; // frames
+                let pos = t * k as f64; // input samples
+                let m = pos.floor() as usize;
+                let want = if m + 1 >= xs.len() {
+                    xs[xs.len() - 1]
+                } else {
+                    xs[m] + (xs[m + 1] - xs[m]) * (pos - m as f64)
+                };
+                assert!(
+                    (v - want).abs() < 1e-12,
+                    "k {k} spf {spf} i {i}: {v} vs {want}"
+                );
+            }
+        }
+    }
+
     use super::*;
 
     /// Slow oracle: decode the whole stream at once, then pick each signal's
