@@ -25,13 +25,11 @@ from _devtools import DATA, dev_bin, need_data
 CONF = DATA / "wfdb-conformance"
 
 # Variants our reader rejects on purpose (documented in crates/formats/src/wfdb/mod.rs):
-# FLAC formats 508/516/524, MATLAB `.mat` signal files, variable-layout multi-segment.
+# FLAC formats 508/516/524, variable-layout multi-segment.
 UNSUPPORTED = {
     "flac_3_constant": "FLAC",
     "flacformats": "FLAC",
     "mixedsignals": "FLAC",
-    "a103l": "MATLAB",
-    "a103l-no-len": "MATLAB",
     "multi-segment/s25047/s25047-2704-05-04-10-44": "variable-layout",
 }
 # Signals with different samples per frame: read as a Record at the fastest rate.

@@ -16,9 +16,11 @@
 
 /// Names (upper case, before any space, digit suffix allowed) of signals that
 /// are not ECG.
-const NON_ECG_PREFIXES: [&str; 30] = [
-    "ABP", "ART", "AO", "PAP", "CVP", "ICP", "LAP", "RAP", "UAP", "NBP", "BP", "PLETH", "PPG",
-    "RESP", "SPO2", "SAO2", "SPO₂", "CO2", "ETCO2", "PULSE", "EEG", "EOG", "EMG", "FLOW",
+const NON_ECG_PREFIXES: [&str; 31] = [
+    // `EDF`: the annotation channel `EDF Annotations` kept as a signal when an
+    // EDF+ file is converted to WFDB.
+    "EDF", "ABP", "ART", "AO", "PAP", "CVP", "ICP", "LAP", "RAP", "UAP", "NBP", "BP", "PLETH",
+    "PPG", "RESP", "SPO2", "SAO2", "SPO₂", "CO2", "ETCO2", "PULSE", "EEG", "EOG", "EMG", "FLOW",
     "AIRFLOW", "THOR", "ABDO", "NASAL", "TEMP", "SNORE",
 ];
 

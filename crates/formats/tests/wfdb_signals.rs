@@ -188,16 +188,26 @@ fn checksum_and_initial_value_mismatch_are_warnings() {
 }
 
 #[test]
-fn multi_rate_rejected_for_record_but_read_digitally() {
+fn multi_rate_read_digitally_and_as_one_rate_record() {
     let dat: Vec<u8> = (0..12i16).flat_map(|v| v.to_le_bytes()).collect();
     let (_d, h) = record_files("r 2 100 4\nr.dat 16x2\nr.dat 16\n", Some(&dat[..24]));
     let w = wfdb::read_digital(&h).unwrap();
     assert_eq!(w.signals[0].samples, vec![0, 1, 3, 4, 6, 7, 9, 10]);
     assert_eq!(w.signals[1].samples, vec![2, 5, 8, 11]);
-    let e = wfdb::read_record(&h).unwrap_err();
+    // As a record: 200 Hz; the 100-Hz signal keeps its samples at even indices
+    // (frame starts) and is interpolated halfway between them, the last one held.
+    let r = wfdb::read_record(&h).unwrap();
+    assert_eq!(r.fs, 200.0);
+    let mv = |v: &[f64]| v.iter().map(|x| x / 200.0).collect::<Vec<_>>();
+    assert_eq!(r.leads[0].samples, mv(&[0., 1., 3., 4., 6., 7., 9., 10.]));
+    assert_eq!(
+        r.leads[1].samples,
+        mv(&[2., 3.5, 5., 6.5, 8., 9.5, 11., 11.])
+    );
     assert!(
-        matches!(e, FormatError::Unsupported { .. }) && e.to_string().contains("samples per frame"),
-        "{e}"
+        r.warnings.iter().any(|w| w.contains("interpolated")),
+        "{:?}",
+        r.warnings
     );
     // Equal samples per frame: one rate of fs × spf.
     let (_d, h) = record_files("r 2 100 3\nr.dat 16x2\nr.dat 16x2\n", Some(&dat));
@@ -390,8 +400,6 @@ fn conformance_multi_segment_and_rejections() {
             "variable-layout",
         ),
         ("flacformats.hea", "FLAC"),
-        ("a103l.hea", "MATLAB"),
-        ("test_generator_2.hea", "samples per frame"),
     ] {
         let e = wfdb::read_record(&c.join(name)).unwrap_err();
         assert!(
@@ -399,4 +407,58 @@ fn conformance_multi_segment_and_rejections() {
             "{name}: {e}"
         );
     }
+}
+
+/// A MATLAB version 4 file as WFDB's wfdb2mat writes it: 20-byte header (type,
+/// rows, columns, imaginary flag, name length), the name `val\0`, then the
+/// int16 matrix column by column (MATLAB 4 MAT-file layout, from memory).
+fn mat_v4(ty: u32, rows: u32, cols: u32, values: &[i16]) -> Vec<u8> {
+    let mut b = Vec::new();
+    for w in [ty, rows, cols, 0, 4] {
+        b.extend_from_slice(&w.to_le_bytes());
+    }
+    b.extend_from_slice(b"val\0");
+    for v in values {
+        b.extend_from_slice(&v.to_le_bytes());
+    }
+    b
+}
+
+#[test]
+fn matlab_v4_signal_files_are_read_and_a_disagreeing_header_is_named() {
+    let dir = tempfile::tempdir().unwrap();
+    let h = dir.path().join("m.hea");
+    let hea = "m 2 250 3\nm.mat 16+24 200/mV 16 0 1 0 0 I\nm.mat 16+24 200/mV 16 0 2 0 0 II\n";
+    std::fs::write(&h, hea).unwrap();
+    // 2 signals x 3 frames, column-major: frame 0 = (1, 2), frame 1 = (3, 4)...
+    std::fs::write(
+        dir.path().join("m.mat"),
+        mat_v4(30, 2, 3, &[1, 2, 3, 4, 5, 6]),
+    )
+    .unwrap();
+    let r = wfdb::read_record(&h).unwrap();
+    assert_eq!(r.leads[0].samples, [1.0 / 200.0, 3.0 / 200.0, 5.0 / 200.0]);
+    assert_eq!(r.leads[1].samples, [2.0 / 200.0, 4.0 / 200.0, 6.0 / 200.0]);
+    for (bytes, what) in [
+        (mat_v4(20, 2, 3, &[1, 2, 3, 4, 5, 6]), "element type"),
+        (mat_v4(30, 3, 2, &[1, 2, 3, 4, 5, 6]), "rows"),
+        (mat_v4(30, 2, 4, &[1, 2, 3, 4, 5, 6]), "needs"),
+        (mat_v4(1030, 2, 3, &[1, 2, 3, 4, 5, 6]), "little-endian"),
+        (
+            b"MATLAB 5.0 MAT-file, written by hand".to_vec(),
+            "version 5",
+        ),
+    ] {
+        std::fs::write(dir.path().join("m.mat"), bytes).unwrap();
+        let e = wfdb::read_record(&h).unwrap_err().to_string();
+        assert!(e.contains(what) && e.contains("m.mat"), "{what}: {e}");
+    }
+    std::fs::write(
+        dir.path().join("m.mat"),
+        mat_v4(30, 2, 3, &[1, 2, 3, 4, 5, 6]),
+    )
+    .unwrap();
+    std::fs::write(&h, hea.replace("16+24", "16+20")).unwrap();
+    let e = wfdb::read_record(&h).unwrap_err().to_string();
+    assert!(e.contains("byte offset is 20"), "{e}");
 }

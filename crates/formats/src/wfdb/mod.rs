@@ -15,7 +15,8 @@
 //!
 //! Not supported, rejected with [`FormatError::Unsupported`]:
 //! - FLAC-compressed formats 508, 516, 524;
-//! - signal files in `.mat` (MATLAB) or `.wav` containers;
+//! - signal files in `.wav` containers, and `.mat` files other than MATLAB
+//!   version 4 (see `check_mat_v4`);
 //! - variable-layout multi-segment records (a layout segment or null `~` segments);
 //! - null signals (file name `~`, format 0).
 //!
@@ -183,11 +184,11 @@ fn read_single(path: &Path, header: Header) -> Result<WfdbSignals, FormatError> 
             });
         }
         let lower = s.file_name.to_ascii_lowercase();
-        if lower.ends_with(".mat") || lower.ends_with(".wav") {
+        if lower.ends_with(".wav") {
             return Err(unsupported(
                 path,
                 at(format!(
-                    "signal file `{}`: MATLAB/WAV containers are not supported",
+                    "signal file `{}`: WAV containers are not supported",
                     s.file_name
                 )),
             ));
@@ -247,6 +248,9 @@ fn read_single(path: &Path, header: Header) -> Result<WfdbSignals, FormatError> 
                     g.offset
                 ),
             ));
+        }
+        if g.name.to_ascii_lowercase().ends_with(".mat") {
+            check_mat_v4(&fpath, &f, len, g)?;
         }
         opened.push((fpath, f, len - g.offset));
     }
@@ -637,6 +641,88 @@ pub fn read_record(header_path: &Path) -> Result<Record, FormatError> {
         files: w.files,
         warnings: w.warnings,
     })
+}
+
+/// A `.mat` signal file (as WFDB's `wfdb2mat` writes them, and as PhysioNet
+/// challenge databases ship 12-lead ECGs) is a MATLAB version 4 file holding one
+/// matrix `val`: signals × frames, column-major, i.e. frame-interleaved samples
+/// after a 20-byte header and the matrix name. The record header states the
+/// storage format and a byte offset that skips that prefix, so the samples are
+/// read like any other signal file; this checks that the MATLAB header agrees
+/// (little-endian full numeric matrix, element type matching the format, one
+/// row per signal sample of a frame, the offset ending right after the name,
+/// the data filling the file) and rejects the file with the mismatch named if
+/// it does not. Layout: MATLAB 4 MAT-file format (MathWorks, "MAT-File Format",
+/// the version 4 section), from memory.
+fn check_mat_v4(fpath: &Path, f: &File, len: u64, g: &FileGroup) -> Result<(), FormatError> {
+    let bad = |m: String| invalid(fpath, format!("MATLAB signal file: {m}"));
+    let mut head = [0u8; 20];
+    if len < 20 {
+        return Err(bad(format!("{len} bytes, shorter than a MATLAB v4 header")));
+    }
+    {
+        use std::io::Read;
+        let mut r = f;
+        r.read_exact(&mut head).map_err(|e| io(fpath, e))?;
+    }
+    if head.starts_with(b"MATLAB") {
+        return Err(unsupported(
+            fpath,
+            "MATLAB signal file: version 5 or later layout; only version 4 files (as wfdb2mat \
+             writes them) are read",
+        ));
+    }
+    let word = |k: usize| u32::from_le_bytes(head[4 * k..4 * k + 4].try_into().expect("4 bytes"));
+    let (ty, rows, cols, imag, namlen) = (word(0), word(1), word(2), word(3), word(4));
+    let (m, o, p, t) = (ty / 1000, (ty / 100) % 10, (ty / 10) % 10, ty % 10);
+    if ty >= 5000 || m != 0 || o != 0 || t != 0 || imag != 0 {
+        return Err(bad(format!(
+            "type {ty:04} (imaginary part {imag}): only a little-endian, real, full numeric \
+             matrix (type 00P0) is read"
+        )));
+    }
+    // Element type P: 0 double, 1 single, 2 int32, 3 int16, 4 uint16, 5 uint8.
+    let want_p = match g.format {
+        16 => Some(3),
+        32 => Some(2),
+        80 => Some(5),
+        _ => None,
+    };
+    if want_p != Some(p) {
+        return Err(bad(format!(
+            "element type {p} (0 double, 1 single, 2 int32, 3 int16, 4 uint16, 5 uint8) does \
+             not hold the header's format {} (16 needs int16, 32 int32, 80 uint8)",
+            g.format
+        )));
+    }
+    if rows as u64 != g.tspf {
+        return Err(bad(format!(
+            "the matrix has {rows} rows, the header puts {} samples per frame in this file",
+            g.tspf
+        )));
+    }
+    if g.offset != 20 + namlen as u64 {
+        return Err(bad(format!(
+            "the header's byte offset is {}, but the samples start at byte {} (20-byte header \
+             and a {namlen}-byte matrix name)",
+            g.offset,
+            20 + namlen as u64
+        )));
+    }
+    let width = match p {
+        2 => 4,
+        3 => 2,
+        _ => 1,
+    };
+    let data = (rows as u64) * (cols as u64) * width;
+    if g.offset + data != len {
+        return Err(bad(format!(
+            "a {rows} × {cols} matrix needs {data} bytes after byte {}, the file holds {}",
+            g.offset,
+            len - g.offset.min(len)
+        )));
+    }
+    Ok(())
 }
 
 /// A signal with `k` samples per frame brought to `spf` samples per frame
