@@ -25,15 +25,13 @@ from _devtools import DATA, dev_bin, need_data
 CONF = DATA / "wfdb-conformance"
 
 # Variants our reader rejects on purpose (documented in crates/formats/src/wfdb/mod.rs):
-# FLAC formats 508/516/524, variable-layout multi-segment.
+# variable-layout multi-segment. (The FLAC records flacformats, flac_3_constant and
+# mixedsignals, formats 508/516/524, are read and checked like the others.)
 UNSUPPORTED = {
-    "flac_3_constant": "FLAC",
-    "flacformats": "FLAC",
-    "mixedsignals": "FLAC",
     "multi-segment/s25047/s25047-2704-05-04-10-44": "variable-layout",
 }
 # Signals with different samples per frame: read as a Record at the fastest rate.
-MULTI_RATE = {"multi-segment/041s/041s", "multi-segment/041s/041s01", "multi-segment/041s/041s02", "03700181", "test01_00s_frame", "test01_00s_skewframe", "test_generator_2"}
+MULTI_RATE = {"mixedsignals", "multi-segment/041s/041s", "multi-segment/041s/041s01", "multi-segment/041s/041s02", "03700181", "test01_00s_frame", "test01_00s_skewframe", "test_generator_2"}
 
 # Physical units -> factor to millivolts, as the reader documents it.
 MV = {"mV": 1.0, "uV": 1e-3, "μV": 1e-3, "µV": 1e-3, "V": 1e3}

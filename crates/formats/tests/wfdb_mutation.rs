@@ -197,3 +197,82 @@ fn mutated_records_never_panic() {
     }
     assert!(read > 100, "only {read} of {tried} mutated records read");
 }
+
+/// Damaged FLAC signal files (formats 508/516/524): bytes of the conformance
+/// records' FLAC streams changed, cut or repeated at random. The FLAC decoder
+/// (a dependency) sees the bytes; the property is the same as above: samples of
+/// the right count or a typed error naming the signal file, never a panic.
+#[test]
+fn mutated_flac_files_never_panic() {
+    let conf = PathBuf::from(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/../../../shared/data/wfdb-conformance"
+    ));
+    // Header line per file, from the conformance headers (mixedsignals_p is a
+    // 2-channel stream, which FLAC may code as mid/side stereo).
+    let cases = [
+        (
+            "flacformats.d2",
+            "r 1 200 499\nf.dat 524 200/mV 24 0 -8388605 8721 0 s\n",
+        ),
+        (
+            "mixedsignals_p.dat",
+            "r 2 62.4725 14400\nf.dat 516x2\nf.dat 516x2\n",
+        ),
+        (
+            "mixedsignals_e.dat",
+            "r 3 62.4725 14400\nf.dat 516x4\nf.dat 516x4\nf.dat 516x4\n",
+        ),
+    ];
+    let Ok(originals) = cases
+        .iter()
+        .map(|(f, _)| std::fs::read(conf.join(f)))
+        .collect::<Result<Vec<_>, _>>()
+    else {
+        eprintln!("SKIP: {} absent", conf.display());
+        return;
+    };
+    let mut rng = ChaCha8Rng::seed_from_u64(508);
+    let dir = tempfile::tempdir().unwrap();
+    let hea = dir.path().join("r.hea");
+    let dat = dir.path().join("f.dat");
+    let (mut read, mut failed) = (0, 0);
+    for _ in 0..1_500 {
+        let k = rng.gen_range(0..cases.len());
+        let mut b = originals[k].clone();
+        for _ in 0..rng.gen_range(1..4) {
+            let at = rng.gen_range(0..b.len());
+            match rng.gen_range(0..4) {
+                0 => b[at] ^= 1 << rng.gen_range(0..8),
+                1 => b[at] = rng.gen(),
+                2 => b.truncate(at.max(1)),
+                _ => {
+                    let end = (at + rng.gen_range(1..64)).min(b.len());
+                    let piece = b[at..end].to_vec();
+                    let to = rng.gen_range(0..=b.len());
+                    b.splice(to..to, piece);
+                }
+            }
+        }
+        std::fs::write(&hea, cases[k].1).unwrap();
+        std::fs::write(&dat, &b).unwrap();
+        match wfdb::read_digital(&hea) {
+            Ok(w) => {
+                read += 1;
+                for s in &w.signals {
+                    assert_eq!(
+                        s.samples.len() as u64,
+                        w.n_frames * s.spec.samples_per_frame as u64
+                    );
+                }
+            }
+            Err(e) => {
+                failed += 1;
+                assert_eq!(e.path(), dat, "{e}");
+            }
+        }
+    }
+    // Both outcomes must occur: damage past the samples the header asks for
+    // (or in padding) is harmless, damage in the frames is caught.
+    assert!(read > 0 && failed > 1000, "{read} read, {failed} failed");
+}

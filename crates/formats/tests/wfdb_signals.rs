@@ -77,10 +77,14 @@ fn unknown_and_unsupported_format_codes() {
         e.contains("line 2") && e.contains("unknown signal format code 999") && e.contains("`II`"),
         "{e}"
     );
+    // A FLAC format whose file is not a FLAC stream: named, not decoded as raw bytes.
     let (_d, h) = record_files("r 1 250 4\nr.dat 516\n", Some(&[0u8; 8]));
     let e = wfdb::read_record(&h).unwrap_err();
     assert!(
-        matches!(e, FormatError::Unsupported { .. }) && e.to_string().contains("FLAC"),
+        matches!(e, FormatError::Invalid { .. })
+            && e.path().ends_with("r.dat")
+            && e.to_string().contains("not a FLAC stream")
+            && e.to_string().contains("format 516"),
         "{e}"
     );
 }
@@ -394,17 +398,238 @@ fn conformance_multi_segment_and_rejections() {
     let w = wfdb::read_digital(&c.join("multi-segment/041s/041s.hea")).unwrap();
     assert_eq!(w.n_frames, 2000);
     assert_eq!(w.signals[0].samples.len(), 8000);
-    for (name, what) in [
-        (
-            "multi-segment/s25047/s25047-2704-05-04-10-44.hea",
-            "variable-layout",
-        ),
-        ("flacformats.hea", "FLAC"),
-    ] {
-        let e = wfdb::read_record(&c.join(name)).unwrap_err();
+    let name = "multi-segment/s25047/s25047-2704-05-04-10-44.hea";
+    let e = wfdb::read_record(&c.join(name)).unwrap_err();
+    assert!(
+        matches!(e, FormatError::Unsupported { .. }) && e.to_string().contains("variable-layout"),
+        "{name}: {e}"
+    );
+    // FLAC formats 508/516/524 were rejected here before; they are read now
+    // (checked in detail in `conformance_flac_records`).
+    let w = wfdb::read_digital(&c.join("flacformats.hea")).unwrap();
+    assert_eq!((w.signals.len(), w.n_frames), (3, 499));
+}
+
+/// The row of `record` in `wfdb-conformance/MANIFEST.tsv` (what the `wfdb`
+/// Python package 4.3 reads from each header): fs, n_sig, sig_len, formats.
+fn manifest_row(conf: &Path, record: &str) -> (f64, usize, u64, String) {
+    let text = std::fs::read_to_string(conf.join("MANIFEST.tsv")).unwrap();
+    let mut lines = text.lines();
+    let cols: Vec<&str> = lines.next().unwrap().split('\t').collect();
+    let col = |name: &str| cols.iter().position(|c| *c == name).unwrap();
+    let row: Vec<&str> = lines
+        .map(|l| l.split('\t').collect::<Vec<_>>())
+        .find(|r| r[col("record")] == record)
+        .unwrap_or_else(|| panic!("{record} not in MANIFEST.tsv"));
+    assert_eq!(row[col("wfdb_reads")], "yes", "{record}");
+    (
+        row[col("fs")].parse().unwrap(),
+        row[col("n_sig")].parse().unwrap(),
+        row[col("sig_len")].parse().unwrap(),
+        row[col("formats")].to_string(),
+    )
+}
+
+#[test]
+fn conformance_flac_records() {
+    let Some(d) = data_dir() else { return };
+    let c = d.join("wfdb-conformance");
+    // Records of the wfdb-python sample data in FLAC formats 508/516/524; their
+    // lengths and rates are those MANIFEST.tsv lists for the `wfdb` package.
+    for name in ["flacformats", "flac_3_constant", "mixedsignals"] {
+        let w = wfdb::read_digital(&c.join(format!("{name}.hea"))).unwrap();
+        let (fs, n_sig, sig_len, formats) = manifest_row(&c, name);
         assert!(
-            matches!(e, FormatError::Unsupported { .. }) && e.to_string().contains(what),
-            "{name}: {e}"
+            (w.fs - fs).abs() <= 1e-5 * fs,
+            "{name}: fs {} vs {fs}",
+            w.fs
+        ); // MANIFEST rounds fs
+        assert_eq!((w.signals.len(), w.n_frames), (n_sig, sig_len), "{name}");
+        let mut fmts: Vec<String> = w
+            .signals
+            .iter()
+            .map(|s| s.spec.format.to_string())
+            .collect();
+        fmts.dedup();
+        assert_eq!(fmts.join(","), formats, "{name}");
+        for s in &w.signals {
+            assert_eq!(
+                s.samples.len() as u64,
+                sig_len * s.spec.samples_per_frame as u64,
+                "{name}"
+            );
+        }
+        // Every header checksum holds (a wrong channel order or sample would break it).
+        assert!(
+            !w.warnings.iter().any(|m| m.contains("checksum")),
+            "{name}: {:?}",
+            w.warnings
+        );
+    }
+    // flacformats: one signal per file, 8-, 16- and 24-bit streams; the first
+    // samples are the header's initial values, near each format's minimum.
+    let w = wfdb::read_digital(&c.join("flacformats.hea")).unwrap();
+    assert!(w.warnings.is_empty(), "{:?}", w.warnings);
+    let first: Vec<i32> = w.signals.iter().map(|s| s.samples[0]).collect();
+    assert_eq!(first, [-127, -32766, -8388605]);
+    // flac_3_constant: three constant columns; header initial values 25, 50, 75
+    // and checksums 15104 = 5600000 × 25 mod 65536 (and 2×, 3× that) say so.
+    let w = wfdb::read_digital(&c.join("flac_3_constant.hea")).unwrap();
+    for (k, s) in w.signals.iter().enumerate() {
+        let v = 25 * (k as i32 + 1);
+        assert!(s.samples.iter().all(|&x| x == v), "column {k}");
+    }
+    // mixedsignals: samples per frame 4, 4, 4 | 2, 2 | 1 in three FLAC files;
+    // stretches of the format-516 invalid value -32768 become NaN.
+    let r = wfdb::read_record(&c.join("mixedsignals.hea")).unwrap();
+    assert_eq!((r.fs, r.n_samples()), (62.4725 * 4.0, 57600));
+    let w = wfdb::read_digital(&c.join("mixedsignals.hea")).unwrap();
+    let n_bad = w.signals[0]
+        .samples
+        .iter()
+        .filter(|&&v| v == -32768)
+        .count();
+    assert!(n_bad > 0);
+    assert_eq!(
+        r.leads[0].samples.iter().filter(|v| v.is_nan()).count(),
+        n_bad
+    );
+}
+
+/// Copy the FLAC record `flacformats` (header and its three signal files) into
+/// a fresh tempdir, with `hea` as header text when given.
+fn flac_copy(c: &Path, hea: Option<&str>) -> (tempfile::TempDir, PathBuf) {
+    let dir = tempfile::tempdir().unwrap();
+    for f in [
+        "flacformats.hea",
+        "flacformats.d0",
+        "flacformats.d1",
+        "flacformats.d2",
+    ] {
+        std::fs::copy(c.join(f), dir.path().join(f)).unwrap();
+    }
+    let h = dir.path().join("flacformats.hea");
+    if let Some(t) = hea {
+        std::fs::write(&h, t).unwrap();
+    }
+    (dir, h)
+}
+
+#[test]
+fn damaged_flac_files_are_named() {
+    let Some(d) = data_dir() else { return };
+    let c = d.join("wfdb-conformance");
+    let whole = std::fs::read(c.join("flacformats.d1")).unwrap();
+    // Cut inside the last FLAC frame.
+    let (dir, h) = flac_copy(&c, None);
+    let d1 = dir.path().join("flacformats.d1");
+    std::fs::write(&d1, &whole[..whole.len() - 10]).unwrap();
+    let e = wfdb::read_digital(&h).unwrap_err();
+    assert!(
+        matches!(e, FormatError::Invalid { .. })
+            && e.path() == d1
+            && e.to_string().contains("truncated FLAC stream"),
+        "{e}"
+    );
+    // Cut inside the metadata.
+    std::fs::write(&d1, &whole[..20]).unwrap();
+    let e = wfdb::read_digital(&h).unwrap_err();
+    assert!(e.path() == d1 && e.to_string().contains("truncated"), "{e}");
+    // One byte of sample data changed: the frame CRC catches it.
+    let mut bad = whole.clone();
+    let at = bad.len() - 100;
+    bad[at] ^= 0x10;
+    std::fs::write(&d1, &bad).unwrap();
+    let e = wfdb::read_digital(&h).unwrap_err();
+    assert!(
+        e.path() == d1 && e.to_string().contains("damaged FLAC stream"),
+        "{e}"
+    );
+    // Not a FLAC file at all.
+    std::fs::write(&d1, [0u8; 100]).unwrap();
+    let e = wfdb::read_digital(&h).unwrap_err();
+    assert!(
+        e.path() == d1 && e.to_string().contains("not a FLAC stream"),
+        "{e}"
+    );
+    // An intact stream shorter than the header's length (499 frames stored).
+    let (dir, h) = flac_copy(
+        &c,
+        Some("flacformats 1 200 600\nflacformats.d1 516 200/mV 16 0 -32766 0 0 s\n"),
+    );
+    let e = wfdb::read_digital(&h).unwrap_err();
+    assert!(
+        e.path() == dir.path().join("flacformats.d1")
+            && e.to_string().contains("truncated")
+            && e.to_string().contains("holds 499"),
+        "{e}"
+    );
+}
+
+#[test]
+fn flac_header_variants_follow_wfdb() {
+    let Some(d) = data_dir() else { return };
+    let c = d.join("wfdb-conformance");
+    let base = wfdb::read_digital(&c.join("flacformats.hea")).unwrap();
+    let s0 = &base.signals[0].samples;
+    // `+5` counts FLAC samples, not bytes: the record starts at sample 5
+    // (wfdb-python `_rd_compressed_file`: `sf.seek(start_samp + sample_offset)`;
+    // wfdb 4.3.1 reads -57, -43, ... from this header, i.e. s0[5..]).
+    let (_dir, h) = flac_copy(&c, Some("flacformats 1 200 494\nflacformats.d0 508+5\n"));
+    let w = wfdb::read_digital(&h).unwrap();
+    assert_eq!(w.signals[0].samples, s0[5..]);
+    // An 8-bit stream under format 516 keeps its values (wfdb reads it so).
+    let (_dir, h) = flac_copy(&c, Some("flacformats 1 200 499\nflacformats.d0 516\n"));
+    assert_eq!(&wfdb::read_digital(&h).unwrap().signals[0].samples, s0);
+    // Two samples per frame: consecutive channel samples (WFDB frame layout).
+    let (_dir, h) = flac_copy(&c, Some("flacformats 1 200 249\nflacformats.d0 508x2\n"));
+    assert_eq!(
+        wfdb::read_digital(&h).unwrap().signals[0].samples,
+        s0[..498]
+    );
+    // What the wfdb package cannot read either is rejected, naming header or file.
+    for (hea, kind, what, file) in [
+        (
+            "flacformats 2 200 400\nflacformats.d0 508 200 8 0 0 0 0 a\nflacformats.d0 508:2 200 8 0 0 0 0 b\n",
+            "unsupported",
+            "line 3 (signal 1, `b`): skew",
+            "flacformats.hea",
+        ),
+        (
+            "flacformats 1 200\nflacformats.d0 508\n",
+            "unsupported",
+            "no length",
+            "flacformats.hea",
+        ),
+        (
+            "flacformats 1 200 400\nflacformats.d1 508\n",
+            "invalid",
+            "16 bits per sample",
+            "flacformats.d1",
+        ),
+        (
+            "flacformats 2 200 400\nflacformats.d0 508\nflacformats.d0 508\n",
+            "invalid",
+            "1 channels",
+            "flacformats.d0",
+        ),
+        (
+            "flacformats 2 200 100\nflacformats.d0 508x2 200 8 0 0 0 0 a\nflacformats.d0 508 200 8 0 0 0 0 b\n",
+            "unsupported",
+            "line 3 (signal 1, `b`): the signals of the FLAC-compressed file `flacformats.d0` have different samples per frame",
+            "flacformats.hea",
+        ),
+    ] {
+        let (dir, h) = flac_copy(&c, Some(hea));
+        let e = wfdb::read_digital(&h).unwrap_err();
+        let got = match e {
+            FormatError::Unsupported { .. } => "unsupported",
+            FormatError::Invalid { .. } => "invalid",
+            FormatError::Io { .. } => "io",
+        };
+        assert!(
+            got == kind && e.to_string().contains(what) && e.path() == dir.path().join(file),
+            "{hea:?}: {e}"
         );
     }
 }

@@ -16,8 +16,12 @@
 //! - 310: three 10-bit samples in two 16-bit little-endian words, bit 0 of each
 //!   word unused, the third sample split over bits 11-15 of both words;
 //! - 311: three 10-bit samples in one 32-bit little-endian word (bits 0-9, 10-19, 20-29).
+//!
+//! The FLAC-compressed formats 508, 516, 524 are no byte stream of samples;
+//! the `flac` module reads them (their invalid values are given here).
 
-/// Whether this module can decode `format`.
+/// Whether this module can decode `format` (the byte-stream formats; see also
+/// [`super::is_flac`]).
 pub fn is_supported(format: u32) -> bool {
     matches!(format, 8 | 16 | 24 | 32 | 61 | 80 | 160 | 212 | 310 | 311)
 }
@@ -25,23 +29,23 @@ pub fn is_supported(format: u32) -> bool {
 /// Human explanation for a format code this reader does not decode.
 pub fn unsupported_reason(format: u32) -> String {
     match format {
-        508 | 516 | 524 => {
-            format!("signal format {format} (FLAC-compressed) is not supported by this reader")
-        }
         0 => "signal format 0 (null signal without samples) is not supported by this reader".into(),
         _ => format!("unknown signal format code {format}"),
     }
 }
 
 /// Value that marks an invalid (missing) sample in `format`, if the format has one
-/// (WFDB convention; the `wfdb` Python package maps these to NaN).
+/// (WFDB convention; the `wfdb` Python package maps these to NaN). For the FLAC
+/// formats it is the most negative value of the format's width (8, 16, 24 bits),
+/// whatever the width of the stream itself (`INVALID_SAMPLE_VALUE` in
+/// wfdb-python's `wfdb/io/_signal.py`).
 pub fn invalid_value(format: u32) -> Option<i32> {
     match format {
-        80 => Some(-(1 << 7)),
+        80 | 508 => Some(-(1 << 7)),
         310 | 311 => Some(-(1 << 9)),
         212 => Some(-(1 << 11)),
-        16 | 61 | 160 => Some(-(1 << 15)),
-        24 => Some(-(1 << 23)),
+        16 | 61 | 160 | 516 => Some(-(1 << 15)),
+        24 | 524 => Some(-(1 << 23)),
         32 => Some(i32::MIN),
         _ => None,
     }

@@ -6,7 +6,9 @@
 //! - [`read_record`] returns a [`Record`] in physical units (millivolts where the
 //!   units allow) with one sampling rate for all leads.
 //!
-//! Supported: signal formats 8, 16, 24, 32, 61, 80, 160, 212, 310, 311; samples
+//! Supported: signal formats 8, 16, 24, 32, 61, 80, 160, 212, 310, 311, and the
+//! FLAC-compressed formats 508, 516, 524 (layout and limits in the `flac`
+//! module: one FLAC channel per signal; `+` counts samples, not bytes); samples
 //! per frame (`x`), skew (`:`), byte offsets (`+`), records spread over several
 //! signal files, headers without a length (the length is inferred from the size
 //! of the first signal file, as the `wfdb` Python package does), counter
@@ -14,7 +16,11 @@
 //! fixed-layout multi-segment records (segments concatenated).
 //!
 //! Not supported, rejected with [`FormatError::Unsupported`]:
-//! - FLAC-compressed formats 508, 516, 524;
+//! - in FLAC-compressed files (508, 516, 524): skew, signals of one file with
+//!   different samples per frame, a header without a length, streams of other
+//!   than 8, 16 or 24 bits per sample (none of which the `wfdb` Python package
+//!   reads), and FLAC streams with escape-coded residual partitions, which the
+//!   FLAC decoder used (`claxon`) does not implement;
 //! - signal files in `.wav` containers, and `.mat` files other than MATLAB
 //!   version 4 (see `check_mat_v4`);
 //! - variable-layout multi-segment records (a layout segment or null `~` segments);
@@ -37,9 +43,11 @@
 //! one) become NaN in physical units, as the `wfdb` Python package does.
 
 mod decode;
+mod flac;
 mod header;
 
 pub use decode::{bytes_for_samples, decode_into, invalid_value, is_supported, samples_in_bytes};
+pub use flac::is_flac;
 pub use header::{parse_header, Header, SegmentSpec, SignalSpec, DEFAULT_ADC_GAIN, DEFAULT_FS_HZ};
 
 use std::ffi::OsString;
@@ -175,9 +183,9 @@ fn read_single(path: &Path, header: Header) -> Result<WfdbSignals, FormatError> 
                 at("null signal (file `~`) is not supported".into()),
             ));
         }
-        if !is_supported(s.format) {
+        if !is_supported(s.format) && !is_flac(s.format) {
             let reason = decode::unsupported_reason(s.format);
-            return Err(if matches!(s.format, 0 | 508 | 516 | 524) {
+            return Err(if s.format == 0 {
                 unsupported(path, at(reason))
             } else {
                 invalid(path, at(reason))
@@ -225,6 +233,21 @@ fn read_single(path: &Path, header: Header) -> Result<WfdbSignals, FormatError> 
             }),
         }
     }
+    let flac_layouts: Vec<Option<flac::FlacLayout>> = groups
+        .iter()
+        .map(|g| {
+            if !is_flac(g.format) {
+                return Ok(None);
+            }
+            let lay = flac_layout(path, &header, g);
+            let at = |k: usize, m: String| {
+                let (i, s) = (g.signals[k], &header.signals[g.signals[k]]);
+                format!("line {} (signal {i}, `{}`): {m}", s.line, s.description)
+            };
+            flac::check_layout(&lay, &g.name, at)?;
+            Ok(Some(lay))
+        })
+        .collect::<Result<_, FormatError>>()?;
     let mut files = vec![path.to_path_buf()];
     let mut warnings = Vec::new();
     let mut opened = Vec::new();
@@ -240,7 +263,8 @@ fn read_single(path: &Path, header: Header) -> Result<WfdbSignals, FormatError> 
             )
         })?;
         let len = f.metadata().map_err(|e| io(&fpath, e))?.len();
-        if len < g.offset {
+        // A FLAC file's offset counts samples, checked while decoding.
+        if len < g.offset && !is_flac(g.format) {
             return Err(invalid(
                 &fpath,
                 format!(
@@ -252,17 +276,40 @@ fn read_single(path: &Path, header: Header) -> Result<WfdbSignals, FormatError> 
         if g.name.to_ascii_lowercase().ends_with(".mat") {
             check_mat_v4(&fpath, &f, len, g)?;
         }
-        opened.push((fpath, f, len - g.offset));
+        opened.push((fpath, f, len.saturating_sub(g.offset)));
     }
     let n_frames = match header.n_frames {
         Some(n) => n,
+        // As in the `wfdb` Python package, the first signal's file gives the length.
         None => match (groups.first(), opened.first()) {
+            (Some(g), Some((fpath, _, _))) if is_flac(g.format) => {
+                return Err(unsupported(
+                    path,
+                    format!(
+                        "the record line gives no length, and the length of the FLAC-compressed \
+                         file `{}` cannot be inferred from its size (the wfdb Python package \
+                         cannot either)",
+                        fpath.display()
+                    ),
+                ));
+            }
             (Some(g), Some((_, _, avail))) => frames_from_size(g.format, *avail, g.tspf),
             _ => 0,
         },
     };
     let mut signals: Vec<Option<DigitalSignal>> = vec![None; header.signals.len()];
-    for (g, (fpath, mut f, avail)) in groups.iter().zip(opened) {
+    for ((g, (fpath, mut f, avail)), lay) in groups.iter().zip(opened).zip(&flac_layouts) {
+        if let Some(lay) = lay {
+            let outs = flac::read_signals(&fpath, f, lay, n_frames)?;
+            for (&i, out) in g.signals.iter().zip(outs) {
+                signals[i] = Some(DigitalSignal {
+                    spec: header.signals[i].clone(),
+                    samples: out,
+                });
+            }
+            files.push(fpath);
+            continue;
+        }
         let want_samples = n_frames.checked_mul(g.tspf).ok_or_else(|| {
             invalid(
                 path,
@@ -309,6 +356,19 @@ fn read_single(path: &Path, header: Header) -> Result<WfdbSignals, FormatError> 
         files,
         warnings,
     })
+}
+
+/// What the header says a FLAC-compressed file `g` holds.
+fn flac_layout<'a>(path: &'a Path, header: &Header, g: &FileGroup) -> flac::FlacLayout<'a> {
+    let sig =
+        |f: fn(&SignalSpec) -> u32| g.signals.iter().map(|&i| f(&header.signals[i])).collect();
+    flac::FlacLayout {
+        header_path: path,
+        format: g.format,
+        spf: sig(|s| s.samples_per_frame),
+        skew: sig(|s| s.skew),
+        sample_offset: g.offset,
+    }
 }
 
 /// Where one signal sits in the frames of its file.
