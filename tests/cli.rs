@@ -30,6 +30,18 @@ fn copy_ludb(dir: &Path, rec: &str) {
     }
 }
 
+/// `tendline run <inputs>... --out <out> --quiet`.
+fn run_quiet(inputs: &[PathBuf], out: &Path) -> Output {
+    bin()
+        .arg("run")
+        .args(inputs)
+        .arg("--out")
+        .arg(out)
+        .arg("--quiet")
+        .output()
+        .unwrap()
+}
+
 fn text(o: &Output) -> String {
     format!(
         "{}{}",
@@ -100,14 +112,7 @@ fn record_whose_output_cannot_be_put_in_place_fails_alone() {
     copy_ludb(inp.path(), "1");
     copy_ludb(inp.path(), "2");
     std::fs::create_dir_all(out.path().join("annotations/2.leadmark/blocker")).unwrap();
-    let o = bin()
-        .arg("run")
-        .arg(inp.path())
-        .arg("--out")
-        .arg(out.path())
-        .arg("--quiet")
-        .output()
-        .unwrap();
+    let o = run_quiet(&[inp.path().into()], out.path());
     let t = text(&o);
     assert_eq!(o.status.code(), Some(1), "{t}");
     assert!(t.contains("1 record(s) failed"), "{t}");
@@ -240,16 +245,14 @@ fn unresolvable_inputs_fail_alone_and_same_file_twice_runs_once() {
     // Another file with the record name `1`: flagged, not read.
     std::fs::write(inp.path().join("1.edf"), b"not read").unwrap();
     std::fs::write(inp.path().join("RECORDS"), "1\nmissing\n../up\n").unwrap();
-    let o = bin()
-        .arg("run")
-        .arg(inp.path().join("RECORDS"))
-        .arg(inp.path().join("1.hea")) // the same file again
-        .arg(inp.path().join("1.edf"))
-        .arg("--out")
-        .arg(out.path())
-        .arg("--quiet")
-        .output()
-        .unwrap();
+    let o = run_quiet(
+        &[
+            inp.path().join("RECORDS"),
+            inp.path().join("1.hea"), // the same file again
+            inp.path().join("1.edf"),
+        ],
+        out.path(),
+    );
     let t = text(&o);
     assert_eq!(o.status.code(), Some(1), "{t}");
     assert!(t.contains("3 record(s) failed"), "{t}");
@@ -275,14 +278,7 @@ fn non_ecg_signals_and_missing_samples() {
     // (missing) samples in every signal; `wfdb.rdrecord` reads 3, 2, 17 and 1
     // of them as NaN (the reader's cross-check in tests/python).
     let out = tempfile::tempdir().unwrap();
-    let o = bin()
-        .arg("run")
-        .arg(data().join("wfdb-conformance/v102s.hea"))
-        .arg("--out")
-        .arg(out.path())
-        .arg("--quiet")
-        .output()
-        .unwrap();
+    let o = run_quiet(&[data().join("wfdb-conformance/v102s.hea")], out.path());
     assert!(o.status.success(), "{}", text(&o));
     let part = tendline_store::Part::load(&out.path().join("parts/v102s.json"))
         .unwrap()
@@ -316,14 +312,7 @@ fn results_carry_version_config_and_input_checksums() {
     let inp = tempfile::tempdir().unwrap();
     let out = tempfile::tempdir().unwrap();
     copy_ludb(inp.path(), "5");
-    let o = bin()
-        .arg("run")
-        .arg(inp.path())
-        .arg("--out")
-        .arg(out.path())
-        .arg("--quiet")
-        .output()
-        .unwrap();
+    let o = run_quiet(&[inp.path().into()], out.path());
     assert!(o.status.success(), "{}", text(&o));
     let part = std::fs::read_to_string(out.path().join("parts/5.json")).unwrap();
     // SHA-256 of the input files, computed here independently with the sha2 crate.
@@ -350,14 +339,7 @@ fn review_site_and_corrections_round_trip_through_the_binary() {
         )
         .unwrap();
     }
-    let o = bin()
-        .arg("run")
-        .arg(inp.path())
-        .arg("--out")
-        .arg(out.path())
-        .arg("--quiet")
-        .output()
-        .unwrap();
+    let o = run_quiet(&[inp.path().into()], out.path());
     assert!(o.status.success(), "{}", text(&o));
     let o = bin().arg("review").arg(out.path()).output().unwrap();
     assert!(o.status.success(), "{}", text(&o));

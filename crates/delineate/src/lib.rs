@@ -35,8 +35,10 @@
 //!   peaks and the T morphology come from the lead with the highest
 //!   confidence for that mark. A lead P wave whose peak lies outside the
 //!   global P span is searched again near the other leads' P
-//!   (`lead_p_within_global`), and each lead's boundaries are then held
-//!   within the global span of their wave (`lead_marks_within_global`).
+//!   (`lead_p_within_global`); each lead's P and QRS boundaries are then
+//!   held to the median offsets of the lead's neighbouring beats
+//!   (`lead_ensemble_*`, module `ensemble`), and held within the global span
+//!   of their wave (`lead_marks_within_global`).
 //! * A biphasic T is reported as such, but its onset and end are searched
 //!   from its dominant slope pair unless `t_biphasic_outer_bounds` is set.
 //! * P waves are dropped in every lead where the PR interval scatters over
@@ -47,6 +49,7 @@
 //!   no earlier than the previous beat's wavelet T end.
 
 mod config;
+mod ensemble;
 mod global;
 mod lead;
 mod prhythm;
@@ -460,8 +463,9 @@ pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig
 
 /// What follows the single-lead delineation of every lead: P waves dropped
 /// where the PR scatters and searched again where most leads have one, the
-/// global marks, lead waves outside the global span, lead boundaries held to
-/// it, and the method agreement put into the reported T-end confidences.
+/// global marks, lead waves outside the global span, lead P and QRS
+/// boundaries held to the lead's neighbouring beats and to the global span,
+/// and the method agreement put into the reported T-end confidences.
 fn across_leads(
     las: &[Option<&lead::LeadAnalysis>],
     mut per_lead: Vec<Vec<BeatMarks>>,
@@ -475,6 +479,7 @@ fn across_leads(
     if within_global(las, &mut per_lead, &global, qrs, cfg) {
         global = global::combine(&per_lead, las, qrs.len(), fs, cfg);
     }
+    ensemble::hold_to_neighbours(&mut per_lead, qrs, fs, cfg);
     if cfg.lead_marks_within_global {
         global::clip_leads_to_global(&mut per_lead, &global);
     }

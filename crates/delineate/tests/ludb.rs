@@ -193,10 +193,14 @@ fn ludb_per_lead_marks_against_cardiologists() {
         // lead P outside the global P span searched again near the other
         // leads' P): P onset 19.0 -> 17.0, P end 19.1 -> 17.7, P
         // sensitivity 97.73 -> 97.79 %, PPV 97.92 -> 98.23 %.
-        ("qrs_on", 99.8, 5.5, 14.4),
+        // Then lead_ensemble_beats 6 (a lead's P and QRS boundaries held to
+        // the median offsets of its neighbouring beats): QRS onset mean 5.35
+        // -> 6.10, SD 13.70 -> 12.76; QRS end SD 15.80 -> 15.32; P onset
+        // 16.97 -> 15.90, P end 17.73 -> 16.11 (this table, library-level).
+        ("qrs_on", 99.8, 6.4, 13.1),
         // QRS end with the wide-complex extension (`qrs_post_wide_ms` 160):
         // mean -2.88 -> -2.27 ms, SD 16.54 -> 15.80 ms.
-        ("qrs_end", 99.8, 3.1, 16.1),
+        ("qrs_end", 99.8, 3.1, 15.6),
         // T rows with t_min_slope_mv_per_s 0.3 (more low T waves found: T
         // sensitivity 98.9 %, the added ones harder: SDs up 0.3-0.6 ms).
         // T peak with t_peak_crossing beside_larger_limb: SD 22.8 -> 22.4;
@@ -219,8 +223,8 @@ fn ludb_per_lead_marks_against_cardiologists() {
         // the added ones harder: SDs up 0.5-0.6 ms).
         ("p_sens", 97.6, 0.0, 0.0),
         ("p_ppv", 97.9, 0.0, 0.0),
-        ("p_on", 99.7, 3.6, 17.6),
-        ("p_end", 99.8, 6.5, 18.3),
+        ("p_on", 99.7, 3.6, 16.2),
+        ("p_end", 99.8, 6.5, 16.4),
     ];
     for (k, sens, mean, sd) in limits {
         let a = &t[k];

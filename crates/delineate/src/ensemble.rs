@@ -1,0 +1,212 @@
+//! A lead's P and QRS boundaries held to the lead's own neighbouring beats.
+//!
+//! On one lead, beat after beat in the same rhythm, the P wave and the QRS
+//! complex keep their place relative to the QRS fiducial (common practice: the
+//! PR interval and the QRS duration change little over a few seconds). A
+//! single beat's boundaries, found on that beat alone, carry its noise: a
+//! low P wave taken on another deflection, a QRS onset moved by a noise
+//! spike. Here each beat's P onset, peak and end, and QRS onset and end, are
+//! replaced by the median of their offsets to the fiducial over the beat and
+//! its `lead_ensemble_beats` neighbours on each side that have the same marks
+//! (at least `lead_ensemble_min_beats` of them): the per-beat counterpart of
+//! measuring on a median beat.
+//!
+//! A beat whose own marks lie further than the gate from that median
+//! (`lead_ensemble_p_gate_ms`, `lead_ensemble_qrs_gate_ms`) keeps them: a
+//! premature or ectopic beat, a changed conduction. A move that would break
+//! the order of the beat's waves (previous T end, P, QRS onset, QRS peak,
+//! T onset or peak) is not made. Positions are samples of the input rate;
+//! a median of an even count is the mean of the two middle values, rounded.
+
+use crate::{BeatMarks, DelineateConfig, Mark};
+
+fn median(v: &mut [f64]) -> f64 {
+    v.sort_by(|a, b| a.total_cmp(b));
+    let n = v.len();
+    if n % 2 == 1 {
+        v[n / 2]
+    } else {
+        0.5 * (v[n / 2 - 1] + v[n / 2])
+    }
+}
+
+/// Median offsets (samples) to the fiducial of `fields(m)` over the beats of
+/// `lo..hi` that have all of them; `None` below `min_beats` such beats.
+fn median_offsets<const N: usize>(
+    marks: &[BeatMarks],
+    qrs: &[usize],
+    lo: usize,
+    hi: usize,
+    min_beats: usize,
+    fields: impl Fn(&BeatMarks) -> [Option<Mark>; N],
+) -> Option<[f64; N]> {
+    let mut d: [Vec<f64>; N] = std::array::from_fn(|_| Vec::with_capacity(hi - lo));
+    for j in lo..hi {
+        let f = fields(&marks[j]);
+        if f.iter().all(Option::is_some) {
+            for (k, m) in f.iter().enumerate() {
+                d[k].push(m.expect("checked").sample as f64 - qrs[j] as f64);
+            }
+        }
+    }
+    if d[0].len() < min_beats.max(1) {
+        return None;
+    }
+    Some(std::array::from_fn(|k| median(&mut d[k])))
+}
+
+/// Apply the rule of the module docs to every lead (`lead_ensemble_beats` 0:
+/// nothing changes).
+pub(crate) fn hold_to_neighbours(
+    per_lead: &mut [Vec<BeatMarks>],
+    qrs: &[usize],
+    fs: f64,
+    cfg: &DelineateConfig,
+) {
+    let half = cfg.lead_ensemble_beats;
+    if half == 0 || !(fs.is_finite() && fs > 0.0) {
+        return;
+    }
+    let p_gate = cfg.lead_ensemble_p_gate_ms * fs / 1000.0;
+    let qrs_gate = cfg.lead_ensemble_qrs_gate_ms * fs / 1000.0;
+    let min_beats = cfg.lead_ensemble_min_beats;
+    for lead in per_lead.iter_mut() {
+        let orig = lead.clone();
+        let n = orig.len().min(qrs.len());
+        for b in 0..n {
+            let (lo, hi) = (b.saturating_sub(half), (b + half + 1).min(n));
+            let at = |v: f64| (qrs[b] as f64 + v).round().max(0.0) as usize;
+            let moved = |own: Mark, s: usize| Mark {
+                sample: s,
+                confidence: own.confidence,
+            };
+            let within =
+                |own: Mark, s: usize, gate: f64| (s as f64 - own.sample as f64).abs() <= gate;
+            // P onset, peak and end together.
+            let own = &orig[b];
+            if let (Some(on), Some(pk), Some(en)) = (own.p_on, own.p_peak, own.p_end) {
+                let p = |m: &BeatMarks| [m.p_on, m.p_peak, m.p_end];
+                if let Some(d) = median_offsets(&orig, qrs, lo, hi, min_beats, p) {
+                    let (s_on, s_pk, s_en) = (at(d[0]), at(d[1]), at(d[2]));
+                    // The previous beat's T end as it stands now.
+                    let floor = b
+                        .checked_sub(1)
+                        .and_then(|a| lead[a].t_end)
+                        .map_or(0, |m| m.sample + 1);
+                    let ceil = own.qrs_on.map_or(usize::MAX, |m| m.sample);
+                    if within(on, s_on, p_gate)
+                        && within(pk, s_pk, p_gate)
+                        && within(en, s_en, p_gate)
+                        && floor <= s_on
+                        && s_on < s_pk
+                        && s_pk < s_en
+                        && s_en <= ceil
+                    {
+                        lead[b].p_on = Some(moved(on, s_on));
+                        lead[b].p_peak = Some(moved(pk, s_pk));
+                        lead[b].p_end = Some(moved(en, s_en));
+                    }
+                }
+            }
+            // QRS onset and end (the peak stays: it is the lead's own extremum).
+            if let (Some(on), Some(pk), Some(en)) = (own.qrs_on, own.qrs_peak, own.qrs_end) {
+                let f = |m: &BeatMarks| [m.qrs_on, m.qrs_peak, m.qrs_end];
+                if let Some(d) = median_offsets(&orig, qrs, lo, hi, min_beats, f) {
+                    let (s_on, s_en) = (at(d[0]), at(d[2]));
+                    let floor = lead[b].p_end.map_or(0, |m| m.sample);
+                    let ceil = own.t_on.or(own.t_peak).map_or(usize::MAX, |m| m.sample);
+                    if within(on, s_on, qrs_gate)
+                        && within(en, s_en, qrs_gate)
+                        && floor <= s_on
+                        && s_on < pk.sample
+                        && pk.sample < s_en
+                        && s_en < ceil
+                    {
+                        lead[b].qrs_on = Some(moved(on, s_on));
+                        lead[b].qrs_end = Some(moved(en, s_en));
+                    }
+                }
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn m(s: usize) -> Option<Mark> {
+        Some(Mark {
+            sample: s,
+            confidence: 0.5,
+        })
+    }
+
+    /// Beats every 500 samples (fs 500 Hz); P at -100/-80/-60 and QRS at
+    /// -20/0/+40 samples from the fiducial, plus `jitter[b]` on P onset and
+    /// QRS end; T peak at +150.
+    fn lead(jitter: &[i64]) -> (Vec<BeatMarks>, Vec<usize>) {
+        let qrs: Vec<usize> = (0..jitter.len()).map(|b| 1000 + 500 * b).collect();
+        let marks = qrs
+            .iter()
+            .zip(jitter)
+            .map(|(&q, &j)| BeatMarks {
+                p_on: m((q as i64 - 100 + j) as usize),
+                p_peak: m(q - 80),
+                p_end: m(q - 60),
+                qrs_on: m(q - 20),
+                qrs_peak: m(q),
+                qrs_end: m((q as i64 + 40 + j) as usize),
+                t_peak: m(q + 150),
+                ..Default::default()
+            })
+            .collect();
+        (marks, qrs)
+    }
+
+    #[test]
+    fn jittered_boundaries_take_the_neighbours_median_and_outliers_stay() {
+        let cfg = DelineateConfig::default();
+        assert!(cfg.lead_ensemble_beats >= 3);
+        // Oracle: with offsets constant but for the jitter, the median of the
+        // jittered offsets over the window is the constant offset itself.
+        let jitter = [0, 3, -4, 2, 0, -1, 30, 0, 1, -2, 0];
+        let (marks, qrs) = lead(&jitter);
+        let mut per_lead = vec![marks.clone()];
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg);
+        for (b, (got, q)) in per_lead[0].iter().zip(&qrs).enumerate() {
+            // 30 samples = 60 ms: beyond the 40-ms QRS gate, within the P gate.
+            let qrs_end = if b == 6 { q + 70 } else { q + 40 };
+            assert_eq!(got.qrs_end.unwrap().sample, qrs_end, "beat {b}");
+            assert_eq!(got.p_on.unwrap().sample, q - 100, "beat {b}");
+            assert_eq!(got.qrs_peak, marks[b].qrs_peak);
+            assert_eq!(got.p_on.unwrap().confidence, 0.5);
+        }
+        // Off: nothing moves.
+        let off = DelineateConfig {
+            lead_ensemble_beats: 0,
+            ..cfg.clone()
+        };
+        let mut per_lead = vec![marks.clone()];
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &off);
+        assert_eq!(per_lead[0], marks);
+    }
+
+    #[test]
+    fn a_move_across_a_neighbouring_wave_is_not_made() {
+        let cfg = DelineateConfig::default();
+        let (mut marks, qrs) = lead(&[0; 9]);
+        // Beat 4: its QRS starts early (at -70, beyond the QRS gate from the
+        // median -20, so it stays), so the median P end (-60) would lie inside
+        // its QRS; its P is left alone although within the P gate.
+        marks[4].qrs_on = m(qrs[4] - 70);
+        marks[4].p_on = m(qrs[4] - 130);
+        marks[4].p_peak = m(qrs[4] - 110);
+        marks[4].p_end = m(qrs[4] - 90);
+        let mut per_lead = vec![marks.clone()];
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg);
+        assert_eq!(per_lead[0][4].p_end, marks[4].p_end);
+        assert_eq!(per_lead[0][4].p_on, marks[4].p_on);
+        assert_eq!(per_lead[0][3].p_on.unwrap().sample, qrs[3] - 100);
+    }
+}
