@@ -21,8 +21,21 @@
 use crate::{BeatMarks, DelineateConfig, Mark};
 
 fn median(v: &mut [f64]) -> f64 {
-    v.sort_by(|a, b| a.total_cmp(b));
     let n = v.len();
+    if n <= 64 {
+        // Windows are a dozen beats: insertion sort is the cheapest here.
+        for i in 1..n {
+            let x = v[i];
+            let mut j = i;
+            while j > 0 && v[j - 1] > x {
+                v[j] = v[j - 1];
+                j -= 1;
+            }
+            v[j] = x;
+        }
+    } else {
+        v.sort_unstable_by(|a, b| a.total_cmp(b));
+    }
     if n % 2 == 1 {
         v[n / 2]
     } else {
@@ -30,29 +43,41 @@ fn median(v: &mut [f64]) -> f64 {
     }
 }
 
-/// Median offsets (samples) to the fiducial of `fields(m)` over the beats of
-/// `lo..hi` that have all of them; `None` below `min_beats` such beats.
-fn median_offsets<const N: usize>(
+/// Offsets (samples) of three marks to the fiducial, per beat; `None` where
+/// one of the marks is missing.
+fn offsets(
     marks: &[BeatMarks],
     qrs: &[usize],
+    fields: impl Fn(&BeatMarks) -> [Option<Mark>; 3],
+) -> Vec<Option<[f64; 3]>> {
+    marks
+        .iter()
+        .zip(qrs)
+        .map(|(m, &q)| match fields(m) {
+            [Some(a), Some(b), Some(c)] => Some([a, b, c].map(|x| x.sample as f64 - q as f64)),
+            _ => None,
+        })
+        .collect()
+}
+
+/// Medians of `off` over `lo..hi` (beats that have all three marks); `None`
+/// below `min_beats` such beats. `buf` is scratch space.
+fn median_offsets(
+    off: &[Option<[f64; 3]>],
     lo: usize,
     hi: usize,
     min_beats: usize,
-    fields: impl Fn(&BeatMarks) -> [Option<Mark>; N],
-) -> Option<[f64; N]> {
-    let mut d: [Vec<f64>; N] = std::array::from_fn(|_| Vec::with_capacity(hi - lo));
-    for j in lo..hi {
-        let f = fields(&marks[j]);
-        if f.iter().all(Option::is_some) {
-            for (k, m) in f.iter().enumerate() {
-                d[k].push(m.expect("checked").sample as f64 - qrs[j] as f64);
-            }
-        }
-    }
-    if d[0].len() < min_beats.max(1) {
+    buf: &mut Vec<f64>,
+) -> Option<[f64; 3]> {
+    let count = off[lo..hi].iter().flatten().count();
+    if count < min_beats.max(1) {
         return None;
     }
-    Some(std::array::from_fn(|k| median(&mut d[k])))
+    Some(std::array::from_fn(|k| {
+        buf.clear();
+        buf.extend(off[lo..hi].iter().flatten().map(|d| d[k]));
+        median(buf)
+    }))
 }
 
 /// Apply the rule of the module docs to every lead (`lead_ensemble_beats` 0:
@@ -70,9 +95,11 @@ pub(crate) fn hold_to_neighbours(
     let p_gate = cfg.lead_ensemble_p_gate_ms * fs / 1000.0;
     let qrs_gate = cfg.lead_ensemble_qrs_gate_ms * fs / 1000.0;
     let min_beats = cfg.lead_ensemble_min_beats;
+    let mut buf = Vec::with_capacity(2 * half + 1);
     for lead in per_lead.iter_mut() {
-        let orig = lead.clone();
-        let n = orig.len().min(qrs.len());
+        let n = lead.len().min(qrs.len());
+        let p_off = offsets(&lead[..n], qrs, |m| [m.p_on, m.p_peak, m.p_end]);
+        let q_off = offsets(&lead[..n], qrs, |m| [m.qrs_on, m.qrs_peak, m.qrs_end]);
         for b in 0..n {
             let (lo, hi) = (b.saturating_sub(half), (b + half + 1).min(n));
             let at = |v: f64| (qrs[b] as f64 + v).round().max(0.0) as usize;
@@ -82,11 +109,12 @@ pub(crate) fn hold_to_neighbours(
             };
             let within =
                 |own: Mark, s: usize, gate: f64| (s as f64 - own.sample as f64).abs() <= gate;
+            // The beat's own marks: moves of this pass touch only beat `b`,
+            // and its neighbours' offsets were taken before any move.
+            let own = lead[b].clone();
             // P onset, peak and end together.
-            let own = &orig[b];
             if let (Some(on), Some(pk), Some(en)) = (own.p_on, own.p_peak, own.p_end) {
-                let p = |m: &BeatMarks| [m.p_on, m.p_peak, m.p_end];
-                if let Some(d) = median_offsets(&orig, qrs, lo, hi, min_beats, p) {
+                if let Some(d) = median_offsets(&p_off, lo, hi, min_beats, &mut buf) {
                     let (s_on, s_pk, s_en) = (at(d[0]), at(d[1]), at(d[2]));
                     // The previous beat's T end as it stands now.
                     let floor = b
@@ -110,8 +138,7 @@ pub(crate) fn hold_to_neighbours(
             }
             // QRS onset and end (the peak stays: it is the lead's own extremum).
             if let (Some(on), Some(pk), Some(en)) = (own.qrs_on, own.qrs_peak, own.qrs_end) {
-                let f = |m: &BeatMarks| [m.qrs_on, m.qrs_peak, m.qrs_end];
-                if let Some(d) = median_offsets(&orig, qrs, lo, hi, min_beats, f) {
+                if let Some(d) = median_offsets(&q_off, lo, hi, min_beats, &mut buf) {
                     let (s_on, s_en) = (at(d[0]), at(d[2]));
                     let floor = lead[b].p_end.map_or(0, |m| m.sample);
                     let ceil = own.t_on.or(own.t_peak).map_or(usize::MAX, |m| m.sample);
