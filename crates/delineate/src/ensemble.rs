@@ -15,7 +15,8 @@
 //! (`lead_ensemble_p_gate_ms`, `lead_ensemble_qrs_gate_ms`) keeps them: a
 //! premature or ectopic beat, a changed conduction. A move that would break
 //! the order of the beat's waves (previous T end, P, QRS onset, QRS peak,
-//! T onset or peak) is not made. Positions are samples of the input rate;
+//! T onset or peak) is not made. The global QRS onset and end take the same
+//! rule (`global_ensemble_qrs`); the global P does not. Positions are samples of the input rate;
 //! a median of an even count is the mean of the two middle values, rounded.
 
 use crate::{BeatMarks, DelineateConfig, Mark};
@@ -81,12 +82,14 @@ fn median_offsets(
 }
 
 /// Apply the rule of the module docs to every lead (`lead_ensemble_beats` 0:
-/// nothing changes).
+/// nothing changes); the P marks only with `with_p` (the global marks take
+/// the QRS part alone, `global_ensemble_qrs`).
 pub(crate) fn hold_to_neighbours(
     per_lead: &mut [Vec<BeatMarks>],
     qrs: &[usize],
     fs: f64,
     cfg: &DelineateConfig,
+    with_p: bool,
 ) {
     let half = cfg.lead_ensemble_beats;
     if half == 0 || !(fs.is_finite() && fs > 0.0) {
@@ -113,7 +116,8 @@ pub(crate) fn hold_to_neighbours(
             // and its neighbours' offsets were taken before any move.
             let own = lead[b].clone();
             // P onset, peak and end together.
-            if let (Some(on), Some(pk), Some(en)) = (own.p_on, own.p_peak, own.p_end) {
+            if let (true, Some(on), Some(pk), Some(en)) = (with_p, own.p_on, own.p_peak, own.p_end)
+            {
                 if let Some(d) = median_offsets(&p_off, lo, hi, min_beats, &mut buf) {
                     let (s_on, s_pk, s_en) = (at(d[0]), at(d[1]), at(d[2]));
                     // The previous beat's T end as it stands now.
@@ -200,7 +204,7 @@ mod tests {
         let jitter = [0, 3, -4, 2, 0, -1, 30, 0, 1, -2, 0];
         let (marks, qrs) = lead(&jitter);
         let mut per_lead = vec![marks.clone()];
-        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg);
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true);
         for (b, (got, q)) in per_lead[0].iter().zip(&qrs).enumerate() {
             // 30 samples = 60 ms: beyond the 40-ms QRS gate, within the P gate.
             let qrs_end = if b == 6 { q + 70 } else { q + 40 };
@@ -209,13 +213,18 @@ mod tests {
             assert_eq!(got.qrs_peak, marks[b].qrs_peak);
             assert_eq!(got.p_on.unwrap().confidence, 0.5);
         }
+        // Without the P part (the global marks): P stays, the QRS moves.
+        let mut per_lead = vec![marks.clone()];
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, false);
+        assert_eq!(per_lead[0][1].p_on, marks[1].p_on);
+        assert_eq!(per_lead[0][1].qrs_end.unwrap().sample, qrs[1] + 40);
         // Off: nothing moves.
         let off = DelineateConfig {
             lead_ensemble_beats: 0,
             ..cfg.clone()
         };
         let mut per_lead = vec![marks.clone()];
-        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &off);
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &off, true);
         assert_eq!(per_lead[0], marks);
     }
 
@@ -231,7 +240,7 @@ mod tests {
         marks[4].p_peak = m(qrs[4] - 110);
         marks[4].p_end = m(qrs[4] - 90);
         let mut per_lead = vec![marks.clone()];
-        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg);
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true);
         assert_eq!(per_lead[0][4].p_end, marks[4].p_end);
         assert_eq!(per_lead[0][4].p_on, marks[4].p_on);
         assert_eq!(per_lead[0][3].p_on.unwrap().sample, qrs[3] - 100);

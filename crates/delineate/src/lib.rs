@@ -37,8 +37,9 @@
 //!   global P span is searched again near the other leads' P
 //!   (`lead_p_within_global`); each lead's P and QRS boundaries are then
 //!   held to the median offsets of the lead's neighbouring beats
-//!   (`lead_ensemble_*`, module `ensemble`), and held within the global span
-//!   of their wave (`lead_marks_within_global`).
+//!   (`lead_ensemble_*`, module `ensemble`; the global QRS onset and end
+//!   likewise, `global_ensemble_qrs`), and held within the global span of
+//!   their wave (`lead_marks_within_global`).
 //! * A biphasic T is reported as such, but its onset and end are searched
 //!   from its dominant slope pair unless `t_biphasic_outer_bounds` is set.
 //! * P waves are dropped in every lead where the PR interval scatters over
@@ -479,7 +480,12 @@ fn across_leads(
     if within_global(las, &mut per_lead, &global, qrs, cfg) {
         global = global::combine(&per_lead, las, qrs.len(), fs, cfg);
     }
-    ensemble::hold_to_neighbours(&mut per_lead, qrs, fs, cfg);
+    ensemble::hold_to_neighbours(&mut per_lead, qrs, fs, cfg, true);
+    if cfg.global_ensemble_qrs {
+        let mut g = [std::mem::take(&mut global)];
+        ensemble::hold_to_neighbours(&mut g, qrs, fs, cfg, false);
+        [global] = g;
+    }
     if cfg.lead_marks_within_global {
         global::clip_leads_to_global(&mut per_lead, &global);
     }

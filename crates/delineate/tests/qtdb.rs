@@ -141,13 +141,16 @@ fn qtdb_global_marks_against_annotator_1() {
     let limits: [(&str, f64, f64, f64); 9] = [
         ("p_on", 93.9, 1.1, 22.2),
         ("p_end", 93.5, 4.9, 21.9),
-        ("qrs_on", 99.8, 1.5, 13.6),
+        // QRS onset and end with `global_ensemble_qrs` (the global QRS held
+        // to the median offsets of the neighbouring beats): onset mean 1.67,
+        // SD 13.06 ms; end mean 4.57, SD 15.28 ms.
+        ("qrs_on", 99.8, 2.0, 13.4),
         // QRS end with `qrs_xi_end_neg` 0.10 / `qrs_xi_end_pos` 0.16: mean
         // 3.5 -> 4.1 ms, SD 21.4 -> 20.6 ms; with the multi-lead envelope
         // bounds (`global_env_qrs_end_*`, `global_env_qrs_scale` 3, pair rule
         // `confident`): mean 3.54, SD 18.16 ms. With the wide-complex
         // extension (`qrs_post_wide_ms` 160): mean 4.74, SD 15.97 ms.
-        ("qrs_end", 99.8, 5.0, 16.3),
+        ("qrs_end", 99.8, 5.0, 15.6),
         // T peak and T ends with `t_window_early_after_qrs_end_ms` 20: T peak
         // Se 99.72 %, mean 5.1, SD 36.8 ms; T end Se 99.66 %, mean 0.3, SD
         // 36.9 ms; tangent mean -6.3, SD 44.2 ms; area mean 1.8, SD 42.3 ms.
