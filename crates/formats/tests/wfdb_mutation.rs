@@ -65,6 +65,16 @@ const TOKENS: &[&str] = &[
     "\u{0}",
 ];
 
+/// Every signal holds one sample per frame and sample-per-frame slot.
+fn assert_shapes(w: &wfdb::WfdbSignals) {
+    for s in &w.signals {
+        assert_eq!(
+            s.samples.len() as u64,
+            w.n_frames * s.spec.samples_per_frame as u64
+        );
+    }
+}
+
 fn mutate(rng: &mut ChaCha8Rng, s: &str) -> Vec<u8> {
     let mut b = s.as_bytes().to_vec();
     for _ in 0..rng.gen_range(1..6) {
@@ -178,12 +188,7 @@ fn mutated_records_never_panic() {
         match wfdb::read_digital(&hea) {
             Ok(w) => {
                 read += 1;
-                for s in &w.signals {
-                    assert_eq!(
-                        s.samples.len() as u64,
-                        w.n_frames * s.spec.samples_per_frame as u64
-                    );
-                }
+                assert_shapes(&w);
             }
             Err(e) => {
                 let m = e.to_string();
@@ -259,12 +264,7 @@ fn mutated_flac_files_never_panic() {
         match wfdb::read_digital(&hea) {
             Ok(w) => {
                 read += 1;
-                for s in &w.signals {
-                    assert_eq!(
-                        s.samples.len() as u64,
-                        w.n_frames * s.spec.samples_per_frame as u64
-                    );
-                }
+                assert_shapes(&w);
             }
             Err(e) => {
                 failed += 1;
