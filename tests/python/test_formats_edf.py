@@ -111,6 +111,40 @@ def test_edfann_annotations_match_pyedflib():
     assert p.returncode != 0 and "test_edfann.edf" in p.stderr and "no signal" in p.stderr
 
 
+def test_signals_at_other_rates_are_resampled_against_numpy(tmp_path):
+    # pyedflib writes an ECG at 250 Hz beside a respiration signal at 25 Hz and
+    # a plethysmogram at 500 Hz. Ours keeps all three in header order at 250 Hz:
+    # the slower signal as numpy.interp of pyedflib's samples at the record's
+    # sample times (numpy.interp also holds the last value past the end), the
+    # faster one as the mean of the source samples within half a record period
+    # of each record sample (both ends included), computed here independently.
+    n_s = 4
+    t250 = np.arange(250 * n_s) / 250
+    t25 = np.arange(25 * n_s) / 25
+    t500 = np.arange(500 * n_s) / 500
+    sigs = [np.sin(2 * np.pi * 1.3 * t250), 0.5 * np.cos(2 * np.pi * 0.3 * t25), np.sin(2 * np.pi * 7 * t500)]
+    heads = [
+        pyedflib.highlevel.make_signal_header("ECG II", dimension="mV", sample_frequency=250, physical_min=-2, physical_max=2),
+        pyedflib.highlevel.make_signal_header("Resp", dimension="mV", sample_frequency=25, physical_min=-2, physical_max=2),
+        pyedflib.highlevel.make_signal_header("Pleth", dimension="mV", sample_frequency=500, physical_min=-2, physical_max=2),
+    ]
+    p = tmp_path / "rates.edf"
+    assert pyedflib.highlevel.write_edf(str(p), sigs, heads)
+    r = pyedflib.EdfReader(str(p))
+    ref = [r.readSignal(i) for i in range(3)]
+    r.close()
+    head, sig = ours_edf(p)
+    assert head["fs"] == 250
+    assert head["leads"] == ["ECG II", "Resp", "Pleth"]
+    assert np.max(np.abs(sig["ECG II"] - ref[0])) < 1e-9
+    n = len(ref[0])
+    want_resp = np.interp(np.arange(n) / 250, np.arange(len(ref[1])) / 25, ref[1])
+    assert np.max(np.abs(sig["Resp"] - want_resp)) < 1e-9
+    src = ref[2]
+    want_pleth = np.array([src[max(2 * j - 1, 0): min(2 * j + 2, len(src))].mean() for j in range(n)])
+    assert np.max(np.abs(sig["Pleth"] - want_pleth)) < 1e-9
+
+
 def _age_sex(rec):
     """Age and sex from the WFDB header comments (LUDB `#<age>: 51`, QTDB `# 69 M`)."""
     text = " ".join(rec.comments)

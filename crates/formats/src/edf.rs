@@ -17,8 +17,17 @@
 //!   record duration) held by most ECG signals (labels containing `ECG`/`EKG`,
 //!   or a standard lead name such as `II`, `aVR`, `V1`, `MLII`); when no label
 //!   looks like ECG, the rate held by most signals. Ties go to the higher rate.
-//!   Signals at another rate are dropped, each with a note in `meta.comments`
-//!   and in `Record::warnings`.
+//!   Signals at another rate are resampled to it, each with a note in
+//!   `meta.comments` and in `Record::warnings`, so that every signal keeps its
+//!   place (and its name) in header order: a slower signal is interpolated
+//!   linearly between its own samples (held at its last sample past its end), a
+//!   faster one is averaged over each output sample's period centred on the
+//!   output sample (a box-car low-pass; its samples are not otherwise filtered).
+//!   Sample `j` of the record is at `j / fs` seconds from the start, sample `i`
+//!   of a signal at rate `f` at `i / f`, as in the EDF data records.
+//! * Leads keep header order; `EDF Annotations` channels are left out of it,
+//!   so lead indices equal header signal indices when the annotation channels
+//!   come last (as edflib and most writers place them).
 //! * `EDF Annotations` channels are parsed into [`EdfAnnotation`]s (one per
 //!   annotation text; the time-keeping TAL that opens every data record is not
 //!   returned) and never returned as leads. Onsets are seconds relative to the
@@ -539,14 +548,19 @@ pub fn edf_to_record(file: EdfFile, path: &Path) -> Result<Record, FormatError> 
         }
         if sh.samples_per_record != spr {
             let note = format!(
-                "EDF signal {:?} dropped: sampled at {} Hz, the record uses {} Hz",
+                "EDF signal {:?} resampled from {} Hz to the record's {} Hz ({})",
                 sh.label,
                 rate(k),
-                fs
+                fs,
+                if sh.samples_per_record < spr {
+                    "linear interpolation"
+                } else {
+                    "mean over each output sample's period"
+                }
             );
+            s = resample(&s, rate(k), fs, spr * h.n_records);
             meta.comments.push(note.clone());
             warnings.push(note);
-            continue;
         }
         let units = match unit_to_mv(&sh.units) {
             Some(f) => {
@@ -567,6 +581,41 @@ pub fn edf_to_record(file: EdfFile, path: &Path) -> Result<Record, FormatError> 
         patient_meta(&header, &mut meta);
     }
     Ok(Record::from_file(path, fs, leads, meta, warnings))
+}
+
+/// Resample `x`, sampled at `fs_src` Hz, to `n` samples at `fs` Hz: linear
+/// interpolation when `fs_src < fs`, a centred mean over each output period
+/// when `fs_src > fs`: the source samples within half an output period of the
+/// output sample's time, both ends included, so that an even rate ratio still
+/// centres the mean (see the module docs).
+pub fn resample(x: &[f64], fs_src: f64, fs: f64, n: usize) -> Vec<f64> {
+    if x.is_empty() {
+        return vec![0.0; n];
+    }
+    let last = x.len() - 1;
+    if fs_src <= fs {
+        (0..n)
+            .map(|j| {
+                let pos = j as f64 * fs_src / fs;
+                let i = pos.floor() as usize;
+                if i >= last {
+                    return x[last];
+                }
+                let f = pos - i as f64;
+                x[i] + f * (x[i + 1] - x[i])
+            })
+            .collect()
+    } else {
+        let half = 0.5 * fs_src / fs;
+        (0..n)
+            .map(|j| {
+                let c = j as f64 * fs_src / fs;
+                let lo = ((c - half).ceil().max(0.0) as usize).min(last);
+                let hi = (((c + half).floor().max(0.0) as usize) + 1).clamp(lo + 1, last + 1);
+                x[lo..hi].iter().sum::<f64>() / (hi - lo) as f64
+            })
+            .collect()
+    }
 }
 
 const MONTHS: [&str; 12] = [

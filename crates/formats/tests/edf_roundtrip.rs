@@ -221,7 +221,11 @@ fn edfplus_spec_examples() {
 }
 
 #[test]
-fn signals_at_another_rate_are_dropped_with_a_note() {
+fn signals_at_another_rate_are_resampled_with_a_note() {
+    // Physical range = digital range, so each sample reads as its digital value.
+    let (lo, hi) = (-32768.0, 32767.0);
+    let resp: Vec<i16> = (0..4).map(|i| 4000 * i).collect();
+    let pleth: Vec<i16> = (0..32).map(|i| 100 * i).collect();
     let bytes = build_edf(
         "X X X X",
         "Startdate X X X X",
@@ -229,9 +233,10 @@ fn signals_at_another_rate_are_dropped_with_a_note() {
         2,
         "1",
         &[
-            Sig::ecg("ECG I", 8, "mV", -5.0, 5.0, &[10; 16]),
-            Sig::ecg("Resp", 2, "mV", -5.0, 5.0, &[10; 4]),
-            Sig::ecg("ECG II", 8, "mV", -5.0, 5.0, &[20; 16]),
+            Sig::ecg("ECG I", 8, "mV", lo, hi, &[10; 16]),
+            Sig::ecg("Resp", 2, "mV", lo, hi, &resp),
+            Sig::ecg("Pleth", 16, "mV", lo, hi, &pleth),
+            Sig::ecg("ECG II", 8, "mV", lo, hi, &[20; 16]),
             Sig::annotations_per_record(&[b"+0\x14\x14\x00", b"+1\x14\x14\x00"]),
         ],
     );
@@ -240,10 +245,34 @@ fn signals_at_another_rate_are_dropped_with_a_note() {
     let rec = read_edf(&p).unwrap();
     assert_eq!(rec.fs, 8.0);
     let names: Vec<&str> = rec.leads.iter().map(|l| l.name.as_str()).collect();
-    assert_eq!(names, ["ECG I", "ECG II"]);
+    // Every signal keeps its header position, so `.leadmark` channels match it.
+    assert_eq!(names, ["ECG I", "Resp", "Pleth", "ECG II"]);
     assert!(rec.meta.comments.iter().any(|c| c.contains("Resp")));
-    assert!(rec.warnings.iter().any(|c| c.contains("Resp")));
-    assert_eq!(rec.n_samples(), 16);
+    assert!(rec
+        .warnings
+        .iter()
+        .any(|c| c.contains("Resp") && c.contains("2 Hz")));
+    assert!(rec
+        .warnings
+        .iter()
+        .any(|c| c.contains("Pleth") && c.contains("16 Hz")));
+    assert!(rec.leads.iter().all(|l| l.samples.len() == 16));
+    // Resp: sample i at i/2 s; record sample j at j/8 s lies at i = j/4, where the
+    // straight line through the ramp 0, 4000, 8000, 12000 is 1000 j; held at
+    // 12000 past the last sample (1.5 s).
+    for (j, &v) in rec.leads[1].samples.iter().enumerate() {
+        let want = (1000.0 * j as f64).min(12000.0);
+        assert!((v - want).abs() < 1e-9, "Resp[{j}] = {v}, want {want}");
+    }
+    // Pleth: samples 100 i at i/16 s; record sample j averages source samples
+    // 2j-1, 2j, 2j+1 (within half a record period, 1/16 s, of j/8 s): 200 j;
+    // at j = 0 only samples 0 and 1 exist: 50.
+    for (j, &v) in rec.leads[2].samples.iter().enumerate() {
+        let want = if j == 0 { 50.0 } else { 200.0 * j as f64 };
+        assert!((v - want).abs() < 1e-9, "Pleth[{j}] = {v}, want {want}");
+    }
+    assert!(rec.leads[0].samples.iter().all(|&v| v == 10.0));
+    assert!(rec.leads[3].samples.iter().all(|&v| v == 20.0));
     // Plain EDF without ECG labels: the rate most signals share.
     let bytes = build_edf(
         "free text",
@@ -261,7 +290,8 @@ fn signals_at_another_rate_are_dropped_with_a_note() {
     std::fs::write(&p, &bytes).unwrap();
     let rec = read_edf(&p).unwrap();
     assert_eq!(rec.fs, 3.0);
-    assert_eq!(rec.leads.len(), 2);
+    assert_eq!(rec.leads.len(), 3);
+    assert_eq!(rec.leads[0].samples.len(), 3);
     assert_eq!(rec.meta.age, None);
 }
 
