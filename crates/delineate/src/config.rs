@@ -556,23 +556,25 @@ pub struct DelineateConfig {
     pub lead_ensemble_qrs_gate_ms: f64,
     /// Per-lead QRS onset and end moved this fraction of the way toward the
     /// median of the same mark across the record's leads for the beat (module
-    /// `shrink`; 0 = off, 1 = the median). Applied after the global marks are
-    /// combined, so the global marks (all of QTDB's figures) and the
-    /// median-beat windows do not change. Default 0.6: LUDB per-lead SD (ms),
-    /// with odd / even records: QRS onset 12.7 -> 11.2 (12.2 -> 10.6 / 13.2
-    /// -> 11.8), QRS end 15.0 -> 13.2 (14.4 -> 12.9 / 15.6 -> 13.4); 0.5:
-    /// 11.3 / 13.3, 0.7: 11.2 / 13.2. Chosen on both halves alike; measured
-    /// offline first over fractions 0 to 1: every lead at the median (1.0)
-    /// gave 11.6 / 13.7, so the lead's own mark still carries information.
+    /// `shrink`; 0 = off, 1 = the median). Applied last, after the global
+    /// marks are combined and the lead marks held to the global span
+    /// (`lead_marks_within_global`), so the global marks (all of QTDB's
+    /// figures) and the median-beat windows do not change. Default 0.6: LUDB
+    /// per-lead SD (ms), with odd / even records: QRS onset 12.7 -> 11.1
+    /// (12.2 -> 10.6 / 13.2 -> 11.6), QRS end 15.0 -> 13.0 (14.4 -> 12.7 /
+    /// 15.6 -> 13.4); 0.7: 11.2 / 13.1, 0.8: 11.2 / 13.3; before the clip to
+    /// the global span instead of after: 11.2 / 13.2. Measured offline first
+    /// over fractions 0 to 1: every lead at the median (1.0) gave 11.6 /
+    /// 13.7, so the lead's own mark still carries information.
     pub lead_shrink_qrs: f64,
     /// See `lead_shrink_qrs`: the fraction for the P onset and end. Default
-    /// 0.3: LUDB P onset 16.1 -> 15.5 (13.8 -> 13.6 / 18.1 -> 17.3), P end
-    /// 16.1 -> 15.2 (15.0 -> 14.2 / 17.1 -> 16.2); 0.2: 15.6 / 15.4, 0.4:
+    /// 0.3: LUDB P onset 16.1 -> 15.5 (13.8 -> 13.5 / 18.1 -> 17.3), P end
+    /// 16.1 -> 15.2 (15.0 -> 14.1 / 17.1 -> 16.2); 0.2: 15.6 / 15.4, 0.4:
     /// 15.6 / 15.2.
     pub lead_shrink_p: f64,
     /// See `lead_shrink_qrs`: the fraction for the T onset and every T-end
-    /// method's mark. Default 0.3: LUDB T end 22.8 -> 21.7 (23.9 -> 22.6 /
-    /// 21.6 -> 20.8), sensitivity 99.10 -> 99.15 %; 0.4: 21.6.
+    /// method's mark. Default 0.3: LUDB T end 22.8 -> 21.8 (23.9 -> 22.6 /
+    /// 21.6 -> 20.9), sensitivity 99.10 -> 99.15 %; 0.4: 21.6.
     pub lead_shrink_t: f64,
     /// See `lead_shrink_qrs`: fewest leads with the mark on the beat for the
     /// beat to take part (at least 2; the median of two leads is their mean).

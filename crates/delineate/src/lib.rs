@@ -38,9 +38,9 @@
 //!   (`lead_p_within_global`); each lead's P and QRS boundaries are then
 //!   held to the median offsets of the lead's neighbouring beats
 //!   (`lead_ensemble_*`, module `ensemble`; the global QRS onset and end
-//!   likewise, `global_ensemble_qrs`), moved part of the way toward the
-//!   median of all leads for the beat (`lead_shrink_*`, module `shrink`), and
-//!   held within the global span of their wave (`lead_marks_within_global`).
+//!   likewise, `global_ensemble_qrs`), held within the global span of their
+//!   wave (`lead_marks_within_global`), and moved part of the way toward the
+//!   median of all leads for the beat (`lead_shrink_*`, module `shrink`).
 //! * A biphasic T is reported as such, but its onset and end are searched
 //!   from its dominant slope pair unless `t_biphasic_outer_bounds` is set.
 //! * P waves are dropped in every lead where the PR interval scatters over
@@ -467,8 +467,8 @@ pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig
 /// What follows the single-lead delineation of every lead: P waves dropped
 /// where the PR scatters and searched again where most leads have one, the
 /// global marks, lead waves outside the global span, lead P and QRS
-/// boundaries held to the lead's neighbouring beats, drawn toward the
-/// median across leads and held to the global span,
+/// boundaries held to the lead's neighbouring beats and to the global span
+/// and drawn toward the median across leads,
 /// and the method agreement put into the reported T-end confidences.
 fn across_leads(
     las: &[Option<&lead::LeadAnalysis>],
@@ -489,10 +489,12 @@ fn across_leads(
         ensemble::hold_to_neighbours(&mut g, qrs, fs, cfg, false);
         [global] = g;
     }
-    shrink::toward_lead_median(&mut per_lead, cfg);
     if cfg.lead_marks_within_global {
         global::clip_leads_to_global(&mut per_lead, &global);
     }
+    // After the clip: a move toward the median of marks that all lie in the
+    // global span stays in it.
+    shrink::toward_lead_median(&mut per_lead, cfg);
     for b in per_lead.iter_mut().flatten().chain(global.iter_mut()) {
         weigh_t_end_methods(b, fs, cfg);
     }

@@ -18,7 +18,9 @@
 //! part (the median of two leads is their mean and says nothing of which one
 //! is off). A move that would break the order of the lead's waves (P onset,
 //! P peak, P end, QRS onset, QRS peak, QRS end, T onset, T peak, T end) is
-//! not made. Runs after the global marks are combined, so they do not change.
+//! not made. Runs last, after the global marks are combined (they do not
+//! change) and the lead marks are held to the global span: a move toward the
+//! median of marks that all lie in the span stays in it.
 
 use crate::{BeatMarks, DelineateConfig, Mark};
 
