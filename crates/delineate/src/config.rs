@@ -578,6 +578,8 @@ pub struct DelineateConfig {
     pub lead_shrink_t: f64,
     /// See `lead_shrink_qrs`: fewest leads with the mark on the beat for the
     /// beat to take part (at least 2; the median of two leads is their mean).
+    /// Default 3, so two-lead records (QTDB) keep their own lead marks; 2 or
+    /// 5 leave LUDB's per-lead figures within 0.05 ms.
     pub lead_shrink_min_leads: usize,
     /// The same rule (`lead_ensemble_beats`, `lead_ensemble_min_beats`,
     /// `lead_ensemble_qrs_gate_ms`) for the global QRS onset and end, after
