@@ -165,13 +165,7 @@ pub(crate) fn hold_to_neighbours(
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn m(s: usize) -> Option<Mark> {
-        Some(Mark {
-            sample: s,
-            confidence: 0.5,
-        })
-    }
+    use crate::test_marks::m;
 
     /// Beats every 500 samples (fs 500 Hz); P at -100/-80/-60 and QRS at
     /// -20/0/+40 samples from the fiducial, plus `jitter[b]` on P onset and

@@ -56,6 +56,19 @@ mod global;
 mod lead;
 mod prhythm;
 mod shrink;
+#[cfg(test)]
+mod test_marks {
+    use crate::Mark;
+
+    /// A mark at sample `s` with confidence 0.5 (unit tests of the
+    /// across-lead and across-beat rules).
+    pub(crate) fn m(s: usize) -> Option<Mark> {
+        Some(Mark {
+            sample: s,
+            confidence: 0.5,
+        })
+    }
+}
 
 pub use config::{DelineateConfig, PairRule, PeakCrossing};
 

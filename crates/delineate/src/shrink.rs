@@ -167,13 +167,7 @@ pub(crate) fn toward_lead_median(per_lead: &mut [Vec<BeatMarks>], cfg: &Delineat
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    fn m(s: usize) -> Option<Mark> {
-        Some(Mark {
-            sample: s,
-            confidence: 0.5,
-        })
-    }
+    use crate::test_marks::m;
 
     fn beat(qrs_on: usize, qrs_end: usize) -> BeatMarks {
         BeatMarks {
