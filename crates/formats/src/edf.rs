@@ -558,7 +558,12 @@ pub fn edf_to_record(file: EdfFile, path: &Path) -> Result<Record, FormatError> 
                     "mean over each output sample's period"
                 }
             );
-            s = resample(&s, rate(k), fs, spr * h.n_records);
+            let k_in = sh.samples_per_record;
+            s = if k_in < spr {
+                crate::frames::upsample_linear(&s, k_in, spr)
+            } else {
+                crate::frames::downsample_mean(&s, k_in, spr)
+            };
             meta.comments.push(note.clone());
             warnings.push(note);
         }
@@ -581,41 +586,6 @@ pub fn edf_to_record(file: EdfFile, path: &Path) -> Result<Record, FormatError> 
         patient_meta(&header, &mut meta);
     }
     Ok(Record::from_file(path, fs, leads, meta, warnings))
-}
-
-/// Resample `x`, sampled at `fs_src` Hz, to `n` samples at `fs` Hz: linear
-/// interpolation when `fs_src < fs`, a centred mean over each output period
-/// when `fs_src > fs`: the source samples within half an output period of the
-/// output sample's time, both ends included, so that an even rate ratio still
-/// centres the mean (see the module docs).
-pub fn resample(x: &[f64], fs_src: f64, fs: f64, n: usize) -> Vec<f64> {
-    if x.is_empty() {
-        return vec![0.0; n];
-    }
-    let last = x.len() - 1;
-    if fs_src <= fs {
-        (0..n)
-            .map(|j| {
-                let pos = j as f64 * fs_src / fs;
-                let i = pos.floor() as usize;
-                if i >= last {
-                    return x[last];
-                }
-                let f = pos - i as f64;
-                x[i] + f * (x[i + 1] - x[i])
-            })
-            .collect()
-    } else {
-        let half = 0.5 * fs_src / fs;
-        (0..n)
-            .map(|j| {
-                let c = j as f64 * fs_src / fs;
-                let lo = ((c - half).ceil().max(0.0) as usize).min(last);
-                let hi = (((c + half).floor().max(0.0) as usize) + 1).clamp(lo + 1, last + 1);
-                x[lo..hi].iter().sum::<f64>() / (hi - lo) as f64
-            })
-            .collect()
-    }
 }
 
 const MONTHS: [&str; 12] = [

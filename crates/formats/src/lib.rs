@@ -25,6 +25,7 @@ pub mod annotation;
 pub mod csv;
 pub mod edf;
 pub mod error;
+mod frames;
 pub mod meta;
 pub mod signals;
 pub mod subjects;

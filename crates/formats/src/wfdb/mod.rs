@@ -666,7 +666,7 @@ pub fn read_record(header_path: &Path) -> Result<Record, FormatError> {
             let mut samples = to_physical(s);
             let k = s.spec.samples_per_frame.max(1);
             if k != spf {
-                samples = upsample_linear(&samples, k as usize, spf as usize);
+                samples = crate::frames::upsample_linear(&samples, k as usize, spf as usize);
                 notes.push(format!(
                     "line {} (signal `{}`): sampled at {} Hz, interpolated to the record's {} Hz",
                     s.spec.line,
@@ -783,28 +783,6 @@ fn check_mat_v4(fpath: &Path, f: &File, len: u64, g: &FileGroup) -> Result<(), F
         )));
     }
     Ok(())
-}
-
-/// A signal with `k` samples per frame brought to `spf` samples per frame
-/// (`k < spf`): output sample `i` lies at `i·k/spf` of the input's samples,
-/// linearly interpolated; past the last input sample it is held.
-fn upsample_linear(x: &[f64], k: usize, spf: usize) -> Vec<f64> {
-    let frames = x.len() / k;
-    let n = frames * spf;
-    let last = x.len().saturating_sub(1);
-    (0..n)
-        .map(|i| {
-            // Exact integer position: input index (i·k) / spf, remainder r / spf.
-            let num = i * k;
-            let (j, r) = (num / spf, num % spf);
-            if r == 0 || j >= last {
-                x[j.min(last)]
-            } else {
-                let f = r as f64 / spf as f64;
-                x[j] + (x[j + 1] - x[j]) * f
-            }
-        })
-        .collect()
 }
 
 /// Write `rec` as a format-16 WFDB record `<dir>/<rec.name>.hea` + `.dat`; returns the header path.
@@ -930,34 +908,6 @@ pub fn write_record(dir: &Path, rec: &Record, adc_gain: f64) -> Result<PathBuf, 
 
 #[cfg(test)]
 mod tests {
-
-    #[test]
-    fn upsampling_equals_interpolation_at_each_output_time() {
-        // Oracle: the time of output sample i is i/spf frames; the input's
-        // sample m lies at m/k frames; interpolate between the two around it.
-        let x: Vec<f64> = (0..13)
-            .map(|m| ((m * 7) % 5) as f64 - 0.3 * m as f64)
-            .collect();
-        for (k, spf) in [(1usize, 4usize), (2, 4), (51, 200), (3, 4), (1, 1)] {
-            let xs = &x[..(x.len() / k) * k];
-            let y = upsample_linear(xs, k, spf);
-            assert_eq!(y.len(), xs.len() / k * spf);
-            for (i, &v) in y.iter().enumerate() {
-                let t = i as f64 / spf as f64; // frames
-                let pos = t * k as f64; // input samples
-                let m = pos.floor() as usize;
-                let want = if m + 1 >= xs.len() {
-                    xs[xs.len() - 1]
-                } else {
-                    xs[m] + (xs[m + 1] - xs[m]) * (pos - m as f64)
-                };
-                assert!(
-                    (v - want).abs() < 1e-12,
-                    "k {k} spf {spf} i {i}: {v} vs {want}"
-                );
-            }
-        }
-    }
 
     use super::*;
 
