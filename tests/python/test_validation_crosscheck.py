@@ -7,6 +7,8 @@ themselves read with the `wfdb` Python package (`wfdb.rdann`):
 - the QRS-onset and T-end error count, mean and SD against the `.q1c` reference;
 - the window QT (the run's `windows.csv`) against the mean `.q1c` beat QT of each
   window, and the same for annotator 2 (`.q2c`) on the windows both annotators mark;
+- the split of those errors into record and beat-to-beat parts and the
+  beat-to-beat spread of each side's marks around its own QRS peak;
 and asserts agreement with the run's `report.json` (rates to 0.01 percentage
 points, times to 0.01 ms, counts exactly).
 
@@ -288,6 +290,53 @@ def test_qrs_onset_and_t_end_match_report():
         assert abs(st["mean_ms"] - e.mean()) < 0.01
         assert abs(st["sd_ms"] - e.std(ddof=1)) < 0.01
         _check_stability(key, per_rec[key], s["stability"])
+
+
+def _pop_split(keys, values):
+    """(between, within) population SDs of `values` around their per-key means."""
+    keys, values = np.asarray(keys), np.asarray(values, dtype=float)
+    means = {k: values[keys == k].mean() for k in set(keys.tolist())}
+    m = np.array([means[k] for k in keys.tolist()])
+    return float(np.sqrt(np.mean((m - values.mean()) ** 2))), float(np.sqrt(np.mean((values - m) ** 2)))
+
+
+def test_error_components_match_report():
+    """The report's error components of the global QRS onset and T end,
+    rebuilt with numpy from the annotation files (wfdb): population SDs of the
+    errors between records and within records (global marks: one channel per
+    record, so between record-channels = between records), and the
+    within-record SD of each mark's offset from its own beat's QRS peak for
+    annotator 1 (reference spread) and the tool (tool spread)."""
+    run, qtdb, report = _paths()
+    comps = {c["fiducial"]: c for c in report["global"].get("components", [])}
+    assert {"qrs_on", "t_end"} <= set(comps), "report.json has no error components"
+    for key, k in (("qrs_on", 1), ("t_end", 2)):
+        recs, errs, roff, toff = [], [], [], []
+        for rec, fs, ref, test, pairs, fw in _paired_beats(run, qtdb, report):
+            for i, j in pairs:
+                r, t = ref[i][k], test[j][k]
+                if r is not None and t is not None and abs(t - r) <= fw:
+                    recs.append(rec)
+                    errs.append((t - r) * 1000.0 / fs)
+                    roff.append((r - ref[i][0]) * 1000.0 / fs)
+                    toff.append((t - test[j][0]) * 1000.0 / fs)
+        between, within = _pop_split(recs, errs)
+        expect = {
+            "n": len(errs),
+            "groups": len(set(recs)),
+            "total_ms": float(np.std(errs)),
+            "between_records_ms": between,
+            "between_channels_ms": between,
+            "within_channel_ms": within,
+            "reference_spread_ms": _pop_split(recs, roff)[1],
+            "test_spread_ms": _pop_split(recs, toff)[1],
+        }
+        c = comps[key]
+        print(key, "python", {a: round(b, 4) for a, b in expect.items()})
+        print(key, "report", {a: round(c[a], 4) if isinstance(c[a], float) else c[a] for a in expect})
+        assert c["n"] == expect["n"] and c["groups"] == expect["groups"]
+        for a in expect:
+            assert abs(c[a] - expect[a]) < 0.01, a
 
 
 def test_t_end_confidence_quartiles_match_report():

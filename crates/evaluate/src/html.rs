@@ -433,6 +433,13 @@ fn section_html(
         &crate::markdown::CALIBRATION_HEADS,
         cal.iter().map(|r| r.as_slice()),
     );
+    let comp = crate::markdown::component_rows(s);
+    plain_table_html(
+        out,
+        &format!("Error components. {}", crate::markdown::COMPONENT_INTRO),
+        &crate::markdown::COMPONENT_HEADS,
+        comp.iter().map(|r| r.as_slice()),
+    );
     out.push_str("<div class=plots>");
     for f in &s.fiducials {
         if let Some(e) = s.errors.get(&f.fiducial) {

@@ -166,6 +166,58 @@ fn calibration_md(out: &mut String, s: &DelineationSection) {
     text_table(out, &CALIBRATION_HEADS, rows.iter().map(|r| r.as_slice()));
 }
 
+/// Column heads of the error-components table.
+pub const COMPONENT_HEADS: [&str; 9] = [
+    "fiducial",
+    "marks",
+    "record-channels",
+    "SD ms",
+    "between records ms",
+    "between record-channels ms",
+    "within record-channel ms",
+    "reference spread ms",
+    "tool spread ms",
+];
+
+/// What the error-components table shows (Markdown and HTML).
+pub const COMPONENT_INTRO: &str = "Where the error comes from, over the scored marks (population SDs, so SD² = between record-channels² + within record-channel²; for global marks the channel is the record). Between records: the spread of each record's mean error; between record-channels: of each lead's mean error in each record (a fixed offset that following each beat more closely cannot remove); within record-channel: the beat-to-beat rest. Reference spread: how much the reference's own boundary moves from beat to beat relative to its QRS peak on the same channel (reading jitter plus true beat-to-beat change); tool spread: the same for the tool's marks. A within record-channel SD near the reference spread leaves little to gain beat by beat.";
+
+/// Rows of the error-components table (`crate::components`), shared by the
+/// Markdown and HTML reports.
+pub fn component_rows(s: &DelineationSection) -> Vec<[String; 9]> {
+    s.components
+        .iter()
+        .map(|r| {
+            [
+                r.fiducial.label().to_string(),
+                r.n.to_string(),
+                r.groups.to_string(),
+                format!("{:.1}", r.total_ms),
+                format!("{:.1}", r.between_records_ms),
+                format!("{:.1}", r.between_channels_ms),
+                format!("{:.1}", r.within_channel_ms),
+                format!("{:.1}", r.reference_spread_ms),
+                format!("{:.1}", r.test_spread_ms),
+            ]
+        })
+        .collect()
+}
+
+fn components_md(out: &mut String, s: &DelineationSection) {
+    if s.components.is_empty() {
+        return;
+    }
+    let _ = writeln!(
+        out,
+        "### Error components
+
+{COMPONENT_INTRO}
+"
+    );
+    let rows = component_rows(s);
+    text_table(out, &COMPONENT_HEADS, rows.iter().map(|r| r.as_slice()));
+}
+
 fn stability_md(out: &mut String, s: &DelineationSection) {
     let rows = stability_rows(s);
     let Some(first) = s.fiducials.iter().find_map(|f| f.stability.as_ref()) else {
@@ -240,6 +292,7 @@ fn section_md(out: &mut String, title: &str, s: &DelineationSection) {
     fiducial_table(out, s);
     stability_md(out, s);
     calibration_md(out, s);
+    components_md(out, s);
     if !s.per_lead_name.is_empty() {
         let _ = writeln!(out, "### Per lead\n");
         rows_table(out, &s.per_lead_name, "lead", usize::MAX);

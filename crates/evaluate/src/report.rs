@@ -2,6 +2,7 @@
 //! `report.md` and `report.html`, and its assembly from per-record scores.
 
 use crate::calibration::CalibrationRow;
+use crate::components::ComponentRow;
 use crate::matching::Counts;
 use crate::score::RecordScore;
 use crate::stability::{stability, RecordErrors, Resampling, Stability};
@@ -108,6 +109,11 @@ pub struct DelineationSection {
     /// read (and in reports written before it existed).
     #[serde(default, skip_serializing_if = "Vec::is_empty")]
     pub calibration: Vec<CalibrationRow>,
+    /// Each fiducial's error split into record, (record, channel) and
+    /// beat-to-beat parts, beside the reference's own beat-to-beat spread
+    /// (`crate::components`); absent in reports written before it existed.
+    #[serde(default, skip_serializing_if = "Vec::is_empty")]
+    pub components: Vec<ComponentRow>,
 }
 
 /// One fiducial's detection rates and error statistics.
@@ -426,6 +432,7 @@ pub fn build_section(
         per_lead_name,
         errors,
         calibration: Vec::new(),
+        components: crate::components::rows(scores, fiducials),
     }
 }
 
