@@ -596,6 +596,27 @@ fn assert_scores_equal_validate(
         compared += 1;
     }
     assert!(compared >= 5, "only {compared} fiducials compared");
+    // marks.csv beside the report: one `tp` row per counted pair.
+    let marks = std::fs::read_to_string(run_dir.join("validation/marks.csv")).unwrap();
+    let mut lines = marks.lines();
+    let head: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let (fc, oc) = (
+        head.iter().position(|h| *h == "fiducial").unwrap(),
+        head.iter().position(|h| *h == "outcome").unwrap(),
+    );
+    let rows: Vec<Vec<&str>> = lines.map(|l| l.split(',').collect()).collect();
+    for f in fids {
+        let key = f["fiducial"].as_str().unwrap();
+        let tp = rows
+            .iter()
+            .filter(|r| r[fc] == key && r[oc] == "tp")
+            .count();
+        assert_eq!(
+            tp as u64,
+            f["tp"].as_u64().unwrap(),
+            "{key}: marks.csv tp rows"
+        );
+    }
 }
 
 /// LUDB (Kalyakulina et al. 2020) per-lead references, combined across leads

@@ -7,6 +7,7 @@ themselves read with the `wfdb` Python package (`wfdb.rdann`):
 - the QRS-onset and T-end error count, mean and SD against the `.q1c` reference;
 - the window QT (the run's `windows.csv`) against the mean `.q1c` beat QT of each
   window, and the same for annotator 2 (`.q2c`) on the windows both annotators mark;
+- the scored pairs listed in `marks.csv` beside the report;
 - the split of those errors into record and beat-to-beat parts and the
   beat-to-beat spread of each side's marks around its own QRS peak;
 and asserts agreement with the run's `report.json` (rates to 0.01 percentage
@@ -337,6 +338,36 @@ def test_error_components_match_report():
         assert c["n"] == expect["n"] and c["groups"] == expect["groups"]
         for a in expect:
             assert abs(c[a] - expect[a]) < 0.01, a
+
+
+def test_marks_csv_holds_the_scored_pairs():
+    """`marks.csv` beside the report lists exactly the pairs recomputed here
+    for the global QRS onset and T end (record, reference sample, tool sample,
+    error), and its outcome counts give the report's tp, fn and fp."""
+    run, qtdb, report = _paths()
+    path = Path(os.environ.get("TENDLINE_REPORT_QTDB", run / "validation" / "report.json")).with_name("marks.csv")
+    assert path.is_file(), f"{path} not written"
+    with open(path, newline="") as fh:
+        rows = [r for r in csv.DictReader(fh) if r["section"] == "global"]
+    for key, k in (("qrs_on", 1), ("t_end", 2)):
+        expect = []
+        for rec, fs, ref, test, pairs, fw in _paired_beats(run, qtdb, report):
+            for i, j in pairs:
+                r, t = ref[i][k], test[j][k]
+                if r is not None and t is not None and abs(t - r) <= fw:
+                    expect.append((rec, r, t, round((t - r) * 1000.0 / fs, 3)))
+        got = [
+            (x["record"], int(x["ref_sample"]), int(x["tool_sample"]), float(x["error_ms"]))
+            for x in rows
+            if x["fiducial"] == key and x["outcome"] == "tp"
+        ]
+        print(f"{key}: python {len(expect)} pairs, marks.csv {len(got)} tp rows")
+        assert sorted(got) == sorted(expect)
+        s = next(f for f in report["global"]["fiducials"] if f["fiducial"] == key)
+        n = {o: sum(1 for x in rows if x["fiducial"] == key and x["outcome"] == o) for o in ("tp", "fn", "outside", "fp")}
+        assert n["tp"] == s["tp"]
+        assert n["fn"] + n["outside"] == s["fn"]
+        assert n["fp"] + n["outside"] == s["fp"]
 
 
 def test_t_end_confidence_quartiles_match_report():

@@ -54,6 +54,7 @@ pub mod floors;
 pub mod html;
 pub mod inputs;
 pub mod markdown;
+pub mod marks_csv;
 pub mod matching;
 pub mod report;
 pub mod score;
@@ -705,6 +706,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
     }
 
     let worst = worst_beats(opts, &recs, &global_scores, &lead_scores, &mut warnings);
+    let mut marks = Vec::new();
     if global.is_some() || per_lead.is_some() {
         use calibration::Marks;
         let confs = calibration::load_all(&opts.run_dir, &names, &mut warnings);
@@ -720,6 +722,17 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
         if let Some(p) = &mut per_lead {
             p.calibration = calibration::rows(&lead_scores, &Fiducial::ALL, &lead_conf);
         }
+        let lead_names: BTreeMap<String, Vec<String>> = recs
+            .iter()
+            .map(|r| (r.name.clone(), r.hdr.leads.clone()))
+            .collect();
+        marks = marks_csv::rows("global", &global_scores, None, &global_conf);
+        marks.extend(marks_csv::rows(
+            "lead",
+            &lead_scores,
+            Some(&lead_names),
+            &lead_conf,
+        ));
     }
     let database = opts.database.clone().unwrap_or_else(|| {
         opts.data_dir
@@ -744,6 +757,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
         human,
         worst_beats: worst,
         warnings,
+        marks,
     })
 }
 
@@ -1038,6 +1052,9 @@ pub fn write_report(report: &ValidationReport, out_dir: &Path) -> Result<(), Eva
     write("report.json", &(json + "\n"))?;
     write("report.md", &markdown::render(report))?;
     write("report.html", &html::render(report)?)?;
+    if !report.marks.is_empty() {
+        write("marks.csv", &marks_csv::to_csv(&report.marks))?;
+    }
     Ok(())
 }
 

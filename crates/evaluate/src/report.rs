@@ -39,6 +39,9 @@ pub struct ValidationReport {
     pub worst_beats: Vec<WorstBeat>,
     /// Problems that did not stop the run (missing files, skipped records...).
     pub warnings: Vec<String>,
+    /// Every scored mark, written to `marks.csv` beside the report (not to JSON).
+    #[serde(skip)]
+    pub marks: Vec<crate::marks_csv::MarkRow>,
 }
 
 /// Matching rules and statistical conventions, restated in every report.

@@ -51,6 +51,47 @@ pub struct ErrorEntry {
     pub error_ms: f64,
 }
 
+/// How one mark was scored (see the module rules).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+pub enum Outcome {
+    /// Both mark it within the fiducial window: the error enters the statistics.
+    Tp,
+    /// The reference marks it; the paired test beat does not, or the beat is unpaired.
+    Fn,
+    /// Both mark it, farther apart than the fiducial window: a false negative
+    /// and, where the reference annotates the wave exhaustively, a false positive.
+    Outside,
+    /// The test marks it on a paired beat whose reference lacks the whole wave,
+    /// within the span the reference annotates.
+    Fp,
+}
+
+impl Outcome {
+    /// Name in exported tables.
+    pub fn key(self) -> &'static str {
+        match self {
+            Outcome::Tp => "tp",
+            Outcome::Fn => "fn",
+            Outcome::Outside => "outside",
+            Outcome::Fp => "fp",
+        }
+    }
+}
+
+/// One scored mark: the reference beat it belongs to and both samples where marked.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Scored {
+    pub fiducial: Fiducial,
+    pub chan: u8,
+    pub outcome: Outcome,
+    /// Index of the reference beat in its channel's beat list.
+    pub ref_index: usize,
+    /// Index of the paired test beat, if paired.
+    pub test_index: Option<usize>,
+    pub ref_sample: Option<i64>,
+    pub test_sample: Option<i64>,
+}
+
 /// Everything measured on one record (one reference kind).
 #[derive(Debug, Clone, Default)]
 pub struct RecordScore {
@@ -61,6 +102,8 @@ pub struct RecordScore {
     pub paired_beats: usize,
     pub counts: BTreeMap<Fiducial, Counts>,
     pub errors: BTreeMap<Fiducial, Vec<ErrorEntry>>,
+    /// Every scored mark with its outcome, in channel, fiducial and beat order.
+    pub scored: Vec<Scored>,
     /// (test QT, reference QT, reference QRS peak sample, chan), ms, for paired beats
     /// where both mark QRS onset and T end.
     pub qt_pairs: Vec<(f64, f64, i64, u8)>,
@@ -110,10 +153,22 @@ impl RecordScore {
         for &f in &cfg.fiducials {
             let c = self.counts.entry(f).or_default();
             let errs = self.errors.entry(f).or_default();
+            let scored = &mut self.scored;
             for (i, r) in reference.iter().enumerate() {
                 let t = partner[i].map(|j| &test[j]);
                 let tv = t.and_then(|t| t.get(f));
                 let may_fp = cfg.exhaustive.contains(&f.wave());
+                let mut record = |outcome, ref_sample, test_sample| {
+                    scored.push(Scored {
+                        fiducial: f,
+                        chan,
+                        outcome,
+                        ref_index: i,
+                        test_index: partner[i],
+                        ref_sample,
+                        test_sample,
+                    })
+                };
                 match (r.get(f), tv) {
                     (Some(rv), Some(tv)) if (tv - rv).abs() <= cfg.fiducial_window => {
                         c.tp += 1;
@@ -123,17 +178,23 @@ impl RecordScore {
                             test_index: partner[i].unwrap_or(0),
                             error_ms: (tv - rv) as f64 * ms,
                         });
+                        record(Outcome::Tp, Some(rv), Some(tv));
                     }
-                    (Some(_), Some(_)) => {
+                    (Some(rv), Some(tv)) => {
                         c.fn_ += 1;
                         if may_fp {
                             c.fp += 1;
                         }
+                        record(Outcome::Outside, Some(rv), Some(tv));
                     }
-                    (Some(_), None) => c.fn_ += 1,
+                    (Some(rv), None) => {
+                        c.fn_ += 1;
+                        record(Outcome::Fn, Some(rv), None);
+                    }
                     (None, Some(tv)) => {
                         if may_fp && !r.has_wave(f.wave()) && in_span(tv) {
                             c.fp += 1;
+                            record(Outcome::Fp, None, Some(tv));
                         }
                     }
                     (None, None) => {}
@@ -207,6 +268,40 @@ mod tests {
         // QT: T end +5 samples, QRS on +2 samples → +3 samples = 12 ms.
         assert_eq!(s.qt_pairs[1].0 - s.qt_pairs[1].1, 12.0);
 
+        // The scored list holds the same decisions, one row per mark.
+        type Row = (Outcome, Option<usize>, Option<i64>, Option<i64>);
+        let rows = |f: Fiducial| -> Vec<Row> {
+            s.scored
+                .iter()
+                .filter(|x| x.fiducial == f)
+                .map(|x| (x.outcome, x.test_index, x.ref_sample, x.test_sample))
+                .collect()
+        };
+        assert_eq!(
+            rows(Fiducial::TEnd),
+            vec![
+                (Outcome::Tp, Some(0), Some(190), Some(190)),
+                (Outcome::Tp, Some(1), Some(490), Some(495)),
+                (Outcome::Fn, None, Some(790), None),
+            ]
+        );
+        assert_eq!(
+            rows(Fiducial::PPeak),
+            vec![(Outcome::Fp, Some(1), None, Some(350))]
+        );
+        for f in Fiducial::ALL {
+            let c = &s.counts[&f];
+            let n = |o: Outcome| {
+                s.scored
+                    .iter()
+                    .filter(|x| x.fiducial == f && x.outcome == o)
+                    .count() as u64
+            };
+            assert_eq!(c.tp, n(Outcome::Tp));
+            assert_eq!(c.fn_, n(Outcome::Fn) + n(Outcome::Outside));
+            assert_eq!(c.fp, n(Outcome::Fp) + n(Outcome::Outside));
+        }
+
         // Without P being exhaustive, the P mark is not a false positive.
         let mut s2 = RecordScore::new("x", 250.0);
         s2.add_channel(0, r, t, &cfg(&[Wave::Qrs, Wave::T]));
@@ -244,6 +339,15 @@ mod tests {
         s.add_channel(0, r.clone(), vec![tb.clone()], &cfg(&[Wave::Qrs, Wave::T]));
         let te = &s.counts[&Fiducial::TEnd];
         assert_eq!((te.tp, te.fn_, te.fp), (0, 1, 1));
+        let row = s
+            .scored
+            .iter()
+            .find(|x| x.fiducial == Fiducial::TEnd)
+            .unwrap();
+        assert_eq!(
+            (row.outcome, row.ref_sample, row.test_sample),
+            (Outcome::Outside, Some(190), Some(228))
+        );
         assert!(s.qt_pairs.len() == 1, "QT pairs are not windowed");
         tb.t_end = Some(190 + 37);
         let mut s = RecordScore::new("x", 250.0);
