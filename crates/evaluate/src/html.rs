@@ -555,6 +555,16 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
             }
             ba_rows(&mut o, &rows);
         }
+        let comp = crate::markdown::human_component_rows(h);
+        plain_table_html(
+            &mut o,
+            &format!(
+                "Error components, same beats. {}",
+                crate::markdown::HUMAN_COMPONENT_INTRO
+            ),
+            &crate::markdown::HUMAN_COMPONENT_HEADS,
+            comp.iter().map(|r| r.as_slice()),
+        );
     }
     if let Some(p) = &r.per_lead {
         section_html(&mut o, "perlead", "Per-lead boundaries", p, hist_range)?;

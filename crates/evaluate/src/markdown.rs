@@ -203,6 +203,42 @@ pub fn component_rows(s: &DelineationSection) -> Vec<[String; 9]> {
         .collect()
 }
 
+/// Column heads of the human-reference components table.
+pub const HUMAN_COMPONENT_HEADS: [&str; 8] = [
+    "scored",
+    "fiducial",
+    "marks",
+    "SD ms",
+    "between records ms",
+    "within record ms",
+    "annotator 1 spread ms",
+    "own spread ms",
+];
+
+/// What the human-reference components table shows (Markdown and HTML).
+pub const HUMAN_COMPONENT_INTRO: &str = "Error components on the same beats (population SDs; see the error-components table above): the second cardiologist's own disagreement with the first splits the same way, so the within-record part of the tool's error can be set beside a human reader's.";
+
+/// Rows of the human-reference components table: annotator 2, then the tool,
+/// per fiducial.
+pub fn human_component_rows(h: &crate::report::HumanSection) -> Vec<[String; 8]> {
+    let mut out = Vec::new();
+    for (who, sec) in [("annotator 2", &h.annotator), ("tendline", &h.tool)] {
+        for r in &sec.components {
+            out.push([
+                who.to_string(),
+                r.fiducial.label().to_string(),
+                r.n.to_string(),
+                format!("{:.1}", r.total_ms),
+                format!("{:.1}", r.between_records_ms),
+                format!("{:.1}", r.within_channel_ms),
+                format!("{:.1}", r.reference_spread_ms),
+                format!("{:.1}", r.test_spread_ms),
+            ]);
+        }
+    }
+    out
+}
+
 fn components_md(out: &mut String, s: &DelineationSection) {
     if s.components.is_empty() {
         return;
@@ -447,6 +483,18 @@ pub fn render(r: &ValidationReport) -> String {
                 ba_row(&mut out, "tendline, superimposed leads", t);
             }
             out.push('\n');
+        }
+        let rows = human_component_rows(h);
+        if !rows.is_empty() {
+            let _ = writeln!(
+                out,
+                "### Error components, same beats\n\n{HUMAN_COMPONENT_INTRO}\n"
+            );
+            text_table(
+                &mut out,
+                &HUMAN_COMPONENT_HEADS,
+                rows.iter().map(|r| r.as_slice()),
+            );
         }
     }
     if let Some(p) = &r.per_lead {
