@@ -135,16 +135,8 @@ mod tests {
     fn beat(chan: u8, peak: i64, qrs_on: i64) -> BeatMarks {
         BeatMarks {
             chan,
-            code: 1,
-            qrs_peak: peak,
-            p_on: None,
-            p_peak: None,
-            p_end: None,
             qrs_on: Some(qrs_on),
-            qrs_end: None,
-            t_on: None,
-            t_peak: None,
-            t_end: None,
+            ..crate::score::tests::beat(peak)
         }
     }
 

@@ -133,17 +133,9 @@ pub fn to_csv(rows: &[MarkRow]) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::score::tests::beat;
     use crate::score::ScoreConfig;
-    use crate::waves::{BeatMarks, Wave};
-
-    fn beat(q: i64) -> BeatMarks {
-        BeatMarks {
-            qrs_peak: q,
-            qrs_on: Some(q - 10),
-            qrs_end: Some(q + 10),
-            ..Default::default()
-        }
-    }
+    use crate::waves::Wave;
 
     #[test]
     fn rows_carry_each_decision_with_samples_and_error() {

@@ -214,10 +214,11 @@ impl RecordScore {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
 
-    fn beat(q: i64) -> BeatMarks {
+    /// A test beat: QRS at `q` ± 10 samples, T peak and end 60 and 90 after it.
+    pub(crate) fn beat(q: i64) -> BeatMarks {
         BeatMarks {
             qrs_peak: q,
             qrs_on: Some(q - 10),
