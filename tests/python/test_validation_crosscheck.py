@@ -491,6 +491,7 @@ def test_window_qt_matches_report():
         return float(v) if v not in ("", "NaN", "nan") else None
 
     sup, ann, tool = [], [], []
+    sup_keys, ann_keys, tool_keys = [], [], []
     sup_by_rec = {}
     cache = {}
     for rec, row in _scored_window_rows(run, qtdb, report):
@@ -510,12 +511,15 @@ def test_window_qt_matches_report():
         v = val(row["qt_superimposed_ms"])
         if v is not None:
             sup.append((v, m1))
+            sup_keys.append(rec)
             sup_by_rec.setdefault(rec, []).append(v - m1)
         m2 = _window_mean_qt(q2, s, e, fs, min_beats) if q2 is not None else None
         if m2 is not None:
             ann.append((m2, m1))
+            ann_keys.append(rec)
             if v is not None:
                 tool.append((v, m1))
+                tool_keys.append(rec)
     _check_ba("window QT, superimposed", sup, qt["window_superimposed"])
     # Its stability over records: records with scored windows, in report order.
     order = [r for r in report["records"] if r in sup_by_rec]
@@ -526,3 +530,16 @@ def test_window_qt_matches_report():
     assert human is not None and human.get("annotator_qt_window"), "report.json has no human window QT"
     _check_ba("window QT, annotator 2", ann, human["annotator_qt_window"])
     _check_ba("window QT, tool on the same windows", tool, human["tool_qt_window"])
+    # The same differences split by record (population SDs).
+    for name, keys, pairs, ba in (
+        ("superimposed", sup_keys, sup, qt["window_superimposed"]),
+        ("annotator 2", ann_keys, ann, human["annotator_qt_window"]),
+        ("tool, same windows", tool_keys, tool, human["tool_qt_window"]),
+    ):
+        between, within = _pop_split(keys, [t - r for t, r in pairs])
+        got = ba["by_record"]
+        print(f"window QT {name} by record: python {len(set(keys))} records between={between:.4f} "
+              f"within={within:.4f}; report {got}")
+        assert got["records"] == len(set(keys))
+        assert abs(got["between_records_sd_ms"] - between) < 0.01
+        assert abs(got["within_record_sd_ms"] - within) < 0.01

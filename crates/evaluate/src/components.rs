@@ -23,9 +23,9 @@
 //!   jitter with true beat-to-beat change (a PR interval that varies).
 
 use crate::score::RecordScore;
+use crate::stats::split_by as split;
 use crate::waves::Fiducial;
 use serde::{Deserialize, Serialize};
-use std::collections::BTreeMap;
 
 /// The error components of one fiducial.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -47,27 +47,6 @@ pub struct ComponentRow {
 /// One scored mark: (record index, channel, error, reference offset from its
 /// QRS peak, test offset from its QRS peak), ms.
 type Point = (usize, u8, f64, f64, f64);
-
-/// Population SD of `x` around the per-key means (`within`), and of those
-/// means over the marks (`between`): `(between, within)`.
-fn split<K: Ord + Copy>(pts: &[(K, f64)]) -> (f64, f64) {
-    let mut sums: BTreeMap<K, (f64, usize)> = BTreeMap::new();
-    for &(k, v) in pts {
-        let e = sums.entry(k).or_insert((0.0, 0));
-        e.0 += v;
-        e.1 += 1;
-    }
-    let n = pts.len() as f64;
-    let grand = pts.iter().map(|p| p.1).sum::<f64>() / n;
-    let mean = |k: &K| sums[k].0 / sums[k].1 as f64;
-    let between = pts
-        .iter()
-        .map(|p| (mean(&p.0) - grand).powi(2))
-        .sum::<f64>()
-        / n;
-    let within = pts.iter().map(|p| (p.1 - mean(&p.0)).powi(2)).sum::<f64>() / n;
-    (between.sqrt(), within.sqrt())
-}
 
 /// The rows of `fiducials` over the scored marks of `scores` (a fiducial
 /// without any scored mark has none).

@@ -605,6 +605,13 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
             &crate::markdown::QT_STABILITY_HEADS,
             st.iter().map(|r| r.as_slice()),
         );
+        let sp = crate::markdown::qt_split_rows(q, r.human.as_ref());
+        plain_table_html(
+            &mut o,
+            crate::markdown::QT_SPLIT_INTRO,
+            &crate::markdown::QT_SPLIT_HEADS,
+            sp.iter().map(|r| r.as_slice()),
+        );
         o.push_str("<div class=plots>");
         for (name, b) in rows {
             if b.n > 0 {

@@ -390,7 +390,7 @@ fn protocol(opts: &ValidateOptions) -> Protocol {
             "Fiducials: reference beats paired to test beats by QRS peak; a reference fiducial is detected when the paired test beat marks it within the fiducial window; error = test - reference (ms); undetected and unpaired reference fiducials are false negatives.".into(),
             "False positives (positive predictivity): on paired beats only, where the reference annotates the wave exhaustively (any file of that reference kind marks it) and the reference beat lacks the whole wave while the test mark lies within the span the reference annotates on that channel (first to last reference mark), or the test mark lies outside the fiducial window of a present reference mark.".into(),
             "Statistics: SD with n - 1; mean of per-record SDs over records with >= 2 errors; p95 of |error| linear interpolation; CSE pass = pooled SD <= CSE 1985 tolerance (P on 10.2, P end 12.7, QRS on 6.5, QRS end 11.6, T end 30.6 ms).".into(),
-            "Error components: over the scored marks, population SDs (denominator n) of each mark's record mean error (between records), of its (record, channel) mean error (between record-channels) and of the error minus that mean (within record-channel); reference / tool spread = the within (record, channel) population SD of each side's mark minus the QRS peak of its own beat; the global marks have one channel per record.".into(),
+            "Error components: over the scored marks, population SDs (denominator n) of each mark's record mean error (between records), of its (record, channel) mean error (between record-channels) and of the error minus that mean (within record-channel); reference / tool spread = the within (record, channel) population SD of each side's mark minus the QRS peak of its own beat; the global marks have one channel per record. Window intervals (and the human window QT) are split the same way by record: SD of each window's record mean difference (between records) and of the difference minus it (within record).".into(),
             "QT: beat QT = T end - QRS on on paired beats where both sides mark both (no fiducial window); window QT = windows.csv qt_superimposed_ms / qt_ms vs mean reference beat QT of reference beats with QRS peak in [start_s, end_s), windows with >= min_window_beats; with per-lead references also vs the longest per-lead reference QT (each lead file's mean beat QT in the window, >= min_window_beats beats; the longest lead's mean); window QRS duration / PR = windows.csv qrs_ms / pr_ms vs the mean reference QRS end - QRS on / QRS on - P on of the same beats, the same way; Bland-Altman limits = bias +/- 1.96 SD.".into(),
             "Global reference without .q1c (LUDB): beats of all lead files clustered by QRS peak as above; per beat the earliest onset, latest offset and median peak over the leads that mark them (common practice for global boundaries).".into(),
             "Human reference: .q2c (annotator 2) scored against .q1c (annotator 1) with the same code, on the beats both annotators selected (.q1c beats paired with a .q2c beat) and the fiducials annotator 2 marks; the tool is shown on the same beats and fiducials. Window QT: per window of windows.csv, the mean beat QT of each annotator's beats with QRS peak in [start_s, end_s), on windows where both annotators have >= min_window_beats such beats; annotator 2 vs annotator 1, and the tool's qt_superimposed_ms vs annotator 1 on the same windows.".into(),
@@ -946,12 +946,21 @@ fn human_window_qt(
         ) else {
             continue;
         };
-        ann.push((m2, m1));
+        ann.push((r.name.as_str(), m2, m1));
         if let Some(v) = w.qt_superimposed_ms {
-            tool.push((v, m1));
+            tool.push((r.name.as_str(), v, m1));
         }
     }
-    let f = |v: Vec<(f64, f64)>| (!v.is_empty()).then(|| BlandAltman::from_pairs(&v));
+    let f = |v: Vec<(&str, f64, f64)>| {
+        (!v.is_empty()).then(|| {
+            let pairs: Vec<(f64, f64)> = v.iter().map(|&(_, t, r)| (t, r)).collect();
+            let keyed: Vec<(&str, f64)> = v.iter().map(|&(k, t, r)| (k, t - r)).collect();
+            BlandAltman {
+                by_record: stats::RecordSplit::from_keyed(&keyed),
+                ..BlandAltman::from_pairs(&pairs)
+            }
+        })
+    };
     (f(ann), f(tool))
 }
 

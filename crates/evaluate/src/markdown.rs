@@ -444,6 +444,64 @@ pub fn qt_stability_rows(q: &QtSection) -> Vec<[String; 5]> {
         .collect()
 }
 
+/// Column heads of the split-by-record table (see [`qt_split_rows`]).
+pub const QT_SPLIT_HEADS: [&str; 6] = [
+    "interval",
+    "windows",
+    "records",
+    "SD ms",
+    "between records SD ms",
+    "within record SD ms",
+];
+
+/// What the split-by-record table shows (Markdown and HTML).
+pub const QT_SPLIT_INTRO: &str = "Window intervals split by record (population SDs: between² + within² = the population variance of the differences): the spread of each record's mean difference, a reading that holds for the whole record, and the rest from window to window within records.";
+
+/// One row per window-interval agreement known by record, the second
+/// annotator's window QT and the tool's on the same windows included.
+/// Shared by the Markdown and HTML reports.
+pub fn qt_split_rows(q: &QtSection, h: Option<&crate::report::HumanSection>) -> Vec<[String; 6]> {
+    let mut named = vec![
+        ("window, superimposed leads", q.window_superimposed.as_ref()),
+        ("window, single lead", q.window_single.as_ref()),
+        (
+            "window, superimposed leads, vs longest reference lead",
+            q.window_superimposed_lead_ref.as_ref(),
+        ),
+        (
+            "window, single lead, vs longest reference lead",
+            q.window_single_lead_ref.as_ref(),
+        ),
+        ("window QRS duration", q.window_qrs.as_ref()),
+        ("window PR interval", q.window_pr.as_ref()),
+    ];
+    if let Some(h) = h {
+        named.push((
+            "window QT, annotator 2 vs annotator 1",
+            h.annotator_qt_window.as_ref(),
+        ));
+        named.push((
+            "window QT, tendline (superimposed) on the same windows",
+            h.tool_qt_window.as_ref(),
+        ));
+    }
+    named
+        .into_iter()
+        .filter_map(|(name, b)| {
+            let b = b?;
+            let s = b.by_record.as_ref()?;
+            Some([
+                name.to_string(),
+                b.n.to_string(),
+                s.records.to_string(),
+                num(b.sd_ms, 1),
+                format!("{:.1}", s.between_records_sd_ms),
+                format!("{:.1}", s.within_record_sd_ms),
+            ])
+        })
+        .collect()
+}
+
 /// Render the whole summary.
 pub fn render(r: &ValidationReport) -> String {
     let mut out = String::new();
@@ -502,6 +560,11 @@ pub fn render(r: &ValidationReport) -> String {
     }
     if let Some(q) = &r.qt {
         qt_md(&mut out, q);
+        let rows = qt_split_rows(q, r.human.as_ref());
+        if !rows.is_empty() {
+            let _ = writeln!(out, "{QT_SPLIT_INTRO}\n");
+            text_table(&mut out, &QT_SPLIT_HEADS, rows.iter().map(|r| r.as_slice()));
+        }
     }
     let _ = writeln!(out, "## Protocol\n");
     let _ = writeln!(

@@ -2,9 +2,65 @@
 //!
 //! Conventions: SD is the sample standard deviation (denominator n − 1; `None` below
 //! two values); percentiles interpolate linearly between order statistics at
-//! position q·(n − 1) (the default of numpy's `percentile`).
+//! position q·(n − 1) (the default of numpy's `percentile`). The split of a spread
+//! by record ([`RecordSplit`], [`split_by`]) uses population variances (denominator
+//! n) instead, so that its two parts add up in squares.
 
 use serde::{Deserialize, Serialize};
+
+/// Population SD of `pts`' values around their per-key means (`within`) and of
+/// those means over the points (`between`): `(between, within)`, with
+/// `between² + within²` the population variance of all values. `(0, 0)` when empty.
+pub fn split_by<K: Ord + Copy>(pts: &[(K, f64)]) -> (f64, f64) {
+    if pts.is_empty() {
+        return (0.0, 0.0);
+    }
+    let mut sums: std::collections::BTreeMap<K, (f64, usize)> = Default::default();
+    for &(k, v) in pts {
+        let e = sums.entry(k).or_insert((0.0, 0));
+        e.0 += v;
+        e.1 += 1;
+    }
+    let n = pts.len() as f64;
+    let grand = pts.iter().map(|p| p.1).sum::<f64>() / n;
+    let mean = |k: &K| sums[k].0 / sums[k].1 as f64;
+    let between = pts
+        .iter()
+        .map(|p| (mean(&p.0) - grand).powi(2))
+        .sum::<f64>()
+        / n;
+    let within = pts.iter().map(|p| (p.1 - mean(&p.0)).powi(2)).sum::<f64>() / n;
+    (between.sqrt(), within.sqrt())
+}
+
+/// The differences of an agreement split into a part shared by each record
+/// (the spread of the record means) and the rest within records, ms
+/// (population SDs, [`split_by`]).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct RecordSplit {
+    pub records: usize,
+    pub between_records_sd_ms: f64,
+    pub within_record_sd_ms: f64,
+}
+
+impl RecordSplit {
+    /// From `(record key, difference)` pairs; `None` when empty.
+    pub fn from_keyed<K: Ord + Copy>(d: &[(K, f64)]) -> Option<RecordSplit> {
+        if d.is_empty() {
+            return None;
+        }
+        let (between, within) = split_by(d);
+        Some(RecordSplit {
+            records: d
+                .iter()
+                .map(|p| p.0)
+                .collect::<std::collections::BTreeSet<_>>()
+                .len(),
+            between_records_sd_ms: between,
+            within_record_sd_ms: within,
+        })
+    }
+}
 
 /// Summary of signed errors (test − reference), all in ms.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
@@ -97,6 +153,9 @@ pub struct BlandAltman {
     /// ([`BlandAltman::by_record`]).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub stability: Option<crate::stability::Stability>,
+    /// The differences split by record, where the pairs are known by record.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub by_record: Option<RecordSplit>,
 }
 
 impl BlandAltman {
@@ -119,6 +178,7 @@ impl BlandAltman {
             mae_ms: mean(&abs),
             points: pairs.iter().map(|(t, r)| ((t + r) / 2.0, t - r)).collect(),
             stability: None,
+            by_record: None,
         }
     }
 
@@ -147,6 +207,8 @@ impl BlandAltman {
             })
             .collect();
         ba.stability = crate::stability::stability(&recs, boot.replicates, boot.seed);
+        let keyed: Vec<(usize, f64)> = triples.iter().map(|&(k, t, r)| (k, t - r)).collect();
+        ba.by_record = RecordSplit::from_keyed(&keyed);
         Some(ba)
     }
 }
@@ -154,6 +216,17 @@ impl BlandAltman {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn record_split_by_hand() {
+        // Record 1: 2, 4 (mean 3); record 2: 9 (mean 9). Grand mean 5.
+        // Between: (2·(3 − 5)² + (9 − 5)²) / 3 = 24 / 3; within: (1 + 1 + 0) / 3.
+        let s = RecordSplit::from_keyed(&[(1, 2.0), (2, 9.0), (1, 4.0)]).unwrap();
+        assert_eq!(s.records, 2);
+        assert!((s.between_records_sd_ms - 8.0f64.sqrt()).abs() < 1e-12);
+        assert!((s.within_record_sd_ms - (2.0f64 / 3.0).sqrt()).abs() < 1e-12);
+        assert!(RecordSplit::from_keyed::<u8>(&[]).is_none());
+    }
 
     #[test]
     fn hand_computed_mean_sd() {
