@@ -3,8 +3,8 @@
 //! This crate scores a finished run directory (`annotations/<record>.mark` global
 //! marks, `annotations/<record>.leadmark` per-lead marks, `windows.csv` window QT)
 //! against reference annotations in WFDB format, and writes a report a reviewer can
-//! check: `report.json` (every number), `report.md` (summary) and `report.html`
-//! (self-contained page with SVG plots).
+//! check: `report.json` (every number), `report.md` (summary), `report.html`
+//! (self-contained page with SVG plots) and `marks.csv` (every scored mark).
 //!
 //! References (chosen with [`ReferenceKind`], `Auto` uses whatever exists):
 //! - beats: `<record>.atr` (every beat); for LUDB-style data without `.atr`, the QRS
@@ -44,6 +44,10 @@
 //!   `qt`, `human`, `worst_beats`, `warnings`; sections absent for lack of a
 //!   reference are `null`; unavailable numbers (e.g. SD of one value) are `null`.
 //! - `report.md`: the headline tables; `report.html`: tables and inline SVG plots.
+//! - `marks.csv`: one row per scored mark ([`marks_csv`]); a run without boundary
+//!   references writes none and removes one left by an earlier report.
+//! - Population SDs (denominator n) only where a spread is split into parts
+//!   ([`components`], [`stats::RecordSplit`]), so the parts add up in squares.
 //!
 //! The regression gate: [`Floors`] (TOML, format in [`floors`]) and [`check_floors`].
 
@@ -1063,6 +1067,15 @@ pub fn write_report(report: &ValidationReport, out_dir: &Path) -> Result<(), Eva
     write("report.html", &html::render(report)?)?;
     if !report.marks.is_empty() {
         write("marks.csv", &marks_csv::to_csv(&report.marks))?;
+    } else {
+        // A stale list from an earlier report must not pass for this one's.
+        let p = out_dir.join("marks.csv");
+        match std::fs::remove_file(&p) {
+            Err(e) if e.kind() != std::io::ErrorKind::NotFound => {
+                return Err(EvalError::Io { path: p, source: e })
+            }
+            _ => {}
+        }
     }
     Ok(())
 }

@@ -126,10 +126,36 @@ fn ludb_reference_copy_scores_perfectly_and_shift_is_measured() {
         1,
         "a missing window-QT agreement (no windows.csv) must be a violation: {v:?}"
     );
+    // A constant shift is an offset with no spread: every component is 0,
+    // and the tool's marks move from beat to beat exactly as the reference's.
+    for c in &p.components {
+        assert!(c.total_ms.abs() < 1e-9, "{c:?}");
+        assert!(c.between_channels_ms.abs() < 1e-9 && c.within_channel_ms.abs() < 1e-9);
+        assert!(
+            (c.reference_spread_ms - c.test_spread_ms).abs() < 1e-9,
+            "{c:?}"
+        );
+    }
+    assert_eq!(p.components.len(), Fiducial::ALL.len());
     let out = tempfile::tempdir().unwrap();
     write_report(&r, out.path()).unwrap();
     let md = std::fs::read_to_string(out.path().join("report.md")).unwrap();
     assert!(md.contains("Per-lead boundaries"));
+    assert!(md.contains("Error components"));
+    // marks.csv: every per-lead scored mark a hit 6 ms late (the global marks
+    // of this fixture are not a copy of the combined global reference).
+    let csv = std::fs::read_to_string(out.path().join("marks.csv")).unwrap();
+    let rows: Vec<&str> = csv.lines().filter(|l| l.starts_with("lead,")).collect();
+    let tp: u64 = p.fiducials.iter().map(|f| f.tp).sum();
+    assert_eq!(rows.len() as u64, tp);
+    assert!(rows
+        .iter()
+        .all(|l| l.contains(",tp,") && l.contains(",6.000,")));
+    // A later report without scored marks leaves no stale list behind.
+    let mut empty = r.clone();
+    empty.marks.clear();
+    write_report(&empty, out.path()).unwrap();
+    assert!(!out.path().join("marks.csv").exists());
 }
 
 #[test]
