@@ -1,5 +1,6 @@
 //! `tendline validate`: score a run (or run, then score) against reference
-//! annotations and write `report.json`, `report.md` and `report.html`; with
+//! annotations and write `report.json`, `report.md`, `report.html` and
+//! `marks.csv` (every scored mark); with
 //! `--floors`, fail when accuracy falls below the committed floors.
 
 use anyhow::{Context, Result};
@@ -116,9 +117,14 @@ pub fn cmd_validate(a: ValidateArgs) -> Result<ExitCode> {
     })?;
     if !a.quiet {
         eprintln!(
-            "{}: {} records scored; report in {}",
+            "{}: {} records scored; report (report.md, .html, .json){} in {}",
             report.database,
             report.records.len(),
+            if report.marks.is_empty() {
+                ""
+            } else {
+                " and every scored mark (marks.csv)"
+            },
             opts.out_dir.display()
         );
         for w in &report.warnings {
