@@ -100,4 +100,5 @@ PY
   echo
   echo "$history"
 } > bench/results.md
+python3 scripts/accuracy_table.py --write   # the README's speed line
 cat bench/results.md | sed -n '1,/<!-- bench-history -->/p'

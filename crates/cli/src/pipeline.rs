@@ -173,7 +173,8 @@ pub fn process_record(
 ) -> Result<Processed> {
     let opts = tendline_formats::ReadOptions { csv_fs: ctx.csv_fs };
     let mut rec = tendline_formats::read_record(&input.path, &opts)
-        .with_context(|| format!("reading {}", input.path.display()))?;
+        // Every format error already names the file it read.
+        .context("reading the input")?;
     check_record(&rec, &input.path)?;
     let missing = fill_missing(&mut rec);
     let bridged: Vec<String> = rec
