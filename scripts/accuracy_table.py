@@ -118,6 +118,22 @@ def ba(b):
     return f"{b['bias_ms']:.1f} ± {b['sd_ms']:.1f} ms (n = {b['n']})"
 
 
+def other_rows(q, lu):
+    def cell(r, key):
+        b = r["qt"].get(key)
+        return ba(b) if b else "—"
+
+    rows = []
+    for label, key, lkey in (
+        ("QRS duration", "window_qrs", "window_qrs"),
+        ("PR interval", "window_pr", "window_pr"),
+        ("P duration", "window_p", "window_p"),
+        ("T peak to T end (LUDB: against the lead it was measured on)", "window_tpe", "window_tpe_lead_ref"),
+    ):
+        rows.append(f"| {label} | {cell(q, key)} | {cell(lu, lkey)} |")
+    return rows
+
+
 def human_rows(r):
     """Annotator 2 against annotator 1, and the tool on the same beats."""
     ann = fiducials(r["human"]["annotator"])
@@ -187,6 +203,12 @@ def block():
         f"- LUDB, against the longest per-lead reference QT: superimposed leads "
         f"{ba(lu['qt']['window_superimposed_lead_ref'])}; longest lead "
         f"{ba(lu['qt']['window_single_lead_ref'])}.",
+        "",
+        "Other window intervals against the same beats' reference (no target; mean ± SD):",
+        "",
+        "| interval | QTDB | LUDB |",
+        "|---|---:|---:|",
+        *other_rows(q, lu),
         "",
         "A second cardiologist, scored the same way (QTDB records both annotators marked; mean ± SD, ms):",
         "",

@@ -57,4 +57,7 @@ for db in ["qtdb", "ludb"]:
     agreement(db, "qt_window_superimposed", q.get("window_superimposed"))
     agreement(db, "window_qrs", q.get("window_qrs"))
     agreement(db, "window_pr", q.get("window_pr"))
+    agreement(db, "window_p", q.get("window_p"))
+    agreement(db, "window_tpe", q.get("window_tpe"))
+    agreement(db, "window_tpe_lead_ref", q.get("window_tpe_lead_ref"))
 print("\n".join(out))

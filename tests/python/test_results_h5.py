@@ -110,6 +110,49 @@ def test_beats_marks_and_windows_are_consistent(run):
             assert text(w["qt_lead"][0]) in [text(x) for x in g.attrs["leads"]]
 
 
+def test_window_tpe_p_duration_and_dispersion_follow_the_median_beat_marks(run):
+    # The window intervals beyond the QT, rebuilt from the per-lead median-beat
+    # marks stored beside them (read with h5py): T peak to T end on the lead of the
+    # window's QT, P duration from the earliest P onset to the latest P end, QT
+    # dispersion (common practice: longest minus shortest lead QT) within the
+    # span of the leads' QTs.
+    _, out = run
+    with h5py.File(out / "results.h5", "r") as f:
+        for rec in ["7", "8"]:
+            g = f["records"][rec]
+            fs = float(g.attrs["fs"])
+            w = g["windows"]
+            for k in ["p_ms", "tpe_ms", "qt_dispersion_ms", "qt_valid_leads"]:
+                assert k in w, k
+            # Median beats stacked [window, lead] (docs/results-h5.md); window 0.
+            m = g["windows/medians"]
+            marks = m["marks"]
+            lead = int(w["qt_lead_index"][0])
+            if lead >= 0:
+                tp, te = int(marks["t_peak"][0, lead]), int(marks["t_end"][0, lead])
+                want = (te - tp) / fs * 1000.0 if tp >= 0 and te > tp else np.nan
+                got = float(w["tpe_ms"][0])
+                assert (np.isnan(want) and np.isnan(got)) or got == pytest.approx(want), rec
+            usable = m["usable"][0] == 1
+            on, end = marks["p_on"][0], marks["p_end"][0]
+            ok_on, ok_end = usable & (on >= 0), usable & (end >= 0)
+            p = float(w["p_ms"][0])
+            if np.isfinite(p):
+                # Robust extremes drop at most one outlier at each side, so the
+                # duration lies between the second-widest and the widest span.
+                widest = (end[ok_end].max() - on[ok_on].min()) / fs * 1000.0
+                assert 0 < p <= widest + 1e-9, rec
+            qts = m["qt_ms"][0]
+            qts = qts[np.isfinite(qts)]
+            n_valid = int(w["qt_valid_leads"][0])
+            assert 0 <= n_valid <= len(qts)
+            d = float(w["qt_dispersion_ms"][0])
+            if n_valid >= 3:
+                assert 0 <= d <= qts.max() - qts.min() + 1e-9, rec
+            else:
+                assert np.isnan(d), rec
+
+
 def test_annotation_files_read_with_wfdb(run):
     _, out = run
     ann = wfdb.rdann(str(out / "annotations" / "7"), "mark")

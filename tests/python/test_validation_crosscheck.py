@@ -7,6 +7,7 @@ themselves read with the `wfdb` Python package (`wfdb.rdann`):
 - the QRS-onset and T-end error count, mean and SD against the `.q1c` reference;
 - the window QT (the run's `windows.csv`) against the mean `.q1c` beat QT of each
   window, and the same for annotator 2 (`.q2c`) on the windows both annotators mark;
+- the window QRS duration, PR, P duration and T peak to T end the same way;
 - the scored pairs listed in `marks.csv` beside the report;
 - the split of those errors into record and beat-to-beat parts and the
   beat-to-beat spread of each side's marks around its own QRS peak;
@@ -214,6 +215,72 @@ def test_window_qrs_and_pr_match_report():
                 got[key].append((float(v), m))
     _check_ba("window QRS duration", got["qrs"], qt["window_qrs"])
     _check_ba("window PR interval", got["pr"], qt["window_pr"])
+
+
+def _beats_p_tpe(path_no_ext, ext, fs):
+    """Beats of a global annotation file: (qrs peak, P end - P onset, T end - T peak)
+    per beat, samples (None where a mark is missing); P and T assigned to beats by
+    the rules of _beats_qrs_pr and _beats_qrs_on_t_end."""
+    a = wfdb.rdann(str(path_no_ext), ext)
+    order = np.argsort(a.sample, kind="stable")
+    smp = [int(a.sample[k]) for k in order]
+    sym = [a.symbol[k] for k in order]
+    peaks, p_waves, t_waves = [], [], []
+    for i, y in enumerate(sym):
+        on = smp[i - 1] if i > 0 and sym[i - 1] == "(" else None
+        off = smp[i + 1] if i + 1 < len(sym) and sym[i + 1] == ")" else None
+        if y in BEAT_SYMBOLS:
+            peaks.append(smp[i])
+        elif y == "p":
+            p_waves.append((smp[i], on, off))
+        elif y == "t":
+            t_waves.append((smp[i], off))
+    p_dur = [None] * len(peaks)
+    tpe = [None] * len(peaks)
+    max_p = math.floor(MAX_P_TO_QRS_MS * fs / 1000.0)
+    for k, (pp, pon, poff) in enumerate(p_waves):
+        j = int(np.searchsorted(peaks, pp, side="right"))
+        if j >= len(peaks) or (k + 1 < len(p_waves) and p_waves[k + 1][0] < peaks[j]):
+            continue
+        if peaks[j] - pp <= max_p and pon is not None and poff is not None:
+            p_dur[j] = poff - pon
+    max_t = math.floor(MAX_QRS_TO_T_MS * fs / 1000.0)
+    prev_t_peak = None
+    for tp, toff in t_waves:
+        j = int(np.searchsorted(peaks, tp, side="left"))
+        ok = j > 0 and tp - peaks[j - 1] <= max_t
+        if ok and prev_t_peak is not None and prev_t_peak > peaks[j - 1]:
+            ok = False
+        if ok and toff is not None:
+            tpe[j - 1] = toff - tp
+        prev_t_peak = tp
+    return list(zip(peaks, p_dur, tpe))
+
+
+def test_window_p_duration_and_tpe_match_report():
+    """Window P-wave duration and T peak to T end (windows.csv p_ms, tpe_ms) against
+    the mean annotator-1 P end - P onset and T end - T peak of each window's beats,
+    recomputed from the QTDB .q1c files with the `wfdb` package."""
+    run, qtdb, report = _paths()
+    qt = report.get("qt")
+    assert qt is not None and qt.get("window_p") and qt.get("window_tpe")
+    min_beats = report["protocol"]["min_window_beats"]
+    cache = {}
+    got = {"p": [], "tpe": []}
+    for rec, row in _scored_window_rows(run, qtdb, report):
+        if rec not in cache:
+            fs = _fs(qtdb, rec)
+            b = _beats_p_tpe(qtdb / rec, "q1c", fs)
+            cache[rec] = (fs, [(pk, d) for pk, d, _ in b], [(pk, d) for pk, _, d in b])
+        fs, p_dur, tpe = cache[rec]
+        s, e = float(row["start_s"]), float(row["end_s"])
+        for key, vals, col in (("p", p_dur, "p_ms"), ("tpe", tpe, "tpe_ms")):
+            m = _window_mean(vals, s, e, fs, min_beats)
+            v = row[col]
+            if m is not None and v not in ("", "NaN", "nan"):
+                got[key].append((float(v), m))
+    _check_ba("window P duration", got["p"], qt["window_p"])
+    _check_ba("window T peak to T end", got["tpe"], qt["window_tpe"])
 
 
 def test_beats_match_report():

@@ -56,6 +56,13 @@ pub fn windows_group(
     wg.dataset_with_units("qrs_ms", col(&|x| x.qrs_ms), "ms");
     wg.dataset_with_units("pr_ms", col(&|x| x.pr_ms), "ms");
     wg.dataset_with_units("jt_ms", col(&|x| x.jt_ms), "ms");
+    wg.dataset_with_units("p_ms", col(&|x| x.p_ms), "ms");
+    wg.dataset_with_units("tpe_ms", col(&|x| x.tpe_ms), "ms");
+    wg.dataset_with_units("qt_dispersion_ms", col(&|x| x.qt_dispersion_ms), "ms");
+    wg.dataset(
+        "qt_valid_leads",
+        Data::I64(w.iter().map(|x| x.qt_valid_leads as i64).collect()),
+    );
     wg.dataset_with_units("qtc_bazett_ms", col(&|x| x.qtc_bazett_ms), "ms");
     wg.dataset_with_units("qtc_fridericia_ms", col(&|x| x.qtc_fridericia_ms), "ms");
     wg.dataset_with_units("qtc_framingham_ms", col(&|x| x.qtc_framingham_ms), "ms");
@@ -142,6 +149,9 @@ pub fn windows_group(
         ("qrs_ms", s.qrs_ms),
         ("pr_ms", s.pr_ms),
         ("jt_ms", s.jt_ms),
+        ("p_ms", s.p_ms),
+        ("tpe_ms", s.tpe_ms),
+        ("qt_dispersion_ms", s.qt_dispersion_ms),
         ("qtc_bazett_ms", s.qtc_bazett_ms),
         ("qtc_fridericia_ms", s.qtc_fridericia_ms),
         ("qtc_framingham_ms", s.qtc_framingham_ms),

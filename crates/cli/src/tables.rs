@@ -56,6 +56,10 @@ const SUMMARY_NUM: [&str; 13] = [
     "qtc_ms",
 ];
 
+/// `summary.csv` numeric columns after `flags` (added later; appended so that the
+/// earlier columns keep their places).
+const SUMMARY_NUM_LATER: [&str; 3] = ["p_ms", "tpe_ms", "qt_dispersion_ms"];
+
 const WINDOW_COLS: [&str; 17] = [
     "start_s",
     "end_s",
@@ -75,6 +79,10 @@ const WINDOW_COLS: [&str; 17] = [
     "qtc_hodges_ms",
     "qtc_flag",
 ];
+
+/// `windows.csv` columns after `flags` (added later; appended so that the earlier
+/// columns keep their places).
+const WINDOW_COLS_LATER: [&str; 4] = ["p_ms", "tpe_ms", "qt_dispersion_ms", "qt_valid_leads"];
 
 fn cell_of(d: &Data, i: usize) -> String {
     match d {
@@ -110,13 +118,23 @@ impl Default for CsvWriter {
             s.push(',');
             s.push_str(k);
         }
-        s.push_str(",qt_rule,qtc_formula,qtc_flag,flags\n");
+        s.push_str(",qt_rule,qtc_formula,qtc_flag,flags");
+        for k in SUMMARY_NUM_LATER {
+            s.push(',');
+            s.push_str(k);
+        }
+        s.push('\n');
         let mut w = String::from("record,window");
         for k in WINDOW_COLS {
             w.push(',');
             w.push_str(k);
         }
-        w.push_str(",flags\n");
+        w.push_str(",flags");
+        for k in WINDOW_COLS_LATER {
+            w.push(',');
+            w.push_str(k);
+        }
+        w.push('\n');
         CsvWriter {
             summary: s,
             windows: w,
@@ -166,7 +184,7 @@ impl CsvWriter {
         for k in SUMMARY_NUM {
             write!(s, ",{}", fmt_f(attr_f(g, k), 1))?;
         }
-        writeln!(
+        write!(
             s,
             ",{},{},{},{}",
             attr_s(g, "qt_rule").unwrap_or(""),
@@ -174,11 +192,19 @@ impl CsvWriter {
             attr_s(g, "qtc_flag").unwrap_or(""),
             csv_cell(attr_s(g, "flags").unwrap_or(""))
         )?;
+        for k in SUMMARY_NUM_LATER {
+            write!(s, ",{}", fmt_f(attr_f(g, k), 1))?;
+        }
+        s.push('\n');
         if let Some(wg) = g.groups.get("windows") {
             let n = wg.datasets.get("start_s").map_or(0, |d| d.data.rows());
             for i in 0..n {
                 write!(w, "{},{i}", csv_cell(&p.record))?;
-                for k in WINDOW_COLS.iter().chain(std::iter::once(&"flags")) {
+                for k in WINDOW_COLS
+                    .iter()
+                    .chain(std::iter::once(&"flags"))
+                    .chain(WINDOW_COLS_LATER.iter())
+                {
                     let c = wg
                         .datasets
                         .get(*k)

@@ -14,7 +14,8 @@
 //!
 //! [qtdb.qt_beat]                 # Bland–Altman of beat QT (also qt_beat_per_lead,
 //!                                # qt_window_superimposed, window_qrs,
-//!                                # window_pr)
+//!                                # window_pr, window_p, window_tpe,
+//!                                # window_tpe_lead_ref)
 //! max_abs_bias_ms = 20.0
 //! max_sd_ms = 40.0
 //!
@@ -55,6 +56,9 @@ pub struct DatabaseFloors {
     pub qt_window_superimposed: Option<AgreementFloors>,
     pub window_qrs: Option<AgreementFloors>,
     pub window_pr: Option<AgreementFloors>,
+    pub window_p: Option<AgreementFloors>,
+    pub window_tpe: Option<AgreementFloors>,
+    pub window_tpe_lead_ref: Option<AgreementFloors>,
 }
 
 /// Beat detection floors (percent).
@@ -155,6 +159,9 @@ impl Floors {
                 ("qt_window_superimposed", &d.qt_window_superimposed),
                 ("window_qrs", &d.window_qrs),
                 ("window_pr", &d.window_pr),
+                ("window_p", &d.window_p),
+                ("window_tpe", &d.window_tpe),
+                ("window_tpe_lead_ref", &d.window_tpe_lead_ref),
             ] {
                 if let Some(a) = a {
                     ms(
@@ -323,6 +330,21 @@ pub fn check_floors(report: &ValidationReport, floors: &Floors) -> Vec<String> {
             "window_pr",
             qt.and_then(|q| q.window_pr.as_ref()),
             &d.window_pr,
+        ),
+        (
+            "window_p",
+            qt.and_then(|q| q.window_p.as_ref()),
+            &d.window_p,
+        ),
+        (
+            "window_tpe",
+            qt.and_then(|q| q.window_tpe.as_ref()),
+            &d.window_tpe,
+        ),
+        (
+            "window_tpe_lead_ref",
+            qt.and_then(|q| q.window_tpe_lead_ref.as_ref()),
+            &d.window_tpe_lead_ref,
         ),
     ];
     for (k, got, floors) in checks {

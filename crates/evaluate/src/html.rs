@@ -597,6 +597,15 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
         if let Some(b) = &q.window_pr {
             rows.push(("window PR interval", b));
         }
+        if let Some(b) = &q.window_p {
+            rows.push(("window P duration", b));
+        }
+        if let Some(b) = &q.window_tpe {
+            rows.push(("window T peak to T end", b));
+        }
+        if let Some(b) = &q.window_tpe_lead_ref {
+            rows.push(("window T peak to T end, vs the same reference lead", b));
+        }
         ba_rows(&mut o, &rows);
         let st = crate::markdown::qt_stability_rows(q);
         plain_table_html(

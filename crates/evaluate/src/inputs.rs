@@ -156,11 +156,17 @@ pub struct WindowRow {
     pub qrs_ms: Option<f64>,
     /// Window PR interval (earliest P onset to earliest QRS onset), ms.
     pub pr_ms: Option<f64>,
+    /// Window P-wave duration (earliest P onset to latest P end), ms.
+    pub p_ms: Option<f64>,
+    /// Window T peak to T end (on the longest-QT lead), ms.
+    pub tpe_ms: Option<f64>,
+    /// Name of the lead of `qt_ms` (empty when none or the column is absent).
+    pub qt_lead: String,
 }
 
 /// Parse `windows.csv` text: a header row naming the columns, comma-separated values
 /// without quoting. Required columns: `record, start_s, end_s`; `window`, `qt_ms`,
-/// `qt_superimposed_ms`, `qrs_ms`, `pr_ms` optional. Empty, `NaN` or `NA` cells are missing values.
+/// `qt_superimposed_ms`, `qrs_ms`, `pr_ms`, `p_ms`, `tpe_ms`, `qt_lead` optional. Empty, `NaN` or `NA` cells are missing values.
 pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, EvalError> {
     let bad = |line: usize, message: String| EvalError::Csv {
         path: path.to_path_buf(),
@@ -191,6 +197,7 @@ pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, Eval
     };
     let (win_c, qt_c, qts_c) = (col("window"), col("qt_ms"), col("qt_superimposed_ms"));
     let (qrs_c, pr_c) = (col("qrs_ms"), col("pr_ms"));
+    let (p_c, tpe_c, lead_c) = (col("p_ms"), col("tpe_ms"), col("qt_lead"));
     let mut rows = Vec::new();
     for (i, l) in lines {
         let line = i + 1;
@@ -219,6 +226,9 @@ pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, Eval
             qt_superimposed_ms: num(qts_c, "qt_superimposed_ms", false)?,
             qrs_ms: num(qrs_c, "qrs_ms", false)?,
             pr_ms: num(pr_c, "pr_ms", false)?,
+            p_ms: num(p_c, "p_ms", false)?,
+            tpe_ms: num(tpe_c, "tpe_ms", false)?,
+            qt_lead: lead_c.map(|c| get(c).to_string()).unwrap_or_default(),
         });
     }
     Ok(rows)

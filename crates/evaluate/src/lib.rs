@@ -395,7 +395,7 @@ fn protocol(opts: &ValidateOptions) -> Protocol {
             "False positives (positive predictivity): on paired beats only, where the reference annotates the wave exhaustively (any file of that reference kind marks it) and the reference beat lacks the whole wave while the test mark lies within the span the reference annotates on that channel (first to last reference mark), or the test mark lies outside the fiducial window of a present reference mark.".into(),
             "Statistics: SD with n - 1; mean of per-record SDs over records with >= 2 errors; p95 of |error| linear interpolation; CSE pass = pooled SD <= CSE 1985 tolerance (P on 10.2, P end 12.7, QRS on 6.5, QRS end 11.6, T end 30.6 ms).".into(),
             "Error components: over the scored marks, population SDs (denominator n) of each mark's record mean error (between records), of its (record, channel) mean error (between record-channels) and of the error minus that mean (within record-channel); reference / tool spread = the within (record, channel) population SD of each side's mark minus the QRS peak of its own beat; the global marks have one channel per record. Window intervals (and the human window QT) are split the same way by record: SD of each window's record mean difference (between records) and of the difference minus it (within record).".into(),
-            "QT: beat QT = T end - QRS on on paired beats where both sides mark both (no fiducial window); window QT = windows.csv qt_superimposed_ms / qt_ms vs mean reference beat QT of reference beats with QRS peak in [start_s, end_s), windows with >= min_window_beats; with per-lead references also vs the longest per-lead reference QT (each lead file's mean beat QT in the window, >= min_window_beats beats; the longest lead's mean); window QRS duration / PR = windows.csv qrs_ms / pr_ms vs the mean reference QRS end - QRS on / QRS on - P on of the same beats, the same way; Bland-Altman limits = bias +/- 1.96 SD.".into(),
+            "QT: beat QT = T end - QRS on on paired beats where both sides mark both (no fiducial window); window QT = windows.csv qt_superimposed_ms / qt_ms vs mean reference beat QT of reference beats with QRS peak in [start_s, end_s), windows with >= min_window_beats; with per-lead references also vs the longest per-lead reference QT (each lead file's mean beat QT in the window, >= min_window_beats beats; the longest lead's mean); window QRS duration / PR / P duration / T peak to T end = windows.csv qrs_ms / pr_ms / p_ms / tpe_ms vs the mean reference QRS end - QRS on / QRS on - P on / P end - P on / T end - T peak of the same beats, the same way; with per-lead references tpe_ms also vs the mean T end - T peak of the lead file of the window's qt_lead (the lead it was measured on); Bland-Altman limits = bias +/- 1.96 SD.".into(),
             "Global reference without .q1c (LUDB): beats of all lead files clustered by QRS peak as above; per beat the earliest onset, latest offset and median peak over the leads that mark them (common practice for global boundaries).".into(),
             "Human reference: .q2c (annotator 2) scored against .q1c (annotator 1) with the same code, on the beats both annotators selected (.q1c beats paired with a .q2c beat) and the fiducials annotator 2 marks; the tool is shown on the same beats and fiducials. Window QT: per window of windows.csv, the mean beat QT of each annotator's beats with QRS peak in [start_s, end_s), on windows where both annotators have >= min_window_beats such beats; annotator 2 vs annotator 1, and the tool's qt_superimposed_ms vs annotator 1 on the same windows.".into(),
         ],
@@ -621,6 +621,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 .collect();
             let (ws, wsingle, n_w) = window_qt(opts, windows.as_deref(), &recs);
             let (window_qrs, window_pr) = window_qrs_pr(opts, windows.as_deref(), &recs);
+            let (window_p, window_tpe) = window_p_tpe(opts, windows.as_deref(), &recs);
             qt = Some(QtSection {
                 reference: ref_label.clone(),
                 beat: BlandAltman::from_pairs(&p),
@@ -632,6 +633,9 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 window_single_lead_ref: None,
                 window_qrs,
                 window_pr,
+                window_p,
+                window_tpe,
+                window_tpe_lead_ref: None,
             });
         }
     }
@@ -701,10 +705,14 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                     window_single_lead_ref: None,
                     window_qrs: None,
                     window_pr: None,
+                    window_p: None,
+                    window_tpe: None,
+                    window_tpe_lead_ref: None,
                 });
                 q.beat_per_lead = Some(ba);
                 q.window_superimposed_lead_ref = lead_sup;
                 q.window_single_lead_ref = lead_single;
+                q.window_tpe_lead_ref = window_tpe_lead_ref(opts, windows.as_deref(), &recs);
             }
         }
     }
@@ -883,6 +891,63 @@ fn window_qrs_pr(
     });
     let pr = window_agreement(opts, rows, recs, waves::BeatMarks::pr_samples, |w| w.pr_ms);
     (qrs.0, pr.0)
+}
+
+/// Window P-wave duration and T peak to T end against the mean reference interval
+/// of the window's beats (global references), as for the window QT.
+fn window_p_tpe(
+    opts: &ValidateOptions,
+    rows: Option<&[inputs::WindowRow]>,
+    recs: &[Loaded],
+) -> (Option<BlandAltman>, Option<BlandAltman>) {
+    let Some(rows) = rows else {
+        return (None, None);
+    };
+    let p = window_agreement(opts, rows, recs, waves::BeatMarks::p_samples, |w| w.p_ms);
+    let tpe = window_agreement(opts, rows, recs, waves::BeatMarks::tpe_samples, |w| {
+        w.tpe_ms
+    });
+    (p.0, tpe.0)
+}
+
+/// Window T peak to T end against the same lead's reference (per-lead references
+/// such as LUDB's): per window, the lead file of the window's `qt_lead` (the lead
+/// the tool measured Tp-e on), its mean T end − T peak over its beats with QRS
+/// peak in the window (at least `min_window_beats`).
+fn window_tpe_lead_ref(
+    opts: &ValidateOptions,
+    rows: Option<&[inputs::WindowRow]>,
+    recs: &[Loaded],
+) -> Option<BlandAltman> {
+    let rows = rows?;
+    let by_name = by_position(recs);
+    let mut v = Vec::new();
+    for w in rows {
+        let (Some(&(k, r)), Some(t)) = (by_name.get(w.record.as_str()), w.tpe_ms) else {
+            continue;
+        };
+        let Some(idx) = r
+            .hdr
+            .leads
+            .iter()
+            .position(|l| !w.qt_lead.is_empty() && l.eq_ignore_ascii_case(&w.qt_lead))
+        else {
+            continue;
+        };
+        let Some(beats) = u8::try_from(idx).ok().and_then(|i| r.leads.get(&i)) else {
+            continue;
+        };
+        if let Some(m) = window_mean(
+            beats,
+            w,
+            r.hdr.fs,
+            opts.min_window_beats,
+            waves::BeatMarks::tpe_samples,
+        ) {
+            v.push((k, t, m));
+        }
+    }
+    BlandAltman::by_record(&v, opts.resampling)
 }
 
 /// Window QT against the longest per-lead reference QT (per-lead references such as

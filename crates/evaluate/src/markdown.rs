@@ -384,6 +384,15 @@ fn qt_md(out: &mut String, q: &QtSection) {
     if let Some(b) = &q.window_pr {
         ba_row(out, "window PR interval", b);
     }
+    if let Some(b) = &q.window_p {
+        ba_row(out, "window P duration", b);
+    }
+    if let Some(b) = &q.window_tpe {
+        ba_row(out, "window T peak to T end", b);
+    }
+    if let Some(b) = &q.window_tpe_lead_ref {
+        ba_row(out, "window T peak to T end, vs the same reference lead", b);
+    }
     out.push('\n');
     let rows = qt_stability_rows(q);
     if !rows.is_empty() {
@@ -421,6 +430,12 @@ pub fn qt_stability_rows(q: &QtSection) -> Vec<[String; 5]> {
         ),
         ("window QRS duration", &q.window_qrs),
         ("window PR interval", &q.window_pr),
+        ("window P duration", &q.window_p),
+        ("window T peak to T end", &q.window_tpe),
+        (
+            "window T peak to T end, vs the same reference lead",
+            &q.window_tpe_lead_ref,
+        ),
     ];
     let ci = |v: Option<f64>, c: Option<[f64; 2]>| match c {
         Some([lo, hi]) => format!("{} ({lo:.1} to {hi:.1})", num(v, 1)),
@@ -474,6 +489,12 @@ pub fn qt_split_rows(q: &QtSection, h: Option<&crate::report::HumanSection>) -> 
         ),
         ("window QRS duration", q.window_qrs.as_ref()),
         ("window PR interval", q.window_pr.as_ref()),
+        ("window P duration", q.window_p.as_ref()),
+        ("window T peak to T end", q.window_tpe.as_ref()),
+        (
+            "window T peak to T end, vs the same reference lead",
+            q.window_tpe_lead_ref.as_ref(),
+        ),
     ];
     if let Some(h) = h {
         named.push((

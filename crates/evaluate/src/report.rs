@@ -193,6 +193,19 @@ pub struct QtSection {
     /// onset) of the window's beats.
     #[serde(default)]
     pub window_pr: Option<BlandAltman>,
+    /// Window P-wave duration (`p_ms`) vs the mean reference P duration (P end −
+    /// P onset) of the window's beats.
+    #[serde(default)]
+    pub window_p: Option<BlandAltman>,
+    /// Window T peak to T end (`tpe_ms`) vs the mean reference T end − T peak of
+    /// the window's beats.
+    #[serde(default)]
+    pub window_tpe: Option<BlandAltman>,
+    /// Per-lead references: window T peak to T end (`tpe_ms`, measured on the
+    /// lead `qt_lead`) vs the mean T end − T peak of that lead file's beats in
+    /// the window.
+    #[serde(default)]
+    pub window_tpe_lead_ref: Option<BlandAltman>,
 }
 
 /// Second annotator vs first, and the tool on the same records.

@@ -183,6 +183,16 @@ impl BeatMarks {
         Some(self.qrs_on? - self.p_on?)
     }
 
+    /// P-wave duration (P end − P onset), samples.
+    pub fn p_samples(&self) -> Option<i64> {
+        Some(self.p_end? - self.p_on?)
+    }
+
+    /// T peak to T end, samples.
+    pub fn tpe_samples(&self) -> Option<i64> {
+        Some(self.t_end? - self.t_peak?)
+    }
+
     /// Every marked sample of the beat (for plotting and spans).
     pub fn all_marks(&self) -> Vec<i64> {
         [

@@ -250,7 +250,7 @@ fn hand_made_record_window_qt_and_beats() {
     write_ann(&run.path().join("annotations"), "r1", "mark", &mark);
     std::fs::write(
         run.path().join("windows.csv"),
-        "record,window,start_s,end_s,qt_ms,qt_superimposed_ms,qrs_ms,pr_ms\nr1,0,0,2.1,405,410,90,150\nr1,1,2.1,4,300,300,70,150\n",
+        "record,window,start_s,end_s,qt_ms,qt_superimposed_ms,qrs_ms,pr_ms,p_ms,tpe_ms\nr1,0,0,2.1,405,410,90,150,100,130\nr1,1,2.1,4,300,300,70,150,100,90\n",
     )
     .unwrap();
     let r = validate(&ValidateOptions {
@@ -277,6 +277,14 @@ fn hand_made_record_window_qt_and_beats() {
     assert_eq!(wr.n, 1);
     assert!((wr.bias_ms.unwrap() - 10.0).abs() < 1e-9);
     assert!(q.window_pr.is_none());
+    // T peak to T end: reference T end - T peak = QT - 70 samples = 30, 32, 34
+    // samples (120, 128, 136 ms; mean 128 ms); window 0 reports 130 ms. No reference
+    // P wave: no P-duration agreement; a global reference: no same-lead Tp-e.
+    let wt = q.window_tpe.as_ref().unwrap();
+    assert_eq!(wt.n, 1);
+    assert!((wt.bias_ms.unwrap() - 2.0).abs() < 1e-9);
+    assert!(q.window_p.is_none());
+    assert!(q.window_tpe_lead_ref.is_none());
     // Beat QT: tool 400 ms everywhere vs 400, 408, 416, 600 → differences 0, −8, −16, −200.
     assert_eq!(q.beat.n, 4);
     assert!((q.beat.bias_ms.unwrap() + 56.0).abs() < 1e-9);
@@ -320,4 +328,57 @@ fn hand_made_record_window_qt_and_beats() {
         .unwrap();
     let b = &b.stability.as_ref().unwrap().bootstrap;
     assert_eq!((b.replicates, b.seed), (300, 9));
+}
+
+#[test]
+fn hand_made_per_lead_record_tpe_against_the_measured_lead() {
+    // Two lead files (I, II) at 250 Hz, three beats each in 0..2.1 s. Built with
+    // `beat` (T peak q+60, T end q+qt-10): lead I with QT 100 samples (Tp-e 30
+    // samples = 120 ms), lead II with QT 110, 112, 114 (Tp-e 40, 42, 44 samples =
+    // 160, 168, 176 ms; mean 168 ms). The window's QT lead is II and the tool
+    // reports Tp-e 170 ms: +2 ms against lead II (not the 120 ms of lead I).
+    let data = tempfile::tempdir().unwrap();
+    let run = tempfile::tempdir().unwrap();
+    let ann = run.path().join("annotations");
+    std::fs::create_dir_all(&ann).unwrap();
+    std::fs::write(
+        data.path().join("r2.hea"),
+        "r2 2 250 1000\nr2.dat 16 200 16 0 0 0 0 I\nr2.dat 16 200 16 0 0 0 0 II\n",
+    )
+    .unwrap();
+    let (mut l1, mut l2) = (Vec::new(), Vec::new());
+    for (k, qt) in [110, 112, 114].into_iter().enumerate() {
+        let q = 100 + 200 * k as i64;
+        l1.extend(beat(q, 100));
+        l2.extend(beat(q, qt));
+    }
+    write_ann(data.path(), "r2", "i", &l1);
+    write_ann(data.path(), "r2", "ii", &l2);
+    write_ann(&ann, "r2", "mark", &l2);
+    let mut both: Vec<Annotation> = Vec::new();
+    for (chan, v) in [(0u8, &l1), (1u8, &l2)] {
+        for &(s, y) in v.iter() {
+            let mut a = Annotation::new(s, y);
+            a.chan = chan;
+            both.push(a);
+        }
+    }
+    both.sort_by_key(|a| a.sample);
+    write_annotations(&ann.join("r2.leadmark"), &both).unwrap();
+    std::fs::write(
+        run.path().join("windows.csv"),
+        "record,window,start_s,end_s,qt_ms,qt_lead,qt_superimposed_ms,tpe_ms\nr2,0,0,2.1,448,II,448,170\n",
+    )
+    .unwrap();
+    let r = validate(&ValidateOptions {
+        run_dir: run.path().into(),
+        data_dir: data.path().into(),
+        worst_beats: 0,
+        ..Default::default()
+    })
+    .unwrap();
+    let q = r.qt.as_ref().unwrap();
+    let lt = q.window_tpe_lead_ref.as_ref().unwrap();
+    assert_eq!(lt.n, 1);
+    assert!((lt.bias_ms.unwrap() - 2.0).abs() < 1e-9, "{lt:?}");
 }

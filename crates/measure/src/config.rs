@@ -110,6 +110,13 @@ pub struct MeasureConfig {
     /// between leads of a normal 12-lead ECG (QT dispersion) is usually below about
     /// 50-60 ms (from memory), so a farther lead is a boundary error.
     pub lead_outlier_ms: f64,
+    /// QT dispersion (longest minus shortest valid single-lead QT of a window) is
+    /// reported only when at least this many leads give a valid QT. Default 3, the
+    /// fewest with a spread that is more than one difference; a 12-lead ECG usually
+    /// has many more (published QT-dispersion work asks for most of the 12 leads to be
+    /// measurable, from memory), so compare dispersions only at like lead counts
+    /// (`qt_valid_leads` beside each value). Count (no unit).
+    pub qt_dispersion_min_leads: usize,
     /// With exactly two valid leads whose QTs disagree by more than `lead_outlier_ms`,
     /// one T wave upright and the other inverted, keep the upright lead (true) rather
     /// than the lead with the larger T wave (false). On QTDB (annotator 1, window QT)
@@ -185,6 +192,7 @@ impl Default for MeasureConfig {
             qt_min_ms: 200.0,
             qt_max_ms: 700.0,
             lead_outlier_ms: 60.0,
+            qt_dispersion_min_leads: 3,
             prefer_upright_t: true,
             qrs_onset_all_leads: true,
             onset_outlier_ms: 20.0,
@@ -250,6 +258,13 @@ impl MeasureConfig {
                 self.qt_min_ms,
             )
             .range("lead_outlier_ms", self.lead_outlier_ms, 1.0, 500.0, "ms")
+            .range(
+                "qt_dispersion_min_leads",
+                self.qt_dispersion_min_leads as f64,
+                2.0,
+                64.0,
+                "leads",
+            )
             .range("onset_outlier_ms", self.onset_outlier_ms, 1.0, 500.0, "ms")
             .range("end_outlier_ms", self.end_outlier_ms, 1.0, 500.0, "ms")
             .range("min_lead_quality", self.min_lead_quality, 0.0, 1.0, "")

@@ -21,7 +21,13 @@
 //!   `onset_outlier_ms` before the next) and a single outlying latest end (more than
 //!   `end_outlier_ms` after the next) are dropped.
 //! - QRS: earliest QRS onset to latest QRS end by the same rule; PR: earliest P onset
-//!   (same onset rule) to the global QRS onset.
+//!   (same onset rule) to the global QRS onset; P duration: earliest P onset to latest
+//!   P end (same rules) over every usable lead.
+//! - T peak to T end (Tp-e) on the lead of the longest-lead QT, the lead whose T end
+//!   the QT takes (the T peak of a biphasic T is its larger phase).
+//! - QT dispersion: longest minus shortest QT of the valid leads (before the outlier
+//!   rule, which would remove what dispersion measures) when at least
+//!   `qt_dispersion_min_leads` leads are valid.
 
 use crate::{LeadMeasure, MeasureConfig};
 
@@ -35,6 +41,14 @@ pub struct Global {
     pub superimposed_ms: Option<f64>,
     pub qrs_ms: Option<f64>,
     pub pr_ms: Option<f64>,
+    /// P-wave duration.
+    pub p_ms: Option<f64>,
+    /// T peak to T end on the longest-lead QT's lead.
+    pub tpe_ms: Option<f64>,
+    /// Longest minus shortest valid lead QT.
+    pub qt_dispersion_ms: Option<f64>,
+    /// Leads with a valid QT (plausible, T wave high enough, not too noisy).
+    pub qt_valid_leads: usize,
 }
 
 /// Earliest of `v` (samples), dropping one outlier earlier than the next by more than `tol`.
@@ -162,10 +176,25 @@ pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
         .zip(qrs_end_all)
         .map(|(a, b)| ms(b - a))
         .filter(|&q| q > 0.0);
-    let pr_ms = robust_min(&samples(p_on, &usable), on_tol)
+    let p_on_all = robust_min(&samples(p_on, &usable), on_tol);
+    let pr_ms = p_on_all
         .zip(on_all)
         .map(|(p, q)| ms(q - p))
         .filter(|&q| q > 0.0);
+    let p_end = |m: &LeadMeasure| m.marks.p_end.map(|k| k.sample as f64);
+    let p_ms = p_on_all
+        .zip(robust_max(&samples(p_end, &usable), end_tol))
+        .map(|(a, b)| ms(b - a))
+        .filter(|&p| p > 0.0);
+    let tpe_ms = longest_lead
+        .and_then(|l| leads[l].marks.t_peak.zip(leads[l].marks.t_end))
+        .map(|(p, e)| ms(e.sample as f64 - p.sample as f64))
+        .filter(|&d| d > 0.0);
+    let valid_qt: Vec<f64> = valid.iter().filter_map(|&l| leads[l].qt_ms).collect();
+    let qt_dispersion_ms = (valid_qt.len() >= cfg.qt_dispersion_min_leads.max(2)).then(|| {
+        valid_qt.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+            - valid_qt.iter().copied().fold(f64::INFINITY, f64::min)
+    });
     Global {
         longest_ms,
         longest_lead,
@@ -173,6 +202,10 @@ pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
         superimposed_ms,
         qrs_ms,
         pr_ms,
+        p_ms,
+        tpe_ms,
+        qt_dispersion_ms,
+        qt_valid_leads: valid.len(),
     }
 }
 
@@ -350,6 +383,80 @@ mod tests {
         let mut off = leads.clone();
         off[1].usable = false;
         assert_eq!(combine(&off, 1000.0, &cfg).superimposed_ms, Some(400.0));
+    }
+
+    /// `lead` with a P end and a T peak (samples relative to the same origin).
+    fn lead_pt(
+        on: usize,
+        qrs_end: usize,
+        t_end: usize,
+        p_end: usize,
+        t_peak: usize,
+    ) -> LeadMeasure {
+        let mut l = lead(on, qrs_end, t_end);
+        let mk = |s: usize| {
+            Some(Mark {
+                sample: s + 200,
+                confidence: 1.0,
+            })
+        };
+        l.marks.p_end = mk(p_end);
+        l.marks.t_peak = mk(t_peak);
+        l
+    }
+
+    #[test]
+    fn p_duration_tpe_and_dispersion_by_hand() {
+        // Invented marks (logic check, fs = 1000 Hz so samples are ms).
+        // P onsets: 150 before each QRS onset (`lead`): 100-150 = -50, 95-150 = -55,
+        // 105-150 = -45 -> earliest -55. P ends 60, 70, 65 -> latest 70 (within the
+        // 40-ms outlier tolerance of the next). P duration 70 - (-55) = 125 ms.
+        // QTs 400, 420 (longest), 380 ms; Tp-e on the longest lead 515 - 440 = 75 ms;
+        // dispersion 420 - 380 = 40 ms (common practice: max - min lead QT).
+        let cfg = MeasureConfig::default();
+        let leads = [
+            lead_pt(100, 190, 500, 60, 420),
+            lead_pt(95, 190, 515, 70, 440),
+            lead_pt(105, 190, 485, 65, 410),
+        ];
+        let g = combine(&leads, 1000.0, &cfg);
+        assert_eq!(g.longest_lead, Some(1));
+        assert_eq!(g.longest_ms, Some(420.0));
+        assert_eq!(g.p_ms, Some(125.0));
+        assert_eq!(g.tpe_ms, Some(75.0));
+        assert_eq!(g.qt_dispersion_ms, Some(40.0));
+        assert_eq!(g.qt_valid_leads, 3);
+        // Two valid leads: no dispersion under the default minimum of 3, a value
+        // when the minimum is 2.
+        let g2 = combine(&leads[..2], 1000.0, &cfg);
+        assert_eq!((g2.qt_dispersion_ms, g2.qt_valid_leads), (None, 2));
+        let two = MeasureConfig {
+            qt_dispersion_min_leads: 2,
+            ..MeasureConfig::default()
+        };
+        assert_eq!(
+            combine(&leads[..2], 1000.0, &two).qt_dispersion_ms,
+            Some(20.0)
+        );
+        // A lead with a flat T gives no QT and so takes no part in the dispersion.
+        let mut flat = lead_pt(100, 190, 700, 60, 420);
+        flat.t_amplitude_mv = Some(0.01);
+        let g = combine(
+            &[leads[0].clone(), leads[1].clone(), leads[2].clone(), flat],
+            1000.0,
+            &cfg,
+        );
+        assert_eq!((g.qt_dispersion_ms, g.qt_valid_leads), (Some(40.0), 3));
+        // No T peak on the longest lead: no Tp-e (not taken from another lead).
+        let mut no_peak = leads.clone();
+        no_peak[1].marks.t_peak = None;
+        assert_eq!(combine(&no_peak, 1000.0, &cfg).tpe_ms, None);
+        // No P end anywhere: no P duration.
+        let mut no_p = leads.clone();
+        for l in &mut no_p {
+            l.marks.p_end = None;
+        }
+        assert_eq!(combine(&no_p, 1000.0, &cfg).p_ms, None);
     }
 
     #[test]

@@ -154,6 +154,15 @@ pub struct WindowMeasure {
     pub pr_ms: Option<f64>,
     /// QT − QRS (ms), reported for wide QRS.
     pub jt_ms: Option<f64>,
+    /// P-wave duration: earliest P onset to latest P end across usable leads (ms).
+    pub p_ms: Option<f64>,
+    /// T peak to T end on the lead of the longest-lead QT (ms).
+    pub tpe_ms: Option<f64>,
+    /// Longest minus shortest valid single-lead QT (ms), with at least
+    /// `qt_dispersion_min_leads` valid leads.
+    pub qt_dispersion_ms: Option<f64>,
+    /// Leads that gave a valid single-lead QT.
+    pub qt_valid_leads: usize,
     pub qtc_bazett_ms: Option<f64>,
     pub qtc_fridericia_ms: Option<f64>,
     pub qtc_framingham_ms: Option<f64>,
@@ -183,6 +192,9 @@ pub struct RecordSummary {
     pub qrs_ms: Option<f64>,
     pub pr_ms: Option<f64>,
     pub jt_ms: Option<f64>,
+    pub p_ms: Option<f64>,
+    pub tpe_ms: Option<f64>,
+    pub qt_dispersion_ms: Option<f64>,
     pub qtc_bazett_ms: Option<f64>,
     pub qtc_fridericia_ms: Option<f64>,
     pub qtc_framingham_ms: Option<f64>,
@@ -656,6 +668,10 @@ where
         qrs_ms: g.qrs_ms,
         pr_ms: g.pr_ms,
         jt_ms,
+        p_ms: g.p_ms,
+        tpe_ms: g.tpe_ms,
+        qt_dispersion_ms: g.qt_dispersion_ms,
+        qt_valid_leads: g.qt_valid_leads,
         qtc_bazett_ms,
         qtc_fridericia_ms,
         qtc_framingham_ms,
@@ -854,6 +870,9 @@ fn summarize(w: &[WindowMeasure], sex: Option<Sex>, cfg: &MeasureConfig) -> Reco
         qrs_ms: med(|w| w.qrs_ms),
         pr_ms: med(|w| w.pr_ms),
         jt_ms: med(|w| w.jt_ms),
+        p_ms: med(|w| w.p_ms),
+        tpe_ms: med(|w| w.tpe_ms),
+        qt_dispersion_ms: med(|w| w.qt_dispersion_ms),
         qtc_bazett_ms: med(|w| w.qtc_bazett_ms),
         qtc_fridericia_ms: med(|w| w.qtc_fridericia_ms),
         qtc_framingham_ms: med(|w| w.qtc_framingham_ms),

@@ -204,6 +204,17 @@ fn windows_qt_rr_and_qtc_on_a_regular_record() {
         assert!((w.qtc_fridericia_ms.unwrap() - qtc::fridericia(q, rr / 1000.0)).abs() < 1e-9);
         assert_eq!(w.qtc_ms, w.qtc_fridericia_ms);
         assert!((w.jt_ms.unwrap() - (q - w.qrs_ms.unwrap())).abs() < 1e-9);
+        // T peak to T end on the QT lead: the stand-in marks the Gaussian T wave's
+        // peak and its 5 % point, K·σ later (analytic), within two samples.
+        let tpe = K * sh[1].t_sigma * 1000.0;
+        assert!(
+            (w.tpe_ms.unwrap() - tpe).abs() <= 4.0,
+            "{:?} vs {tpe}",
+            w.tpe_ms
+        );
+        // Two valid leads: fewer than the default minimum of three for a dispersion.
+        assert_eq!(w.qt_valid_leads, 2);
+        assert_eq!(w.qt_dispersion_ms, None);
         assert_eq!(w.median.per_lead.len(), 2);
         assert_eq!(w.median.fiducial, 200);
         assert_eq!(w.median.per_lead[0].len(), 200 + 450 + 1);

@@ -47,7 +47,7 @@ pub struct ApplyReport {
 }
 
 /// Columns of `windows/` a correction may change; their automatic values go to `windows/auto`.
-const WINDOW_COLUMNS: [&str; 16] = [
+const WINDOW_COLUMNS: [&str; 20] = [
     "qt_ms",
     "qt_lead",
     "qt_lead_index",
@@ -56,6 +56,10 @@ const WINDOW_COLUMNS: [&str; 16] = [
     "qrs_ms",
     "pr_ms",
     "jt_ms",
+    "p_ms",
+    "tpe_ms",
+    "qt_dispersion_ms",
+    "qt_valid_leads",
     "qtc_bazett_ms",
     "qtc_fridericia_ms",
     "qtc_framingham_ms",
@@ -67,12 +71,15 @@ const WINDOW_COLUMNS: [&str; 16] = [
 ];
 
 /// Record attributes recomputed after a correction; automatic values go to `windows/auto` attrs.
-const RECORD_ATTRS: [&str; 15] = [
+const RECORD_ATTRS: [&str; 18] = [
     "qt_ms",
     "qt_superimposed_ms",
     "qrs_ms",
     "pr_ms",
     "jt_ms",
+    "p_ms",
+    "tpe_ms",
+    "qt_dispersion_ms",
     "qtc_bazett_ms",
     "qtc_fridericia_ms",
     "qtc_framingham_ms",
@@ -664,6 +671,11 @@ fn recompute_window(
     if n_beats_unreadable > 0 {
         flags.push("beat_unreadable_reader".into());
     }
+    let (p_dur, tpe, qt_disp) = if unreadable {
+        (None, None, None)
+    } else {
+        (gl.p_ms, gl.tpe_ms, gl.qt_dispersion_ms)
+    };
     let (qt, qt_lead, qt_longest, qt_sup, qrs, pr) = if unreadable {
         flags.push("unreadable_reader".into());
         (None, None, None, None, None, None)
@@ -714,6 +726,19 @@ fn recompute_window(
     set_f64(wg, "qrs_ms", w, nan(qrs));
     set_f64(wg, "pr_ms", w, nan(pr));
     set_f64(wg, "jt_ms", w, nan(jt));
+    set_f64(wg, "p_ms", w, nan(p_dur));
+    set_f64(wg, "tpe_ms", w, nan(tpe));
+    set_f64(wg, "qt_dispersion_ms", w, nan(qt_disp));
+    set_i64(
+        wg,
+        "qt_valid_leads",
+        w,
+        if unreadable {
+            0
+        } else {
+            gl.qt_valid_leads as i64
+        },
+    );
     set_f64(wg, "qtc_bazett_ms", w, nan(qb));
     set_f64(wg, "qtc_fridericia_ms", w, nan(qf));
     set_f64(wg, "qtc_framingham_ms", w, nan(qfr));
@@ -774,6 +799,9 @@ fn recompute_record(g: &mut Group, sex: Option<Sex>, cfg: &MeasureConfig) {
         "qrs_ms",
         "pr_ms",
         "jt_ms",
+        "p_ms",
+        "tpe_ms",
+        "qt_dispersion_ms",
         "qtc_bazett_ms",
         "qtc_fridericia_ms",
         "qtc_framingham_ms",

@@ -58,7 +58,7 @@ fn auto_mark(run: &Path, fiducial: &str, lead: usize) -> i64 {
 }
 
 fn good(run: &Path) -> serde_json::Value {
-    good_lead(run, "V3", 8)
+    good_lead(run, "V2", 7)
 }
 
 fn good_lead(run: &Path, lead: &str, index: usize) -> serde_json::Value {
@@ -127,7 +127,7 @@ fn each_kind_of_bad_entry_is_named_and_nothing_changes() {
     ];
     for (entry, kind) in cases {
         // A good entry first (another lead): a bad second entry must stop it too.
-        let f = write_file(tmp.path(), json!([good_lead(&run, "V2", 7), entry.clone()]));
+        let f = write_file(tmp.path(), json!([good_lead(&run, "V3", 8), entry.clone()]));
         let e = apply_corrections(&run, &f, None).unwrap_err();
         let msg = e.to_string();
         assert_eq!(problems(e), vec![(1, kind)], "{entry}: {msg}");
@@ -178,13 +178,13 @@ fn moving_t_end_ten_samples_recomputes_qt_and_qtc() {
         _ => panic!(),
     };
     assert_eq!(fs, 500.0);
-    // The fixture's window 0 QT comes from V3 (longest-lead rule).
-    assert_eq!(texts(g0, "windows/qt_lead")[0], "V3");
+    // The fixture's window 0 QT comes from V2 (longest-lead rule).
+    assert_eq!(texts(g0, "windows/qt_lead")[0], "V2");
     let qt0 = f64s(g0, "windows/qt_ms")[0];
-    let lead_qt0 = f64s(g0, "windows/medians/000/qt_ms")[8];
+    let lead_qt0 = f64s(g0, "windows/medians/000/qt_ms")[7];
     assert_eq!(qt0, lead_qt0);
     let rr_ms = f64s(g0, "windows/rr_ms")[0];
-    let t_end0 = auto_mark(&run, "t_end", 8);
+    let t_end0 = auto_mark(&run, "t_end", 7);
 
     let f = write_file(tmp.path(), json!([good(&run)]));
     let rep = apply_corrections(&run, &f, Some("Importer")).unwrap();
@@ -195,7 +195,7 @@ fn moving_t_end_ten_samples_recomputes_qt_and_qtc() {
     let g = &p.group;
     assert_eq!(p.key, p0.key, "the part key must not change");
     // +10 samples at 500 Hz = +20 ms (ms = samples / fs · 1000).
-    let lead_qt = f64s(g, "windows/medians/000/corrected/qt_ms")[8];
+    let lead_qt = f64s(g, "windows/medians/000/corrected/qt_ms")[7];
     assert!(
         (lead_qt - (lead_qt0 + 20.0)).abs() < 1e-9,
         "{lead_qt} vs {lead_qt0}"
@@ -205,7 +205,7 @@ fn moving_t_end_ten_samples_recomputes_qt_and_qtc() {
         (qt - (qt0 + 20.0)).abs() < 1e-9,
         "window QT {qt}, was {qt0}"
     );
-    assert_eq!(texts(g, "windows/qt_lead")[0], "V3");
+    assert_eq!(texts(g, "windows/qt_lead")[0], "V2");
     // Fridericia 1920 (Acta Med Scand 53:469): QTc = QT / RR^(1/3), RR in seconds.
     let qtcf = f64s(g, "windows/qtc_fridericia_ms")[0];
     let want = qt / (rr_ms / 1000.0).powf(1.0 / 3.0);
@@ -221,16 +221,40 @@ fn moving_t_end_ten_samples_recomputes_qt_and_qtc() {
     assert!((qtch - (qt + 1.75 * (60_000.0 / rr_ms - 60.0))).abs() < 1e-6);
     // The run prefers Fridericia.
     assert_eq!(f64s(g, "windows/qtc_ms")[0], qtcf);
+    // T peak to T end lies on the QT lead (V2): the moved T end lengthens it by
+    // the same 20 ms, unless the automatic T end moved a lead's QT out of the
+    // dispersion's span.
+    let tpe0 = f64s(g0, "windows/tpe_ms")[0];
+    assert!(tpe0.is_finite() && tpe0 > 0.0, "fixture Tp-e {tpe0}");
+    let tpe = f64s(g, "windows/tpe_ms")[0];
+    assert!((tpe - (tpe0 + 20.0)).abs() < 1e-9, "Tp-e {tpe}, was {tpe0}");
+    assert_eq!(f64s(g, "windows/auto/tpe_ms")[0], tpe0);
+    // Dispersion: longest minus shortest valid lead QT, recomputed from the
+    // corrected per-lead QTs.
+    let lead_qts = f64s(g, "windows/medians/000/corrected/qt_ms");
+    let n_valid = i64s(g, "windows/qt_valid_leads")[0];
+    assert!(n_valid >= 3, "fixture has {n_valid} valid leads");
+    let disp = f64s(g, "windows/qt_dispersion_ms")[0];
+    let longest = f64s(g, "windows/qt_longest_ms")[0];
+    let shortest = lead_qts
+        .iter()
+        .copied()
+        .filter(|q| q.is_finite())
+        .fold(f64::INFINITY, f64::min);
+    assert!(
+        disp <= longest - shortest + 1e-9,
+        "{disp} vs {longest} - {shortest}"
+    );
     // Automatic values are kept.
     assert_eq!(f64s(g, "windows/auto/qt_ms")[0], qt0);
     assert_eq!(
         f64s(g, "windows/auto/qtc_fridericia_ms")[0],
         f64s(g0, "windows/qtc_fridericia_ms")[0]
     );
-    assert_eq!(i64s(g, "windows/medians/000/marks/t_end")[8], t_end0);
-    assert_eq!(f64s(g, "windows/medians/000/qt_ms")[8], lead_qt0);
+    assert_eq!(i64s(g, "windows/medians/000/marks/t_end")[7], t_end0);
+    assert_eq!(f64s(g, "windows/medians/000/qt_ms")[7], lead_qt0);
     assert_eq!(
-        i64s(g, "windows/medians/000/corrected/marks/t_end")[8],
+        i64s(g, "windows/medians/000/corrected/marks/t_end")[7],
         t_end0 + 10
     );
     // Other leads of the corrected dataset keep their automatic marks.
@@ -260,7 +284,7 @@ fn moving_t_end_ten_samples_recomputes_qt_and_qtc() {
     );
     // Audit table.
     assert_eq!(texts(g, "corrections/record"), vec!["s06_base"]);
-    assert_eq!(texts(g, "corrections/lead"), vec!["V3"]);
+    assert_eq!(texts(g, "corrections/lead"), vec!["V2"]);
     assert_eq!(texts(g, "corrections/fiducial"), vec!["t_end"]);
     assert_eq!(i64s(g, "corrections/old_sample"), vec![t_end0]);
     assert_eq!(i64s(g, "corrections/new_sample"), vec![t_end0 + 10]);
@@ -276,7 +300,7 @@ fn moving_t_end_ten_samples_recomputes_qt_and_qtc() {
     );
     // Report.
     let md = std::fs::read_to_string(&rep.report).unwrap();
-    assert!(md.contains(&format!("{:.0} ms (V3)", qt)), "{md}");
+    assert!(md.contains(&format!("{:.0} ms (V2)", qt)), "{md}");
     assert!(md.contains("T end too early"));
 
     // A second import against the same automatic mark: the automatic copies stay those of
@@ -316,6 +340,9 @@ fn unreadable_window_has_no_qt() {
         "qtc_hodges_ms",
         "qtc_ms",
         "jt_ms",
+        "p_ms",
+        "tpe_ms",
+        "qt_dispersion_ms",
     ] {
         assert!(f64s(&g, &format!("windows/{c}"))[0].is_nan(), "{c}");
     }

@@ -47,7 +47,7 @@ fn index_by_priority_and_record_pages() {
         "data-f=\"t_end\"",
         "data-f=\"qrs_on\"",
         "data-f=\"p_on\"",
-        "longest lead: V3",
+        "longest lead: V2",
         "Save corrections",
         "class=\"unread\"",
         tendline_measure::CAUTION,
