@@ -574,7 +574,7 @@ fn record_page(
     );
 
     // QT/QTc table.
-    s.push_str("<h2>QT and QTc per window</h2><table id=\"qt\"><tr><th>window</th><th>start–end (s)</th><th>beats</th><th>RR (ms)</th><th>HR (bpm)</th><th>QT (ms)</th><th class=\"l\">rule / lead</th><th>QT superimposed</th><th>QRS</th><th>PR</th><th>QTcB</th><th>QTcF</th><th>QTcFram</th><th>QTcH</th><th>QTc ({formula})</th><th class=\"l\">QTc flag</th><th class=\"l\">flags</th><th class=\"l\">unreadable</th></tr>".replace("{formula}", &esc(formula)).as_str());
+    s.push_str("<h2>QT and QTc per window</h2><table id=\"qt\"><tr><th>window</th><th>start–end (s)</th><th>beats</th><th>RR (ms)</th><th>HR (bpm)</th><th>QT (ms)</th><th class=\"l\">rule / lead</th><th>QT superimposed</th><th>QRS</th><th>PR</th><th title=\"P-wave duration\">P</th><th title=\"T peak to T end on the QT lead\">Tp-e</th><th title=\"QT dispersion (longest minus shortest lead QT)\">QTd</th><th>QTcB</th><th>QTcF</th><th>QTcFram</th><th>QTcH</th><th>QTc ({formula})</th><th class=\"l\">QTc flag</th><th class=\"l\">flags</th><th class=\"l\">unreadable</th></tr>".replace("{formula}", &esc(formula)).as_str());
     for w in 0..n_windows {
         let lead = col_t(g, "qt_lead", w);
         let rule = if qt_rule == "longest_lead" && !lead.is_empty() {
@@ -586,7 +586,7 @@ fn record_page(
         let reader_unreadable = flags.split(';').any(|f| f == "unreadable_reader");
         let _ = write!(
             s,
-            "<tr><td><a href=\"#w{w}\">{w}</a></td><td>{:.1}–{:.1}</td><td>{}</td><td>{}</td><td>{}</td><td><b>{}</b></td><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td>\
+            "<tr><td><a href=\"#w{w}\">{w}</a></td><td>{:.1}–{:.1}</td><td>{}</td><td>{}</td><td>{}</td><td><b>{}</b></td><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td><td class=\"l\">{}</td>\
              <td class=\"l\"><label><input type=\"checkbox\" class=\"unread\" data-w=\"{w}\"{}> mark</label></td></tr>",
             col_f(g, "start_s", w),
             col_f(g, "end_s", w),
@@ -598,6 +598,9 @@ fn record_page(
             ms(col_f(g, "qt_superimposed_ms", w)),
             ms(col_f(g, "qrs_ms", w)),
             ms(col_f(g, "pr_ms", w)),
+            ms(col_f(g, "p_ms", w)),
+            ms(col_f(g, "tpe_ms", w)),
+            ms(col_f(g, "qt_dispersion_ms", w)),
             ms(col_f(g, "qtc_bazett_ms", w)),
             ms(col_f(g, "qtc_fridericia_ms", w)),
             ms(col_f(g, "qtc_framingham_ms", w)),

@@ -48,6 +48,8 @@ fn index_by_priority_and_record_pages() {
         "data-f=\"qrs_on\"",
         "data-f=\"p_on\"",
         "longest lead: V2",
+        ">Tp-e</th>",
+        ">QTd</th>",
         "Save corrections",
         "class=\"unread\"",
         tendline_measure::CAUTION,
