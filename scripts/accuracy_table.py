@@ -120,7 +120,7 @@ def ba(b):
 
 def other_rows(q, lu):
     def cell(r, key):
-        b = r["qt"].get(key)
+        b = r["qt"].get(key) if key else None
         return ba(b) if b else "—"
 
     rows = []
@@ -129,6 +129,7 @@ def other_rows(q, lu):
         ("PR interval", "window_pr", "window_pr"),
         ("P duration", "window_p", "window_p"),
         ("T peak to T end (LUDB: against the lead it was measured on)", "window_tpe", "window_tpe_lead_ref"),
+        ("QT dispersion (LUDB: against the per-lead reference QTs)", None, "window_qt_dispersion_lead_ref"),
     ):
         rows.append(f"| {label} | {cell(q, key)} | {cell(lu, lkey)} |")
     return rows

@@ -60,4 +60,5 @@ for db in ["qtdb", "ludb"]:
     agreement(db, "window_p", q.get("window_p"))
     agreement(db, "window_tpe", q.get("window_tpe"))
     agreement(db, "window_tpe_lead_ref", q.get("window_tpe_lead_ref"))
+    agreement(db, "window_qt_dispersion_lead_ref", q.get("window_qt_dispersion_lead_ref"))
 print("\n".join(out))

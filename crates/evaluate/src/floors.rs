@@ -15,7 +15,8 @@
 //! [qtdb.qt_beat]                 # Bland–Altman of beat QT (also qt_beat_per_lead,
 //!                                # qt_window_superimposed, window_qrs,
 //!                                # window_pr, window_p, window_tpe,
-//!                                # window_tpe_lead_ref)
+//!                                # window_tpe_lead_ref,
+//!                                # window_qt_dispersion_lead_ref)
 //! max_abs_bias_ms = 20.0
 //! max_sd_ms = 40.0
 //!
@@ -59,6 +60,7 @@ pub struct DatabaseFloors {
     pub window_p: Option<AgreementFloors>,
     pub window_tpe: Option<AgreementFloors>,
     pub window_tpe_lead_ref: Option<AgreementFloors>,
+    pub window_qt_dispersion_lead_ref: Option<AgreementFloors>,
 }
 
 /// Beat detection floors (percent).
@@ -162,6 +164,10 @@ impl Floors {
                 ("window_p", &d.window_p),
                 ("window_tpe", &d.window_tpe),
                 ("window_tpe_lead_ref", &d.window_tpe_lead_ref),
+                (
+                    "window_qt_dispersion_lead_ref",
+                    &d.window_qt_dispersion_lead_ref,
+                ),
             ] {
                 if let Some(a) = a {
                     ms(
@@ -345,6 +351,11 @@ pub fn check_floors(report: &ValidationReport, floors: &Floors) -> Vec<String> {
             "window_tpe_lead_ref",
             qt.and_then(|q| q.window_tpe_lead_ref.as_ref()),
             &d.window_tpe_lead_ref,
+        ),
+        (
+            "window_qt_dispersion_lead_ref",
+            qt.and_then(|q| q.window_qt_dispersion_lead_ref.as_ref()),
+            &d.window_qt_dispersion_lead_ref,
         ),
     ];
     for (k, got, floors) in checks {

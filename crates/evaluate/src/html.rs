@@ -606,6 +606,9 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
         if let Some(b) = &q.window_tpe_lead_ref {
             rows.push(("window T peak to T end, vs the same reference lead", b));
         }
+        if let Some(b) = &q.window_qt_dispersion_lead_ref {
+            rows.push(("window QT dispersion, vs the reference leads", b));
+        }
         ba_rows(&mut o, &rows);
         let st = crate::markdown::qt_stability_rows(q);
         plain_table_html(

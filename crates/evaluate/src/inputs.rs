@@ -162,11 +162,14 @@ pub struct WindowRow {
     pub tpe_ms: Option<f64>,
     /// Name of the lead of `qt_ms` (empty when none or the column is absent).
     pub qt_lead: String,
+    /// Window QT dispersion (longest minus shortest valid lead QT), ms.
+    pub qt_dispersion_ms: Option<f64>,
 }
 
 /// Parse `windows.csv` text: a header row naming the columns, comma-separated values
 /// without quoting. Required columns: `record, start_s, end_s`; `window`, `qt_ms`,
-/// `qt_superimposed_ms`, `qrs_ms`, `pr_ms`, `p_ms`, `tpe_ms`, `qt_lead` optional. Empty, `NaN` or `NA` cells are missing values.
+/// `qt_superimposed_ms`, `qrs_ms`, `pr_ms`, `p_ms`, `tpe_ms`, `qt_lead`,
+/// `qt_dispersion_ms` optional. Empty, `NaN` or `NA` cells are missing values.
 pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, EvalError> {
     let bad = |line: usize, message: String| EvalError::Csv {
         path: path.to_path_buf(),
@@ -198,6 +201,7 @@ pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, Eval
     let (win_c, qt_c, qts_c) = (col("window"), col("qt_ms"), col("qt_superimposed_ms"));
     let (qrs_c, pr_c) = (col("qrs_ms"), col("pr_ms"));
     let (p_c, tpe_c, lead_c) = (col("p_ms"), col("tpe_ms"), col("qt_lead"));
+    let disp_c = col("qt_dispersion_ms");
     let mut rows = Vec::new();
     for (i, l) in lines {
         let line = i + 1;
@@ -229,6 +233,7 @@ pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, Eval
             p_ms: num(p_c, "p_ms", false)?,
             tpe_ms: num(tpe_c, "tpe_ms", false)?,
             qt_lead: lead_c.map(|c| get(c).to_string()).unwrap_or_default(),
+            qt_dispersion_ms: num(disp_c, "qt_dispersion_ms", false)?,
         });
     }
     Ok(rows)

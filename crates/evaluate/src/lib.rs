@@ -395,7 +395,7 @@ fn protocol(opts: &ValidateOptions) -> Protocol {
             "False positives (positive predictivity): on paired beats only, where the reference annotates the wave exhaustively (any file of that reference kind marks it) and the reference beat lacks the whole wave while the test mark lies within the span the reference annotates on that channel (first to last reference mark), or the test mark lies outside the fiducial window of a present reference mark.".into(),
             "Statistics: SD with n - 1; mean of per-record SDs over records with >= 2 errors; p95 of |error| linear interpolation; CSE pass = pooled SD <= CSE 1985 tolerance (P on 10.2, P end 12.7, QRS on 6.5, QRS end 11.6, T end 30.6 ms).".into(),
             "Error components: over the scored marks, population SDs (denominator n) of each mark's record mean error (between records), of its (record, channel) mean error (between record-channels) and of the error minus that mean (within record-channel); reference / tool spread = the within (record, channel) population SD of each side's mark minus the QRS peak of its own beat; the global marks have one channel per record. Window intervals (and the human window QT) are split the same way by record: SD of each window's record mean difference (between records) and of the difference minus it (within record).".into(),
-            "QT: beat QT = T end - QRS on on paired beats where both sides mark both (no fiducial window); window QT = windows.csv qt_superimposed_ms / qt_ms vs mean reference beat QT of reference beats with QRS peak in [start_s, end_s), windows with >= min_window_beats; with per-lead references also vs the longest per-lead reference QT (each lead file's mean beat QT in the window, >= min_window_beats beats; the longest lead's mean); window QRS duration / PR / P duration / T peak to T end = windows.csv qrs_ms / pr_ms / p_ms / tpe_ms vs the mean reference QRS end - QRS on / QRS on - P on / P end - P on / T end - T peak of the same beats, the same way; with per-lead references tpe_ms also vs the mean T end - T peak of the lead file of the window's qt_lead (the lead it was measured on); Bland-Altman limits = bias +/- 1.96 SD.".into(),
+            "QT: beat QT = T end - QRS on on paired beats where both sides mark both (no fiducial window); window QT = windows.csv qt_superimposed_ms / qt_ms vs mean reference beat QT of reference beats with QRS peak in [start_s, end_s), windows with >= min_window_beats; with per-lead references also vs the longest per-lead reference QT (each lead file's mean beat QT in the window, >= min_window_beats beats; the longest lead's mean); window QRS duration / PR / P duration / T peak to T end = windows.csv qrs_ms / pr_ms / p_ms / tpe_ms vs the mean reference QRS end - QRS on / QRS on - P on / P end - P on / T end - T peak of the same beats, the same way; with per-lead references tpe_ms also vs the mean T end - T peak of the lead file of the window's qt_lead (the lead it was measured on), and qt_dispersion_ms vs the longest minus the shortest lead file mean beat QT in the window (>= min_window_beats beats each, >= 2 leads); Bland-Altman limits = bias +/- 1.96 SD.".into(),
             "Global reference without .q1c (LUDB): beats of all lead files clustered by QRS peak as above; per beat the earliest onset, latest offset and median peak over the leads that mark them (common practice for global boundaries).".into(),
             "Human reference: .q2c (annotator 2) scored against .q1c (annotator 1) with the same code, on the beats both annotators selected (.q1c beats paired with a .q2c beat) and the fiducials annotator 2 marks; the tool is shown on the same beats and fiducials. Window QT: per window of windows.csv, the mean beat QT of each annotator's beats with QRS peak in [start_s, end_s), on windows where both annotators have >= min_window_beats such beats; annotator 2 vs annotator 1, and the tool's qt_superimposed_ms vs annotator 1 on the same windows.".into(),
         ],
@@ -636,6 +636,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 window_p,
                 window_tpe,
                 window_tpe_lead_ref: None,
+                window_qt_dispersion_lead_ref: None,
             });
         }
     }
@@ -708,11 +709,14 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                     window_p: None,
                     window_tpe: None,
                     window_tpe_lead_ref: None,
+                    window_qt_dispersion_lead_ref: None,
                 });
                 q.beat_per_lead = Some(ba);
                 q.window_superimposed_lead_ref = lead_sup;
                 q.window_single_lead_ref = lead_single;
                 q.window_tpe_lead_ref = window_tpe_lead_ref(opts, windows.as_deref(), &recs);
+                q.window_qt_dispersion_lead_ref =
+                    window_dispersion_lead_ref(opts, windows.as_deref(), &recs);
             }
         }
     }
@@ -945,6 +949,36 @@ fn window_tpe_lead_ref(
             waves::BeatMarks::tpe_samples,
         ) {
             v.push((k, t, m));
+        }
+    }
+    BlandAltman::by_record(&v, opts.resampling)
+}
+
+/// Window QT dispersion against the per-lead references: per window, the longest
+/// minus the shortest of the lead files' mean beat QTs (each over at least
+/// `min_window_beats` beats with QRS peak in the window), with at least two such
+/// leads.
+fn window_dispersion_lead_ref(
+    opts: &ValidateOptions,
+    rows: Option<&[inputs::WindowRow]>,
+    recs: &[Loaded],
+) -> Option<BlandAltman> {
+    let rows = rows?;
+    let by_name = by_position(recs);
+    let mut v = Vec::new();
+    for w in rows {
+        let (Some(&(k, r)), Some(d)) = (by_name.get(w.record.as_str()), w.qt_dispersion_ms) else {
+            continue;
+        };
+        let qts: Vec<f64> = r
+            .leads
+            .values()
+            .filter_map(|b| window_mean_qt(b, w, r.hdr.fs, opts.min_window_beats))
+            .collect();
+        if qts.len() >= 2 {
+            let hi = qts.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+            let lo = qts.iter().copied().fold(f64::INFINITY, f64::min);
+            v.push((k, d, hi - lo));
         }
     }
     BlandAltman::by_record(&v, opts.resampling)

@@ -393,6 +393,9 @@ fn qt_md(out: &mut String, q: &QtSection) {
     if let Some(b) = &q.window_tpe_lead_ref {
         ba_row(out, "window T peak to T end, vs the same reference lead", b);
     }
+    if let Some(b) = &q.window_qt_dispersion_lead_ref {
+        ba_row(out, "window QT dispersion, vs the reference leads", b);
+    }
     out.push('\n');
     let rows = qt_stability_rows(q);
     if !rows.is_empty() {
@@ -435,6 +438,10 @@ pub fn qt_stability_rows(q: &QtSection) -> Vec<[String; 5]> {
         (
             "window T peak to T end, vs the same reference lead",
             &q.window_tpe_lead_ref,
+        ),
+        (
+            "window QT dispersion, vs the reference leads",
+            &q.window_qt_dispersion_lead_ref,
         ),
     ];
     let ci = |v: Option<f64>, c: Option<[f64; 2]>| match c {
@@ -494,6 +501,10 @@ pub fn qt_split_rows(q: &QtSection, h: Option<&crate::report::HumanSection>) -> 
         (
             "window T peak to T end, vs the same reference lead",
             q.window_tpe_lead_ref.as_ref(),
+        ),
+        (
+            "window QT dispersion, vs the reference leads",
+            q.window_qt_dispersion_lead_ref.as_ref(),
         ),
     ];
     if let Some(h) = h {

@@ -206,6 +206,10 @@ pub struct QtSection {
     /// the window.
     #[serde(default)]
     pub window_tpe_lead_ref: Option<BlandAltman>,
+    /// Per-lead references: window QT dispersion (`qt_dispersion_ms`) vs the
+    /// longest minus the shortest of the lead files' mean beat QTs in the window.
+    #[serde(default)]
+    pub window_qt_dispersion_lead_ref: Option<BlandAltman>,
 }
 
 /// Second annotator vs first, and the tool on the same records.

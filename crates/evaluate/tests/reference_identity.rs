@@ -331,7 +331,7 @@ fn hand_made_record_window_qt_and_beats() {
 }
 
 #[test]
-fn hand_made_per_lead_record_tpe_against_the_measured_lead() {
+fn hand_made_per_lead_record_tpe_and_dispersion() {
     // Two lead files (I, II) at 250 Hz, three beats each in 0..2.1 s. Built with
     // `beat` (T peak q+60, T end q+qt-10): lead I with QT 100 samples (Tp-e 30
     // samples = 120 ms), lead II with QT 110, 112, 114 (Tp-e 40, 42, 44 samples =
@@ -367,7 +367,7 @@ fn hand_made_per_lead_record_tpe_against_the_measured_lead() {
     write_annotations(&ann.join("r2.leadmark"), &both).unwrap();
     std::fs::write(
         run.path().join("windows.csv"),
-        "record,window,start_s,end_s,qt_ms,qt_lead,qt_superimposed_ms,tpe_ms\nr2,0,0,2.1,448,II,448,170\n",
+        "record,window,start_s,end_s,qt_ms,qt_lead,qt_superimposed_ms,tpe_ms,qt_dispersion_ms\nr2,0,0,2.1,448,II,448,170,50\n",
     )
     .unwrap();
     let r = validate(&ValidateOptions {
@@ -381,4 +381,8 @@ fn hand_made_per_lead_record_tpe_against_the_measured_lead() {
     let lt = q.window_tpe_lead_ref.as_ref().unwrap();
     assert_eq!(lt.n, 1);
     assert!((lt.bias_ms.unwrap() - 2.0).abs() < 1e-9, "{lt:?}");
+    // QT dispersion: lead means 400 ms (I) and 448 ms (II) -> 48 ms; the tool's 50.
+    let d = q.window_qt_dispersion_lead_ref.as_ref().unwrap();
+    assert_eq!(d.n, 1);
+    assert!((d.bias_ms.unwrap() - 2.0).abs() < 1e-9, "{d:?}");
 }
