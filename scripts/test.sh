@@ -19,5 +19,7 @@ scripts/validate.sh --gate
 echo "== python cross-checks" >&2
 export TENDLINE_RUN_QTDB="$PWD/target/validation/qtdb"
 export TENDLINE_REPORT_QTDB="$PWD/target/validation/reports/qtdb/report.json"
+export TENDLINE_RUN_LUDB="$PWD/target/validation/ludb"
+export TENDLINE_REPORT_LUDB="$PWD/target/validation/reports/ludb/report.json"
 export TENDLINE_DATA="$PWD/../shared/data"
 .venv/bin/python -m pytest -q tests/python
