@@ -914,6 +914,28 @@ fn window_p_tpe(
     (p.0, tpe.0)
 }
 
+/// Agreement of a window value of `windows.csv` (`value`) with a reference
+/// the record's lead files give for that window (`reference`; None: the window
+/// is not scored), with its stability over records.
+fn lead_files_agreement(
+    opts: &ValidateOptions,
+    rows: &[inputs::WindowRow],
+    recs: &[Loaded],
+    value: fn(&inputs::WindowRow) -> Option<f64>,
+    reference: impl Fn(&inputs::WindowRow, &Loaded) -> Option<f64>,
+) -> Option<BlandAltman> {
+    let by_name = by_position(recs);
+    let v: Vec<(usize, f64, f64)> = rows
+        .iter()
+        .filter_map(|w| {
+            let &(k, r) = by_name.get(w.record.as_str())?;
+            let t = value(w)?;
+            Some((k, t, reference(w, r)?))
+        })
+        .collect();
+    BlandAltman::by_record(&v, opts.resampling)
+}
+
 /// Window T peak to T end against the same lead's reference (per-lead references
 /// such as LUDB's): per window, the lead file of the window's `qt_lead` (the lead
 /// the tool measured Tp-e on), its mean T end − T peak over its beats with QRS
@@ -923,35 +945,27 @@ fn window_tpe_lead_ref(
     rows: Option<&[inputs::WindowRow]>,
     recs: &[Loaded],
 ) -> Option<BlandAltman> {
-    let rows = rows?;
-    let by_name = by_position(recs);
-    let mut v = Vec::new();
-    for w in rows {
-        let (Some(&(k, r)), Some(t)) = (by_name.get(w.record.as_str()), w.tpe_ms) else {
-            continue;
-        };
-        let Some(idx) = r
-            .hdr
-            .leads
-            .iter()
-            .position(|l| !w.qt_lead.is_empty() && l.eq_ignore_ascii_case(&w.qt_lead))
-        else {
-            continue;
-        };
-        let Some(beats) = u8::try_from(idx).ok().and_then(|i| r.leads.get(&i)) else {
-            continue;
-        };
-        if let Some(m) = window_mean(
-            beats,
-            w,
-            r.hdr.fs,
-            opts.min_window_beats,
-            waves::BeatMarks::tpe_samples,
-        ) {
-            v.push((k, t, m));
-        }
-    }
-    BlandAltman::by_record(&v, opts.resampling)
+    lead_files_agreement(
+        opts,
+        rows?,
+        recs,
+        |w| w.tpe_ms,
+        |w, r| {
+            let idx = r
+                .hdr
+                .leads
+                .iter()
+                .position(|l| !w.qt_lead.is_empty() && l.eq_ignore_ascii_case(&w.qt_lead))?;
+            let beats = r.leads.get(&u8::try_from(idx).ok()?)?;
+            window_mean(
+                beats,
+                w,
+                r.hdr.fs,
+                opts.min_window_beats,
+                waves::BeatMarks::tpe_samples,
+            )
+        },
+    )
 }
 
 /// Window QT dispersion against the per-lead references: per window, the longest
@@ -963,25 +977,23 @@ fn window_dispersion_lead_ref(
     rows: Option<&[inputs::WindowRow]>,
     recs: &[Loaded],
 ) -> Option<BlandAltman> {
-    let rows = rows?;
-    let by_name = by_position(recs);
-    let mut v = Vec::new();
-    for w in rows {
-        let (Some(&(k, r)), Some(d)) = (by_name.get(w.record.as_str()), w.qt_dispersion_ms) else {
-            continue;
-        };
-        let qts: Vec<f64> = r
-            .leads
-            .values()
-            .filter_map(|b| window_mean_qt(b, w, r.hdr.fs, opts.min_window_beats))
-            .collect();
-        if qts.len() >= 2 {
-            let hi = qts.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-            let lo = qts.iter().copied().fold(f64::INFINITY, f64::min);
-            v.push((k, d, hi - lo));
-        }
-    }
-    BlandAltman::by_record(&v, opts.resampling)
+    lead_files_agreement(
+        opts,
+        rows?,
+        recs,
+        |w| w.qt_dispersion_ms,
+        |w, r| {
+            let qts: Vec<f64> = r
+                .leads
+                .values()
+                .filter_map(|b| window_mean_qt(b, w, r.hdr.fs, opts.min_window_beats))
+                .collect();
+            (qts.len() >= 2).then(|| {
+                qts.iter().copied().fold(f64::NEG_INFINITY, f64::max)
+                    - qts.iter().copied().fold(f64::INFINITY, f64::min)
+            })
+        },
+    )
 }
 
 /// Window QT against the longest per-lead reference QT (per-lead references such as
