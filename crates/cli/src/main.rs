@@ -159,6 +159,7 @@ fn cmd_run(a: RunArgs) -> Result<ExitCode> {
     if !subj.is_empty() {
         tables::write_subjects(&opts.out, &subj)?;
     }
+    tables::write_study(&opts.out, &subj, &opts.config.measure)?;
     if !a.quiet {
         println!(
             "{}",

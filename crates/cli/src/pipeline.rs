@@ -283,6 +283,9 @@ fn record_attrs(
     if let Some(t) = &rec.meta.timepoint {
         g.attr("timepoint", Attr::Text(t.clone()));
     }
+    if let Some(a) = &rec.meta.arm {
+        g.attr("arm", Attr::Text(a.clone()));
+    }
     g.attr(
         "input_files",
         Attr::Texts(checksums.iter().map(|c| c.0.clone()).collect()),

@@ -566,6 +566,7 @@ pub fn rebuild_outputs(out: &Path) -> Result<()> {
     if !subj.is_empty() {
         tables::write_subjects(out, &subj)?;
     }
+    tables::write_study(out, &subj, &opts.config.measure)?;
     Ok(())
 }
 

@@ -4,11 +4,12 @@
 
 use crate::pipeline::Context;
 use crate::run::{Outcome, RunReport};
-use anyhow::Result;
+use anyhow::{Context as _, Result};
 use std::collections::BTreeMap;
 use std::fmt::Write as _;
 use std::path::Path;
 use tendline_measure::subject::{QtRr, SubjectConfig, SubjectRecord, SubjectResult};
+use tendline_measure::MeasureConfig;
 use tendline_store::{write_atomic, Attr, Data, Group, Part};
 
 pub use tendline_store::utc_now;
@@ -304,6 +305,7 @@ pub fn subject_results(parts: &[Part], cfg: &SubjectConfig) -> Vec<SubjectResult
                 subject: attr_s(g, "subject")?.to_string(),
                 record: p.record.clone(),
                 timepoint: attr_s(g, "timepoint").map(str::to_string),
+                arm: attr_s(g, "arm").map(str::to_string),
                 windows: windows_qt_rr(g),
                 qtc_ms: attr_f(g, "qtc_ms"),
             })
@@ -341,6 +343,53 @@ pub fn write_subjects(out: &Path, results: &[SubjectResult]) -> Result<()> {
         }
     }
     write_atomic(&out.join("subjects.csv"), s.as_bytes())?;
+    Ok(())
+}
+
+/// `study.csv` in the output when subjects carry a treatment arm: per timepoint
+/// and arm the mean ΔQTc (preferred formula), and for the arms other than
+/// `reference_arm` the time-matched ΔΔQTc with its Welch 90 % interval
+/// (`tendline_measure::study`). Without arms a stale `study.csv` is removed.
+pub fn write_study(out: &Path, results: &[SubjectResult], cfg: &MeasureConfig) -> Result<()> {
+    let path = out.join("study.csv");
+    let st = tendline_measure::study::study(
+        results,
+        &cfg.subject.reference_arm,
+        &cfg.subject.baseline_timepoint,
+    );
+    if st.means.is_empty() {
+        if path.exists() {
+            std::fs::remove_file(&path)
+                .with_context(|| format!("removing the stale {}", path.display()))?;
+        }
+        return Ok(());
+    }
+    let mut s = String::from(
+        "timepoint,arm,qtc_formula,n_subjects,mean_delta_qtc_ms,sd_delta_qtc_ms,reference_arm,ddqtc_ms,se_ms,df,ci90_low_ms,ci90_high_ms\n",
+    );
+    for m in &st.means {
+        let c = st
+            .contrasts
+            .iter()
+            .find(|c| c.timepoint == m.timepoint && c.arm == m.arm);
+        writeln!(
+            s,
+            "{},{},{},{},{},{},{},{},{},{},{},{}",
+            csv_cell(&m.timepoint),
+            csv_cell(&m.arm),
+            cfg.preferred_formula.as_str(),
+            m.n,
+            fmt_f(Some(m.mean_ms), 2),
+            fmt_f(m.sd_ms, 2),
+            csv_cell(c.map_or("", |c| c.reference_arm.as_str())),
+            fmt_f(c.map(|c| c.ddqtc_ms), 2),
+            fmt_f(c.and_then(|c| c.se_ms), 3),
+            fmt_f(c.and_then(|c| c.df), 3),
+            fmt_f(c.and_then(|c| c.ci90_low_ms), 2),
+            fmt_f(c.and_then(|c| c.ci90_high_ms), 2),
+        )?;
+    }
+    write_atomic(&path, s.as_bytes())?;
     Ok(())
 }
 

@@ -28,6 +28,8 @@ pub struct Metadata {
     pub subject: Option<String>,
     /// Timepoint label (e.g. `baseline`, `post-dose`), from a subjects CSV.
     pub timepoint: Option<String>,
+    /// Treatment arm (e.g. `drug`, `placebo`), from a subjects CSV.
+    pub arm: Option<String>,
     /// Free-text comment lines from the input header.
     pub comments: Vec<String>,
 }

@@ -3,7 +3,9 @@
 //! Columns (header row required, order free, names case-insensitive):
 //! `record` (required), `subject`, `sex` (`M`/`F`/`male`/`female`, empty = unknown),
 //! `age` (years), `timepoint` (free text; the value `baseline` marks the reference
-//! of serial ΔQTc). Values given here override what the record's own header says.
+//! of serial ΔQTc), `arm` (free text: the treatment arm of a parallel-group study,
+//! e.g. `drug` / `placebo`, for the time-matched ΔΔQTc). Values given here override
+//! what the record's own header says.
 
 use crate::{FormatError, Metadata, Sex};
 use std::collections::BTreeMap;
@@ -17,6 +19,7 @@ pub struct SubjectRow {
     pub sex: Option<Sex>,
     pub age: Option<f64>,
     pub timepoint: Option<String>,
+    pub arm: Option<String>,
 }
 
 impl SubjectRow {
@@ -33,6 +36,9 @@ impl SubjectRow {
         }
         if self.timepoint.is_some() {
             meta.timepoint.clone_from(&self.timepoint);
+        }
+        if self.arm.is_some() {
+            meta.arm.clone_from(&self.arm);
         }
     }
 }
@@ -83,6 +89,7 @@ pub fn parse_subjects(text: &str) -> Result<BTreeMap<String, SubjectRow>, String
     })?;
     let (sub_col, sex_col, age_col, tp_col) =
         (find("subject"), find("sex"), find("age"), find("timepoint"));
+    let arm_col = find("arm");
     let mut out = BTreeMap::new();
     for (i, line) in lines {
         let lineno = i + 1;
@@ -131,6 +138,7 @@ pub fn parse_subjects(text: &str) -> Result<BTreeMap<String, SubjectRow>, String
             sex,
             age,
             timepoint: get(tp_col),
+            arm: get(arm_col),
         };
         if out.insert(record.clone(), row).is_some() {
             return Err(format!("line {lineno}: record `{record}` listed twice"));
@@ -142,6 +150,17 @@ pub fn parse_subjects(text: &str) -> Result<BTreeMap<String, SubjectRow>, String
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn arm_column_is_read_and_applied() {
+        let t = "record,subject,timepoint,arm\nr1,S01,baseline,drug\nr2,S02,2h,\n";
+        let m = parse_subjects(t).unwrap();
+        assert_eq!(m["r1"].arm.as_deref(), Some("drug"));
+        assert_eq!(m["r2"].arm, None);
+        let mut meta = Metadata::default();
+        m["r1"].apply(&mut meta);
+        assert_eq!(meta.arm.as_deref(), Some("drug"));
+    }
 
     #[test]
     fn parses_rows_and_overrides_metadata() {

@@ -32,6 +32,7 @@ pub mod classify;
 pub mod config;
 pub mod global;
 pub mod qtc;
+pub mod study;
 pub mod subject;
 
 pub use classify::{classify, Classification, Limits, QtcFlag, CAUTION};

@@ -28,6 +28,9 @@ pub struct SubjectConfig {
     pub min_rr_range_ms: f64,
     /// Timepoint name of the baseline record; default `baseline`.
     pub baseline_timepoint: String,
+    /// Arm (subjects CSV `arm`) the other arms are compared with in the
+    /// time-matched ΔΔQTc of `study.csv` (case-insensitive); default `placebo`.
+    pub reference_arm: String,
 }
 
 impl Default for SubjectConfig {
@@ -36,6 +39,7 @@ impl Default for SubjectConfig {
             min_windows: 10,
             min_rr_range_ms: 100.0,
             baseline_timepoint: "baseline".to_string(),
+            reference_arm: "placebo".to_string(),
         }
     }
 }
@@ -55,6 +59,12 @@ impl SubjectConfig {
         .require(
             !self.baseline_timepoint.trim().is_empty(),
             "baseline_timepoint",
+            "a non-empty name",
+            "\"\"",
+        )
+        .require(
+            !self.reference_arm.trim().is_empty(),
+            "reference_arm",
             "a non-empty name",
             "\"\"",
         );
@@ -118,6 +128,8 @@ pub struct SubjectRecord {
     pub subject: String,
     pub record: String,
     pub timepoint: Option<String>,
+    /// Treatment arm of a parallel-group study (subjects CSV `arm`), if given.
+    pub arm: Option<String>,
     /// The record's windows with both QT and RR measured.
     pub windows: Vec<QtRr>,
     /// The record's QTc by the preferred formula (record summary), if any.
@@ -164,6 +176,9 @@ pub struct SubjectResult {
     pub baseline_record: Option<String>,
     /// No record carried the baseline timepoint; the first one was used.
     pub baseline_assumed: bool,
+    /// The subject's arm: the one its records name (None when none does or they
+    /// name different arms; `note` says so then).
+    pub arm: Option<String>,
     pub records: Vec<RecordResult>,
 }
 
@@ -286,11 +301,28 @@ pub fn analyse(records: &[SubjectRecord], cfg: &SubjectConfig) -> Vec<SubjectRes
                     r.delta_qtci_loglog_ms = d(r.qtci_loglog_ms, br.qtci_loglog_ms);
                 }
             }
+            let mut arms: Vec<&str> = recs.iter().filter_map(|r| r.arm.as_deref()).collect();
+            arms.sort_unstable();
+            arms.dedup();
+            let mut fit = fit;
+            let arm = match arms.as_slice() {
+                [a] => Some(a.to_string()),
+                [] => None,
+                many => {
+                    let n = format!("records name different arms ({}); no arm", many.join(", "));
+                    fit.note = Some(match fit.note.take() {
+                        Some(x) => format!("{x}; {n}"),
+                        None => n,
+                    });
+                    None
+                }
+            };
             SubjectResult {
                 subject: sid.to_string(),
                 fit,
                 baseline_record: base.map(|b| recs[b].record.clone()),
                 baseline_assumed: assumed,
+                arm,
                 records: results,
             }
         })
@@ -378,6 +410,7 @@ mod tests {
     fn serial_delta_from_named_or_first_baseline() {
         let w = power_law(400.0, 0.3, 30, 9);
         let mk = |rec: &str, tp: Option<&str>, qtc: f64, shift: f64| SubjectRecord {
+            arm: None,
             subject: "S1".into(),
             record: rec.into(),
             timepoint: tp.map(str::to_string),

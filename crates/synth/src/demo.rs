@@ -340,6 +340,7 @@ pub fn write_demo(out: &Path, seed: u64) -> Result<Vec<PathBuf>, SynthError> {
             sex: Some(v.sex),
             subject: Some(v.id.to_string()),
             timepoint: Some(TIMEPOINTS[d.timepoint].to_string()),
+            arm: None,
             comments: vec![
                 format!(
                     "synthetic ECG from tendline-synth (seed {}); invented volunteer {}, {}",
