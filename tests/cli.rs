@@ -308,6 +308,48 @@ fn non_ecg_signals_and_missing_samples() {
 }
 
 #[test]
+fn variable_layout_record_runs_whole_and_its_segments_do_not_run_alone() {
+    // s25047 (MIMIC II waveform excerpt in the WFDB conformance set): a master
+    // record of 19 segments (a layout, a 25740-sample gap, 17 segments whose
+    // gains change) and, beside it, a numerics record with no ECG signal. Run as
+    // a folder without a RECORDS list, the master is one record, its segment
+    // headers are not records of their own, and the numerics record fails alone.
+    let out = tempfile::tempdir().unwrap();
+    let o = run_quiet(
+        &[data().join("wfdb-conformance/multi-segment/s25047")],
+        out.path(),
+    );
+    let t = text(&o);
+    assert_eq!(o.status.code(), Some(1), "{t}");
+    assert!(t.contains("1 record(s) failed"), "{t}");
+    let failures = std::fs::read_to_string(out.path().join("failures.csv")).unwrap();
+    assert!(failures.contains("s25047-2704-05-04-10-44n,"), "{failures}");
+    let parts: Vec<String> = std::fs::read_dir(out.path().join("parts"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    assert_eq!(parts, ["s25047-2704-05-04-10-44.json"]);
+    let part = tendline_store::Part::load(&out.path().join("parts/s25047-2704-05-04-10-44.json"))
+        .unwrap()
+        .unwrap();
+    let floats = |k: &str| match part.group.attrs.get(k) {
+        Some(tendline_store::Attr::Floats(v)) => v.clone(),
+        other => panic!("{k}: {other:?}"),
+    };
+    // NaN samples per signal as `wfdb.rdrecord` reads the record (the gap, the
+    // segments without ABP, the invalid samples): 26462, 25869, 445740.
+    assert_eq!(floats("missing_samples"), [26462.0, 25869.0, 445740.0]);
+    assert_eq!(floats("analysed"), [1.0, 1.0, 0.0]);
+    let summary = std::fs::read_to_string(out.path().join("summary.csv")).unwrap();
+    let row = summary.lines().nth(1).unwrap();
+    // 543240 samples at 125 Hz.
+    assert!(
+        row.starts_with("s25047-2704-05-04-10-44,") && row.contains(",4345.9,"),
+        "{row}"
+    );
+}
+
+#[test]
 fn results_carry_version_config_and_input_checksums() {
     let inp = tempfile::tempdir().unwrap();
     let out = tempfile::tempdir().unwrap();

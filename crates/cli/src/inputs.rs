@@ -4,7 +4,8 @@
 //! - a folder with a `RECORDS` file: the records it lists;
 //! - a folder without one: every WFDB header (`*.hea`), EDF (`*.edf`), CSV
 //!   (`*.csv`, except `subjects.csv`) and HL7 aECG (`*.xml`) file directly inside
-//!   it, sorted by name. Any `*.xml` is taken: an XML file that is not an aECG
+//!   it, sorted by name, except the headers of segments that a multi-segment
+//!   record in the folder names (they are read as parts of that record). Any `*.xml` is taken: an XML file that is not an aECG
 //!   document fails as its own record with a clear message, and the batch goes on;
 //! - a `RECORDS` file (any file named `RECORDS`): one record per line, relative
 //!   to the file's folder, with or without an extension (`.hea` assumed without);
@@ -146,10 +147,49 @@ fn from_folder(dir: &Path) -> Vec<RecordInput> {
         .filter(|p| p.file_name().is_some_and(|n| n != "subjects.csv"))
         .collect();
     paths.sort();
+    let segments = segment_names(&paths);
     paths
         .iter()
+        .filter(|p| {
+            !(ext_of(p).as_deref() == Some("hea")
+                && p.file_stem()
+                    .is_some_and(|s| segments.contains(s.to_string_lossy().as_ref())))
+        })
         .map(|p| from_path(p).unwrap_or_else(|e| RecordInput::failed(p, format!("{e:#}"))))
         .collect()
+}
+
+/// The segment records (layout segments included) that the multi-segment
+/// headers among `paths` name: in a folder without a `RECORDS` list they are
+/// parts of their master record, not records of their own. A master header that
+/// cannot be parsed names none (it fails as its own record later).
+fn segment_names(paths: &[PathBuf]) -> std::collections::BTreeSet<String> {
+    let mut out = std::collections::BTreeSet::new();
+    for p in paths.iter().filter(|p| ext_of(p).as_deref() == Some("hea")) {
+        // Only a record line `name/nseg ...` starts a multi-segment header: look at
+        // the first line that is not a comment before parsing the whole header.
+        let Ok(text) = std::fs::read(p) else { continue };
+        let text = String::from_utf8_lossy(&text);
+        let first = text
+            .lines()
+            .map(str::trim)
+            .find(|l| !l.is_empty() && !l.starts_with('#'));
+        let is_multi = first
+            .and_then(|l| l.split_whitespace().next())
+            .is_some_and(|name| name.contains('/'));
+        if !is_multi {
+            continue;
+        }
+        if let Ok(h) = tendline_formats::wfdb::read_header(p) {
+            out.extend(
+                h.segments
+                    .iter()
+                    .filter(|s| s.name != "~")
+                    .map(|s| s.name.clone()),
+            );
+        }
+    }
+    out
 }
 
 /// Resolve all INPUT arguments into records, in the order given.
@@ -246,6 +286,29 @@ mod tests {
             .map(|r| r.name)
             .collect();
         assert_eq!(names, ["a", "b", "c", "d"]);
+    }
+
+    #[test]
+    fn folder_without_list_leaves_out_segments_of_multi_segment_records() {
+        // Header layout: WFDB `header(5)` (from memory): a record line
+        // `name/nseg nsig fs len`, then one `segment length` line per segment.
+        let d = tempfile::tempdir().unwrap();
+        std::fs::write(
+            d.path().join("m.hea"),
+            "# a comment first\nm/3 2 125 30\nm_layout 0\n~ 10\nm_0001 20\n",
+        )
+        .unwrap();
+        for n in ["m_layout.hea", "m_0001.hea", "m_0001.dat", "other.hea"] {
+            touch(&d.path().join(n));
+        }
+        let names: Vec<String> = resolve(&[d.path().into()])
+            .into_iter()
+            .map(|r| r.name)
+            .collect();
+        assert_eq!(names, ["m", "other"]);
+        // Named directly, a segment is still read on its own.
+        let r = resolve(&[d.path().join("m_0001.hea")]);
+        assert_eq!(r[0].name, "m_0001");
     }
 
     #[test]

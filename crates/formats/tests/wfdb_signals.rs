@@ -398,12 +398,46 @@ fn conformance_multi_segment_and_rejections() {
     let w = wfdb::read_digital(&c.join("multi-segment/041s/041s.hea")).unwrap();
     assert_eq!(w.n_frames, 2000);
     assert_eq!(w.signals[0].samples.len(), 8000);
+    // Variable layout: no digital form (the gains change between segments) ...
     let name = "multi-segment/s25047/s25047-2704-05-04-10-44.hea";
-    let e = wfdb::read_record(&c.join(name)).unwrap_err();
+    let e = wfdb::read_digital(&c.join(name)).unwrap_err();
     assert!(
         matches!(e, FormatError::Unsupported { .. }) && e.to_string().contains("variable-layout"),
         "{name}: {e}"
     );
+    // ... but a record in physical units. MANIFEST.tsv (what the `wfdb` package
+    // reads): 3 signals, 543240 samples at 125 Hz; signal names and units from
+    // the layout header 3234460_layout.hea. Sample values against the `wfdb`
+    // package's p_signal: tests/python/test_formats_signals.py.
+    let r = wfdb::read_record(&c.join(name)).unwrap();
+    assert_eq!((r.fs, r.n_samples()), (125.0, 543240));
+    let names: Vec<&str> = r.leads.iter().map(|l| l.name.as_str()).collect();
+    let units: Vec<&str> = r.leads.iter().map(|l| l.units.as_str()).collect();
+    assert_eq!(
+        (names, units),
+        (vec!["II", "V", "ABP"], vec!["mV", "mV", "mmHg"])
+    );
+    // The first segment is a 25740-sample gap (`~`): NaN in every signal.
+    assert!(r
+        .leads
+        .iter()
+        .all(|l| l.samples[..25740].iter().all(|v| v.is_nan())));
+    // Segment 3234460_0017 (3525 samples, the first with ABP) starts after the
+    // lengths of the master header's earlier segments; read alone, its values
+    // (its own gains: II 81/mV, V 60/mV, ABP 1/mmHg) are the master's there.
+    let seg = wfdb::read_record(&c.join("multi-segment/s25047/3234460_0017.hea")).unwrap();
+    let at = 445_740;
+    for (k, l) in seg.leads.iter().enumerate() {
+        let m = &r.leads[k].samples[at..at + seg.n_samples()];
+        assert!(
+            m.iter()
+                .zip(&l.samples)
+                .all(|(a, b)| a == b || a.is_nan() && b.is_nan()),
+            "signal {k}"
+        );
+    }
+    // ABP first appears in segment 17: NaN before it.
+    assert!(r.leads[2].samples[..at].iter().all(|v| v.is_nan()));
     // FLAC formats 508/516/524 were rejected here before; they are read now
     // (checked in detail in `conformance_flac_records`).
     let w = wfdb::read_digital(&c.join("flacformats.hea")).unwrap();
@@ -686,4 +720,102 @@ fn matlab_v4_signal_files_are_read_and_a_disagreeing_header_is_named() {
     std::fs::write(&h, hea.replace("16+24", "16+20")).unwrap();
     let e = wfdb::read_record(&h).unwrap_err().to_string();
     assert!(e.contains("byte offset is 20"), "{e}");
+}
+
+/// A variable-layout record built by hand (structure: WFDB `header(5)`, from
+/// memory): a layout segment naming `II` (mV) and `PLETH` (NU), a 2-sample
+/// null segment, a segment holding II at gain 100 plus a signal the layout does
+/// not name, and a segment holding PLETH and II (in uV) at other gains. Every
+/// expected value is computed by hand from the digital samples written.
+#[test]
+fn variable_layout_by_hand() {
+    let dir = tempfile::tempdir().unwrap();
+    let w = |name: &str, text: &str| std::fs::write(dir.path().join(name), text).unwrap();
+    let dat = |name: &str, v: &[i16]| {
+        let b: Vec<u8> = v.iter().flat_map(|x| x.to_le_bytes()).collect();
+        std::fs::write(dir.path().join(name), b).unwrap()
+    };
+    w(
+        "m.hea",
+        "m/4 2 100 7\nm_layout 0\n~ 2\nm_1 3\nm_2 2\n# 61 F\n",
+    );
+    w(
+        "m_layout.hea",
+        "m_layout 2 100 0\n~ 0 200/mV 16 0 0 0 0 II\n~ 0 1/NU 16 0 0 0 0 PLETH\n",
+    );
+    // m_1: II (gain 100, baseline 10) and RESP, frame-interleaved.
+    w(
+        "m_1.hea",
+        "m_1 2 100 3\nm_1.dat 16 100(10)/mV 16 0 0 0 0 II\nm_1.dat 16 5/Ohm 16 0 0 0 0 RESP\n",
+    );
+    dat("m_1.dat", &[110, 1, 60, 2, -90, 3]);
+    // m_2: PLETH (gain 2) then II in uV (gain 1 per uV).
+    w(
+        "m_2.hea",
+        "m_2 2 100 2\nm_2.dat 16 2/NU 16 0 0 0 0 PLETH\nm_2.dat 16 1/uV 16 0 0 0 0 II\n",
+    );
+    dat("m_2.dat", &[7, 250, -4, -500]);
+    let r = wfdb::read_record(&dir.path().join("m.hea")).unwrap();
+    assert_eq!((r.name.as_str(), r.fs, r.n_samples()), ("m", 100.0, 7));
+    assert_eq!(r.leads[0].name, "II");
+    assert_eq!(r.leads[1].name, "PLETH");
+    assert_eq!(
+        (r.leads[0].units.as_str(), r.leads[1].units.as_str()),
+        ("mV", "NU")
+    );
+    let nan = f64::NAN;
+    // II: gap, (110-10)/100, (60-10)/100, (-90-10)/100, then 250 uV, -500 uV.
+    let ii = [nan, nan, 1.0, 0.5, -1.0, 0.25, -0.5];
+    // PLETH: absent until m_2, then 7/2 and -4/2.
+    let pleth = [nan, nan, nan, nan, nan, 3.5, -2.0];
+    for (got, want) in [(&r.leads[0].samples, &ii), (&r.leads[1].samples, &pleth)] {
+        for (g, w) in got.iter().zip(want.iter()) {
+            assert!(g == w || g.is_nan() && w.is_nan(), "{got:?} vs {want:?}");
+        }
+    }
+    assert_eq!(r.meta.sex, Some(Sex::Female));
+    assert!(r
+        .warnings
+        .iter()
+        .any(|w| w.contains("`RESP`") && w.contains("not in the layout")));
+    assert!(r.warnings.iter().any(|w| w.contains("`PLETH`: 5 of 7")));
+
+    // A segment whose units cannot join the layout's is named in the error.
+    w(
+        "m_2.hea",
+        "m_2 2 100 2\nm_2.dat 16 2/% 16 0 0 0 0 PLETH\nm_2.dat 16 1/uV 16 0 0 0 0 II\n",
+    );
+    let e = wfdb::read_record(&dir.path().join("m.hea"))
+        .unwrap_err()
+        .to_string();
+    assert!(
+        e.contains("m_2.hea") && e.contains("`%`") && e.contains("`NU`"),
+        "{e}"
+    );
+    // Segment lengths that do not add up to the record line's length.
+    w(
+        "m_2.hea",
+        "m_2 2 100 2\nm_2.dat 16 2/NU 16 0 0 0 0 PLETH\nm_2.dat 16 1/uV 16 0 0 0 0 II\n",
+    );
+    w("m.hea", "m/4 2 100 9\nm_layout 0\n~ 2\nm_1 3\nm_2 2\n");
+    let e = wfdb::read_record(&dir.path().join("m.hea"))
+        .unwrap_err()
+        .to_string();
+    assert!(
+        e.contains("m.hea") && e.contains("7 samples") && e.contains("says 9"),
+        "{e}"
+    );
+    // A segment at another rate.
+    w("m.hea", "m/4 2 100 7\nm_layout 0\n~ 2\nm_1 3\nm_2 2\n");
+    w(
+        "m_1.hea",
+        "m_1 2 200 3\nm_1.dat 16 100(10)/mV 16 0 0 0 0 II\nm_1.dat 16 5/Ohm 16 0 0 0 0 RESP\n",
+    );
+    let e = wfdb::read_record(&dir.path().join("m.hea"))
+        .unwrap_err()
+        .to_string();
+    assert!(
+        e.contains("`m_1` is at 200 Hz") && e.contains("100 Hz"),
+        "{e}"
+    );
 }

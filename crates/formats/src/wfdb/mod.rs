@@ -13,7 +13,10 @@
 //! signal files, headers without a length (the length is inferred from the size
 //! of the first signal file, as the `wfdb` Python package does), counter
 //! frequency/base counter/base time/base date (parsed and kept in [`Header`]),
-//! fixed-layout multi-segment records (segments concatenated).
+//! fixed-layout multi-segment records (segments concatenated), and
+//! variable-layout multi-segment records in physical units (see the `layout`
+//! module: [`read_record`] reads them; [`read_digital`] rejects them, having
+//! no one gain per signal to give).
 //!
 //! Not supported, rejected with [`FormatError::Unsupported`]:
 //! - in FLAC-compressed files (508, 516, 524): skew, signals of one file with
@@ -23,7 +26,7 @@
 //!   FLAC decoder used (`claxon`) does not implement;
 //! - signal files in `.wav` containers, and `.mat` files other than MATLAB
 //!   version 4 (see `check_mat_v4`);
-//! - variable-layout multi-segment records (a layout segment or null `~` segments);
+//! - by [`read_digital`] only: variable-layout multi-segment records;
 //! - null signals (file name `~`, format 0).
 //!
 //! Multi-rate records (signals with different samples per frame): [`read_digital`]
@@ -45,6 +48,7 @@
 mod decode;
 mod flac;
 mod header;
+mod layout;
 
 pub use decode::{bytes_for_samples, decode_into, invalid_value, is_supported, samples_in_bytes};
 pub use flac::is_flac;
@@ -529,15 +533,13 @@ fn check_signal(path: &Path, i: usize, s: &DigitalSignal, warnings: &mut Vec<Str
 
 fn read_multi_segment(path: &Path, header: Header) -> Result<WfdbSignals, FormatError> {
     let dir = path.parent().unwrap_or(Path::new(""));
-    if let Some(seg) = header
-        .segments
-        .iter()
-        .find(|s| s.name == "~" || s.name.ends_with("_layout"))
-    {
+    if let Some(seg) = variable_layout_segment(&header) {
         return Err(unsupported(
             path,
             format!(
-                "line {}: variable-layout multi-segment records (layout or null segment `{}`) are not supported",
+                "line {}: variable-layout multi-segment record (layout or null segment `{}`): its \
+                 segments store a signal with different gains, so it has no single digital form; \
+                 it is read in physical units as a record",
                 seg.line, seg.name
             ),
         ));
@@ -616,6 +618,15 @@ fn read_multi_segment(path: &Path, header: Header) -> Result<WfdbSignals, Format
     Ok(out)
 }
 
+/// The first segment that makes a multi-segment record variable-layout: its
+/// layout segment (`<name>_layout`) or a null segment (`~`).
+fn variable_layout_segment(header: &Header) -> Option<&SegmentSpec> {
+    header
+        .segments
+        .iter()
+        .find(|s| s.name == "~" || s.name.ends_with("_layout"))
+}
+
 /// Factor that converts `units` to millivolts, if the units are a voltage.
 pub fn to_mv_factor(units: &str) -> Option<f64> {
     match units.trim() {
@@ -649,7 +660,21 @@ pub fn to_physical(s: &DigitalSignal) -> Vec<f64> {
 /// Signals with different samples per frame are brought to the fastest rate
 /// (module docs); a warning on the record says which.
 pub fn read_record(header_path: &Path) -> Result<Record, FormatError> {
-    let mut w = read_digital(header_path)?;
+    let path = header_path_of(header_path);
+    let header = read_header(&path)?;
+    if header.is_multi_segment() && variable_layout_segment(&header).is_some() {
+        return layout::read_variable_layout(&path, header);
+    }
+    let w = if header.is_multi_segment() {
+        read_multi_segment(&path, header)?
+    } else {
+        read_single(&path, header)?
+    };
+    Ok(record_from_signals(w))
+}
+
+/// Physical units at one rate (the fastest signal's) from the digital signals.
+fn record_from_signals(mut w: WfdbSignals) -> Record {
     let spf = w
         .signals
         .iter()
@@ -693,14 +718,14 @@ pub fn read_record(header_path: &Path) -> Result<Record, FormatError> {
         .collect();
     w.warnings.extend(notes);
     let meta = Metadata::from_comments(&w.header.comments);
-    Ok(Record {
+    Record {
         name: w.header.name.clone(),
         fs,
         leads,
         meta,
         files: w.files,
         warnings: w.warnings,
-    })
+    }
 }
 
 /// A `.mat` signal file (as WFDB's `wfdb2mat` writes them, and as PhysioNet
