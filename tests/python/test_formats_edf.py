@@ -227,3 +227,54 @@ def test_pyedflib_written_database_records(db, name, tmp_path):
     r.close()
     head2, sig2 = ours_edf(q)
     assert head2["age"] == age and head2["sex"] == sex
+
+
+@pytest.mark.parametrize("file_type", ["bdfplus", "bdf"])
+def test_pyedflib_written_bdf(file_type, tmp_path):
+    # BDF (24-bit EDF) and BDF+ written by pyedflib (edflib) from LUDB record 1
+    # (wfdb.rdrecord) over the full 24-bit digital range: tendline reads the
+    # same values as pyedflib, within 1e-6 of a quantisation step; BDF+ also
+    # gives the patient field's sex and age and the annotations.
+    need_data()
+    rec = wfdb.rdrecord(str(DATA / "ludb" / "1"))
+    age, sex = _age_sex(rec)
+    headers = []
+    for i, name in enumerate(rec.sig_name):
+        x = rec.p_signal[:, i]
+        headers.append(
+            pyedflib.highlevel.make_signal_header(
+                name, dimension="mV", sample_frequency=rec.fs,
+                physical_min=float(np.floor(x.min() * 100) / 100),
+                physical_max=float(np.ceil(x.max() * 100) / 100),
+                digital_min=-(2 ** 23), digital_max=2 ** 23 - 1,
+            )
+        )
+    start = datetime.datetime(2020, 3, 10, 8, 0, 0)
+    birth = datetime.datetime(2020 - age - 1, 6, 15)
+    header = pyedflib.highlevel.make_header(patientcode="P1", sex={"M": "Male", "F": "Female"}[sex],
+                                            startdate=start, birthdate=birth)
+    plus = file_type == "bdfplus"
+    if plus:
+        header["annotations"] = [[1.25, -1, "first"], [7.5, 0.5, "second"]]
+    p = tmp_path / "ludb1.bdf"
+    ft = pyedflib.FILETYPE_BDFPLUS if plus else pyedflib.FILETYPE_BDF
+    assert pyedflib.highlevel.write_edf(str(p), np.ascontiguousarray(rec.p_signal.T), headers, header, file_type=ft)
+    assert p.read_bytes()[:8] == b"\xffBIOSEMI"
+    head, sig = ours_edf(p)
+    r = pyedflib.EdfReader(str(p))
+    assert r.filetype == ft
+    assert head["fs"] == rec.fs and head["leads"] == rec.sig_name
+    for i, lead in enumerate(rec.sig_name):
+        ref = r.readSignal(i)
+        step = steps(r, i)
+        assert len(ref) == len(sig[lead])
+        assert np.max(np.abs(sig[lead] - ref)) <= 1e-6 * step, lead
+        # And close to the WFDB source (24-bit steps are far below LUDB's 1 uV).
+        assert np.max(np.abs(sig[lead][: rec.sig_len] - rec.p_signal[:, i])) <= step * (1 + 1e-6)
+    if plus:
+        assert head["age"] == age and head["sex"] == sex
+        onsets, durations, texts = r.readAnnotations()
+        ours = ours_ann(p)
+        assert [a["text"] for a in ours] == list(texts)
+        assert np.allclose([a["onset_s"] for a in ours], onsets)
+    r.close()

@@ -2,7 +2,7 @@
 //!
 //! An INPUT is a folder, a `RECORDS` list or a record path:
 //! - a folder with a `RECORDS` file: the records it lists;
-//! - a folder without one: every WFDB header (`*.hea`), EDF (`*.edf`), CSV
+//! - a folder without one: every WFDB header (`*.hea`), EDF (`*.edf`), BDF (`*.bdf`), CSV
 //!   (`*.csv`, except `subjects.csv`) and HL7 aECG (`*.xml`) file directly inside
 //!   it, sorted by name, except the headers of segments that a multi-segment
 //!   record in the folder names (they are read as parts of that record). Any `*.xml` is taken: an XML file that is not an aECG
@@ -10,7 +10,7 @@
 //! - a `RECORDS` file (any file named `RECORDS`): one record per line, relative
 //!   to the file's folder, with or without an extension (`.hea` assumed without);
 //!   entries that would leave that folder (`..`, absolute paths) are rejected;
-//! - a path to a `.hea`, `.edf`, `.csv` or `.xml` file, or a WFDB record path without
+//! - a path to a `.hea`, `.edf`, `.bdf`, `.csv` or `.xml` file, or a WFDB record path without
 //!   extension whose `.hea` exists.
 //!
 //! A problem with one input (a path that is not a record, a list line that leaves
@@ -28,7 +28,7 @@ use std::path::{Component, Path, PathBuf};
 pub struct RecordInput {
     /// Unique name within the run (file stem).
     pub name: String,
-    /// Path handed to the reader (`.hea`, `.edf`, `.csv` or `.xml`).
+    /// Path handed to the reader (`.hea`, `.edf`, `.bdf`, `.csv` or `.xml`).
     pub path: PathBuf,
     /// Why this input cannot be processed, found while resolving the inputs;
     /// the batch reports it as a failed record and goes on with the others.
@@ -52,7 +52,7 @@ impl RecordInput {
     }
 }
 
-const SIGNAL_EXTS: [&str; 4] = ["hea", "edf", "csv", "xml"];
+const SIGNAL_EXTS: [&str; 5] = ["hea", "edf", "bdf", "csv", "xml"];
 
 fn ext_of(p: &Path) -> Option<String> {
     p.extension()
@@ -68,7 +68,7 @@ fn from_path(p: &Path) -> Result<RecordInput> {
                 hea
             } else {
                 bail!(
-                    "{}: not a record: expected a folder, a RECORDS file, a .hea, .edf, .csv or \
+                    "{}: not a record: expected a folder, a RECORDS file, a .hea, .edf, .bdf, .csv or \
                      .xml (HL7 aECG) file, or a WFDB record name with a .hea beside it",
                     p.display()
                 )
@@ -276,6 +276,7 @@ mod tests {
             "b.edf",
             "c.csv",
             "d.xml",
+            "e.bdf",
             "subjects.csv",
             "notes.txt",
         ] {
@@ -285,7 +286,7 @@ mod tests {
             .into_iter()
             .map(|r| r.name)
             .collect();
-        assert_eq!(names, ["a", "b", "c", "d"]);
+        assert_eq!(names, ["a", "b", "c", "d", "e"]);
     }
 
     #[test]

@@ -1,14 +1,20 @@
-//! EDF and EDF+ (continuous) recordings: read into a [`Record`], write from one.
+//! EDF and EDF+ (continuous) recordings, and their 24-bit siblings BDF and
+//! BDF+: read into a [`Record`]; EDF+ written from one.
 //!
 //! EDF (European Data Format, Kemp et al. 1992) and its extension EDF+ (Kemp &
 //! Olivan 2003) store 16-bit samples in fixed-duration data records after an
 //! ASCII header. EDF+ adds an `EDF Annotations` channel of time-stamped
-//! annotation lists (TALs) and structured patient/recording fields.
+//! annotation lists (TALs) and structured patient/recording fields. BDF (the
+//! BioSemi variant, from memory: first header byte 0xFF followed by `BIOSEMI`,
+//! reserved field `24BIT`) stores 24-bit little-endian two's-complement samples
+//! in the same layout; BDF+ (as edflib writes it: reserved field `BDF+C`, a
+//! `BDF Annotations` channel) is BDF with the EDF+ fields and TALs.
 //!
 //! # Reading ([`read_edf`], [`read_edf_annotations`], [`parse_edf`])
 //!
-//! * Accepted: EDF, and EDF+ continuous (`EDF+C`). EDF+ discontinuous (`EDF+D`)
-//!   and BDF (24-bit) are rejected with an error saying so.
+//! * Accepted: EDF, EDF+ continuous (`EDF+C`), BDF and BDF+ continuous
+//!   (`BDF+C`). The discontinuous variants (`EDF+D`, `BDF+D`) are rejected with
+//!   an error saying so.
 //! * Samples are scaled to physical units with the header's physical and digital
 //!   extremes: `phys = (dig - dig_min) * (phys_max - phys_min) / (dig_max - dig_min) + phys_min`.
 //!   Units `uV`/`µV` are converted to `mV` (x 0.001), `V` to `mV` (x 1000),
@@ -65,6 +71,8 @@ use crate::{FormatError, Lead, Metadata, Record, Sex};
 
 /// Label of the EDF+ annotation channel.
 pub const ANNOTATION_LABEL: &str = "EDF Annotations";
+/// Label of the BDF+ annotation channel.
+pub const BDF_ANNOTATION_LABEL: &str = "BDF Annotations";
 
 /// One EDF+ annotation (one text of a TAL).
 #[derive(Debug, Clone, PartialEq)]
@@ -84,6 +92,25 @@ pub enum EdfVariant {
     Edf,
     /// EDF+ continuous (`EDF+C`).
     EdfPlusC,
+    /// BDF: 24-bit samples (first header byte 0xFF, `BIOSEMI`).
+    Bdf,
+    /// BDF+ continuous (`BDF+C`): BDF with the EDF+ fields and annotations.
+    BdfPlusC,
+}
+
+impl EdfVariant {
+    /// True for the EDF+/BDF+ variants (structured patient field, TALs).
+    pub fn is_plus(self) -> bool {
+        matches!(self, EdfVariant::EdfPlusC | EdfVariant::BdfPlusC)
+    }
+
+    /// Bytes per stored sample: 2 for EDF, 3 for BDF.
+    pub fn sample_bytes(self) -> usize {
+        match self {
+            EdfVariant::Edf | EdfVariant::EdfPlusC => 2,
+            EdfVariant::Bdf | EdfVariant::BdfPlusC => 3,
+        }
+    }
 }
 
 /// Header of one signal.
@@ -105,7 +132,7 @@ pub struct EdfSignalHeader {
 impl EdfSignalHeader {
     /// True for an `EDF Annotations` channel.
     pub fn is_annotation(&self) -> bool {
-        self.label == ANNOTATION_LABEL
+        self.label == ANNOTATION_LABEL || self.label == BDF_ANNOTATION_LABEL
     }
 }
 
@@ -209,21 +236,31 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
     if bytes.is_empty() {
         return Err("empty file, not an EDF file".into());
     }
-    if bytes[0] == 0xff {
-        return Err("BDF (24-bit) files are not supported, only EDF/EDF+".into());
-    }
+    let bdf = bytes[0] == 0xff;
+    let kind = if bdf { "BDF" } else { "EDF" };
     if bytes.len() < 256 {
         return Err(format!(
-            "truncated EDF header: {} bytes, the fixed header alone has 256",
+            "truncated {kind} header: {} bytes, the fixed header alone has 256",
             bytes.len()
         ));
     }
     let mut c = Cursor { bytes, pos: 0 };
-    let version = field_text(c.take(8));
-    if version != "0" {
-        return Err(format!(
-            "not an EDF file: version field is {version:?}, expected \"0\""
-        ));
+    let version_bytes = c.take(8);
+    if bdf {
+        if &version_bytes[1..] != b"BIOSEMI" {
+            return Err(format!(
+                "not a BDF file: version field is 0xFF followed by {:?}, expected \"BIOSEMI\"",
+                field_text(&version_bytes[1..])
+            ));
+        }
+    } else {
+        let version = field_text(version_bytes);
+        if version != "0" {
+            return Err(format!(
+                "not an EDF file: version field is {version:?}, expected \"0\" (EDF) or \
+                 0xFF \"BIOSEMI\" (BDF)"
+            ));
+        }
     }
     let patient = field_text(c.take(80));
     let recording = field_text(c.take(80));
@@ -235,16 +272,29 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
     let record_duration_s = parse_float(&field_text(c.take(8)), "duration of a data record")?;
     let ns = parse_int(&field_text(c.take(4)), "number of signals")?;
 
-    let variant = if reserved.starts_with("EDF+D") {
-        return Err(
-            "EDF+D (discontinuous) recordings are not supported; convert to EDF+C first".into(),
-        );
-    } else if reserved.starts_with("EDF+C") {
-        EdfVariant::EdfPlusC
-    } else if reserved.starts_with("EDF+") {
-        return Err(format!("unknown EDF+ variant {reserved:?}"));
+    let plus = if bdf { "BDF+" } else { "EDF+" };
+    let variant = if reserved.starts_with(&format!("{plus}D")) {
+        return Err(format!(
+            "{plus}D (discontinuous) recordings are not supported; convert to {plus}C first"
+        ));
+    } else if reserved.starts_with(&format!("{plus}C")) {
+        if bdf {
+            EdfVariant::BdfPlusC
+        } else {
+            EdfVariant::EdfPlusC
+        }
+    } else if reserved.starts_with(plus) {
+        return Err(format!("unknown {plus} variant {reserved:?}"));
+    } else if bdf {
+        EdfVariant::Bdf
     } else {
         EdfVariant::Edf
+    };
+    let width = variant.sample_bytes();
+    let (dig_lo, dig_hi) = if bdf {
+        (-(1i64 << 23), (1i64 << 23) - 1)
+    } else {
+        (-32768, 32767)
     };
     if ns < 1 {
         return Err(format!("number of signals is {ns}, must be at least 1"));
@@ -283,10 +333,11 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
         let dig_min = parse_int(&cols[5][k], &what("digital minimum"))?;
         let dig_max = parse_int(&cols[6][k], &what("digital maximum"))?;
         let spr = parse_int(&cols[8][k], &what("number of samples per data record"))?;
-        if !(-32768..=32767).contains(&dig_min) || !(-32768..=32767).contains(&dig_max) {
+        if !(dig_lo..=dig_hi).contains(&dig_min) || !(dig_lo..=dig_hi).contains(&dig_max) {
             return Err(format!(
-                "{}: digital range {dig_min}..{dig_max} exceeds 16 bits",
-                what("digital extremes")
+                "{}: digital range {dig_min}..{dig_max} exceeds {} bits",
+                what("digital extremes"),
+                8 * width
             ));
         }
         if dig_max <= dig_min {
@@ -324,7 +375,7 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
         .try_fold(0usize, |acc, s| acc.checked_add(s.samples_per_record))
         .ok_or("samples per data record overflow")?;
     let record_bytes = record_samples
-        .checked_mul(2)
+        .checked_mul(width)
         .ok_or("data record size overflows")?;
     let data_len = bytes.len() - header_len;
     let n_records = if n_records_field == -1 {
@@ -343,7 +394,7 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
         let need = n.checked_mul(record_bytes).ok_or("data size overflows")?;
         if data_len < need {
             return Err(format!(
-                "truncated EDF file: header announces {n} data records of {record_bytes} bytes ({need} bytes) but only {data_len} data bytes follow the header"
+                "truncated {kind} file: header announces {n} data records of {record_bytes} bytes ({need} bytes) but only {data_len} data bytes follow the header"
             ));
         }
         if data_len > need {
@@ -369,7 +420,7 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
     for r in 0..n_records {
         let mut off = r * record_bytes;
         for (k, s) in signals.iter().enumerate() {
-            let n = s.samples_per_record * 2;
+            let n = s.samples_per_record * width;
             let chunk = &data[off..off + n];
             off += n;
             if s.is_annotation() {
@@ -380,9 +431,17 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
             }
             let gain = (s.phys_max - s.phys_min) / (s.dig_max - s.dig_min) as f64;
             let out = &mut samples[k];
-            for p in chunk.chunks_exact(2) {
-                let d = i16::from_le_bytes([p[0], p[1]]) as f64;
-                out.push((d - s.dig_min as f64) * gain + s.phys_min);
+            if bdf {
+                for p in chunk.chunks_exact(3) {
+                    let sign = if p[2] & 0x80 != 0 { 0xff } else { 0 };
+                    let d = i32::from_le_bytes([p[0], p[1], p[2], sign]) as f64;
+                    out.push((d - s.dig_min as f64) * gain + s.phys_min);
+                }
+            } else {
+                for p in chunk.chunks_exact(2) {
+                    let d = i16::from_le_bytes([p[0], p[1]]) as f64;
+                    out.push((d - s.dig_min as f64) * gain + s.phys_min);
+                }
             }
         }
     }
@@ -582,7 +641,7 @@ pub fn edf_to_record(file: EdfFile, path: &Path) -> Result<Record, FormatError> 
             samples: s,
         });
     }
-    if header.variant == EdfVariant::EdfPlusC {
+    if header.variant.is_plus() {
         patient_meta(&header, &mut meta);
     }
     Ok(Record::from_file(path, fs, leads, meta, warnings))

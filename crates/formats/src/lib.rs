@@ -135,7 +135,8 @@ impl ReadOptions {
 }
 
 /// Read a record, choosing the reader by extension: `.hea` (or a path without
-/// extension that has a sibling `.hea`) → WFDB, `.edf` → EDF/EDF+, `.csv` → CSV,
+/// extension that has a sibling `.hea`) → WFDB, `.edf` → EDF/EDF+, `.bdf` →
+/// BDF/BDF+ (24-bit EDF), `.csv` → CSV,
 /// `.xml` → HL7 aECG ([`aecg`]).
 pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatError> {
     let ext = path
@@ -143,14 +144,14 @@ pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatErro
         .map(|e| e.to_string_lossy().to_ascii_lowercase());
     match ext.as_deref() {
         Some("hea") => wfdb::read_record(path),
-        Some("edf") => edf::read_edf(path),
+        Some("edf" | "bdf") => edf::read_edf(path),
         Some("csv") => csv::read_csv(path, opts.csv_fs),
         Some("xml") => aecg::read_aecg(path),
         _ if wfdb::header_path_of(path).is_file() => wfdb::read_record(path),
         _ => Err(FormatError::Invalid {
             path: path.to_path_buf(),
             message:
-                "unknown input type: expected a .hea, .edf, .csv or .xml (HL7 aECG) file, or a \
+                "unknown input type: expected a .hea, .edf, .bdf, .csv or .xml (HL7 aECG) file, or a \
                       WFDB record path with a sibling .hea"
                     .into(),
         }),

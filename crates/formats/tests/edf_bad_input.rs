@@ -6,7 +6,7 @@ mod edf_util;
 
 use std::path::PathBuf;
 
-use edf_util::{build_edf, build_edf_raw, Sig};
+use edf_util::{build_bdf, build_edf, build_edf_raw, Sig};
 use tendline_formats::edf::{read_edf, read_edf_annotations};
 use tendline_formats::FormatError;
 
@@ -140,10 +140,29 @@ fn bad_numbers_and_counts() {
 fn unsupported_variants() {
     let b = build_edf("X", "X", "EDF+D", 2, "1", &good_sigs());
     expect_invalid("discontinuous.edf", &b, "EDF+D (discontinuous)");
+    // A BDF header in front of 16-bit data: the sizes no longer add up.
     let mut g = good();
     g[0] = 0xff;
     g[1..8].copy_from_slice(b"BIOSEMI");
-    expect_invalid("bdf.edf", &g, "BDF");
+    expect_invalid("bdf.edf", &g, "truncated BDF file");
+    let mut g = good();
+    g[0] = 0xff;
+    g[1..8].copy_from_slice(b"BIOSEM!");
+    expect_invalid("not_biosemi.bdf", &g, "expected \"BIOSEMI\"");
+    let b = build_bdf(
+        "X",
+        "X",
+        "BDF+D",
+        1,
+        "1",
+        &[Sig::bdf("ECG", 2, "mV", -1.0, 1.0, &[0, 0])],
+    );
+    expect_invalid("discontinuous.bdf", &b, "BDF+D (discontinuous)");
+    // A 16-bit digital range check does not apply to BDF, a 24-bit one does.
+    let mut s = Sig::bdf("ECG", 2, "mV", -1.0, 1.0, &[0, 0]);
+    s.dmax = "8388608".into();
+    let b = build_bdf("X", "X", "24BIT", 1, "1", &[s]);
+    expect_invalid("range.bdf", &b, "exceeds 24 bits");
     let mut g = good();
     g[0] = b'7';
     expect_invalid("version.edf", &g, "version field");
@@ -190,4 +209,50 @@ fn missing_file_is_an_io_error() {
         Err(e @ FormatError::Io { .. }) => assert!(e.to_string().contains("does_not_exist.edf")),
         other => panic!("{other:?}"),
     }
+}
+
+/// BDF and BDF+ files built byte by byte: 24-bit samples decode exactly,
+/// negative values and both extremes included; BDF+ annotations and patient
+/// field are read as for EDF+.
+#[test]
+fn bdf_and_bdf_plus_read_exactly() {
+    // Physical range -8388608 .. 8388607 uV over the full digital range (both
+    // fit the 8-character fields): one digital unit is exactly 1 uV = 1e-3 mV.
+    let dig = [-8388608, -1, 0, 1, 123456, -654321, 8388607, 42];
+    let ecg = Sig::bdf("ECG II", 4, "uV", -8388608.0, 8388607.0, &dig);
+    let b = build_bdf("X X X X", "X", "24BIT", 2, "1", std::slice::from_ref(&ecg));
+    let p = tmp("plain.bdf");
+    std::fs::write(&p, &b).unwrap();
+    let r = read_edf(&p).unwrap();
+    assert_eq!((r.fs, r.n_samples()), (4.0, 8));
+    assert_eq!(r.leads[0].units, "mV");
+    for (got, d) in r.leads[0].samples.iter().zip(dig) {
+        let want = d as f64 * 1e-3;
+        assert!((got - want).abs() < 1e-12, "{got} vs {want}");
+    }
+    // BDF+: EDF+ patient field, a `BDF Annotations` channel with one event.
+    let sigs = [
+        ecg,
+        Sig::bdf_annotations_per_record(&[
+            b"+0\x14\x14\x00+0.5\x14beat\x14\x00",
+            b"+1\x14\x14\x00",
+        ]),
+    ];
+    let b = build_bdf(
+        "P1 F 02-MAR-1950 X",
+        "Startdate 02-MAR-2002 X X X",
+        "BDF+C",
+        2,
+        "1",
+        &sigs,
+    );
+    let p = tmp("plus.bdf");
+    std::fs::write(&p, &b).unwrap();
+    let r = read_edf(&p).unwrap();
+    assert_eq!(r.leads.len(), 1);
+    assert_eq!(r.meta.sex, Some(tendline_formats::Sex::Female));
+    assert_eq!(r.meta.age, Some(52.0));
+    let a = read_edf_annotations(&p).unwrap();
+    assert_eq!(a.len(), 1);
+    assert_eq!((a[0].onset_s, a[0].text.as_str()), (0.5, "beat"));
 }

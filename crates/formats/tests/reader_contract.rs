@@ -1,5 +1,5 @@
 //! The reader contract: every signal reader behind [`read_record`] (WFDB, EDF,
-//! CSV, HL7 aECG) passes the same invariants on what it returns and the same
+//! BDF, CSV, HL7 aECG) passes the same invariants on what it returns and the same
 //! bad-input cases. A new format adds one entry to [`formats`] and passes this
 //! file unchanged.
 //!
@@ -100,6 +100,54 @@ struct Written {
     data_file: PathBuf,
 }
 
+/// The BDF+ form of an EDF+ file: the same header with the BDF identification
+/// (0xFF `BIOSEMI`, `BDF+C`, `BDF Annotations`), every 16-bit sample stored
+/// sign-extended in 3 bytes, the annotation bytes copied and zero-padded (BDF
+/// layout, from memory). Field offsets: EDF specification (Kemp et al. 1992).
+fn edf_to_bdf(edf: &[u8]) -> Vec<u8> {
+    let text = |a: usize, n: usize| String::from_utf8_lossy(&edf[a..a + n]).trim().to_string();
+    let ns: usize = text(252, 4).parse().unwrap();
+    let n_rec: usize = text(236, 8).parse().unwrap();
+    let labels: Vec<String> = (0..ns).map(|k| text(256 + 16 * k, 16)).collect();
+    let spr_at = 256 + ns * (16 + 80 + 8 + 8 + 8 + 8 + 8 + 80);
+    let spr: Vec<usize> = (0..ns)
+        .map(|k| text(spr_at + 8 * k, 8).parse().unwrap())
+        .collect();
+    let head = 256 * (ns + 1);
+    let mut out = edf[..head].to_vec();
+    out[0] = 0xff;
+    out[1..8].copy_from_slice(b"BIOSEMI");
+    let mut reserved = b"BDF+C".to_vec();
+    reserved.resize(44, b' ');
+    out[192..236].copy_from_slice(&reserved);
+    for (k, l) in labels.iter().enumerate() {
+        if l == "EDF Annotations" {
+            let mut f = b"BDF Annotations".to_vec();
+            f.resize(16, b' ');
+            out[256 + 16 * k..256 + 16 * (k + 1)].copy_from_slice(&f);
+        }
+    }
+    let mut at = head;
+    for _ in 0..n_rec {
+        for (k, &n) in spr.iter().enumerate() {
+            let chunk = &edf[at..at + 2 * n];
+            at += 2 * n;
+            if labels[k] == "EDF Annotations" {
+                let mut v = chunk.to_vec();
+                v.resize(3 * n, 0);
+                out.extend_from_slice(&v);
+            } else {
+                for p in chunk.chunks_exact(2) {
+                    let d = i16::from_le_bytes([p[0], p[1]]) as i32;
+                    out.extend_from_slice(&d.to_le_bytes()[..3]);
+                }
+            }
+        }
+    }
+    assert_eq!(at, edf.len());
+    out
+}
+
 fn formats(dir: &Path) -> Vec<Written> {
     let r = synthetic();
     let wdir = dir.join("wfdb");
@@ -107,6 +155,8 @@ fn formats(dir: &Path) -> Vec<Written> {
     let hea = wfdb::write_record(&wdir, &r, 1000.0).unwrap();
     let edf_p = dir.join("contract.edf");
     edf::write_edf(&edf_p, &r).unwrap();
+    let bdf_p = dir.join("contract.bdf");
+    std::fs::write(&bdf_p, edf_to_bdf(&std::fs::read(&edf_p).unwrap())).unwrap();
     let csv_p = write_csv(dir, &r);
     let xml_p = write_aecg(dir, &r);
     vec![
@@ -119,6 +169,11 @@ fn formats(dir: &Path) -> Vec<Written> {
             format: "EDF",
             input: edf_p.clone(),
             data_file: edf_p,
+        },
+        Written {
+            format: "BDF",
+            input: bdf_p.clone(),
+            data_file: bdf_p,
         },
         Written {
             format: "CSV",

@@ -34,6 +34,59 @@ impl Sig {
         }
     }
 
+    /// A BDF (24-bit) signal over the full 24-bit digital range; `data` holds
+    /// the digital values of all records in order, stored as 3-byte
+    /// little-endian two's complement (BDF layout, from memory).
+    pub fn bdf(label: &str, spr: usize, units: &str, pmin: f64, pmax: f64, data: &[i32]) -> Sig {
+        let records = data
+            .chunks(spr)
+            .map(|c| {
+                c.iter()
+                    .flat_map(|d| d.to_le_bytes()[..3].to_vec())
+                    .collect()
+            })
+            .collect();
+        Sig {
+            label: label.into(),
+            units: units.into(),
+            pmin: pmin.to_string(),
+            pmax: pmax.to_string(),
+            dmin: "-8388608".into(),
+            dmax: "8388607".into(),
+            spr: spr.to_string(),
+            records,
+        }
+    }
+
+    /// A `BDF Annotations` signal (BDF+), one TAL byte string per data record,
+    /// padded with zero bytes to whole 3-byte samples.
+    pub fn bdf_annotations_per_record(recs: &[&[u8]]) -> Sig {
+        let max = recs
+            .iter()
+            .map(|r| r.len())
+            .max()
+            .unwrap_or(0)
+            .div_ceil(3)
+            .max(1);
+        Sig {
+            label: "BDF Annotations".into(),
+            units: "".into(),
+            pmin: "-1".into(),
+            pmax: "1".into(),
+            dmin: "-8388608".into(),
+            dmax: "8388607".into(),
+            spr: max.to_string(),
+            records: recs
+                .iter()
+                .map(|r| {
+                    let mut v = r.to_vec();
+                    v.resize(max * 3, 0);
+                    v
+                })
+                .collect(),
+        }
+    }
+
     /// An `EDF Annotations` signal with `tals` in a single data record.
     pub fn annotations(tals: &[u8]) -> Sig {
         Sig::annotations_per_record(&[tals])
@@ -158,4 +211,20 @@ pub fn build_edf_raw(
         }
     }
     out
+}
+
+/// [`build_edf`] with the BDF identification: first byte 0xFF, then `BIOSEMI`
+/// in the version field (BioSemi BDF, from memory).
+pub fn build_bdf(
+    patient: &str,
+    recording: &str,
+    reserved: &str,
+    n_records: usize,
+    duration: &str,
+    sigs: &[Sig],
+) -> Vec<u8> {
+    let mut b = build_edf(patient, recording, reserved, n_records, duration, sigs);
+    b[0] = 0xff;
+    b[1..8].copy_from_slice(b"BIOSEMI");
+    b
 }
