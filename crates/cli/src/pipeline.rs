@@ -94,9 +94,10 @@ fn check_record(rec: &Record, path: &Path) -> Result<()> {
 /// a continuous signal; returns the number filled per lead.
 ///
 /// Readers produce NaN only for samples the format itself declares missing (the
-/// WFDB invalid-sample value, and a skewed signal past the end of its file, as
-/// the `wfdb` Python package reads them); other non-finite input is rejected by
-/// the readers. Inside a lead a gap is bridged by a straight line between the
+/// WFDB invalid-sample value, a skewed signal past the end of its file and the
+/// gaps of a variable-layout multi-segment record, as the `wfdb` Python package
+/// reads them; the gaps between the data records of an EDF+D or BDF+D file);
+/// other non-finite input is rejected by the readers. Inside a lead a gap is bridged by a straight line between the
 /// samples around it; at the ends the nearest sample is held. A long bridged gap
 /// is a flat or straight stretch with no QRS slope: detection leaves it to the
 /// other leads or marks it unreadable, and no wave boundary is found in it. A

@@ -12,9 +12,12 @@
 //!
 //! # Reading ([`read_edf`], [`read_edf_annotations`], [`parse_edf`])
 //!
-//! * Accepted: EDF, EDF+ continuous (`EDF+C`), BDF and BDF+ continuous
-//!   (`BDF+C`). The discontinuous variants (`EDF+D`, `BDF+D`) are rejected with
-//!   an error saying so.
+//! * Accepted: EDF, EDF+ (`EDF+C` and `EDF+D`), BDF and BDF+ (`BDF+C`,
+//!   `BDF+D`). In a discontinuous file (`+D`) each data record is placed at
+//!   the onset of its time-keeping annotation, counted from the first record's;
+//!   the gaps between records are NaN (the pipeline bridges and counts them like
+//!   any missing samples), and overlapping records are an error. Annotation
+//!   onsets stay relative to the header's start time.
 //! * Samples are scaled to physical units with the header's physical and digital
 //!   extremes: `phys = (dig - dig_min) * (phys_max - phys_min) / (dig_max - dig_min) + phys_min`.
 //!   Units `uV`/`µV` are converted to `mV` (x 0.001), `V` to `mV` (x 1000),
@@ -96,19 +99,35 @@ pub enum EdfVariant {
     Bdf,
     /// BDF+ continuous (`BDF+C`): BDF with the EDF+ fields and annotations.
     BdfPlusC,
+    /// EDF+ discontinuous (`EDF+D`): data records placed by their time-keeping
+    /// annotations, gaps between them read as NaN.
+    EdfPlusD,
+    /// BDF+ discontinuous (`BDF+D`).
+    BdfPlusD,
 }
 
 impl EdfVariant {
     /// True for the EDF+/BDF+ variants (structured patient field, TALs).
     pub fn is_plus(self) -> bool {
-        matches!(self, EdfVariant::EdfPlusC | EdfVariant::BdfPlusC)
+        matches!(
+            self,
+            EdfVariant::EdfPlusC
+                | EdfVariant::BdfPlusC
+                | EdfVariant::EdfPlusD
+                | EdfVariant::BdfPlusD
+        )
+    }
+
+    /// True for the discontinuous variants (`EDF+D`, `BDF+D`).
+    pub fn is_discontinuous(self) -> bool {
+        matches!(self, EdfVariant::EdfPlusD | EdfVariant::BdfPlusD)
     }
 
     /// Bytes per stored sample: 2 for EDF, 3 for BDF.
     pub fn sample_bytes(self) -> usize {
         match self {
-            EdfVariant::Edf | EdfVariant::EdfPlusC => 2,
-            EdfVariant::Bdf | EdfVariant::BdfPlusC => 3,
+            EdfVariant::Edf | EdfVariant::EdfPlusC | EdfVariant::EdfPlusD => 2,
+            EdfVariant::Bdf | EdfVariant::BdfPlusC | EdfVariant::BdfPlusD => 3,
         }
     }
 }
@@ -162,6 +181,8 @@ pub struct EdfFile {
     /// One entry per header signal; empty for annotation channels.
     pub samples: Vec<Vec<f64>>,
     pub annotations: Vec<EdfAnnotation>,
+    /// Notes on how the file was read (gaps of a discontinuous file).
+    pub warnings: Vec<String>,
 }
 
 fn invalid(path: &Path, message: impl Into<String>) -> FormatError {
@@ -274,9 +295,11 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
 
     let plus = if bdf { "BDF+" } else { "EDF+" };
     let variant = if reserved.starts_with(&format!("{plus}D")) {
-        return Err(format!(
-            "{plus}D (discontinuous) recordings are not supported; convert to {plus}C first"
-        ));
+        if bdf {
+            EdfVariant::BdfPlusD
+        } else {
+            EdfVariant::EdfPlusD
+        }
     } else if reserved.starts_with(&format!("{plus}C")) {
         if bdf {
             EdfVariant::BdfPlusC
@@ -417,16 +440,23 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
         .collect();
     let mut annotations = Vec::new();
     let data = &bytes[header_len..];
-    for r in 0..n_records {
+    // The onset of each data record: the first TAL of the first annotation
+    // signal (the time-keeping TAL of EDF+).
+    let first_ann = signals.iter().position(EdfSignalHeader::is_annotation);
+    let mut record_onsets: Vec<Option<f64>> = vec![None; n_records];
+    for (r, record_onset) in record_onsets.iter_mut().enumerate() {
         let mut off = r * record_bytes;
         for (k, s) in signals.iter().enumerate() {
             let n = s.samples_per_record * width;
             let chunk = &data[off..off + n];
             off += n;
             if s.is_annotation() {
-                parse_tals(chunk, &mut annotations).map_err(|m| {
+                let onset = parse_tals(chunk, &mut annotations).map_err(|m| {
                     format!("data record {} annotation signal {}: {m}", r + 1, k + 1)
                 })?;
+                if Some(k) == first_ann {
+                    *record_onset = onset;
+                }
                 continue;
             }
             let gain = (s.phys_max - s.phys_min) / (s.dig_max - s.dig_min) as f64;
@@ -445,7 +475,18 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
             }
         }
     }
+    let mut warnings = Vec::new();
+    if variant.is_discontinuous() {
+        place_records(
+            &signals,
+            record_duration_s,
+            &record_onsets,
+            &mut samples,
+            &mut warnings,
+        )?;
+    }
     Ok(EdfFile {
+        warnings,
         header: EdfHeader {
             variant,
             patient,
@@ -461,11 +502,133 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
     })
 }
 
+fn gcd(a: usize, b: usize) -> usize {
+    if b == 0 {
+        a
+    } else {
+        gcd(b, a % b)
+    }
+}
+
+/// Place the data records of a discontinuous (`EDF+D`/`BDF+D`) file at their
+/// onsets, NaN in the gaps (EDF+ specification, Kemp & Olivan 2003, from
+/// memory: every data record opens with a time-keeping TAL giving its start in
+/// seconds; in `EDF+D` successive records may leave gaps but never overlap).
+///
+/// Onsets count from the first record's, as sample 0 of a continuous file does.
+/// They are put on the grid of `duration / g` seconds, `g` the greatest common
+/// divisor of the signals' samples per record, so that every signal gets whole
+/// sample offsets and all keep the ratio of their rates; an onset more than 1 %
+/// of that step off the grid is rounded with a warning.
+fn place_records(
+    signals: &[EdfSignalHeader],
+    duration_s: f64,
+    onsets: &[Option<f64>],
+    samples: &mut [Vec<f64>],
+    warnings: &mut Vec<String>,
+) -> Result<(), String> {
+    let ordinary: Vec<usize> = (0..signals.len())
+        .filter(|&k| !signals[k].is_annotation())
+        .collect();
+    if ordinary.is_empty() || onsets.is_empty() {
+        return Ok(());
+    }
+    if duration_s <= 0.0 {
+        return Err(format!(
+            "discontinuous file with a data-record duration of {duration_s} s: the records \
+             cannot be placed in time"
+        ));
+    }
+    let g = ordinary
+        .iter()
+        .map(|&k| signals[k].samples_per_record)
+        .fold(0, gcd);
+    let step = duration_s / g as f64;
+    let mut ticks: Vec<u64> = Vec::with_capacity(onsets.len());
+    let mut off_grid = 0usize;
+    let first = onsets[0].ok_or("data record 1 has no time-keeping annotation (its onset)")?;
+    for (r, o) in onsets.iter().enumerate() {
+        let o = o.ok_or_else(|| {
+            format!(
+                "data record {} has no time-keeping annotation (its onset)",
+                r + 1
+            )
+        })?;
+        let t = (o - first) / step;
+        if !(0.0..=(1u64 << 40) as f64).contains(&t) {
+            return Err(format!(
+                "data record {} starts at {o} s, {} s from the first record: out of range",
+                r + 1,
+                o - first
+            ));
+        }
+        let tick = t.round() as u64;
+        if (t - tick as f64).abs() > 0.01 {
+            off_grid += 1;
+        }
+        if let Some(&prev) = ticks.last() {
+            if tick < prev + g as u64 {
+                return Err(format!(
+                    "data record {} starts at {o} s, before the previous one ends ({} s): \
+                     records of a discontinuous file must not overlap",
+                    r + 1,
+                    first + (prev + g as u64) as f64 * step
+                ));
+            }
+        }
+        ticks.push(tick);
+    }
+    let total_ticks = ticks.last().copied().unwrap_or(0) + g as u64;
+    let gaps = ticks.windows(2).filter(|w| w[1] > w[0] + g as u64).count();
+    for &k in &ordinary {
+        let per = (signals[k].samples_per_record / g) as u64;
+        let len = total_ticks * per;
+        // A whole record is held in memory: gaps may lengthen a signal to 2^26
+        // samples (37 h at 500 Hz) or twice its stored length, not more, so a
+        // damaged onset cannot ask for gigabytes.
+        let stored = (onsets.len() * signals[k].samples_per_record) as u64;
+        let cap = (1u64 << 26).max(2 * stored);
+        if len > cap {
+            return Err(format!(
+                "signal {} ({:?}): the gaps between data records make it {len} samples long \
+                 ({} s), more than the {cap} allowed; check the records' onsets",
+                k + 1,
+                signals[k].label,
+                total_ticks as f64 * step
+            ));
+        }
+        let spr = signals[k].samples_per_record;
+        let mut out = vec![f64::NAN; len as usize];
+        for (r, &t) in ticks.iter().enumerate() {
+            let at = (t * per) as usize;
+            out[at..at + spr].copy_from_slice(&samples[k][r * spr..(r + 1) * spr]);
+        }
+        samples[k] = out;
+    }
+    if gaps > 0 {
+        let gap_s = (total_ticks - onsets.len() as u64 * g as u64) as f64 * step;
+        warnings.push(format!(
+            "discontinuous recording: {gaps} gap(s) between data records, {gap_s} s in all, \
+             read as NaN"
+        ));
+    }
+    if off_grid > 0 {
+        warnings.push(format!(
+            "discontinuous recording: {off_grid} data record onset(s) off the sample grid \
+             ({step} s), rounded to it"
+        ));
+    }
+    Ok(())
+}
+
 /// Parse the TALs of one annotation signal in one data record.
 ///
 /// TAL layout (EDF+ spec): `+onset[\x15duration]\x14[text\x14]...\x00`, TALs
 /// back to back, the rest of the signal filled with `\x00`.
-fn parse_tals(chunk: &[u8], out: &mut Vec<EdfAnnotation>) -> Result<(), String> {
+/// Returns the onset of the chunk's first TAL (the time-keeping TAL when the
+/// chunk is the first annotation signal of a data record).
+fn parse_tals(chunk: &[u8], out: &mut Vec<EdfAnnotation>) -> Result<Option<f64>, String> {
+    let mut first = None;
     let mut i = 0;
     while i < chunk.len() {
         if chunk[i] == 0 {
@@ -493,6 +656,7 @@ fn parse_tals(chunk: &[u8], out: &mut Vec<EdfAnnotation>) -> Result<(), String> 
                 String::from_utf8_lossy(onset_b)
             )
         })?;
+        first.get_or_insert(onset_s);
         let duration_s = match dur_b {
             Some(d) => Some(tal_number(d, false).ok_or_else(|| {
                 format!(
@@ -513,7 +677,7 @@ fn parse_tals(chunk: &[u8], out: &mut Vec<EdfAnnotation>) -> Result<(), String> 
         }
         i = end + 1;
     }
-    Ok(())
+    Ok(first)
 }
 
 /// A TAL number: onsets must carry a sign (`+`/`-`), durations must not;
@@ -550,7 +714,10 @@ fn unit_to_mv(units: &str) -> Option<f64> {
 /// Convert a decoded file to a [`Record`] (rate choice, units, patient field).
 pub fn edf_to_record(file: EdfFile, path: &Path) -> Result<Record, FormatError> {
     let EdfFile {
-        header, samples, ..
+        header,
+        samples,
+        warnings: read_notes,
+        ..
     } = file;
     let h = &header;
     let ordinary: Vec<usize> = (0..h.signals.len())
@@ -598,7 +765,7 @@ pub fn edf_to_record(file: EdfFile, path: &Path) -> Result<Record, FormatError> 
     let fs = spr as f64 / h.record_duration_s;
 
     let mut meta = Metadata::default();
-    let mut warnings = Vec::new();
+    let mut warnings = read_notes;
     let mut leads = Vec::new();
     for (k, mut s) in samples.into_iter().enumerate() {
         let sh = &header.signals[k];

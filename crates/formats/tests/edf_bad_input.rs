@@ -138,8 +138,23 @@ fn bad_numbers_and_counts() {
 
 #[test]
 fn unsupported_variants() {
-    let b = build_edf("X", "X", "EDF+D", 2, "1", &good_sigs());
-    expect_invalid("discontinuous.edf", &b, "EDF+D (discontinuous)");
+    // A discontinuous file whose records overlap, or lack their time-keeping TAL.
+    let overlap = vec![
+        Sig::ecg("ECG II", 4, "mV", -5.0, 5.0, &[1, 2, 3, 4, 5, 6, 7, 8]),
+        Sig::annotations_per_record(&[b"+0\x14\x14\x00", b"+0.5\x14\x14\x00"]),
+    ];
+    let b = build_edf("X", "X", "EDF+D", 2, "1", &overlap);
+    expect_invalid("overlap.edf", &b, "must not overlap");
+    let no_tal = vec![Sig::ecg(
+        "ECG II",
+        4,
+        "mV",
+        -5.0,
+        5.0,
+        &[1, 2, 3, 4, 5, 6, 7, 8],
+    )];
+    let b = build_edf("X", "X", "EDF+D", 2, "1", &no_tal);
+    expect_invalid("no_tal.edf", &b, "no time-keeping annotation");
     // A BDF header in front of 16-bit data: the sizes no longer add up.
     let mut g = good();
     g[0] = 0xff;
@@ -152,12 +167,12 @@ fn unsupported_variants() {
     let b = build_bdf(
         "X",
         "X",
-        "BDF+D",
+        "BDF+Q",
         1,
         "1",
         &[Sig::bdf("ECG", 2, "mV", -1.0, 1.0, &[0, 0])],
     );
-    expect_invalid("discontinuous.bdf", &b, "BDF+D (discontinuous)");
+    expect_invalid("unknown.bdf", &b, "unknown BDF+ variant");
     // A 16-bit digital range check does not apply to BDF, a 24-bit one does.
     let mut s = Sig::bdf("ECG", 2, "mV", -1.0, 1.0, &[0, 0]);
     s.dmax = "8388608".into();
@@ -255,4 +270,66 @@ fn bdf_and_bdf_plus_read_exactly() {
     let a = read_edf_annotations(&p).unwrap();
     assert_eq!(a.len(), 1);
     assert_eq!((a[0].onset_s, a[0].text.as_str()), (0.5, "beat"));
+}
+
+/// EDF+D and BDF+D: each data record is placed at the onset of its time-keeping
+/// TAL, the gaps between records are NaN (EDF+ specification, Kemp & Olivan
+/// 2003, from memory). Hand-built: records of 1 s at +0, +1 and +3.5 s, an ECG
+/// at 4 Hz and a slower signal at 2 Hz, so the 1.5-s gap is 6 and 3 samples.
+#[test]
+fn discontinuous_files_place_records_at_their_onsets() {
+    let tals: [&[u8]; 3] = [
+        b"+0\x14\x14\x00",
+        b"+1\x14\x14\x00+1.25\x14event\x14\x00",
+        b"+3.5\x14\x14\x00",
+    ];
+    let ecg: Vec<i16> = (1..=12).collect();
+    let slow: Vec<i16> = vec![10, 20, 30, 40, 50, 60];
+    // Physical = digital here: range -32768..32767 on both scales.
+    let sigs = [
+        Sig::ecg("ECG II", 4, "mV", -32768.0, 32767.0, &ecg),
+        Sig::ecg("Resp", 2, "mV", -32768.0, 32767.0, &slow),
+        Sig::annotations_per_record(&tals),
+    ];
+    let b = build_edf("X", "X", "EDF+D", 3, "1", &sigs);
+    let p = tmp("gaps.edf");
+    std::fs::write(&p, &b).unwrap();
+    let f = tendline_formats::edf::parse_edf(&b, &p).unwrap();
+    let nan = f64::NAN;
+    let want_ecg = [
+        1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0, nan, nan, nan, nan, nan, nan, 9.0, 10.0, 11.0, 12.0,
+    ];
+    let want_slow = [10.0, 20.0, 30.0, 40.0, nan, nan, nan, 50.0, 60.0];
+    let same = |a: &[f64], b: &[f64]| {
+        a.len() == b.len()
+            && a.iter()
+                .zip(b)
+                .all(|(x, y)| x == y || x.is_nan() && y.is_nan())
+    };
+    assert!(same(&f.samples[0], &want_ecg), "{:?}", f.samples[0]);
+    assert!(same(&f.samples[1], &want_slow), "{:?}", f.samples[1]);
+    assert!(f
+        .warnings
+        .iter()
+        .any(|w| w.contains("1 gap(s)") && w.contains("1.5 s")));
+    // The event keeps its onset from the header start time.
+    assert_eq!(f.annotations.len(), 1);
+    assert_eq!(f.annotations[0].onset_s, 1.25);
+    // As a record: 18 samples at 4 Hz, the slower signal interpolated to them.
+    let r = read_edf(&p).unwrap();
+    assert_eq!((r.fs, r.n_samples()), (4.0, 18));
+    assert!(same(&r.leads[0].samples, &want_ecg));
+    assert!(r.warnings.iter().any(|w| w.contains("gap")));
+
+    // The same as BDF+D.
+    let ecg24: Vec<i32> = ecg.iter().map(|&v| v as i32).collect();
+    let sigs = [
+        Sig::bdf("ECG II", 4, "mV", -8388608.0, 8388607.0, &ecg24),
+        Sig::bdf_annotations_per_record(&tals),
+    ];
+    let b = build_bdf("X", "X", "BDF+D", 3, "1", &sigs);
+    let p = tmp("gaps.bdf");
+    std::fs::write(&p, &b).unwrap();
+    let r = read_edf(&p).unwrap();
+    assert!(same(&r.leads[0].samples, &want_ecg));
 }
