@@ -278,3 +278,62 @@ def test_pyedflib_written_bdf(file_type, tmp_path):
         assert [a["text"] for a in ours] == list(texts)
         assert np.allclose([a["onset_s"] for a in ours], onsets)
     r.close()
+
+
+def _fields(b):
+    """Signal count, record count, labels and samples per record of EDF bytes
+    (header layout: EDF specification, Kemp et al. 1992)."""
+    ns = int(b[252:256])
+    n_rec = int(b[236:244])
+    labels = [b[256 + 16 * k: 256 + 16 * (k + 1)].decode().strip() for k in range(ns)]
+    at = 256 + ns * (16 + 80 + 8 * 5 + 80)
+    spr = [int(b[at + 8 * k: at + 8 * (k + 1)]) for k in range(ns)]
+    return ns, n_rec, labels, spr
+
+
+def test_discontinuous_edf_against_pyedflib(tmp_path):
+    # LUDB record 1 (leads i, ii; wfdb.rdrecord) written by pyedflib as EDF+C in
+    # 1-s data records, then turned into EDF+D by hand: the reserved field says
+    # EDF+D and the time-keeping TALs of records 4..9 are moved 2.5 s later.
+    # edflib refuses discontinuous files, but the signal bytes are those of the
+    # EDF+C file: tendline must return pyedflib's reading of that file with each
+    # record at its new onset, and NaN for the 2.5-s gap (1250 samples at
+    # 500 Hz), placed here from the onsets written.
+    need_data()
+    rec = wfdb.rdrecord(str(DATA / "ludb" / "1"), channels=[0, 1])
+    heads = [pyedflib.highlevel.make_signal_header(n, dimension="mV", sample_frequency=500,
+                                                   physical_min=-5, physical_max=5) for n in rec.sig_name]
+    c = tmp_path / "c.edf"
+    assert pyedflib.highlevel.write_edf(str(c), np.ascontiguousarray(rec.p_signal.T), heads)
+    b = bytearray(c.read_bytes())
+    ns, n_rec, labels, spr = _fields(b)
+    ann = labels.index("EDF Annotations")
+    assert b[192:197] == b"EDF+C" and n_rec == 10
+    b[192:197] = b"EDF+D"
+    head, rec_bytes = 256 * (ns + 1), 2 * sum(spr)
+    onsets = [r + (2.5 if r >= 4 else 0.0) for r in range(n_rec)]
+    for r, onset in enumerate(onsets):
+        at = head + r * rec_bytes + 2 * sum(spr[:ann])
+        tal = f"+{onset:g}".encode() + b"\x14\x14\x00"
+        assert b[at: at + 2] == f"+{r}".encode()  # pyedflib's own time-keeping TAL
+        b[at: at + 2 * spr[ann]] = tal.ljust(2 * spr[ann], b"\x00")
+    d = tmp_path / "d.edf"
+    d.write_bytes(bytes(b))
+    with pytest.raises(OSError, match="discontinuous"):
+        pyedflib.EdfReader(str(d))
+    r = pyedflib.EdfReader(str(c))
+    ref = [r.readSignal(i) for i in range(2)]
+    r.close()
+    head_json, sig = ours_edf(d)
+    n_total = int(round((onsets[-1] + 1) * 500))
+    assert head_json["n_samples"] == n_total == 5000 + 1250
+    for i, lead in enumerate(rec.sig_name):
+        got = np.array(sig[lead], dtype=float)  # the dump writes NaN as null
+        placed = np.full(n_total, np.nan)
+        for k, onset in enumerate(onsets):
+            at = int(round(onset * 500))
+            placed[at: at + 500] = ref[i][k * 500: (k + 1) * 500]
+        np.testing.assert_array_equal(np.isnan(got), np.isnan(placed))
+        ok = ~np.isnan(placed)
+        assert np.max(np.abs(got[ok] - placed[ok])) < 1e-9, lead
+    assert np.isnan(np.array(sig[rec.sig_name[0]], dtype=float)[2000:3250]).all()

@@ -90,6 +90,37 @@ fn check_record(rec: &Record, path: &Path) -> Result<()> {
     Ok(())
 }
 
+/// The stretches (half-open sample ranges) where every signal that can be an
+/// ECG lead has no sample: gaps of the recording itself (null segments, EDF+D
+/// gaps), as opposed to one lead's dropout, which the other leads cover. Found
+/// before the gaps are bridged, so that detection can leave them out.
+fn missing_in_every_lead(rec: &Record) -> Vec<(usize, usize)> {
+    let ecg: Vec<&[f64]> = rec
+        .leads
+        .iter()
+        .filter(|l| tendline_formats::signals::non_ecg_reason(&l.name, &l.units).is_none())
+        .map(|l| l.samples.as_slice())
+        .collect();
+    if ecg.is_empty() {
+        return Vec::new();
+    }
+    let n = rec.n_samples();
+    let mut out = Vec::new();
+    let mut i = 0;
+    while i < n {
+        if ecg.iter().all(|x| x[i].is_nan()) {
+            let start = i;
+            while i < n && ecg.iter().all(|x| x[i].is_nan()) {
+                i += 1;
+            }
+            out.push((start, i));
+        } else {
+            i += 1;
+        }
+    }
+    out
+}
+
 /// Fill missing samples (NaN) so that the filters and the wavelet transform see
 /// a continuous signal; returns the number filled per lead.
 ///
@@ -177,6 +208,7 @@ pub fn process_record(
         // Every format error already names the file it read.
         .context("reading the input")?;
     check_record(&rec, &input.path)?;
+    let gaps = missing_in_every_lead(&rec);
     let missing = fill_missing(&mut rec);
     let bridged: Vec<String> = rec
         .leads
@@ -203,8 +235,16 @@ pub fn process_record(
     let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
     let (cond, notch) = filter.apply_record(&raw);
     let leads: Vec<&[f64]> = cond.iter().map(Vec::as_slice).collect();
-    let det = tendline_detect::detect(&leads, rec.fs, &cfg.detect)
+    let mut det = tendline_detect::detect(&leads, rec.fs, &cfg.detect)
         .with_context(|| format!("{}: beat detection", input.name))?;
+    let dropped = tendline_detect::exclude_missing(&mut det, &gaps, rec.fs, &cfg.detect);
+    if dropped > 0 {
+        rec.warnings.push(format!(
+            "{dropped} beat(s) within {} ms of a stretch missing in every lead dropped \
+             (`detect.missing_guard_ms`)",
+            cfg.detect.missing_guard_ms
+        ));
+    }
     let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
     let del = tendline_delineate::delineate(&leads, rec.fs, &qrs, &cfg.delineate);
     let names: Vec<String> = rec.leads.iter().map(|l| l.name.clone()).collect();

@@ -100,7 +100,8 @@ pub struct Beat {
 pub struct Span {
     pub start: usize,
     pub end: usize,
-    /// Short reason: `noise`, `flat`, `saturation`.
+    /// Short reason: `noise`, `flat`, `saturation`, `missing` (no sample in any
+    /// analysed lead; see [`exclude_missing`]).
     pub reason: String,
 }
 
@@ -212,6 +213,11 @@ pub struct DetectConfig {
     pub noise_background_fraction: f64,
     /// Shortest unreadable stretch reported (ms).
     pub unreadable_min_ms: f64,
+    /// Beats closer than this to a stretch missing in every analysed lead (a gap
+    /// of the recording, which the pipeline bridges) are dropped: the bridge
+    /// joins two unrelated parts of the signal, and the step it makes can look
+    /// like a QRS to the band-pass (ms).
+    pub missing_guard_ms: f64,
     /// The combined band-passed energy is smoothed over this window before its
     /// peak is taken as the fiducial point, so that two lobes of nearly equal
     /// height cannot swap from one beat (or sampling rate) to the next (ms).
@@ -263,6 +269,7 @@ impl Default for DetectConfig {
             noise_ratio_max: 8.0,
             noise_background_fraction: 0.05,
             unreadable_min_ms: 1000.0,
+            missing_guard_ms: 150.0,
             fiducial_smoothing_ms: 20.0,
             template_half_width_ms: 100.0,
             label_corr_min: 0.85,
@@ -423,6 +430,7 @@ impl DetectConfig {
                 60000.0,
                 "ms",
             )
+            .range("missing_guard_ms", self.missing_guard_ms, 0.0, 2000.0, "ms")
             .range(
                 "fiducial_smoothing_ms",
                 self.fiducial_smoothing_ms,
@@ -487,6 +495,40 @@ fn check_input(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Result<(), Dete
         }
     }
     Ok(())
+}
+
+/// Mark the stretches `missing` (half-open sample ranges where every analysed
+/// lead had no sample, later bridged) as unreadable with reason `missing`, and
+/// drop the beats within `missing_guard_ms` of them; returns how many beats were
+/// dropped. Labels of the remaining beats are kept as detected.
+pub fn exclude_missing(
+    det: &mut Detection,
+    missing: &[(usize, usize)],
+    fs: f64,
+    cfg: &DetectConfig,
+) -> usize {
+    if missing.is_empty() {
+        return 0;
+    }
+    let guard = (cfg.missing_guard_ms * fs / 1000.0).round().max(0.0) as usize;
+    let before = det.beats.len();
+    det.beats.retain(|b| {
+        !missing
+            .iter()
+            .any(|&(s, e)| b.sample + guard >= s && b.sample < e + guard)
+    });
+    det.unreadable.extend(
+        missing
+            .iter()
+            .filter(|(s, e)| e > s)
+            .map(|&(start, end)| Span {
+                start,
+                end,
+                reason: "missing".into(),
+            }),
+    );
+    det.unreadable.sort_by_key(|s| (s.start, s.end));
+    before - det.beats.len()
 }
 
 /// Detect, place and label the beats of one record from all its leads.

@@ -586,3 +586,40 @@ fn candidates_equal_per_sample_test() {
         }
     }
 }
+
+/// Beats within the guard of a stretch missing in every lead are dropped and the
+/// stretch is reported unreadable; the oracle is worked by hand: at 500 Hz the
+/// 150-ms guard is 75 samples, so around the gap [1000, 2000) beats at samples
+/// 925..=2074 go and 924 and 2075 stay.
+#[test]
+fn exclude_missing_drops_beats_next_to_gaps() {
+    let beat = |sample| Beat {
+        sample,
+        label: BeatLabel::Normal,
+    };
+    let mut det = Detection {
+        beats: [100, 924, 925, 1500, 2074, 2075, 3000].map(beat).to_vec(),
+        unreadable: vec![Span {
+            start: 2500,
+            end: 2600,
+            reason: "noise".into(),
+        }],
+        lead_quality: vec![1.0],
+    };
+    let cfg = DetectConfig::default();
+    assert_eq!(cfg.missing_guard_ms, 150.0);
+    let dropped = exclude_missing(&mut det, &[(1000, 2000)], 500.0, &cfg);
+    assert_eq!(dropped, 3);
+    let kept: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
+    assert_eq!(kept, [100, 924, 2075, 3000]);
+    let spans: Vec<(usize, usize, &str)> = det
+        .unreadable
+        .iter()
+        .map(|s| (s.start, s.end, s.reason.as_str()))
+        .collect();
+    assert_eq!(spans, [(1000, 2000, "missing"), (2500, 2600, "noise")]);
+    // Nothing missing: nothing changes.
+    let before = det.clone();
+    assert_eq!(exclude_missing(&mut det, &[], 500.0, &cfg), 0);
+    assert_eq!(det, before);
+}
