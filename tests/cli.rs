@@ -340,6 +340,27 @@ fn variable_layout_record_runs_whole_and_its_segments_do_not_run_alone() {
     // segments without ABP, the invalid samples): 26462, 25869, 445740.
     assert_eq!(floats("missing_samples"), [26462.0, 25869.0, 445740.0]);
     assert_eq!(floats("analysed"), [1.0, 1.0, 0.0]);
+    // The leading null segment (25740 samples, no ECG lead) is an unreadable
+    // stretch of its own, and no beat lies in it.
+    let u = &part.group.groups["unreadable"];
+    let (starts, ends, reasons) = match (
+        &u.datasets["start"].data,
+        &u.datasets["end"].data,
+        &u.datasets["reason"].data,
+    ) {
+        (
+            tendline_store::Data::I64(s),
+            tendline_store::Data::I64(e),
+            tendline_store::Data::Text(r),
+        ) => (s.clone(), e.clone(), r.clone()),
+        other => panic!("{other:?}"),
+    };
+    let k = reasons.iter().position(|r| r == "missing").unwrap();
+    assert_eq!((starts[k], ends[k]), (0, 25740));
+    match &part.group.groups["beats"].datasets["qrs_peak"].data {
+        tendline_store::Data::I64(b) => assert!(b[0] >= 25740, "first beat at {}", b[0]),
+        other => panic!("{other:?}"),
+    }
     let summary = std::fs::read_to_string(out.path().join("summary.csv")).unwrap();
     let row = summary.lines().nth(1).unwrap();
     // 543240 samples at 125 Hz.
