@@ -2,7 +2,8 @@
 //!
 //! An INPUT is a folder, a `RECORDS` list or a record path:
 //! - a folder with a `RECORDS` file: the records it lists;
-//! - a folder without one: every WFDB header (`*.hea`), EDF (`*.edf`), BDF (`*.bdf`), CSV
+//! - a folder without one: every WFDB header (`*.hea`), EDF (`*.edf`), BDF (`*.bdf`),
+//!   ISHNE Holter (`*.ecg`), CSV
 //!   (`*.csv`, except `subjects.csv`) and HL7 aECG (`*.xml`) file directly inside
 //!   it, sorted by name, except the headers of segments that a multi-segment
 //!   record in the folder names (they are read as parts of that record). Any `*.xml` is taken: an XML file that is not an aECG
@@ -10,7 +11,7 @@
 //! - a `RECORDS` file (any file named `RECORDS`): one record per line, relative
 //!   to the file's folder, with or without an extension (`.hea` assumed without);
 //!   entries that would leave that folder (`..`, absolute paths) are rejected;
-//! - a path to a `.hea`, `.edf`, `.bdf`, `.csv` or `.xml` file, or a WFDB record path without
+//! - a path to a `.hea`, `.edf`, `.bdf`, `.ecg`, `.csv` or `.xml` file, or a WFDB record path without
 //!   extension whose `.hea` exists.
 //!
 //! A problem with one input (a path that is not a record, a list line that leaves
@@ -28,7 +29,7 @@ use std::path::{Component, Path, PathBuf};
 pub struct RecordInput {
     /// Unique name within the run (file stem).
     pub name: String,
-    /// Path handed to the reader (`.hea`, `.edf`, `.bdf`, `.csv` or `.xml`).
+    /// Path handed to the reader (`.hea`, `.edf`, `.bdf`, `.ecg`, `.csv` or `.xml`).
     pub path: PathBuf,
     /// Why this input cannot be processed, found while resolving the inputs;
     /// the batch reports it as a failed record and goes on with the others.
@@ -52,7 +53,7 @@ impl RecordInput {
     }
 }
 
-const SIGNAL_EXTS: [&str; 5] = ["hea", "edf", "bdf", "csv", "xml"];
+const SIGNAL_EXTS: [&str; 6] = ["hea", "edf", "bdf", "ecg", "csv", "xml"];
 
 fn ext_of(p: &Path) -> Option<String> {
     p.extension()
@@ -68,7 +69,7 @@ fn from_path(p: &Path) -> Result<RecordInput> {
                 hea
             } else {
                 bail!(
-                    "{}: not a record: expected a folder, a RECORDS file, a .hea, .edf, .bdf, .csv or \
+                    "{}: not a record: expected a folder, a RECORDS file, a .hea, .edf, .bdf, .ecg, .csv or \
                      .xml (HL7 aECG) file, or a WFDB record name with a .hea beside it",
                     p.display()
                 )
@@ -277,6 +278,7 @@ mod tests {
             "c.csv",
             "d.xml",
             "e.bdf",
+            "f.ecg",
             "subjects.csv",
             "notes.txt",
         ] {
@@ -286,7 +288,7 @@ mod tests {
             .into_iter()
             .map(|r| r.name)
             .collect();
-        assert_eq!(names, ["a", "b", "c", "d", "e"]);
+        assert_eq!(names, ["a", "b", "c", "d", "e", "f"]);
     }
 
     #[test]

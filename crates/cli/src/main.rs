@@ -81,7 +81,7 @@ enum Command {
 
 #[derive(clap::Args)]
 struct RunArgs {
-    /// Folders, RECORDS lists, or record paths (.hea, .edf, .bdf, .csv, .xml HL7 aECG, or a WFDB record name).
+    /// Folders, RECORDS lists, or record paths (.hea, .edf, .bdf, .ecg ISHNE Holter, .csv, .xml HL7 aECG, or a WFDB record name).
     #[arg(required = true)]
     inputs: Vec<PathBuf>,
     /// Output folder (created if needed; re-runs skip records already complete).

@@ -436,14 +436,7 @@ fn ts_date(v: &str) -> Option<(i32, u32, u32)> {
     ((1..=12).contains(&m) && (1..=31).contains(&d)).then_some((y, m, d))
 }
 
-/// Age in completed years at `ecg` for a birth date `birth`.
-fn age_years(birth: (i32, u32, u32), ecg: (i32, u32, u32)) -> Option<f64> {
-    let mut years = ecg.0 - birth.0;
-    if (ecg.1, ecg.2) < (birth.1, birth.2) {
-        years -= 1;
-    }
-    (0..=150).contains(&years).then_some(years as f64)
-}
+use crate::meta::age_years;
 
 fn metadata(root: Node, warnings: &mut Vec<String>) -> Metadata {
     let mut m = Metadata::default();

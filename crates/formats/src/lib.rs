@@ -1,7 +1,8 @@
 //! Readers and writers for the open ECG formats tendline accepts.
 //!
-//! Readers: [`wfdb`] (WFDB records), [`edf`] (EDF/EDF+), [`csv`] (one column per
-//! lead) and [`aecg`] (HL7 v3 annotated ECG XML). Every signal reader produces the
+//! Readers: [`wfdb`] (WFDB records), [`edf`] (EDF/EDF+, BDF/BDF+), [`ishne`]
+//! (ISHNE Holter), [`csv`] (one column per lead) and [`aecg`] (HL7 v3 annotated
+//! ECG XML). Every signal reader produces the
 //! same [`Record`]: one sampling rate, leads with their names exactly as the input
 //! header gives them (aECG: the MDC lead code without its `MDC_ECG_LEAD_` prefix,
 //! see [`aecg`]), samples in physical units (millivolts where the input's units
@@ -26,6 +27,7 @@ pub mod csv;
 pub mod edf;
 pub mod error;
 mod frames;
+pub mod ishne;
 pub mod meta;
 pub mod signals;
 pub mod subjects;
@@ -136,7 +138,7 @@ impl ReadOptions {
 
 /// Read a record, choosing the reader by extension: `.hea` (or a path without
 /// extension that has a sibling `.hea`) → WFDB, `.edf` → EDF/EDF+, `.bdf` →
-/// BDF/BDF+ (24-bit EDF), `.csv` → CSV,
+/// BDF/BDF+ (24-bit EDF), `.ecg` → ISHNE Holter ([`ishne`]), `.csv` → CSV,
 /// `.xml` → HL7 aECG ([`aecg`]).
 pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatError> {
     let ext = path
@@ -145,13 +147,15 @@ pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatErro
     match ext.as_deref() {
         Some("hea") => wfdb::read_record(path),
         Some("edf" | "bdf") => edf::read_edf(path),
+        Some("ecg") => ishne::read_ishne(path),
         Some("csv") => csv::read_csv(path, opts.csv_fs),
         Some("xml") => aecg::read_aecg(path),
         _ if wfdb::header_path_of(path).is_file() => wfdb::read_record(path),
         _ => Err(FormatError::Invalid {
             path: path.to_path_buf(),
             message:
-                "unknown input type: expected a .hea, .edf, .bdf, .csv or .xml (HL7 aECG) file, or a \
+                "unknown input type: expected a .hea, .edf, .bdf, .ecg (ISHNE Holter), .csv or .xml \
+                 (HL7 aECG) file, or a \
                       WFDB record path with a sibling .hea"
                     .into(),
         }),

@@ -106,6 +106,16 @@ impl Metadata {
     }
 }
 
+/// Age in completed years at `ecg` for a birth date `birth` (year, month, day);
+/// `None` outside 0 to 150 years.
+pub(crate) fn age_years(birth: (i32, u32, u32), ecg: (i32, u32, u32)) -> Option<f64> {
+    let mut years = ecg.0 - birth.0;
+    if (ecg.1, ecg.2) < (birth.1, birth.2) {
+        years -= 1;
+    }
+    (0..=150).contains(&years).then_some(years as f64)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

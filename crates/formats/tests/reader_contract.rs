@@ -1,5 +1,5 @@
 //! The reader contract: every signal reader behind [`read_record`] (WFDB, EDF,
-//! BDF, CSV, HL7 aECG) passes the same invariants on what it returns and the same
+//! BDF, ISHNE Holter, CSV, HL7 aECG) passes the same invariants on what it returns and the same
 //! bad-input cases. A new format adds one entry to [`formats`] and passes this
 //! file unchanged.
 //!
@@ -14,6 +14,8 @@
 //! Bad inputs, for each format: the main file empty, the main file truncated
 //! (cut inside its data), and the file under an unknown extension. Each must be
 //! an error (never a panic) whose text contains the path of the file at fault.
+
+mod ishne_util;
 
 use std::path::{Path, PathBuf};
 
@@ -148,6 +150,34 @@ fn edf_to_bdf(edf: &[u8]) -> Vec<u8> {
     out
 }
 
+/// The synthetic record as an ISHNE Holter file (tests/ishne_util), at 1 uV
+/// per digital unit; lead codes 5, 6, 11 are I, II, V1.
+fn write_ishne(dir: &Path, r: &Record) -> PathBuf {
+    let p = dir.join("contract.ecg");
+    let f = ishne_util::Ishne {
+        fs: r.fs as i16,
+        codes: vec![5, 6, 11],
+        res_nv: vec![1000; 3],
+        data: r
+            .leads
+            .iter()
+            .map(|l| {
+                l.samples
+                    .iter()
+                    .map(|v| (v * 1000.0).round() as i16)
+                    .collect()
+            })
+            .collect(),
+        sex: 0,
+        birth: (0, 0, 0),
+        recorded: (0, 0, 0),
+        id: String::new(),
+        var_block: Vec::new(),
+    };
+    std::fs::write(&p, f.bytes()).unwrap();
+    p
+}
+
 fn formats(dir: &Path) -> Vec<Written> {
     let r = synthetic();
     let wdir = dir.join("wfdb");
@@ -157,6 +187,7 @@ fn formats(dir: &Path) -> Vec<Written> {
     edf::write_edf(&edf_p, &r).unwrap();
     let bdf_p = dir.join("contract.bdf");
     std::fs::write(&bdf_p, edf_to_bdf(&std::fs::read(&edf_p).unwrap())).unwrap();
+    let ecg_p = write_ishne(dir, &r);
     let csv_p = write_csv(dir, &r);
     let xml_p = write_aecg(dir, &r);
     vec![
@@ -174,6 +205,11 @@ fn formats(dir: &Path) -> Vec<Written> {
             format: "BDF",
             input: bdf_p.clone(),
             data_file: bdf_p,
+        },
+        Written {
+            format: "ISHNE",
+            input: ecg_p.clone(),
+            data_file: ecg_p,
         },
         Written {
             format: "CSV",
@@ -334,7 +370,7 @@ fn every_reader_rejects_the_same_bad_inputs() {
         std::fs::write(&w.input, &kept).unwrap();
 
         // Unknown extension: the same bytes under a name no reader claims.
-        let odd = w.input.with_extension("ecg");
+        let odd = w.input.with_extension("sig");
         std::fs::copy(&w.input, &odd).unwrap();
         expect_error_naming(
             &odd,
