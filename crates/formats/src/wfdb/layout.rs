@@ -30,8 +30,8 @@
 use std::path::{Path, PathBuf};
 
 use super::{
-    header_path_of, invalid, read_header, read_single, to_mv_factor, to_physical, unsupported,
-    Header,
+    check_segment_length, check_segment_name, header_path_of, invalid, read_header, read_single,
+    to_mv_factor, to_physical, unsupported, Header,
 };
 use crate::{FormatError, Lead, Metadata, Record};
 
@@ -40,16 +40,6 @@ struct LayoutSignal {
     name: String,
     /// Units as written in the layout (`mV` when missing, as the header parser gives).
     units: String,
-}
-
-fn plain_name(path: &Path, line: usize, name: &str) -> Result<(), FormatError> {
-    if name.contains('/') || name.contains('\\') || name.contains("..") || name.is_empty() {
-        return Err(invalid(
-            path,
-            format!("line {line}: segment name `{name}` must be a plain record name"),
-        ));
-    }
-    Ok(())
 }
 
 /// Read a variable-layout multi-segment record (`header` is its master header,
@@ -100,7 +90,7 @@ pub(super) fn read_variable_layout(path: &Path, header: Header) -> Result<Record
             "multi-segment record with only null segments: no signal to read",
         )
     })?;
-    plain_name(path, layout_src.line, &layout_src.name)?;
+    check_segment_name(path, layout_src)?;
     let layout_path = header_path_of(&dir.join(&layout_src.name));
     let layout_header = read_header(&layout_path)?;
     if layout_header.is_multi_segment() {
@@ -171,7 +161,7 @@ pub(super) fn read_variable_layout(path: &Path, header: Header) -> Result<Record
             at += n;
             continue;
         }
-        plain_name(path, seg.line, &seg.name)?;
+        check_segment_name(path, seg)?;
         let sp = header_path_of(&dir.join(&seg.name));
         let sh = read_header(&sp)?;
         if sh.is_multi_segment() {
@@ -181,15 +171,7 @@ pub(super) fn read_variable_layout(path: &Path, header: Header) -> Result<Record
             ));
         }
         let part = read_single(&sp, sh)?;
-        if part.n_frames != seg.n_frames {
-            return Err(invalid(
-                path,
-                format!(
-                    "line {}: segment `{}` has {} samples, the master header says {}",
-                    seg.line, seg.name, part.n_frames, seg.n_frames
-                ),
-            ));
-        }
+        check_segment_length(path, seg, part.n_frames)?;
         if part.fs != header.fs {
             return Err(invalid(
                 path,

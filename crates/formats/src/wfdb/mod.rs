@@ -546,26 +546,10 @@ fn read_multi_segment(path: &Path, header: Header) -> Result<WfdbSignals, Format
     }
     let mut out: Option<WfdbSignals> = None;
     for seg in &header.segments {
-        if seg.name.contains('/') || seg.name.contains('\\') || seg.name.contains("..") {
-            return Err(invalid(
-                path,
-                format!(
-                    "line {}: segment name `{}` must be a plain record name",
-                    seg.line, seg.name
-                ),
-            ));
-        }
+        check_segment_name(path, seg)?;
         let sp = dir.join(format!("{}.hea", seg.name));
         let part = read_digital_depth(&sp, 1)?;
-        if part.n_frames != seg.n_frames {
-            return Err(invalid(
-                path,
-                format!(
-                    "line {}: segment `{}` has {} samples, the master header says {}",
-                    seg.line, seg.name, part.n_frames, seg.n_frames
-                ),
-            ));
-        }
+        check_segment_length(path, seg, part.n_frames)?;
         if part.signals.len() != header.n_sig || part.fs != header.fs {
             return Err(invalid(
                 path,
@@ -616,6 +600,35 @@ fn read_multi_segment(path: &Path, header: Header) -> Result<WfdbSignals, Format
     }
     out.header = Header { comments, ..header };
     Ok(out)
+}
+
+/// A segment must be a record in the master header's folder.
+fn check_segment_name(path: &Path, seg: &SegmentSpec) -> Result<(), FormatError> {
+    let n = &seg.name;
+    if n.is_empty() || n.contains('/') || n.contains('\\') || n.contains("..") {
+        return Err(invalid(
+            path,
+            format!(
+                "line {}: segment name `{n}` must be a plain record name",
+                seg.line
+            ),
+        ));
+    }
+    Ok(())
+}
+
+/// A segment must hold the number of samples the master header gives it.
+fn check_segment_length(path: &Path, seg: &SegmentSpec, n_frames: u64) -> Result<(), FormatError> {
+    if n_frames != seg.n_frames {
+        return Err(invalid(
+            path,
+            format!(
+                "line {}: segment `{}` has {n_frames} samples, the master header says {}",
+                seg.line, seg.name, seg.n_frames
+            ),
+        ));
+    }
+    Ok(())
 }
 
 /// The first segment that makes a multi-segment record variable-layout: its

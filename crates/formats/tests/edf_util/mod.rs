@@ -61,30 +61,7 @@ impl Sig {
     /// A `BDF Annotations` signal (BDF+), one TAL byte string per data record,
     /// padded with zero bytes to whole 3-byte samples.
     pub fn bdf_annotations_per_record(recs: &[&[u8]]) -> Sig {
-        let max = recs
-            .iter()
-            .map(|r| r.len())
-            .max()
-            .unwrap_or(0)
-            .div_ceil(3)
-            .max(1);
-        Sig {
-            label: "BDF Annotations".into(),
-            units: "".into(),
-            pmin: "-1".into(),
-            pmax: "1".into(),
-            dmin: "-8388608".into(),
-            dmax: "8388607".into(),
-            spr: max.to_string(),
-            records: recs
-                .iter()
-                .map(|r| {
-                    let mut v = r.to_vec();
-                    v.resize(max * 3, 0);
-                    v
-                })
-                .collect(),
-        }
+        Sig::tal_signal("BDF Annotations", 3, "-8388608", "8388607", recs)
     }
 
     /// An `EDF Annotations` signal with `tals` in a single data record.
@@ -94,26 +71,32 @@ impl Sig {
 
     /// An `EDF Annotations` signal, one TAL byte string per data record.
     pub fn annotations_per_record(recs: &[&[u8]]) -> Sig {
+        Sig::tal_signal("EDF Annotations", 2, "-32768", "32767", recs)
+    }
+
+    /// An annotation signal of `width`-byte samples, long enough for the
+    /// longest TAL string, each record zero-padded to it.
+    fn tal_signal(label: &str, width: usize, dmin: &str, dmax: &str, recs: &[&[u8]]) -> Sig {
         let max = recs
             .iter()
             .map(|r| r.len())
             .max()
             .unwrap_or(0)
-            .div_ceil(2)
+            .div_ceil(width)
             .max(1);
         Sig {
-            label: "EDF Annotations".into(),
+            label: label.into(),
             units: "".into(),
             pmin: "-1".into(),
             pmax: "1".into(),
-            dmin: "-32768".into(),
-            dmax: "32767".into(),
+            dmin: dmin.into(),
+            dmax: dmax.into(),
             spr: max.to_string(),
             records: recs
                 .iter()
                 .map(|r| {
                     let mut v = r.to_vec();
-                    v.resize(max * 2, 0);
+                    v.resize(max * width, 0);
                     v
                 })
                 .collect(),
