@@ -113,3 +113,17 @@ if os.path.exists(demo):
 w(f"{C}/wfdb_multiseg/two16", b"m/2 2 250 8\ns 4\ns 4\n# <age>: 50\n\x00s 2 250 4\ns.dat 16 200 16 0 0 0 0 I\ns.dat 16 200 16 0 0 0 0 II\n\x00" + bytes(range(16)))
 w(f"{C}/wfdb_multiseg/one212", b"m/3 1 360 9\ns 3\ns 3\ns 3\n\x00s 1 360\ns.dat 212 100(5)/uV 12 0 0 0 0 MLII\n\x00" + bytes(range(5)))
 w(f"{C}/wfdb_multiseg/spf2", b"m/1 2 100 3\ns 3\n\x00s 2 100 3\ns.dat 8x2 200 8 0 0 0 0 A\ns.dat 8 200 8 0 0 0 0 B\n\x00" + bytes(range(9)))
+
+# ISHNE Holter (layout of Badilini 1998, from memory): 2 leads (II, V1) of 4
+# samples at 200 Hz, 2500 and 1000 nV per unit; CRC left 0 (a mismatch is only
+# a warning, so the reader goes on to the samples).
+ishne = bytearray(522)
+ishne[0:8] = b"ISHNE1.0"
+struct.pack_into("<iiiih", ishne, 10, 0, 4, 522, 522, 1)
+struct.pack_into("<hh", ishne, 128, 2, 0)
+struct.pack_into("<6h", ishne, 132, 15, 6, 1950, 14, 6, 2020)
+struct.pack_into("<h", ishne, 156, 2)
+struct.pack_into("<12h", ishne, 158, 6, 11, *([-9] * 10))
+struct.pack_into("<12h", ishne, 206, 2500, 1000, *([-9] * 10))
+struct.pack_into("<h", ishne, 272, 200)
+w(f"{C}/ishne/seed1.ecg", bytes(ishne) + struct.pack("<8h", 0, 1, 400, -1, -400, 1000, 7, -8))
