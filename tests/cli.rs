@@ -710,3 +710,120 @@ fn tune_with_ludb_lead_references_scores_like_validate() {
     // 0.4 is the default `t_xi_end`: that candidate must score like a default run.
     assert_scores_equal_validate(&cands, "0.4", &inputs, &l, &[], dir.path());
 }
+
+/// Beat sensitivity and positive predictivity (%) of `ours` against the beat
+/// annotations of `reference`, pairing each reference beat with an unused
+/// detection within `tol` samples (ANSI/AAMI EC57 practice: 150 ms).
+fn beat_se_ppv(
+    reference: &[tendline_formats::Annotation],
+    ours: &[tendline_formats::Annotation],
+    tol: i64,
+) -> (f64, f64) {
+    use tendline_formats::annotation::is_beat_code;
+    let r: Vec<i64> = reference
+        .iter()
+        .filter(|a| is_beat_code(a.code))
+        .map(|a| a.sample)
+        .collect();
+    let d: Vec<i64> = ours
+        .iter()
+        .filter(|a| is_beat_code(a.code))
+        .map(|a| a.sample)
+        .collect();
+    let mut used = vec![false; d.len()];
+    let mut tp = 0usize;
+    for &x in &r {
+        let best = d
+            .iter()
+            .enumerate()
+            .filter(|(j, &y)| !used[*j] && (y - x).abs() <= tol)
+            .min_by_key(|(_, &y)| (y - x).abs())
+            .map(|(j, _)| j);
+        if let Some(j) = best {
+            used[j] = true;
+            tp += 1;
+        }
+    }
+    (
+        100.0 * tp as f64 / r.len() as f64,
+        100.0 * tp as f64 / d.len() as f64,
+    )
+}
+
+#[test]
+fn long_record_in_chunks_matches_the_whole_record_run() {
+    // MIT-BIH record 100 (30 min, 2 leads at 360 Hz, in the WFDB conformance
+    // set with its reference beat annotations 100.atr): processed whole, and in
+    // 3 chunks of 690 s (budget 0.5 M samples over 2 leads). The chunks see
+    // their own signal for the record-level statistics (noise levels, lead
+    // quality), so marks may move by a sample or two, but the beats, windows and
+    // record QT must agree, and both runs must find the reference beats.
+    let rec = data().join("wfdb-conformance/100.hea");
+    let whole = tempfile::tempdir().unwrap();
+    let parts = tempfile::tempdir().unwrap();
+    for (out, budget) in [(&whole, "0"), (&parts, "0.5")] {
+        let o = bin()
+            .args(["run", "--quiet", "--set"])
+            .arg(format!("measure.chunk_mega_samples={budget}"))
+            .arg(&rec)
+            .arg("--out")
+            .arg(out.path())
+            .output()
+            .unwrap();
+        assert!(o.status.success(), "{}", text(&o));
+    }
+    let part = tendline_store::Part::load(&parts.path().join("parts/100.json"))
+        .unwrap()
+        .unwrap();
+    match part.group.attrs.get("input_warnings") {
+        Some(tendline_store::Attr::Texts(w)) => {
+            assert!(w.iter().any(|w| w.contains("3 chunks of 690 s")), "{w:?}")
+        }
+        other => panic!("{other:?}"),
+    }
+    let reference =
+        tendline_formats::annotation::read_annotations(&data().join("wfdb-conformance/100.atr"))
+            .unwrap();
+    let marks = |d: &tempfile::TempDir| {
+        tendline_formats::annotation::read_annotations(&d.path().join("annotations/100.mark"))
+            .unwrap()
+    };
+    let tol = (0.150f64 * 360.0).round() as i64;
+    let (se_w, ppv_w) = beat_se_ppv(&reference, &marks(&whole), tol);
+    let (se_c, ppv_c) = beat_se_ppv(&reference, &marks(&parts), tol);
+    assert!(
+        se_c >= 99.5 && ppv_c >= 99.5,
+        "chunked: Se {se_c:.2} +P {ppv_c:.2}"
+    );
+    assert!(
+        (se_c - se_w).abs() <= 0.1 && (ppv_c - ppv_w).abs() <= 0.1,
+        "whole Se {se_w:.2} +P {ppv_w:.2}, chunked Se {se_c:.2} +P {ppv_c:.2}"
+    );
+    let windows = |d: &tempfile::TempDir| -> Vec<(String, String)> {
+        std::fs::read_to_string(d.path().join("windows.csv"))
+            .unwrap()
+            .lines()
+            .skip(1)
+            .map(|l| {
+                let f: Vec<&str> = l.split(',').collect();
+                (f[2].to_string(), f[3].to_string())
+            })
+            .collect()
+    };
+    assert_eq!(windows(&whole), windows(&parts));
+    let qt = |d: &tempfile::TempDir| -> f64 {
+        let s = std::fs::read_to_string(d.path().join("summary.csv")).unwrap();
+        let mut lines = s.lines();
+        let head: Vec<&str> = lines.next().unwrap().split(',').collect();
+        let row: Vec<&str> = lines.next().unwrap().split(',').collect();
+        row[head.iter().position(|h| *h == "qt_ms").unwrap()]
+            .parse()
+            .unwrap()
+    };
+    assert!(
+        (qt(&whole) - qt(&parts)).abs() <= 10.0,
+        "{} vs {}",
+        qt(&whole),
+        qt(&parts)
+    );
+}

@@ -196,6 +196,136 @@ fn non_ecg_leads(rec: &mut Record, path: &Path) -> Result<Vec<String>> {
     Ok(reasons)
 }
 
+/// What the stages produce for one stretch of a record (the whole record, or
+/// one chunk of a long one).
+struct Stretch {
+    det: Detection,
+    del: tendline_delineate::Delineation,
+    windows: Vec<tendline_measure::WindowMeasure>,
+    notch: Option<f64>,
+    dropped: usize,
+}
+
+/// One chunk of a long record: `core` is what it contributes, `ext` the
+/// samples it is processed with (the core and overlap on either side);
+/// half-open sample ranges.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Chunk {
+    core: (usize, usize),
+    ext: (usize, usize),
+}
+
+/// The chunks of a record of `n` samples on `n_leads` leads: one chunk (the
+/// whole record) unless it holds more than `chunk_mega_samples` million
+/// samples over all leads. Chunk cores are whole measurement windows, so the
+/// windows of every chunk fall on the record's own window grid; overlaps are
+/// rounded up to whole windows.
+fn chunk_plan(
+    n: usize,
+    n_leads: usize,
+    fs: f64,
+    cfg: &tendline_measure::MeasureConfig,
+) -> Vec<Chunk> {
+    let whole = vec![Chunk {
+        core: (0, n),
+        ext: (0, n),
+    }];
+    let w = ((cfg.window_s * fs).round() as usize).max(1);
+    let budget = (cfg.chunk_mega_samples * 1e6) as usize;
+    if budget == 0 || n.saturating_mul(n_leads.max(1)) <= budget {
+        return whole;
+    }
+    let len = (budget / n_leads.max(1) / w).max(1) * w;
+    let ov = ((cfg.chunk_overlap_s * fs / w as f64).ceil() as usize).max(1) * w;
+    if n <= len {
+        return whole;
+    }
+    (0..n.div_ceil(len))
+        .map(|k| {
+            let core = (k * len, ((k + 1) * len).min(n));
+            Chunk {
+                core,
+                ext: (core.0.saturating_sub(ov), (core.1 + ov).min(n)),
+            }
+        })
+        .collect()
+}
+
+/// Join the chunks of a record: from each, the beats (with their marks),
+/// unreadable stretches and windows that lie in its core, moved to record
+/// positions; lead quality averaged over the chunks, weighted by core length.
+fn join_chunks(parts: Vec<(&Chunk, Stretch)>, fs: f64, n_leads: usize) -> Stretch {
+    let mut det = Detection {
+        lead_quality: vec![0.0; n_leads],
+        ..Detection::default()
+    };
+    let mut del = tendline_delineate::Delineation {
+        per_lead: vec![Vec::new(); n_leads],
+        global: Vec::new(),
+    };
+    let mut windows = Vec::new();
+    let mut notches = Vec::new();
+    let mut dropped = 0;
+    let total: usize = parts.iter().map(|(c, _)| c.core.1 - c.core.0).sum();
+    for (c, part) in parts {
+        let off = c.ext.0;
+        let inside = |s: usize| (c.core.0..c.core.1).contains(&(s + off));
+        for (i, b) in part.det.beats.iter().enumerate() {
+            if !inside(b.sample) {
+                continue;
+            }
+            let mut b = *b;
+            b.sample += off;
+            det.beats.push(b);
+            let mut g = part.del.global[i].clone();
+            g.shift(off);
+            del.global.push(g);
+            for (l, lead) in part.del.per_lead.iter().enumerate() {
+                let mut m = lead[i].clone();
+                m.shift(off);
+                del.per_lead[l].push(m);
+            }
+        }
+        for u in &part.det.unreadable {
+            let (a, b) = ((u.start + off).max(c.core.0), (u.end + off).min(c.core.1));
+            if a < b {
+                det.unreadable.push(tendline_detect::Span {
+                    start: a,
+                    end: b,
+                    reason: u.reason.clone(),
+                });
+            }
+        }
+        let weight = (c.core.1 - c.core.0) as f64 / total.max(1) as f64;
+        for (q, pq) in det.lead_quality.iter_mut().zip(&part.det.lead_quality) {
+            *q += weight * pq;
+        }
+        for mut w in part.windows {
+            let start = (w.start_s * fs).round() as usize + off;
+            if (c.core.0..c.core.1).contains(&start) {
+                w.shift(off, fs);
+                windows.push(w);
+            }
+        }
+        notches.push(part.notch);
+        dropped += part.dropped;
+    }
+    // The power-line frequency found most often (chunks of one recording agree
+    // unless the interference comes and goes).
+    let notch = notches
+        .iter()
+        .max_by_key(|n| notches.iter().filter(|m| m == n).count())
+        .copied()
+        .flatten();
+    Stretch {
+        det,
+        del,
+        windows,
+        notch,
+        dropped,
+    }
+}
+
 /// Run every stage on one record.
 pub fn process_record(
     input: &RecordInput,
@@ -233,11 +363,65 @@ pub fn process_record(
         .get(rec.fs)
         .with_context(|| format!("{}: filter design", input.name))?;
     let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
-    let (cond, notch) = filter.apply_record(&raw);
-    let leads: Vec<&[f64]> = cond.iter().map(Vec::as_slice).collect();
-    let mut det = tendline_detect::detect(&leads, rec.fs, &cfg.detect)
-        .with_context(|| format!("{}: beat detection", input.name))?;
-    let dropped = tendline_detect::exclude_missing(&mut det, &gaps, rec.fs, &cfg.detect);
+    let names: Vec<String> = rec.leads.iter().map(|l| l.name.clone()).collect();
+    let (fs, sex) = (rec.fs, rec.meta.sex);
+    // Filter, detect, delineate and measure one stretch of the record.
+    let analyse = |raw: &[&[f64]], gaps: &[(usize, usize)]| -> Result<Stretch> {
+        let (cond, notch) = filter.apply_record(raw);
+        let leads: Vec<&[f64]> = cond.iter().map(Vec::as_slice).collect();
+        let mut det = tendline_detect::detect(&leads, fs, &cfg.detect)
+            .with_context(|| format!("{}: beat detection", input.name))?;
+        let dropped = tendline_detect::exclude_missing(&mut det, gaps, fs, &cfg.detect);
+        let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
+        let del = tendline_delineate::delineate(&leads, fs, &qrs, &cfg.delineate);
+        let meas = tendline_measure::measure_record(
+            &leads,
+            &names,
+            fs,
+            &det,
+            sex,
+            &cfg.measure,
+            &cfg.delineate,
+        )
+        .map_err(|e| anyhow::anyhow!("{}: measurement: {e}", input.name))?;
+        Ok(Stretch {
+            det,
+            del,
+            windows: meas.windows,
+            notch,
+            dropped,
+        })
+    };
+    let plan = chunk_plan(rec.n_samples(), rec.leads.len(), fs, &cfg.measure);
+    let whole = if plan.len() <= 1 {
+        analyse(&raw, &gaps)?
+    } else {
+        rec.warnings.push(format!(
+            "long record: processed in {} chunks of {} s (`measure.chunk_mega_samples`), each \
+             with up to {} s of the neighbouring signal (`measure.chunk_overlap_s`)",
+            plan.len(),
+            (plan[0].core.1 - plan[0].core.0) as f64 / fs,
+            (plan[0].ext.1 - plan[0].core.1) as f64 / fs,
+        ));
+        let mut parts = Vec::with_capacity(plan.len());
+        for c in &plan {
+            let slices: Vec<&[f64]> = raw.iter().map(|x| &x[c.ext.0..c.ext.1]).collect();
+            let local: Vec<(usize, usize)> = gaps
+                .iter()
+                .filter(|&&(a, b)| b > c.ext.0 && a < c.ext.1)
+                .map(|&(a, b)| (a.max(c.ext.0) - c.ext.0, b.min(c.ext.1) - c.ext.0))
+                .collect();
+            parts.push((c, analyse(&slices, &local)?));
+        }
+        join_chunks(parts, fs, rec.leads.len())
+    };
+    let Stretch {
+        det,
+        del,
+        windows,
+        notch,
+        dropped,
+    } = whole;
     if dropped > 0 {
         rec.warnings.push(format!(
             "{dropped} beat(s) within {} ms of a stretch missing in every lead dropped \
@@ -245,19 +429,9 @@ pub fn process_record(
             cfg.detect.missing_guard_ms
         ));
     }
+    let summary = tendline_measure::summarize(&windows, sex, &cfg.measure);
+    let meas = tendline_measure::RecordMeasures { windows, summary };
     let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
-    let del = tendline_delineate::delineate(&leads, rec.fs, &qrs, &cfg.delineate);
-    let names: Vec<String> = rec.leads.iter().map(|l| l.name.clone()).collect();
-    let meas = tendline_measure::measure_record(
-        &leads,
-        &names,
-        rec.fs,
-        &det,
-        rec.meta.sex,
-        &cfg.measure,
-        &cfg.delineate,
-    )
-    .map_err(|e| anyhow::anyhow!("{}: measurement: {e}", input.name))?;
 
     let mut g = Group::default();
     record_attrs(&mut g, &rec, checksums, notch, &det, &missing, &excluded);
@@ -566,5 +740,48 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(e.contains("no ECG lead") && e.contains("RESP"), "{e}");
+    }
+}
+
+#[cfg(test)]
+mod chunk_tests {
+    use super::*;
+
+    /// Hand-worked plans at 100 Hz with 10-s windows (1000 samples): a budget
+    /// of 0.01 M samples over 2 leads gives 5000-sample (5-window) chunks, and
+    /// a 15-s overlap rounds up to 2 windows (2000 samples).
+    #[test]
+    fn chunk_plan_is_whole_windows_with_overlap() {
+        let cfg = tendline_measure::MeasureConfig {
+            chunk_mega_samples: 0.01,
+            chunk_overlap_s: 15.0,
+            ..Default::default()
+        };
+        let plan = chunk_plan(12_345, 2, 100.0, &cfg);
+        let got: Vec<((usize, usize), (usize, usize))> =
+            plan.iter().map(|c| (c.core, c.ext)).collect();
+        assert_eq!(
+            got,
+            [
+                ((0, 5000), (0, 7000)),
+                ((5000, 10_000), (3000, 12_000)),
+                ((10_000, 12_345), (8000, 12_345)),
+            ]
+        );
+        // At or under the budget, or with chunking off: the whole record.
+        let whole = [Chunk {
+            core: (0, 5000),
+            ext: (0, 5000),
+        }];
+        assert_eq!(chunk_plan(5000, 2, 100.0, &cfg), whole);
+        let off = tendline_measure::MeasureConfig {
+            chunk_mega_samples: 0.0,
+            ..cfg.clone()
+        };
+        let all = [Chunk {
+            core: (0, 12_345),
+            ext: (0, 12_345),
+        }];
+        assert_eq!(chunk_plan(12_345, 2, 100.0, &off), all);
     }
 }

@@ -125,6 +125,29 @@ pub struct BeatMarks {
 }
 
 impl BeatMarks {
+    /// Every mark moved `offset` samples later (for chunks of a record).
+    pub fn shift(&mut self, offset: usize) {
+        for m in [
+            &mut self.p_on,
+            &mut self.p_peak,
+            &mut self.p_end,
+            &mut self.qrs_on,
+            &mut self.qrs_peak,
+            &mut self.qrs_end,
+            &mut self.t_on,
+            &mut self.t_peak,
+            &mut self.t_end,
+            &mut self.t_end_wavelet,
+            &mut self.t_end_tangent,
+            &mut self.t_end_area,
+        ]
+        .into_iter()
+        .flatten()
+        {
+            m.sample += offset;
+        }
+    }
+
     /// The T end of the beat's own method (`t_end_method`), the value `t_end`
     /// holds.
     pub fn t_end_by_method(&self) -> Option<Mark> {

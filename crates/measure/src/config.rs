@@ -59,6 +59,17 @@ pub struct MeasureConfig {
     pub window_s: f64,
     /// A last, shorter window is kept if at least this long (s); default 5.
     pub min_window_s: f64,
+    /// Records with more samples than this, summed over their leads (millions),
+    /// are processed in consecutive chunks of about this size, so that a long
+    /// recording (a 24-hour Holter) needs the memory of one chunk, not of the
+    /// whole record; 0 = never. Chunks are whole windows long; default 2, above
+    /// every record of QTDB and LUDB (millions of samples).
+    pub chunk_mega_samples: f64,
+    /// Each chunk is filtered, detected and delineated with this much signal
+    /// on either side of it (rounded up to whole windows), and only what falls
+    /// inside the chunk is kept: filters, adaptive detection thresholds and the
+    /// previous RR see the neighbouring signal (s); default 60.
+    pub chunk_overlap_s: f64,
     /// Average beats that detection left unclassified together with normal beats
     /// (they must still correlate with the template); default true.
     pub use_unclassified_beats: bool,
@@ -174,6 +185,8 @@ impl Default for MeasureConfig {
         Self {
             window_s: 10.0,
             min_window_s: 5.0,
+            chunk_mega_samples: 2.0,
+            chunk_overlap_s: 60.0,
             use_unclassified_beats: true,
             min_beats_per_window: 3,
             rr_stability: 0.2,
@@ -214,6 +227,14 @@ impl MeasureConfig {
         let mut c = Checker::new("measure");
         c.range("window_s", self.window_s, 2.0, 3600.0, "s")
             .range("min_window_s", self.min_window_s, 1.0, 3600.0, "s")
+            .range(
+                "chunk_mega_samples",
+                self.chunk_mega_samples,
+                0.0,
+                10000.0,
+                "millions of samples",
+            )
+            .range("chunk_overlap_s", self.chunk_overlap_s, 10.0, 3600.0, "s")
             .require(
                 self.min_window_s <= self.window_s,
                 "min_window_s",

@@ -178,6 +178,18 @@ pub struct WindowMeasure {
     pub median: MedianBeats,
 }
 
+impl WindowMeasure {
+    /// The same window in a record that starts `offset` samples earlier: its
+    /// times and beat positions moved by `offset` (for chunks of a record).
+    pub fn shift(&mut self, offset: usize, fs: f64) {
+        let dt = offset as f64 / fs;
+        self.start_s += dt;
+        self.end_s += dt;
+        self.beats.iter_mut().for_each(|b| *b += offset);
+        self.aligned.iter_mut().for_each(|a| *a += offset as f64);
+    }
+}
+
 /// Record-level summary over the measured windows.
 #[derive(Debug, Clone, PartialEq)]
 pub struct RecordSummary {
@@ -856,7 +868,9 @@ fn mean_of(v: impl Iterator<Item = Option<f64>>) -> Option<f64> {
     (!v.is_empty()).then(|| v.iter().sum::<f64>() / v.len() as f64)
 }
 
-fn summarize(w: &[WindowMeasure], sex: Option<Sex>, cfg: &MeasureConfig) -> RecordSummary {
+/// The record summary of a list of windows (what [`measure_record`] returns
+/// beside them); for records measured in chunks and joined.
+pub fn summarize(w: &[WindowMeasure], sex: Option<Sex>, cfg: &MeasureConfig) -> RecordSummary {
     let med = |f: fn(&WindowMeasure) -> Option<f64>| median_of(w.iter().map(f));
     let qtc_ms = med(|w| w.qtc_ms);
     let classification = classify::classify(qtc_ms, sex, &cfg.limits);
