@@ -128,12 +128,12 @@ fn missing_in_every_lead(rec: &Record) -> Vec<(usize, usize)> {
 /// WFDB invalid-sample value, a skewed signal past the end of its file and the
 /// gaps of a variable-layout multi-segment record, as the `wfdb` Python package
 /// reads them; the gaps between the data records of an EDF+D or BDF+D file);
-/// other non-finite input is rejected by the readers. Inside a lead a gap is bridged by a straight line between the
-/// samples around it; at the ends the nearest sample is held. A long bridged gap
-/// is a flat or straight stretch with no QRS slope: detection leaves it to the
-/// other leads or marks it unreadable, and no wave boundary is found in it. A
-/// lead with no sample at all is held at zero, which every stage treats as a
-/// flat (unusable) lead.
+/// other non-finite input is rejected by the readers. Inside a lead a gap is
+/// bridged by a straight line between the samples around it; at the ends the
+/// nearest sample is held. A long bridged gap is a flat or straight stretch
+/// with no QRS slope: detection leaves it to the other leads or marks it
+/// unreadable, and no wave boundary is found in it. A lead with no sample at
+/// all is held at zero, which every stage treats as a flat (unusable) lead.
 pub(crate) fn fill_missing(rec: &mut Record) -> Vec<usize> {
     let mut counts = Vec::with_capacity(rec.leads.len());
     for l in rec.leads.iter_mut() {
