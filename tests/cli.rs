@@ -827,3 +827,49 @@ fn long_record_in_chunks_matches_the_whole_record_run() {
         qt(&parts)
     );
 }
+
+#[test]
+fn pacing_spikes_are_counted_for_a_paced_record_only() {
+    // LUDB 34 (header: "UNIpolar ventricular pacing") against LUDB 1 (sinus
+    // rhythm, no pacing): the paced record's stimulus artifacts are removed and
+    // counted in summary.csv; turning the option off leaves the column at 0.
+    let inp = tempfile::tempdir().unwrap();
+    copy_ludb(inp.path(), "1");
+    copy_ludb(inp.path(), "34");
+    let count = |out: &Path| -> Vec<(String, i64)> {
+        let s = std::fs::read_to_string(out.join("summary.csv")).unwrap();
+        let mut lines = s.lines();
+        let head: Vec<&str> = lines.next().unwrap().split(',').collect();
+        let col = head.iter().position(|h| *h == "pacing_spikes").unwrap();
+        let mut v: Vec<(String, i64)> = lines
+            .map(|l| {
+                let c: Vec<&str> = l.split(',').collect();
+                (c[0].to_string(), c[col].parse().unwrap())
+            })
+            .collect();
+        v.sort();
+        v
+    };
+    let on = tempfile::tempdir().unwrap();
+    let o = run_quiet(&[inp.path().into()], on.path());
+    assert!(o.status.success(), "{}", text(&o));
+    let c = count(on.path());
+    assert_eq!(c[0], ("1".to_string(), 0), "{c:?}");
+    assert_eq!(c[1].0, "34");
+    // One stimulus per beat of the 10-s record (70 beats per minute or so).
+    assert!((8..=12).contains(&c[1].1), "{c:?}");
+    let off = tempfile::tempdir().unwrap();
+    let o = bin()
+        .arg("run")
+        .arg(inp.path())
+        .arg("--out")
+        .arg(off.path())
+        .args(["--quiet", "--set", "filter.pacing_blank=false"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    assert_eq!(
+        count(off.path()),
+        vec![("1".to_string(), 0), ("34".to_string(), 0)]
+    );
+}

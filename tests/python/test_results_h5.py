@@ -5,6 +5,7 @@ by the `wfdb` package (MIT-LCP/wfdb-python) and against `hashlib`.
 The layout checked here is the contract documented in docs/results-h5.md.
 """
 
+import csv
 import hashlib
 import os
 import shutil
@@ -160,3 +161,31 @@ def test_annotation_files_read_with_wfdb(run):
     assert set(ann.symbol) <= {"(", ")", "p", "t", "N", "V", "Q"}
     lead = wfdb.rdann(str(out / "annotations" / "7"), "leadmark")
     assert set(lead.chan) <= set(range(12)) and len(set(lead.chan)) > 1
+
+
+def test_pacing_spikes_match_the_raw_signal(run):
+    # LUDB record 8's header says "UNIpolar ventricular pacing"; record 7 is not
+    # paced. Each stored stretch is checked on the samples as the `wfdb` package
+    # reads them: in at least 3/4 of the leads some sample departs by >= 0.1 mV
+    # from the line joining the samples on either side (filter.pacing_min_mv and
+    # filter.pacing_min_lead_fraction, defaults). Each lead's stretch is at most
+    # 6 ms (filter.pacing_max_width_ms); the stored one is the union over leads
+    # whose stretches lie within a sample of each other, so allow two of them.
+    _, out = run
+    with h5py.File(out / "results.h5", "r") as f:
+        r7, r8 = f["records/7"], f["records/8"]
+        assert int(r7.attrs["pacing_spikes"]) == 0 and "pacing" not in r7
+        start, end = r8["pacing/start"][()], r8["pacing/end"][()]
+        assert int(r8.attrs["pacing_spikes"]) == len(start) == len(end) > 0
+        fs = float(r8.attrs["fs"])
+    x = wfdb.rdrecord(str(DATA / "ludb" / "8")).p_signal
+    for s, e in zip(start, end):
+        assert 0 < s < e and e - s <= 2 * round(6.0 * fs / 1000.0) + 1
+        k = np.arange(1, e - s + 1) / (e - s + 1)
+        line = x[s - 1][None, :] + (x[e] - x[s - 1])[None, :] * k[:, None]
+        dev = np.abs(x[s:e] - line).max(axis=0)
+        assert (dev >= 0.1).sum() >= 0.75 * x.shape[1], (s, e, dev)
+    with open(out / "summary.csv") as fh:
+        rows = {r["record"]: r for r in csv.DictReader(fh)}
+    assert rows["7"]["pacing_spikes"] == "0"
+    assert int(rows["8"]["pacing_spikes"]) == len(start)

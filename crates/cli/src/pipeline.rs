@@ -362,12 +362,34 @@ pub fn process_record(
         .filters
         .get(rec.fs)
         .with_context(|| format!("{}: filter design", input.name))?;
+    // Over the whole record (before any chunking), on the ECG leads only:
+    // the other signals are held at zero and would never hold a spike.
+    let spikes = {
+        let ecg: Vec<&[f64]> = rec
+            .leads
+            .iter()
+            .zip(&excluded)
+            .filter(|(_, r)| r.is_empty())
+            .map(|(l, _)| l.samples.as_slice())
+            .collect();
+        filter.pacing_spikes(&ecg)
+    };
+    if !spikes.is_empty() {
+        for l in rec.leads.iter_mut() {
+            tendline_dsp::pacing::blank_lead(&mut l.samples, &spikes);
+        }
+        rec.warnings.push(format!(
+            "{} pacing stimulus artifact(s) removed before filtering (`filter.pacing_blank`; \
+             positions in `pacing/`)",
+            spikes.len()
+        ));
+    }
     let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
     let names: Vec<String> = rec.leads.iter().map(|l| l.name.clone()).collect();
     let (fs, sex) = (rec.fs, rec.meta.sex);
     // Filter, detect, delineate and measure one stretch of the record.
     let analyse = |raw: &[&[f64]], gaps: &[(usize, usize)]| -> Result<Stretch> {
-        let (cond, notch) = filter.apply_record(raw);
+        let (cond, notch) = filter.filter_record(raw);
         let leads: Vec<&[f64]> = cond.iter().map(Vec::as_slice).collect();
         let mut det = tendline_detect::detect(&leads, fs, &cfg.detect)
             .with_context(|| format!("{}: beat detection", input.name))?;
@@ -436,6 +458,7 @@ pub fn process_record(
     let mut g = Group::default();
     record_attrs(&mut g, &rec, checksums, notch, &det, &missing, &excluded);
     beats_group(g.group("beats"), &det);
+    pacing_group(&mut g, &spikes);
     unreadable_group(g.group("unreadable"), &det);
     let marks = g.group("marks");
     marks_group(marks.group("global"), &del.global);
@@ -464,6 +487,21 @@ pub fn process_record(
         leadmarks,
         n_samples: (rec.n_samples() * rec.leads.len()) as u64,
     })
+}
+
+/// Pacing stimulus artifacts removed from the raw leads: the attribute
+/// `pacing_spikes` (their number, 0 when none or when blanking is off) and,
+/// when there are any, `pacing/start` and `pacing/end` (samples, end exclusive).
+fn pacing_group(g: &mut Group, spikes: &[tendline_dsp::pacing::Spike]) {
+    g.attr("pacing_spikes", Attr::Int(spikes.len() as i64));
+    if spikes.is_empty() {
+        return;
+    }
+    let p = g.group("pacing");
+    let start = spikes.iter().map(|s| s.start as i64).collect();
+    let end = spikes.iter().map(|s| s.end as i64).collect();
+    p.dataset_with_units("start", Data::I64(start), "sample");
+    p.dataset_with_units("end", Data::I64(end), "sample");
 }
 
 fn record_attrs(

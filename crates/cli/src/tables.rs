@@ -124,6 +124,7 @@ impl Default for CsvWriter {
             s.push(',');
             s.push_str(k);
         }
+        s.push_str(",pacing_spikes");
         s.push('\n');
         let mut w = String::from("record,window");
         for k in WINDOW_COLS {
@@ -196,6 +197,9 @@ impl CsvWriter {
         for k in SUMMARY_NUM_LATER {
             write!(s, ",{}", fmt_f(attr_f(g, k), 1))?;
         }
+        // Pacing stimulus artifacts removed (an integer count; empty in parts
+        // written before the column existed).
+        write!(s, ",{}", fmt_f(attr_f(g, "pacing_spikes"), 0))?;
         s.push('\n');
         if let Some(wg) = g.groups.get("windows") {
             let n = wg.datasets.get("start_s").map_or(0, |d| d.data.rows());

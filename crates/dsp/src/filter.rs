@@ -26,6 +26,8 @@ use rustfft::FftPlanner;
 use serde::{Deserialize, Deserializer, Serialize, Serializer};
 use tendline_params::{Checker, ParamError};
 
+use crate::pacing::{blank_spikes, find_spikes, Spike};
+
 /// One second-order section `H(z) = (b0 + b1 z⁻¹ + b2 z⁻²) / (1 + a1 z⁻¹ + a2 z⁻²)`.
 ///
 /// The leading denominator coefficient is always 1 (the `biquad` crate's
@@ -915,6 +917,32 @@ pub struct FilterConfig {
     pub lowpass_hz: f64,
     /// Butterworth order of the low-pass (one pass; forward-backward doubles it). Default 4.
     pub lowpass_order: usize,
+    /// Remove pacemaker stimulus artifacts from the raw leads before filtering
+    /// (the rule is in the dsp crate's `pacing` module). Default true: only
+    /// narrow spikes with quiet flanks, present in most leads at once, are
+    /// removed; a QRS, P or T wave has slopes on its sides as steep as its height.
+    pub pacing_blank: bool,
+    /// Longest pacing spike, in ms (rounded to samples, at least one).
+    /// Default 6 ms: up to two samples at 250 Hz, three at 500 Hz.
+    pub pacing_max_width_ms: f64,
+    /// Smallest pacing spike: its departure from the straight line joining
+    /// the samples on either side, in mV. Default 0.1 mV.
+    pub pacing_min_mv: f64,
+    /// Largest step between consecutive samples beside a pacing spike (over
+    /// `pacing_flank_ms` before and after it) and across it, as a fraction of
+    /// its departure. Default 0.3.
+    pub pacing_flank_ratio: f64,
+    /// Length of the quiet flanks on either side of a pacing spike, in ms
+    /// (rounded to samples, at least one). Default 4 ms.
+    pub pacing_flank_ms: f64,
+    /// Smallest step into a pacing spike (from the sample before it to its
+    /// first sample), as a fraction of its departure: a stimulus is abrupt,
+    /// a notch in a QRS rises over several samples. Default 0.5.
+    pub pacing_min_jump_ratio: f64,
+    /// Share of the leads that must hold a spike within one sample of each
+    /// other for it to count as a pacing stimulus (0 to 1; with two leads
+    /// 0.75 asks for both). Default 0.75.
+    pub pacing_min_lead_fraction: f64,
 }
 
 impl Default for FilterConfig {
@@ -928,6 +956,27 @@ impl Default for FilterConfig {
             powerline_max_segments: 64,
             lowpass_hz: 100.0,
             lowpass_order: 4,
+            pacing_blank: true,
+            pacing_max_width_ms: 6.0,
+            pacing_min_mv: 0.1,
+            pacing_flank_ratio: 0.3,
+            pacing_min_lead_fraction: 0.75,
+            pacing_flank_ms: 4.0,
+            pacing_min_jump_ratio: 0.5,
+        }
+    }
+}
+
+impl FilterConfig {
+    /// The pacing-spike rule of this configuration.
+    pub fn spike_rule(&self) -> crate::pacing::SpikeRule {
+        crate::pacing::SpikeRule {
+            max_width_ms: self.pacing_max_width_ms,
+            min_mv: self.pacing_min_mv,
+            flank_ratio: self.pacing_flank_ratio,
+            min_lead_fraction: self.pacing_min_lead_fraction,
+            flank_ms: self.pacing_flank_ms,
+            min_jump_ratio: self.pacing_min_jump_ratio,
         }
     }
 }
@@ -954,7 +1003,31 @@ impl FilterConfig {
                 "segments, 0 = all",
             )
             .range("lowpass_hz", self.lowpass_hz, 0.0, 10_000.0, "Hz, 0 = off")
-            .range("lowpass_order", self.lowpass_order as f64, 1.0, 10.0, "");
+            .range("lowpass_order", self.lowpass_order as f64, 1.0, 10.0, "")
+            .range(
+                "pacing_max_width_ms",
+                self.pacing_max_width_ms,
+                0.5,
+                20.0,
+                "ms",
+            )
+            .range("pacing_min_mv", self.pacing_min_mv, 0.01, 10.0, "mV")
+            .range("pacing_flank_ratio", self.pacing_flank_ratio, 0.0, 1.0, "")
+            .range("pacing_flank_ms", self.pacing_flank_ms, 0.5, 50.0, "ms")
+            .range(
+                "pacing_min_jump_ratio",
+                self.pacing_min_jump_ratio,
+                0.0,
+                1.0,
+                "",
+            )
+            .range(
+                "pacing_min_lead_fraction",
+                self.pacing_min_lead_fraction,
+                0.0,
+                1.0,
+                "share of the leads",
+            );
         if self.lowpass_hz.is_finite() && self.highpass_hz.is_finite() {
             c.require(
                 self.lowpass_hz == 0.0 || self.lowpass_hz >= 10.0 * self.highpass_hz.max(0.5),
@@ -1316,9 +1389,33 @@ impl ConditioningFilter {
         decide_powerline(&total, df, cfg)
     }
 
-    /// Filters all leads of a record; in `"auto"` mode the notch is chosen
-    /// once from all leads. Returns the filtered leads and the notch used.
+    /// Pacing stimulus artifacts in the raw leads of a record (none when
+    /// `pacing_blank` is off). See [`crate::pacing`].
+    pub fn pacing_spikes(&self, leads: &[&[f64]]) -> Vec<Spike> {
+        if !self.cfg.pacing_blank {
+            return Vec::new();
+        }
+        find_spikes(leads, self.fs, &self.cfg.spike_rule())
+    }
+
+    /// Conditions all leads of a record: pacing spikes blanked
+    /// ([`Self::pacing_spikes`]), then [`Self::filter_record`]. Returns the
+    /// filtered leads and the notch used.
     pub fn apply_record(&self, leads: &[&[f64]]) -> (Vec<Vec<f64>>, Option<f64>) {
+        let spikes = self.pacing_spikes(leads);
+        if spikes.is_empty() {
+            return self.filter_record(leads);
+        }
+        let mut own: Vec<Vec<f64>> = leads.iter().map(|l| l.to_vec()).collect();
+        blank_spikes(&mut own, &spikes);
+        let refs: Vec<&[f64]> = own.iter().map(Vec::as_slice).collect();
+        self.filter_record(&refs)
+    }
+
+    /// Filters all leads of a record as they are (no pacing-spike blanking);
+    /// in `"auto"` mode the notch is chosen once from all leads. Returns the
+    /// filtered leads and the notch used.
+    pub fn filter_record(&self, leads: &[&[f64]]) -> (Vec<Vec<f64>>, Option<f64>) {
         let notch = self.notch_for(|| Self::detect_powerline_leads(leads, self.fs, &self.cfg));
         (self.apply_leads_with_notch(leads, notch), notch)
     }

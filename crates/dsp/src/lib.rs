@@ -1,5 +1,5 @@
-//! Signal processing shared by the stages: conditioning filters, resampling
-//! and the stationary wavelet transform.
+//! Signal processing shared by the stages: conditioning filters, pacemaker
+//! spike removal, resampling and the stationary wavelet transform.
 //!
 //! # Conventions
 //!
@@ -38,6 +38,7 @@
 
 pub mod colmedian;
 pub mod filter;
+pub mod pacing;
 pub mod resample;
 pub mod select;
 pub mod wavelet;
