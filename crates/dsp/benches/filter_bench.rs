@@ -53,6 +53,12 @@ fn bench(c: &mut Criterion) {
     g.bench_function("condition_auto_detect", |b| {
         b.iter(|| auto.apply(black_box(&x)))
     });
+    // The pacing-spike search run on every record before filtering (one
+    // lead here; a record's cost grows with its number of leads).
+    let rule = FilterConfig::default().spike_rule();
+    g.bench_function("pacing_spike_search", |b| {
+        b.iter(|| tendline_dsp::pacing::lead_spikes(black_box(&x), FS, &rule))
+    });
     g.bench_function("detect_powerline_only", |b| {
         b.iter(|| ConditioningFilter::detect_powerline(black_box(&x), FS, auto.config()))
     });

@@ -124,8 +124,15 @@ pub fn lead_spikes(x: &[f64], fs: f64, rule: &SpikeRule) -> Vec<(usize, usize)> 
     let wmax = max_width(fs, rule);
     let m = ((rule.flank_ms * fs / 1000.0).round() as usize).max(1);
     let mut out = Vec::new();
+    // A spike is entered by a step of at least min_jump_ratio × min_mv: most
+    // samples are ruled out by that one comparison.
+    let least_jump = rule.min_jump_ratio * rule.min_mv;
     let mut s = m + 1;
     while s < x.len() {
+        if (x[s] - x[s - 1]).abs() < least_jump {
+            s += 1;
+            continue;
+        }
         match spike_at(x, s, wmax, m, rule) {
             Some(e) => {
                 out.push((s, e));
