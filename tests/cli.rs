@@ -858,6 +858,12 @@ fn pacing_spikes_are_counted_for_a_paced_record_only() {
     assert_eq!(c[1].0, "34");
     // One stimulus per beat of the 10-s record (70 beats per minute or so).
     assert!((8..=12).contains(&c[1].1), "{c:?}");
+    // The record's flags name it paced; the other's do not.
+    let summary = std::fs::read_to_string(on.path().join("summary.csv")).unwrap();
+    for line in summary.lines().skip(1) {
+        let paced = line.contains("paced");
+        assert_eq!(paced, line.starts_with("34,"), "{line}");
+    }
     let off = tempfile::tempdir().unwrap();
     let o = bin()
         .arg("run")

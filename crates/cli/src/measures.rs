@@ -182,6 +182,7 @@ fn window_flags(x: &tendline_measure::WindowMeasure) -> Vec<&'static str> {
         (f.unreadable, "unreadable"),
         (f.too_few_beats, "too_few_beats"),
         (f.noisy, "unreadable_noise"),
+        (f.paced, "paced"),
     ] {
         if on {
             v.push(name);
@@ -216,6 +217,9 @@ pub fn summary_flags(m: &RecordMeasures) -> Vec<String> {
     }
     if m.windows.iter().any(|w| w.flags.noisy) {
         v.push("unreadable_noise".into());
+    }
+    if m.windows.iter().any(|w| w.flags.paced) {
+        v.push("paced".into());
     }
     v
 }

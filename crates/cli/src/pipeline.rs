@@ -451,6 +451,8 @@ pub fn process_record(
             cfg.detect.missing_guard_ms
         ));
     }
+    let mut windows = windows;
+    mark_paced_windows(&mut windows, &spikes, fs);
     let summary = tendline_measure::summarize(&windows, sex, &cfg.measure);
     let meas = tendline_measure::RecordMeasures { windows, summary };
     let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
@@ -486,6 +488,26 @@ pub fn process_record(
         marks,
         leadmarks,
         n_samples: (rec.n_samples() * rec.leads.len()) as u64,
+    })
+}
+
+/// Flags the windows that hold a pacing stimulus (a spike starting in
+/// `[start_s, end_s)`).
+fn mark_paced_windows(
+    windows: &mut [tendline_measure::WindowMeasure],
+    spikes: &[tendline_dsp::pacing::Spike],
+    fs: f64,
+) {
+    for w in windows.iter_mut() {
+        w.flags.paced = holds_spike(w.start_s, w.end_s, spikes, fs);
+    }
+}
+
+/// Whether a spike starts in `[start_s, end_s)`.
+fn holds_spike(start_s: f64, end_s: f64, spikes: &[tendline_dsp::pacing::Spike], fs: f64) -> bool {
+    spikes.iter().any(|s| {
+        let t = s.start as f64 / fs;
+        t >= start_s && t < end_s
     })
 }
 
@@ -727,6 +749,21 @@ pub fn beat_annotations(
 
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn windows_holding_a_pacing_spike_are_flagged() {
+        // Hand-worked: at 500 Hz, windows [0, 10) s and [10, 20) s; a spike
+        // starting at sample 4999 (9.998 s) lies in the first, one starting at
+        // sample 10 000 (exactly 20 s) in neither.
+        let sp = |s: usize| tendline_dsp::pacing::Spike {
+            start: s,
+            end: s + 1,
+        };
+        let spikes = [sp(4999), sp(10_000)];
+        assert!(holds_spike(0.0, 10.0, &spikes, 500.0));
+        assert!(!holds_spike(10.0, 20.0, &spikes, 500.0));
+        assert!(!holds_spike(0.0, 10.0, &[], 500.0));
+    }
+
     use super::*;
     use tendline_formats::{Lead, Metadata};
 

@@ -91,6 +91,11 @@ pub struct WindowFlags {
     /// At least one usable lead was left out of the QT because its beat-to-beat noise
     /// is large against its T wave (`max_noise_t_ratio`).
     pub noisy: bool,
+    /// Pacemaker stimuli lie in the window (set by the caller, which finds them
+    /// before filtering): the QT holds paced QRS complexes, wide by conduction
+    /// (common practice: read the JT interval, and do not judge the QTc by the
+    /// limits for conducted beats).
+    pub paced: bool,
 }
 
 /// Measurements of one lead's median beat.

@@ -93,7 +93,7 @@ const RECORD_ATTRS: [&str; 18] = [
 ];
 
 /// Window flags in the order the run writes them, then the reader's.
-const FLAG_ORDER: [&str; 10] = [
+const FLAG_ORDER: [&str; 11] = [
     "irregular",
     "wide_qrs",
     "sex_unknown",
@@ -101,6 +101,7 @@ const FLAG_ORDER: [&str; 10] = [
     "unreadable",
     "too_few_beats",
     "unreadable_noise",
+    "paced",
     "corrected",
     "unreadable_reader",
     "beat_unreadable_reader",
