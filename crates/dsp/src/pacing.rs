@@ -88,6 +88,15 @@ fn spike_at(x: &[f64], s: usize, wmax: usize, m: usize, rule: &SpikeRule) -> Opt
     }
     let a1 = x[s - 1];
     let before = max_step(x, s - 1 - m, s - 1);
+    // Necessary for any width: the jump is at least min_jump_ratio × dev and
+    // the steps before at most flank_ratio × dev, so those steps are at most
+    // flank_ratio / min_jump_ratio × the jump. Inside a QRS consecutive steps
+    // are alike, and this one comparison turns most of them down. (A NaN
+    // passes it and is turned down below.)
+    let jump = (x[s] - a1).abs();
+    if rule.min_jump_ratio > 0.0 && before * rule.min_jump_ratio > rule.flank_ratio * jump {
+        return None;
+    }
     for w in 1..=wmax {
         let e = s + w;
         if e + m >= x.len() {
@@ -300,6 +309,11 @@ mod tests {
         assert!(lead_spikes(&y, 500.0, &rule(6.0, 1.0)).is_empty());
         y[10] = 0.5;
         y[8] = f64::NAN; // a gap beside it
+        assert!(lead_spikes(&y, 500.0, &rule(6.0, 1.0)).is_empty());
+        y[8] = 0.0;
+        y[10] = f64::NAN; // a gap in place of the spike
+        assert!(lead_spikes(&y, 500.0, &rule(6.0, 1.0)).is_empty());
+        y[10] = f64::INFINITY;
         assert!(lead_spikes(&y, 500.0, &rule(6.0, 1.0)).is_empty());
         assert!(find_spikes(&[], 500.0, &rule(6.0, 1.0)).is_empty());
         // Blanking a spike that touches an end changes nothing.
