@@ -864,6 +864,19 @@ fn pacing_spikes_are_counted_for_a_paced_record_only() {
         let paced = line.contains("paced");
         assert_eq!(paced, line.starts_with("34,"), "{line}");
     }
+    // The over-read site marks the stimuli on the rhythm strip and ranks the
+    // paced record with a reason.
+    let o = bin().arg("review").arg(on.path()).output().unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let page = std::fs::read_to_string(on.path().join("review/34.html")).unwrap();
+    assert!(page.contains("pacing stimulus at sample"), "no pacing tick");
+    let plain = std::fs::read_to_string(on.path().join("review/1.html")).unwrap();
+    assert!(!plain.contains("pacing stimulus at sample"));
+    let index = std::fs::read_to_string(on.path().join("review/index.html")).unwrap();
+    assert!(
+        index.contains("pacing stimulus artifact(s) removed"),
+        "no reason"
+    );
     let off = tempfile::tempdir().unwrap();
     let o = bin()
         .arg("run")

@@ -47,10 +47,12 @@ pub struct Priority {
 /// Review priority of one record from its part group.
 ///
 /// Score: 2·(1 − mark confidence) + 2 for a QTc flag other than `normal` + 1 for
-/// unreadable stretches + 1 for a noisy lead left out (`unreadable_noise`) +
+/// unreadable stretches + 1 for a noisy lead left out (`unreadable_noise`) + 1 for
+/// pacing stimuli removed (`pacing_spikes`: paced QRS onsets and QT need a look) +
 /// min(T-end disagreement / 20 ms, 2). Reasons are listed for confidence below 0.5,
-/// a non-normal QTc flag, unreadable stretches, noisy leads and a T-end disagreement
-/// above 10 ms. The weights are this crate's choice, not a published scale.
+/// a non-normal QTc flag, unreadable stretches, noisy leads, pacing stimuli and a
+/// T-end disagreement above 10 ms. The weights are this crate's choice, not a
+/// published scale.
 pub fn priority(g: &Group, record: &str) -> Priority {
     let fs = attr_f64(g, "fs").unwrap_or(f64::NAN);
     let conf = |f: &str| f64s(g, &format!("marks/global/{f}_confidence")).unwrap_or_default();
@@ -96,6 +98,13 @@ pub fn priority(g: &Group, record: &str) -> Priority {
     if flags.split(';').any(|f| f == "unreadable_noise") {
         score += 1.0;
         reasons.push("noisy lead(s) left out of QT".into());
+    }
+    let n_paced = attr_f64(g, "pacing_spikes").unwrap_or(0.0);
+    if n_paced > 0.0 {
+        score += 1.0;
+        reasons.push(format!(
+            "{n_paced:.0} pacing stimulus artifact(s) removed: paced beats"
+        ));
     }
     if t_end_disagreement_ms.is_finite() {
         score += (t_end_disagreement_ms / 20.0).min(2.0);
@@ -344,7 +353,7 @@ fn svg_open(w: f64, h: f64, px_per_mm: f64, extra: &str) -> String {
 /// The first seconds of a few leads, with the stretches the run found unreadable
 /// shaded and the global per-beat QRS onset and T end of the run as ticks (read-only).
 fn rhythm_strip(rec: &tendline_formats::Record, g: &Group) -> String {
-    let mut s = String::from("<h2>Rhythm strip (first 10 s)</h2><p class=\"off\">Grey: stretch the run found unreadable. QRSon and Tend: the per-beat global marks; move them like the median-beat marks. Click a beat and press U to mark it unreadable (red); U again undoes it.</p>");
+    let mut s = String::from("<h2>Rhythm strip (first 10 s)</h2><p class=\"off\">Grey: stretch the run found unreadable. Purple ticks at the top: pacing stimuli the run removed before filtering. QRSon and Tend: the per-beat global marks; move them like the median-beat marks. Click a beat and press U to mark it unreadable (red); U again undoes it.</p>");
     let want = ["II", "V1", "V5"];
     let mut idx: Vec<usize> = want
         .iter()
@@ -373,6 +382,18 @@ fn rhythm_strip(rec: &tendline_formats::Record, g: &Group) -> String {
                 f(a),
                 f(b - a),
                 f(h)
+            );
+        }
+    }
+    // Pacing stimuli the run removed before filtering (the strip shows the
+    // signal as read, spikes included): a thin mark above each.
+    let p_starts = i64s(g, "pacing/start").unwrap_or(&[]);
+    for &a in p_starts {
+        if a >= 0 && a < n as i64 {
+            let _ = write!(
+                overlay,
+                "<line class=\"pace\" x1=\"{0}\" x2=\"{0}\" y1=\"0\" y2=\"2\" stroke=\"#a0a\" stroke-width=\"0.3\"><title>pacing stimulus at sample {a}, removed before filtering</title></line>",
+                f(x(a))
             );
         }
     }
@@ -1068,5 +1089,15 @@ mod tests {
         let mut calm = g.clone();
         calm.attr("qtc_flag", tendline_store::Attr::Text("normal".into()));
         assert!(priority(&calm, "c").score < p.score);
+        // Pacing stimuli add one point and a reason.
+        let mut paced = g.clone();
+        paced.attr("pacing_spikes", tendline_store::Attr::Int(7));
+        let q = priority(&paced, "p");
+        assert!((q.score - p.score - 1.0).abs() < 1e-9);
+        assert!(
+            q.reasons.iter().any(|r| r.starts_with("7 pacing")),
+            "{:?}",
+            q.reasons
+        );
     }
 }
