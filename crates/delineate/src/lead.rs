@@ -1069,7 +1069,7 @@ impl LeadAnalysis {
             three_lobe_bounds: true,
             reach: self.ms_i(cfg.p_lobe_reach_ms) as usize,
             lone_peak: false,
-            early_frac: 1.0,
+            early_frac: cfg.p_early_pair_frac,
             outer_check: (cfg.p_outer_max_quiet_ms >= 0.0).then(|| OuterCheck {
                 min_slope_mv_per_s: cfg.p_min_slope_mv_per_s,
                 max_quiet: self.ms_i(cfg.p_outer_max_quiet_ms) as usize,
@@ -1648,13 +1648,18 @@ mod tests {
         // (one wave, no baseline between): true end 1.08 s = sample 270.
         let la = pulses(&[(0.96, 0.06, 0.10), (1.02, 0.06, -0.08)]);
         let (lo, hi) = (225, 300); // 0.90-1.20 s
-        let off = DelineateConfig::default();
+                                   // Off, with the larger neighbour making the pair (the earlier one
+                                   // here): the end falls inside the negative half.
+        let off = DelineateConfig {
+            p_biphasic_frac: 1.1,
+            p_early_pair_frac: 1.0,
+            ..DelineateConfig::default()
+        };
         let on = DelineateConfig {
             p_biphasic_frac: 0.25,
             p_outer_max_quiet_ms: 8.0,
             ..off.clone()
         };
-        // Off: the main pair only, the end falls inside the negative half.
         let (end_off, n_off) = p_end_of(&la, &off, lo, hi);
         assert_eq!(n_off, 2);
         assert!(end_off < 270.0 - 5.0, "end without the rule {end_off}");
@@ -1663,6 +1668,40 @@ mod tests {
         let (end_on, n_on) = p_end_of(&la, &on, lo, hi);
         assert_eq!(n_on, 3);
         assert!((end_on - 270.0).abs() <= 4.0, "end with the rule {end_on}");
+        // The defaults read it as biphasic too.
+        let (end_def, n_def) = p_end_of(&la, &DelineateConfig::default(), lo, hi);
+        assert_eq!(n_def, 3);
+        assert!((end_def - 270.0).abs() <= 4.0, "end by default {end_def}");
+    }
+
+    #[test]
+    fn lobe_pair_nearer_the_qrs_is_the_p_wave() {
+        // Invented shapes: the end of a wave before the P (a T or U wave,
+        // +0.09 mV on 0.70-0.86 s) falls inside the P window; the P rises
+        // fast and falls slowly (+0.06 mV on 0.90-0.98 s plus +0.05 mV on
+        // 0.90-1.04 s), summit at sample 236 (0.944 s, computed from the
+        // formula). The largest |W_4| maximum is the P's rise, flanked by the
+        // earlier wave's descent and the P's own, smaller descent.
+        let la = pulses(&[(0.70, 0.16, 0.09), (0.90, 0.08, 0.06), (0.90, 0.14, 0.05)]);
+        let (lo, hi) = (200, 275); // 0.80-1.10 s
+        let peak = |frac: f64| {
+            let cfg = DelineateConfig {
+                p_early_pair_frac: frac,
+                p_biphasic_frac: 1.1,
+                ..DelineateConfig::default()
+            };
+            la.find_wave(4, lo, hi, &la.p_rule(&cfg))
+                .expect("P wave")
+                .peak
+                .unwrap()
+        };
+        // The larger neighbour alone (1.0) pairs the P's rise with the other
+        // wave's descent: the "peak" falls in the baseline between them.
+        let old = peak(1.0);
+        assert!(old < 225, "larger-neighbour pair peak {old}");
+        // The default prefers the later pair: the P's own summit.
+        let new = peak(DelineateConfig::default().p_early_pair_frac);
+        assert!(new.abs_diff(236) <= 3, "default pair peak {new}");
     }
 
     #[test]
