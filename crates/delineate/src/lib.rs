@@ -43,6 +43,10 @@
 //!   median of all leads for the beat (`lead_shrink_*`, module `shrink`).
 //! * A biphasic T is reported as such, but its onset and end are searched
 //!   from its dominant slope pair unless `t_biphasic_outer_bounds` is set.
+//!   A biphasic P (`p_biphasic_frac`) is read from its outer lobes; of two
+//!   candidate lobe pairs the one nearer the QRS is the P wave unless the
+//!   earlier is clearly larger (`p_early_pair_frac`), and for T the earlier
+//!   pair is preferred (`t_early_pair_frac`: a U wave follows the T).
 //! * P waves are dropped in every lead where the PR interval scatters over
 //!   neighbouring beats (`p_max_pr_mad_ms`, module `prhythm`); a lead
 //!   without a P wave where most leads have one is searched again near
