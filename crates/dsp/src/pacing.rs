@@ -23,6 +23,12 @@
 //! * it starts with a jump: the step into it (`x[s] − x[s−1]`) is at least
 //!   `min_jump_ratio` times the departure. The narrowest such stretch from `s`
 //!   is taken (a stimulus is abrupt, and its tail may decay over a few samples).
+//! * A stretch wider than `max_width_ms`, up to `max_pulse_ms`, is a spike
+//!   only when it is also left by a jump: the step out of it (`x[e] −
+//!   x[e−1]`) is at least `min_jump_ratio` times the departure too. Some
+//!   front ends record the stimulus as a rectangular pulse of about ten
+//!   milliseconds (LUDB 74 has one of 12 ms: six samples at 500 Hz, about
+//!   0.7 mV in every lead), abrupt at both ends, which no wave is.
 //!
 //! The last two conditions are what separate a spike from a sharp R wave or a
 //! notch in a QRS: the slopes on either side of an R peak are as steep as the
@@ -50,6 +56,11 @@ pub struct SpikeRule {
     pub flank_ms: f64,
     /// Smallest step into the spike, as a fraction of its departure.
     pub min_jump_ratio: f64,
+    /// Longest rectangular pulse (entered and left by a jump), in ms; at or
+    /// below `max_width_ms`, no wider stretch is looked at.
+    pub max_pulse_ms: f64,
+    /// Smallest departure of such a pulse, in mV.
+    pub pulse_min_mv: f64,
 }
 
 /// One blanked stretch: samples `start..end` (end exclusive) of every lead.
@@ -64,6 +75,11 @@ pub struct Spike {
 /// Longest spike in samples for `fs` (at least 1).
 fn max_width(fs: f64, rule: &SpikeRule) -> usize {
     ((rule.max_width_ms * fs / 1000.0).round() as usize).max(1)
+}
+
+/// Longest rectangular pulse in samples for `fs` (never below [`max_width`]).
+fn max_pulse(fs: f64, rule: &SpikeRule) -> usize {
+    ((rule.max_pulse_ms * fs / 1000.0).round() as usize).max(max_width(fs, rule))
 }
 
 /// Largest absolute step between consecutive samples of `x[a..=b]`
@@ -81,8 +97,15 @@ fn max_step(x: &[f64], a: usize, b: usize) -> f64 {
 }
 
 /// The spike of one lead starting at `s`, if any: its end (exclusive).
-/// `wmax`: longest stretch, `m`: flank length, both in samples.
-fn spike_at(x: &[f64], s: usize, wmax: usize, m: usize, rule: &SpikeRule) -> Option<usize> {
+/// `wmax`: longest stretch, `wpulse`: longest pulse (left by a jump), `m`:
+/// flank length, all in samples.
+fn spike_at(
+    x: &[f64],
+    s: usize,
+    (wmax, wpulse): (usize, usize),
+    m: usize,
+    rule: &SpikeRule,
+) -> Option<usize> {
     if s < m + 1 {
         return None;
     }
@@ -97,12 +120,23 @@ fn spike_at(x: &[f64], s: usize, wmax: usize, m: usize, rule: &SpikeRule) -> Opt
     if rule.min_jump_ratio > 0.0 && before * rule.min_jump_ratio > rule.flank_ratio * jump {
         return None;
     }
-    for w in 1..=wmax {
+    // A pulse's jumps in and out are at least min_jump_ratio × pulse_min_mv:
+    // without such a jump into it, no stretch wider than wmax is looked at.
+    let least_pulse_jump = rule.min_jump_ratio * rule.pulse_min_mv;
+    let widest = if jump >= least_pulse_jump {
+        wpulse
+    } else {
+        wmax
+    };
+    for w in 1..=widest {
         let e = s + w;
         if e + m >= x.len() {
             return None;
         }
         let b0 = x[e];
+        if w > wmax && (b0 - x[e - 1]).abs() < least_pulse_jump {
+            continue;
+        }
         let after = max_step(x, e, e + m);
         let mut dev = 0.0f64;
         for (i, &v) in x[s..e].iter().enumerate() {
@@ -121,6 +155,8 @@ fn spike_at(x: &[f64], s: usize, wmax: usize, m: usize, rule: &SpikeRule) -> Opt
             && after <= quiet
             && (b0 - a1).abs() <= quiet
             && (x[s] - a1).abs() >= rule.min_jump_ratio * dev
+            && (w <= wmax
+                || (dev >= rule.pulse_min_mv && (b0 - x[e - 1]).abs() >= rule.min_jump_ratio * dev))
         {
             return Some(e);
         }
@@ -130,7 +166,7 @@ fn spike_at(x: &[f64], s: usize, wmax: usize, m: usize, rule: &SpikeRule) -> Opt
 
 /// Spikes of one lead, as `(start, end)` stretches in increasing order.
 pub fn lead_spikes(x: &[f64], fs: f64, rule: &SpikeRule) -> Vec<(usize, usize)> {
-    let wmax = max_width(fs, rule);
+    let widths = (max_width(fs, rule), max_pulse(fs, rule));
     let m = ((rule.flank_ms * fs / 1000.0).round() as usize).max(1);
     let mut out = Vec::new();
     // A spike is entered by a step of at least min_jump_ratio × min_mv: most
@@ -142,7 +178,7 @@ pub fn lead_spikes(x: &[f64], fs: f64, rule: &SpikeRule) -> Vec<(usize, usize)> 
             s += 1;
             continue;
         }
-        match spike_at(x, s, wmax, m, rule) {
+        match spike_at(x, s, widths, m, rule) {
             Some(e) => {
                 out.push((s, e));
                 s = e + 1;
@@ -225,6 +261,8 @@ mod tests {
             min_lead_fraction,
             flank_ms: 4.0,
             min_jump_ratio: 0.5,
+            max_pulse_ms: 0.0,
+            pulse_min_mv: 0.3,
         }
     }
 
@@ -261,6 +299,54 @@ mod tests {
         assert_eq!(lead_spikes(&x, 500.0, &rule(6.0, 1.0)), vec![(10, 12)]);
         // At 250 Hz, 4 ms is one sample: too narrow a limit for it.
         assert!(lead_spikes(&x, 250.0, &rule(4.0, 1.0)).is_empty());
+    }
+
+    #[test]
+    fn a_rectangular_pulse_is_found_only_with_the_pulse_rule() {
+        // The LUDB 74 stimulus at samples 3607-3612 (read with `wfdb`, lead I
+        // minus its level just before, rounded to 0.01 mV): six samples near
+        // -0.74 mV with a smaller second one (12 ms at 500 Hz), then back to
+        // the level. Widest plain stretch at 6 ms: 3 samples, too narrow; the
+        // step across every narrower stretch is not quiet.
+        let mut x = vec![0.0; 40];
+        for (k, v) in [-0.74, -0.69, -0.74, -0.74, -0.74, -0.74]
+            .iter()
+            .enumerate()
+        {
+            x[20 + k] = *v;
+        }
+        assert!(lead_spikes(&x, 500.0, &rule(6.0, 1.0)).is_empty());
+        let pulse = SpikeRule {
+            max_pulse_ms: 14.0,
+            ..rule(6.0, 1.0)
+        };
+        assert_eq!(lead_spikes(&x, 500.0, &pulse), vec![(20, 26)]);
+        // Lead II of the same pulse, with its overshoot on the second sample:
+        // the jumps in and out (0.41, 0.40) still reach half the departure
+        // (0.66).
+        let mut y = vec![0.0; 40];
+        for (k, v) in [0.41, 0.66, 0.41, 0.41, 0.41, 0.40].iter().enumerate() {
+            y[20 + k] = *v;
+        }
+        assert_eq!(lead_spikes(&y, 500.0, &pulse), vec![(20, 26)]);
+        // Entered by a jump but decaying back over 10 ms: no jump out of it
+        // (last step 0.15 against half its height, 0.35), so not a pulse.
+        let mut z = vec![0.0; 40];
+        for (k, v) in [0.70, 0.70, 0.60, 0.45, 0.30, 0.15].iter().enumerate() {
+            z[20 + k] = *v;
+        }
+        assert!(lead_spikes(&z, 500.0, &pulse).is_empty());
+        // A pulse below `pulse_min_mv` (0.3) is not taken, one above is.
+        let small: Vec<f64> = x.iter().map(|v| v * 0.25 / 0.74).collect();
+        assert!(lead_spikes(&small, 500.0, &pulse).is_empty());
+        let large: Vec<f64> = x.iter().map(|v| v * 0.35 / 0.74).collect();
+        assert_eq!(lead_spikes(&large, 500.0, &pulse), vec![(20, 26)]);
+        // Wider than `max_pulse_ms` (8 samples = 16 ms > 14 ms): not taken.
+        let mut wide = vec![0.0; 40];
+        for v in &mut wide[20..28] {
+            *v = -0.7;
+        }
+        assert!(lead_spikes(&wide, 500.0, &pulse).is_empty());
     }
 
     #[test]
