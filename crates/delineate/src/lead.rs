@@ -1648,8 +1648,9 @@ mod tests {
         // (one wave, no baseline between): true end 1.08 s = sample 270.
         let la = pulses(&[(0.96, 0.06, 0.10), (1.02, 0.06, -0.08)]);
         let (lo, hi) = (225, 300); // 0.90-1.20 s
-                                   // Off, with the larger neighbour making the pair (the earlier one
-                                   // here): the end falls inside the negative half.
+
+        // Off, with the larger neighbour making the pair (the earlier one
+        // here): the end falls inside the negative half.
         let off = DelineateConfig {
             p_biphasic_frac: 1.1,
             p_early_pair_frac: 1.0,
