@@ -23,17 +23,19 @@
 //! * it starts with a jump: the step into it (`x[s] − x[s−1]`) is at least
 //!   `min_jump_ratio` times the departure. The narrowest such stretch from `s`
 //!   is taken (a stimulus is abrupt, and its tail may decay over a few samples).
-//! * A stretch wider than `max_width_ms`, up to `max_pulse_ms`, is a spike
-//!   only when it is also left by a jump: the step out of it (`x[e] −
-//!   x[e−1]`) is at least `min_jump_ratio` times the departure too. Some
-//!   front ends record the stimulus as a rectangular pulse of about ten
-//!   milliseconds (LUDB 74 has one of 12 ms: six samples at 500 Hz, about
-//!   0.7 mV in every lead), abrupt at both ends, which no wave is.
 //!
-//! The last two conditions are what separate a spike from a sharp R wave or a
-//! notch in a QRS: the slopes on either side of an R peak are as steep as the
-//! peak is high, and a notch rises over several samples. A
-//! stretch is a pacing spike when at least `min_lead_fraction` of the leads
+//! The quiet flanks and the jump are what separate a spike from a sharp R
+//! wave or a notch in a QRS: the slopes on either side of an R peak are as
+//! steep as the peak is high, and a notch rises over several samples.
+//!
+//! A stretch wider than `max_width_ms`, up to `max_pulse_ms`, is a spike only
+//! when it also departs by at least `pulse_min_mv` and is left by a jump: the
+//! step out of it (`x[e] − x[e−1]`) is at least `min_jump_ratio` times the
+//! departure too. Some front ends record the stimulus as a rectangular pulse
+//! of about ten milliseconds (LUDB 74 has one of 12 ms: six samples at
+//! 500 Hz, about 0.7 mV in every lead), abrupt at both ends, which no wave is.
+//!
+//! A stretch is a pacing spike when at least `min_lead_fraction` of the leads
 //! hold a spike within one sample of it. Every lead is then blanked over the
 //! union of those stretches: the samples are replaced by the straight line
 //! between the last sample before and the first sample after.
