@@ -892,3 +892,39 @@ fn pacing_spikes_are_counted_for_a_paced_record_only() {
         vec![("1".to_string(), 0), ("34".to_string(), 0)]
     );
 }
+
+#[test]
+fn inspect_reads_without_writing_and_sets_exit_codes() {
+    let inp = tempfile::tempdir().unwrap();
+    copy_ludb(inp.path(), "1");
+    let before = walk(inp.path());
+    let o = bin().arg("inspect").arg(inp.path()).output().unwrap();
+    let t = text(&o);
+    assert_eq!(o.status.code(), Some(0), "{t}");
+    // LUDB 1: 12 leads at 500 Hz for 10 s (its header, LUDB 1.0.1).
+    let line = t
+        .lines()
+        .find(|l| l.starts_with("1 "))
+        .expect("row of record 1");
+    let cols: Vec<&str> = line.split_whitespace().collect();
+    assert_eq!(&cols[1..6], ["WFDB", "500", "12", "10.0", "s"], "{t}");
+    assert!(t.contains("1 record(s): 1 read, 0 failed"), "{t}");
+    assert_eq!(walk(inp.path()), before, "inspect wrote beside its inputs");
+
+    // A second record that does not read: listed, exit code 1.
+    std::fs::write(
+        inp.path().join("2.hea"),
+        "2 1 500 5000\n2.dat 16 200 16 0 0 0 0 I\n",
+    )
+    .unwrap();
+    let o = bin().arg("inspect").arg(inp.path()).output().unwrap();
+    let t = text(&o);
+    assert_eq!(o.status.code(), Some(1), "{t}");
+    assert!(t.contains("2.dat"), "the error names the missing file: {t}");
+
+    // Nothing to inspect: a usage error.
+    let empty = tempfile::tempdir().unwrap();
+    let o = bin().arg("inspect").arg(empty.path()).output().unwrap();
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o));
+    assert!(text(&o).contains("no records found"), "{}", text(&o));
+}

@@ -4,6 +4,7 @@
 mod config;
 mod h5layout;
 mod inputs;
+mod inspect;
 mod measures;
 mod pipeline;
 mod run;
@@ -65,6 +66,10 @@ enum Command {
     /// Search thresholds over annotated records with record-level cross-validation;
     /// write the best configuration, the CV table and a report page to --out.
     Tune(tune::TuneArgs),
+    /// List what a run would read, without processing: per record the format, sampling rate,
+    /// leads, duration, sex and age, missing samples, non-ECG signals, reference annotation files
+    /// beside it and any reading error; subjects-table rows without records and vice versa.
+    Inspect(inspect::InspectArgs),
     /// Print the effective configuration (defaults, --config file and --set overrides) after validation.
     Config {
         /// Configuration file (TOML); default: the built-in pipeline.toml.
@@ -264,6 +269,7 @@ fn main() -> ExitCode {
         Command::Run(a) => cmd_run(a),
         Command::Validate(a) => validate::cmd_validate(a),
         Command::Tune(a) => tune::cmd_tune(a),
+        Command::Inspect(a) => inspect::cmd_inspect(a),
         Command::Review { run, out } => cmd_review(&run, out),
         Command::Apply {
             run,

@@ -43,7 +43,7 @@ pub struct Processed {
 }
 
 /// Reject records no stage can work on, naming the problem.
-fn check_record(rec: &Record, path: &Path) -> Result<()> {
+pub(crate) fn check_record(rec: &Record, path: &Path) -> Result<()> {
     if rec.leads.is_empty() {
         bail!("{}: record has no signals", path.display());
     }

@@ -89,7 +89,7 @@ pub fn sha256_file(path: &Path) -> Result<String> {
 }
 
 /// The files a record is made of, found without decoding it (for checksums and resume keys).
-fn input_files(input: &RecordInput) -> Vec<PathBuf> {
+pub(crate) fn input_files(input: &RecordInput) -> Vec<PathBuf> {
     let mut files = vec![input.path.clone()];
     if input
         .path

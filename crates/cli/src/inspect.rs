@@ -1,0 +1,442 @@
+//! `tendline inspect`: what a run would read, checked before any processing.
+//!
+//! A delivery of ECGs (a folder of WFDB, EDF, CSV or aECG files and a subjects
+//! table) is worth checking before a long batch: does every record read, at
+//! which sampling rate, with which leads, for how long, with which missing
+//! samples or non-ECG signals, and does every record find its row in the
+//! subjects table (and every row its record)? `inspect` resolves the INPUTs
+//! exactly as `run` does, reads every record with the same readers and the same
+//! checks (records in parallel), and prints one line per record; `--csv FILE`
+//! writes every field, `--checksums` adds the SHA-256 of each input file (the
+//! values a run stores in `results.h5`). Nothing is written beside the inputs.
+//!
+//! Exit codes follow `run`: 0 when every record reads, 1 when any does not (the
+//! others are still listed), 2 when no input resolves to a record at all.
+
+use crate::inputs::{self, RecordInput};
+use crate::pipeline::check_record;
+use crate::run::{input_files, sha256_file};
+use anyhow::{Context, Result};
+use rayon::prelude::*;
+use std::collections::BTreeSet;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+use tendline_formats::subjects::SubjectRow;
+
+#[derive(clap::Args)]
+pub struct InspectArgs {
+    /// Folders, RECORDS lists, or record paths, as for `run`.
+    #[arg(required = true)]
+    inputs: Vec<PathBuf>,
+    /// Write every field of every record to this CSV file.
+    #[arg(long, value_name = "FILE")]
+    csv: Option<PathBuf>,
+    /// Subjects CSV to check against the records; default: subjects.csv in an input folder.
+    #[arg(long)]
+    subjects: Option<PathBuf>,
+    /// Add the SHA-256 of every input file (reads each file once more).
+    #[arg(long)]
+    checksums: bool,
+    /// Sampling rate (Hz) for CSV records that do not state one.
+    #[arg(long, value_name = "HZ")]
+    csv_fs: Option<f64>,
+}
+
+/// One record as read.
+#[derive(Debug, Default)]
+struct Row {
+    name: String,
+    path: PathBuf,
+    format: &'static str,
+    fs: Option<f64>,
+    n_samples: Option<usize>,
+    /// (name, units, why it is not analysed as ECG, missing samples).
+    leads: Vec<(String, String, Option<String>, usize)>,
+    /// Leads whose readable samples all have one value (a disconnected
+    /// electrode, a zero-filled channel): they read, but hold no ECG.
+    flat: Vec<String>,
+    sex: Option<&'static str>,
+    age: Option<f64>,
+    subject: Option<String>,
+    timepoint: Option<String>,
+    arm: Option<String>,
+    files: Vec<PathBuf>,
+    sha256: Vec<String>,
+    /// Extensions of the files beside the record that share its name and are
+    /// not its signal files (reference annotations such as `q1c`, `atr`, `i`).
+    annotations: Vec<String>,
+    warnings: Vec<String>,
+    error: Option<String>,
+}
+
+impl Row {
+    fn duration_s(&self) -> Option<f64> {
+        self.fs.zip(self.n_samples).map(|(fs, n)| n as f64 / fs)
+    }
+    fn missing(&self) -> usize {
+        self.leads.iter().map(|l| l.3).sum()
+    }
+}
+
+/// The format a path is read as (the reader `tendline_formats::read_record` picks).
+fn format_of(path: &Path) -> &'static str {
+    match path
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase())
+        .as_deref()
+    {
+        Some("edf") => "EDF",
+        Some("bdf") => "BDF",
+        Some("ecg") => "ISHNE",
+        Some("csv") => "CSV",
+        Some("xml") => "HL7 aECG",
+        _ => "WFDB",
+    }
+}
+
+/// Sibling files `<stem>.<ext>` that are not among the record's own files.
+fn annotation_exts(path: &Path, own: &[PathBuf]) -> Vec<String> {
+    let (Some(dir), Some(stem)) = (path.parent(), path.file_stem()) else {
+        return Vec::new();
+    };
+    let dir = if dir.as_os_str().is_empty() {
+        Path::new(".")
+    } else {
+        dir
+    };
+    let signal = ["hea", "dat", "edf", "bdf", "ecg", "csv", "xml", "mat"];
+    let mut out = BTreeSet::new();
+    if let Ok(rd) = std::fs::read_dir(dir) {
+        for e in rd.flatten() {
+            let p = e.path();
+            if p.file_stem() != Some(stem) || own.iter().any(|o| o == &p) || !p.is_file() {
+                continue;
+            }
+            if let Some(ext) = p.extension().map(|x| x.to_string_lossy().into_owned()) {
+                if !signal.contains(&ext.to_ascii_lowercase().as_str()) {
+                    out.insert(ext);
+                }
+            }
+        }
+    }
+    out.into_iter().collect()
+}
+
+fn inspect_one(
+    input: &RecordInput,
+    csv_fs: Option<f64>,
+    checksums: bool,
+    subject: Option<&SubjectRow>,
+) -> Row {
+    let mut row = Row {
+        name: input.name.clone(),
+        path: input.path.clone(),
+        format: format_of(&input.path),
+        ..Default::default()
+    };
+    if let Some(p) = &input.problem {
+        row.error = Some(p.clone());
+        return row;
+    }
+    let files = input_files(input);
+    if checksums {
+        match files
+            .iter()
+            .map(|f| sha256_file(f))
+            .collect::<Result<Vec<_>>>()
+        {
+            Ok(s) => row.sha256 = s,
+            Err(e) => row.error = Some(format!("{e:#}")),
+        }
+    }
+    row.annotations = annotation_exts(&input.path, &files);
+    row.files = files;
+    let opts = tendline_formats::ReadOptions { csv_fs };
+    let mut rec = match tendline_formats::read_record(&input.path, &opts) {
+        Ok(r) => r,
+        Err(e) => {
+            row.error = Some(e.to_string());
+            return row;
+        }
+    };
+    if let Some(s) = subject {
+        s.apply(&mut rec.meta);
+    }
+    row.fs = Some(rec.fs);
+    row.n_samples = Some(rec.n_samples());
+    row.leads = rec
+        .leads
+        .iter()
+        .map(|l| {
+            (
+                l.name.clone(),
+                l.units.clone(),
+                tendline_formats::signals::non_ecg_reason(&l.name, &l.units),
+                l.samples.iter().filter(|v| v.is_nan()).count(),
+            )
+        })
+        .collect();
+    row.flat = rec
+        .leads
+        .iter()
+        .filter(|l| {
+            let mut v = l.samples.iter().filter(|x| x.is_finite());
+            v.next().is_some_and(|first| v.all(|x| x == first))
+        })
+        .map(|l| l.name.clone())
+        .collect();
+    row.sex = rec.meta.sex.map(|s| s.code());
+    row.age = rec.meta.age;
+    row.subject = rec.meta.subject.clone();
+    row.timepoint = rec.meta.timepoint.clone();
+    row.arm = rec.meta.arm.clone();
+    row.warnings = rec.warnings.clone();
+    if let Err(e) = check_record(&rec, &input.path) {
+        row.error.get_or_insert(format!("{e:#}"));
+    } else if row.leads.iter().all(|l| l.2.is_some()) {
+        row.error = Some(format!(
+            "{}: no ECG lead among the signals",
+            input.path.display()
+        ));
+    }
+    row
+}
+
+fn csv_cell(s: &str) -> String {
+    if s.contains([',', '"', '\n']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+const CSV_HEADER: &str = "record,status,format,path,fs_hz,n_samples,duration_s,n_leads,leads,units,\
+non_ecg,flat_leads,missing_samples,sex,age,subject,timepoint,arm,annotations,files,sha256,warnings,error";
+
+fn csv_text(rows: &[Row]) -> String {
+    let mut s = String::from(CSV_HEADER);
+    s.push('\n');
+    let join = |v: Vec<String>| csv_cell(&v.join(";"));
+    for r in rows {
+        let cells = [
+            csv_cell(&r.name),
+            if r.error.is_some() { "failed" } else { "ok" }.into(),
+            r.format.into(),
+            csv_cell(&r.path.display().to_string()),
+            r.fs.map(|f| format!("{f}")).unwrap_or_default(),
+            r.n_samples.map(|n| n.to_string()).unwrap_or_default(),
+            r.duration_s()
+                .map(|d| format!("{d:.3}"))
+                .unwrap_or_default(),
+            if r.leads.is_empty() {
+                String::new()
+            } else {
+                r.leads.len().to_string()
+            },
+            join(r.leads.iter().map(|l| l.0.clone()).collect()),
+            join(r.leads.iter().map(|l| l.1.clone()).collect()),
+            join(
+                r.leads
+                    .iter()
+                    .filter_map(|l| l.2.as_ref().map(|why| format!("{}: {why}", l.0)))
+                    .collect(),
+            ),
+            join(r.flat.clone()),
+            if r.leads.is_empty() {
+                String::new()
+            } else {
+                r.missing().to_string()
+            },
+            r.sex.unwrap_or("").into(),
+            r.age.map(|a| format!("{a}")).unwrap_or_default(),
+            csv_cell(r.subject.as_deref().unwrap_or("")),
+            csv_cell(r.timepoint.as_deref().unwrap_or("")),
+            csv_cell(r.arm.as_deref().unwrap_or("")),
+            join(r.annotations.clone()),
+            join(r.files.iter().map(|f| f.display().to_string()).collect()),
+            join(r.sha256.clone()),
+            join(r.warnings.clone()),
+            csv_cell(r.error.as_deref().unwrap_or("")),
+        ];
+        s.push_str(&cells.join(","));
+        s.push('\n');
+    }
+    s
+}
+
+/// `12.3 s`, `14:59` (min:s) or `24:00:00` (h:min:s).
+fn fmt_duration(d: f64) -> String {
+    if d < 60.0 {
+        return format!("{d:.1} s");
+    }
+    let t = d.round() as u64;
+    if t < 3600 {
+        format!("{}:{:02}", t / 60, t % 60)
+    } else {
+        format!("{}:{:02}:{:02}", t / 3600, (t / 60) % 60, t % 60)
+    }
+}
+
+fn table(rows: &[Row]) -> String {
+    let mut s = format!(
+        "{:<20} {:<8} {:>8} {:>5} {:>10} {:<3} {:>4}  notes\n",
+        "record", "format", "fs Hz", "leads", "duration", "sex", "age"
+    );
+    for r in rows {
+        let mut notes: Vec<String> = Vec::new();
+        if let Some(e) = &r.error {
+            notes.push(format!("FAILED: {e}"));
+        } else {
+            let non_ecg: Vec<&str> = r
+                .leads
+                .iter()
+                .filter(|l| l.2.is_some())
+                .map(|l| l.0.as_str())
+                .collect();
+            if !non_ecg.is_empty() {
+                notes.push(format!("not ECG: {}", non_ecg.join(", ")));
+            }
+            if !r.flat.is_empty() {
+                notes.push(format!("flat: {}", r.flat.join(", ")));
+            }
+            if r.missing() > 0 {
+                notes.push(format!("{} missing samples", r.missing()));
+            }
+            notes.extend(r.warnings.iter().cloned());
+            if !r.annotations.is_empty() {
+                notes.push(format!("annotations: {}", r.annotations.join(" ")));
+            }
+        }
+        s.push_str(&format!(
+            "{:<20} {:<8} {:>8} {:>5} {:>10} {:<3} {:>4}  {}\n",
+            r.name,
+            r.format,
+            r.fs.map(|f| format!("{f}")).unwrap_or_default(),
+            if r.leads.is_empty() {
+                String::new()
+            } else {
+                r.leads.len().to_string()
+            },
+            r.duration_s().map(fmt_duration).unwrap_or_default(),
+            r.sex.unwrap_or(""),
+            r.age.map(|a| format!("{a}")).unwrap_or_default(),
+            notes.join("; ")
+        ));
+    }
+    s
+}
+
+pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
+    if let Some(fs) = a.csv_fs {
+        if !(fs.is_finite() && fs > 0.0) {
+            anyhow::bail!("--csv-fs: allowed a positive sampling rate in Hz, got {fs}");
+        }
+    }
+    let records = inputs::resolve(&a.inputs);
+    if records.is_empty() {
+        anyhow::bail!("no records found in the inputs given");
+    }
+    let subjects_file = a
+        .subjects
+        .clone()
+        .or_else(|| inputs::folder_subjects(&a.inputs));
+    let subjects = match &subjects_file {
+        Some(p) => tendline_formats::subjects::read_subjects(p)
+            .with_context(|| format!("--subjects {}", p.display()))?,
+        None => Default::default(),
+    };
+    let rows: Vec<Row> = records
+        .par_iter()
+        .map(|r| inspect_one(r, a.csv_fs, a.checksums, subjects.get(&r.name)))
+        .collect();
+    print!("{}", table(&rows));
+
+    let failed = rows.iter().filter(|r| r.error.is_some()).count();
+    let total_s: f64 = rows.iter().filter_map(Row::duration_s).sum();
+    let mut fs: Vec<f64> = rows.iter().filter_map(|r| r.fs).collect();
+    fs.sort_by(f64::total_cmp);
+    fs.dedup();
+    let rates: Vec<String> = fs.iter().map(|f| format!("{f} Hz")).collect();
+    eprintln!(
+        "{} record(s): {} read, {} failed; {:.1} h of signal; sampling rates: {}",
+        rows.len(),
+        rows.len() - failed,
+        failed,
+        total_s / 3600.0,
+        if rates.is_empty() {
+            "none".into()
+        } else {
+            rates.join(", ")
+        }
+    );
+    if let Some(p) = &subjects_file {
+        let names: BTreeSet<&str> = rows.iter().map(|r| r.name.as_str()).collect();
+        let without: Vec<&str> = rows
+            .iter()
+            .filter(|r| !subjects.contains_key(&r.name))
+            .map(|r| r.name.as_str())
+            .collect();
+        let unmatched: Vec<&str> = subjects
+            .keys()
+            .map(String::as_str)
+            .filter(|k| !names.contains(k))
+            .collect();
+        eprintln!(
+            "subjects {}: {} row(s); {} record(s) without a row{}; {} row(s) naming no record found{}",
+            p.display(),
+            subjects.len(),
+            without.len(),
+            list_some(&without),
+            unmatched.len(),
+            list_some(&unmatched)
+        );
+    }
+    if let Some(p) = &a.csv {
+        tendline_store::write_atomic(p, csv_text(&rows).as_bytes())
+            .with_context(|| format!("--csv {}", p.display()))?;
+    }
+    Ok(if failed > 0 {
+        ExitCode::from(1)
+    } else {
+        ExitCode::SUCCESS
+    })
+}
+
+/// ` (a, b, c, …)` for a short list, nothing for an empty one.
+fn list_some(v: &[&str]) -> String {
+    match v.len() {
+        0 => String::new(),
+        1..=8 => format!(" ({})", v.join(", ")),
+        _ => format!(" ({}, … {} more)", v[..8].join(", "), v.len() - 8),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn durations_read_as_seconds_minutes_or_hours() {
+        assert_eq!(fmt_duration(10.0), "10.0 s");
+        assert_eq!(fmt_duration(899.9), "15:00");
+        assert_eq!(fmt_duration(86_400.0), "24:00:00");
+        assert_eq!(fmt_duration(3_725.0), "1:02:05");
+    }
+
+    #[test]
+    fn csv_cells_with_separators_are_quoted() {
+        let r = Row {
+            name: "a,b".into(),
+            format: "CSV",
+            error: Some("bad \"x\"".into()),
+            ..Default::default()
+        };
+        let t = csv_text(&[r]);
+        let line = t.lines().nth(1).unwrap();
+        assert!(line.starts_with("\"a,b\",failed,CSV,"), "{line}");
+        assert!(line.ends_with(",\"bad \"\"x\"\"\""), "{line}");
+        // One column per header name: the quoted comma is the only extra one.
+        let header_commas = t.lines().next().unwrap().matches(',').count();
+        assert_eq!(line.matches(',').count(), header_commas + 1, "{t}");
+    }
+}
