@@ -358,11 +358,11 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
     fs.dedup();
     let rates: Vec<String> = fs.iter().map(|f| format!("{f} Hz")).collect();
     eprintln!(
-        "{} record(s): {} read, {} failed; {:.1} h of signal; sampling rates: {}",
+        "{} record(s): {} read, {} failed; {} of signal; sampling rates: {}",
         rows.len(),
         rows.len() - failed,
         failed,
-        total_s / 3600.0,
+        fmt_duration(total_s),
         if rates.is_empty() {
             "none".into()
         } else {
