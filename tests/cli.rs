@@ -910,6 +910,34 @@ fn inspect_reads_without_writing_and_sets_exit_codes() {
     assert_eq!(&cols[1..6], ["WFDB", "500", "12", "10.0", "s"], "{t}");
     assert!(t.contains("1 record(s): 1 read, 0 failed"), "{t}");
     assert_eq!(walk(inp.path()), before, "inspect wrote beside its inputs");
+    assert!(!t.contains("identical signals"), "{t}");
+
+    // The same samples under another name: reported as a possible duplicate.
+    let hea = std::fs::read_to_string(inp.path().join("1.hea")).unwrap();
+    let dup: String = hea
+        .lines()
+        .enumerate()
+        .map(|(i, l)| {
+            let l = if i == 0 {
+                l.replacen('1', "dup", 1)
+            } else {
+                l.replacen("1.dat", "dup.dat", 1)
+            };
+            l + "\n"
+        })
+        .collect();
+    std::fs::write(inp.path().join("dup.hea"), dup).unwrap();
+    std::fs::copy(inp.path().join("1.dat"), inp.path().join("dup.dat")).unwrap();
+    let o = bin().arg("inspect").arg(inp.path()).output().unwrap();
+    let t = text(&o);
+    assert_eq!(o.status.code(), Some(0), "{t}");
+    assert!(
+        t.contains("identical signals (a record delivered twice?): 1, dup"),
+        "{t}"
+    );
+    for f in ["dup.hea", "dup.dat"] {
+        std::fs::remove_file(inp.path().join(f)).unwrap();
+    }
 
     // A second record that does not read: listed, exit code 1.
     std::fs::write(

@@ -52,6 +52,10 @@ struct Row {
     n_samples: Option<usize>,
     /// (name, units, why it is not analysed as ECG, missing samples).
     leads: Vec<(String, String, Option<String>, usize)>,
+    /// SHA-256 of the decoded signal (sampling rate, then every lead's samples as
+    /// little-endian `f64`, NaN in one canonical form): equal for two records whose
+    /// samples are equal, whatever their names, headers or formats.
+    signal_sha256: Option<String>,
     /// Leads whose readable samples all have one value (a disconnected
     /// electrode, a zero-filled channel): they read, but hold no ECG.
     flat: Vec<String>,
@@ -176,6 +180,7 @@ fn inspect_one(
             )
         })
         .collect();
+    row.signal_sha256 = Some(signal_digest(&rec));
     row.flat = rec
         .leads
         .iter()
@@ -202,6 +207,34 @@ fn inspect_one(
     row
 }
 
+fn signal_digest(rec: &tendline_formats::Record) -> String {
+    use sha2::{Digest, Sha256};
+    let mut h = Sha256::new();
+    h.update(rec.fs.to_le_bytes());
+    h.update((rec.leads.len() as u64).to_le_bytes());
+    let mut buf = Vec::new();
+    for l in &rec.leads {
+        buf.clear();
+        buf.extend(l.samples.iter().flat_map(|v| {
+            let v = if v.is_nan() { f64::NAN } else { *v };
+            v.to_le_bytes()
+        }));
+        h.update(&buf);
+    }
+    hex::encode(h.finalize())
+}
+
+/// Groups of two or more records with the same decoded signal.
+fn identical_signals(rows: &[Row]) -> Vec<Vec<&str>> {
+    let mut by: std::collections::BTreeMap<&str, Vec<&str>> = Default::default();
+    for r in rows.iter().filter(|r| r.error.is_none()) {
+        if let Some(d) = &r.signal_sha256 {
+            by.entry(d.as_str()).or_default().push(r.name.as_str());
+        }
+    }
+    by.into_values().filter(|v| v.len() > 1).collect()
+}
+
 fn csv_cell(s: &str) -> String {
     if s.contains([',', '"', '\n']) {
         format!("\"{}\"", s.replace('"', "\"\""))
@@ -211,7 +244,7 @@ fn csv_cell(s: &str) -> String {
 }
 
 const CSV_HEADER: &str = "record,status,format,path,fs_hz,n_samples,duration_s,n_leads,leads,units,\
-non_ecg,flat_leads,missing_samples,sex,age,subject,timepoint,arm,annotations,files,sha256,warnings,error";
+non_ecg,flat_leads,missing_samples,sex,age,subject,timepoint,arm,annotations,files,sha256,signal_sha256,warnings,error";
 
 fn csv_text(rows: &[Row]) -> String {
     let mut s = String::from(CSV_HEADER);
@@ -255,6 +288,7 @@ fn csv_text(rows: &[Row]) -> String {
             join(r.annotations.clone()),
             join(r.files.iter().map(|f| f.display().to_string()).collect()),
             join(r.sha256.clone()),
+            r.signal_sha256.clone().unwrap_or_default(),
             join(r.warnings.clone()),
             csv_cell(r.error.as_deref().unwrap_or("")),
         ];
@@ -369,6 +403,13 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
             rates.join(", ")
         }
     );
+    let same = identical_signals(&rows);
+    for g in &same {
+        eprintln!(
+            "identical signals (a record delivered twice?): {}",
+            g.join(", ")
+        );
+    }
     if let Some(p) = &subjects_file {
         let names: BTreeSet<&str> = rows.iter().map(|r| r.name.as_str()).collect();
         let without: Vec<&str> = rows
