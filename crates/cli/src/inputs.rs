@@ -20,7 +20,7 @@
 //! that carries the problem, and the batch reports it as a failed record. The same
 //! file named twice (a folder and one of its records) is processed once.
 
-use anyhow::{bail, Result};
+use anyhow::{bail, Context, Result};
 use std::collections::BTreeMap;
 use std::path::{Component, Path, PathBuf};
 
@@ -258,6 +258,36 @@ pub fn folder_subjects(inputs: &[PathBuf]) -> Option<PathBuf> {
         .filter(|p| p.is_dir())
         .map(|p| p.join("subjects.csv"))
         .find(|p| p.is_file())
+}
+
+/// The subjects table of a run or an inspection: `explicit` (`--subjects`) or
+/// else `subjects.csv` in an input folder, read; none when neither exists.
+pub fn load_subjects(
+    explicit: Option<&Path>,
+    inputs: &[PathBuf],
+) -> Result<(
+    Option<PathBuf>,
+    BTreeMap<String, tendline_formats::subjects::SubjectRow>,
+)> {
+    let file = explicit
+        .map(Path::to_path_buf)
+        .or_else(|| folder_subjects(inputs));
+    let rows = match &file {
+        Some(p) => tendline_formats::subjects::read_subjects(p)
+            .with_context(|| format!("--subjects {}", p.display()))?,
+        None => BTreeMap::new(),
+    };
+    Ok((file, rows))
+}
+
+/// `--csv-fs`, when given, must be a positive rate.
+pub fn check_csv_fs(csv_fs: Option<f64>) -> Result<()> {
+    match csv_fs {
+        Some(fs) if !(fs.is_finite() && fs > 0.0) => {
+            bail!("--csv-fs: allowed a positive sampling rate in Hz, got {fs}")
+        }
+        _ => Ok(()),
+    }
 }
 
 #[cfg(test)]

@@ -16,6 +16,7 @@
 use crate::inputs::{self, RecordInput};
 use crate::pipeline::check_record;
 use crate::run::{input_files, sha256_file};
+use crate::tables::csv_cell;
 use anyhow::{Context, Result};
 use rayon::prelude::*;
 use std::collections::BTreeSet;
@@ -235,14 +236,6 @@ fn identical_signals(rows: &[Row]) -> Vec<Vec<&str>> {
     by.into_values().filter(|v| v.len() > 1).collect()
 }
 
-fn csv_cell(s: &str) -> String {
-    if s.contains([',', '"', '\n']) {
-        format!("\"{}\"", s.replace('"', "\"\""))
-    } else {
-        s.to_string()
-    }
-}
-
 const CSV_HEADER: &str = "record,status,format,path,fs_hz,n_samples,duration_s,n_leads,leads,units,\
 non_ecg,flat_leads,missing_samples,sex,age,subject,timepoint,arm,annotations,files,sha256,signal_sha256,warnings,error";
 
@@ -361,24 +354,12 @@ fn table(rows: &[Row]) -> String {
 }
 
 pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
-    if let Some(fs) = a.csv_fs {
-        if !(fs.is_finite() && fs > 0.0) {
-            anyhow::bail!("--csv-fs: allowed a positive sampling rate in Hz, got {fs}");
-        }
-    }
+    inputs::check_csv_fs(a.csv_fs)?;
     let records = inputs::resolve(&a.inputs);
     if records.is_empty() {
         anyhow::bail!("no records found in the inputs given");
     }
-    let subjects_file = a
-        .subjects
-        .clone()
-        .or_else(|| inputs::folder_subjects(&a.inputs));
-    let subjects = match &subjects_file {
-        Some(p) => tendline_formats::subjects::read_subjects(p)
-            .with_context(|| format!("--subjects {}", p.display()))?,
-        None => Default::default(),
-    };
+    let (subjects_file, subjects) = inputs::load_subjects(a.subjects.as_deref(), &a.inputs)?;
     let rows: Vec<Row> = records
         .par_iter()
         .map(|r| inspect_one(r, a.csv_fs, a.checksums, subjects.get(&r.name)))

@@ -129,20 +129,8 @@ fn cmd_run(a: RunArgs) -> Result<ExitCode> {
         }
         anyhow::bail!("no record to process:\n  {}", problems.join("\n  "));
     }
-    let subjects_file = a
-        .subjects
-        .clone()
-        .or_else(|| inputs::folder_subjects(&a.inputs));
-    let subjects = match &subjects_file {
-        Some(p) => tendline_formats::subjects::read_subjects(p)
-            .with_context(|| format!("--subjects {}", p.display()))?,
-        None => Default::default(),
-    };
-    if let Some(csv_fs) = a.csv_fs {
-        if !(csv_fs.is_finite() && csv_fs > 0.0) {
-            anyhow::bail!("--csv-fs: allowed a positive sampling rate in Hz, got {csv_fs}");
-        }
-    }
+    let (subjects_file, subjects) = inputs::load_subjects(a.subjects.as_deref(), &a.inputs)?;
+    inputs::check_csv_fs(a.csv_fs)?;
     let jobs = match a.jobs {
         Some(0) => anyhow::bail!("--jobs: allowed 1 or more threads, got 0"),
         Some(n) => n,

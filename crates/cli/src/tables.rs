@@ -33,7 +33,7 @@ fn fmt_f(v: Option<f64>, digits: usize) -> String {
     v.map(|x| format!("{x:.digits$}")).unwrap_or_default()
 }
 
-fn csv_cell(s: &str) -> String {
+pub(crate) fn csv_cell(s: &str) -> String {
     if s.contains([',', '"', '\n']) {
         format!("\"{}\"", s.replace('"', "\"\""))
     } else {
