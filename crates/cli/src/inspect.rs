@@ -15,7 +15,7 @@
 
 use crate::inputs::{self, RecordInput};
 use crate::pipeline::check_record;
-use crate::run::{input_files, sha256_file};
+use crate::run::{input_files, panic_text, sha256_file};
 use crate::tables::csv_cell;
 use anyhow::{Context, Result};
 use rayon::prelude::*;
@@ -362,7 +362,20 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
     let (subjects_file, subjects) = inputs::load_subjects(a.subjects.as_deref(), &a.inputs)?;
     let rows: Vec<Row> = records
         .par_iter()
-        .map(|r| inspect_one(r, a.csv_fs, a.checksums, subjects.get(&r.name)))
+        .map(|r| {
+            // A reader that panics on one file must not end the listing: that
+            // record is listed as failed, as a run would record it.
+            std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+                inspect_one(r, a.csv_fs, a.checksums, subjects.get(&r.name))
+            }))
+            .unwrap_or_else(|p| Row {
+                name: r.name.clone(),
+                path: r.path.clone(),
+                format: format_of(&r.path),
+                error: Some(format!("internal error (panic): {}", panic_text(p))),
+                ..Default::default()
+            })
+        })
         .collect();
     print!("{}", table(&rows));
 

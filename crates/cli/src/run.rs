@@ -128,7 +128,7 @@ fn record_key(
     hex::encode(h.finalize())
 }
 
-fn panic_text(p: Box<dyn std::any::Any + Send>) -> String {
+pub(crate) fn panic_text(p: Box<dyn std::any::Any + Send>) -> String {
     if let Some(s) = p.downcast_ref::<&str>() {
         s.to_string()
     } else if let Some(s) = p.downcast_ref::<String>() {
