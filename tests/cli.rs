@@ -956,3 +956,34 @@ fn inspect_reads_without_writing_and_sets_exit_codes() {
     assert_eq!(o.status.code(), Some(2), "{}", text(&o));
     assert!(text(&o).contains("no records found"), "{}", text(&o));
 }
+
+#[test]
+fn memory_budget_orders_records_and_never_refuses_one() {
+    let inp = tempfile::tempdir().unwrap();
+    let out = tempfile::tempdir().unwrap();
+    copy_ludb(inp.path(), "1");
+    copy_ludb(inp.path(), "2");
+    // 1 MiB is less than either record needs: each runs alone, both complete.
+    let o = bin()
+        .args(["run", "--jobs", "2", "--max-memory", "1", "--out"])
+        .arg(out.path())
+        .arg(inp.path())
+        .output()
+        .unwrap();
+    let t = text(&o);
+    assert_eq!(o.status.code(), Some(0), "{t}");
+    assert!(t.contains("memory budget 1 MiB"), "{t}");
+    assert!(t.contains("2 of 2 records complete"), "{t}");
+    let o = bin()
+        .args(["run", "--max-memory", "0", "--out"])
+        .arg(out.path())
+        .arg(inp.path())
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o));
+    assert!(
+        text(&o).contains("--max-memory: allowed 1 MiB or more, got 0"),
+        "{}",
+        text(&o)
+    );
+}

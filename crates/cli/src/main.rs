@@ -1,6 +1,7 @@
 //! `tendline`: the command line. It parses arguments, builds the validated
 //! configuration, hands work to the library stages and reports; nothing else.
 
+mod budget;
 mod config;
 mod h5layout;
 mod inputs;
@@ -113,6 +114,10 @@ struct RunArgs {
     /// Sampling rate (Hz) for CSV records that do not state one.
     #[arg(long, value_name = "HZ")]
     csv_fs: Option<f64>,
+    /// Memory budget (MiB): records start only while their estimated need fits (long
+    /// recordings then run fewer at a time); default: 3/4 of the memory available at the start.
+    #[arg(long, value_name = "MIB")]
+    max_memory: Option<u64>,
 }
 
 fn cmd_run(a: RunArgs) -> Result<ExitCode> {
@@ -146,6 +151,10 @@ fn cmd_run(a: RunArgs) -> Result<ExitCode> {
         force: a.force,
         quiet: a.quiet,
         csv_fs: a.csv_fs,
+        max_memory: match a.max_memory {
+            Some(0) => anyhow::bail!("--max-memory: allowed 1 MiB or more, got 0"),
+            m => m.map(|m| m << 20),
+        },
     };
     let report = run::run(&opts)?;
     let subj = tables::subject_results(&report.parts, &opts.config.measure.subject);

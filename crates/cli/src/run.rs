@@ -11,6 +11,7 @@
 //!   as soon as it is processed or reused, so writing overlaps processing;
 //!   `tendline apply` rebuilds them from the part files.
 
+use crate::budget::Budget;
 use crate::config::PipelineConfig;
 use crate::inputs::RecordInput;
 use crate::pipeline::{self, Context};
@@ -40,6 +41,9 @@ pub struct RunOptions {
     pub force: bool,
     pub quiet: bool,
     pub csv_fs: Option<f64>,
+    /// Memory budget in bytes (`--max-memory`); `None`: three quarters of the
+    /// memory available at the start (see [`crate::budget`]).
+    pub max_memory: Option<u64>,
 }
 
 /// How one record ended.
@@ -210,6 +214,7 @@ fn stage_all(files: Vec<(PathBuf, Vec<u8>)>) -> Result<Staged> {
 
 fn process_one(
     input: &RecordInput,
+    budget: &Budget,
     ctx: &Context,
     opts: &RunOptions,
     samples: &AtomicU64,
@@ -251,7 +256,10 @@ fn process_one(
                 }
             }
         }
-        let processed = pipeline::process_record(input, ctx, subject, &checksums)?;
+        let processed = {
+            let _share = budget.acquire(crate::budget::need_bytes(input));
+            pipeline::process_record(input, ctx, subject, &checksums)?
+        };
         samples.fetch_add(processed.n_samples, Ordering::Relaxed);
         let encode = |path: PathBuf, anns: &[tendline_formats::Annotation]| {
             tendline_formats::annotation::encode_annotations(anns)
@@ -361,6 +369,13 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
         .build()
         .context("cannot start worker threads")?;
     let n = opts.records.len();
+    let budget = Budget::new(
+        opts.max_memory
+            .or_else(|| crate::budget::available_bytes().map(|a| a / 4 * 3)),
+    );
+    if !opts.quiet {
+        note_budget(opts, &budget);
+    }
     let pb = progress_bar(n, opts.quiet);
     let plain = !opts.quiet && !std::io::stderr().is_terminal();
     let samples = AtomicU64::new(0);
@@ -402,7 +417,7 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
             failed
         });
         let results = run_records(
-            opts, &pool, &ctx, &samples, &done, &log, &pb, plain, t0, &tx,
+            opts, &budget, &pool, &ctx, &samples, &done, &log, &pb, plain, t0, &tx,
         );
         drop(tx);
         // The committer catches the panics of its jobs; any other is re-raised.
@@ -451,10 +466,35 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
     Ok(report)
 }
 
+/// Say when the memory budget will keep records from running side by side:
+/// the largest `jobs` records together need more than it.
+fn note_budget(opts: &RunOptions, budget: &Budget) {
+    let Some(total) = budget.total() else {
+        return;
+    };
+    let mut needs: Vec<u64> = opts
+        .records
+        .iter()
+        .filter(|r| r.problem.is_none())
+        .map(crate::budget::need_bytes)
+        .collect();
+    needs.sort_unstable_by(|a, b| b.cmp(a));
+    let top: u64 = needs.iter().take(opts.jobs.max(1)).sum();
+    if opts.jobs > 1 && top > total {
+        eprintln!(
+            "memory budget {} MiB (`--max-memory`): the longest records need up to {} MiB each \
+             and run fewer at a time",
+            total >> 20,
+            needs[0] >> 20
+        );
+    }
+}
+
 /// The records on the worker pool, in input order; finished ones go to `tx`.
 #[allow(clippy::too_many_arguments)]
 fn run_records(
     opts: &RunOptions,
+    budget: &Budget,
     pool: &rayon::ThreadPool,
     ctx: &Context,
     samples: &AtomicU64,
@@ -472,7 +512,7 @@ fn run_records(
             .enumerate()
             .map(|(index, input)| {
                 let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                    process_one(input, ctx, opts, samples, (tx, index))
+                    process_one(input, budget, ctx, opts, samples, (tx, index))
                 }))
                 .unwrap_or_else(|p| {
                     (
@@ -560,6 +600,7 @@ pub fn rebuild_outputs(out: &Path) -> Result<()> {
         force: false,
         quiet: true,
         csv_fs: None,
+        max_memory: None,
     };
     write_run_outputs(&opts, &ctx, &report)?;
     let subj = tables::subject_results(&report.parts, &opts.config.measure.subject);

@@ -75,6 +75,7 @@ pub fn cmd_validate(a: ValidateArgs) -> Result<ExitCode> {
             force: false,
             quiet: a.quiet,
             csv_fs: None,
+            max_memory: None,
         };
         let report = crate::run::run(&opts)?;
         let failed = report.failures();

@@ -1,0 +1,195 @@
+//! Memory budget of a run: records start only while their estimated memory
+//! fits, so a folder of long recordings processed in parallel cannot exhaust
+//! the machine's memory (an out-of-memory kill would end the whole batch,
+//! records in flight and all).
+//!
+//! A record's need is estimated before it is read, from its header or file
+//! size: its samples as `f64` (8 bytes per sample and lead), times
+//! [`WORKING_FACTOR`] for what reading and processing hold beside them, plus
+//! [`BASE_BYTES`]. Measured (peak resident memory of `tendline run --jobs 1`
+//! on one record, `/usr/bin/time`): a 1-hour 12-lead record at 1000 Hz (43.2 M
+//! samples, 346 MB as `f64`) peaked at 702 MB, 2.03 times its samples; a
+//! 15-minute QTDB record (0.45 M samples) at about 100 MB, mostly the
+//! program itself. The budget is `--max-memory` (MiB) or else three quarters
+//! of the memory the kernel reports available when the run starts
+//! (`MemAvailable` in `/proc/meminfo`); without either there is no limit.
+//!
+//! A record whose need exceeds the whole budget still runs, alone: the budget
+//! orders records, it never refuses one.
+
+use crate::inputs::RecordInput;
+use std::path::Path;
+use std::sync::{Condvar, Mutex};
+
+/// Memory held while a record is read and processed, per byte of its samples
+/// as `f64` (see the module docs for the measurement).
+pub const WORKING_FACTOR: f64 = 2.1;
+/// Memory of a record beyond its samples: buffers of the stages, the part file.
+pub const BASE_BYTES: u64 = 48 << 20;
+
+/// Bytes a record's samples take as `f64`, estimated without decoding it:
+/// from a WFDB header's frame count, else from the file sizes (binary formats
+/// store 2 to 3 bytes per sample, text about 8 characters per value).
+pub fn sample_bytes(input: &RecordInput) -> u64 {
+    let path = &input.path;
+    let ext = path
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase());
+    let size = |p: &Path| std::fs::metadata(p).map(|m| m.len()).unwrap_or(0);
+    match ext.as_deref() {
+        Some("edf") | Some("ecg") => size(path) * 4,
+        Some("bdf") => size(path) * 8 / 3,
+        Some("csv") | Some("xml") => size(path),
+        _ => wfdb_sample_bytes(path).unwrap_or(0),
+    }
+}
+
+fn wfdb_sample_bytes(path: &Path) -> Option<u64> {
+    let hea = tendline_formats::wfdb::header_path_of(path);
+    let text = std::fs::read_to_string(&hea).ok()?;
+    let h = tendline_formats::wfdb::parse_header(&text, &hea).ok()?;
+    let spf = h
+        .signals
+        .iter()
+        .map(|s| u64::from(s.samples_per_frame.max(1)))
+        .max()
+        .unwrap_or(1);
+    let n_sig = h.n_sig.max(h.signals.len()) as u64;
+    Some(h.n_frames? * spf * n_sig * 8)
+}
+
+/// Estimated peak memory of processing `input` (bytes).
+pub fn need_bytes(input: &RecordInput) -> u64 {
+    (sample_bytes(input) as f64 * WORKING_FACTOR) as u64 + BASE_BYTES
+}
+
+/// `MemAvailable` of `/proc/meminfo` in bytes (Linux), if readable.
+pub fn available_bytes() -> Option<u64> {
+    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
+    let line = text.lines().find(|l| l.starts_with("MemAvailable:"))?;
+    let kb: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    Some(kb * 1024)
+}
+
+/// Bytes in use by running records, against a total.
+pub struct Budget {
+    total: u64,
+    used: Mutex<u64>,
+    freed: Condvar,
+}
+
+/// A record's share of the budget, returned when dropped.
+pub struct Share<'a> {
+    budget: &'a Budget,
+    bytes: u64,
+}
+
+impl Budget {
+    /// `total` bytes; `None`: no limit.
+    pub fn new(total: Option<u64>) -> Self {
+        Budget {
+            total: total.unwrap_or(u64::MAX),
+            used: Mutex::new(0),
+            freed: Condvar::new(),
+        }
+    }
+
+    pub fn total(&self) -> Option<u64> {
+        (self.total != u64::MAX).then_some(self.total)
+    }
+
+    /// Wait until `bytes` fit beside the records already running (a need
+    /// above the total is taken as the total: that record runs alone).
+    pub fn acquire(&self, bytes: u64) -> Share<'_> {
+        if self.total == u64::MAX {
+            return Share {
+                budget: self,
+                bytes: 0,
+            };
+        }
+        let bytes = bytes.min(self.total);
+        let mut used = self.used.lock().expect("budget lock");
+        while *used > 0 && *used + bytes > self.total {
+            used = self.freed.wait(used).expect("budget lock");
+        }
+        *used += bytes;
+        Share {
+            budget: self,
+            bytes,
+        }
+    }
+}
+
+impl Drop for Share<'_> {
+    fn drop(&mut self) {
+        if self.bytes == 0 {
+            return;
+        }
+        let mut used = self.budget.used.lock().expect("budget lock");
+        *used -= self.bytes;
+        self.budget.freed.notify_all();
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::sync::atomic::{AtomicU64, Ordering};
+    use std::time::Duration;
+
+    #[test]
+    fn shares_beyond_the_total_wait_and_a_huge_one_runs_alone() {
+        let b = Budget::new(Some(100));
+        let running = AtomicU64::new(0);
+        let peak = AtomicU64::new(0);
+        // Six records of 40: at most two fit in 100 at once.
+        std::thread::scope(|s| {
+            for _ in 0..6 {
+                s.spawn(|| {
+                    let _share = b.acquire(40);
+                    let now = running.fetch_add(40, Ordering::SeqCst) + 40;
+                    peak.fetch_max(now, Ordering::SeqCst);
+                    std::thread::sleep(Duration::from_millis(20));
+                    running.fetch_sub(40, Ordering::SeqCst);
+                });
+            }
+        });
+        assert_eq!(peak.load(Ordering::SeqCst), 80);
+        assert_eq!(*b.used.lock().unwrap(), 0);
+        // A need above the total does not wait forever: it takes the whole budget.
+        let big = b.acquire(1_000);
+        assert_eq!(*b.used.lock().unwrap(), 100);
+        drop(big);
+        assert_eq!(*b.used.lock().unwrap(), 0);
+    }
+
+    #[test]
+    fn a_wfdb_records_samples_come_from_its_header() {
+        // LUDB 1 (LUDB 1.0.1 header): 12 signals of 5000 samples at 500 Hz.
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("../../../shared/data/ludb/1.hea");
+        if !path.is_file() {
+            panic!("reference data missing at {}", path.display());
+        }
+        let input = RecordInput {
+            name: "1".into(),
+            path,
+            problem: None,
+        };
+        assert_eq!(sample_bytes(&input), 12 * 5000 * 8);
+        assert_eq!(
+            need_bytes(&input),
+            (12.0 * 5000.0 * 8.0 * WORKING_FACTOR) as u64 + BASE_BYTES
+        );
+    }
+
+    #[test]
+    fn no_limit_never_waits() {
+        let b = Budget::new(None);
+        let s1 = b.acquire(u64::MAX);
+        let s2 = b.acquire(u64::MAX);
+        drop((s1, s2));
+        assert_eq!(*b.used.lock().unwrap(), 0);
+        assert_eq!(b.total(), None);
+    }
+}
