@@ -8,7 +8,7 @@
 //! [`WORKING_FACTOR`] for what reading and processing hold beside them, plus
 //! [`BASE_BYTES`]. Measured (peak resident memory of `tendline run --jobs 1`
 //! on one record, `/usr/bin/time`): a 1-hour 12-lead record at 1000 Hz (43.2 M
-//! samples, 346 MB as `f64`) peaked at 702 MB, 2.03 times its samples; a
+//! samples, 346 MB as `f64`) peaked at 669 MB, 1.93 times its samples; a
 //! 15-minute QTDB record (0.45 M samples) at about 100 MB, mostly the
 //! program itself. The budget is `--max-memory` (MiB) or else three quarters
 //! of the memory the kernel reports available when the run starts

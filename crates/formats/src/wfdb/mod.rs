@@ -697,11 +697,14 @@ fn record_from_signals(mut w: WfdbSignals) -> Record {
         .max(1);
     let fs = w.fs * spf as f64;
     let mut notes = Vec::new();
-    let leads = w
-        .signals
-        .iter()
+    // Each signal's digital samples are freed as soon as its physical ones
+    // exist, so reading peaks near the physical record (8 bytes per sample)
+    // rather than the physical and the digital record (4 more) together.
+    let signals = std::mem::take(&mut w.signals);
+    let leads = signals
+        .into_iter()
         .map(|s| {
-            let mut samples = to_physical(s);
+            let mut samples = to_physical(&s);
             let k = s.spec.samples_per_frame.max(1);
             if k != spf {
                 samples = crate::frames::upsample_linear(&samples, k as usize, spf as usize);
