@@ -57,6 +57,8 @@ struct Row {
     /// little-endian `f64`, NaN in one canonical form): equal for two records whose
     /// samples are equal, whatever their names, headers or formats.
     signal_sha256: Option<String>,
+    /// Estimated peak memory of processing the record (bytes; [`crate::budget`]).
+    need: u64,
     /// Leads whose readable samples all have one value (a disconnected
     /// electrode, a zero-filled channel): they read, but hold no ECG.
     flat: Vec<String>,
@@ -137,6 +139,7 @@ fn inspect_one(
         name: input.name.clone(),
         path: input.path.clone(),
         format: format_of(&input.path),
+        need: crate::budget::need_bytes(input),
         ..Default::default()
     };
     if let Some(p) = &input.problem {
@@ -237,7 +240,7 @@ fn identical_signals(rows: &[Row]) -> Vec<Vec<&str>> {
 }
 
 const CSV_HEADER: &str = "record,status,format,path,fs_hz,n_samples,duration_s,n_leads,leads,units,\
-non_ecg,flat_leads,missing_samples,sex,age,subject,timepoint,arm,annotations,files,sha256,signal_sha256,warnings,error";
+non_ecg,flat_leads,missing_samples,sex,age,subject,timepoint,arm,annotations,files,sha256,signal_sha256,memory_mib,warnings,error";
 
 fn csv_text(rows: &[Row]) -> String {
     let mut s = String::from(CSV_HEADER);
@@ -282,6 +285,11 @@ fn csv_text(rows: &[Row]) -> String {
             join(r.files.iter().map(|f| f.display().to_string()).collect()),
             join(r.sha256.clone()),
             r.signal_sha256.clone().unwrap_or_default(),
+            if r.error.is_none() {
+                (r.need >> 20).to_string()
+            } else {
+                String::new()
+            },
             join(r.warnings.clone()),
             csv_cell(r.error.as_deref().unwrap_or("")),
         ];
@@ -397,6 +405,23 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
             rates.join(", ")
         }
     );
+    if let Some(avail) = crate::budget::available_bytes() {
+        let budget = avail / 4 * 3;
+        if let Some(big) = rows
+            .iter()
+            .filter(|r| r.error.is_none())
+            .max_by_key(|r| r.need)
+            .filter(|r| r.need > budget)
+        {
+            eprintln!(
+                "memory: {} needs about {} MiB, more than the default budget of a run here \
+                 ({} MiB, 3/4 of the memory available now); such records run alone",
+                big.name,
+                big.need >> 20,
+                budget >> 20
+            );
+        }
+    }
     let same = identical_signals(&rows);
     for g in &same {
         eprintln!(
