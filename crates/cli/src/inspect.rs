@@ -6,7 +6,8 @@
 //! samples or non-ECG signals, and does every record find its row in the
 //! subjects table (and every row its record)? `inspect` resolves the INPUTs
 //! exactly as `run` does, reads every record with the same readers and the same
-//! checks (records in parallel), and prints one line per record; `--csv FILE`
+//! checks (records in parallel, within the memory budget of a run:
+//! [`crate::budget`]), and prints one line per record; `--csv FILE`
 //! writes every field, `--checksums` adds the SHA-256 of each input file (the
 //! values a run stores in `results.h5`). Nothing is written beside the inputs.
 //!
@@ -368,9 +369,14 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
         anyhow::bail!("no records found in the inputs given");
     }
     let (subjects_file, subjects) = inputs::load_subjects(a.subjects.as_deref(), &a.inputs)?;
+    // Records are read in parallel but only while their samples fit the same
+    // default budget as a run's, so a folder of long recordings cannot
+    // exhaust the memory.
+    let budget = crate::budget::Budget::new(crate::budget::available_bytes().map(|a| a / 4 * 3));
     let rows: Vec<Row> = records
         .par_iter()
         .map(|r| {
+            let _share = budget.acquire(crate::budget::read_need_bytes(r));
             // A reader that panics on one file must not end the listing: that
             // record is listed as failed, as a run would record it.
             std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
