@@ -11,8 +11,9 @@
 //! samples, 346 MB as `f64`) peaked at 669 MB, 1.93 times its samples; a
 //! 15-minute QTDB record (0.45 M samples) at about 100 MB, mostly the
 //! program itself. The budget is `--max-memory` (MiB) or else three quarters
-//! of the memory the kernel reports available when the run starts
-//! (`MemAvailable` in `/proc/meminfo`); without either there is no limit.
+//! of the memory available when the run starts ([`available_bytes`]: the
+//! kernel's `MemAvailable`, or less under a container's memory limit); without
+//! either there is no limit.
 //!
 //! A record whose need exceeds the whole budget still runs, alone: the budget
 //! orders records, it never refuses one.
@@ -73,12 +74,54 @@ pub fn need_bytes(input: &RecordInput) -> u64 {
     (sample_bytes(input) as f64 * WORKING_FACTOR) as u64 + BASE_BYTES
 }
 
-/// `MemAvailable` of `/proc/meminfo` in bytes (Linux), if readable.
+/// Memory this process may still take (bytes): `MemAvailable` of
+/// `/proc/meminfo`, lowered to the room left under the memory limit of the
+/// process's control group when one is set (a container's limit does not show
+/// in `/proc/meminfo`: cgroup v2 `memory.max` and `memory.current`, v1
+/// `memory.limit_in_bytes` and `memory.usage_in_bytes`). `None` when neither
+/// can be read.
 pub fn available_bytes() -> Option<u64> {
-    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
-    let line = text.lines().find(|l| l.starts_with("MemAvailable:"))?;
-    let kb: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
-    Some(kb * 1024)
+    let read = |p: &str| std::fs::read_to_string(p).ok();
+    let meminfo = read("/proc/meminfo").and_then(|text| {
+        let line = text.lines().find(|l| l.starts_with("MemAvailable:"))?;
+        let kb: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
+        Some(kb * 1024)
+    });
+    // Usage counts the page cache; its inactive part is reclaimed before the
+    // limit bites, as the kernel's own working-set figure leaves it out.
+    let inactive = |stat: Option<String>, key: &str| -> u64 {
+        stat.and_then(|t| {
+            t.lines()
+                .find_map(|l| l.strip_prefix(key)?.trim().parse().ok())
+        })
+        .unwrap_or(0)
+    };
+    let v2 = read("/sys/fs/cgroup/memory.max")
+        .zip(read("/sys/fs/cgroup/memory.current"))
+        .and_then(|(m, c)| cgroup_room(&m, &c))
+        .map(|r| r + inactive(read("/sys/fs/cgroup/memory.stat"), "inactive_file "));
+    let v1 = read("/sys/fs/cgroup/memory/memory.limit_in_bytes")
+        .zip(read("/sys/fs/cgroup/memory/memory.usage_in_bytes"))
+        .and_then(|(m, c)| cgroup_room(&m, &c))
+        .map(|r| {
+            r + inactive(
+                read("/sys/fs/cgroup/memory/memory.stat"),
+                "total_inactive_file ",
+            )
+        });
+    [meminfo, v2, v1].into_iter().flatten().min()
+}
+
+/// Room under a control group's memory limit (`limit - usage`), from the
+/// texts of its limit and usage files; `None` without a limit (`max`, or a
+/// value of 2^62 or more, which cgroup v1 writes for "unlimited").
+fn cgroup_room(limit: &str, usage: &str) -> Option<u64> {
+    let limit: u64 = limit.trim().parse().ok()?;
+    if limit >= 1 << 62 {
+        return None;
+    }
+    let usage: u64 = usage.trim().parse().ok()?;
+    Some(limit.saturating_sub(usage))
 }
 
 /// Bytes in use by running records, against a total.
@@ -191,6 +234,16 @@ mod tests {
             need_bytes(&input),
             (12.0 * 5000.0 * 8.0 * WORKING_FACTOR) as u64 + BASE_BYTES
         );
+    }
+
+    #[test]
+    fn a_control_groups_limit_lowers_the_room() {
+        // cgroup v2 writes `max` without a limit, v1 a value near 2^63.
+        assert_eq!(cgroup_room("max\n", "123\n"), None);
+        assert_eq!(cgroup_room("9223372036854771712\n", "5000\n"), None);
+        assert_eq!(cgroup_room("4294967296\n", "1073741824\n"), Some(3 << 30));
+        assert_eq!(cgroup_room("1000\n", "2000\n"), Some(0));
+        assert_eq!(cgroup_room("garbage", "1"), None);
     }
 
     #[test]
