@@ -54,8 +54,8 @@ struct Row {
     n_samples: Option<usize>,
     /// (name, units, why it is not analysed as ECG, missing samples).
     leads: Vec<(String, String, Option<String>, usize)>,
-    /// SHA-256 of the decoded signal (sampling rate, then every lead's samples as
-    /// little-endian `f64`, NaN in one canonical form): equal for two records whose
+    /// SHA-256 of the decoded signal (sampling rate, number of leads, then every
+    /// lead's samples as little-endian `f64`, NaN in one canonical form): equal for two records whose
     /// samples are equal, whatever their names, headers or formats.
     signal_sha256: Option<String>,
     /// Estimated peak memory of processing the record (bytes; [`crate::budget`]).
@@ -102,31 +102,61 @@ fn format_of(path: &Path) -> &'static str {
     }
 }
 
-/// Sibling files `<stem>.<ext>` that are not among the record's own files.
-fn annotation_exts(path: &Path, own: &[PathBuf]) -> Vec<String> {
-    let (Some(dir), Some(stem)) = (path.parent(), path.file_stem()) else {
+/// The files of each folder holding a record, listed once: stem → (extension,
+/// path) of every plain file whose extension is not a signal format's.
+/// (Listing the folder per record would read a folder of n records n times.)
+type Siblings =
+    std::collections::HashMap<PathBuf, std::collections::HashMap<String, Vec<(String, PathBuf)>>>;
+
+fn folder_of(path: &Path) -> PathBuf {
+    match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
+        _ => PathBuf::from("."),
+    }
+}
+
+fn list_siblings(records: &[RecordInput]) -> Siblings {
+    let signal = ["hea", "dat", "edf", "bdf", "ecg", "csv", "xml", "mat"];
+    let dirs: BTreeSet<PathBuf> = records.iter().map(|r| folder_of(&r.path)).collect();
+    dirs.into_iter()
+        .map(|dir| {
+            let mut by_stem: std::collections::HashMap<String, Vec<(String, PathBuf)>> =
+                Default::default();
+            for e in std::fs::read_dir(&dir).into_iter().flatten().flatten() {
+                let p = e.path();
+                let (Some(stem), Some(ext)) = (p.file_stem(), p.extension()) else {
+                    continue;
+                };
+                let ext = ext.to_string_lossy().into_owned();
+                if signal.contains(&ext.to_ascii_lowercase().as_str()) || !p.is_file() {
+                    continue;
+                }
+                by_stem
+                    .entry(stem.to_string_lossy().into_owned())
+                    .or_default()
+                    .push((ext, p));
+            }
+            (dir, by_stem)
+        })
+        .collect()
+}
+
+/// Extensions of the files beside the record that share its stem and are not
+/// among its own files.
+fn annotation_exts(path: &Path, own: &[PathBuf], siblings: &Siblings) -> Vec<String> {
+    let Some(stem) = path.file_stem() else {
         return Vec::new();
     };
-    let dir = if dir.as_os_str().is_empty() {
-        Path::new(".")
-    } else {
-        dir
-    };
-    let signal = ["hea", "dat", "edf", "bdf", "ecg", "csv", "xml", "mat"];
-    let mut out = BTreeSet::new();
-    if let Ok(rd) = std::fs::read_dir(dir) {
-        for e in rd.flatten() {
-            let p = e.path();
-            if p.file_stem() != Some(stem) || own.iter().any(|o| o == &p) || !p.is_file() {
-                continue;
-            }
-            if let Some(ext) = p.extension().map(|x| x.to_string_lossy().into_owned()) {
-                if !signal.contains(&ext.to_ascii_lowercase().as_str()) {
-                    out.insert(ext);
-                }
-            }
-        }
-    }
+    let found = siblings
+        .get(&folder_of(path))
+        .and_then(|m| m.get(stem.to_string_lossy().as_ref()));
+    let out: BTreeSet<String> = found
+        .into_iter()
+        .flatten()
+        // Same folder: the names decide (`./x` and `x` are one file).
+        .filter(|(_, p)| !own.iter().any(|o| o.file_name() == p.file_name()))
+        .map(|(e, _)| e.clone())
+        .collect();
     out.into_iter().collect()
 }
 
@@ -135,6 +165,7 @@ fn inspect_one(
     csv_fs: Option<f64>,
     checksums: bool,
     subject: Option<&SubjectRow>,
+    siblings: &Siblings,
 ) -> Row {
     let mut row = Row {
         name: input.name.clone(),
@@ -158,7 +189,7 @@ fn inspect_one(
             Err(e) => row.error = Some(format!("{e:#}")),
         }
     }
-    row.annotations = annotation_exts(&input.path, &files);
+    row.annotations = annotation_exts(&input.path, &files, siblings);
     row.files = files;
     let opts = tendline_formats::ReadOptions { csv_fs };
     let mut rec = match tendline_formats::read_record(&input.path, &opts) {
@@ -373,6 +404,7 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
     // default budget as a run's, so a folder of long recordings cannot
     // exhaust the memory.
     let budget = crate::budget::Budget::new(crate::budget::available_bytes().map(|a| a / 4 * 3));
+    let siblings = list_siblings(&records);
     let rows: Vec<Row> = records
         .par_iter()
         .map(|r| {
@@ -380,7 +412,7 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
             // A reader that panics on one file must not end the listing: that
             // record is listed as failed, as a run would record it.
             std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                inspect_one(r, a.csv_fs, a.checksums, subjects.get(&r.name))
+                inspect_one(r, a.csv_fs, a.checksums, subjects.get(&r.name), &siblings)
             }))
             .unwrap_or_else(|p| Row {
                 name: r.name.clone(),
