@@ -64,14 +64,20 @@ fn wfdb_sample_bytes(path: &Path) -> Option<u64> {
 /// at 422 MB for 346 MB of samples (1.22 times).
 pub const READ_FACTOR: f64 = 1.3;
 
-/// Estimated peak memory of reading `input` without processing it (bytes).
-pub fn read_need_bytes(input: &RecordInput) -> u64 {
-    (sample_bytes(input) as f64 * READ_FACTOR) as u64 + (16 << 20)
+/// Estimated peak memory of reading a record of `samples` bytes ([`sample_bytes`])
+/// without processing it (bytes).
+pub fn read_need(samples: u64) -> u64 {
+    (samples as f64 * READ_FACTOR) as u64 + (16 << 20)
+}
+
+/// Estimated peak memory of processing a record of `samples` bytes ([`sample_bytes`]).
+pub fn need(samples: u64) -> u64 {
+    (samples as f64 * WORKING_FACTOR) as u64 + BASE_BYTES
 }
 
 /// Estimated peak memory of processing `input` (bytes).
 pub fn need_bytes(input: &RecordInput) -> u64 {
-    (sample_bytes(input) as f64 * WORKING_FACTOR) as u64 + BASE_BYTES
+    need(sample_bytes(input))
 }
 
 /// Memory this process may still take (bytes): `MemAvailable` of

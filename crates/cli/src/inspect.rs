@@ -15,7 +15,7 @@
 //! others are still listed), 2 when no input resolves to a record at all.
 
 use crate::inputs::{self, RecordInput};
-use crate::pipeline::check_record;
+use crate::pipeline::{check_record, non_ecg_leads};
 use crate::run::{input_files, panic_text, sha256_file};
 use crate::tables::csv_cell;
 use anyhow::{Context, Result};
@@ -166,12 +166,13 @@ fn inspect_one(
     checksums: bool,
     subject: Option<&SubjectRow>,
     siblings: &Siblings,
+    need: u64,
 ) -> Row {
     let mut row = Row {
         name: input.name.clone(),
         path: input.path.clone(),
         format: format_of(&input.path),
-        need: crate::budget::need_bytes(input),
+        need,
         ..Default::default()
     };
     if let Some(p) = &input.problem {
@@ -232,13 +233,11 @@ fn inspect_one(
     row.timepoint = rec.meta.timepoint.clone();
     row.arm = rec.meta.arm.clone();
     row.warnings = rec.warnings.clone();
-    if let Err(e) = check_record(&rec, &input.path) {
+    // The run's own checks, so the message is the one a run would record.
+    if let Err(e) =
+        check_record(&rec, &input.path).and_then(|()| non_ecg_leads(&mut rec, &input.path))
+    {
         row.error.get_or_insert(format!("{e:#}"));
-    } else if row.leads.iter().all(|l| l.2.is_some()) {
-        row.error = Some(format!(
-            "{}: no ECG lead among the signals",
-            input.path.display()
-        ));
     }
     row
 }
@@ -408,11 +407,19 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
     let rows: Vec<Row> = records
         .par_iter()
         .map(|r| {
-            let _share = budget.acquire(crate::budget::read_need_bytes(r));
+            let samples = crate::budget::sample_bytes(r);
+            let _share = budget.acquire(crate::budget::read_need(samples));
             // A reader that panics on one file must not end the listing: that
             // record is listed as failed, as a run would record it.
             std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                inspect_one(r, a.csv_fs, a.checksums, subjects.get(&r.name), &siblings)
+                inspect_one(
+                    r,
+                    a.csv_fs,
+                    a.checksums,
+                    subjects.get(&r.name),
+                    &siblings,
+                    crate::budget::need(samples),
+                )
             }))
             .unwrap_or_else(|p| Row {
                 name: r.name.clone(),

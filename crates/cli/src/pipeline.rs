@@ -173,7 +173,7 @@ pub(crate) fn fill_missing(rec: &mut Record) -> Vec<usize> {
 /// the analysis, so that detection, delineation and QT see a flat, unusable lead,
 /// while every signal keeps its index in the input header. Returns, per lead,
 /// why it was left out (empty for an analysed lead); an error if no lead is left.
-fn non_ecg_leads(rec: &mut Record, path: &Path) -> Result<Vec<String>> {
+pub(crate) fn non_ecg_leads(rec: &mut Record, path: &Path) -> Result<Vec<String>> {
     let reasons: Vec<String> = rec
         .leads
         .iter()
