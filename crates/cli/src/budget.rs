@@ -4,16 +4,22 @@
 //! records in flight and all).
 //!
 //! A record's need is estimated before it is read, from its header or file
-//! size: its samples as `f64` (8 bytes per sample and lead), times
-//! [`WORKING_FACTOR`] for what reading and processing hold beside them, plus
-//! [`BASE_BYTES`]. Measured (peak resident memory of `tendline run --jobs 1`
-//! on one record, `/usr/bin/time`): a 1-hour 12-lead record at 1000 Hz (43.2 M
-//! samples, 346 MB as `f64`) peaked at 669 MB, 1.93 times its samples; a
-//! 15-minute QTDB record (0.45 M samples) at about 100 MB, mostly the
-//! program itself. The budget is `--max-memory` (MiB) or else three quarters
-//! of the memory available when the run starts ([`available_bytes`]: the
-//! kernel's `MemAvailable`, or less under a container's memory limit); without
-//! either there is no limit.
+//! size ([`sample_bytes`]: its samples as `f64`, 8 bytes per sample and lead)
+//! and the chunk size of the run ([`need`]): the stages hold about
+//! [`STAGE_FACTOR`] times the samples they process at once (the whole record,
+//! or one chunk with its overlap), and a record processed in chunks also
+//! holds its own samples as read ([`READ_FACTOR`]) until the chunks have
+//! passed them; plus [`BASE_BYTES`]. Measured (peak resident memory of
+//! `tendline run --jobs 1` on one record, `/usr/bin/time`, less the 34 MB of
+//! the program on a 10-s record), 12 leads at 1000 Hz: 160 s (15 MB of
+//! samples, one piece) 110 MB; 10 min (58 MB, chunked) 230 MB; 1 hour
+//! (346 MB) 533 MB; 6 hours (2.07 GB) 2.37 GB; 24 hours (8.29 GB) 9.10 GB. The
+//! estimates for these are 161 MB, 316 MB, 639 MB, 2.57 GB and 9.54 GB.
+//!
+//! The budget is `--max-memory` (MiB) or else three quarters of the memory
+//! available when the run starts ([`available_bytes`]: the kernel's
+//! `MemAvailable`, or less under a container's memory limit); without either
+//! there is no limit.
 //!
 //! A record whose need exceeds the whole budget still runs, alone: the budget
 //! orders records, it never refuses one.
@@ -22,10 +28,16 @@ use crate::inputs::RecordInput;
 use std::path::Path;
 use std::sync::{Condvar, Mutex};
 
-/// Memory held while a record is read and processed, per byte of its samples
-/// as `f64` (see the module docs for the measurement).
-pub const WORKING_FACTOR: f64 = 2.1;
-/// Memory of a record beyond its samples: buffers of the stages, the part file.
+/// Working memory of the stages per byte of the samples they process at once
+/// (as `f64`): raw and filtered leads, wavelet scales, per-beat and per-window
+/// results (see the module docs for the measurements).
+pub const STAGE_FACTOR: f64 = 7.2;
+/// Samples a chunk is processed with, per sample of its core: the core plus
+/// the overlap on both sides (`measure.chunk_overlap_s`: 60 s either side of
+/// a 166-s core at 12 leads and 1000 Hz is 1.72).
+pub const CHUNK_EXTENT: f64 = 1.75;
+/// Memory of a record beyond what scales with its samples: the part file,
+/// buffers of the stages.
 pub const BASE_BYTES: u64 = 48 << 20;
 
 /// Bytes a record's samples take as `f64`, estimated without decoding it:
@@ -59,10 +71,12 @@ fn wfdb_sample_bytes(path: &Path) -> Option<u64> {
     Some(h.n_frames? * spf * n_sig * 8)
 }
 
-/// Memory held while a record is only read (`tendline inspect`), per byte of
-/// its samples as `f64`: reading the 1-hour record of the module docs peaked
-/// at 422 MB for 346 MB of samples (1.22 times).
-pub const READ_FACTOR: f64 = 1.3;
+/// Memory held while a record is read, per byte of its samples as `f64`:
+/// the samples and the decoded digital values of the signals not yet
+/// converted. Reading (`tendline inspect`) peaked at 422 MB for the 1-hour
+/// record of the module docs (346 MB of samples) and 8.96 GB for the 24-hour
+/// one (8.29 GB), 1.12 and 1.08 times the samples less the program's 34 MB.
+pub const READ_FACTOR: f64 = 1.12;
 
 /// Estimated peak memory of reading a record of `samples` bytes ([`sample_bytes`])
 /// without processing it (bytes).
@@ -70,14 +84,30 @@ pub fn read_need(samples: u64) -> u64 {
     (samples as f64 * READ_FACTOR) as u64 + (16 << 20)
 }
 
-/// Estimated peak memory of processing a record of `samples` bytes ([`sample_bytes`]).
-pub fn need(samples: u64) -> u64 {
-    (samples as f64 * WORKING_FACTOR) as u64 + BASE_BYTES
+/// Estimated peak memory of processing a record of `samples` bytes
+/// ([`sample_bytes`]) in a run whose chunks hold `chunk_samples` samples over
+/// all leads (`measure.chunk_mega_samples` × 10⁶; 0 = never chunked).
+pub fn need(samples: u64, chunk_samples: u64) -> u64 {
+    let s = samples as f64;
+    let chunk = chunk_samples as f64 * 8.0;
+    let chunked = chunk_samples > 0 && s > chunk;
+    let (at_once, held) = if chunked {
+        (chunk * CHUNK_EXTENT, s * READ_FACTOR)
+    } else {
+        (s, 0.0)
+    };
+    (at_once * STAGE_FACTOR + held) as u64 + BASE_BYTES
 }
 
-/// Estimated peak memory of processing `input` (bytes).
-pub fn need_bytes(input: &RecordInput) -> u64 {
-    need(sample_bytes(input))
+/// Estimated peak memory of processing `input` (bytes); `chunk_samples` as
+/// in [`need`].
+pub fn need_bytes(input: &RecordInput, chunk_samples: u64) -> u64 {
+    need(sample_bytes(input), chunk_samples)
+}
+
+/// `measure.chunk_mega_samples` as samples (the `chunk_samples` of [`need`]).
+pub fn chunk_samples(mega: f64) -> u64 {
+    (mega.max(0.0) * 1e6) as u64
 }
 
 /// Memory this process may still take (bytes): `MemAvailable` of
@@ -236,10 +266,34 @@ mod tests {
             problem: None,
         };
         assert_eq!(sample_bytes(&input), 12 * 5000 * 8);
+        // 60 000 samples: one piece under the default 2 M-sample chunks.
         assert_eq!(
-            need_bytes(&input),
-            (12.0 * 5000.0 * 8.0 * WORKING_FACTOR) as u64 + BASE_BYTES
+            need_bytes(&input, 2_000_000),
+            (12.0 * 5000.0 * 8.0 * STAGE_FACTOR) as u64 + BASE_BYTES
         );
+    }
+
+    /// A long record's need grows with its samples as read, not with the
+    /// stages' working memory, which one chunk bounds; without chunks (0) it
+    /// grows with the stages'.
+    #[test]
+    fn chunks_bound_the_working_memory_of_a_long_record() {
+        let day = 86_400_000u64 * 12 * 8; // 24 h, 12 leads at 1000 Hz, as f64
+        let chunked = need(day, chunk_samples(2.0));
+        let chunk_work = (2e6 * 8.0 * CHUNK_EXTENT * STAGE_FACTOR) as u64;
+        assert_eq!(
+            chunked,
+            (day as f64 * READ_FACTOR) as u64 + chunk_work + BASE_BYTES
+        );
+        // Within 10 % above the measured 9.10 GB (module docs) plus the 34-MB program.
+        let measured = 9_133_128u64 * 1024;
+        assert!(
+            chunked >= measured && chunked <= measured / 10 * 11,
+            "{chunked}"
+        );
+        assert!(need(day, 0) > 7 * day);
+        // Twice the samples, at most twice (and a bit) the need, once chunked.
+        assert!(need(2 * day, chunk_samples(2.0)) < 2 * chunked);
     }
 
     #[test]

@@ -404,6 +404,13 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
     // exhaust the memory.
     let budget = crate::budget::Budget::new(crate::budget::available_bytes().map(|a| a / 4 * 3));
     let siblings = list_siblings(&records);
+    // The need of a run with the default configuration (`inspect` takes no
+    // pipeline.toml).
+    let default_chunk = crate::budget::chunk_samples(
+        crate::config::PipelineConfig::default()
+            .measure
+            .chunk_mega_samples,
+    );
     let rows: Vec<Row> = records
         .par_iter()
         .map(|r| {
@@ -418,7 +425,7 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
                     a.checksums,
                     subjects.get(&r.name),
                     &siblings,
-                    crate::budget::need(samples),
+                    crate::budget::need(samples, default_chunk),
                 )
             }))
             .unwrap_or_else(|p| Row {

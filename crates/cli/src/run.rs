@@ -257,7 +257,8 @@ fn process_one(
             }
         }
         let processed = {
-            let _share = budget.acquire(crate::budget::need_bytes(input));
+            let chunk = crate::budget::chunk_samples(ctx.config.measure.chunk_mega_samples);
+            let _share = budget.acquire(crate::budget::need_bytes(input, chunk));
             pipeline::process_record(input, ctx, subject, &checksums)?
         };
         samples.fetch_add(processed.n_samples, Ordering::Relaxed);
@@ -476,7 +477,12 @@ fn note_budget(opts: &RunOptions, budget: &Budget) {
         .records
         .iter()
         .filter(|r| r.problem.is_none())
-        .map(crate::budget::need_bytes)
+        .map(|r| {
+            crate::budget::need_bytes(
+                r,
+                crate::budget::chunk_samples(opts.config.measure.chunk_mega_samples),
+            )
+        })
         .collect();
     needs.sort_unstable_by(|a, b| b.cmp(a));
     let top: u64 = needs.iter().take(opts.jobs.max(1)).sum();

@@ -60,10 +60,12 @@ pub struct MeasureConfig {
     /// A last, shorter window is kept if at least this long (s); default 5.
     pub min_window_s: f64,
     /// Records with more samples than this, summed over their leads (millions),
-    /// are processed in consecutive chunks of about this size, so that a long
-    /// recording (a 24-hour Holter) needs the memory of one chunk, not of the
-    /// whole record; 0 = never. Chunks are whole windows long; default 2, above
-    /// every record of QTDB and LUDB (millions of samples).
+    /// are processed in consecutive chunks of about this size, so that the
+    /// stages of a long recording (a 24-hour Holter) need the working memory
+    /// of one chunk, not of the whole record, beside the record's samples as
+    /// read (released as the chunks pass them); 0 = never. Chunks are whole
+    /// windows long; default 2, above every record of QTDB and LUDB (millions
+    /// of samples).
     pub chunk_mega_samples: f64,
     /// Each chunk is filtered, detected and delineated with this much signal
     /// on either side of it (rounded up to whole windows), and only what falls
