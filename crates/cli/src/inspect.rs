@@ -331,7 +331,7 @@ fn csv_text(rows: &[Row]) -> String {
 }
 
 /// `12.3 s`, `14:59` (min:s) or `24:00:00` (h:min:s).
-fn fmt_duration(d: f64) -> String {
+pub(crate) fn fmt_duration(d: f64) -> String {
     if d < 60.0 {
         return format!("{d:.1} s");
     }

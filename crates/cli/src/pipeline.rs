@@ -410,12 +410,25 @@ fn release_pages(x: &mut [f64]) {
     let _ = x;
 }
 
-/// Run every stage on one record.
+/// How far a long record's chunks have come, for progress reports.
+#[derive(Debug, Clone, Copy)]
+pub struct ChunkProgress {
+    /// Samples per lead processed (the chunk cores so far).
+    pub done: usize,
+    /// Samples per lead of the record.
+    pub n: usize,
+    pub leads: usize,
+    pub fs: f64,
+}
+
+/// Run every stage on one record. A long record, processed in chunks, calls
+/// `on_chunk` after each chunk.
 pub fn process_record(
     input: &RecordInput,
     ctx: &Context,
     subject: Option<&SubjectRow>,
     checksums: &[(String, String)],
+    on_chunk: &mut dyn FnMut(ChunkProgress),
 ) -> Result<Processed> {
     let opts = tendline_formats::ReadOptions { csv_fs: ctx.csv_fs };
     let mut rec = tendline_formats::read_record(&input.path, &opts)
@@ -521,6 +534,12 @@ pub fn process_record(
                 .map(|&(a, b)| (a.max(c.ext.0) - c.ext.0, b.min(c.ext.1) - c.ext.0))
                 .collect();
             parts.push((c, analyse(&slices, &local)?));
+            on_chunk(ChunkProgress {
+                done: c.core.1,
+                n: n_samples,
+                leads: rec.leads.len(),
+                fs,
+            });
             if let Some(next) = plan.get(k + 1) {
                 raw.release_before(next.ext.0);
             }

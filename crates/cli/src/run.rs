@@ -212,14 +212,60 @@ fn stage_all(files: Vec<(PathBuf, Vec<u8>)>) -> Result<Staged> {
     Ok(staged)
 }
 
+/// Progress of the batch as records and chunks of long records finish: the
+/// bar's message (terminal) or a line (otherwise), and the sample rate.
+struct Reporter<'a> {
+    pb: &'a ProgressBar,
+    /// Lines instead of the bar (stderr is not a terminal and not `--quiet`).
+    plain: bool,
+    log: &'a Mutex<()>,
+    /// Samples (over all leads) processed so far, for the rate.
+    samples: &'a AtomicU64,
+    t0: Instant,
+}
+
+impl Reporter<'_> {
+    fn rate(&self) -> String {
+        let rate =
+            self.samples.load(Ordering::Relaxed) as f64 / self.t0.elapsed().as_secs_f64().max(1e-9);
+        format!("{:.1} M samples/s", rate / 1e6)
+    }
+
+    /// A chunk of the long record `name` is done. `state` is the record's own:
+    /// samples counted so far over all leads, and the last tenth of the
+    /// record reported. A line goes out each time another tenth is passed, so
+    /// a 24-hour recording shows about ten lines, not one per chunk.
+    fn chunk(&self, name: &str, p: pipeline::ChunkProgress, state: &mut (u64, usize)) {
+        let now = (p.done * p.leads) as u64;
+        self.samples
+            .fetch_add(now.saturating_sub(state.0), Ordering::Relaxed);
+        state.0 = state.0.max(now);
+        let n = p.n.max(1);
+        let pct = 100 * p.done / n;
+        self.pb
+            .set_message(format!("{}  {name} {pct} %", self.rate()));
+        let tenth = 10 * p.done / n;
+        if self.plain && tenth > state.1 && p.done < p.n {
+            state.1 = tenth;
+            let _g = self.log.lock();
+            eprintln!(
+                "[{name}] {pct} % ({} of {})",
+                crate::inspect::fmt_duration(p.done as f64 / p.fs),
+                crate::inspect::fmt_duration(p.n as f64 / p.fs)
+            );
+        }
+    }
+}
+
 fn process_one(
     input: &RecordInput,
     budget: &Budget,
     ctx: &Context,
     opts: &RunOptions,
-    samples: &AtomicU64,
+    report: &Reporter,
     out: (&SyncSender<Job>, usize),
 ) -> (Outcome, Option<Part>) {
+    let samples = report.samples;
     let t0 = Instant::now();
     if let Some(problem) = &input.problem {
         return (
@@ -256,12 +302,18 @@ fn process_one(
                 }
             }
         }
+        let mut state = (0u64, 0usize);
         let processed = {
             let chunk = crate::budget::chunk_samples(ctx.config.measure.chunk_mega_samples);
             let _share = budget.acquire(crate::budget::need_bytes(input, chunk));
-            pipeline::process_record(input, ctx, subject, &checksums)?
+            pipeline::process_record(input, ctx, subject, &checksums, &mut |p| {
+                report.chunk(&input.name, p, &mut state)
+            })?
         };
-        samples.fetch_add(processed.n_samples, Ordering::Relaxed);
+        samples.fetch_add(
+            processed.n_samples.saturating_sub(state.0),
+            Ordering::Relaxed,
+        );
         let encode = |path: PathBuf, anns: &[tendline_formats::Annotation]| {
             tendline_formats::annotation::encode_annotations(anns)
                 .map(|bytes| (path.clone(), bytes))
@@ -512,13 +564,20 @@ fn run_records(
     tx: &SyncSender<Job>,
 ) -> Vec<(Outcome, Option<Part>)> {
     let n = opts.records.len();
+    let report = Reporter {
+        pb,
+        plain,
+        log,
+        samples,
+        t0,
+    };
     pool.install(|| {
         opts.records
             .par_iter()
             .enumerate()
             .map(|(index, input)| {
                 let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                    process_one(input, budget, ctx, opts, samples, (tx, index))
+                    process_one(input, budget, ctx, opts, &report, (tx, index))
                 }))
                 .unwrap_or_else(|p| {
                     (
@@ -529,9 +588,7 @@ fn run_records(
                     )
                 });
                 let k = done.fetch_add(1, Ordering::Relaxed) + 1;
-                let rate =
-                    samples.load(Ordering::Relaxed) as f64 / t0.elapsed().as_secs_f64().max(1e-9);
-                pb.set_message(format!("{:.1} M samples/s", rate / 1e6));
+                pb.set_message(report.rate());
                 pb.inc(1);
                 if plain {
                     let _g = log.lock();
