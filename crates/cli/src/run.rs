@@ -213,7 +213,9 @@ fn stage_all(files: Vec<(PathBuf, Vec<u8>)>) -> Result<Staged> {
 }
 
 /// Progress of the batch as records and chunks of long records finish: the
-/// bar's message (terminal) or a line (otherwise), and the sample rate.
+/// bar (terminal) or lines (otherwise), and the sample rate. The bar counts
+/// samples (each record's estimated from its header or size before it runs,
+/// [`crate::budget::sample_bytes`]), so its ETA follows a long record's chunks.
 struct Reporter<'a> {
     pb: &'a ProgressBar,
     /// Lines instead of the bar (stderr is not a terminal and not `--quiet`).
@@ -221,7 +223,23 @@ struct Reporter<'a> {
     log: &'a Mutex<()>,
     /// Samples (over all leads) processed so far, for the rate.
     samples: &'a AtomicU64,
+    /// Records finished, of `n`.
+    done: &'a AtomicU64,
+    n: usize,
     t0: Instant,
+}
+
+/// One record's progress so far.
+#[derive(Debug, Default)]
+struct RecordProgress {
+    /// Its samples over all leads as estimated before it runs (bar units).
+    estimate: u64,
+    /// Samples over all leads counted into the rate.
+    counted: u64,
+    /// Bar units advanced for it (at most `estimate`).
+    advanced: u64,
+    /// Last tenth of the record reported by a line.
+    tenth: usize,
 }
 
 impl Reporter<'_> {
@@ -231,22 +249,39 @@ impl Reporter<'_> {
         format!("{:.1} M samples/s", rate / 1e6)
     }
 
-    /// A chunk of the long record `name` is done. `state` is the record's own:
-    /// samples counted so far over all leads, and the last tenth of the
-    /// record reported. A line goes out each time another tenth is passed, so
-    /// a 24-hour recording shows about ten lines, not one per chunk.
-    fn chunk(&self, name: &str, p: pipeline::ChunkProgress, state: &mut (u64, usize)) {
+    fn records(&self) -> String {
+        format!("{}/{} records", self.done.load(Ordering::Relaxed), self.n)
+    }
+
+    /// Moves the bar to `units` of the record (never past its estimate).
+    fn advance(&self, rec: &mut RecordProgress, units: u64) {
+        let to = units.min(rec.estimate);
+        if to > rec.advanced {
+            self.pb.inc(to - rec.advanced);
+            rec.advanced = to;
+        }
+    }
+
+    /// A chunk of the long record `name` is done. A line goes out each time
+    /// another tenth of the record is passed, so a 24-hour recording shows
+    /// about ten lines, not one per chunk.
+    fn chunk(&self, name: &str, p: pipeline::ChunkProgress, rec: &mut RecordProgress) {
         let now = (p.done * p.leads) as u64;
         self.samples
-            .fetch_add(now.saturating_sub(state.0), Ordering::Relaxed);
-        state.0 = state.0.max(now);
+            .fetch_add(now.saturating_sub(rec.counted), Ordering::Relaxed);
+        rec.counted = rec.counted.max(now);
         let n = p.n.max(1);
         let pct = 100 * p.done / n;
-        self.pb
-            .set_message(format!("{}  {name} {pct} %", self.rate()));
+        // The estimate may differ from the samples read: scale to it.
+        self.advance(rec, (rec.estimate as f64 * p.done as f64 / n as f64) as u64);
+        self.pb.set_message(format!(
+            "{}  {}  {name} {pct} %",
+            self.records(),
+            self.rate()
+        ));
         let tenth = 10 * p.done / n;
-        if self.plain && tenth > state.1 && p.done < p.n {
-            state.1 = tenth;
+        if self.plain && tenth > rec.tenth && p.done < p.n {
+            rec.tenth = tenth;
             let _g = self.log.lock();
             eprintln!(
                 "[{name}] {pct} % ({} of {})",
@@ -254,6 +289,17 @@ impl Reporter<'_> {
                 crate::inspect::fmt_duration(p.n as f64 / p.fs)
             );
         }
+    }
+
+    /// A record has finished (done, kept or failed): the bar takes the rest
+    /// of its estimate.
+    /// Returns how many records have finished, this one included.
+    fn finished(&self, rec: &mut RecordProgress) -> u64 {
+        let k = self.done.fetch_add(1, Ordering::Relaxed) + 1;
+        self.advance(rec, rec.estimate);
+        self.pb
+            .set_message(format!("{}  {}", self.records(), self.rate()));
+        k
     }
 }
 
@@ -263,6 +309,7 @@ fn process_one(
     ctx: &Context,
     opts: &RunOptions,
     report: &Reporter,
+    progress: &mut RecordProgress,
     out: (&SyncSender<Job>, usize),
 ) -> (Outcome, Option<Part>) {
     let samples = report.samples;
@@ -302,16 +349,15 @@ fn process_one(
                 }
             }
         }
-        let mut state = (0u64, 0usize);
         let processed = {
             let chunk = crate::budget::chunk_samples(ctx.config.measure.chunk_mega_samples);
             let _share = budget.acquire(crate::budget::need_bytes(input, chunk));
             pipeline::process_record(input, ctx, subject, &checksums, &mut |p| {
-                report.chunk(&input.name, p, &mut state)
+                report.chunk(&input.name, p, progress)
             })?
         };
         samples.fetch_add(
-            processed.n_samples.saturating_sub(state.0),
+            processed.n_samples.saturating_sub(progress.counted),
             Ordering::Relaxed,
         );
         let encode = |path: PathBuf, anns: &[tendline_formats::Annotation]| {
@@ -399,16 +445,23 @@ fn brief(p: &Part) -> Part {
     }
 }
 
-fn progress_bar(n: usize, quiet: bool) -> ProgressBar {
+/// A bar of `total` units (samples over all leads, estimated), hidden
+/// with `--quiet` or without a terminal.
+fn progress_bar(total: u64, quiet: bool) -> ProgressBar {
     if quiet || !std::io::stderr().is_terminal() {
-        return ProgressBar::with_draw_target(Some(n as u64), ProgressDrawTarget::hidden());
+        return ProgressBar::with_draw_target(Some(total), ProgressDrawTarget::hidden());
     }
-    let pb = ProgressBar::new(n as u64);
+    let pb = ProgressBar::new(total);
     pb.set_style(
-        ProgressStyle::with_template("{bar:30} {pos}/{len} records  {msg}  ETA {eta}")
-            .expect("static template"),
+        ProgressStyle::with_template("{bar:30} {msg}  ETA {eta}").expect("static template"),
     );
     pb
+}
+
+/// A record's samples over all leads as estimated before it runs (the bar's
+/// units); at least 1, so that every record moves the bar.
+fn estimated_samples(input: &RecordInput) -> u64 {
+    (crate::budget::sample_bytes(input) / 8).max(1)
 }
 
 /// Run the whole batch. Never stops at a bad record.
@@ -429,7 +482,8 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
     if !opts.quiet {
         note_budget(opts, &budget);
     }
-    let pb = progress_bar(n, opts.quiet);
+    let pb = progress_bar(opts.records.iter().map(estimated_samples).sum(), opts.quiet);
+    pb.set_message(format!("0/{n} records"));
     let plain = !opts.quiet && !std::io::stderr().is_terminal();
     let samples = AtomicU64::new(0);
     let done = AtomicU64::new(0);
@@ -569,6 +623,8 @@ fn run_records(
         plain,
         log,
         samples,
+        done,
+        n,
         t0,
     };
     pool.install(|| {
@@ -576,8 +632,20 @@ fn run_records(
             .par_iter()
             .enumerate()
             .map(|(index, input)| {
+                let mut progress = RecordProgress {
+                    estimate: estimated_samples(input),
+                    ..Default::default()
+                };
                 let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                    process_one(input, budget, ctx, opts, &report, (tx, index))
+                    process_one(
+                        input,
+                        budget,
+                        ctx,
+                        opts,
+                        &report,
+                        &mut progress,
+                        (tx, index),
+                    )
                 }))
                 .unwrap_or_else(|p| {
                     (
@@ -587,9 +655,7 @@ fn run_records(
                         None,
                     )
                 });
-                let k = done.fetch_add(1, Ordering::Relaxed) + 1;
-                pb.set_message(report.rate());
-                pb.inc(1);
+                let k = report.finished(&mut progress);
                 if plain {
                     let _g = log.lock();
                     let what = match &r.0 {
