@@ -751,6 +751,34 @@ fn beat_se_ppv(
 }
 
 #[test]
+fn a_long_records_chunks_on_two_threads_give_the_same_results_as_on_one() {
+    // MIT-BIH 100 in 3 chunks (as in the test below): the chunks run side by
+    // side on the worker threads, each on its own samples, so the marks and
+    // windows must not depend on how many run at once.
+    let rec = data().join("wfdb-conformance/100.hea");
+    let outs: Vec<tempfile::TempDir> = ["1", "2"]
+        .iter()
+        .map(|jobs| {
+            let out = tempfile::tempdir().unwrap();
+            let o = bin()
+                .args(["run", "--quiet", "--jobs", jobs, "--set"])
+                .arg("measure.chunk_mega_samples=0.5")
+                .arg(&rec)
+                .arg("--out")
+                .arg(out.path())
+                .output()
+                .unwrap();
+            assert!(o.status.success(), "{}", text(&o));
+            out
+        })
+        .collect();
+    for file in ["annotations/100.mark", "annotations/100.leadmark", "windows.csv"] {
+        let read = |d: &tempfile::TempDir| std::fs::read(d.path().join(file)).unwrap();
+        assert!(read(&outs[0]) == read(&outs[1]), "{file} differs");
+    }
+}
+
+#[test]
 fn long_record_in_chunks_matches_the_whole_record_run() {
     // MIT-BIH record 100 (30 min, 2 leads at 360 Hz, in the WFDB conformance
     // set with its reference beat annotations 100.atr): processed whole, and in

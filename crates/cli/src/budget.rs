@@ -9,7 +9,8 @@
 //! [`STAGE_FACTOR`] times the samples they process at once (the whole record,
 //! or one chunk with its overlap), and a record processed in chunks also
 //! holds its own samples as read ([`READ_FACTOR`]) until the chunks have
-//! passed them; plus [`BASE_BYTES`]. Measured (peak resident memory of
+//! passed them; plus [`BASE_BYTES`]. The chunks of one record run on every
+//! worker thread at once, each with its own working memory. Measured (peak resident memory of
 //! `tendline run --jobs 1` on one record, `/usr/bin/time`, less the 34 MB of
 //! the program on a 10-s record), 12 leads at 1000 Hz: 160 s (15 MB of
 //! samples, one piece) 110 MB; 10 min (58 MB, chunked) 230 MB; 1 hour
@@ -85,24 +86,29 @@ pub fn read_need(samples: u64) -> u64 {
 }
 
 /// Estimated peak memory of processing a record of `samples` bytes
-/// ([`sample_bytes`]) in a run whose chunks hold `chunk_samples` samples over
-/// all leads (`measure.chunk_mega_samples` × 10⁶; 0 = never chunked).
-pub fn need(samples: u64, chunk_samples: u64) -> u64 {
+/// ([`sample_bytes`]) in a run of `threads` worker threads whose chunks hold
+/// `chunk_samples` samples over all leads (`measure.chunk_mega_samples` ×
+/// 10⁶; 0 = never chunked). A chunked record runs up to `threads` chunks at
+/// once.
+pub fn need(samples: u64, chunk_samples: u64, threads: usize) -> u64 {
     let s = samples as f64;
     let chunk = chunk_samples as f64 * 8.0;
     let chunked = chunk_samples > 0 && s > chunk;
     let (at_once, held) = if chunked {
-        (chunk * CHUNK_EXTENT, s * READ_FACTOR)
+        (
+            chunk * CHUNK_EXTENT * threads.max(1) as f64,
+            s * READ_FACTOR,
+        )
     } else {
         (s, 0.0)
     };
     (at_once * STAGE_FACTOR + held) as u64 + BASE_BYTES
 }
 
-/// Estimated peak memory of processing `input` (bytes); `chunk_samples` as
-/// in [`need`].
-pub fn need_bytes(input: &RecordInput, chunk_samples: u64) -> u64 {
-    need(sample_bytes(input), chunk_samples)
+/// Estimated peak memory of processing `input` (bytes); `chunk_samples` and
+/// `threads` as in [`need`].
+pub fn need_bytes(input: &RecordInput, chunk_samples: u64, threads: usize) -> u64 {
+    need(sample_bytes(input), chunk_samples, threads)
 }
 
 /// `measure.chunk_mega_samples` as samples (the `chunk_samples` of [`need`]).
@@ -268,7 +274,7 @@ mod tests {
         assert_eq!(sample_bytes(&input), 12 * 5000 * 8);
         // 60 000 samples: one piece under the default 2 M-sample chunks.
         assert_eq!(
-            need_bytes(&input, 2_000_000),
+            need_bytes(&input, 2_000_000, 4),
             (12.0 * 5000.0 * 8.0 * STAGE_FACTOR) as u64 + BASE_BYTES
         );
     }
@@ -279,7 +285,7 @@ mod tests {
     #[test]
     fn chunks_bound_the_working_memory_of_a_long_record() {
         let day = 86_400_000u64 * 12 * 8; // 24 h, 12 leads at 1000 Hz, as f64
-        let chunked = need(day, chunk_samples(2.0));
+        let chunked = need(day, chunk_samples(2.0), 1);
         let chunk_work = (2e6 * 8.0 * CHUNK_EXTENT * STAGE_FACTOR) as u64;
         assert_eq!(
             chunked,
@@ -291,9 +297,13 @@ mod tests {
             chunked >= measured && chunked <= measured / 10 * 11,
             "{chunked}"
         );
-        assert!(need(day, 0) > 7 * day);
+        assert!(need(day, 0, 1) > 7 * day);
         // Twice the samples, at most twice (and a bit) the need, once chunked.
-        assert!(need(2 * day, chunk_samples(2.0)) < 2 * chunked);
+        assert!(need(2 * day, chunk_samples(2.0), 1) < 2 * chunked);
+        // Two threads run two chunks of it at once: one more chunk's work
+        // (measured with `--jobs 2`: 9.31 GB).
+        assert_eq!(need(day, chunk_samples(2.0), 2), chunked + chunk_work);
+        assert!(need(day, chunk_samples(2.0), 2) >= 9_314_356 * 1024);
     }
 
     #[test]

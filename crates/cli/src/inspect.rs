@@ -405,7 +405,8 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
     let budget = crate::budget::Budget::new(crate::budget::available_bytes().map(|a| a / 4 * 3));
     let siblings = list_siblings(&records);
     // The need of a run with the default configuration (`inspect` takes no
-    // pipeline.toml).
+    // pipeline.toml) and the default number of threads.
+    let default_jobs = std::thread::available_parallelism().map_or(1, |n| n.get());
     let default_chunk = crate::budget::chunk_samples(
         crate::config::PipelineConfig::default()
             .measure
@@ -425,7 +426,7 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
                     a.checksums,
                     subjects.get(&r.name),
                     &siblings,
-                    crate::budget::need(samples, default_chunk),
+                    crate::budget::need(samples, default_chunk, default_jobs),
                 )
             }))
             .unwrap_or_else(|p| Row {

@@ -4,6 +4,7 @@
 use crate::config::PipelineConfig;
 use crate::inputs::RecordInput;
 use anyhow::{bail, Context as _, Result};
+use rayon::prelude::*;
 use std::path::Path;
 use tendline_delineate::{BeatMarks, Mark, TEndMethod, TMorphology};
 use tendline_detect::Detection;
@@ -525,22 +526,37 @@ pub fn process_record(
             (plan[0].ext.1 - plan[0].core.1) as f64 / fs,
         ));
         let mut raw = RawLeads::take(&mut rec.leads);
+        let n_leads = rec.leads.len();
+        // Chunks are independent: as many run at once as the run has worker
+        // threads, so one long record alone still uses every core. Between
+        // waves the samples no later chunk reaches are released.
+        let wave = rayon::current_num_threads().max(1);
         let mut parts = Vec::with_capacity(plan.len());
-        for (k, c) in plan.iter().enumerate() {
-            let slices = raw.slices(c.ext.0, c.ext.1);
-            let local: Vec<(usize, usize)> = gaps
-                .iter()
-                .filter(|&&(a, b)| b > c.ext.0 && a < c.ext.1)
-                .map(|&(a, b)| (a.max(c.ext.0) - c.ext.0, b.min(c.ext.1) - c.ext.0))
-                .collect();
-            parts.push((c, analyse(&slices, &local)?));
-            on_chunk(ChunkProgress {
-                done: c.core.1,
-                n: n_samples,
-                leads: rec.leads.len(),
-                fs,
-            });
-            if let Some(next) = plan.get(k + 1) {
+        for (w, group) in plan.chunks(wave).enumerate() {
+            let stretches: Vec<Result<Stretch>> = {
+                let raw = &raw;
+                group
+                    .par_iter()
+                    .map(|c| {
+                        let local: Vec<(usize, usize)> = gaps
+                            .iter()
+                            .filter(|&&(a, b)| b > c.ext.0 && a < c.ext.1)
+                            .map(|&(a, b)| (a.max(c.ext.0) - c.ext.0, b.min(c.ext.1) - c.ext.0))
+                            .collect();
+                        analyse(&raw.slices(c.ext.0, c.ext.1), &local)
+                    })
+                    .collect()
+            };
+            for (c, stretch) in group.iter().zip(stretches) {
+                parts.push((c, stretch?));
+                on_chunk(ChunkProgress {
+                    done: c.core.1,
+                    n: n_samples,
+                    leads: n_leads,
+                    fs,
+                });
+            }
+            if let Some(next) = plan.get((w + 1) * wave) {
                 raw.release_before(next.ext.0);
             }
         }

@@ -351,7 +351,7 @@ fn process_one(
         }
         let processed = {
             let chunk = crate::budget::chunk_samples(ctx.config.measure.chunk_mega_samples);
-            let _share = budget.acquire(crate::budget::need_bytes(input, chunk));
+            let _share = budget.acquire(crate::budget::need_bytes(input, chunk, opts.jobs));
             pipeline::process_record(input, ctx, subject, &checksums, &mut |p| {
                 report.chunk(&input.name, p, progress)
             })?
@@ -587,6 +587,7 @@ fn note_budget(opts: &RunOptions, budget: &Budget) {
             crate::budget::need_bytes(
                 r,
                 crate::budget::chunk_samples(opts.config.measure.chunk_mega_samples),
+                opts.jobs,
             )
         })
         .collect();
