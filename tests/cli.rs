@@ -772,7 +772,11 @@ fn a_long_records_chunks_on_two_threads_give_the_same_results_as_on_one() {
             out
         })
         .collect();
-    for file in ["annotations/100.mark", "annotations/100.leadmark", "windows.csv"] {
+    for file in [
+        "annotations/100.mark",
+        "annotations/100.leadmark",
+        "windows.csv",
+    ] {
         let read = |d: &tempfile::TempDir| std::fs::read(d.path().join(file)).unwrap();
         assert!(read(&outs[0]) == read(&outs[1]), "{file} differs");
     }
@@ -1026,6 +1030,29 @@ fn memory_budget_orders_records_and_never_refuses_one() {
     assert_eq!(o.status.code(), Some(0), "{t}");
     assert!(t.contains("memory budget 1 MiB"), "{t}");
     assert!(t.contains("2 of 2 records complete"), "{t}");
+    // With a record in chunks among them, whose chunks run on the worker
+    // threads while the other records wait for the budget: all complete (a
+    // record must never wait for the budget on a thread that holds a
+    // suspended record beneath it, or the run would hang).
+    let mit = data().join("wfdb-conformance");
+    for ext in ["hea", "dat"] {
+        std::fs::copy(
+            mit.join(format!("100.{ext}")),
+            inp.path().join(format!("100.{ext}")),
+        )
+        .unwrap();
+    }
+    copy_ludb(inp.path(), "3");
+    let o = bin()
+        .args(["run", "--jobs", "2", "--max-memory", "1", "--force"])
+        .args(["--set", "measure.chunk_mega_samples=0.2", "--out"])
+        .arg(out.path())
+        .arg(inp.path())
+        .output()
+        .unwrap();
+    let t = text(&o);
+    assert_eq!(o.status.code(), Some(0), "{t}");
+    assert!(t.contains("4 of 4 records complete"), "{t}");
     let o = bin()
         .args(["run", "--max-memory", "0", "--out"])
         .arg(out.path())

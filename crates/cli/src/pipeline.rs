@@ -21,6 +21,13 @@ pub struct Context {
     pub config_sha256: String,
     pub filters: FilterCache,
     pub csv_fs: Option<f64>,
+    /// Threads for the chunks of long records (one wave of chunks at a time per
+    /// record); `None`: chunks one after another on the record's own thread.
+    /// Records themselves never run on this pool: a record may wait for memory
+    /// (the run's budget), and a pool thread waiting for its chunks takes
+    /// other jobs of its pool meanwhile, so a record started there beneath a
+    /// waiting one could wait for the budget the suspended record holds.
+    pub chunk_pool: Option<rayon::ThreadPool>,
 }
 
 impl Context {
@@ -31,6 +38,7 @@ impl Context {
             config_sha256: config.sha256(),
             filters: FilterCache::new(config.filter.clone()),
             csv_fs,
+            chunk_pool: None,
         })
     }
 }
@@ -527,25 +535,27 @@ pub fn process_record(
         ));
         let mut raw = RawLeads::take(&mut rec.leads);
         let n_leads = rec.leads.len();
-        // Chunks are independent: as many run at once as the run has worker
-        // threads, so one long record alone still uses every core. Between
-        // waves the samples no later chunk reaches are released.
-        let wave = rayon::current_num_threads().max(1);
+        // Chunks are independent: a wave of as many as the chunk pool has
+        // threads runs at once, so one long record alone still uses every
+        // core. Between waves the samples no later chunk reaches are released.
+        let wave = ctx
+            .chunk_pool
+            .as_ref()
+            .map_or(1, |p| p.current_num_threads().max(1));
         let mut parts = Vec::with_capacity(plan.len());
         for (w, group) in plan.chunks(wave).enumerate() {
-            let stretches: Vec<Result<Stretch>> = {
-                let raw = &raw;
-                group
-                    .par_iter()
-                    .map(|c| {
-                        let local: Vec<(usize, usize)> = gaps
-                            .iter()
-                            .filter(|&&(a, b)| b > c.ext.0 && a < c.ext.1)
-                            .map(|&(a, b)| (a.max(c.ext.0) - c.ext.0, b.min(c.ext.1) - c.ext.0))
-                            .collect();
-                        analyse(&raw.slices(c.ext.0, c.ext.1), &local)
-                    })
-                    .collect()
+            let held = &raw;
+            let one = |c: &Chunk| {
+                let local: Vec<(usize, usize)> = gaps
+                    .iter()
+                    .filter(|&&(a, b)| b > c.ext.0 && a < c.ext.1)
+                    .map(|&(a, b)| (a.max(c.ext.0) - c.ext.0, b.min(c.ext.1) - c.ext.0))
+                    .collect();
+                analyse(&held.slices(c.ext.0, c.ext.1), &local)
+            };
+            let stretches: Vec<Result<Stretch>> = match (&ctx.chunk_pool, group.len()) {
+                (Some(pool), 2..) => pool.install(|| group.par_iter().map(one).collect()),
+                _ => group.iter().map(one).collect(),
             };
             for (c, stretch) in group.iter().zip(stretches) {
                 parts.push((c, stretch?));

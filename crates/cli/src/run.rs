@@ -18,7 +18,6 @@ use crate::pipeline::{self, Context};
 use crate::tables;
 use anyhow::{Context as _, Result};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
-use rayon::prelude::*;
 use sha2::{Digest, Sha256};
 use std::collections::BTreeMap;
 use std::io::IsTerminal;
@@ -469,11 +468,13 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
     let t0 = Instant::now();
     std::fs::create_dir_all(&opts.out)
         .with_context(|| format!("--out {}: cannot create", opts.out.display()))?;
-    let ctx = Context::new(&opts.config, opts.csv_fs)?;
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(opts.jobs)
-        .build()
-        .context("cannot start worker threads")?;
+    let mut ctx = Context::new(&opts.config, opts.csv_fs)?;
+    ctx.chunk_pool = Some(
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(opts.jobs)
+            .build()
+            .context("cannot start worker threads")?,
+    );
     let n = opts.records.len();
     let budget = Budget::new(
         opts.max_memory
@@ -524,7 +525,7 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
             failed
         });
         let results = run_records(
-            opts, &budget, &pool, &ctx, &samples, &done, &log, &pb, plain, t0, &tx,
+            opts, &budget, &ctx, &samples, &done, &log, &pb, plain, t0, &tx,
         );
         drop(tx);
         // The committer catches the panics of its jobs; any other is re-raised.
@@ -603,12 +604,18 @@ fn note_budget(opts: &RunOptions, budget: &Budget) {
     }
 }
 
-/// The records on the worker pool, in input order; finished ones go to `tx`.
+/// What a record's processing gives the run: its outcome and, unless it
+/// failed, its part.
+type RecordResult = (Outcome, Option<Part>);
+
+/// The records on `opts.jobs` threads, started in input order; finished ones
+/// go to `tx`. Plain threads, not a rayon pool: a record may wait for its
+/// share of the memory budget, which is safe only on a thread with no other
+/// work suspended beneath it (see [`Context::chunk_pool`]).
 #[allow(clippy::too_many_arguments)]
 fn run_records(
     opts: &RunOptions,
     budget: &Budget,
-    pool: &rayon::ThreadPool,
     ctx: &Context,
     samples: &AtomicU64,
     done: &AtomicU64,
@@ -617,7 +624,7 @@ fn run_records(
     plain: bool,
     t0: Instant,
     tx: &SyncSender<Job>,
-) -> Vec<(Outcome, Option<Part>)> {
+) -> Vec<RecordResult> {
     let n = opts.records.len();
     let report = Reporter {
         pb,
@@ -628,50 +635,66 @@ fn run_records(
         n,
         t0,
     };
-    pool.install(|| {
-        opts.records
-            .par_iter()
-            .enumerate()
-            .map(|(index, input)| {
-                let mut progress = RecordProgress {
-                    estimate: estimated_samples(input),
-                    ..Default::default()
-                };
-                let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-                    process_one(
-                        input,
-                        budget,
-                        ctx,
-                        opts,
-                        &report,
-                        &mut progress,
-                        (tx, index),
-                    )
-                }))
-                .unwrap_or_else(|p| {
-                    (
-                        Outcome::Failed {
-                            error: format!("internal error (panic): {}", panic_text(p)),
-                        },
-                        None,
-                    )
-                });
-                let k = report.finished(&mut progress);
-                if plain {
-                    let _g = log.lock();
-                    let what = match &r.0 {
-                        Outcome::Done { seconds, samples } => {
-                            format!("done, {samples} samples in {seconds:.2} s")
-                        }
-                        Outcome::Reused => "unchanged, kept".to_string(),
-                        Outcome::Failed { error } => format!("FAILED: {error}"),
-                    };
-                    eprintln!("[{k}/{n}] {}: {what}", input.name);
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let slots: Vec<Mutex<Option<RecordResult>>> = (0..n).map(|_| Mutex::new(None)).collect();
+    let one = |index: usize| {
+        let input = &opts.records[index];
+        let mut progress = RecordProgress {
+            estimate: estimated_samples(input),
+            ..Default::default()
+        };
+        let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+            process_one(
+                input,
+                budget,
+                ctx,
+                opts,
+                &report,
+                &mut progress,
+                (tx, index),
+            )
+        }))
+        .unwrap_or_else(|p| {
+            (
+                Outcome::Failed {
+                    error: format!("internal error (panic): {}", panic_text(p)),
+                },
+                None,
+            )
+        });
+        let k = report.finished(&mut progress);
+        if plain {
+            let _g = log.lock();
+            let what = match &r.0 {
+                Outcome::Done { seconds, samples } => {
+                    format!("done, {samples} samples in {seconds:.2} s")
                 }
-                r
-            })
-            .collect()
-    })
+                Outcome::Reused => "unchanged, kept".to_string(),
+                Outcome::Failed { error } => format!("FAILED: {error}"),
+            };
+            eprintln!("[{k}/{n}] {}: {what}", input.name);
+        }
+        *slots[index].lock().unwrap_or_else(|e| e.into_inner()) = Some(r);
+    };
+    std::thread::scope(|scope| {
+        for _ in 0..opts.jobs.clamp(1, n.max(1)) {
+            scope.spawn(|| loop {
+                let index = next.fetch_add(1, Ordering::Relaxed);
+                if index >= n {
+                    break;
+                }
+                one(index);
+            });
+        }
+    });
+    slots
+        .into_iter()
+        .map(|s| {
+            s.into_inner()
+                .unwrap_or_else(|e| e.into_inner())
+                .expect("every record index was taken by a thread")
+        })
+        .collect()
 }
 
 /// Rewrite `results.h5`, `summary.csv`, `windows.csv` and `subjects.csv` of a finished
