@@ -1019,15 +1019,20 @@ fn memory_budget_orders_records_and_never_refuses_one() {
     let out = tempfile::tempdir().unwrap();
     copy_ludb(inp.path(), "1");
     copy_ludb(inp.path(), "2");
+    let run = |args: &[&str]| {
+        let o = bin()
+            .arg("run")
+            .args(args)
+            .arg("--out")
+            .arg(out.path())
+            .arg(inp.path())
+            .output()
+            .unwrap();
+        (o.status.code(), text(&o))
+    };
     // 1 MiB is less than either record needs: each runs alone, both complete.
-    let o = bin()
-        .args(["run", "--jobs", "2", "--max-memory", "1", "--out"])
-        .arg(out.path())
-        .arg(inp.path())
-        .output()
-        .unwrap();
-    let t = text(&o);
-    assert_eq!(o.status.code(), Some(0), "{t}");
+    let (code, t) = run(&["--jobs", "2", "--max-memory", "1"]);
+    assert_eq!(code, Some(0), "{t}");
     assert!(t.contains("memory budget 1 MiB"), "{t}");
     assert!(t.contains("2 of 2 records complete"), "{t}");
     // With a record in chunks among them, whose chunks run on the worker
@@ -1043,26 +1048,14 @@ fn memory_budget_orders_records_and_never_refuses_one() {
         .unwrap();
     }
     copy_ludb(inp.path(), "3");
-    let o = bin()
-        .args(["run", "--jobs", "2", "--max-memory", "1", "--force"])
-        .args(["--set", "measure.chunk_mega_samples=0.2", "--out"])
-        .arg(out.path())
-        .arg(inp.path())
-        .output()
-        .unwrap();
-    let t = text(&o);
-    assert_eq!(o.status.code(), Some(0), "{t}");
+    let chunked = ["--set", "measure.chunk_mega_samples=0.2", "--force"];
+    let (code, t) = run(&[&["--jobs", "2", "--max-memory", "1"][..], &chunked].concat());
+    assert_eq!(code, Some(0), "{t}");
     assert!(t.contains("4 of 4 records complete"), "{t}");
-    let o = bin()
-        .args(["run", "--max-memory", "0", "--out"])
-        .arg(out.path())
-        .arg(inp.path())
-        .output()
-        .unwrap();
-    assert_eq!(o.status.code(), Some(2), "{}", text(&o));
+    let (code, t) = run(&["--max-memory", "0"]);
+    assert_eq!(code, Some(2), "{t}");
     assert!(
-        text(&o).contains("--max-memory: allowed 1 MiB or more, got 0"),
-        "{}",
-        text(&o)
+        t.contains("--max-memory: allowed 1 MiB or more, got 0"),
+        "{t}"
     );
 }
