@@ -480,9 +480,7 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
         opts.max_memory
             .or_else(|| crate::budget::available_bytes().map(|a| a / 4 * 3)),
     );
-    if !opts.quiet {
-        note_budget(opts, &budget);
-    }
+    note_budget(opts, &budget);
     let pb = progress_bar(opts.records.iter().map(estimated_samples).sum(), opts.quiet);
     pb.set_message(format!("0/{n} records"));
     let plain = !opts.quiet && !std::io::stderr().is_terminal();
@@ -574,34 +572,58 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
     Ok(report)
 }
 
-/// Say when the memory budget will keep records from running side by side:
-/// the largest `jobs` records together need more than it.
+/// Say when the memory budget will keep records from running side by side
+/// (the largest `jobs` records together need more than it), and warn when a
+/// record needs more memory than the machine has available.
 fn note_budget(opts: &RunOptions, budget: &Budget) {
-    let Some(total) = budget.total() else {
-        return;
-    };
-    let mut needs: Vec<u64> = opts
+    let chunk = crate::budget::chunk_samples(opts.config.measure.chunk_mega_samples);
+    let mut needs: Vec<(u64, &str)> = opts
         .records
         .iter()
         .filter(|r| r.problem.is_none())
         .map(|r| {
-            crate::budget::need_bytes(
-                r,
-                crate::budget::chunk_samples(opts.config.measure.chunk_mega_samples),
-                opts.jobs,
+            (
+                crate::budget::need_bytes(r, chunk, opts.jobs),
+                r.name.as_str(),
             )
         })
         .collect();
-    needs.sort_unstable_by(|a, b| b.cmp(a));
-    let top: u64 = needs.iter().take(opts.jobs.max(1)).sum();
+    needs.sort_unstable_by(|a, b| b.0.cmp(&a.0));
+    if let Some(note) = needs
+        .first()
+        .and_then(|&(need, name)| oversize_note(name, need, crate::budget::available_bytes()?))
+    {
+        eprintln!("{note}");
+    }
+    // A warning of a possible failure shows even with `--quiet`; this note
+    // only explains the pace, which `--quiet` asks not to hear about.
+    let Some(total) = budget.total().filter(|_| !opts.quiet) else {
+        return;
+    };
+    let top: u64 = needs.iter().take(opts.jobs.max(1)).map(|n| n.0).sum();
     if opts.jobs > 1 && top > total {
         eprintln!(
             "memory budget {} MiB (`--max-memory`): the longest records need up to {} MiB each \
              and run fewer at a time",
             total >> 20,
-            needs[0] >> 20
+            needs[0].0 >> 20
         );
     }
+}
+
+/// A warning when the record needing the most memory (`need` bytes, estimated)
+/// needs more than the machine has available (`available` bytes): the budget
+/// runs it alone, but the system may still stop the run for lack of memory.
+fn oversize_note(name: &str, need: u64, available: u64) -> Option<String> {
+    (need > available).then(|| {
+        format!(
+            "memory: record `{name}` needs about {} MiB, more than the {} MiB available now; \
+             it may be stopped for lack of memory (fewer `--jobs`, a machine with more \
+             memory, or the recording split into parts avoids it)",
+            need >> 20,
+            available >> 20
+        )
+    })
 }
 
 /// What a record's processing gives the run: its outcome and, unless it
@@ -811,4 +833,19 @@ fn write_tables(
     tables::write_failures(&opts.out, &report.failures())?;
     tables::write_manifest(&opts.out, ctx, report, opts.subjects_file.as_deref())?;
     Ok(())
+}
+
+#[cfg(test)]
+mod budget_note_tests {
+    /// The warning names the record and both sizes only when the need exceeds
+    /// what is available.
+    #[test]
+    fn an_oversize_record_is_named_before_the_run() {
+        assert_eq!(super::oversize_note("h24", 9 << 30, 10 << 30), None);
+        let note = super::oversize_note("h24", 12 << 30, 8 << 30).unwrap();
+        assert!(
+            note.contains("`h24`") && note.contains("12288 MiB") && note.contains("8192 MiB"),
+            "{note}"
+        );
+    }
 }
