@@ -588,7 +588,7 @@ fn note_budget(opts: &RunOptions, budget: &Budget) {
             )
         })
         .collect();
-    needs.sort_unstable_by(|a, b| b.0.cmp(&a.0));
+    needs.sort_unstable_by_key(|n| std::cmp::Reverse(n.0));
     if let Some(note) = needs
         .first()
         .and_then(|&(need, name)| oversize_note(name, need, crate::budget::available_bytes()?))
