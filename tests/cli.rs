@@ -750,25 +750,34 @@ fn beat_se_ppv(
     )
 }
 
+/// `tendline run` on MIT-BIH record 100 of the WFDB conformance set into
+/// `out`, with `measure.chunk_mega_samples` = `chunk` and `args` before the
+/// record; the run must succeed.
+fn run_mit100(out: &std::path::Path, chunk: &str, args: &[&str]) -> std::process::Output {
+    let o = bin()
+        .arg("run")
+        .args(args)
+        .arg("--set")
+        .arg(format!("measure.chunk_mega_samples={chunk}"))
+        .arg(data().join("wfdb-conformance/100.hea"))
+        .arg("--out")
+        .arg(out)
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    o
+}
+
 #[test]
 fn a_long_records_chunks_on_two_threads_give_the_same_results_as_on_one() {
     // MIT-BIH 100 in 3 chunks (as in the test below): the chunks run side by
     // side on the worker threads, each on its own samples, so the marks and
     // windows must not depend on how many run at once.
-    let rec = data().join("wfdb-conformance/100.hea");
     let outs: Vec<tempfile::TempDir> = ["1", "2"]
         .iter()
         .map(|jobs| {
             let out = tempfile::tempdir().unwrap();
-            let o = bin()
-                .args(["run", "--quiet", "--jobs", jobs, "--set"])
-                .arg("measure.chunk_mega_samples=0.5")
-                .arg(&rec)
-                .arg("--out")
-                .arg(out.path())
-                .output()
-                .unwrap();
-            assert!(o.status.success(), "{}", text(&o));
+            run_mit100(out.path(), "0.5", &["--quiet", "--jobs", jobs]);
             out
         })
         .collect();
@@ -790,19 +799,10 @@ fn long_record_in_chunks_matches_the_whole_record_run() {
     // their own signal for the record-level statistics (noise levels, lead
     // quality), so marks may move by a sample or two, but the beats, windows and
     // record QT must agree, and both runs must find the reference beats.
-    let rec = data().join("wfdb-conformance/100.hea");
     let whole = tempfile::tempdir().unwrap();
     let parts = tempfile::tempdir().unwrap();
     for (out, budget) in [(&whole, "0"), (&parts, "0.5")] {
-        let o = bin()
-            .args(["run", "--set"])
-            .arg(format!("measure.chunk_mega_samples={budget}"))
-            .arg(&rec)
-            .arg("--out")
-            .arg(out.path())
-            .output()
-            .unwrap();
-        assert!(o.status.success(), "{}", text(&o));
+        let o = run_mit100(out.path(), budget, &[]);
         // Progress inside a long record (stderr is not a terminal here, so
         // lines): after each tenth passed, 690 s and 1380 s of 1805.6 s.
         let err = String::from_utf8_lossy(&o.stderr);
