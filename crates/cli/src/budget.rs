@@ -105,12 +105,6 @@ pub fn need(samples: u64, chunk_samples: u64, threads: usize) -> u64 {
     (at_once * STAGE_FACTOR + held) as u64 + BASE_BYTES
 }
 
-/// Estimated peak memory of processing `input` (bytes); `chunk_samples` and
-/// `threads` as in [`need`].
-pub fn need_bytes(input: &RecordInput, chunk_samples: u64, threads: usize) -> u64 {
-    need(sample_bytes(input), chunk_samples, threads)
-}
-
 /// `measure.chunk_mega_samples` as samples (the `chunk_samples` of [`need`]).
 pub fn chunk_samples(mega: f64) -> u64 {
     (mega.max(0.0) * 1e6) as u64
@@ -274,7 +268,7 @@ mod tests {
         assert_eq!(sample_bytes(&input), 12 * 5000 * 8);
         // 60 000 samples: one piece under the default 2 M-sample chunks.
         assert_eq!(
-            need_bytes(&input, 2_000_000, 4),
+            need(sample_bytes(&input), 2_000_000, 4),
             (12.0 * 5000.0 * 8.0 * STAGE_FACTOR) as u64 + BASE_BYTES
         );
     }

@@ -231,7 +231,11 @@ struct Reporter<'a> {
 /// One record's progress so far.
 #[derive(Debug, Default)]
 struct RecordProgress {
-    /// Its samples over all leads as estimated before it runs (bar units).
+    /// Its samples as 8-byte values, estimated before it runs from its header
+    /// or size ([`crate::budget::sample_bytes`], read once per record).
+    bytes: u64,
+    /// Its samples over all leads, the same estimate (bar units, at least 1,
+    /// so that every record moves the bar).
     estimate: u64,
     /// Samples over all leads counted into the rate.
     counted: u64,
@@ -291,8 +295,8 @@ impl Reporter<'_> {
     }
 
     /// A record has finished (done, kept or failed): the bar takes the rest
-    /// of its estimate.
-    /// Returns how many records have finished, this one included.
+    /// of its estimate. Returns how many records have finished, this one
+    /// included.
     fn finished(&self, rec: &mut RecordProgress) -> u64 {
         let k = self.done.fetch_add(1, Ordering::Relaxed) + 1;
         self.advance(rec, rec.estimate);
@@ -350,7 +354,7 @@ fn process_one(
         }
         let processed = {
             let chunk = crate::budget::chunk_samples(ctx.config.measure.chunk_mega_samples);
-            let _share = budget.acquire(crate::budget::need_bytes(input, chunk, opts.jobs));
+            let _share = budget.acquire(crate::budget::need(progress.bytes, chunk, opts.jobs));
             pipeline::process_record(input, ctx, subject, &checksums, &mut |p| {
                 report.chunk(&input.name, p, progress)
             })?
@@ -457,10 +461,15 @@ fn progress_bar(total: u64, quiet: bool) -> ProgressBar {
     pb
 }
 
-/// A record's samples over all leads as estimated before it runs (the bar's
-/// units); at least 1, so that every record moves the bar.
-fn estimated_samples(input: &RecordInput) -> u64 {
-    (crate::budget::sample_bytes(input) / 8).max(1)
+impl RecordProgress {
+    /// A record about to run whose samples take `bytes` as 8-byte values.
+    fn new(bytes: u64) -> Self {
+        Self {
+            bytes,
+            estimate: (bytes / 8).max(1),
+            ..Default::default()
+        }
+    }
 }
 
 /// Run the whole batch. Never stops at a bad record.
@@ -480,8 +489,17 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
         opts.max_memory
             .or_else(|| crate::budget::available_bytes().map(|a| a / 4 * 3)),
     );
-    note_budget(opts, &budget);
-    let pb = progress_bar(opts.records.iter().map(estimated_samples).sum(), opts.quiet);
+    // Each record's size, from its header or file size, read once.
+    let sizes: Vec<u64> = opts
+        .records
+        .iter()
+        .map(crate::budget::sample_bytes)
+        .collect();
+    note_budget(opts, &budget, &sizes);
+    let pb = progress_bar(
+        sizes.iter().map(|&b| RecordProgress::new(b).estimate).sum(),
+        opts.quiet,
+    );
     pb.set_message(format!("0/{n} records"));
     let plain = !opts.quiet && !std::io::stderr().is_terminal();
     let samples = AtomicU64::new(0);
@@ -523,7 +541,7 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
             failed
         });
         let results = run_records(
-            opts, &budget, &ctx, &samples, &done, &log, &pb, plain, t0, &tx,
+            opts, &budget, &ctx, &sizes, &samples, &done, &log, &pb, plain, t0, &tx,
         );
         drop(tx);
         // The committer catches the panics of its jobs; any other is re-raised.
@@ -575,18 +593,15 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
 /// Say when the memory budget will keep records from running side by side
 /// (the largest `jobs` records together need more than it), and warn when a
 /// record needs more memory than the machine has available.
-fn note_budget(opts: &RunOptions, budget: &Budget) {
+/// `sizes`: each record's samples as 8-byte values ([`crate::budget::sample_bytes`]).
+fn note_budget(opts: &RunOptions, budget: &Budget, sizes: &[u64]) {
     let chunk = crate::budget::chunk_samples(opts.config.measure.chunk_mega_samples);
     let mut needs: Vec<(u64, &str)> = opts
         .records
         .iter()
-        .filter(|r| r.problem.is_none())
-        .map(|r| {
-            (
-                crate::budget::need_bytes(r, chunk, opts.jobs),
-                r.name.as_str(),
-            )
-        })
+        .zip(sizes)
+        .filter(|(r, _)| r.problem.is_none())
+        .map(|(r, &b)| (crate::budget::need(b, chunk, opts.jobs), r.name.as_str()))
         .collect();
     needs.sort_unstable_by_key(|n| std::cmp::Reverse(n.0));
     if let Some(note) = needs
@@ -639,6 +654,7 @@ fn run_records(
     opts: &RunOptions,
     budget: &Budget,
     ctx: &Context,
+    sizes: &[u64],
     samples: &AtomicU64,
     done: &AtomicU64,
     log: &Mutex<()>,
@@ -661,10 +677,7 @@ fn run_records(
     let slots: Vec<Mutex<Option<RecordResult>>> = (0..n).map(|_| Mutex::new(None)).collect();
     let one = |index: usize| {
         let input = &opts.records[index];
-        let mut progress = RecordProgress {
-            estimate: estimated_samples(input),
-            ..Default::default()
-        };
+        let mut progress = RecordProgress::new(sizes[index]);
         let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
             process_one(
                 input,
