@@ -492,7 +492,7 @@ pub fn process_record(
     }
     let names: Vec<String> = rec.leads.iter().map(|l| l.name.clone()).collect();
     let (fs, sex) = (rec.fs, rec.meta.sex);
-    // Taken before a long record's samples are moved into blocks.
+    // Taken before a long record's samples leave `rec` (`RawLeads`).
     let n_samples = rec.n_samples();
     // Filter, detect, delineate and measure one stretch of the record.
     let analyse = |raw: &[&[f64]], gaps: &[(usize, usize)]| -> Result<Stretch> {
