@@ -10,9 +10,9 @@
 //! or one chunk with its overlap), and a record processed in chunks also
 //! holds its own samples as read ([`READ_FACTOR`]) until the chunks have
 //! passed them; plus [`BASE_BYTES`]. The chunks of one record run on every
-//! worker thread at once, each with its own working memory. Measured (peak resident memory of
-//! `tendline run --jobs 1` on one record, `/usr/bin/time`, less the 34 MB of
-//! the program on a 10-s record), 12 leads at 1000 Hz: 160 s (15 MB of
+//! worker thread at once, each with its own working memory. Measured (peak
+//! resident memory of `tendline run --jobs 1` on one record, `/usr/bin/time`,
+//! less the 34 MB of the program on a 10-s record), 12 leads at 1000 Hz: 160 s (15 MB of
 //! samples, one piece) 110 MB; 10 min (58 MB, chunked) 230 MB; 1 hour
 //! (346 MB) 533 MB; 6 hours (2.07 GB) 2.37 GB; 24 hours (8.29 GB) 9.10 GB. The
 //! estimates for these are 161 MB, 316 MB, 639 MB, 2.57 GB and 9.54 GB.

@@ -240,7 +240,7 @@ fn chunk_plan(
         ext: (0, n),
     }];
     let w = ((cfg.window_s * fs).round() as usize).max(1);
-    let budget = (cfg.chunk_mega_samples * 1e6) as usize;
+    let budget = crate::budget::chunk_samples(cfg.chunk_mega_samples) as usize;
     if budget == 0 || n.saturating_mul(n_leads.max(1)) <= budget {
         return whole;
     }
