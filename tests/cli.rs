@@ -1059,3 +1059,83 @@ fn memory_budget_orders_records_and_never_refuses_one() {
         "{t}"
     );
 }
+
+#[test]
+fn samples_in_the_wrong_unit_are_named_and_do_not_pass_as_pacing() {
+    // LUDB 1, leads I and II (sinus rhythm, no pacemaker), written as CSV four
+    // ways: millivolts; microvolts with the unit in the header (`I [uV]`);
+    // microvolts without it; volts without it. Only the unlabelled ones are
+    // in the wrong unit as read (mV is the CSV default): each gets a warning
+    // naming the likely cause, even with --quiet, and the microvolt record is
+    // not searched for pacing spikes (before the check its noise passed the
+    // spike rule's 0.1-mV threshold: 7 "stimuli" blanked).
+    let rec = tendline_formats::read_record(
+        &data().join("ludb/1.hea"),
+        &tendline_formats::ReadOptions::default(),
+    )
+    .unwrap();
+    let inp = tempfile::tempdir().unwrap();
+    let write = |name: &str, header: [&str; 2], scale: f64| {
+        let mut s = format!("{},{}\n", header[0], header[1]);
+        for i in 0..rec.n_samples() {
+            let (a, b) = (rec.leads[0].samples[i], rec.leads[1].samples[i]);
+            s.push_str(&format!("{},{}\n", a * scale, b * scale));
+        }
+        std::fs::write(inp.path().join(format!("{name}.csv")), s).unwrap();
+    };
+    write("mv", ["I", "II"], 1.0);
+    write("uv_labelled", ["I [uV]", "II [uV]"], 1000.0);
+    write("uv_bare", ["I", "II"], 1000.0);
+    write("v_bare", ["I", "II"], 0.001);
+    let out = tempfile::tempdir().unwrap();
+    let o = bin()
+        .arg("run")
+        .arg(inp.path())
+        .args(["--csv-fs", "500", "--quiet", "--out"])
+        .arg(out.path())
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "{}", text(&o));
+    let err = String::from_utf8_lossy(&o.stderr);
+    let warned: Vec<&str> = err
+        .lines()
+        .filter(|l| l.starts_with("warning: record"))
+        .collect();
+    assert_eq!(warned.len(), 2, "{err}");
+    assert!(
+        warned
+            .iter()
+            .any(|l| l.contains("`uv_bare`") && l.contains("microvolts read as millivolts")),
+        "{err}"
+    );
+    assert!(
+        warned
+            .iter()
+            .any(|l| l.contains("`v_bare`") && l.contains("volts read as millivolts")),
+        "{err}"
+    );
+    let summary = std::fs::read_to_string(out.path().join("summary.csv")).unwrap();
+    let mut lines = summary.lines();
+    let head: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |k: &str| head.iter().position(|h| *h == k).unwrap();
+    let rows: std::collections::BTreeMap<String, Vec<String>> = lines
+        .map(|l| {
+            let c: Vec<String> = l.split(',').map(str::to_string).collect();
+            (c[0].clone(), c)
+        })
+        .collect();
+    let amp = |r: &str| rows[r][col("amplitude_mv")].parse::<f64>().unwrap();
+    // The typical range scales with the samples (exactly, up to the decimal
+    // text of the CSV and the 4 decimals of the column).
+    assert!((0.3..5.0).contains(&amp("mv")), "{}", amp("mv"));
+    assert!((amp("uv_labelled") - amp("mv")).abs() < 1e-3);
+    assert!((amp("uv_bare") / amp("mv") - 1000.0).abs() < 1.0);
+    assert!(amp("v_bare") < 0.01);
+    for r in ["mv", "uv_labelled", "uv_bare"] {
+        assert_eq!(rows[r][col("pacing_spikes")], "0", "{r}");
+        assert!(!rows[r][col("flags")].contains("paced"), "{r}");
+    }
+    // The warning is kept with the record's results.
+    let part = std::fs::read_to_string(out.path().join("parts/uv_bare.json")).unwrap();
+    assert!(part.contains("amplitude_warning"));
+}

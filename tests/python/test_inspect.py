@@ -14,6 +14,7 @@ import subprocess
 import tempfile
 from pathlib import Path
 
+import numpy as np
 import pytest
 import wfdb
 
@@ -72,6 +73,44 @@ def test_header_fields_equal_wfdb_rdheader(db):
             assert set(row["annotations"].split(";")) >= {"i", "ii", "v6"}
         else:
             assert "q1c" in row["annotations"].split(";"), row["record"]
+
+
+def typical_range_mv(p_signal, fs, block_s=2.0):
+    """The amplitude rule of crates/dsp/src/amplitude.rs written with numpy:
+    per lead, the median over consecutive whole blocks of 2 s of each block's
+    peak-to-peak range (the whole lead when shorter than a block); over the
+    record, the median of the leads with a nonzero range."""
+    block = int(round(block_s * fs))
+    per_lead = []
+    for x in p_signal.T:
+        n = len(x) // block
+        if n == 0:
+            r = np.ptp(x)
+        else:
+            b = x[: n * block].reshape(n, block)
+            r = np.median(b.max(axis=1) - b.min(axis=1))
+        if r > 0:
+            per_lead.append(r)
+    return float(np.median(per_lead))
+
+
+@pytest.mark.parametrize("db", ["qtdb", "ludb"])
+def test_amplitude_equals_numpy_on_wfdb_samples_and_is_plausible(db):
+    # Samples from `wfdb.rdrecord` (physical units, mV in both databases'
+    # headers), the rule above in numpy; `inspect` prints 4 decimals.
+    need_data()
+    r, rows = inspect(DATA / db)
+    assert r.returncode == 0, r.stderr
+    for row in rows:
+        rec = wfdb.rdrecord(str(DATA / db / row["record"]))
+        assert set(rec.units) == {"mV"}, row["record"]
+        want = typical_range_mv(rec.p_signal, rec.fs)
+        assert float(row["amplitude_mv"]) == pytest.approx(want, abs=6e-5), row["record"]
+        # Surface-ECG QRS amplitudes lie between about 0.3 and 5 mV (common
+        # practice): every record of both databases is inside the default
+        # plausible span of 0.05 to 20 mV and draws no amplitude warning.
+        assert 0.3 < want < 6.0, (row["record"], want)
+        assert "amplitude" not in row["warnings"], row["record"]
 
 
 def test_checksums_equal_the_conformance_sha256sums():

@@ -15,7 +15,7 @@
 //! others are still listed), 2 when no input resolves to a record at all.
 
 use crate::inputs::{self, RecordInput};
-use crate::pipeline::{check_record, non_ecg_leads};
+use crate::pipeline::{amplitude_warning, check_record, non_ecg_leads};
 use crate::run::{input_files, panic_text, sha256_file};
 use crate::tables::csv_cell;
 use anyhow::{Context, Result};
@@ -75,6 +75,10 @@ struct Row {
     annotations: Vec<String>,
     warnings: Vec<String>,
     error: Option<String>,
+    /// Typical peak-to-peak range of the ECG leads as read, taken as mV
+    /// (`tendline_dsp::amplitude`); outside the default plausible span it
+    /// adds a warning.
+    amplitude_mv: Option<f64>,
 }
 
 impl Row {
@@ -234,10 +238,26 @@ fn inspect_one(
     row.arm = rec.meta.arm.clone();
     row.warnings = rec.warnings.clone();
     // The run's own checks, so the message is the one a run would record.
-    if let Err(e) =
-        check_record(&rec, &input.path).and_then(|()| non_ecg_leads(&mut rec, &input.path))
-    {
-        row.error.get_or_insert(format!("{e:#}"));
+    match check_record(&rec, &input.path).and_then(|()| non_ecg_leads(&mut rec, &input.path)) {
+        Err(e) => {
+            row.error.get_or_insert(format!("{e:#}"));
+        }
+        Ok(excluded) => {
+            // The default configuration's span, as for the memory estimate
+            // (`inspect` takes no pipeline.toml).
+            let cfg = tendline_dsp::filter::FilterConfig::default();
+            let ecg: Vec<&[f64]> = rec
+                .leads
+                .iter()
+                .zip(&excluded)
+                .filter(|(_, r)| r.is_empty())
+                .map(|(l, _)| l.samples.as_slice())
+                .collect();
+            if let Some((r, c)) = tendline_dsp::amplitude::assess(&ecg, rec.fs, &cfg) {
+                row.amplitude_mv = Some(r);
+                row.warnings.extend(amplitude_warning(r, c, &cfg));
+            }
+        }
     }
     row
 }
@@ -271,7 +291,8 @@ fn identical_signals(rows: &[Row]) -> Vec<Vec<&str>> {
 }
 
 const CSV_HEADER: &str = "record,status,format,path,fs_hz,n_samples,duration_s,n_leads,leads,units,\
-non_ecg,flat_leads,missing_samples,sex,age,subject,timepoint,arm,annotations,files,sha256,signal_sha256,memory_mib,warnings,error";
+non_ecg,flat_leads,missing_samples,sex,age,subject,timepoint,arm,annotations,files,sha256,signal_sha256,memory_mib,warnings,error,\
+amplitude_mv";
 
 fn csv_text(rows: &[Row]) -> String {
     let mut s = String::from(CSV_HEADER);
@@ -323,6 +344,9 @@ fn csv_text(rows: &[Row]) -> String {
             },
             join(r.warnings.clone()),
             csv_cell(r.error.as_deref().unwrap_or("")),
+            r.amplitude_mv
+                .map(|a| format!("{a:.4}"))
+                .unwrap_or_default(),
         ];
         s.push_str(&cells.join(","));
         s.push('\n');

@@ -172,6 +172,9 @@ fn cmd_run(a: RunArgs) -> Result<ExitCode> {
             )
         );
     }
+    for w in tables::amplitude_warnings(&report.parts) {
+        eprintln!("{w}");
+    }
     let failures = report.failures();
     let done = report.outcomes.len() - failures.len();
     if !a.quiet {

@@ -8,6 +8,7 @@ use rayon::prelude::*;
 use std::path::Path;
 use tendline_delineate::{BeatMarks, Mark, TEndMethod, TMorphology};
 use tendline_detect::Detection;
+use tendline_dsp::amplitude::AmplitudeClass;
 use tendline_dsp::filter::FilterCache;
 use tendline_formats::annotation::{boundary_annotations, Annotation, WaveMarks};
 use tendline_formats::subjects::SubjectRow;
@@ -470,7 +471,7 @@ pub fn process_record(
         .with_context(|| format!("{}: filter design", input.name))?;
     // Over the whole record (before any chunking), on the ECG leads only:
     // the other signals are held at zero and would never hold a spike.
-    let spikes = {
+    let (amplitude, spikes) = {
         let ecg: Vec<&[f64]> = rec
             .leads
             .iter()
@@ -478,8 +479,18 @@ pub fn process_record(
             .filter(|(_, r)| r.is_empty())
             .map(|(l, _)| l.samples.as_slice())
             .collect();
-        filter.pacing_spikes(&ecg)
+        let amplitude = filter.amplitude(&ecg);
+        // Samples far larger than millivolts make noise pass the spike rule's
+        // mV thresholds: blanking would cut holes into the signal.
+        let spikes = match amplitude {
+            Some((_, AmplitudeClass::AboveSpan)) => Vec::new(),
+            _ => filter.pacing_spikes(&ecg),
+        };
+        (amplitude, spikes)
     };
+    if let Some(w) = amplitude.and_then(|(r, c)| amplitude_warning(r, c, &cfg.filter)) {
+        rec.warnings.push(w);
+    }
     if !spikes.is_empty() {
         for l in rec.leads.iter_mut() {
             tendline_dsp::pacing::blank_lead(&mut l.samples, &spikes);
@@ -596,6 +607,12 @@ pub fn process_record(
     record_attrs(
         &mut g, &rec, n_samples, checksums, notch, &det, &missing, &excluded,
     );
+    if let Some((r, c)) = amplitude {
+        g.attr("amplitude_mv", Attr::Float(r));
+        if let Some(w) = amplitude_warning(r, c, &cfg.filter) {
+            g.attr("amplitude_warning", Attr::Text(w));
+        }
+    }
     beats_group(g.group("beats"), &det);
     pacing_group(&mut g, &spikes);
     unreadable_group(g.group("unreadable"), &det);
@@ -626,6 +643,44 @@ pub fn process_record(
         leadmarks,
         n_samples: (n_samples * rec.leads.len()) as u64,
     })
+}
+
+/// The warning for a record whose typical range (`range`, in the unit its
+/// samples were read in, taken as mV) lies outside the plausible span; `None`
+/// within it.
+pub(crate) fn amplitude_warning(
+    range: f64,
+    class: AmplitudeClass,
+    cfg: &tendline_dsp::filter::FilterConfig,
+) -> Option<String> {
+    let range = significant(range, 3);
+    let span = format!(
+        "{}-{} mV (`filter.amplitude_min_mv`, `filter.amplitude_max_mv`)",
+        cfg.amplitude_min_mv, cfg.amplitude_max_mv
+    );
+    match class {
+        AmplitudeClass::Plausible => None,
+        AmplitudeClass::AboveSpan => Some(format!(
+            "amplitude: typical peak-to-peak range {range} mV, above the plausible {span}: \
+             the samples are probably microvolts read as millivolts (state the unit in the \
+             CSV header, e.g. `II [uV]`, or correct the header's gain); pacing spikes were not \
+             looked for and amplitude thresholds do not hold"
+        )),
+        AmplitudeClass::BelowSpan => Some(format!(
+            "amplitude: typical peak-to-peak range {range} mV, below the plausible {span}: \
+             the samples are probably volts read as millivolts (state the unit in the CSV \
+             header, e.g. `II [V]`, or correct the header's gain); leads may be taken as flat"
+        )),
+    }
+}
+
+/// `x` with `digits` significant digits in plain notation (`969`, `0.000969`).
+fn significant(x: f64, digits: i32) -> String {
+    if !x.is_finite() || x == 0.0 {
+        return format!("{x}");
+    }
+    let d = (digits - 1 - x.abs().log10().floor() as i32).max(0) as usize;
+    format!("{x:.d$}")
 }
 
 /// Flags the windows that hold a pacing stimulus (a spike starting in
@@ -889,6 +944,34 @@ pub fn beat_annotations(
 
 #[cfg(test)]
 mod tests {
+    use super::*;
+
+    #[test]
+    fn amplitude_warning_names_the_likely_unit_and_the_keys() {
+        let cfg = tendline_dsp::filter::FilterConfig::default();
+        assert_eq!(
+            amplitude_warning(1.2, AmplitudeClass::Plausible, &cfg),
+            None
+        );
+        let up = amplitude_warning(969.26, AmplitudeClass::AboveSpan, &cfg).unwrap();
+        assert!(up.contains("range 969 mV"), "{up}");
+        assert!(up.contains("microvolts read as millivolts"), "{up}");
+        assert!(up.contains("`filter.amplitude_max_mv`"), "{up}");
+        assert!(up.contains("pacing spikes were not looked for"), "{up}");
+        let down = amplitude_warning(0.000_969_26, AmplitudeClass::BelowSpan, &cfg).unwrap();
+        assert!(down.contains("range 0.000969 mV"), "{down}");
+        assert!(down.contains("volts read as millivolts"), "{down}");
+    }
+
+    #[test]
+    fn significant_digits_in_plain_notation() {
+        assert_eq!(significant(969.26, 3), "969");
+        assert_eq!(significant(4.2804, 3), "4.28");
+        assert_eq!(significant(0.000_969_26, 3), "0.000969");
+        assert_eq!(significant(12_345.6, 3), "12346");
+        assert_eq!(significant(0.0, 3), "0");
+    }
+
     #[test]
     fn windows_holding_a_pacing_spike_are_flagged() {
         // Hand-worked: at 500 Hz, windows [0, 10) s and [10, 20) s; a spike
@@ -904,7 +987,6 @@ mod tests {
         assert!(!holds_spike(0.0, 10.0, &[], 500.0));
     }
 
-    use super::*;
     use tendline_formats::{Lead, Metadata};
 
     fn rec(leads: Vec<(&str, &str, Vec<f64>)>) -> Record {

@@ -124,7 +124,7 @@ impl Default for CsvWriter {
             s.push(',');
             s.push_str(k);
         }
-        s.push_str(",pacing_spikes");
+        s.push_str(",pacing_spikes,amplitude_mv");
         s.push('\n');
         let mut w = String::from("record,window");
         for k in WINDOW_COLS {
@@ -200,6 +200,9 @@ impl CsvWriter {
         // Pacing stimulus artifacts removed (an integer count; empty in parts
         // written before the column existed).
         write!(s, ",{}", fmt_f(attr_f(g, "pacing_spikes"), 0))?;
+        // The record's typical peak-to-peak range (empty in parts written
+        // before the column existed, or with every lead flat).
+        write!(s, ",{}", fmt_f(attr_f(g, "amplitude_mv"), 4))?;
         s.push('\n');
         if let Some(wg) = g.groups.get("windows") {
             let n = wg.datasets.get("start_s").map_or(0, |d| d.data.rows());
@@ -465,6 +468,19 @@ pub fn print_table(parts: &[Part], subjects: &[SubjectResult], formula: &str) ->
     }
     let _ = writeln!(s, "\nCaution: {}", tendline_measure::classify::CAUTION);
     s
+}
+
+/// One line per record whose samples look like the wrong unit (the
+/// `amplitude_warning` attribute of its part): printed after a run even with
+/// `--quiet`, since every number of such a record is suspect.
+pub fn amplitude_warnings(parts: &[Part]) -> Vec<String> {
+    parts
+        .iter()
+        .filter_map(|p| {
+            attr_s(&p.group, "amplitude_warning")
+                .map(|w| format!("warning: record `{}`: {w}", p.record))
+        })
+        .collect()
 }
 
 fn formula_letter(f: &str) -> &'static str {

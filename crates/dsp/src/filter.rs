@@ -962,6 +962,22 @@ pub struct FilterConfig {
     /// 0.5 as 0.3 but for one spike fewer in sel104 and in sel301. LUDB:
     /// the same five paced records either way, one more spike in 74.
     pub pacing_pulse_min_mv: f64,
+    /// Smallest plausible typical peak-to-peak range of a record, in mV (the
+    /// median over leads of each lead's median range over blocks of
+    /// `amplitude_block_s`; dsp crate's `amplitude` module). A record below it
+    /// gets a warning naming the likely unit error (volts read as
+    /// millivolts). Default 0.05 mV: the 205 QTDB and LUDB records lie between
+    /// 0.46 and 4.28 mV.
+    pub amplitude_min_mv: f64,
+    /// Largest plausible typical range, in mV (see `amplitude_min_mv`). A
+    /// record above it gets a warning (microvolts read as millivolts: label
+    /// the column, e.g. `II [uV]`, or correct the header's gain), and pacing
+    /// spikes are not looked for, since their thresholds are in mV. Default
+    /// 20 mV.
+    pub amplitude_max_mv: f64,
+    /// Block length of the typical range, in s (see `amplitude_min_mv`).
+    /// Default 2 s: every block holds a QRS complex above 30 bpm.
+    pub amplitude_block_s: f64,
 }
 
 impl Default for FilterConfig {
@@ -984,6 +1000,9 @@ impl Default for FilterConfig {
             pacing_min_jump_ratio: 0.5,
             pacing_max_pulse_ms: 14.0,
             pacing_pulse_min_mv: 0.3,
+            amplitude_min_mv: 0.05,
+            amplitude_max_mv: 20.0,
+            amplitude_block_s: 2.0,
         }
     }
 }
@@ -1064,7 +1083,10 @@ impl FilterConfig {
                 0.01,
                 10.0,
                 "mV",
-            );
+            )
+            .range("amplitude_min_mv", self.amplitude_min_mv, 0.0, 1.0, "mV")
+            .range("amplitude_max_mv", self.amplitude_max_mv, 1.0, 1.0e6, "mV")
+            .range("amplitude_block_s", self.amplitude_block_s, 0.1, 60.0, "s");
         if self.lowpass_hz.is_finite() && self.highpass_hz.is_finite() {
             c.require(
                 self.lowpass_hz == 0.0 || self.lowpass_hz >= 10.0 * self.highpass_hz.max(0.5),
@@ -1424,6 +1446,13 @@ impl ConditioningFilter {
             return None;
         }
         decide_powerline(&total, df, cfg)
+    }
+
+    /// Typical peak-to-peak range of a record's leads and its class against
+    /// the configured plausible span (`amplitude_min_mv`, `amplitude_max_mv`);
+    /// `None` when every lead is flat or missing. See [`crate::amplitude`].
+    pub fn amplitude(&self, leads: &[&[f64]]) -> Option<(f64, crate::amplitude::AmplitudeClass)> {
+        crate::amplitude::assess(leads, self.fs, &self.cfg)
     }
 
     /// Pacing stimulus artifacts in the raw leads of a record (none when

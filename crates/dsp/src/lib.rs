@@ -1,5 +1,6 @@
 //! Signal processing shared by the stages: conditioning filters, pacemaker
-//! spike removal, resampling and the stationary wavelet transform.
+//! spike removal, an amplitude check of the input's unit, resampling and the
+//! stationary wavelet transform.
 //!
 //! # Conventions
 //!
@@ -36,6 +37,7 @@
 //!   plain forms they replace, which remain as test oracles; no fused
 //!   multiply-add is used.
 
+pub mod amplitude;
 pub mod colmedian;
 pub mod filter;
 pub mod pacing;
