@@ -15,7 +15,7 @@
 //! others are still listed), 2 when no input resolves to a record at all.
 
 use crate::inputs::{self, RecordInput};
-use crate::pipeline::{amplitude_warning, check_record, non_ecg_leads};
+use crate::pipeline::{amplitude_warning, check_record, ecg_leads, non_ecg_leads};
 use crate::run::{input_files, panic_text, sha256_file};
 use crate::tables::csv_cell;
 use anyhow::{Context, Result};
@@ -246,13 +246,7 @@ fn inspect_one(
             // The default configuration's span, as for the memory estimate
             // (`inspect` takes no pipeline.toml).
             let cfg = tendline_dsp::filter::FilterConfig::default();
-            let ecg: Vec<&[f64]> = rec
-                .leads
-                .iter()
-                .zip(&excluded)
-                .filter(|(_, r)| r.is_empty())
-                .map(|(l, _)| l.samples.as_slice())
-                .collect();
+            let ecg = ecg_leads(&rec, &excluded);
             if let Some((r, c)) = tendline_dsp::amplitude::assess(&ecg, rec.fs, &cfg) {
                 row.amplitude_mv = Some(r);
                 row.warnings.extend(amplitude_warning(r, c, &cfg));

@@ -206,6 +206,17 @@ pub(crate) fn non_ecg_leads(rec: &mut Record, path: &Path) -> Result<Vec<String>
     Ok(reasons)
 }
 
+/// The samples of the leads analysed as ECG (`excluded`: per lead, why it is
+/// not, empty for an ECG lead; see [`non_ecg_leads`]).
+pub(crate) fn ecg_leads<'a>(rec: &'a Record, excluded: &[String]) -> Vec<&'a [f64]> {
+    rec.leads
+        .iter()
+        .zip(excluded)
+        .filter(|(_, r)| r.is_empty())
+        .map(|(l, _)| l.samples.as_slice())
+        .collect()
+}
+
 /// What the stages produce for one stretch of a record (the whole record, or
 /// one chunk of a long one).
 struct Stretch {
@@ -472,13 +483,7 @@ pub fn process_record(
     // Over the whole record (before any chunking), on the ECG leads only:
     // the other signals are held at zero and would never hold a spike.
     let (amplitude, spikes) = {
-        let ecg: Vec<&[f64]> = rec
-            .leads
-            .iter()
-            .zip(&excluded)
-            .filter(|(_, r)| r.is_empty())
-            .map(|(l, _)| l.samples.as_slice())
-            .collect();
+        let ecg = ecg_leads(&rec, &excluded);
         let amplitude = filter.amplitude(&ecg);
         // Samples far larger than millivolts make noise pass the spike rule's
         // mV thresholds: blanking would cut holes into the signal.
