@@ -529,10 +529,13 @@ pub fn process_record(
             &cfg.delineate,
         )
         .map_err(|e| anyhow::anyhow!("{}: measurement: {e}", input.name))?;
+        let mut windows = meas.windows;
+        let p_present: Vec<bool> = del.global.iter().map(|b| b.p_on.is_some()).collect();
+        tendline_measure::drop_absent_p(&mut windows, &qrs, &p_present, &cfg.measure);
         Ok(Stretch {
             det,
             del,
-            windows: meas.windows,
+            windows,
             notch,
             dropped,
         })

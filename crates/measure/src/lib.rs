@@ -703,6 +703,52 @@ where
     }
 }
 
+/// Drop the P wave of windows whose beats mostly have none in the beat-by-beat
+/// delineation (`window_p_min_beat_fraction`): the PR interval, the P duration
+/// and the P marks of every lead's median beat. `beat_samples` are the QRS
+/// fiducials the delineation ran on, in increasing order, and `p_present`
+/// says for each whether its global marks hold a P onset; a window beat not
+/// among them counts as without P. Returns how many windows lost their P.
+pub fn drop_absent_p(
+    windows: &mut [WindowMeasure],
+    beat_samples: &[usize],
+    p_present: &[bool],
+    cfg: &MeasureConfig,
+) -> usize {
+    let frac = cfg.window_p_min_beat_fraction;
+    if frac <= 0.0 {
+        return 0;
+    }
+    let mut dropped = 0;
+    for w in windows.iter_mut() {
+        if w.beats.is_empty() || (w.pr_ms.is_none() && w.p_ms.is_none()) {
+            continue;
+        }
+        let with_p = w
+            .beats
+            .iter()
+            .filter(|&&b| {
+                beat_samples
+                    .binary_search(&b)
+                    .is_ok_and(|i| p_present.get(i).copied().unwrap_or(false))
+            })
+            .count();
+        if (with_p as f64) >= frac * w.beats.len() as f64 {
+            continue;
+        }
+        w.pr_ms = None;
+        w.p_ms = None;
+        for lm in &mut w.leads {
+            lm.pr_ms = None;
+            lm.marks.p_on = None;
+            lm.marks.p_peak = None;
+            lm.marks.p_end = None;
+        }
+        dropped += 1;
+    }
+    dropped
+}
+
 /// Delineate one median beat (fiducial at `fid`) placed in a longer buffer: copies of
 /// the beat one RR (`rr` samples) before and after it, then one second of the edge
 /// values, so the wavelet sees realistic context and the delineator sees real RR.

@@ -501,3 +501,62 @@ fn all_finite_equals_is_finite() {
         }
     }
 }
+
+#[test]
+fn windows_lose_their_p_wave_when_most_beats_have_none() {
+    let sh = shapes();
+    let r = record(25.0, 0.8, 0.003, &sh, 5);
+    let cfg = MeasureConfig::default();
+    let base = run(&r, &cfg, None);
+    assert_eq!(base.windows.len(), 3);
+    // Give every window a P wave to keep or lose (the synthetic beats have none).
+    let with_p = || {
+        let mut w = base.windows.clone();
+        for x in &mut w {
+            x.pr_ms = Some(160.0);
+            x.p_ms = Some(100.0);
+            for lm in &mut x.leads {
+                lm.pr_ms = Some(160.0);
+                lm.marks.p_on = Some(Mark {
+                    sample: 10,
+                    confidence: 0.5,
+                });
+                lm.marks.p_end = lm.marks.p_on;
+            }
+        }
+        w
+    };
+    let samples: Vec<usize> = r.det.beats.iter().map(|b| b.sample).collect();
+    // Window 0: exactly half of its beats (rounded up) with a P wave: kept
+    // (at least the fraction). Window 1: one beat fewer: dropped. Window 2: all.
+    let mut present = vec![false; samples.len()];
+    for (k, w) in base.windows.iter().enumerate() {
+        let n = w.beats.len();
+        assert!(n >= 3, "window {k}: {n} beats");
+        let with = match k {
+            0 => n.div_ceil(2),
+            1 => n.div_ceil(2) - 1,
+            _ => n,
+        };
+        for b in &w.beats[..with] {
+            present[samples.binary_search(b).unwrap()] = true;
+        }
+    }
+    let mut w = with_p();
+    assert_eq!(drop_absent_p(&mut w, &samples, &present, &cfg), 1);
+    assert_eq!(w[0].pr_ms, Some(160.0));
+    assert_eq!((w[1].pr_ms, w[1].p_ms), (None, None));
+    assert!(w[1]
+        .leads
+        .iter()
+        .all(|lm| lm.pr_ms.is_none() && lm.marks.p_on.is_none() && lm.marks.p_end.is_none()));
+    assert_eq!(w[2].p_ms, Some(100.0));
+    // Off: nothing changes.
+    let off = MeasureConfig {
+        window_p_min_beat_fraction: 0.0,
+        ..MeasureConfig::default()
+    };
+    let mut w = with_p();
+    assert_eq!(drop_absent_p(&mut w, &samples, &present, &off), 0);
+    assert_eq!(w, with_p());
+}

@@ -1,6 +1,8 @@
-"""The `wide_qrs` flag (window QRS duration >= 120 ms) of a LUDB run against the
-cardiologists' diagnoses in the LUDB 1.0.1 headers (`#<diagnoses>:` comment
+"""A LUDB run's `wide_qrs` flag and PR interval against the cardiologists'
+diagnoses in the LUDB 1.0.1 headers (`#<diagnoses>:` and `#Rhythm:` comment
 lines, read with the `wfdb` Python package).
+
+`wide_qrs` (window QRS duration >= 120 ms):
 
 Complete left or right bundle branch block and ventricular (or biventricular)
 pacing widen the QRS to 120 ms or more; incomplete bundle branch block keeps it
@@ -10,6 +12,10 @@ have a wide QRS (a conduction delay the diagnoses leave unnamed), so flags
 there are counted, not forbidden: measured on records 1-100 with the final
 code, 13 of 13 diagnosed records flagged and 15 others (before the
 confirmed-extreme QRS rule of `measure.qrs_outlier_ms`, 20 others).
+
+PR interval: atrial fibrillation and flutter have no P wave and complete
+(third-degree) AV block no PR interval, since P waves and QRS complexes are
+dissociated (common practice); every other record has one.
 
 Inputs (environment): TENDLINE_RUN_LUDB, a finished run on ../shared/data/ludb
 (`summary.csv`; skipped, with the reason, when unset or absent);
@@ -54,3 +60,27 @@ def test_wide_qrs_flag_against_ludb_diagnoses():
     assert not missed, f"diagnosed wide QRS not flagged: {missed}"
     # Floor just above the 15 measured.
     assert len(flagged_other) <= 16, flagged_other
+
+
+NO_PR = re.compile(r"atrial fibrillation|atrial flutter|iii degree av-block", re.IGNORECASE)
+
+
+def test_pr_interval_only_where_the_rhythm_has_one():
+    run = os.environ.get("TENDLINE_RUN_LUDB")
+    if not run or not (Path(run) / "summary.csv").is_file():
+        pytest.skip("TENDLINE_RUN_LUDB not set to a finished LUDB run (scripts/test.sh sets it)")
+    data = Path(os.environ.get("TENDLINE_DATA", DATA)) / "ludb"
+    rows = list(csv.DictReader(open(Path(run) / "summary.csv", newline="")))
+    without, other = [], []
+    for r in rows:
+        h = wfdb.rdheader(str(data / r["record"]))
+        (without if NO_PR.search(" ".join(h.comments)) else other).append(r)
+    # 11 records in atrial fibrillation or flutter, 3 in complete AV block.
+    assert len(without) == 14, [r["record"] for r in without]
+    # Before `measure.window_p_min_beat_fraction` 12 of them reported a PR
+    # interval (150-312 ms in atrial fibrillation, 94 and 256 ms in flutter)
+    # from median beats that average fibrillatory waves into a bump.
+    assert [r["record"] for r in without if r["pr_ms"]] == []
+    # Every record with a P wave per beat keeps its PR interval (86 of 86
+    # measured).
+    assert [r["record"] for r in other if not r["pr_ms"]] == []
