@@ -37,17 +37,22 @@ WIDE = re.compile(
 )
 
 
-def test_wide_qrs_flag_against_ludb_diagnoses():
+def run_rows():
+    """The run's summary.csv rows, each with its record's header comments."""
     run = os.environ.get("TENDLINE_RUN_LUDB")
     if not run or not (Path(run) / "summary.csv").is_file():
         pytest.skip("TENDLINE_RUN_LUDB not set to a finished LUDB run (scripts/test.sh sets it)")
     data = Path(os.environ.get("TENDLINE_DATA", DATA)) / "ludb"
     rows = list(csv.DictReader(open(Path(run) / "summary.csv", newline="")))
+    return [(r, wfdb.rdheader(str(data / r["record"])).comments) for r in rows]
+
+
+def test_wide_qrs_flag_against_ludb_diagnoses():
+    rows = run_rows()
     assert len(rows) == 100
     diagnosed, flagged_other = [], []
-    for r in rows:
-        h = wfdb.rdheader(str(data / r["record"]))
-        wide_dx = any(WIDE.search(c) for c in h.comments)
+    for r, comments in rows:
+        wide_dx = any(WIDE.search(c) for c in comments)
         flagged = "wide_qrs" in r["flags"].split(";")
         if wide_dx:
             diagnosed.append((r["record"], flagged))
@@ -66,15 +71,10 @@ NO_PR = re.compile(r"atrial fibrillation|atrial flutter|iii degree av-block", re
 
 
 def test_pr_interval_only_where_the_rhythm_has_one():
-    run = os.environ.get("TENDLINE_RUN_LUDB")
-    if not run or not (Path(run) / "summary.csv").is_file():
-        pytest.skip("TENDLINE_RUN_LUDB not set to a finished LUDB run (scripts/test.sh sets it)")
-    data = Path(os.environ.get("TENDLINE_DATA", DATA)) / "ludb"
-    rows = list(csv.DictReader(open(Path(run) / "summary.csv", newline="")))
+    rows = run_rows()
     without, other = [], []
-    for r in rows:
-        h = wfdb.rdheader(str(data / r["record"]))
-        (without if NO_PR.search(" ".join(h.comments)) else other).append(r)
+    for r, comments in rows:
+        (without if NO_PR.search(" ".join(comments)) else other).append(r)
     # 11 records in atrial fibrillation or flutter, 3 in complete AV block.
     assert len(without) == 14, [r["record"] for r in without]
     # Before `measure.window_p_min_beat_fraction` 12 of them reported a PR
