@@ -83,12 +83,17 @@ fn max_drop(n: usize, cfg: &MeasureConfig) -> usize {
 }
 
 /// The lead's beat-to-beat noise is too large for its T wave (see `max_noise_t_ratio`).
+/// A T wave below `min_t_amplitude_mv` is left out of the QT as flat, not as noisy:
+/// a few microvolts of noise against a near-flat T would otherwise flag a clean
+/// window (`unreadable_noise`) for a lead the QT never used.
 pub fn too_noisy(lead: &LeadMeasure, cfg: &MeasureConfig) -> bool {
     cfg.max_noise_t_ratio > 0.0
         && lead
             .noise_mv
             .zip(lead.t_amplitude_mv)
-            .is_some_and(|(n, t)| n > cfg.max_noise_t_ratio * t.abs())
+            .is_some_and(|(n, t)| {
+                t.abs() >= cfg.min_t_amplitude_mv && n > cfg.max_noise_t_ratio * t.abs()
+            })
 }
 
 /// Combine the leads of one window.
@@ -340,6 +345,15 @@ mod tests {
         quiet.noise_mv = Some(0.01);
         let leads = vec![quiet.clone(), noisy.clone(), quiet];
         assert!(too_noisy(&noisy, &cfg) && !too_noisy(&leads[0], &cfg));
+        // A near-flat T (0.02 mV, under `min_t_amplitude_mv` 0.05) with 4 uV of
+        // noise (ratio 0.2) is flat, not noisy (the demo's S05, lead V1).
+        let mut flat = lead(100, 190, 500);
+        flat.noise_mv = Some(0.004);
+        flat.t_amplitude_mv = Some(0.02);
+        assert!(!too_noisy(&flat, &cfg));
+        flat.t_amplitude_mv = Some(0.06);
+        flat.noise_mv = Some(0.012);
+        assert!(too_noisy(&flat, &cfg));
         let g = combine(&leads, 1000.0, &cfg);
         assert_eq!(g.longest_ms, Some(400.0));
         assert!(!g.accepted_leads.contains(&1));
