@@ -118,32 +118,31 @@ def read_csv(path):
 def agreement(native_run, run):
     """The same records at two rates: per window and per record, how far the
     measurements of the resampled run lie from the native run's."""
-    def by_key(rows, key):
-        return {tuple(r[k] for k in key): r for r in rows}
+    def by_key(path, key):
+        return {tuple(r[k] for k in key): r for r in read_csv(path)}
+
+    def spread(a, b, col):
+        d = np.array([float(b[k][col]) - float(a[k][col]) for k in a
+                      if k in b and a[k][col] and b[k][col]])
+        return d, {
+            "n": int(len(d)),
+            "mean": float(d.mean()) if len(d) else None,
+            "sd": float(d.std(ddof=1)) if len(d) > 1 else None,
+        }
 
     out = {}
-    wa = by_key(read_csv(native_run / "windows.csv"), ("record", "window"))
-    wb = by_key(read_csv(run / "windows.csv"), ("record", "window"))
+    wa = by_key(native_run / "windows.csv", ("record", "window"))
+    wb = by_key(run / "windows.csv", ("record", "window"))
     for col in ("qt_ms", "qt_superimposed_ms", "qrs_ms", "pr_ms", "rr_ms"):
-        d = np.array([float(wb[k][col]) - float(wa[k][col]) for k in wa
-                      if k in wb and wa[k][col] and wb[k][col]])
-        out[f"window_{col}"] = {
-            "n": int(len(d)),
-            "mean": float(d.mean()) if len(d) else None,
-            "sd": float(d.std(ddof=1)) if len(d) > 1 else None,
-            "share_over_8ms_pct": float(100 * np.mean(np.abs(d) > 8)) if len(d) else None,
-        }
-    sa = by_key(read_csv(native_run / "summary.csv"), ("record",))
-    sb = by_key(read_csv(run / "summary.csv"), ("record",))
+        d, st = spread(wa, wb, col)
+        st["share_over_8ms_pct"] = float(100 * np.mean(np.abs(d) > 8)) if len(d) else None
+        out[f"window_{col}"] = st
+    sa = by_key(native_run / "summary.csv", ("record",))
+    sb = by_key(run / "summary.csv", ("record",))
     for col in ("qt_ms", "qtc_ms", "qrs_ms"):
-        d = np.array([float(sb[k][col]) - float(sa[k][col]) for k in sa
-                      if k in sb and sa[k][col] and sb[k][col]])
-        out[f"record_{col}"] = {
-            "n": int(len(d)),
-            "mean": float(d.mean()) if len(d) else None,
-            "sd": float(d.std(ddof=1)) if len(d) > 1 else None,
-            "max_abs": float(np.abs(d).max()) if len(d) else None,
-        }
+        d, st = spread(sa, sb, col)
+        st["max_abs"] = float(np.abs(d).max()) if len(d) else None
+        out[f"record_{col}"] = st
     wide = [(("wide_qrs" in sa[k]["flags"]), ("wide_qrs" in sb[k]["flags"])) for k in sa if k in sb]
     out["record_wide_qrs_flag_differs"] = sum(a != b for a, b in wide)
     out["records"] = len(wide)

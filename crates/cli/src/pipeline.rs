@@ -484,7 +484,7 @@ pub fn process_record(
     // the other signals are held at zero and would never hold a spike.
     let (amplitude, spikes) = {
         let ecg = ecg_leads(&rec, &excluded);
-        let amplitude = filter.amplitude(&ecg);
+        let amplitude = tendline_dsp::amplitude::assess(&ecg, rec.fs, &cfg.filter);
         // Samples far larger than millivolts make noise pass the spike rule's
         // mV thresholds: blanking would cut holes into the signal.
         let spikes = match amplitude {
@@ -493,9 +493,8 @@ pub fn process_record(
         };
         (amplitude, spikes)
     };
-    if let Some(w) = amplitude.and_then(|(r, c)| amplitude_warning(r, c, &cfg.filter)) {
-        rec.warnings.push(w);
-    }
+    let amplitude_note = amplitude.and_then(|(r, c)| amplitude_warning(r, c, &cfg.filter));
+    rec.warnings.extend(amplitude_note.clone());
     if !spikes.is_empty() {
         for l in rec.leads.iter_mut() {
             tendline_dsp::pacing::blank_lead(&mut l.samples, &spikes);
@@ -615,11 +614,11 @@ pub fn process_record(
     record_attrs(
         &mut g, &rec, n_samples, checksums, notch, &det, &missing, &excluded,
     );
-    if let Some((r, c)) = amplitude {
+    if let Some((r, _)) = amplitude {
         g.attr("amplitude_mv", Attr::Float(r));
-        if let Some(w) = amplitude_warning(r, c, &cfg.filter) {
-            g.attr("amplitude_warning", Attr::Text(w));
-        }
+    }
+    if let Some(w) = amplitude_note {
+        g.attr("amplitude_warning", Attr::Text(w));
     }
     beats_group(g.group("beats"), &det);
     pacing_group(&mut g, &spikes);

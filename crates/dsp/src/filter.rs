@@ -1448,13 +1448,6 @@ impl ConditioningFilter {
         decide_powerline(&total, df, cfg)
     }
 
-    /// Typical peak-to-peak range of a record's leads and its class against
-    /// the configured plausible span (`amplitude_min_mv`, `amplitude_max_mv`);
-    /// `None` when every lead is flat or missing. See [`crate::amplitude`].
-    pub fn amplitude(&self, leads: &[&[f64]]) -> Option<(f64, crate::amplitude::AmplitudeClass)> {
-        crate::amplitude::assess(leads, self.fs, &self.cfg)
-    }
-
     /// Pacing stimulus artifacts in the raw leads of a record (none when
     /// `pacing_blank` is off). See [`crate::pacing`].
     pub fn pacing_spikes(&self, leads: &[&[f64]]) -> Vec<Spike> {

@@ -52,17 +52,19 @@ pub struct Global {
 }
 
 /// Earliest of `v` (samples) confirmed by another lead: the earliest value
-/// with a next-earliest value within `tol` after it, dropping at most
-/// `max_drop` (at least one) leading values that have none; with fewer than
-/// three values, the earliest. With `max_drop` 1 this drops one outlier earlier
-/// than the next by more than `tol`.
-pub fn robust_min(v: &[f64], tol: f64, max_drop: usize) -> Option<f64> {
+/// with a next-earliest value within `tol` after it, dropping as unconfirmed at
+/// most `max_frac` of the values (at least one, never all but two); with fewer
+/// than three values, the earliest. With one drop allowed this drops one
+/// outlier earlier than the next by more than `tol`.
+pub fn robust_min(v: &[f64], tol: f64, max_frac: f64) -> Option<f64> {
     let mut s: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
     s.sort_by(|a, b| a.total_cmp(b));
     if s.len() < 3 {
         return s.first().copied();
     }
-    let last = max_drop.max(1).min(s.len() - 2);
+    let last = ((max_frac * s.len() as f64).floor() as usize)
+        .max(1)
+        .min(s.len() - 2);
     Some(
         (0..=last)
             .find(|&i| s[i + 1] - s[i] <= tol)
@@ -71,15 +73,9 @@ pub fn robust_min(v: &[f64], tol: f64, max_drop: usize) -> Option<f64> {
 }
 
 /// Latest of `v`, the mirror of [`robust_min`].
-pub fn robust_max(v: &[f64], tol: f64, max_drop: usize) -> Option<f64> {
+pub fn robust_max(v: &[f64], tol: f64, max_frac: f64) -> Option<f64> {
     let neg: Vec<f64> = v.iter().map(|x| -x).collect();
-    robust_min(&neg, tol, max_drop).map(|x| -x)
-}
-
-/// How many leading values [`robust_min`] may drop from `n` leads: the
-/// configured fraction of them, at least one.
-fn max_drop(n: usize, cfg: &MeasureConfig) -> usize {
-    ((cfg.lead_outlier_max_frac * n as f64).floor() as usize).max(1)
+    robust_min(&neg, tol, max_frac).map(|x| -x)
 }
 
 /// The lead's beat-to-beat noise is too large for its T wave (see `max_noise_t_ratio`).
@@ -151,6 +147,7 @@ pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
     let on_tol = cfg.onset_outlier_ms * fs / 1000.0;
     let end_tol = cfg.end_outlier_ms * fs / 1000.0;
     let qrs_tol = cfg.qrs_outlier_ms * fs / 1000.0;
+    let frac = cfg.lead_outlier_max_frac;
     let samples = |f: fn(&LeadMeasure) -> Option<f64>, set: &[usize]| -> Vec<f64> {
         set.iter().filter_map(|&l| f(&leads[l])).collect()
     };
@@ -174,21 +171,14 @@ pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
                 _ => None,
             }
         };
-    let on_all = {
-        let v = samples(qrs_on, &usable);
-        robust_min(&v, qrs_tol, max_drop(v.len(), cfg))
-    };
+    let on_all = robust_min(&samples(qrs_on, &usable), qrs_tol, frac);
 
     let sup_set = if valid.len() >= 3 { &valid } else { &accepted };
-    let sup_end = {
-        let v = samples(t_end, sup_set);
-        robust_max(&v, end_tol, max_drop(v.len(), cfg))
-    };
+    let sup_end = robust_max(&samples(t_end, sup_set), end_tol, frac);
     let sup_on = if cfg.qrs_onset_all_leads && sup_end.is_some() {
         on_all
     } else {
-        let v = samples(qrs_on, sup_set);
-        robust_min(&v, qrs_tol, max_drop(v.len(), cfg))
+        robust_min(&samples(qrs_on, sup_set), qrs_tol, frac)
     };
     let superimposed_ms = sup_on
         .zip(sup_end)
@@ -198,28 +188,19 @@ pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
         .two_lead_qrs_end_confident
         .then(|| confident_of_two(|m| m.marks.qrs_end, end_tol))
         .flatten()
-        .or_else(|| {
-            let v = samples(qrs_end, &usable);
-            robust_max(&v, qrs_tol, max_drop(v.len(), cfg))
-        });
+        .or_else(|| robust_max(&samples(qrs_end, &usable), qrs_tol, frac));
     let qrs_ms = on_all
         .zip(qrs_end_all)
         .map(|(a, b)| ms(b - a))
         .filter(|&q| q > 0.0);
-    let p_on_all = {
-        let v = samples(p_on, &usable);
-        robust_min(&v, on_tol, max_drop(v.len(), cfg))
-    };
+    let p_on_all = robust_min(&samples(p_on, &usable), on_tol, frac);
     let pr_ms = p_on_all
         .zip(on_all)
         .map(|(p, q)| ms(q - p))
         .filter(|&q| q > 0.0);
     let p_end = |m: &LeadMeasure| m.marks.p_end.map(|k| k.sample as f64);
     let p_ms = p_on_all
-        .zip({
-            let v = samples(p_end, &usable);
-            robust_max(&v, end_tol, max_drop(v.len(), cfg))
-        })
+        .zip(robust_max(&samples(p_end, &usable), end_tol, frac))
         .map(|(a, b)| ms(b - a))
         .filter(|&p| p > 0.0);
     let tpe_ms = longest_lead
@@ -518,30 +499,31 @@ mod tests {
 
     #[test]
     fn robust_extremes() {
-        assert_eq!(robust_min(&[10.0, 40.0, 41.0], 20.0, 1), Some(40.0));
-        assert_eq!(robust_min(&[30.0, 40.0, 41.0], 20.0, 1), Some(30.0));
-        assert_eq!(robust_min(&[10.0, 40.0], 20.0, 1), Some(10.0));
-        assert_eq!(robust_max(&[10.0, 40.0, 90.0], 20.0, 1), Some(40.0));
-        assert_eq!(robust_min(&[], 1.0, 1), None);
+        assert_eq!(robust_min(&[10.0, 40.0, 41.0], 20.0, 0.0), Some(40.0));
+        assert_eq!(robust_min(&[30.0, 40.0, 41.0], 20.0, 0.0), Some(30.0));
+        assert_eq!(robust_min(&[10.0, 40.0], 20.0, 0.0), Some(10.0));
+        assert_eq!(robust_max(&[10.0, 40.0, 90.0], 20.0, 0.0), Some(40.0));
+        assert_eq!(robust_min(&[], 1.0, 0.0), None);
         // Hand-worked, twelve onsets (samples), tolerance 3: 10 and 20 have no
-        // lead within 3 after them, 30 has 32; up to three may be dropped.
+        // lead within 3 after them, 30 has 32; a quarter of twelve, three, may be dropped.
         let v = [
             10.0, 20.0, 30.0, 32.0, 33.0, 34.0, 35.0, 35.0, 36.0, 36.0, 37.0, 40.0,
         ];
-        assert_eq!(robust_min(&v, 3.0, 3), Some(30.0));
-        // Only one may be dropped: the second earliest, unconfirmed, is kept.
-        assert_eq!(robust_min(&v, 3.0, 1), Some(20.0));
+        assert_eq!(robust_min(&v, 3.0, 0.25), Some(30.0));
+        // Only one may be dropped (at least one always may): the second
+        // earliest, unconfirmed, is kept.
+        assert_eq!(robust_min(&v, 3.0, 0.05), Some(20.0));
         // None confirmed within the allowance: the value after the last drop.
         assert_eq!(
-            robust_min(&[0.0, 10.0, 20.0, 30.0, 40.0], 3.0, 2),
+            robust_min(&[0.0, 10.0, 20.0, 30.0, 40.0], 3.0, 0.4),
             Some(20.0)
         );
         // Never more than all but two.
-        assert_eq!(robust_min(&[0.0, 10.0, 20.0], 3.0, 5), Some(10.0));
+        assert_eq!(robust_min(&[0.0, 10.0, 20.0], 3.0, 1.0), Some(10.0));
         // Latest: 40 has 37 within 3 before it; with 41 instead, 41 is dropped.
-        assert_eq!(robust_max(&v, 3.0, 3), Some(40.0));
+        assert_eq!(robust_max(&v, 3.0, 0.25), Some(40.0));
         let mut w = v;
         w[11] = 41.0;
-        assert_eq!(robust_max(&w, 3.0, 3), Some(37.0));
+        assert_eq!(robust_max(&w, 3.0, 0.25), Some(37.0));
     }
 }

@@ -708,7 +708,7 @@ where
 /// and the P marks of every lead's median beat. `beat_samples` are the QRS
 /// fiducials the delineation ran on, in increasing order, and `p_present`
 /// says for each whether its global marks hold a P onset; a window beat not
-/// among them counts as without P. Returns how many windows lost their P.
+/// among them counts as without P. Returns how many windows were cleared.
 pub fn drop_absent_p(
     windows: &mut [WindowMeasure],
     beat_samples: &[usize],
@@ -721,7 +721,7 @@ pub fn drop_absent_p(
     }
     let mut dropped = 0;
     for w in windows.iter_mut() {
-        if w.beats.is_empty() || (w.pr_ms.is_none() && w.p_ms.is_none()) {
+        if w.beats.is_empty() {
             continue;
         }
         let with_p = w
