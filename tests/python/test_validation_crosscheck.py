@@ -114,9 +114,14 @@ def _match(ref, test, w):
 def _beats_qrs_on_t_end(path_no_ext, ext, fs):
     """Beats of a global annotation file: (qrs peak, qrs onset, T end) per beat."""
     a = wfdb.rdann(str(path_no_ext), ext)
-    order = np.argsort(a.sample, kind="stable")
-    smp = [int(a.sample[k]) for k in order]
-    sym = [a.symbol[k] for k in order]
+    return _beats_from(a.sample, a.symbol, fs)
+
+
+def _beats_from(samples, symbols, fs):
+    """`_beats_qrs_on_t_end` on annotations already read (one channel)."""
+    order = np.argsort(samples, kind="stable")
+    smp = [int(samples[k]) for k in order]
+    sym = [symbols[k] for k in order]
     beats = []  # [peak, onset, t_end]
     t_waves = []  # (peak, offset)
     for i, y in enumerate(sym):
@@ -358,6 +363,45 @@ def test_qrs_onset_and_t_end_match_report():
         assert abs(st["mean_ms"] - e.mean()) < 0.01
         assert abs(st["sd_ms"] - e.std(ddof=1)) < 0.01
         _check_stability(key, per_rec[key], s["stability"])
+
+
+def test_best_lead_section_matches_report():
+    # The "best lead per beat" comparison protocol of the published QTDB
+    # results (Martínez et al. 2004, from memory), recomputed here from the
+    # `.leadmark` files read with the `wfdb` package: each lead's beats paired
+    # with the reference, for every reference beat the lead mark nearest the
+    # reference (ties: the lower channel), counted within the fiducial window.
+    run, qtdb, report = _paths()
+    best = report.get("best_lead")
+    assert best is not None, "report.json has no best_lead section"
+    bw_ms = report["protocol"]["beat_window_ms"]
+    errs = {"qrs_on": [], "t_end": []}
+    for rec, fs, ref, _test, _pairs, fw in _paired_beats(run, qtdb, report):
+        a = wfdb.rdann(str(run / "annotations" / rec), "leadmark")
+        chans = sorted(set(int(c) for c in a.chan))
+        cand = [[] for _ in ref]  # per reference beat: [(chan, beat)]
+        for ch in chans:
+            keep = [k for k in range(len(a.sample)) if int(a.chan[k]) == ch]
+            lead = _beats_from([a.sample[k] for k in keep], [a.symbol[k] for k in keep], fs)
+            for i, j in _match([b[0] for b in ref], [b[0] for b in lead], _window(bw_ms, fs)):
+                cand[i].append((ch, lead[j]))
+        for i, r in enumerate(ref):
+            for key, k in (("qrs_on", 1), ("t_end", 2)):
+                if r[k] is None:
+                    continue
+                vals = [(abs(b[k] - r[k]), ch, b[k]) for ch, b in cand[i] if b[k] is not None]
+                if not vals:
+                    continue
+                t = min(vals)[2]
+                if abs(t - r[k]) <= fw:
+                    errs[key].append((t - r[k]) * 1000.0 / fs)
+    for key in errs:
+        e = np.array(errs[key])
+        st = next(f for f in best["fiducials"] if f["fiducial"] == key)["stats"]
+        print(f"best lead {key}: python n={e.size} sd={e.std(ddof=1):.4f}; report n={st['n']} sd={st['sd_ms']:.4f}")
+        assert st["n"] == e.size
+        assert abs(st["mean_ms"] - e.mean()) < 0.01
+        assert abs(st["sd_ms"] - e.std(ddof=1)) < 0.01
 
 
 def _pop_split(keys, values):

@@ -531,6 +531,19 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
     if let Some(g) = &r.global {
         section_html(&mut o, "global", "Global boundaries", g, hist_range)?;
     }
+    if let Some(b) = &r.best_lead {
+        let _ = writeln!(
+            o,
+            "<h2 id=best-lead>Best lead per beat (comparison only)</h2><p>{}</p><p>Reference: {}; scored: {}. {} records, {} reference beats, {} paired.</p>",
+            esc(crate::BEST_LEAD_INTRO),
+            esc(&b.reference),
+            esc(&b.test),
+            b.n_records,
+            b.ref_beats,
+            b.paired_beats
+        );
+        fiducial_table_html(&mut o, b);
+    }
     if let Some(h) = &r.human {
         let _ = writeln!(
             o,

@@ -40,7 +40,8 @@
 //!
 //! Files written by [`write_report`] (in `out_dir`):
 //! - `report.json`: [`ValidationReport`] serialised (`schema` = [`report::SCHEMA_VERSION`]);
-//!   top-level keys `database`, `protocol`, `records`, `beats`, `global`, `per_lead`,
+//!   top-level keys `database`, `protocol`, `records`, `beats`, `global`, `best_lead`
+//!   (QTDB only, see [`waves::best_lead_beats`]), `per_lead`,
 //!   `qt`, `human`, `worst_beats`, `warnings`; sections absent for lack of a
 //!   reference are `null`; unavailable numbers (e.g. SD of one value) are `null`.
 //! - `report.md`: the headline tables; `report.html`: tables and inline SVG plots.
@@ -218,6 +219,13 @@ impl ValidateOptions {
 const COMBINED_LABEL: &str =
     "lead files combined (earliest onset, latest offset, median peak across leads)";
 
+/// What the best-lead section scored.
+const BEST_LEAD_LABEL: &str =
+    "tendline .leadmark, for each beat and fiducial the lead nearest the reference";
+
+/// Why the best-lead section exists and what it is not; shared by the reports.
+pub const BEST_LEAD_INTRO: &str = "Some published QTDB results (Laguna et al. 1994; Martínez et al. 2004, from memory) were scored by choosing, for every annotated beat, the lead whose automatic mark lies nearest the cardiologist's. That choice looks at the reference, so these figures are no measurement of the tool (the global table is); they are here to compare like with like with such figures, and they bound what any rule choosing one lead per beat from these per-lead marks could reach.";
+
 /// What was loaded for one record.
 impl Loaded {
     /// The global reference: `.q1c` where present, else the combined lead files.
@@ -273,7 +281,14 @@ fn load_record(
         }
     }
     let leadmark = ann_dir.join(format!("{name}.leadmark"));
-    let test_lead = if want_lead && !leads.is_empty() {
+    // A `.q1c` reference also reads the per-lead marks, for the best-lead
+    // comparison (see [`waves::best_lead_beats`]); nothing is lost without them.
+    let best_lead_wanted = matches!(opts.reference, ReferenceKind::Auto | ReferenceKind::Global)
+        && existing(&opts.data_dir, name, "q1c").is_some()
+        && leadmark.is_file();
+    let test_lead = if best_lead_wanted {
+        Some(parse_beats_by_chan(&read_ann(&leadmark)?, hdr.fs))
+    } else if want_lead && !leads.is_empty() {
         if leadmark.is_file() {
             Some(parse_beats_by_chan(&read_ann(&leadmark)?, hdr.fs))
         } else {
@@ -487,6 +502,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
 
     // Global boundaries.
     let mut global = None;
+    let mut best_lead = None;
     let mut human = None;
     let mut qt = None;
     let windows = load_windows(opts, &mut warnings)?;
@@ -544,6 +560,34 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 None,
                 opts.resampling,
             ));
+            let best: Vec<RecordScore> = recs
+                .iter()
+                .filter_map(|r| {
+                    let (q, tl) = (r.q1c.as_ref()?, r.test_lead.as_ref()?);
+                    let lists: Vec<&[BeatMarks]> =
+                        tl.values().map(|p| p.beats.as_slice()).collect();
+                    let w = window_samples(opts.beat_window_ms, r.hdr.fs);
+                    let chosen = waves::best_lead_beats(&q.beats, &lists, w);
+                    let mut s = RecordScore::new(&r.name, r.hdr.fs);
+                    s.add_channel(0, q.beats.clone(), chosen, &cfg_for(r.hdr.fs, fids.clone()));
+                    Some(s)
+                })
+                .collect();
+            if !best.is_empty() {
+                // Pooled figures only: per-record rows of a comparison that
+                // looks at the reference would invite tuning to them.
+                let mut b = report::build_section(
+                    ".q1c (annotator 1)",
+                    BEST_LEAD_LABEL,
+                    &best,
+                    &fids,
+                    &[],
+                    None,
+                    opts.resampling,
+                );
+                b.per_record.clear();
+                best_lead = Some(b);
+            }
             // Human reference.
             let pairs: Vec<&Loaded> = recs
                 .iter()
@@ -768,6 +812,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
         records: names,
         beats,
         global,
+        best_lead,
         per_lead,
         qt,
         human,

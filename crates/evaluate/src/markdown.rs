@@ -552,6 +552,19 @@ pub fn render(r: &ValidationReport) -> String {
     if let Some(g) = &r.global {
         section_md(&mut out, "Global boundaries", g);
     }
+    if let Some(b) = &r.best_lead {
+        let _ = writeln!(
+            out,
+            "## Best lead per beat (comparison only)\n\n{}\n\nReference: {}; scored: {}. {} records, {} reference beats, {} paired.\n",
+            crate::BEST_LEAD_INTRO,
+            b.reference,
+            b.test,
+            b.n_records,
+            b.ref_beats,
+            b.paired_beats
+        );
+        fiducial_table(&mut out, b);
+    }
     if let Some(h) = &r.human {
         let _ = writeln!(
             out,

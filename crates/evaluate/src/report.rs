@@ -30,6 +30,11 @@ pub struct ValidationReport {
     pub beats: Option<BeatSection>,
     /// Global (all-lead) boundaries against a `.q1c`-style reference.
     pub global: Option<DelineationSection>,
+    /// Per-lead marks with the lead nearest the `.q1c` reference chosen for
+    /// each beat and fiducial ([`crate::waves::best_lead_beats`]): for
+    /// comparison with published figures scored that way, not a measurement.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub best_lead: Option<DelineationSection>,
     /// Per-lead boundaries against LUDB-style lead files.
     pub per_lead: Option<DelineationSection>,
     pub qt: Option<QtSection>,
