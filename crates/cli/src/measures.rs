@@ -137,6 +137,11 @@ pub fn windows_group(
             Data::F64(x.leads.iter().map(|l| opt(l.noise_mv)).collect()),
             "mV",
         );
+        mg.dataset_with_units(
+            "t_noise_mv",
+            Data::F64(x.leads.iter().map(|l| opt(l.t_noise_mv)).collect()),
+            "mV",
+        );
         let marks: Vec<_> = x.leads.iter().map(|l| l.marks.clone()).collect();
         marks_group(mg.group("marks"), &marks);
     }

@@ -83,13 +83,13 @@ pub fn robust_max(v: &[f64], tol: f64, max_frac: f64) -> Option<f64> {
 /// a few microvolts of noise against a near-flat T would otherwise flag a clean
 /// window (`unreadable_noise`) for a lead the QT never used.
 pub fn too_noisy(lead: &LeadMeasure, cfg: &MeasureConfig) -> bool {
-    cfg.max_noise_t_ratio > 0.0
-        && lead
-            .noise_mv
-            .zip(lead.t_amplitude_mv)
-            .is_some_and(|(n, t)| {
-                t.abs() >= cfg.min_t_amplitude_mv && n > cfg.max_noise_t_ratio * t.abs()
-            })
+    let over = |noise: Option<f64>, ratio: f64| {
+        ratio > 0.0
+            && noise
+                .zip(lead.t_amplitude_mv)
+                .is_some_and(|(n, t)| t.abs() >= cfg.min_t_amplitude_mv && n > ratio * t.abs())
+    };
+    over(lead.noise_mv, cfg.max_noise_t_ratio) || over(lead.t_noise_mv, cfg.max_t_noise_ratio)
 }
 
 /// Combine the leads of one window.
@@ -247,6 +247,7 @@ mod tests {
             pr_ms: None,
             t_amplitude_mv: Some(0.3),
             noise_mv: None,
+            t_noise_mv: None,
             qt_accepted: false,
             marks: BeatMarks {
                 qrs_on: mk(on),
@@ -335,6 +336,21 @@ mod tests {
         flat.t_amplitude_mv = Some(0.06);
         flat.noise_mv = Some(0.012);
         assert!(too_noisy(&flat, &cfg));
+        // Slow noise left in the median beat: 0.05 mV against 0.3 mV (ratio
+        // 0.17 > `max_t_noise_ratio` 0.15) is too noisy, 0.04 mV is not, and
+        // a zero ratio disables the test.
+        let mut slow = lead(100, 190, 500);
+        slow.noise_mv = Some(0.01);
+        slow.t_noise_mv = Some(0.05);
+        assert!(too_noisy(&slow, &cfg));
+        slow.t_noise_mv = Some(0.04);
+        assert!(!too_noisy(&slow, &cfg));
+        slow.t_noise_mv = Some(0.05);
+        let no_slow = MeasureConfig {
+            max_t_noise_ratio: 0.0,
+            ..MeasureConfig::default()
+        };
+        assert!(!too_noisy(&slow, &no_slow));
         let g = combine(&leads, 1000.0, &cfg);
         assert_eq!(g.longest_ms, Some(400.0));
         assert!(!g.accepted_leads.contains(&1));

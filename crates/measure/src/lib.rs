@@ -114,6 +114,10 @@ pub struct LeadMeasure {
     /// Broadband beat-to-beat noise (mV, see `residual_noise`). Compared with the T amplitude to
     /// decide whether the lead's T end can be trusted.
     pub noise_mv: Option<f64>,
+    /// Noise left in the median beat over the repolarisation (mV, see
+    /// `median_t_noise`): slow beat-to-beat noise that the broadband measure
+    /// misses (electrode motion overlaps the T wave's own band).
+    pub t_noise_mv: Option<f64>,
     /// The QT passed the plausibility, T-amplitude and outlier checks of the global rules.
     pub qt_accepted: bool,
     /// Marks on the median beat, sample indices into the median beat.
@@ -636,6 +640,13 @@ where
             lm.qt_ms = d(&lm.marks.qrs_on, &lm.marks.t_end);
             lm.t_amplitude_mv = t_amplitude(&m, &lm.marks);
             lm.noise_mv = residual_noise(&m, accepted.iter().map(|&k| segs[k][l].as_slice()));
+            lm.t_noise_mv = median_t_noise(
+                &m,
+                accepted.iter().map(|&k| segs[k][l].as_slice()),
+                before + ms_to_samples(cfg.t_noise_from_ms, fs),
+                c1,
+                ms_to_samples(cfg.t_noise_smooth_ms, fs).max(1),
+            );
             lm.qrs_ms = d(&lm.marks.qrs_on, &lm.marks.qrs_end);
             lm.pr_ms = d(&lm.marks.p_on, &lm.marks.qrs_on);
         }
@@ -823,6 +834,45 @@ fn residual_noise<'a>(m: &[f64], beats: impl Iterator<Item = &'a [f64]>) -> Opti
         })
         .collect();
     (!r.is_empty()).then(|| align::median(&mut r))
+}
+
+/// Noise of the median beat in the band of the T wave (mV): per beat, the
+/// residual from the median beat over samples `lo..=hi` (the repolarisation)
+/// smoothed by a centred moving average of `smooth` samples (which keeps
+/// the slow noise that moves a T end and drops what the T delineation at
+/// coarse wavelet scales ignores anyway), its RMS; the median over beats,
+/// times 1.2533 / sqrt(beats): the standard error of a median of that many
+/// beats with Gaussian noise (sqrt(π/2) / sqrt(n); common statistics).
+/// `None` with fewer than 3 beats or an empty span.
+fn median_t_noise<'a>(
+    m: &[f64],
+    beats: impl Iterator<Item = &'a [f64]>,
+    lo: usize,
+    hi: usize,
+    smooth: usize,
+) -> Option<f64> {
+    let hi = hi.min(m.len().saturating_sub(1));
+    if lo + smooth > hi {
+        return None;
+    }
+    let mut r: Vec<f64> = beats
+        .filter(|b| b.len() == m.len())
+        .map(|b| {
+            let res: Vec<f64> = (lo..=hi).map(|i| b[i] - m[i]).collect();
+            let mut acc: f64 = res[..smooth].iter().sum();
+            let mut ss = (acc / smooth as f64).powi(2);
+            for i in smooth..res.len() {
+                acc += res[i] - res[i - smooth];
+                ss += (acc / smooth as f64).powi(2);
+            }
+            (ss / (res.len() - smooth + 1) as f64).sqrt()
+        })
+        .collect();
+    if r.len() < 3 {
+        return None;
+    }
+    let n = r.len() as f64;
+    Some(align::median(&mut r) * std::f64::consts::FRAC_PI_2.sqrt() / n.sqrt())
 }
 
 fn t_amplitude(m: &[f64], marks: &BeatMarks) -> Option<f64> {

@@ -560,3 +560,37 @@ fn windows_lose_their_p_wave_when_most_beats_have_none() {
     assert_eq!(drop_absent_p(&mut w, &samples, &present, &off), 0);
     assert_eq!(w, with_p());
 }
+
+#[test]
+fn median_t_noise_keeps_slow_residuals_and_drops_fast_ones() {
+    // Nine beats: the median beat plus a slow sine of amplitude 0.03 mV
+    // (period 200 samples, the span holds two) and an alternating ±0.1 mV
+    // that the 2-sample moving average cancels exactly. A sine of amplitude
+    // a has RMS a/√2; its 2-sample average has amplitude a·cos(π/200).
+    let m: Vec<f64> = (0..500).map(|i| (i as f64 / 50.0).sin()).collect();
+    let (lo, hi) = (100usize, 500 - 1);
+    let beats: Vec<Vec<f64>> = (0..9)
+        .map(|k| {
+            m.iter()
+                .enumerate()
+                .map(|(i, v)| {
+                    let ph = 2.0 * std::f64::consts::PI * (i as f64 / 200.0 + k as f64 / 9.0);
+                    v + 0.03 * ph.sin() + if i % 2 == 0 { 0.1 } else { -0.1 }
+                })
+                .collect()
+        })
+        .collect();
+    let got = median_t_noise(&m, beats.iter().map(|b| b.as_slice()), lo, hi, 2).unwrap();
+    let rms = 0.03 * (std::f64::consts::PI / 200.0).cos() / 2f64.sqrt();
+    let want = rms * (std::f64::consts::PI / 2.0).sqrt() / 3.0;
+    assert!((got - want).abs() < 0.02 * want, "got {got}, want {want}");
+    // Fewer than three beats: no estimate; an empty span: none either.
+    assert_eq!(
+        median_t_noise(&m, beats[..2].iter().map(|b| b.as_slice()), lo, hi, 2),
+        None
+    );
+    assert_eq!(
+        median_t_noise(&m, beats.iter().map(|b| b.as_slice()), 400, 401, 4),
+        None
+    );
+}

@@ -579,6 +579,7 @@ fn recompute_window(
     };
     let stored = |name: &str| f64s(mg, name).unwrap_or_else(|| vec![f64::NAN; n]);
     let (t_amp, noise) = (stored("t_amplitude_mv"), stored("noise_mv"));
+    let t_noise = stored("t_noise_mv");
     let fin = |v: f64| v.is_finite().then_some(v);
     let ms = |a: Option<Mark>, b: Option<Mark>| {
         a.zip(b)
@@ -614,6 +615,7 @@ fn recompute_window(
             pr_ms: ms(bm.p_on, bm.qrs_on),
             t_amplitude_mv,
             noise_mv: fin(noise.get(l).copied().unwrap_or(f64::NAN)),
+            t_noise_mv: fin(t_noise.get(l).copied().unwrap_or(f64::NAN)),
             qt_accepted: false,
             marks: bm,
         });
