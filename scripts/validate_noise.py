@@ -32,7 +32,7 @@ instead with --noise-record, which takes the first signal of a WFDB record):
 
 Usage: python3 scripts/validate_noise.py [--bin target/release/tendline]
        [--work DIR] [--snr 18 12 6] [--kinds muscle motion baseline]
-       [--db qtdb ludb] [--noise-record PATH]
+       [--db qtdb ludb] [--noise-record PATH] [--keep]
 """
 
 import argparse
@@ -168,6 +168,10 @@ def main():
     ap.add_argument("--db", nargs="+", default=["qtdb", "ludb"], choices=["qtdb", "ludb"])
     ap.add_argument("--noise-record", help="WFDB record whose first signal is used as noise "
                     "(e.g. the Noise Stress Test Database's em); replaces the synthetic kinds")
+    ap.add_argument("--keep", action="store_true",
+                    help="keep the noisy copies and the runs' outputs in --work (several GB for "
+                    "every setting over QTDB); by default each is removed once scored, "
+                    "the reports (run-*-report) stay")
     a = ap.parse_args()
     work = Path(a.work)
     kinds = ["record"] if a.noise_record else a.kinds
@@ -189,6 +193,11 @@ def main():
                 print(f"{tag}: written in {time.time() - t0 - secs:.0f} s, scored in {secs:.0f} s",
                       file=sys.stderr)
                 results.append(entry(db, kind, snr, rep, work / f"run-{tag}", clean_run))
+                if not a.keep:
+                    shutil.rmtree(data)
+                    shutil.rmtree(work / f"run-{tag}")
+        if not a.keep:
+            shutil.rmtree(clean_run)
     write(results, a.noise_record)
 
 
