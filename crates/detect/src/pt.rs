@@ -355,6 +355,7 @@ pub(crate) fn decide(
     let h = ms_to_samples(cfg.mwi_window_ms, fs) / 2;
     let refractory = ms_to_samples(cfg.refractory_ms, fs);
     let t_window = ms_to_samples(cfg.t_wave_window_ms, fs);
+    let late_window = ms_to_samples(cfg.t_wave_late_window_ms, fs);
 
     let cands = candidates(mwi, filt, slope, h);
 
@@ -448,6 +449,12 @@ pub(crate) fn decide(
         if is_qrs {
             if let Some(l) = last {
                 if c.k - l.k < t_window && c.sl < cfg.t_wave_slope_ratio * l.sl {
+                    is_qrs = false;
+                }
+                if c.k - l.k < late_window
+                    && c.sl < cfg.t_wave_slope_ratio * l.sl
+                    && c.pi < cfg.t_wave_late_amp_frac * st.spki
+                {
                     is_qrs = false;
                 }
             }
