@@ -40,6 +40,7 @@ import shutil
 import sys
 import time
 import zlib
+from fractions import Fraction
 from pathlib import Path
 
 import numpy as np
@@ -116,8 +117,6 @@ def load_noise_record(path, fs):
     y = r.p_signal[:, 0].astype(float)
     y = y[np.isfinite(y)]
     if r.fs != fs:
-        from fractions import Fraction
-
         q = Fraction(fs) / Fraction(r.fs).limit_denominator(1000)
         y = scipy.signal.resample_poly(y, q.numerator, q.denominator)
     return y - y.mean()
@@ -144,10 +143,9 @@ def noisy_db(db, kind, snr_db, dest, records=None, noise_path=None):
 
 
 def flag_counts(run):
-    """Windows of `windows.csv` and those flagged as too noisy or unreadable."""
+    """Windows of `windows.csv`, those flagged `unreadable_noise`, those with a QT."""
     rows = vr.read_csv(run / "windows.csv")
-    noisy = sum("unreadable_noise" in r.get("flags", "") or "noisy" in r.get("flags", "")
-                for r in rows)
+    noisy = sum("unreadable_noise" in r.get("flags", "") for r in rows)
     with_qt = sum(bool(r.get("qt_ms")) for r in rows)
     return {"windows": len(rows), "noise_flagged": noisy, "with_qt": with_qt}
 
