@@ -654,3 +654,63 @@ def test_window_qt_matches_report():
         assert got["records"] == len(set(keys))
         assert abs(got["between_records_sd_ms"] - between) < 0.01
         assert abs(got["within_record_sd_ms"] - within) < 0.01
+
+
+def test_window_qt_by_overread_flag_matches_report():
+    """The window QT split by each over-read flag (report `qt.window_by_flag`),
+    recomputed from windows.csv (its `flags` column) and the .q1c files read with
+    `wfdb`: the flagged and the other scored windows separately."""
+    run, qtdb, report = _paths()
+    splits = report["qt"].get("window_by_flag") or []
+    assert {s["flag"] for s in splits} >= {"qt_inconsistent", "unreadable_noise"}
+    min_beats = report["protocol"]["min_window_beats"]
+    rows, cache = [], {}
+    for rec, row in _scored_window_rows(run, qtdb, report):
+        if rec not in cache:
+            fs = _fs(qtdb, rec)
+            cache[rec] = (fs, _beats_qrs_on_t_end(qtdb / rec, "q1c", fs))
+        fs, q1 = cache[rec]
+        m1 = _window_mean_qt(q1, float(row["start_s"]), float(row["end_s"]), fs, min_beats)
+        v = row["qt_superimposed_ms"]
+        if m1 is not None and v not in ("", "NaN", "nan"):
+            rows.append((float(v), m1, set(filter(None, row["flags"].split(";")))))
+    for s in splits:
+        flagged = [(v, m) for v, m, f in rows if s["flag"] in f]
+        others = [(v, m) for v, m, f in rows if s["flag"] not in f]
+        assert s["flagged_windows"] == len(flagged) and s["unflagged_windows"] == len(others)
+        if len(flagged) >= 2:
+            _check_ba(f"window QT, {s['flag']}", flagged, s["flagged"])
+        _check_ba(f"window QT, not {s['flag']}", others, s["unflagged"])
+
+
+def test_window_to_window_stability_matches_report():
+    """The window-to-window QTcF differences (report `qt.window_stability`),
+    recomputed with pandas from windows.csv: Fridericia's correction QT / RR^(1/3)
+    (RR in s) of the QTc-feeding `qt_ms`, differences between windows of a record
+    whose numbers follow each other."""
+    import pandas as pd
+
+    run, _qtdb, report = _paths()
+    st = report["qt"].get("window_stability")
+    assert st is not None, "report.json has no window_stability"
+    # Every window of the run counts, scored or not (record names kept as text).
+    w = pd.read_csv(run / "windows.csv", dtype={"record": str})
+    w["qtcf"] = w["qt_ms"] / np.cbrt(w["rr_ms"] / 1000.0)
+    ok = w["qtcf"].notna() & np.isfinite(w["qtcf"])
+    flags = w["flags"].fillna("").astype(str).str.split(";")
+    assert st["windows"] == int(ok.sum())
+    inconsistent = flags.apply(lambda f: "qt_inconsistent" in f) & ok
+    assert abs(st["inconsistent_pct"] - 100.0 * inconsistent.sum() / ok.sum()) < 1e-9
+    prev = w.shift(1)
+    pair = (
+        (prev["record"] == w["record"])
+        & (w["window"] - prev["window"] == 1)
+        & ok
+        & ok.shift(1, fill_value=False)
+    )
+    d = (w["qtcf"] - prev["qtcf"])[pair]
+    print(f"window stability: python pairs={d.size} sd={d.std(ddof=1):.4f}; report {st}")
+    assert st["pairs"] == d.size and st["records"] == w.loc[pair, "record"].nunique()
+    assert abs(st["delta_sd_ms"] - d.std(ddof=1)) < 1e-6
+    assert abs(st["delta_median_abs_ms"] - d.abs().median()) < 1e-6
+    assert abs(st["delta_above_40_pct"] - 100.0 * (d.abs() > 40).mean()) < 1e-9

@@ -112,6 +112,10 @@ pub fn windows_group(
             "qt_accepted",
             Data::I64(x.leads.iter().map(|l| l.qt_accepted as i64).collect()),
         );
+        mg.dataset(
+            "qt_inconsistent",
+            Data::I64(x.leads.iter().map(|l| l.inconsistent as i64).collect()),
+        );
         mg.dataset_with_units(
             "qt_ms",
             Data::F64(x.leads.iter().map(|l| opt(l.qt_ms)).collect()),
@@ -188,6 +192,7 @@ fn window_flags(x: &tendline_measure::WindowMeasure) -> Vec<&'static str> {
         (f.too_few_beats, "too_few_beats"),
         (f.noisy, "unreadable_noise"),
         (f.paced, "paced"),
+        (f.qt_inconsistent, "qt_inconsistent"),
     ] {
         if on {
             v.push(name);
@@ -225,6 +230,9 @@ pub fn summary_flags(m: &RecordMeasures) -> Vec<String> {
     }
     if m.windows.iter().any(|w| w.flags.paced) {
         v.push("paced".into());
+    }
+    if m.windows.iter().any(|w| w.flags.qt_inconsistent) {
+        v.push("qt_inconsistent".into());
     }
     v
 }

@@ -637,6 +637,26 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
             &crate::markdown::QT_SPLIT_HEADS,
             sp.iter().map(|r| r.as_slice()),
         );
+        let fr = crate::markdown::flag_rows(q);
+        plain_table_html(
+            &mut o,
+            crate::markdown::FLAG_INTRO,
+            &crate::markdown::FLAG_HEADS,
+            fr.iter().map(|r| r.as_slice()),
+        );
+        if let Some(rows) = q
+            .window_stability
+            .as_ref()
+            .filter(|s| s.pairs > 0)
+            .map(crate::markdown::window_step_rows)
+        {
+            plain_table_html(
+                &mut o,
+                crate::markdown::WINDOW_STEP_INTRO,
+                &crate::markdown::WINDOW_STEP_HEADS,
+                rows.iter().map(|r| r.as_slice()),
+            );
+        }
         o.push_str("<div class=plots>");
         for (name, b) in rows {
             if b.n > 0 {

@@ -164,12 +164,24 @@ pub struct WindowRow {
     pub qt_lead: String,
     /// Window QT dispersion (longest minus shortest valid lead QT), ms.
     pub qt_dispersion_ms: Option<f64>,
+    /// Mean RR of the window, ms.
+    pub rr_ms: Option<f64>,
+    /// The window's flags (`flags` column, `;`-separated; empty when absent).
+    pub flags: Vec<String>,
+}
+
+impl WindowRow {
+    /// Whether the window carries `flag`.
+    pub fn has_flag(&self, flag: &str) -> bool {
+        self.flags.iter().any(|f| f == flag)
+    }
 }
 
 /// Parse `windows.csv` text: a header row naming the columns, comma-separated values
 /// without quoting. Required columns: `record, start_s, end_s`; `window`, `qt_ms`,
 /// `qt_superimposed_ms`, `qrs_ms`, `pr_ms`, `p_ms`, `tpe_ms`, `qt_lead`,
-/// `qt_dispersion_ms` optional. Empty, `NaN` or `NA` cells are missing values.
+/// `qt_dispersion_ms`, `rr_ms` and `flags` (`;`-separated) optional. Empty, `NaN`
+/// or `NA` cells are missing values.
 pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, EvalError> {
     let bad = |line: usize, message: String| EvalError::Csv {
         path: path.to_path_buf(),
@@ -201,7 +213,7 @@ pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, Eval
     let (win_c, qt_c, qts_c) = (col("window"), col("qt_ms"), col("qt_superimposed_ms"));
     let (qrs_c, pr_c) = (col("qrs_ms"), col("pr_ms"));
     let (p_c, tpe_c, lead_c) = (col("p_ms"), col("tpe_ms"), col("qt_lead"));
-    let disp_c = col("qt_dispersion_ms");
+    let (disp_c, rr_c, flags_c) = (col("qt_dispersion_ms"), col("rr_ms"), col("flags"));
     let mut rows = Vec::new();
     for (i, l) in lines {
         let line = i + 1;
@@ -234,6 +246,17 @@ pub fn parse_windows_csv(text: &str, path: &Path) -> Result<Vec<WindowRow>, Eval
             tpe_ms: num(tpe_c, "tpe_ms", false)?,
             qt_lead: lead_c.map(|c| get(c).to_string()).unwrap_or_default(),
             qt_dispersion_ms: num(disp_c, "qt_dispersion_ms", false)?,
+            rr_ms: num(rr_c, "rr_ms", false)?,
+            flags: flags_c
+                .map(|c| {
+                    get(c)
+                        .split(';')
+                        .map(str::trim)
+                        .filter(|f| !f.is_empty())
+                        .map(String::from)
+                        .collect()
+                })
+                .unwrap_or_default(),
         });
     }
     Ok(rows)
@@ -286,5 +309,14 @@ mod tests {
         assert!(e.to_string().contains("line 2"), "{e}");
         assert!(e.to_string().contains("start_s"), "{e}");
         assert!(parse_windows_csv("a,b\n", Path::new("w.csv")).is_err());
+        assert_eq!(r[0].rr_ms, Some(800.0));
+        assert!(r[0].flags.is_empty());
+        // Flags are `;`-separated; an empty cell is no flag.
+        let t =
+            "record,window,start_s,end_s,flags\nr,0,0,10,irregular;qt_inconsistent\nr,1,10,20,\n";
+        let r = parse_windows_csv(t, Path::new("w.csv")).unwrap();
+        assert!(r[0].has_flag("qt_inconsistent") && r[0].has_flag("irregular"));
+        assert!(!r[0].has_flag("qt"));
+        assert!(r[1].flags.is_empty() && r[1].rr_ms.is_none());
     }
 }

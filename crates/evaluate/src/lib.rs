@@ -681,6 +681,8 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 window_tpe,
                 window_tpe_lead_ref: None,
                 window_qt_dispersion_lead_ref: None,
+                window_by_flag: window_qt_by_flag(opts, windows.as_deref(), &recs),
+                window_stability: None,
             });
         }
     }
@@ -754,6 +756,8 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                     window_tpe: None,
                     window_tpe_lead_ref: None,
                     window_qt_dispersion_lead_ref: None,
+                    window_by_flag: Vec::new(),
+                    window_stability: None,
                 });
                 q.beat_per_lead = Some(ba);
                 q.window_superimposed_lead_ref = lead_sup;
@@ -765,6 +769,9 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
         }
     }
 
+    if let (Some(q), Some(rows)) = (qt.as_mut(), windows.as_deref()) {
+        q.window_stability = Some(window_stability(rows));
+    }
     let worst = worst_beats(opts, &recs, &global_scores, &lead_scores, &mut warnings);
     let mut marks = Vec::new();
     if global.is_some() || per_lead.is_some() {
@@ -891,7 +898,7 @@ fn window_agreement(
     rows: &[inputs::WindowRow],
     recs: &[Loaded],
     interval: fn(&waves::BeatMarks) -> Option<i64>,
-    value: fn(&inputs::WindowRow) -> Option<f64>,
+    value: impl Fn(&inputs::WindowRow) -> Option<f64>,
 ) -> (Option<BlandAltman>, usize) {
     let by_name = by_position(recs);
     let (mut v, mut n) = (Vec::new(), 0);
@@ -923,6 +930,97 @@ fn window_qt(
     let (sup, n) = window_agreement(opts, rows, recs, qt, |w| w.qt_superimposed_ms);
     let (single, _) = window_agreement(opts, rows, recs, qt, |w| w.qt_ms);
     (sup, single, n)
+}
+
+/// The superimposed-leads window QT against the global reference, on the
+/// windows with and without each of [`report::OVERREAD_FLAGS`].
+fn window_qt_by_flag(
+    opts: &ValidateOptions,
+    rows: Option<&[inputs::WindowRow]>,
+    recs: &[Loaded],
+) -> Vec<report::FlagSplit> {
+    let Some(rows) = rows else {
+        return Vec::new();
+    };
+    let qt = waves::BeatMarks::qt_samples;
+    report::OVERREAD_FLAGS
+        .iter()
+        .map(|&flag| {
+            let (flagged, _) = window_agreement(opts, rows, recs, qt, |w| {
+                w.qt_superimposed_ms.filter(|_| w.has_flag(flag))
+            });
+            let (unflagged, _) = window_agreement(opts, rows, recs, qt, |w| {
+                w.qt_superimposed_ms.filter(|_| !w.has_flag(flag))
+            });
+            report::FlagSplit {
+                flag: flag.to_string(),
+                flagged_windows: flagged.as_ref().map_or(0, |b| b.n),
+                unflagged_windows: unflagged.as_ref().map_or(0, |b| b.n),
+                flagged,
+                unflagged,
+            }
+        })
+        .collect()
+}
+
+/// [`report::WindowStability`] of the QTc-feeding QT over all rows of
+/// `windows.csv`. Windows are consecutive when their `window` numbers differ
+/// by one (rows without a number: when they follow each other in the file).
+pub fn window_stability(rows: &[inputs::WindowRow]) -> report::WindowStability {
+    let qtcf = |w: &inputs::WindowRow| {
+        w.qt_ms
+            .zip(w.rr_ms)
+            .filter(|&(_, rr)| rr > 0.0)
+            .map(|(qt, rr)| qt / (rr / 1000.0).cbrt())
+            .filter(|v| v.is_finite())
+    };
+    let mut deltas = Vec::new();
+    let mut records = std::collections::BTreeSet::new();
+    let (mut windows, mut inconsistent) = (0usize, 0usize);
+    for (i, w) in rows.iter().enumerate() {
+        if qtcf(w).is_some() {
+            windows += 1;
+            inconsistent += usize::from(w.has_flag("qt_inconsistent"));
+        }
+        let Some(prev) = i.checked_sub(1).map(|j| &rows[j]) else {
+            continue;
+        };
+        let next_number = match (prev.window.parse::<i64>(), w.window.parse::<i64>()) {
+            (Ok(a), Ok(b)) => b == a + 1,
+            _ => prev.window.is_empty() && w.window.is_empty(),
+        };
+        if prev.record != w.record || !next_number {
+            continue;
+        }
+        if let (Some(a), Some(b)) = (qtcf(prev), qtcf(w)) {
+            deltas.push(b - a);
+            records.insert(w.record.clone());
+        }
+    }
+    let n = deltas.len();
+    let pct = |k: usize, of: usize| (of > 0).then(|| 100.0 * k as f64 / of as f64);
+    let mut abs: Vec<f64> = deltas.iter().map(|d| d.abs()).collect();
+    abs.sort_by(|a, b| a.total_cmp(b));
+    let median_abs = (n > 0).then(|| {
+        if n % 2 == 1 {
+            abs[n / 2]
+        } else {
+            (abs[n / 2 - 1] + abs[n / 2]) / 2.0
+        }
+    });
+    let sd = (n >= 2).then(|| {
+        let m = deltas.iter().sum::<f64>() / n as f64;
+        (deltas.iter().map(|d| (d - m).powi(2)).sum::<f64>() / (n - 1) as f64).sqrt()
+    });
+    report::WindowStability {
+        records: records.len(),
+        windows,
+        pairs: n,
+        delta_sd_ms: sd,
+        delta_median_abs_ms: median_abs,
+        delta_above_40_pct: pct(abs.iter().filter(|&&a| a > 40.0).count(), n),
+        inconsistent_pct: pct(inconsistent, windows),
+    }
 }
 
 /// Window QRS duration and PR interval against the mean reference interval of the
@@ -1253,6 +1351,59 @@ pub fn validate_and_write(opts: &ValidateOptions) -> Result<ValidationReport, Ev
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn window_stability_by_hand() {
+        // Fridericia's correction QT / RR^(1/3), RR in s (Fridericia 1920).
+        // Record a: windows 0-3 at RR 1000 ms (QTcF = QT), QT 400, 410, 470,
+        // 400 (window 2 flagged): differences +10, +60, -70. Record b: window
+        // 0 at RR 729 ms (0.729^(1/3) = 0.9 exactly) and QT 360 (QTcF 400),
+        // window 2 (not consecutive with 0) at RR 1000, QT 400: no pair.
+        // A row without RR counts nowhere.
+        let row =
+            |rec: &str, w: &str, qt: f64, rr: Option<f64>, flags: &[&str]| inputs::WindowRow {
+                record: rec.into(),
+                window: w.into(),
+                start_s: 0.0,
+                end_s: 10.0,
+                qt_ms: Some(qt),
+                qt_superimposed_ms: None,
+                qrs_ms: None,
+                pr_ms: None,
+                p_ms: None,
+                tpe_ms: None,
+                qt_lead: String::new(),
+                qt_dispersion_ms: None,
+                rr_ms: rr,
+                flags: flags.iter().map(|f| f.to_string()).collect(),
+            };
+        let rows = vec![
+            row("a", "0", 400.0, Some(1000.0), &[]),
+            row("a", "1", 410.0, Some(1000.0), &[]),
+            row("a", "2", 470.0, Some(1000.0), &["qt_inconsistent"]),
+            row("a", "3", 400.0, Some(1000.0), &[]),
+            row("b", "0", 360.0, Some(729.0), &[]),
+            row("b", "2", 400.0, Some(1000.0), &[]),
+            row("b", "3", 400.0, None, &[]),
+        ];
+        let s = window_stability(&rows);
+        assert_eq!((s.records, s.windows, s.pairs), (1, 6, 3));
+        // Differences 10, 60, -70: mean 0, sample SD sqrt((100 + 3600 + 4900) / 2).
+        let sd = ((100.0f64 + 3600.0 + 4900.0) / 2.0).sqrt();
+        assert!((s.delta_sd_ms.unwrap() - sd).abs() < 1e-9);
+        assert_eq!(s.delta_median_abs_ms, Some(60.0));
+        assert!((s.delta_above_40_pct.unwrap() - 200.0 / 3.0).abs() < 1e-9);
+        assert!((s.inconsistent_pct.unwrap() - 100.0 / 6.0).abs() < 1e-9);
+        // The 729-ms window is corrected exactly (QTcF 400, same as window b/2).
+        let b = vec![
+            row("b", "0", 360.0, Some(729.0), &[]),
+            row("b", "1", 400.0, Some(1000.0), &[]),
+        ];
+        let s = window_stability(&b);
+        assert_eq!(s.pairs, 1);
+        assert!(s.delta_median_abs_ms.unwrap().abs() < 1e-9);
+        assert_eq!(window_stability(&[]).pairs, 0);
+    }
 
     #[test]
     fn cluster_peaks_merges_leads() {

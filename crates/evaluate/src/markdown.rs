@@ -466,6 +466,78 @@ pub fn qt_stability_rows(q: &QtSection) -> Vec<[String; 5]> {
         .collect()
 }
 
+/// What the over-read flag table shows (Markdown and HTML).
+pub const FLAG_INTRO: &str = "Window QT (superimposed leads) on the scored windows with and without each flag that points the over-read at a window: a flag is worth its reading when the flagged windows err more.";
+
+/// Column heads of the over-read flag table (see [`flag_rows`]).
+pub const FLAG_HEADS: [&str; 7] = [
+    "flag",
+    "flagged windows",
+    "flagged: bias, SD ms",
+    "flagged: MAE ms",
+    "other windows",
+    "others: bias, SD ms",
+    "others: MAE ms",
+];
+
+/// One row per over-read flag of [`QtSection::window_by_flag`].
+/// Shared by the Markdown and HTML reports.
+pub fn flag_rows(q: &QtSection) -> Vec<[String; 7]> {
+    let pair = |b: Option<&crate::stats::BlandAltman>| {
+        b.map_or("–".to_string(), |b| {
+            format!("{}, {}", num(b.bias_ms, 1), num(b.sd_ms, 1))
+        })
+    };
+    let mae =
+        |b: Option<&crate::stats::BlandAltman>| b.map_or("–".to_string(), |b| num(b.mae_ms, 1));
+    q.window_by_flag
+        .iter()
+        .map(|f| {
+            [
+                format!("`{}`", f.flag),
+                f.flagged_windows.to_string(),
+                pair(f.flagged.as_ref()),
+                mae(f.flagged.as_ref()),
+                f.unflagged_windows.to_string(),
+                pair(f.unflagged.as_ref()),
+                mae(f.unflagged.as_ref()),
+            ]
+        })
+        .collect()
+}
+
+/// What the window-to-window table shows (Markdown and HTML).
+pub const WINDOW_STEP_INTRO: &str = "Window QT from one window to the next, over every window of the run (no reference needed): the QTc-feeding QT of consecutive windows of a record, each corrected by Fridericia's formula, and their difference. A heart's QT changes little in ten seconds, so large differences are the tool's jumps.";
+
+/// Column heads of the window-to-window table (see [`window_step_rows`]).
+pub const WINDOW_STEP_HEADS: [&str; 2] = ["quantity", "value"];
+
+/// The rows of a [`crate::report::WindowStability`].
+pub fn window_step_rows(s: &crate::report::WindowStability) -> Vec<[String; 2]> {
+    let pct = |v: Option<f64>| v.map_or("–".to_string(), |v| format!("{v:.2} %"));
+    vec![
+        ["records".into(), s.records.to_string()],
+        ["windows with a QT and RR".into(), s.windows.to_string()],
+        ["pairs of consecutive windows".into(), s.pairs.to_string()],
+        [
+            "SD of the QTcF difference".into(),
+            format!("{} ms", num(s.delta_sd_ms, 1)),
+        ],
+        [
+            "median absolute QTcF difference".into(),
+            format!("{} ms", num(s.delta_median_abs_ms, 1)),
+        ],
+        [
+            "pairs differing by more than 40 ms".into(),
+            pct(s.delta_above_40_pct),
+        ],
+        [
+            "windows flagged `qt_inconsistent`".into(),
+            pct(s.inconsistent_pct),
+        ],
+    ]
+}
+
 /// Column heads of the split-by-record table (see [`qt_split_rows`]).
 pub const QT_SPLIT_HEADS: [&str; 6] = [
     "interval",
@@ -609,6 +681,24 @@ pub fn render(r: &ValidationReport) -> String {
         if !rows.is_empty() {
             let _ = writeln!(out, "{QT_SPLIT_INTRO}\n");
             text_table(&mut out, &QT_SPLIT_HEADS, rows.iter().map(|r| r.as_slice()));
+        }
+        let rows = flag_rows(q);
+        if !rows.is_empty() {
+            let _ = writeln!(out, "{FLAG_INTRO}\n");
+            text_table(&mut out, &FLAG_HEADS, rows.iter().map(|r| r.as_slice()));
+        }
+        if let Some(rows) = q
+            .window_stability
+            .as_ref()
+            .filter(|s| s.pairs > 0)
+            .map(window_step_rows)
+        {
+            let _ = writeln!(out, "{WINDOW_STEP_INTRO}\n");
+            text_table(
+                &mut out,
+                &WINDOW_STEP_HEADS,
+                rows.iter().map(|r| r.as_slice()),
+            );
         }
     }
     let _ = writeln!(out, "## Protocol\n");

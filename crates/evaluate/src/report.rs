@@ -215,6 +215,56 @@ pub struct QtSection {
     /// longest minus the shortest of the lead files' mean beat QTs in the window.
     #[serde(default)]
     pub window_qt_dispersion_lead_ref: Option<BlandAltman>,
+    /// Window QT from superimposed leads against the same reference as
+    /// `window_superimposed`, split by each over-read flag of `windows.csv`
+    /// ([`OVERREAD_FLAGS`]): how much larger the errors of the flagged windows are.
+    #[serde(default)]
+    pub window_by_flag: Vec<FlagSplit>,
+    /// How the QTc-feeding window QT changes from one window to the next, over
+    /// every window of the run (no reference needed).
+    #[serde(default)]
+    pub window_stability: Option<WindowStability>,
+}
+
+/// Window flags that point the over-read at a window's QT.
+pub const OVERREAD_FLAGS: [&str; 2] = ["qt_inconsistent", "unreadable_noise"];
+
+/// Window QT agreement on the scored windows with and without one flag.
+#[derive(Debug, Clone, Serialize, Deserialize)]
+pub struct FlagSplit {
+    pub flag: String,
+    /// Scored windows (with enough reference beats and a tool value) that carry the flag.
+    pub flagged_windows: usize,
+    /// Scored windows without it.
+    pub unflagged_windows: usize,
+    pub flagged: Option<BlandAltman>,
+    pub unflagged: Option<BlandAltman>,
+}
+
+/// Consistency of the window QT between neighbouring windows of a record.
+///
+/// For each pair of consecutive windows of a record that both have a QT and an
+/// RR, the difference of their QT corrected by Fridericia's formula
+/// (QT / RR^(1/3), RR in s). The QT of a heart changes little in ten seconds
+/// (common practice: it follows the rate with a lag of a minute or two), so the
+/// spread of these differences measures how often the tool's QT jumps, on all
+/// the data and not only where a reference exists.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct WindowStability {
+    /// Records with at least one such pair.
+    pub records: usize,
+    /// Windows with a QT and an RR.
+    pub windows: usize,
+    /// Pairs of consecutive windows.
+    pub pairs: usize,
+    /// SD of the differences (ms).
+    pub delta_sd_ms: Option<f64>,
+    /// Median absolute difference (ms).
+    pub delta_median_abs_ms: Option<f64>,
+    /// Pairs whose QTcF differ by more than 40 ms (percent).
+    pub delta_above_40_pct: Option<f64>,
+    /// Windows with a QT flagged `qt_inconsistent` (percent).
+    pub inconsistent_pct: Option<f64>,
 }
 
 /// Second annotator vs first, and the tool on the same records.

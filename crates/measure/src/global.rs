@@ -92,22 +92,28 @@ pub fn too_noisy(lead: &LeadMeasure, cfg: &MeasureConfig) -> bool {
     over(lead.noise_mv, cfg.max_noise_t_ratio) || over(lead.t_noise_mv, cfg.max_t_noise_ratio)
 }
 
+/// The lead's QT may enter the window's QT: the lead is usable, its QT
+/// plausible, its T wave high enough, not too noisy, and its JT long enough
+/// (the checks of the module docs; the consistency across windows aside).
+pub fn qt_valid(lead: &LeadMeasure, cfg: &MeasureConfig) -> bool {
+    let plausible = |q: f64| q >= cfg.qt_min_ms && q <= cfg.qt_max_ms;
+    lead.usable
+        && lead.qt_ms.is_some_and(plausible)
+        && lead.t_amplitude_mv.map_or(0.0, f64::abs) >= cfg.min_t_amplitude_mv
+        && !too_noisy(lead, cfg)
+        && lead
+            .qt_ms
+            .zip(lead.qrs_ms)
+            .is_none_or(|(qt, qrs)| qt - qrs >= cfg.min_jt_ms)
+}
+
 /// Combine the leads of one window.
 pub fn combine(leads: &[LeadMeasure], fs: f64, cfg: &MeasureConfig) -> Global {
     let ms = |samples: f64| samples / fs * 1000.0;
     let plausible = |q: f64| q >= cfg.qt_min_ms && q <= cfg.qt_max_ms;
     let t_amp = |l: usize| leads[l].t_amplitude_mv.map_or(0.0, f64::abs);
     let valid: Vec<usize> = (0..leads.len())
-        .filter(|&l| {
-            leads[l].usable
-                && leads[l].qt_ms.is_some_and(plausible)
-                && t_amp(l) >= cfg.min_t_amplitude_mv
-                && !too_noisy(&leads[l], cfg)
-                && leads[l]
-                    .qt_ms
-                    .zip(leads[l].qrs_ms)
-                    .is_none_or(|(qt, qrs)| qt - qrs >= cfg.min_jt_ms)
-        })
+        .filter(|&l| qt_valid(&leads[l], cfg))
         .collect();
     let mut accepted = valid.clone();
     if valid.len() >= 3 {
@@ -249,6 +255,7 @@ mod tests {
             noise_mv: None,
             t_noise_mv: None,
             qt_accepted: false,
+            inconsistent: false,
             marks: BeatMarks {
                 qrs_on: mk(on),
                 qrs_end: mk(qrs_end),

@@ -30,6 +30,7 @@
 pub mod align;
 pub mod classify;
 pub mod config;
+pub mod consistency;
 pub mod global;
 pub mod qtc;
 pub mod study;
@@ -96,6 +97,9 @@ pub struct WindowFlags {
     /// (common practice: read the JT interval, and do not judge the QTc by the
     /// limits for conducted beats).
     pub paced: bool,
+    /// A lead's QT departs from the same lead's in the neighbouring windows
+    /// (`lead_consistency_ms`): the window's QT deserves a look at over-read.
+    pub qt_inconsistent: bool,
 }
 
 /// Measurements of one lead's median beat.
@@ -120,6 +124,10 @@ pub struct LeadMeasure {
     pub t_noise_mv: Option<f64>,
     /// The QT passed the plausibility, T-amplitude and outlier checks of the global rules.
     pub qt_accepted: bool,
+    /// The lead's rate-corrected QT departs from its own in the neighbouring windows by
+    /// more than `lead_consistency_ms` ([`check_lead_consistency`]).
+    pub inconsistent: bool,
+
     /// Marks on the median beat, sample indices into the median beat.
     pub marks: BeatMarks,
 }
@@ -344,6 +352,7 @@ where
         windows.push(measure_window(&ctx, start, end, &mut delineate));
         start = end;
     }
+    check_lead_consistency(&mut windows, cfg);
     let summary = summarize(&windows, sex, cfg);
     Ok(RecordMeasures { windows, summary })
 }
@@ -654,33 +663,9 @@ where
             .iter()
             .any(|lm| lm.usable && global::too_noisy(lm, cfg));
         g = global::combine(&leads_out, fs, cfg);
-        for (l, lm) in leads_out.iter_mut().enumerate() {
-            lm.qt_accepted = g.accepted_leads.contains(&l);
-        }
     }
 
-    let (qt_ms, qt_lead) = match cfg.qt_rule {
-        QtRule::LongestLead => (g.longest_ms, g.longest_lead),
-        QtRule::Superimposed => (g.superimposed_ms, None),
-    };
-    let jt_ms = qt_ms.zip(g.qrs_ms).map(|(q, r)| q - r);
-    let all = qt_ms.zip(rr_ms).map(|(q, r)| qtc::all(q, r));
-    let fin = |v: f64| v.is_finite().then_some(v);
-    let qtc_bazett_ms = all.and_then(|a| fin(a.bazett_ms));
-    let qtc_fridericia_ms = all.and_then(|a| fin(a.fridericia_ms));
-    let qtc_framingham_ms = all.and_then(|a| fin(a.framingham_ms));
-    let qtc_hodges_ms = all.and_then(|a| fin(a.hodges_ms));
-    let qtc_ms = match cfg.preferred_formula {
-        Formula::Bazett => qtc_bazett_ms,
-        Formula::Fridericia => qtc_fridericia_ms,
-        Formula::Framingham => qtc_framingham_ms,
-        Formula::Hodges => qtc_hodges_ms,
-    };
-    let classification = classify::classify(qtc_ms, ctx.sex, &cfg.limits);
-    flags.high_risk = classification.high_risk;
-    flags.wide_qrs = g.qrs_ms.is_some_and(|q| q >= cfg.limits.wide_qrs_ms);
-
-    WindowMeasure {
+    let mut w = WindowMeasure {
         start_s: ws as f64 / fs,
         end_s: we as f64 / fs,
         n_beats: used_beats.len(),
@@ -688,30 +673,98 @@ where
         aligned: used_pos,
         rr_ms,
         hr_bpm,
-        qt_ms,
-        qt_lead,
-        qt_lead_name: qt_lead.map(|l| ctx.lead_names[l].clone()),
-        qt_longest_ms: g.longest_ms,
-        qt_longest_lead: g.longest_lead,
-        qt_superimposed_ms: g.superimposed_ms,
-        qrs_ms: g.qrs_ms,
-        pr_ms: g.pr_ms,
-        jt_ms,
-        p_ms: g.p_ms,
-        tpe_ms: g.tpe_ms,
-        qt_dispersion_ms: g.qt_dispersion_ms,
-        qt_valid_leads: g.qt_valid_leads,
-        qtc_bazett_ms,
-        qtc_fridericia_ms,
-        qtc_framingham_ms,
-        qtc_hodges_ms,
-        qtc_ms,
-        qtc_flag: classification.flag,
-        classification,
+        qt_ms: None,
+        qt_lead: None,
+        qt_lead_name: None,
+        qt_longest_ms: None,
+        qt_longest_lead: None,
+        qt_superimposed_ms: None,
+        qrs_ms: None,
+        pr_ms: None,
+        jt_ms: None,
+        p_ms: None,
+        tpe_ms: None,
+        qt_dispersion_ms: None,
+        qt_valid_leads: 0,
+        qtc_bazett_ms: None,
+        qtc_fridericia_ms: None,
+        qtc_framingham_ms: None,
+        qtc_hodges_ms: None,
+        qtc_ms: None,
+        qtc_flag: QtcFlag::Unknown,
+        classification: classify::classify(None, ctx.sex, &cfg.limits),
         flags,
         leads: leads_out,
         median,
+    };
+    set_global(&mut w, &g, ctx.sex, cfg, ctx.lead_names);
+    w
+}
+
+/// The window's global intervals, QTc and classification from the leads'
+/// combination `g`.
+fn set_global(
+    w: &mut WindowMeasure,
+    g: &global::Global,
+    sex: Option<Sex>,
+    cfg: &MeasureConfig,
+    lead_names: &[String],
+) {
+    let (qt_ms, qt_lead) = match cfg.qt_rule {
+        QtRule::LongestLead => (g.longest_ms, g.longest_lead),
+        QtRule::Superimposed => (g.superimposed_ms, None),
+    };
+    let jt_ms = qt_ms.zip(g.qrs_ms).map(|(q, r)| q - r);
+    let all = qt_ms.zip(w.rr_ms).map(|(q, r)| qtc::all(q, r));
+    let fin = |v: f64| v.is_finite().then_some(v);
+    w.qtc_bazett_ms = all.and_then(|a| fin(a.bazett_ms));
+    w.qtc_fridericia_ms = all.and_then(|a| fin(a.fridericia_ms));
+    w.qtc_framingham_ms = all.and_then(|a| fin(a.framingham_ms));
+    w.qtc_hodges_ms = all.and_then(|a| fin(a.hodges_ms));
+    w.qtc_ms = match cfg.preferred_formula {
+        Formula::Bazett => w.qtc_bazett_ms,
+        Formula::Fridericia => w.qtc_fridericia_ms,
+        Formula::Framingham => w.qtc_framingham_ms,
+        Formula::Hodges => w.qtc_hodges_ms,
+    };
+    let classification = classify::classify(w.qtc_ms, sex, &cfg.limits);
+    w.flags.high_risk = classification.high_risk;
+    w.flags.wide_qrs = g.qrs_ms.is_some_and(|q| q >= cfg.limits.wide_qrs_ms);
+    w.qt_ms = qt_ms;
+    w.qt_lead = qt_lead;
+    w.qt_lead_name = qt_lead.and_then(|l| lead_names.get(l).cloned());
+    w.qt_longest_ms = g.longest_ms;
+    w.qt_longest_lead = g.longest_lead;
+    w.qt_superimposed_ms = g.superimposed_ms;
+    w.qrs_ms = g.qrs_ms;
+    w.pr_ms = g.pr_ms;
+    w.jt_ms = jt_ms;
+    w.p_ms = g.p_ms;
+    w.tpe_ms = g.tpe_ms;
+    w.qt_dispersion_ms = g.qt_dispersion_ms;
+    w.qt_valid_leads = g.qt_valid_leads;
+    w.qtc_flag = classification.flag;
+    w.classification = classification;
+    for (l, lm) in w.leads.iter_mut().enumerate() {
+        lm.qt_accepted = g.accepted_leads.contains(&l);
     }
+}
+
+/// Flag each window with a lead whose rate-corrected QT departs from the same
+/// lead's in the neighbouring windows (`lead_consistency_ms`, module
+/// [`consistency`]), and mark those leads. The values are left as they are:
+/// the flag points the over-read at the window. Returns how many windows were
+/// flagged.
+pub fn check_lead_consistency(windows: &mut [WindowMeasure], cfg: &MeasureConfig) -> usize {
+    let checks = consistency::inconsistent_leads(windows, cfg);
+    for c in &checks {
+        let win = &mut windows[c.window];
+        win.flags.qt_inconsistent = true;
+        for &l in &c.inconsistent {
+            win.leads[l].inconsistent = true;
+        }
+    }
+    checks.len()
 }
 
 /// Drop the P wave of windows whose beats mostly have none in the beat-by-beat

@@ -594,3 +594,94 @@ fn median_t_noise_keeps_slow_residuals_and_drops_fast_ones() {
         None
     );
 }
+
+/// Windows of an invented 90-s record whose leads' QTs follow Fridericia's
+/// relation to RR exactly (QT = 400 ms · RR^(1/3), RR in s: Fridericia, Acta
+/// Med Scand 1920), with the rate changing from window to window.
+fn fridericia_windows() -> Vec<WindowMeasure> {
+    let sh = shapes();
+    let r = record(90.0, 0.8, 0.003, &sh, 11);
+    let mut w = run(&r, &MeasureConfig::default(), None).windows;
+    assert_eq!(w.len(), 9);
+    for (k, x) in w.iter_mut().enumerate() {
+        let rr = 600.0 + 50.0 * k as f64;
+        x.rr_ms = Some(rr);
+        x.flags.qt_inconsistent = false;
+        for lm in &mut x.leads {
+            assert!(global::qt_valid(lm, &MeasureConfig::default()));
+            lm.qt_ms = Some(400.0 * (rr / 1000.0).cbrt());
+            lm.inconsistent = false;
+        }
+    }
+    w
+}
+
+#[test]
+fn a_lead_whose_qt_jumps_against_its_neighbours_is_flagged_and_kept() {
+    let cfg = MeasureConfig::default();
+    // QT moving with the rate as Fridericia's formula says is consistent,
+    // however much the RR changes (600 to 1000 ms here).
+    let mut w = fridericia_windows();
+    assert_eq!(check_lead_consistency(&mut w, &cfg), 0);
+    assert!(w.iter().all(|x| !x.flags.qt_inconsistent));
+    // Lead 0 of window 4 ends 60 ms late: that window is flagged and lead 0
+    // marked; the values stay as measured (the flag asks for an over-read).
+    let mut w = fridericia_windows();
+    let late = w[4].leads[0].qt_ms.unwrap() + 60.0;
+    w[4].leads[0].qt_ms = Some(late);
+    let before_qt = w[4].qt_ms;
+    assert_eq!(check_lead_consistency(&mut w, &cfg), 1);
+    assert!(w[4].flags.qt_inconsistent);
+    assert!(w[4].leads[0].inconsistent && !w[4].leads[1].inconsistent);
+    assert_eq!(w[4].leads[0].qt_ms, Some(late));
+    assert_eq!(w[4].qt_ms, before_qt);
+    assert!(w
+        .iter()
+        .enumerate()
+        .all(|(k, x)| k == 4 || !x.flags.qt_inconsistent));
+    // 35 ms (under the 40-ms default) is not a jump.
+    let mut w = fridericia_windows();
+    w[4].leads[0].qt_ms = w[4].leads[0].qt_ms.map(|q| q + 35.0);
+    assert_eq!(check_lead_consistency(&mut w, &cfg), 0);
+    // Corrected QT, not raw QT, is compared: the same raw QT at a 40 %
+    // shorter RR (RR^(1/3) 0.84 times smaller: QTcF 57 ms longer) departs.
+    let mut w = fridericia_windows();
+    w[4].rr_ms = w[4].rr_ms.map(|r| r * 0.6);
+    assert_eq!(check_lead_consistency(&mut w, &cfg), 1);
+    assert!(w[4].leads.iter().all(|l| l.inconsistent));
+}
+
+#[test]
+fn the_consistency_check_needs_enough_neighbours_and_can_be_off() {
+    // Off: nothing is judged.
+    let off = MeasureConfig {
+        lead_consistency_ms: 0.0,
+        ..MeasureConfig::default()
+    };
+    let mut w = fridericia_windows();
+    w[4].leads[0].qt_ms = w[4].leads[0].qt_ms.map(|q| q + 100.0);
+    assert_eq!(check_lead_consistency(&mut w, &off), 0);
+    // Lead 0 gives a QT in only three windows (0, 1 and 4; the others have a
+    // flat T): window 4 has no neighbour within 3 windows with a QT of lead 0
+    // but window 1, fewer than the 3 needed, so it is not judged.
+    let cfg = MeasureConfig::default();
+    let mut w = fridericia_windows();
+    for (k, x) in w.iter_mut().enumerate() {
+        if ![0, 1, 4].contains(&k) {
+            x.leads[0].t_amplitude_mv = Some(0.0);
+        }
+    }
+    w[4].leads[0].qt_ms = w[4].leads[0].qt_ms.map(|q| q + 100.0);
+    assert_eq!(check_lead_consistency(&mut w, &cfg), 0);
+    // With one neighbour enough, it is judged against window 1 and departs;
+    // window 1 is then judged against windows 0 and 4, whose median (of two
+    // values, their mean) lies 50 ms above it: it departs too. That is why
+    // the default asks for three.
+    let one = MeasureConfig {
+        lead_consistency_min_windows: 1,
+        ..MeasureConfig::default()
+    };
+    assert_eq!(check_lead_consistency(&mut w, &one), 2);
+    assert!(w[4].leads[0].inconsistent && w[1].leads[0].inconsistent);
+    assert!(!w[0].leads[0].inconsistent);
+}

@@ -93,7 +93,7 @@ const RECORD_ATTRS: [&str; 18] = [
 ];
 
 /// Window flags in the order the run writes them, then the reader's.
-const FLAG_ORDER: [&str; 11] = [
+const FLAG_ORDER: [&str; 12] = [
     "irregular",
     "wide_qrs",
     "sex_unknown",
@@ -102,6 +102,7 @@ const FLAG_ORDER: [&str; 11] = [
     "too_few_beats",
     "unreadable_noise",
     "paced",
+    "qt_inconsistent",
     "corrected",
     "unreadable_reader",
     "beat_unreadable_reader",
@@ -544,6 +545,7 @@ fn recompute_window(
     let mpath = format!("windows/medians/{w:03}");
     let mg = crate::util::group_at(g, &mpath).ok_or(format!("{mpath} is missing"))?;
     let usable = i64s(mg, "usable").unwrap_or(&[]).to_vec();
+    let inconsistent = i64s(mg, "qt_inconsistent").unwrap_or(&[]).to_vec();
     let n = usable.len();
     let (cols, beat) = match data_at(mg, "beat") {
         Some(Data::F32Matrix { cols, values }) => (*cols, values.clone()),
@@ -617,6 +619,7 @@ fn recompute_window(
             noise_mv: fin(noise.get(l).copied().unwrap_or(f64::NAN)),
             t_noise_mv: fin(t_noise.get(l).copied().unwrap_or(f64::NAN)),
             qt_accepted: false,
+            inconsistent: !changed_lead[l] && inconsistent.get(l).is_some_and(|&v| v != 0),
             marks: bm,
         });
     }

@@ -48,10 +48,11 @@ pub struct Priority {
 ///
 /// Score: 2·(1 − mark confidence) + 2 for a QTc flag other than `normal` + 1 for
 /// unreadable stretches + 1 for a noisy lead left out (`unreadable_noise`) + 1 for
-/// pacing stimuli removed (`pacing_spikes`: paced QRS onsets and QT need a look) +
+/// a lead whose QT jumps between windows (`qt_inconsistent`) + 1 for pacing
+/// stimuli removed (`pacing_spikes`: paced QRS onsets and QT need a look) +
 /// min(T-end disagreement / 20 ms, 2). Reasons are listed for confidence below 0.5,
-/// a non-normal QTc flag, unreadable stretches, noisy leads, pacing stimuli and a
-/// T-end disagreement above 10 ms. The weights are this crate's choice, not a
+/// a non-normal QTc flag, unreadable stretches, noisy leads, jumping QTs, pacing
+/// stimuli and a T-end disagreement above 10 ms. The weights are this crate's choice, not a
 /// published scale.
 pub fn priority(g: &Group, record: &str) -> Priority {
     let fs = attr_f64(g, "fs").unwrap_or(f64::NAN);
@@ -98,6 +99,10 @@ pub fn priority(g: &Group, record: &str) -> Priority {
     if flags.split(';').any(|f| f == "unreadable_noise") {
         score += 1.0;
         reasons.push("noisy lead(s) left out of QT".into());
+    }
+    if flags.split(';').any(|f| f == "qt_inconsistent") {
+        score += 1.0;
+        reasons.push("a lead's QT jumps between windows".into());
     }
     let n_paced = attr_f64(g, "pacing_spikes").unwrap_or(0.0);
     if n_paced > 0.0 {
