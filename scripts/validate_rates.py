@@ -1,11 +1,11 @@
 #!/usr/bin/env python3
 """Accuracy at other sampling rates: QTDB and LUDB resampled, scored the same way.
 
-Devices record at 250, 500 or 1000 Hz (and more); the pipeline analyses every
-lead at `delineate.analysis_fs_hz` and should give the same accuracy whatever
-rate the input has. This script resamples every record of ../shared/data/qtdb
-(250 Hz) to 500 and 1000 Hz and every record of ../shared/data/ludb (500 Hz)
-to 250 and 1000 Hz with `scipy.signal.resample_poly` (polyphase FIR with a
+Devices record at 128 (Holter), 250, 500 or 1000 Hz (and more); the pipeline
+analyses every lead at `delineate.analysis_fs_hz` and should give the same
+accuracy whatever rate the input has. This script resamples every record of
+../shared/data/qtdb (250 Hz) to 128, 500 and 1000 Hz and every record of
+../shared/data/ludb (500 Hz) to 128, 250 and 1000 Hz with `scipy.signal.resample_poly` (polyphase FIR with a
 Kaiser window, the general-purpose reference), writes them as WFDB format 16
 at 1 uV per unit with the `wfdb` package, moves every reference annotation to
 the new rate (sample x up / down, rounded to the nearest sample: at 250 Hz
@@ -35,7 +35,7 @@ import wfdb
 ROOT = Path(__file__).resolve().parents[1]
 DATA = ROOT.parent / "shared" / "data"
 # The native rate first: the other rates are compared with its run.
-PLAN = {"qtdb": [250, 500, 1000], "ludb": [500, 250, 1000]}
+PLAN = {"qtdb": [250, 128, 500, 1000], "ludb": [500, 128, 250, 1000]}
 FIDUCIALS = ["p_on", "p_end", "qrs_on", "qrs_end", "t_peak", "t_end"]
 
 

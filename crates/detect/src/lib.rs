@@ -199,6 +199,21 @@ pub struct DetectConfig {
     pub learning_signal_fraction: f64,
     /// Initial noise level = this fraction of the learning-phase mean (from memory: 1/2).
     pub learning_noise_fraction: f64,
+    /// While fewer than two beats have been accepted (no RR interval, so no
+    /// search-back yet) and none for this long (ms, from the start or the last
+    /// of them), the signal and noise levels are learned again, as in the
+    /// learning phase, from the `learning_ms` of signal just before the next
+    /// candidate; 0 = never. Why: the paper learns the levels once, from the
+    /// first 2 s, and lets them fall only with accepted beats or through the
+    /// search-back, which needs an RR average; so a large artifact at the start
+    /// (an amplifier settling, an electrode touched, a filter's edge) set a
+    /// threshold above every QRS that followed and nothing was detected again
+    /// (QTDB sele0114, sele0116 and sele0136 resampled to 128 Hz, whose first
+    /// samples carry the resampler's edge ringing on a 9-mV offset: one beat
+    /// each in 7.5 to 15 minutes). Once beats are found, pauses are left to the
+    /// search-back: re-learning in the 5.9-s sinus pause of QTDB sel232 took 6
+    /// noise peaks for beats. Default 5000.
+    pub relearn_ms: f64,
     /// Block length for lead scales and quality (ms).
     pub fusion_block_ms: f64,
     /// Number of blocks (odd) over which each lead's beat level is the median block maximum.
@@ -275,6 +290,7 @@ impl Default for DetectConfig {
             learning_ms: 2000.0,
             learning_signal_fraction: 1.0 / 3.0,
             learning_noise_fraction: 0.5,
+            relearn_ms: 5000.0,
             fusion_block_ms: 2000.0,
             fusion_scale_blocks: 5,
             quality_background_percentile: 30.0,
@@ -390,6 +406,7 @@ impl DetectConfig {
                 1.0,
                 "",
             )
+            .range("relearn_ms", self.relearn_ms, 0.0, 600_000.0, "ms")
             .range(
                 "fusion_block_ms",
                 self.fusion_block_ms,

@@ -361,19 +361,33 @@ pub(crate) fn decide(
 
     // Learning phase: initial signal and noise levels from the first seconds.
     let learn = ms_to_samples(cfg.learning_ms, fs).min(n);
-    let max_i = mwi[..learn].iter().cloned().fold(0.0, f64::max);
-    let mean_i = mwi[..learn].iter().sum::<f64>() / learn as f64;
-    let max_f = filt[..learn].iter().cloned().fold(0.0, f64::max);
-    let mean_f = filt[..learn].iter().sum::<f64>() / learn as f64;
+    // (signal, noise) levels of the integrated and the filtered signal over a stretch.
+    let levels = |a: usize, b: usize| {
+        let (i, f) = (&mwi[a..b], &filt[a..b]);
+        let len = (b - a).max(1) as f64;
+        (
+            cfg.learning_signal_fraction * i.iter().cloned().fold(0.0, f64::max),
+            cfg.learning_noise_fraction * i.iter().sum::<f64>() / len,
+            cfg.learning_signal_fraction * f.iter().cloned().fold(0.0, f64::max),
+            cfg.learning_noise_fraction * f.iter().sum::<f64>() / len,
+        )
+    };
+    let (spki, npki, spkf, npkf) = levels(0, learn);
     let mut st = State {
-        spki: cfg.learning_signal_fraction * max_i,
-        npki: cfg.learning_noise_fraction * mean_i,
-        spkf: cfg.learning_signal_fraction * max_f,
-        npkf: cfg.learning_noise_fraction * mean_f,
+        spki,
+        npki,
+        spkf,
+        npkf,
         rr: VecDeque::new(),
         rr_regular: VecDeque::new(),
         irregular: false,
     };
+    let relearn = if cfg.relearn_ms > 0.0 {
+        ms_to_samples(cfg.relearn_ms, fs).max(1)
+    } else {
+        usize::MAX
+    };
+    let mut learned_at = 0usize;
 
     let mut beats: Vec<PtBeat> = Vec::new();
     let mut last: Option<Cand> = None;
@@ -445,6 +459,14 @@ pub(crate) fn decide(
             }
         }
 
+        // No RR interval yet (so no search-back) and no beat for
+        // `relearn_ms`: learn the levels again from the stretch just before
+        // this candidate (see `DetectConfig::relearn_ms`).
+        let quiet_since = last.map_or(0, |l| l.k).max(learned_at);
+        if beats.len() < 2 && c.k - quiet_since > relearn && c.k >= learn {
+            (st.spki, st.npki, st.spkf, st.npkf) = levels(c.k - learn, c.k);
+            learned_at = c.k;
+        }
         let mut is_qrs = c.pi > st.thr_i1(cfg) && c.pf > st.thr_f1(cfg);
         if is_qrs {
             if let Some(l) = last {

@@ -331,3 +331,42 @@ fn qtdb_beats_do_not_depend_on_sampling_rate() {
         100.0 * frac
     );
 }
+
+/// A large artifact at the very start of a record (an amplifier settling, an
+/// electrode touched: here 5 mV for 40 ms on every lead, invented) must not stop
+/// the detection of the beats that follow. Before `relearn_ms`, the learning
+/// phase took its levels from the artifact and these records lost every beat
+/// (seen first on them resampled to 128 Hz, whose first samples carry the
+/// resampler's edge ringing). Reference: the records' `.atr` beats.
+#[test]
+fn an_artifact_at_the_start_does_not_stop_detection() {
+    let Some(dir) = qtdb_dir() else { return };
+    let on = DetectConfig::default();
+    let off = DetectConfig {
+        relearn_ms: 0.0,
+        ..DetectConfig::default()
+    };
+    for rec in ["sele0114", "sele0116", "sele0136"] {
+        let mut l = load(&dir, rec);
+        let n = (0.040 * l.fs) as usize;
+        for lead in &mut l.leads {
+            let x0 = lead[0];
+            lead[..n].iter_mut().for_each(|v| *v = x0 + 5.0);
+        }
+        let x = condition(&l.leads, l.fs);
+        let refs: Vec<&[f64]> = x.iter().map(|v| v.as_slice()).collect();
+        let reference: Vec<i64> = l.beats.iter().map(|b| b.0).collect();
+        let se = |cfg: &DetectConfig| {
+            let d = detect(&refs, l.fs, cfg).expect("detect");
+            let got: Vec<i64> = d.beats.iter().map(|b| b.sample as i64).collect();
+            match_beats(&reference, &got, window(l.fs)).sensitivity()
+        };
+        let (with, without) = (se(&on), se(&off));
+        println!(
+            "{rec}: Se {:.2} % with re-learning, {:.2} % without",
+            100.0 * with,
+            100.0 * without
+        );
+        assert!(with > 0.99, "{rec}: Se {with}");
+    }
+}

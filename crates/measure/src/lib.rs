@@ -648,7 +648,29 @@ where
             };
             lm.qt_ms = d(&lm.marks.qrs_on, &lm.marks.t_end);
             lm.t_amplitude_mv = t_amplitude(&m, &lm.marks);
-            lm.noise_mv = residual_noise(&m, accepted.iter().map(|&k| segs[k][l].as_slice()));
+            // The beat's own span (as for the correlation test): beyond it
+            // lie the neighbouring beats' complexes, which RR changes do not
+            // align.
+            let span = if cfg.noise_outside_qrs {
+                (c0, c1)
+            } else {
+                (0, m.len())
+            };
+            let skip = if cfg.noise_outside_qrs {
+                let margin = ms_to_samples(cfg.noise_qrs_margin_ms, fs);
+                lm.marks
+                    .qrs_on
+                    .zip(lm.marks.qrs_end)
+                    .map(|(a, b)| (a.sample.saturating_sub(margin), b.sample + margin))
+            } else {
+                None
+            };
+            lm.noise_mv = residual_noise(
+                &m,
+                accepted.iter().map(|&k| segs[k][l].as_slice()),
+                span,
+                skip,
+            );
             lm.t_noise_mv = median_t_noise(
                 &m,
                 accepted.iter().map(|&k| segs[k][l].as_slice()),
@@ -874,16 +896,30 @@ where
 /// passed through the second-difference filter r[i] − (r[i−1] + r[i+1])/2, which keeps
 /// noise (white noise of SD σ comes out with SD σ·√1.5) and removes the smooth
 /// beat-to-beat changes of a real ECG (T waves following RR); median over beats.
-fn residual_noise<'a>(m: &[f64], beats: impl Iterator<Item = &'a [f64]>) -> Option<f64> {
+/// Only centre samples in `span` (`lo..hi`) count, and those within `skip`
+/// (inclusive; the QRS complex) are left out: there the residual is the steep
+/// complex's sub-sample misalignment, not noise.
+fn residual_noise<'a>(
+    m: &[f64],
+    beats: impl Iterator<Item = &'a [f64]>,
+    span: (usize, usize),
+    skip: Option<(usize, usize)>,
+) -> Option<f64> {
+    let keep = |i: usize| skip.is_none_or(|(a, b)| i < a || i > b);
+    let (lo, hi) = (span.0.max(1), span.1.min(m.len().saturating_sub(1)));
+    let kept = (lo..hi).filter(|&i| keep(i)).count();
+    if kept == 0 {
+        return None;
+    }
     let mut r: Vec<f64> = beats
-        .filter(|b| b.len() == m.len() && m.len() >= 3)
+        .filter(|b| b.len() == m.len())
         .map(|b| {
-            let res: Vec<f64> = b.iter().zip(m).map(|(x, y)| x - y).collect();
-            let ss: f64 = res
-                .windows(3)
-                .map(|w| (w[1] - 0.5 * (w[0] + w[2])).powi(2))
+            let res = |i: usize| b[i] - m[i];
+            let ss: f64 = (lo..hi)
+                .filter(|&i| keep(i))
+                .map(|i| (res(i) - 0.5 * (res(i - 1) + res(i + 1))).powi(2))
                 .sum();
-            (ss / (res.len() - 2) as f64 / 1.5).sqrt()
+            (ss / kept as f64 / 1.5).sqrt()
         })
         .collect();
     (!r.is_empty()).then(|| align::median(&mut r))

@@ -685,3 +685,42 @@ fn the_consistency_check_needs_enough_neighbours_and_can_be_off() {
     assert!(w[4].leads[0].inconsistent && w[1].leads[0].inconsistent);
     assert!(!w[0].leads[0].inconsistent);
 }
+
+#[test]
+fn broadband_noise_counts_only_the_beat_outside_its_qrs() {
+    // Seeded white noise of SD 0.02 mV in every beat's residual over the kept
+    // samples 10..90, and large beat-to-beat differences (a misaligned QRS at
+    // 40..50, a neighbouring complex at 95..) where the estimate must not look.
+    let m = vec![0.0; 100];
+    let mut st = 7u64;
+    let beats: Vec<Vec<f64>> = (0..9)
+        .map(|k| {
+            (0..100)
+                .map(|i| {
+                    // Sum of 12 uniforms minus 6: unit variance (Irwin-Hall; common practice).
+                    let g: f64 = (0..12).map(|_| lcg(&mut st)).sum::<f64>() - 6.0;
+                    let misaligned = if (40..=50).contains(&i) || i >= 95 {
+                        if k % 2 == 0 {
+                            1.0
+                        } else {
+                            -1.0
+                        }
+                    } else {
+                        0.0
+                    };
+                    0.02 * g + misaligned
+                })
+                .collect()
+        })
+        .collect();
+    let refs = || beats.iter().map(|b| b.as_slice());
+    let n = residual_noise(&m, refs(), (10, 90), Some((38, 52))).unwrap();
+    // The second difference keeps white noise at SD σ·√1.5, divided out: σ back,
+    // within the sampling spread of 9 beats × 64 samples.
+    assert!((n - 0.02).abs() < 0.003, "{n}");
+    // Over the whole span the misaligned complexes dominate.
+    let all = residual_noise(&m, refs(), (0, 100), None).unwrap();
+    assert!(all > 0.1, "{all}");
+    // Nothing left to measure: none.
+    assert_eq!(residual_noise(&m, refs(), (40, 45), Some((30, 60))), None);
+}
