@@ -172,6 +172,7 @@ pub fn windows_group(
     g.attr("n_windows", Attr::Int(s.n_windows as i64));
     g.attr("n_windows_measured", Attr::Int(s.n_measured as i64));
     g.attr("n_windows_irregular", Attr::Int(s.n_irregular as i64));
+    g.attr("n_windows_inconsistent", Attr::Int(s.n_inconsistent as i64));
     g.attr("qt_rule", Attr::Text(s.qt_rule.as_str().into()));
     g.attr("qtc_formula", Attr::Text(s.formula.as_str().into()));
     g.attr("qtc_flag", Attr::Text(s.qtc_flag.as_str().into()));

@@ -203,7 +203,8 @@ pub struct DetectConfig {
     /// search-back yet) and none for this long (ms, from the start or the last
     /// of them), the signal and noise levels are learned again, as in the
     /// learning phase, from the `learning_ms` of signal just before the next
-    /// candidate; 0 = never. Why: the paper learns the levels once, from the
+    /// candidate, and the candidates of that stretch are judged again against
+    /// them; 0 = never. Why: the paper learns the levels once, from the
     /// first 2 s, and lets them fall only with accepted beats or through the
     /// search-back, which needs an RR average; so a large artifact at the start
     /// (an amplifier settling, an electrode touched, a filter's edge) set a

@@ -412,7 +412,10 @@ pub(crate) fn decide(
             *last = Some(c);
         };
 
-    for &c in &cands {
+    // Candidates to judge again (after re-learning) before the next new one.
+    let mut retry: VecDeque<Cand> = VecDeque::new();
+    let mut fresh = cands.iter().copied();
+    while let Some(c) = retry.pop_front().or_else(|| fresh.next()) {
         // Search-back: no QRS for longer than the missed-beat limit.
         while let (Some(l), Some(avg)) = (last, st.rr_average2()) {
             let limit = cfg.searchback_rr_fraction * avg;
@@ -463,9 +466,19 @@ pub(crate) fn decide(
         // `relearn_ms`: learn the levels again from the stretch just before
         // this candidate (see `DetectConfig::relearn_ms`).
         let quiet_since = last.map_or(0, |l| l.k).max(learned_at);
-        if beats.len() < 2 && c.k - quiet_since > relearn && c.k >= learn {
-            (st.spki, st.npki, st.spkf, st.npkf) = levels(c.k - learn, c.k);
+        if beats.len() < 2 && c.k.saturating_sub(quiet_since) > relearn && c.k >= learn {
+            let from = c.k - learn;
+            (st.spki, st.npki, st.spkf, st.npkf) = levels(from, c.k);
             learned_at = c.k;
+            // The candidates of the stretch learned from were judged against
+            // the old levels: judge them again, in order, then this one.
+            retry.push_front(c);
+            let mut again: Vec<Cand> = pending.iter().copied().filter(|p| p.k >= from).collect();
+            pending.retain(|p| p.k < from);
+            while let Some(p) = again.pop() {
+                retry.push_front(p);
+            }
+            continue;
         }
         let mut is_qrs = c.pi > st.thr_i1(cfg) && c.pf > st.thr_f1(cfg);
         if is_qrs {

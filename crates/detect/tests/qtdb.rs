@@ -337,7 +337,9 @@ fn qtdb_beats_do_not_depend_on_sampling_rate() {
 /// the detection of the beats that follow. Before `relearn_ms`, the learning
 /// phase took its levels from the artifact and these records lost every beat
 /// (seen first on them resampled to 128 Hz, whose first samples carry the
-/// resampler's edge ringing). Reference: the records' `.atr` beats.
+/// resampler's edge ringing). Reference: the records' `.atr` beats. Measured
+/// when written: Se 99.57, 99.64 and 99.88 % with re-learning; 0, 0 and 99.88 %
+/// without (the beats of the first 3 s before the re-learned stretch stay lost).
 #[test]
 fn an_artifact_at_the_start_does_not_stop_detection() {
     let Some(dir) = qtdb_dir() else { return };

@@ -214,6 +214,8 @@ pub struct RecordSummary {
     /// Windows with a QTc.
     pub n_measured: usize,
     pub n_irregular: usize,
+    /// Windows flagged `qt_inconsistent` (a lead's QT jumps against its neighbours).
+    pub n_inconsistent: usize,
     /// Medians over windows.
     pub rr_ms: Option<f64>,
     pub hr_bpm: Option<f64>,
@@ -1068,6 +1070,7 @@ pub fn summarize(w: &[WindowMeasure], sex: Option<Sex>, cfg: &MeasureConfig) -> 
         n_windows: w.len(),
         n_measured: w.iter().filter(|w| w.qtc_ms.is_some()).count(),
         n_irregular: w.iter().filter(|w| w.flags.irregular).count(),
+        n_inconsistent: w.iter().filter(|w| w.flags.qt_inconsistent).count(),
         rr_ms: med(|w| w.rr_ms),
         hr_bpm: med(|w| w.hr_bpm),
         qt_ms: med(|w| w.qt_ms),

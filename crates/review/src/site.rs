@@ -102,7 +102,10 @@ pub fn priority(g: &Group, record: &str) -> Priority {
     }
     if flags.split(';').any(|f| f == "qt_inconsistent") {
         score += 1.0;
-        reasons.push("a lead's QT jumps between windows".into());
+        reasons.push(match attr_f64(g, "n_windows_inconsistent") {
+            Some(k) => format!("a lead's QT jumps between windows ({k:.0} window(s))"),
+            None => "a lead's QT jumps between windows".into(),
+        });
     }
     let n_paced = attr_f64(g, "pacing_spikes").unwrap_or(0.0);
     if n_paced > 0.0 {
