@@ -127,7 +127,6 @@ pub struct LeadMeasure {
     /// The lead's rate-corrected QT departs from its own in the neighbouring windows by
     /// more than `lead_consistency_ms` ([`check_lead_consistency`]).
     pub inconsistent: bool,
-
     /// Marks on the median beat, sample indices into the median beat.
     pub marks: BeatMarks,
 }
@@ -687,9 +686,33 @@ where
             .iter()
             .any(|lm| lm.usable && global::too_noisy(lm, cfg));
         g = global::combine(&leads_out, fs, cfg);
+        for (l, lm) in leads_out.iter_mut().enumerate() {
+            lm.qt_accepted = g.accepted_leads.contains(&l);
+        }
     }
 
-    let mut w = WindowMeasure {
+    let (qt_ms, qt_lead) = match cfg.qt_rule {
+        QtRule::LongestLead => (g.longest_ms, g.longest_lead),
+        QtRule::Superimposed => (g.superimposed_ms, None),
+    };
+    let jt_ms = qt_ms.zip(g.qrs_ms).map(|(q, r)| q - r);
+    let all = qt_ms.zip(rr_ms).map(|(q, r)| qtc::all(q, r));
+    let fin = |v: f64| v.is_finite().then_some(v);
+    let qtc_bazett_ms = all.and_then(|a| fin(a.bazett_ms));
+    let qtc_fridericia_ms = all.and_then(|a| fin(a.fridericia_ms));
+    let qtc_framingham_ms = all.and_then(|a| fin(a.framingham_ms));
+    let qtc_hodges_ms = all.and_then(|a| fin(a.hodges_ms));
+    let qtc_ms = match cfg.preferred_formula {
+        Formula::Bazett => qtc_bazett_ms,
+        Formula::Fridericia => qtc_fridericia_ms,
+        Formula::Framingham => qtc_framingham_ms,
+        Formula::Hodges => qtc_hodges_ms,
+    };
+    let classification = classify::classify(qtc_ms, ctx.sex, &cfg.limits);
+    flags.high_risk = classification.high_risk;
+    flags.wide_qrs = g.qrs_ms.is_some_and(|q| q >= cfg.limits.wide_qrs_ms);
+
+    WindowMeasure {
         start_s: ws as f64 / fs,
         end_s: we as f64 / fs,
         n_beats: used_beats.len(),
@@ -697,80 +720,29 @@ where
         aligned: used_pos,
         rr_ms,
         hr_bpm,
-        qt_ms: None,
-        qt_lead: None,
-        qt_lead_name: None,
-        qt_longest_ms: None,
-        qt_longest_lead: None,
-        qt_superimposed_ms: None,
-        qrs_ms: None,
-        pr_ms: None,
-        jt_ms: None,
-        p_ms: None,
-        tpe_ms: None,
-        qt_dispersion_ms: None,
-        qt_valid_leads: 0,
-        qtc_bazett_ms: None,
-        qtc_fridericia_ms: None,
-        qtc_framingham_ms: None,
-        qtc_hodges_ms: None,
-        qtc_ms: None,
-        qtc_flag: QtcFlag::Unknown,
-        classification: classify::classify(None, ctx.sex, &cfg.limits),
+        qt_ms,
+        qt_lead,
+        qt_lead_name: qt_lead.map(|l| ctx.lead_names[l].clone()),
+        qt_longest_ms: g.longest_ms,
+        qt_longest_lead: g.longest_lead,
+        qt_superimposed_ms: g.superimposed_ms,
+        qrs_ms: g.qrs_ms,
+        pr_ms: g.pr_ms,
+        jt_ms,
+        p_ms: g.p_ms,
+        tpe_ms: g.tpe_ms,
+        qt_dispersion_ms: g.qt_dispersion_ms,
+        qt_valid_leads: g.qt_valid_leads,
+        qtc_bazett_ms,
+        qtc_fridericia_ms,
+        qtc_framingham_ms,
+        qtc_hodges_ms,
+        qtc_ms,
+        qtc_flag: classification.flag,
+        classification,
         flags,
         leads: leads_out,
         median,
-    };
-    set_global(&mut w, &g, ctx.sex, cfg, ctx.lead_names);
-    w
-}
-
-/// The window's global intervals, QTc and classification from the leads'
-/// combination `g`.
-fn set_global(
-    w: &mut WindowMeasure,
-    g: &global::Global,
-    sex: Option<Sex>,
-    cfg: &MeasureConfig,
-    lead_names: &[String],
-) {
-    let (qt_ms, qt_lead) = match cfg.qt_rule {
-        QtRule::LongestLead => (g.longest_ms, g.longest_lead),
-        QtRule::Superimposed => (g.superimposed_ms, None),
-    };
-    let jt_ms = qt_ms.zip(g.qrs_ms).map(|(q, r)| q - r);
-    let all = qt_ms.zip(w.rr_ms).map(|(q, r)| qtc::all(q, r));
-    let fin = |v: f64| v.is_finite().then_some(v);
-    w.qtc_bazett_ms = all.and_then(|a| fin(a.bazett_ms));
-    w.qtc_fridericia_ms = all.and_then(|a| fin(a.fridericia_ms));
-    w.qtc_framingham_ms = all.and_then(|a| fin(a.framingham_ms));
-    w.qtc_hodges_ms = all.and_then(|a| fin(a.hodges_ms));
-    w.qtc_ms = match cfg.preferred_formula {
-        Formula::Bazett => w.qtc_bazett_ms,
-        Formula::Fridericia => w.qtc_fridericia_ms,
-        Formula::Framingham => w.qtc_framingham_ms,
-        Formula::Hodges => w.qtc_hodges_ms,
-    };
-    let classification = classify::classify(w.qtc_ms, sex, &cfg.limits);
-    w.flags.high_risk = classification.high_risk;
-    w.flags.wide_qrs = g.qrs_ms.is_some_and(|q| q >= cfg.limits.wide_qrs_ms);
-    w.qt_ms = qt_ms;
-    w.qt_lead = qt_lead;
-    w.qt_lead_name = qt_lead.and_then(|l| lead_names.get(l).cloned());
-    w.qt_longest_ms = g.longest_ms;
-    w.qt_longest_lead = g.longest_lead;
-    w.qt_superimposed_ms = g.superimposed_ms;
-    w.qrs_ms = g.qrs_ms;
-    w.pr_ms = g.pr_ms;
-    w.jt_ms = jt_ms;
-    w.p_ms = g.p_ms;
-    w.tpe_ms = g.tpe_ms;
-    w.qt_dispersion_ms = g.qt_dispersion_ms;
-    w.qt_valid_leads = g.qt_valid_leads;
-    w.qtc_flag = classification.flag;
-    w.classification = classification;
-    for (l, lm) in w.leads.iter_mut().enumerate() {
-        lm.qt_accepted = g.accepted_leads.contains(&l);
     }
 }
 
