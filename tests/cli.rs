@@ -1139,3 +1139,41 @@ fn samples_in_the_wrong_unit_are_named_and_do_not_pass_as_pacing() {
     let part = std::fs::read_to_string(out.path().join("parts/uv_bare.json")).unwrap();
     assert!(part.contains("amplitude_warning"));
 }
+
+#[test]
+fn windows_whose_qt_jumps_are_flagged_and_counted_per_record() {
+    // QTDB sel100 (MLII's median beat is read with the T end on different
+    // waves from window to window, see `measure.lead_consistency_ms`): the
+    // windows flagged `qt_inconsistent` in windows.csv are the record's count
+    // in summary.csv, and the record's flags name it.
+    let inp = tempfile::tempdir().unwrap();
+    for ext in ["hea", "dat"] {
+        std::fs::copy(
+            data().join(format!("qtdb/sel100.{ext}")),
+            inp.path().join(format!("sel100.{ext}")),
+        )
+        .unwrap();
+    }
+    let out = tempfile::tempdir().unwrap();
+    let o = run_quiet(&[inp.path().into()], out.path());
+    assert!(o.status.success(), "{}", text(&o));
+    let windows = std::fs::read_to_string(out.path().join("windows.csv")).unwrap();
+    let mut lines = windows.lines();
+    let head: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let fcol = head.iter().position(|h| *h == "flags").unwrap();
+    let flagged = lines
+        .filter(|l| {
+            l.split(',')
+                .nth(fcol)
+                .is_some_and(|f| f.split(';').any(|x| x == "qt_inconsistent"))
+        })
+        .count();
+    assert!(flagged > 0, "no window of sel100 flagged");
+    let summary = std::fs::read_to_string(out.path().join("summary.csv")).unwrap();
+    let mut lines = summary.lines();
+    let head: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let row: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |name: &str| head.iter().position(|h| *h == name).unwrap();
+    assert_eq!(row[col("n_windows_inconsistent")], flagged.to_string());
+    assert!(row[col("flags")].contains("qt_inconsistent"));
+}

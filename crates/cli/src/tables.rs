@@ -124,7 +124,7 @@ impl Default for CsvWriter {
             s.push(',');
             s.push_str(k);
         }
-        s.push_str(",pacing_spikes,amplitude_mv");
+        s.push_str(",pacing_spikes,amplitude_mv,n_windows_inconsistent");
         s.push('\n');
         let mut w = String::from("record,window");
         for k in WINDOW_COLS {
@@ -203,6 +203,9 @@ impl CsvWriter {
         // The record's typical peak-to-peak range (empty in parts written
         // before the column existed, or with every lead flat).
         write!(s, ",{}", fmt_f(attr_f(g, "amplitude_mv"), 4))?;
+        // Windows flagged `qt_inconsistent` (empty in parts written before
+        // the column existed).
+        write!(s, ",{}", fmt_f(attr_f(g, "n_windows_inconsistent"), 0))?;
         s.push('\n');
         if let Some(wg) = g.groups.get("windows") {
             let n = wg.datasets.get("start_s").map_or(0, |d| d.data.rows());
