@@ -975,7 +975,7 @@ pub fn window_stability(rows: &[inputs::WindowRow]) -> report::WindowStability {
             .filter(|v| v.is_finite())
     };
     let mut deltas = Vec::new();
-    let mut records = std::collections::BTreeSet::new();
+    let mut records = BTreeSet::new();
     let (mut windows, mut inconsistent) = (0usize, 0usize);
     for (i, w) in rows.iter().enumerate() {
         if qtcf(w).is_some() {
@@ -999,25 +999,13 @@ pub fn window_stability(rows: &[inputs::WindowRow]) -> report::WindowStability {
     }
     let n = deltas.len();
     let pct = |k: usize, of: usize| (of > 0).then(|| 100.0 * k as f64 / of as f64);
-    let mut abs: Vec<f64> = deltas.iter().map(|d| d.abs()).collect();
-    abs.sort_by(|a, b| a.total_cmp(b));
-    let median_abs = (n > 0).then(|| {
-        if n % 2 == 1 {
-            abs[n / 2]
-        } else {
-            (abs[n / 2 - 1] + abs[n / 2]) / 2.0
-        }
-    });
-    let sd = (n >= 2).then(|| {
-        let m = deltas.iter().sum::<f64>() / n as f64;
-        (deltas.iter().map(|d| (d - m).powi(2)).sum::<f64>() / (n - 1) as f64).sqrt()
-    });
+    let abs: Vec<f64> = deltas.iter().map(|d| d.abs()).collect();
     report::WindowStability {
         records: records.len(),
         windows,
         pairs: n,
-        delta_sd_ms: sd,
-        delta_median_abs_ms: median_abs,
+        delta_sd_ms: stats::sd(&deltas),
+        delta_median_abs_ms: stats::percentile(&abs, 0.5),
         delta_above_40_pct: pct(abs.iter().filter(|&&a| a > 40.0).count(), n),
         inconsistent_pct: pct(inconsistent, windows),
     }

@@ -545,7 +545,6 @@ fn recompute_window(
     let mpath = format!("windows/medians/{w:03}");
     let mg = crate::util::group_at(g, &mpath).ok_or(format!("{mpath} is missing"))?;
     let usable = i64s(mg, "usable").unwrap_or(&[]).to_vec();
-    let inconsistent = i64s(mg, "qt_inconsistent").unwrap_or(&[]).to_vec();
     let n = usable.len();
     let (cols, beat) = match data_at(mg, "beat") {
         Some(Data::F32Matrix { cols, values }) => (*cols, values.clone()),
@@ -619,7 +618,8 @@ fn recompute_window(
             noise_mv: fin(noise.get(l).copied().unwrap_or(f64::NAN)),
             t_noise_mv: fin(t_noise.get(l).copied().unwrap_or(f64::NAN)),
             qt_accepted: false,
-            inconsistent: !changed_lead[l] && inconsistent.get(l).is_some_and(|&v| v != 0),
+            // The consistency check only flags; the global rules never read it.
+            inconsistent: false,
             marks: bm,
         });
     }
