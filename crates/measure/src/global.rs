@@ -239,12 +239,14 @@ mod tests {
 
     // Marks are placed 200 samples into the beat so a P onset 150 before the QRS exists.
     fn lead(on: usize, qrs_end: usize, t_end: usize) -> LeadMeasure {
-        let mk = |s: usize| {
+        // Signed so that a P onset 150 before an early QRS onset stays exact in debug builds.
+        let mk = |s: isize| {
             Some(Mark {
-                sample: s + 200,
+                sample: (s + 200) as usize,
                 confidence: 1.0,
             })
         };
+        let (on_i, qrs_end_i, t_end_i) = (on as isize, qrs_end as isize, t_end as isize);
         let fs = 1000.0;
         LeadMeasure {
             usable: true,
@@ -257,10 +259,10 @@ mod tests {
             qt_accepted: false,
             inconsistent: false,
             marks: BeatMarks {
-                qrs_on: mk(on),
-                qrs_end: mk(qrs_end),
-                t_end: mk(t_end),
-                p_on: mk(on - 150),
+                qrs_on: mk(on_i),
+                qrs_end: mk(qrs_end_i),
+                t_end: mk(t_end_i),
+                p_on: mk(on_i - 150),
                 ..BeatMarks::default()
             },
         }
@@ -275,7 +277,7 @@ mod tests {
             lead(102, 195, 512),
             lead(98, 188, 505),
             lead(100, 190, 620),
-            lead(100, 190, 1000),
+            lead(100, 190, 1100),
         ];
         let g = combine(&leads, 1000.0, &cfg);
         assert_eq!(g.longest_lead, Some(1));
@@ -287,6 +289,21 @@ mod tests {
         // QRS over all usable leads: 98 → 195 (no outlier).
         assert_eq!(g.qrs_ms, Some(97.0));
         assert_eq!(g.pr_ms, Some(150.0));
+    }
+
+    #[test]
+    fn long_qt_of_a_slow_heart_is_kept() {
+        // QTDB sel33 (35 bpm): annotator 1 marks window QTs of 735-820 ms; the
+        // database's annotations, measured here. Such leads must enter the QT;
+        // a QT past the 900-ms bound (a T end in the next beat) does not.
+        let cfg = MeasureConfig::default();
+        let g = combine(&[lead(100, 200, 860), lead(102, 205, 872)], 1000.0, &cfg);
+        assert_eq!(g.accepted_leads, vec![0, 1]);
+        assert_eq!(g.longest_ms, Some(770.0));
+        assert_eq!(g.superimposed_ms, Some(772.0));
+        let g = combine(&[lead(100, 200, 1010), lead(102, 205, 1020)], 1000.0, &cfg);
+        assert!(g.accepted_leads.is_empty());
+        assert_eq!(g.superimposed_ms, None);
     }
 
     #[test]
