@@ -1429,7 +1429,7 @@ pub(crate) fn detect_fused(leads: &[&[f64]], fs: f64, cfg: &DetectConfig) -> Det
         .map(|&s| (0..nl).map(|l| w2[l][s]).collect())
         .collect();
     let clean: Vec<&[f64]> = clean.iter().map(|c| &c[..]).collect();
-    let labels = label::label_beats(&clean, &fid, &weights_at, &c2.slope, fs, cfg);
+    let (fid, labels) = label::label_beats(&clean, &fid, &weights_at, &c2.slope, fs, cfg);
     let beats = fid
         .iter()
         .zip(labels)

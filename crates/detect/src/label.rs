@@ -10,6 +10,11 @@
 //! * anything else, and beats too close to the record ends for a template
 //!   window: `Q`.
 //!
+//! Before the labels, a beat unlike the dominant shape at its fiducial point
+//! but like it within `fiducial_realign_ms` has its point moved to the best
+//! match (the energy peak had taken the other lobe of the same QRS complex);
+//! a beat found wide keeps its own similarity and width for the label.
+//!
 //! Shape: each usable lead's window of ±`template_half_width_ms` around the
 //! fiducial point, mean removed, divided by that lead's median beat
 //! peak-to-peak, leads concatenated. The dominant template is the
@@ -87,6 +92,9 @@ fn elementwise_median(vs: &[&Vec<f64>]) -> Vec<f64> {
 
 /// Labels for `beats` (sorted fiducial samples). `weights[i][l]` is lead `l`'s
 /// quality weight at beat `i`; `slope` the combined slope signal.
+///
+/// Returns the fiducial points, some moved onto the dominant shape (see
+/// `fiducial_realign_ms`; still sorted and distinct), and the labels.
 pub(crate) fn label_beats(
     leads: &[&[f64]],
     beats: &[usize],
@@ -94,10 +102,10 @@ pub(crate) fn label_beats(
     slope: &[f64],
     fs: f64,
     cfg: &DetectConfig,
-) -> Vec<BeatLabel> {
+) -> (Vec<usize>, Vec<BeatLabel>) {
     let nb = beats.len();
     if nb < 3 {
-        return vec![BeatLabel::Unclassified; nb];
+        return (beats.to_vec(), vec![BeatLabel::Unclassified; nb]);
     }
     let n = leads[0].len();
     let hw = pt::ms_to_samples(cfg.template_half_width_ms, fs);
@@ -137,24 +145,22 @@ pub(crate) fn label_beats(
             }
         })
         .collect();
-    let shapes: Vec<Option<Vec<f64>>> = beats
-        .iter()
-        .map(|&b| {
-            if !inside(b) {
-                return None;
-            }
-            let mut v = Vec::with_capacity(used.len() * (2 * hw + 1));
-            for (k, &l) in used.iter().enumerate() {
-                let s = &leads[l][b - hw..=b + hw];
-                let m = s.iter().sum::<f64>() / s.len() as f64;
-                v.extend(s.iter().map(|x| (x - m) / scales[k]));
-            }
-            Some(v)
-        })
-        .collect();
+    let shape_at = |b: usize| -> Option<Vec<f64>> {
+        if !inside(b) {
+            return None;
+        }
+        let mut v = Vec::with_capacity(used.len() * (2 * hw + 1));
+        for (k, &l) in used.iter().enumerate() {
+            let s = &leads[l][b - hw..=b + hw];
+            let m = s.iter().sum::<f64>() / s.len() as f64;
+            v.extend(s.iter().map(|x| (x - m) / scales[k]));
+        }
+        Some(v)
+    };
+    let mut shapes: Vec<Option<Vec<f64>>> = beats.iter().map(|&b| shape_at(b)).collect();
     let all: Vec<&Vec<f64>> = shapes.iter().flatten().collect();
     if all.len() < 3 {
-        return vec![BeatLabel::Unclassified; nb];
+        return (beats.to_vec(), vec![BeatLabel::Unclassified; nb]);
     }
     let mut template = elementwise_median(&all);
     let mut corr: Vec<f64> = Vec::new();
@@ -181,31 +187,92 @@ pub(crate) fn label_beats(
         pt::ms_to_samples(40.0, fs),
     );
     let h = pt::ms_to_samples(cfg.mwi_window_ms, fs);
-    let widths: Vec<f64> = beats
-        .iter()
-        .map(|&b| {
-            let a = b.saturating_sub(h);
-            let z = (b + h + 1).min(n);
-            let peak = e[a..z].iter().cloned().fold(0.0, f64::max);
-            let thr = cfg.label_width_energy_fraction * peak;
-            let mut l = b;
-            while l > a && e[l - 1] >= thr {
-                l -= 1;
+    let width_at = |b: usize| -> f64 {
+        let a = b.saturating_sub(h);
+        let z = (b + h + 1).min(n);
+        let peak = e[a..z].iter().cloned().fold(0.0, f64::max);
+        let thr = cfg.label_width_energy_fraction * peak;
+        let mut l = b;
+        while l > a && e[l - 1] >= thr {
+            l -= 1;
+        }
+        let mut r = b;
+        while r + 1 < z && e[r + 1] >= thr {
+            r += 1;
+        }
+        (r - l) as f64 * 1000.0 / fs
+    };
+    let dominant_width = |widths: &[f64], corr: &[f64]| -> Option<f64> {
+        let mut w: Vec<f64> = widths
+            .iter()
+            .zip(corr)
+            .filter(|(_, c)| **c >= cfg.label_corr_min)
+            .map(|(w, _)| *w)
+            .collect();
+        (!w.is_empty()).then(|| median(&mut w))
+    };
+    let mut widths: Vec<f64> = beats.iter().map(|&b| width_at(b)).collect();
+    let wide = |w: f64, dom: Option<f64>| dom.is_some_and(|d| w > d + cfg.label_width_excess_ms);
+
+    // Beats unlike the dominant shape at their fiducial point but like it a few
+    // tens of ms away: the energy peak chose the other lobe of the same QRS.
+    // Such a beat's point moves there. A beat that was wide keeps the
+    // similarity and width it was found with for its label: a ventricular
+    // beat's broad complex can match the dominant shape at some shift by
+    // chance (QTDB: 128 of 1281 `.atr` ventricular beats lost their `V`
+    // when the shifted match decided), while its point still moves so that
+    // paced complexes (sel102) are delineated from the same lobe.
+    let mut beats = beats.to_vec();
+    let reach = pt::ms_to_samples(cfg.fiducial_realign_ms, fs);
+    let near = pt::ms_to_samples(cfg.fiducial_realign_min_ms, fs);
+    if reach > 0 {
+        let orig = beats.clone();
+        let dom = dominant_width(&widths, &corr);
+        for i in 0..nb {
+            if corr[i] >= cfg.label_corr_min || shapes[i].is_none() {
+                continue;
             }
-            let mut r = b;
-            while r + 1 < z && e[r + 1] >= thr {
-                r += 1;
+            // Strictly inside the halves towards the neighbours: order kept.
+            let lo = if i > 0 {
+                orig[i] - (orig[i] - orig[i - 1] - 1) / 2
+            } else {
+                orig[i].saturating_sub(reach)
+            };
+            let hi = if i + 1 < nb {
+                orig[i] + (orig[i + 1] - orig[i] - 1) / 2
+            } else {
+                orig[i] + reach
+            };
+            let lo = lo.max(orig[i].saturating_sub(reach));
+            let hi = hi.min(orig[i] + reach);
+            let mut best: Option<(f64, usize, Vec<f64>)> = None;
+            for b in (lo..=hi).filter(|&b| b != orig[i]) {
+                if let Some(v) = shape_at(b) {
+                    let c = correlation(&v, &template);
+                    if best.as_ref().is_none_or(|(bc, _, _)| c > *bc) {
+                        best = Some((c, b, v));
+                    }
+                }
             }
-            (r - l) as f64 * 1000.0 / fs
-        })
-        .collect();
-    let mut dom_w: Vec<f64> = widths
-        .iter()
-        .zip(&corr)
-        .filter(|(_, c)| **c >= cfg.label_corr_min)
-        .map(|(w, _)| *w)
-        .collect();
-    let dom_width = median(&mut dom_w);
+            let Some((c, b, v)) = best.filter(|(c, _, _)| *c >= cfg.label_corr_min) else {
+                continue;
+            };
+            let was_wide = wide(widths[i], dom);
+            if b.abs_diff(orig[i]) >= near {
+                beats[i] = b;
+                if !was_wide {
+                    corr[i] = c;
+                    shapes[i] = Some(v);
+                    widths[i] = width_at(b);
+                }
+            } else if !was_wide {
+                // Near: the point stays, the shape counts as matched.
+                corr[i] = c;
+            }
+        }
+    }
+
+    let dom_width = dominant_width(&widths, &corr);
 
     let rr: Vec<Option<f64>> = (0..nb)
         .map(|i| {
@@ -216,7 +283,7 @@ pub(crate) fn label_beats(
             }
         })
         .collect();
-    (0..nb)
+    let labels = (0..nb)
         .map(|i| {
             if shapes[i].is_none() || weights[i].iter().all(|w| *w <= 0.0) {
                 return BeatLabel::Unclassified;
@@ -230,7 +297,7 @@ pub(crate) fn label_beats(
                 }
                 _ => false,
             };
-            let wide = !dom_w.is_empty() && widths[i] > dom_width + cfg.label_width_excess_ms;
+            let wide = wide(widths[i], dom_width);
             let similar = corr[i] >= cfg.label_corr_min;
             match (similar, wide, premature) {
                 (true, false, false) => BeatLabel::Normal,
@@ -238,7 +305,8 @@ pub(crate) fn label_beats(
                 _ => BeatLabel::Unclassified,
             }
         })
-        .collect()
+        .collect();
+    (beats, labels)
 }
 
 #[cfg(test)]
