@@ -317,6 +317,41 @@ def test_beats_match_report():
         assert (r["tp"], r["fn"], r["fp"]) == per[r["record"]], r["record"]
 
 
+# ANSI/AAMI EC57 beat classes (common practice, from memory); any other beat code is Q.
+EC57 = {**dict.fromkeys("NLRej", "N"), **dict.fromkeys("AaJS", "S"), "V": "V", "E": "V", "F": "F"}
+
+
+def test_beat_labels_match_report():
+    """The tool's N/V/Q labels on the paired beats against the `.atr` codes,
+    recomputed from the `.mark` and `.atr` files with `wfdb.rdann`."""
+    run, qtdb, report = _paths()
+    labels = report["beats"].get("labels")
+    assert labels is not None, "report.json has no beat-label table"
+    win_ms = report["protocol"]["beat_window_ms"]
+    table = {c: {"N": 0, "V": 0, "Q": 0, "other": 0} for c in "NSVFQ"}
+    for rec in report["records"]:
+        if not (qtdb / f"{rec}.atr").is_file():
+            continue
+        fs = _fs(qtdb, rec)
+        ref_a = wfdb.rdann(str(qtdb / rec), "atr")
+        ref = [(int(s), y) for s, y in zip(ref_a.sample, ref_a.symbol) if y in BEAT_SYMBOLS]
+        t_a = wfdb.rdann(str(run / "annotations" / rec), "mark")
+        test = [(int(s), y) for s, y in zip(t_a.sample, t_a.symbol) if y in BEAT_SYMBOLS]
+        for i, j in _match([r[0] for r in ref], [t[0] for t in test], _window(win_ms, fs)):
+            col = test[j][1] if test[j][1] in ("N", "V", "Q") else "other"
+            table[EC57.get(ref[i][1], "Q")][col] += 1
+    got = {r["reference"]: {"N": r["n"], "V": r["v"], "Q": r["q"], "other": r["other"]} for r in labels["confusion"]}
+    print("python:", table)
+    print("report:", got)
+    assert got == table
+    v = table["V"]
+    tool_v = sum(row["V"] for row in table.values())
+    assert abs(labels["v_sensitivity_pct"] - 100.0 * v["V"] / sum(v.values())) < 0.01
+    assert abs(labels["v_ppv_pct"] - 100.0 * v["V"] / tool_v) < 0.01
+    n = table["N"]
+    assert abs(labels["n_sensitivity_pct"] - 100.0 * n["N"] / sum(n.values())) < 0.01
+
+
 def _paired_beats(run, qtdb, report):
     """For every record of the report with a `.q1c` reference: (record, fs,
     reference beats, test beats, paired indices, fiducial window in samples),

@@ -58,6 +58,7 @@ pub mod error;
 pub mod floors;
 pub mod html;
 pub mod inputs;
+pub mod labels;
 pub mod markdown;
 pub mod marks_csv;
 pub mod matching;
@@ -239,7 +240,8 @@ struct Loaded {
     hdr: HeaderInfo,
     test: ParsedBeats,
     test_lead: Option<BTreeMap<u8, ParsedBeats>>,
-    atr: Option<Vec<i64>>,
+    /// `.atr` beats: sample and WFDB beat code.
+    atr: Option<Vec<(i64, u8)>>,
     q1c: Option<ParsedBeats>,
     q2c: Option<ParsedBeats>,
     /// Global reference combined from the lead files (only where there is no `.q1c`).
@@ -306,7 +308,7 @@ fn load_record(
             read_ann(&p)?
                 .iter()
                 .filter(|a| a.is_beat())
-                .map(|a| a.sample)
+                .map(|a| (a.sample, a.code))
                 .collect(),
         ),
         None => None,
@@ -453,11 +455,16 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
         let mut total = Counts::default();
         let mut per = Vec::new();
         let mut sources = BTreeSet::new();
+        let mut labels = labels::LabelTally::default();
         for r in &recs {
             let w = window_samples(opts.beat_window_ms, r.hdr.fs);
             let test: Vec<i64> = r.test.beats.iter().map(|b| b.qrs_peak).collect();
             let (reference, span, src) = if let Some(a) = &r.atr {
-                (a.clone(), None, ".atr beat annotations")
+                (
+                    a.iter().map(|b| b.0).collect(),
+                    None,
+                    ".atr beat annotations",
+                )
             } else if !r.leads.is_empty() {
                 let lists: Vec<Vec<i64>> = r
                     .leads
@@ -478,7 +485,12 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 continue;
             };
             sources.insert(src);
-            let (c, _) = beat_counts(&reference, &test, w, span);
+            let (c, pairs) = beat_counts(&reference, &test, w, span);
+            if let Some(a) = &r.atr {
+                for &(i, j) in &pairs {
+                    labels.add(a[i].1, r.test.beats[j].code);
+                }
+            }
             total.add(&c);
             per.push(BeatScore::from_counts(&r.name, &c));
         }
@@ -496,6 +508,7 @@ pub fn validate(opts: &ValidateOptions) -> Result<ValidationReport, EvalError> {
                 reference: sources.into_iter().collect::<Vec<_>>().join(", "),
                 overall: BeatScore::from_counts("", &total),
                 per_record: per,
+                labels: (!labels.is_empty()).then(|| labels.finish()),
             });
         }
     }

@@ -1,6 +1,8 @@
 //! The Markdown summary (`report.md`): the headline tables of the report.
 
-use crate::report::{BeatSection, DelineationSection, QtSection, RecordRow, ValidationReport};
+use crate::report::{
+    BeatSection, DelineationSection, LabelSection, QtSection, RecordRow, ValidationReport,
+};
 use crate::stats::BlandAltman;
 use crate::waves::Fiducial;
 use std::fmt::Write;
@@ -46,6 +48,31 @@ fn beats_md(out: &mut String, b: &BeatSection) {
         );
     }
     out.push('\n');
+    if let Some(l) = &b.labels {
+        labels_md(out, l);
+    }
+}
+
+/// The beat-label table: reference class by the tool's label, paired beats.
+fn labels_md(out: &mut String, l: &LabelSection) {
+    let _ = writeln!(
+        out,
+        "Beat labels on the paired beats against the `.atr` codes, by ANSI/AAMI EC57 class of the reference (N: N L R e j; S: A a J S; V: V E; F: F; Q: paced and unclassifiable). The median beats average the beats labelled `N` and `Q` (never `V`) that pass their RR and correlation tests.\n\n| reference | labelled N | labelled V | labelled Q | other |\n|---|---:|---:|---:|---:|"
+    );
+    for r in &l.confusion {
+        let _ = writeln!(
+            out,
+            "| {} | {} | {} | {} | {} |",
+            r.reference, r.n, r.v, r.q, r.other
+        );
+    }
+    let _ = writeln!(
+        out,
+        "\nNormal beats labelled `N`: {} %; ventricular ectopic beats: Se {} %, +P {} % (paired beats only).\n",
+        num(l.n_sensitivity_pct, 2),
+        num(l.v_sensitivity_pct, 2),
+        num(l.v_ppv_pct, 2)
+    );
 }
 
 /// The fiducial table of a delineation section.

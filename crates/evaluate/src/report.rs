@@ -66,6 +66,38 @@ pub struct BeatSection {
     pub overall: BeatScore,
     /// Per record, sorted by sensitivity + predictivity (worst first).
     pub per_record: Vec<BeatScore>,
+    /// The tool's beat labels on the paired beats against the `.atr` beat
+    /// codes; absent without `.atr` files.
+    #[serde(default)]
+    pub labels: Option<LabelSection>,
+}
+
+/// Beat labels against a coded beat reference, on the paired beats only.
+///
+/// Reference classes after ANSI/AAMI EC57 (common practice): `N` normal and
+/// bundle-branch-block beats (`N L R e j`), `S` supraventricular ectopic
+/// (`A a J S`), `V` ventricular ectopic (`V E`), `F` fusion (`F`), `Q` paced
+/// and unclassifiable (`/ f Q` and any other beat code).
+#[derive(Debug, Clone, Default, Serialize, Deserialize)]
+pub struct LabelSection {
+    /// Rows: reference class; columns: the tool's label (`N`, `V`, `Q`, other).
+    pub confusion: Vec<LabelRow>,
+    /// Ventricular ectopic beats: reference `V` labelled `V` / all reference `V`.
+    pub v_sensitivity_pct: Option<f64>,
+    /// Paired beats labelled `V` whose reference is `V`.
+    pub v_ppv_pct: Option<f64>,
+    /// Reference `N` beats labelled `N` / all reference `N`.
+    pub n_sensitivity_pct: Option<f64>,
+}
+
+/// One reference class of [`LabelSection::confusion`].
+#[derive(Debug, Clone, Default, Serialize, Deserialize, PartialEq, Eq)]
+pub struct LabelRow {
+    pub reference: String,
+    pub n: u64,
+    pub v: u64,
+    pub q: u64,
+    pub other: u64,
 }
 
 /// Beat counts and rates (`record` empty for the total).
