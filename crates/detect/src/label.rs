@@ -246,7 +246,7 @@ pub(crate) fn label_beats(
     // Such a beat's point moves there. A beat that was wide keeps the
     // similarity and width it was found with for its label: a ventricular
     // beat's broad complex can match the dominant shape at some shift by
-    // chance (QTDB: 128 of 1281 `.atr` ventricular beats lost their `V`
+    // chance (QTDB: 128 of 1282 `.atr` ventricular beats lost their `V`
     // when the shifted match decided), while its point still moves so that
     // paced complexes (sel102) are delineated from the same lobe.
     let mut beats = beats.to_vec();
