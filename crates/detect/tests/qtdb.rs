@@ -86,6 +86,17 @@ fn condition(leads: &[Vec<f64>], fs: f64) -> Vec<Vec<f64>> {
     f.apply_record(&refs).0
 }
 
+/// Index of the detection (sorted samples) nearest to reference sample `s`,
+/// if within `w` samples.
+fn nearest(got: &[i64], s: i64, w: i64) -> Option<usize> {
+    let k = got.partition_point(|&g| g < s);
+    [k.wrapping_sub(1), k]
+        .into_iter()
+        .filter(|&j| j < got.len())
+        .min_by_key(|&j| (got[j] - s).abs())
+        .filter(|&j| (got[j] - s).abs() <= w)
+}
+
 /// 150 ms in samples, rounded down so that the window never exceeds 150 ms.
 fn window(fs: f64) -> i64 {
     (0.150 * fs).floor() as i64
@@ -145,12 +156,7 @@ fn qtdb_sensitivity_and_positive_predictivity_meet_floor() {
                         .iter()
                         .filter(|b| matches!(b.1, "N" | "L" | "R" | "e" | "j"))
                     {
-                        let k = got.partition_point(|&g| g < s);
-                        let near = [k.wrapping_sub(1), k]
-                            .into_iter()
-                            .filter(|&j| j < got.len())
-                            .min_by_key(|&j| (got[j] - s).abs());
-                        if let Some(j) = near.filter(|&j| (got[j] - s).abs() <= w) {
+                        if let Some(j) = nearest(&got, s, w) {
                             n.0 += 1;
                             n.1 += usize::from(d.beats[j].label == BeatLabel::Normal);
                         }
@@ -438,12 +444,7 @@ fn fiducial_points_stay_on_one_lobe() {
             let mut offsets = Vec::new();
             let (mut normal, mut labelled_n) = (0usize, 0usize);
             for &(s, _) in l.beats.iter().filter(|b| b.1 == "N") {
-                let k = got.partition_point(|&g| g < s);
-                let near = [k.wrapping_sub(1), k]
-                    .into_iter()
-                    .filter(|&j| j < got.len())
-                    .min_by_key(|&j| (got[j] - s).abs());
-                if let Some(j) = near.filter(|&j| (got[j] - s).abs() <= window(l.fs)) {
+                if let Some(j) = nearest(&got, s, window(l.fs)) {
                     offsets.push((got[j] - s) as f64 * 1000.0 / l.fs);
                     normal += 1;
                     labelled_n += usize::from(d.beats[j].label == BeatLabel::Normal);
