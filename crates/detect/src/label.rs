@@ -177,7 +177,8 @@ pub(crate) fn label_beats(
             .filter(|s| correlation(s, t) >= cfg.label_corr_min)
             .count()
     };
-    if 2 * matched(&template) < all.len() {
+    let median_matches = matched(&template);
+    if 2 * median_matches < all.len() {
         let step = all.len().div_ceil(MEDOID_SAMPLE);
         let sample: Vec<&Vec<f64>> = all.iter().step_by(step).copied().collect();
         let typical = sample.iter().max_by_key(|a| {
@@ -186,7 +187,7 @@ pub(crate) fn label_beats(
                 .filter(|b| correlation(a, b) >= cfg.label_corr_min)
                 .count()
         });
-        if let Some(t) = typical.filter(|t| matched(t) > matched(&template)) {
+        if let Some(t) = typical.filter(|t| matched(t) > median_matches) {
             template = t.to_vec();
         }
     }
