@@ -562,6 +562,18 @@ impl LeadAnalysis {
         })
     }
 
+    /// Whether a T reading's peak lies on the side of the isoelectric level
+    /// `baseline` that its morphology says (within `margin` mV): above it for
+    /// an upright wave, below for an inverted one. Readings without a peak or
+    /// a level, and biphasic ones, agree.
+    fn polarity_agrees(&self, l: &Lobes, baseline: Option<f64>, margin: f64) -> bool {
+        match (l.peak, baseline, l.morph) {
+            (Some(p), Some(b), TMorphology::Upright) => self.x[p] - b >= -margin,
+            (Some(p), Some(b), TMorphology::Inverted) => self.x[p] - b <= margin,
+            _ => true,
+        }
+    }
+
     /// Median level of the signal in `[a, b)` (isoelectric estimate).
     fn level(&self, a: isize, b: isize) -> Option<f64> {
         let a = a.max(0) as usize;
@@ -859,6 +871,13 @@ impl LeadAnalysis {
             None => (t_lo, t_hi),
         };
         let min_t = cfg.t_min_slope_mv_per_s;
+        let baseline_end = qrs_on
+            .map(|o| o.floor() as isize)
+            .unwrap_or(peak as isize - self.ms_i(50.0));
+        let baseline = self.level(
+            baseline_end - self.ms_i(cfg.baseline_window_ms),
+            baseline_end,
+        );
         let mut t_found = None;
         if t_hi - t_lo >= self.ms_i(60.0) {
             for k in [4usize, 5] {
@@ -898,26 +917,50 @@ impl LeadAnalysis {
                         .filter(|m| {
                             m.idx.len() >= 2 && m.idx.contains(&l.idx[0]) && m.idx[0] < l.idx[0]
                         });
-                        t_found = Some((k, early.unwrap_or(l)));
+                        let l = early.unwrap_or(l);
+                        t_found = Some((k, l));
                         break;
                     }
                 }
             }
         }
-        let baseline_end = qrs_on
-            .map(|o| o.floor() as isize)
-            .unwrap_or(peak as isize - self.ms_i(50.0));
-        let baseline = self.level(
-            baseline_end - self.ms_i(cfg.baseline_window_ms),
-            baseline_end,
-        );
         if let Some((k, mut l)) = t_found {
             let w = &self.w[k - 1];
             // A lone lobe read as the first limb has its peak at the next zero
             // crossing; the final limb is the first opposite-sign extremum
             // after it, which may lie past the window end at fast rates. Without
             // it the end would be searched from the first limb, before the peak.
-            if let (1, Some(pk)) = (l.idx.len(), l.peak) {
+            // A lone lobe read as the first limb of a wave whose peak then
+            // lies on the wrong side of the PR-segment level (an "inverted"
+            // trough above it, an "upright" crest below it) is more likely
+            // the final limb of a wave of the opposite polarity whose first
+            // limb merges with the end of the QRS, the zero crossing ahead
+            // coming from the next P wave: read it so when that reading's
+            // peak lies on its own side.
+            let mut final_limb = false;
+            if cfg.t_polarity_recheck
+                && l.idx.len() == 1
+                && l.peak.is_some()
+                && !self.polarity_agrees(&l, baseline, cfg.t_polarity_margin_mv)
+            {
+                if let Some(z) = Self::zero_cross_back(w, qend_i.max(0) as usize, l.idx[0]) {
+                    let alt = Lobes {
+                        idx: l.idx.clone(),
+                        peak: Some(z),
+                        amp: l.amp,
+                        morph: if w[l.idx[0]] < 0.0 {
+                            TMorphology::Upright
+                        } else {
+                            TMorphology::Inverted
+                        },
+                    };
+                    if self.polarity_agrees(&alt, baseline, cfg.t_polarity_margin_mv) {
+                        l = alt;
+                        final_limb = true;
+                    }
+                }
+            }
+            if let (1, Some(pk), false) = (l.idx.len(), l.peak, final_limb) {
                 let s0 = w[l.idx[0]].signum();
                 let reach = (pk as isize + self.ms_i(cfg.t_final_limb_reach_ms)).min(t_limit);
                 let fin = Self::extrema(w, pk as isize, reach)

@@ -661,3 +661,47 @@ fn lead_t_outside_the_global_span_is_searched_again_near_the_global_t() {
         assert_eq!((a.p_on, a.qrs_on, a.qrs_end), (b.p_on, b.qrs_on, b.qrs_end));
     }
 }
+
+/// The QS complex with its early T wave (`qs_with_early_t`) at a fast rate,
+/// the next beat's P wave close behind the T (as in QTDB sel41, invented
+/// shapes): the T window holds the T's falling limb, and the P's upstroke
+/// makes a zero crossing of W_4 after it. Read as the first limb of an
+/// inverted wave, the "trough" would lie above the PR-segment level, which
+/// an inverted T cannot do; `t_polarity_recheck` reads the lone limb as the
+/// final limb of an upright wave instead.
+#[test]
+fn t_wave_whose_trough_would_lie_above_the_baseline_is_read_upright() {
+    let fs = 250.0;
+    let rr = 600.0;
+    let mut waves = qs_with_early_t();
+    waves.push(Wave {
+        amp: 0.15,
+        at_ms: rr - 210.0,
+        sigma_ms: 18.0,
+    });
+    let (x, rs) = synth(fs, 8, rr, &waves);
+    let off = DelineateConfig {
+        t_polarity_recheck: false,
+        ..DelineateConfig::default()
+    };
+    let beats_off = delineate_lead(&x, fs, &rs, &off);
+    let beats = delineate_lead(&x, fs, &rs, &DelineateConfig::default());
+    for ((b0, b), &r) in beats_off.iter().zip(&beats).zip(&rs).skip(1).take(5) {
+        print(b0, r, fs);
+        print(b, r, fs);
+        assert_eq!(b0.t_morphology, TMorphology::Inverted, "{b0:?}");
+        assert_eq!(b.t_morphology, TMorphology::Upright, "{b:?}");
+        let pk = rel(b.t_peak, r, fs);
+        assert!((pk - T_EARLY_MS).abs() <= 8.0, "T peak {pk} ms");
+        // Tangent end of the Gaussian T: its centre plus 2σ (module docs).
+        near(
+            rel(b.t_end_tangent, r, fs),
+            T_EARLY_MS + 80.0,
+            fs,
+            "t end tangent",
+        );
+        // The P wave the false T end had swallowed is found again.
+        assert!(b0.p_peak.is_none(), "{b0:?}");
+        near(rel(b.p_peak, r, fs), -210.0, fs, "p peak");
+    }
+}
