@@ -47,6 +47,12 @@
 //!   candidate lobe pairs the one nearer the QRS is the P wave unless the
 //!   earlier is clearly larger (`p_early_pair_frac`), and for T the earlier
 //!   pair is preferred (`t_early_pair_frac`: a U wave follows the T).
+//! * A T wave found as a single limb is read as the first limb of a wave
+//!   (peak at the next zero crossing of W_k) unless that puts an upright
+//!   crest below the PR-segment level or an inverted trough above it; then
+//!   it is read as the final limb of the opposite wave, peak at the last
+//!   zero crossing after the QRS end (`t_polarity_recheck`), as when the
+//!   upstroke of the next P closes a false inverted T at a fast rate.
 //! * P waves are dropped in every lead where the PR interval scatters over
 //!   neighbouring beats (`p_max_pr_mad_ms`, module `prhythm`); a lead
 //!   without a P wave where most leads have one is searched again near
