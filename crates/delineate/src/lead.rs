@@ -871,13 +871,6 @@ impl LeadAnalysis {
             None => (t_lo, t_hi),
         };
         let min_t = cfg.t_min_slope_mv_per_s;
-        let baseline_end = qrs_on
-            .map(|o| o.floor() as isize)
-            .unwrap_or(peak as isize - self.ms_i(50.0));
-        let baseline = self.level(
-            baseline_end - self.ms_i(cfg.baseline_window_ms),
-            baseline_end,
-        );
         let mut t_found = None;
         if t_hi - t_lo >= self.ms_i(60.0) {
             for k in [4usize, 5] {
@@ -917,13 +910,19 @@ impl LeadAnalysis {
                         .filter(|m| {
                             m.idx.len() >= 2 && m.idx.contains(&l.idx[0]) && m.idx[0] < l.idx[0]
                         });
-                        let l = early.unwrap_or(l);
-                        t_found = Some((k, l));
+                        t_found = Some((k, early.unwrap_or(l)));
                         break;
                     }
                 }
             }
         }
+        let baseline_end = qrs_on
+            .map(|o| o.floor() as isize)
+            .unwrap_or(peak as isize - self.ms_i(50.0));
+        let baseline = self.level(
+            baseline_end - self.ms_i(cfg.baseline_window_ms),
+            baseline_end,
+        );
         if let Some((k, mut l)) = t_found {
             let w = &self.w[k - 1];
             // A lone lobe read as the first limb has its peak at the next zero
