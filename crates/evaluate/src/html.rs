@@ -528,21 +528,28 @@ th{{background:#f2f2f2}}td:first-child{{text-align:left}}.pass{{color:#070}}.fai
         }
         o.push_str("</table>\n");
         if let Some(l) = &b.labels {
-            o.push_str("<p>Beat labels on the paired beats against the <code>.atr</code> codes, by ANSI/AAMI EC57 class of the reference (N: N L R e j; S: A a J S; V: V E; F: F; Q: paced and unclassifiable). The median beats average the beats labelled N and Q (never V) that pass their RR and correlation tests.</p><table><tr><th>reference</th><th>labelled N</th><th>labelled V</th><th>labelled Q</th><th>other</th></tr>\n");
-            for x in &l.confusion {
-                let _ = writeln!(
-                    o,
-                    "<tr><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
-                    esc(&x.reference),
-                    x.n,
-                    x.v,
-                    x.q,
-                    x.other
-                );
-            }
+            let rows: Vec<[String; 5]> = l
+                .confusion
+                .iter()
+                .map(|x| {
+                    [
+                        x.reference.clone(),
+                        x.n.to_string(),
+                        x.v.to_string(),
+                        x.q.to_string(),
+                        x.other.to_string(),
+                    ]
+                })
+                .collect();
+            plain_table_html(
+                &mut o,
+                "Beat labels on the paired beats against the .atr codes, by ANSI/AAMI EC57 class of the reference (N: N L R e j; S: A a J S; V: V E; F: F; Q: paced and unclassifiable). The median beats average the beats labelled N and Q (never V) that pass their RR and correlation tests.",
+                &["reference", "labelled N", "labelled V", "labelled Q", "other"],
+                rows.iter().map(|r| r.as_slice()),
+            );
             let _ = writeln!(
                 o,
-                "</table><p>Normal beats labelled N: {} %; ventricular ectopic beats: Se {} %, +P {} % (paired beats only).</p>",
+                "<p>Normal beats labelled N: {} %; ventricular ectopic beats: Se {} %, +P {} % (paired beats only).</p>",
                 num(l.n_sensitivity_pct, 2),
                 num(l.v_sensitivity_pct, 2),
                 num(l.v_ppv_pct, 2)
