@@ -380,6 +380,19 @@ pub struct DelineateConfig {
     /// analysis sample (4 ms at 250 Hz), which matters for QT changes of a
     /// few ms between recordings.
     pub t_end_interpolate: bool,
+    /// Place the other threshold boundaries (QRS onset and end per lead, P
+    /// onset and end, T onset) the same way: by linear interpolation of the
+    /// threshold crossing between analysis samples (true) instead of at the
+    /// midpoint of the two samples around it (false). It matters above the
+    /// analysis rate, where marks are written at the input's finer sample.
+    /// Default true (false before). LUDB per lead (500 Hz): P-end SD 14.92
+    /// -> 14.65 ms (odd-positioned records 14.20 -> 13.93, even 15.66 ->
+    /// 15.38), P-onset SD 15.26 -> 15.20 ms, QRS onset and end within 0.02
+    /// ms; window QT against the longest lead's reference 23.7 -> 24.0 ms
+    /// (100 windows). QTDB global (250 Hz, the analysis rate, so only
+    /// through the windows that follow from these marks): P-onset Se 97.18
+    /// -> 97.28 %, T-peak SD 29.38 -> 29.15 ms, T-end SD 31.34 -> 31.22 ms.
+    pub boundary_interpolate: bool,
     /// Longest search (ms) from the last significant maximum to the T end.
     pub t_end_search_ms: f64,
     /// Method whose T end goes in `t_end`.
@@ -884,6 +897,7 @@ impl Default for DelineateConfig {
             t_xi_on: 0.25,
             t_xi_end: 0.4,
             t_end_interpolate: true,
+            boundary_interpolate: true,
             t_end_search_ms: 200.0,
             t_end_method: TEndMethod::Wavelet,
             t_area_window_ms: 128.0,

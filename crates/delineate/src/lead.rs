@@ -267,21 +267,48 @@ impl LeadAnalysis {
 
     /// Boundary before maximum `m`: where |w| first falls below `xi·|w[m]|`
     /// or reaches a local minimum, searching back at most `max_len` samples
-    /// and not before `limit`.
-    fn search_back(w: &[f64], m: usize, xi: f64, max_len: isize, limit: isize) -> Option<f64> {
-        Self::search_back_thr(w, m, xi * w[m].abs(), max_len, limit)
+    /// and not before `limit`; `interpolate` as in [`Self::search_fwd_at`].
+    fn search_back(
+        w: &[f64],
+        m: usize,
+        xi: f64,
+        max_len: isize,
+        limit: isize,
+        interpolate: bool,
+    ) -> Option<f64> {
+        Self::search_back_thr(w, m, xi * w[m].abs(), max_len, limit, interpolate)
     }
 
     /// [`Self::search_back`] with the threshold given in W_k units.
-    fn search_back_thr(w: &[f64], m: usize, thr: f64, max_len: isize, limit: isize) -> Option<f64> {
+    fn search_back_thr(
+        w: &[f64],
+        m: usize,
+        thr: f64,
+        max_len: isize,
+        limit: isize,
+        interpolate: bool,
+    ) -> Option<f64> {
         let stop = (m as isize - max_len).max(limit).max(1);
         let mut n = m as isize - 1;
         while n >= stop {
             let i = n as usize;
             let v = w[i].abs();
             if v < thr || w[i].signum() != w[m].signum() {
-                // Crossing between the centres of W[i] (i + 1/2) and W[i+1].
-                return Some(i as f64 + 1.0);
+                if !interpolate {
+                    // Midway between the centres of W[i] (i + 1/2) and W[i+1].
+                    return Some(i as f64 + 1.0);
+                }
+                // Signed along the maximum: a >= thr > b, the crossing
+                // `f` of the way back from the centre of W[i+1]; f = 1/2
+                // gives the midpoint above.
+                let s = w[m].signum();
+                let (a, b) = (s * w[i + 1], s * w[i]);
+                let f = if a > b {
+                    ((a - thr) / (a - b)).clamp(0.0, 1.0)
+                } else {
+                    0.5
+                };
+                return Some(i as f64 + 1.5 - f);
             }
             if w[i - 1].abs() >= v {
                 return Some(i as f64 + 0.5);
@@ -291,20 +318,11 @@ impl LeadAnalysis {
         None
     }
 
-    /// Boundary after maximum `m`, mirror of [`Self::search_back`].
-    fn search_fwd(w: &[f64], m: usize, xi: f64, max_len: isize, limit: isize) -> Option<f64> {
-        Self::search_fwd_at(w, m, xi, max_len, limit, false)
-    }
-
-    /// [`Self::search_fwd`] with the threshold given in W_k units.
-    fn search_fwd_thr(w: &[f64], m: usize, thr: f64, max_len: isize, limit: isize) -> Option<f64> {
-        Self::search_fwd_at_thr(w, m, thr, max_len, limit, false)
-    }
-
-    /// [`Self::search_fwd`]; with `interpolate`, a threshold crossing is
-    /// placed by linear interpolation between the two W_k samples around it
-    /// instead of at their midpoint, so the boundary is not quantised to
-    /// the analysis sample (4 ms at 250 Hz).
+    /// Boundary after maximum `m`, mirror of [`Self::search_back`]. With
+    /// `interpolate`, a threshold crossing is placed by linear interpolation
+    /// between the two W_k samples around it instead of at their midpoint,
+    /// so the boundary is not quantised to the analysis sample (4 ms at
+    /// 250 Hz).
     fn search_fwd_at(
         w: &[f64],
         m: usize,
@@ -811,7 +829,14 @@ impl LeadAnalysis {
                 }
             }
         }
-        let qrs_on = Self::search_back_thr(w2, first, on_thr, qsearch, region_lo - qsearch);
+        let qrs_on = Self::search_back_thr(
+            w2,
+            first,
+            on_thr,
+            qsearch,
+            region_lo - qsearch,
+            cfg.boundary_interpolate,
+        );
         let xi_end = if w2[last] > 0.0 {
             cfg.qrs_xi_end_pos
         } else {
@@ -823,7 +848,14 @@ impl LeadAnalysis {
         } else {
             region_hi
         };
-        let qrs_end = Self::search_fwd_thr(w2, last, end_thr, qsearch, end_hi + qsearch);
+        let qrs_end = Self::search_fwd_at_thr(
+            w2,
+            last,
+            end_thr,
+            qsearch,
+            end_hi + qsearch,
+            cfg.boundary_interpolate,
+        );
         bm.qrs_on = self.mark(qrs_on, qrs_conf);
         bm.qrs_end = self.mark(qrs_end, qrs_conf);
 
@@ -1007,7 +1039,14 @@ impl LeadAnalysis {
             let t_on = if l.peak.is_some_and(|p| p < first) {
                 None
             } else {
-                Self::search_back(w, first, cfg.t_xi_on, tsearch, qend_i)
+                Self::search_back(
+                    w,
+                    first,
+                    cfg.t_xi_on,
+                    tsearch,
+                    qend_i,
+                    cfg.boundary_interpolate,
+                )
             };
             bm.t_on = self.mark(t_on, tconf);
             bm.t_end_wavelet = self.mark(t_end_w, tconf);
@@ -1164,11 +1203,25 @@ impl LeadAnalysis {
             let last = *l.idx.last().unwrap();
             bm.p_peak = self.mark(l.peak.map(|p| p as f64), pconf);
             bm.p_on = self.mark(
-                Self::search_back(w4, first, cfg.p_xi_on, psearch, p_lo - psearch),
+                Self::search_back(
+                    w4,
+                    first,
+                    cfg.p_xi_on,
+                    psearch,
+                    p_lo - psearch,
+                    cfg.boundary_interpolate,
+                ),
                 pconf,
             );
             bm.p_end = self.mark(
-                Self::search_fwd(w4, last, cfg.p_xi_end, psearch, qon_i),
+                Self::search_fwd_at(
+                    w4,
+                    last,
+                    cfg.p_xi_end,
+                    psearch,
+                    qon_i,
+                    cfg.boundary_interpolate,
+                ),
                 pconf,
             );
             return true;
@@ -1414,6 +1467,28 @@ mod tests {
                 assert_eq!(fast, slow, "fs={fs} fs_a={fs_a} len={}", sig.len());
             }
         }
+    }
+
+    #[test]
+    fn interpolated_crossings_lie_where_a_linear_ramp_meets_the_threshold() {
+        // Oracle: W[j] = j is the ramp v(t) = t - 1/2 sampled at the
+        // centres j + 1/2, so it meets 3.3 at t = 3.8 (rising, searched
+        // back from the maximum at 10) and the falling ramp 10 - j meets it
+        // at t = 7.2 (searched forward from the maximum at 0).
+        let up: Vec<f64> = (0..=10).map(f64::from).collect();
+        let down: Vec<f64> = up.iter().rev().copied().collect();
+        let back = |interp| LeadAnalysis::search_back_thr(&up, 10, 3.3, 20, 0, interp);
+        let fwd = |interp| LeadAnalysis::search_fwd_at_thr(&down, 0, 3.3, 20, 10, interp);
+        assert!((back(true).unwrap() - 3.8).abs() < 1e-12);
+        assert!((fwd(true).unwrap() - 7.2).abs() < 1e-12);
+        // Without interpolation: the midpoint between the two samples'
+        // centres (3.5 + 4.5) / 2 and (6.5 + 7.5) / 2.
+        assert_eq!(back(false), Some(4.0));
+        assert_eq!(fwd(false), Some(7.0));
+        // Negative lobes give the mirror positions.
+        let neg: Vec<f64> = up.iter().map(|v| -v).collect();
+        let b = LeadAnalysis::search_back_thr(&neg, 10, 3.3, 20, 0, true).unwrap();
+        assert!((b - 3.8).abs() < 1e-12);
     }
 
     // Branch-free extrema against the push per extremum (oracle): plateaus,
@@ -1752,8 +1827,15 @@ mod tests {
         let l = la.find_wave(4, lo, hi, &la.p_rule(cfg)).expect("P wave");
         let last = *l.idx.last().unwrap();
         let psearch = la.ms_i(cfg.p_boundary_search_ms);
-        let end = LeadAnalysis::search_fwd(&la.w[3], last, cfg.p_xi_end, psearch, hi + psearch)
-            .expect("P end");
+        let end = LeadAnalysis::search_fwd_at(
+            &la.w[3],
+            last,
+            cfg.p_xi_end,
+            psearch,
+            hi + psearch,
+            cfg.boundary_interpolate,
+        )
+        .expect("P end");
         (end, l.idx.len())
     }
 
