@@ -658,6 +658,20 @@ pub struct DelineateConfig {
     /// over fractions 0 to 1: every lead at the median (1.0) gave 11.6 /
     /// 13.7, so the lead's own mark still carries information.
     pub lead_shrink_qrs: f64,
+    /// See `lead_shrink_qrs`: the QRS onsets move toward this quantile of
+    /// the leads' onsets for the beat instead of their median (0 = the
+    /// earliest lead, 0.5 = the median, 1 = the latest; linear between
+    /// order statistics). Why: the ventricles' activation starts once for
+    /// all leads, and a lead onto which the first forces project weakly
+    /// marks the onset late, never early, so the common onset lies below
+    /// the median (common practice: the global QRS onset is the earliest
+    /// across leads). Default 0.3 (the median before): LUDB per-lead QRS
+    /// onset 6.6 +/- 10.36 -> 3.7 +/- 10.14 ms (odd- / even-numbered
+    /// records 10.39 -> 10.00 / 10.32 -> 10.28); 0.4 / 0.2 / 0.1: 10.19 /
+    /// 10.15 / 10.24 ms; 0.3 with `lead_shrink_qrs` 0.5 / 0.7 / 0.8: 10.20
+    /// / 10.20 / 10.29. The same for the QRS end (the 0.7 quantile): 11.76
+    /// -> 11.80 ms, so the ends keep the median. QTDB (two leads) unchanged.
+    pub lead_shrink_qrs_on_quantile: f64,
     /// See `lead_shrink_qrs`: the fraction for the P onset and end. Default
     /// 0.3: LUDB P onset 16.1 -> 15.5 (13.8 -> 13.5 / 18.1 -> 17.3), P end
     /// 16.1 -> 15.2 (15.0 -> 14.1 / 17.1 -> 16.2); 0.2: 15.6 / 15.4, 0.4:
@@ -953,6 +967,7 @@ impl Default for DelineateConfig {
             lead_ensemble_qrs_gate_ms: 40.0,
             global_ensemble_qrs: true,
             lead_shrink_qrs: 0.6,
+            lead_shrink_qrs_on_quantile: 0.3,
             lead_shrink_p: 0.3,
             lead_shrink_t: 0.3,
             lead_shrink_min_leads: 3,
@@ -1347,6 +1362,13 @@ impl DelineateConfig {
                 "beats",
             )
             .range("lead_shrink_qrs", self.lead_shrink_qrs, 0.0, 1.0, "")
+            .range(
+                "lead_shrink_qrs_on_quantile",
+                self.lead_shrink_qrs_on_quantile,
+                0.0,
+                1.0,
+                "",
+            )
             .range("lead_shrink_p", self.lead_shrink_p, 0.0, 1.0, "")
             .range("lead_shrink_t", self.lead_shrink_t, 0.0, 1.0, "")
             .range(

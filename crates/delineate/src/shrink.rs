@@ -12,7 +12,10 @@
 //! the sample, with `a = lead_shrink_qrs` for the QRS onset and end,
 //! `lead_shrink_p` for the P onset and end and `lead_shrink_t` for the T onset
 //! and every T-end method's mark. `a = 0` leaves the lead alone, `a = 1` gives
-//! every lead the median. Peaks are the lead's own extrema and stay.
+//! every lead the median. Peaks are the lead's own extrema and stay. The QRS
+//! onset moves toward a lower quantile (`lead_shrink_qrs_on_quantile`)
+//! instead of the median: activation starts once for all leads, and a lead
+//! that sees the first forces weakly marks the onset late, never early.
 //!
 //! Only beats where at least `lead_shrink_min_leads` leads have the mark take
 //! part (the median of two leads is their mean and says nothing of which one
@@ -91,6 +94,17 @@ fn bounds(b: &BeatMarks, f: Field) -> (Option<usize>, Option<usize>) {
     }
 }
 
+/// The `q`-quantile of the ascending `v` (not empty), linear between the
+/// order statistics: position `q · (len − 1)`, so `q = 0.5` is the median
+/// (the mean of the middle two for an even count).
+fn quantile_sorted(v: &[usize], q: f64) -> f64 {
+    let pos = q.clamp(0.0, 1.0) * (v.len() - 1) as f64;
+    let lo = pos.floor() as usize;
+    let hi = pos.ceil() as usize;
+    let f = pos - lo as f64;
+    v[lo] as f64 * (1.0 - f) + v[hi] as f64 * f
+}
+
 /// Apply the rule of the module docs to `per_lead[lead][beat]`.
 pub(crate) fn toward_lead_median(per_lead: &mut [Vec<BeatMarks>], cfg: &DelineateConfig) {
     let min_leads = cfg.lead_shrink_min_leads.max(2);
@@ -125,12 +139,11 @@ pub(crate) fn toward_lead_median(per_lead: &mut [Vec<BeatMarks>], cfg: &Delineat
                 continue;
             }
             vals.sort_unstable();
-            let k = vals.len();
-            let med = if k % 2 == 1 {
-                vals[k / 2] as f64
-            } else {
-                0.5 * (vals[k / 2 - 1] + vals[k / 2]) as f64
+            let q = match field {
+                Field::QrsOn => cfg.lead_shrink_qrs_on_quantile,
+                _ => 0.5,
             };
+            let med = quantile_sorted(&vals, q);
             // Targets from the marks as they were before this field moved
             // on any lead, so the order of the leads does not matter.
             for (t, l) in target.iter_mut().zip(per_lead.iter()) {
@@ -186,6 +199,7 @@ mod tests {
     fn marks_move_the_configured_fraction_toward_the_median() {
         let cfg = DelineateConfig {
             lead_shrink_qrs: 0.5,
+            lead_shrink_qrs_on_quantile: 0.5,
             lead_shrink_p: 0.0,
             lead_shrink_t: 0.0,
             lead_shrink_min_leads: 3,
@@ -215,6 +229,44 @@ mod tests {
         assert!(per_lead
             .iter()
             .all(|l| l[0].qrs_on.unwrap().confidence == 0.5));
+    }
+
+    #[test]
+    fn onsets_move_toward_the_configured_quantile_and_ends_toward_the_median() {
+        let cfg = DelineateConfig {
+            lead_shrink_qrs: 0.5,
+            lead_shrink_qrs_on_quantile: 0.3,
+            lead_shrink_p: 0.0,
+            lead_shrink_t: 0.0,
+            lead_shrink_min_leads: 3,
+            ..DelineateConfig::default()
+        };
+        // Oracle: the 0.3 quantile of 150, 154, 160, 166 at position
+        // 0.3 · 3 = 0.9 is 150 + 0.9 · 4 = 153.6 (numpy's default `linear`
+        // quantile gives the same); own + 0.5 (153.6 - own) = 151.8, 153.8,
+        // 156.8, 159.8. Ends keep the median, 200.
+        let mut per_lead = vec![
+            vec![beat(150, 190)],
+            vec![beat(154, 200)],
+            vec![beat(160, 200)],
+            vec![beat(166, 230)],
+        ];
+        toward_lead_median(&mut per_lead, &cfg);
+        let on: Vec<usize> = per_lead
+            .iter()
+            .map(|l| l[0].qrs_on.unwrap().sample)
+            .collect();
+        let end: Vec<usize> = per_lead
+            .iter()
+            .map(|l| l[0].qrs_end.unwrap().sample)
+            .collect();
+        assert_eq!(on, [152, 154, 157, 160]);
+        assert_eq!(end, [195, 200, 200, 215]);
+        // The ends of the quantile range are the extreme leads, 0.5 the median.
+        assert_eq!(quantile_sorted(&[150, 154, 160, 166], 0.0), 150.0);
+        assert_eq!(quantile_sorted(&[150, 154, 160, 166], 1.0), 166.0);
+        assert_eq!(quantile_sorted(&[150, 154, 160, 166], 0.5), 157.0);
+        assert_eq!(quantile_sorted(&[150, 154, 160], 0.5), 154.0);
     }
 
     #[test]
