@@ -73,6 +73,14 @@ def sd_interval(f):
     return f"{ci[0]:.1f} to {ci[1]:.1f}"
 
 
+def sd_text(sd, target):
+    """SD to one decimal, or two when one decimal would hide which side of
+    the target it lies on (10.02 against 10 reads 10.02, not 10.0)."""
+    if target is not None and round(sd, 1) == round(target, 1) and sd != target:
+        return f"{sd:.2f}"
+    return f"{sd:.1f}"
+
+
 def qtdb_table(r):
     rows = [
         "| fiducial | Se % | +P % | mean ± SD ms | SD 95 % interval | target Se / abs(mean) / SD | met |",
@@ -85,7 +93,7 @@ def qtdb_table(r):
         ok = f["sensitivity_pct"] >= se and abs(s["mean_ms"]) <= mean and s["sd_ms"] <= sd
         rows.append(
             f"| {NAMES[key]} | {f['sensitivity_pct']:.2f} | {f['ppv_pct']:.2f} | "
-            f"{s['mean_ms']:.1f} ± {s['sd_ms']:.1f} | {sd_interval(f)} | "
+            f"{s['mean_ms']:.1f} ± {sd_text(s['sd_ms'], sd)} | {sd_interval(f)} | "
             f"≥ {se:g} / ≤ {mean:g} / ≤ {sd:g} | {yes(ok)} |"
         )
     return rows
@@ -108,7 +116,7 @@ def ludb_table(r):
         sd_target = "—" if sd is None else f"≤ {sd:g}"
         rows.append(
             f"| {NAMES[key]} | {f['sensitivity_pct']:.2f} | {f['ppv_pct']:.2f} | "
-            f"{s['mean_ms']:.1f} ± {s['sd_ms']:.1f} | {sd_interval(f)} | "
+            f"{s['mean_ms']:.1f} ± {sd_text(s['sd_ms'], sd)} | {sd_interval(f)} | "
             f"≥ {se:g} / ≤ {mean:g} / {sd_target} | {yes(ok)} |"
         )
     return rows

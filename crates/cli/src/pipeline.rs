@@ -505,19 +505,21 @@ pub fn process_record(
             spikes.len()
         ));
     }
+    let mut stimulus_ends: Vec<usize> = spikes.iter().map(|s| s.end).collect();
+    stimulus_ends.sort_unstable();
     let names: Vec<String> = rec.leads.iter().map(|l| l.name.clone()).collect();
     let (fs, sex) = (rec.fs, rec.meta.sex);
     // Taken before a long record's samples leave `rec` (`RawLeads`).
     let n_samples = rec.n_samples();
     // Filter, detect, delineate and measure one stretch of the record.
-    let analyse = |raw: &[&[f64]], gaps: &[(usize, usize)]| -> Result<Stretch> {
+    let analyse = |raw: &[&[f64]], gaps: &[(usize, usize)], stimuli: &[usize]| -> Result<Stretch> {
         let (cond, notch) = filter.filter_record(raw);
         let leads: Vec<&[f64]> = cond.iter().map(Vec::as_slice).collect();
         let mut det = tendline_detect::detect(&leads, fs, &cfg.detect)
             .with_context(|| format!("{}: beat detection", input.name))?;
         let dropped = tendline_detect::exclude_missing(&mut det, gaps, fs, &cfg.detect);
         let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
-        let del = tendline_delineate::delineate(&leads, fs, &qrs, &cfg.delineate);
+        let del = tendline_delineate::delineate_paced(&leads, fs, &qrs, stimuli, &cfg.delineate);
         let meas = tendline_measure::measure_record(
             &leads,
             &names,
@@ -542,7 +544,7 @@ pub fn process_record(
     let plan = chunk_plan(n_samples, rec.leads.len(), fs, &cfg.measure);
     let whole = if plan.len() <= 1 {
         let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
-        analyse(&raw, &gaps)?
+        analyse(&raw, &gaps, &stimulus_ends)?
     } else {
         rec.warnings.push(format!(
             "long record: processed in {} chunks of {} s (`measure.chunk_mega_samples`), each \
@@ -569,7 +571,12 @@ pub fn process_record(
                     .filter(|&&(a, b)| b > c.ext.0 && a < c.ext.1)
                     .map(|&(a, b)| (a.max(c.ext.0) - c.ext.0, b.min(c.ext.1) - c.ext.0))
                     .collect();
-                analyse(&held.slices(c.ext.0, c.ext.1), &local)
+                let stimuli: Vec<usize> = stimulus_ends
+                    .iter()
+                    .filter(|&&e| e > c.ext.0 && e <= c.ext.1)
+                    .map(|&e| e - c.ext.0)
+                    .collect();
+                analyse(&held.slices(c.ext.0, c.ext.1), &local, &stimuli)
             };
             let stretches: Vec<Result<Stretch>> = match (&ctx.chunk_pool, group.len()) {
                 (Some(pool), 2..) => pool.install(|| group.par_iter().map(one).collect()),

@@ -12,9 +12,13 @@
 //! scale 2^4 (T falls back to 2^5), following Martínez et al. (IEEE TBME
 //! 2004). T end is found three ways: the wavelet threshold rule, the tangent
 //! method (steepest point of the final T limb, tangent intersected with the
-//! PR-segment level), and the area indicator of Zhang et al. (2006). Marks are
-//! mapped back to input samples by rounding, so their resolution is one
-//! analysis sample (4 ms at 250 Hz).
+//! PR-segment level), and the area indicator of Zhang et al. (2006). Threshold
+//! boundaries (onsets and ends) are placed by linear interpolation of the
+//! threshold crossing between analysis samples (`boundary_interpolate`,
+//! `t_end_interpolate`); peaks and boundaries set at a local minimum of
+//! |W_k| keep the analysis grid. Marks are mapped back to input samples by
+//! rounding: above the analysis rate a boundary's resolution is the input
+//! sample, a peak's one analysis sample (4 ms at 250 Hz).
 //!
 //! # Conventions
 //!
@@ -40,7 +44,11 @@
 //!   (`lead_ensemble_*`, module `ensemble`; the global QRS onset and end
 //!   likewise, `global_ensemble_qrs`), held within the global span of their
 //!   wave (`lead_marks_within_global`), and moved part of the way toward the
-//!   median of all leads for the beat (`lead_shrink_*`, module `shrink`).
+//!   median of all leads for the beat (`lead_shrink_*`, module `shrink`;
+//!   QRS onsets toward a lower quantile, `lead_shrink_qrs_on_quantile`).
+//! * Paced beats ([`delineate_paced`]): a QRS onset, per lead or global,
+//!   found before the end of the pacing stimulus that precedes the QRS peak
+//!   is moved to `qrs_stimulus_latency_ms` after it (module `paced`).
 //! * A biphasic T is reported as such, but its onset and end are searched
 //!   from its dominant slope pair unless `t_biphasic_outer_bounds` is set.
 //!   A biphasic P (`p_biphasic_frac`) is read from its outer lobes; of two
@@ -64,6 +72,7 @@ mod config;
 mod ensemble;
 mod global;
 mod lead;
+mod paced;
 mod prhythm;
 mod shrink;
 #[cfg(test)]
@@ -492,6 +501,20 @@ fn recheck_t(
 
 /// Delineate all leads and combine them into global marks per beat.
 pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig) -> Delineation {
+    delineate_paced(leads, fs, qrs, &[], cfg)
+}
+
+/// [`delineate`] for a record whose pacing stimuli were removed before
+/// filtering: `stimulus_ends` (input samples one past each stimulus, sorted)
+/// bound the QRS onsets of the beats they trigger (`qrs_stimulus_latency_ms`,
+/// module `paced`).
+pub fn delineate_paced(
+    leads: &[&[f64]],
+    fs: f64,
+    qrs: &[usize],
+    stimulus_ends: &[usize],
+    cfg: &DelineateConfig,
+) -> Delineation {
     let las: Vec<Option<lead::LeadAnalysis>> = leads
         .iter()
         .map(|x| {
@@ -507,7 +530,7 @@ pub fn delineate(leads: &[&[f64]], fs: f64, qrs: &[usize], cfg: &DelineateConfig
         })
         .collect();
     let refs: Vec<Option<&lead::LeadAnalysis>> = las.iter().map(Option::as_ref).collect();
-    across_leads(&refs, per_lead, qrs, fs, cfg)
+    across_leads(&refs, per_lead, qrs, stimulus_ends, fs, cfg)
 }
 
 /// What follows the single-lead delineation of every lead: P waves dropped
@@ -520,15 +543,21 @@ fn across_leads(
     las: &[Option<&lead::LeadAnalysis>],
     mut per_lead: Vec<Vec<BeatMarks>>,
     qrs: &[usize],
+    stimulus_ends: &[usize],
     fs: f64,
     cfg: &DelineateConfig,
 ) -> Delineation {
+    for lead in per_lead.iter_mut() {
+        paced::onsets_after_stimuli(lead, stimulus_ends, fs, cfg);
+    }
     prhythm::drop_inconsistent_p(&mut per_lead, fs, cfg);
     prhythm::fill_weak_p(las, &mut per_lead, cfg);
     let mut global = global::combine(&per_lead, las, qrs.len(), fs, cfg);
     if within_global(las, &mut per_lead, &global, qrs, cfg) {
         global = global::combine(&per_lead, las, qrs.len(), fs, cfg);
     }
+    // The multi-lead envelope may put the global onset on the stimulus too.
+    paced::onsets_after_stimuli(&mut global, stimulus_ends, fs, cfg);
     ensemble::hold_to_neighbours(&mut per_lead, qrs, fs, cfg, true);
     if cfg.global_ensemble_qrs {
         let mut g = [std::mem::take(&mut global)];
@@ -625,7 +654,7 @@ pub fn delineate_prepared(
         .collect();
     let fs = leads.first().map_or(1.0, |l| l.fs);
     let refs: Vec<Option<&lead::LeadAnalysis>> = leads.iter().map(|l| l.la.as_ref()).collect();
-    across_leads(&refs, per_lead, qrs, fs, cfg)
+    across_leads(&refs, per_lead, qrs, &[], fs, cfg)
 }
 
 /// Beats on either side of a beat that [`delineate_prepared`] must also
