@@ -87,23 +87,64 @@ def test_pr_interval_only_where_the_rhythm_has_one():
     assert [r["record"] for r in other if not r["pr_ms"]] == []
 
 
+LEADS = ["i", "ii", "iii", "avr", "avl", "avf", "v1", "v2", "v3", "v4", "v5", "v6"]
+
+
+def reference_pr_ms(data, record):
+    """The record's PR interval from the cardiologists' own boundaries: per
+    beat, the earliest P onset to the earliest QRS onset across the 12 leads'
+    annotation files (read with `wfdb.rdann`), median over the beats; None
+    without a P wave. Beats are matched across leads by their QRS peak (the
+    same within 100 ms)."""
+    beats = {}
+    for lead in LEADS:
+        a = wfdb.rdann(str(data / str(record)), lead)
+        s, y = a.sample, a.symbol
+        for i in range(1, len(y)):
+            if y[i] in "NLRAV/" and y[i - 1] == "(":
+                b = beats.setdefault(int(s[i]) // 50, {"q": [], "p": []})
+                b["q"].append(int(s[i - 1]))
+                for j in range(i - 2, max(i - 8, 0), -1):
+                    if y[j] == "p" and y[j - 1] == "(":
+                        b["p"].append(int(s[j - 1]))
+                        break
+                    if y[j] in "NLRAV/t":
+                        break
+    fs = wfdb.rdheader(str(data / str(record))).fs
+    prs = [(min(b["q"]) - min(b["p"])) * 1000.0 / fs for b in beats.values() if b["p"]]
+    return statistics.median(prs) if prs else None
+
+
 def test_pr_interval_against_first_degree_av_block():
     # First-degree AV block is a PR interval over 200 ms (common practice).
-    # Measured on the final code: 5 of the 6 LUDB records with that diagnosis
-    # have a record PR over 200 ms (LUDB 61: 192 ms), and 10 of the 80 other
-    # records with a PR interval do (the tool does not classify AV block; the
-    # PR it reports is for the reader to judge).
+    # The six LUDB records with that diagnosis do not all reach 200 ms by the
+    # cardiologists' own boundaries (earliest P onset to earliest QRS onset,
+    # median over beats): 230, 200, 196, 192, 208 and 240 ms for LUDB 13, 15,
+    # 20, 61, 77 and 78, measured here from the annotation files. So the tool's
+    # record PR is checked against those reference PRs (within 15 ms each) and
+    # the count over 200 ms against the reference's count (3), while the group
+    # as a whole must stand apart from the other records. Measured on the final
+    # code: PRs 230, 198, 198, 184, 208, 226 ms (largest difference from the
+    # reference 14 ms, LUDB 78), 3 over 200 ms, 9 of the 80 other records
+    # over 200 ms; medians 203 ms against 169 (the tool does not classify AV
+    # block; the PR it reports is for the reader to judge).
     rows = run_rows()
+    data = Path(os.environ.get("TENDLINE_DATA", DATA)) / "ludb"
     avb, other = [], []
     for r, comments in rows:
         text = " ".join(comments)
         if not r["pr_ms"] or re.search(r"iii degree av-block", text, re.IGNORECASE):
             continue
-        (avb if re.search(r"\bi degree av block", text, re.IGNORECASE) else other).append(
-            float(r["pr_ms"])
-        )
+        if re.search(r"\bi degree av block", text, re.IGNORECASE):
+            avb.append((r["record"], float(r["pr_ms"]), reference_pr_ms(data, r["record"])))
+        else:
+            other.append(float(r["pr_ms"]))
     assert len(avb) == 6, avb
-    assert sum(p > 200 for p in avb) >= 5, avb
+    for rec, pr, ref in avb:
+        assert ref is not None and abs(pr - ref) <= 15, (rec, pr, ref)
+    ref_over = sum(ref > 200 for _, _, ref in avb)
+    assert ref_over == 3, avb
+    assert sum(pr > 200 for _, pr, _ in avb) >= ref_over, avb
     assert sum(p > 200 for p in other) <= 11, sorted(other)[-12:]
-    # Medians measured: 208 ms against 172 ms (the others' upper quartile 185).
-    assert statistics.median(avb) - statistics.median(other) >= 25, (avb, other)
+    prs = [pr for _, pr, _ in avb]
+    assert statistics.median(prs) - statistics.median(other) >= 25, (prs, other)
