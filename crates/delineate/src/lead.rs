@@ -265,22 +265,11 @@ impl LeadAnalysis {
         (lo..b).rev().find(|&n| w[n].signum() != s || w[n] == 0.0)
     }
 
-    /// Boundary before maximum `m`: where |w| first falls below `xi·|w[m]|`
-    /// or reaches a local minimum, searching back at most `max_len` samples
-    /// and not before `limit`; `interpolate` as in [`Self::search_fwd_at`].
+    /// Boundary before maximum `m`: where |w| first falls below `thr` (W_k
+    /// units; Martínez 2004's ξ·|w[m]|) or reaches a local minimum, searching
+    /// back at most `max_len` samples and not before `limit`; `interpolate`
+    /// as in [`Self::search_fwd`].
     fn search_back(
-        w: &[f64],
-        m: usize,
-        xi: f64,
-        max_len: isize,
-        limit: isize,
-        interpolate: bool,
-    ) -> Option<f64> {
-        Self::search_back_thr(w, m, xi * w[m].abs(), max_len, limit, interpolate)
-    }
-
-    /// [`Self::search_back`] with the threshold given in W_k units.
-    fn search_back_thr(
         w: &[f64],
         m: usize,
         thr: f64,
@@ -323,19 +312,7 @@ impl LeadAnalysis {
     /// between the two W_k samples around it instead of at their midpoint,
     /// so the boundary is not quantised to the analysis sample (4 ms at
     /// 250 Hz).
-    fn search_fwd_at(
-        w: &[f64],
-        m: usize,
-        xi: f64,
-        max_len: isize,
-        limit: isize,
-        interpolate: bool,
-    ) -> Option<f64> {
-        Self::search_fwd_at_thr(w, m, xi * w[m].abs(), max_len, limit, interpolate)
-    }
-
-    /// [`Self::search_fwd_at`] with the threshold given in W_k units.
-    fn search_fwd_at_thr(
+    fn search_fwd(
         w: &[f64],
         m: usize,
         thr: f64,
@@ -829,7 +806,7 @@ impl LeadAnalysis {
                 }
             }
         }
-        let qrs_on = Self::search_back_thr(
+        let qrs_on = Self::search_back(
             w2,
             first,
             on_thr,
@@ -848,7 +825,7 @@ impl LeadAnalysis {
         } else {
             region_hi
         };
-        let qrs_end = Self::search_fwd_at_thr(
+        let qrs_end = Self::search_fwd(
             w2,
             last,
             end_thr,
@@ -1005,10 +982,10 @@ impl LeadAnalysis {
             let first = l.idx[0];
             let tsearch = self.ms_i(cfg.t_end_search_ms);
             let last = *l.idx.last().unwrap();
-            let t_end_w = Self::search_fwd_at(
+            let t_end_w = Self::search_fwd(
                 w,
                 last,
-                cfg.t_xi_end,
+                cfg.t_xi_end * w[last].abs(),
                 tsearch,
                 t_limit,
                 cfg.t_end_interpolate,
@@ -1042,7 +1019,7 @@ impl LeadAnalysis {
                 Self::search_back(
                     w,
                     first,
-                    cfg.t_xi_on,
+                    cfg.t_xi_on * w[first].abs(),
                     tsearch,
                     qend_i,
                     cfg.boundary_interpolate,
@@ -1206,7 +1183,7 @@ impl LeadAnalysis {
                 Self::search_back(
                     w4,
                     first,
-                    cfg.p_xi_on,
+                    cfg.p_xi_on * w4[first].abs(),
                     psearch,
                     p_lo - psearch,
                     cfg.boundary_interpolate,
@@ -1214,10 +1191,10 @@ impl LeadAnalysis {
                 pconf,
             );
             bm.p_end = self.mark(
-                Self::search_fwd_at(
+                Self::search_fwd(
                     w4,
                     last,
-                    cfg.p_xi_end,
+                    cfg.p_xi_end * w4[last].abs(),
                     psearch,
                     qon_i,
                     cfg.boundary_interpolate,
@@ -1477,8 +1454,8 @@ mod tests {
         // at t = 7.2 (searched forward from the maximum at 0).
         let up: Vec<f64> = (0..=10).map(f64::from).collect();
         let down: Vec<f64> = up.iter().rev().copied().collect();
-        let back = |interp| LeadAnalysis::search_back_thr(&up, 10, 3.3, 20, 0, interp);
-        let fwd = |interp| LeadAnalysis::search_fwd_at_thr(&down, 0, 3.3, 20, 10, interp);
+        let back = |interp| LeadAnalysis::search_back(&up, 10, 3.3, 20, 0, interp);
+        let fwd = |interp| LeadAnalysis::search_fwd(&down, 0, 3.3, 20, 10, interp);
         assert!((back(true).unwrap() - 3.8).abs() < 1e-12);
         assert!((fwd(true).unwrap() - 7.2).abs() < 1e-12);
         // Without interpolation: the midpoint between the two samples'
@@ -1487,7 +1464,7 @@ mod tests {
         assert_eq!(fwd(false), Some(7.0));
         // Negative lobes give the mirror positions.
         let neg: Vec<f64> = up.iter().map(|v| -v).collect();
-        let b = LeadAnalysis::search_back_thr(&neg, 10, 3.3, 20, 0, true).unwrap();
+        let b = LeadAnalysis::search_back(&neg, 10, 3.3, 20, 0, true).unwrap();
         assert!((b - 3.8).abs() < 1e-12);
     }
 
@@ -1827,10 +1804,10 @@ mod tests {
         let l = la.find_wave(4, lo, hi, &la.p_rule(cfg)).expect("P wave");
         let last = *l.idx.last().unwrap();
         let psearch = la.ms_i(cfg.p_boundary_search_ms);
-        let end = LeadAnalysis::search_fwd_at(
+        let end = LeadAnalysis::search_fwd(
             &la.w[3],
             last,
-            cfg.p_xi_end,
+            cfg.p_xi_end * la.w[3][last].abs(),
             psearch,
             hi + psearch,
             cfg.boundary_interpolate,

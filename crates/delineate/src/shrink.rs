@@ -195,18 +195,18 @@ mod tests {
         }
     }
 
-    #[test]
-    fn marks_move_the_configured_fraction_toward_the_median() {
+    /// Four leads' QRS onsets 150, 154, 160, 166 and ends 190, 200, 200,
+    /// 230, shrunk by half toward the onset quantile `q`; returns the
+    /// onsets and ends after the move, and the leads.
+    fn shrink_four(q: f64) -> (Vec<usize>, Vec<usize>, Vec<Vec<BeatMarks>>) {
         let cfg = DelineateConfig {
             lead_shrink_qrs: 0.5,
-            lead_shrink_qrs_on_quantile: 0.5,
+            lead_shrink_qrs_on_quantile: q,
             lead_shrink_p: 0.0,
             lead_shrink_t: 0.0,
             lead_shrink_min_leads: 3,
             ..DelineateConfig::default()
         };
-        // QRS onsets 150, 154, 160, 166 (median 157); ends 190, 200, 200, 230
-        // (median 200). Oracle: own + 0.5 (median - own), rounded.
         let mut per_lead = vec![
             vec![beat(150, 190)],
             vec![beat(154, 200)],
@@ -214,15 +214,17 @@ mod tests {
             vec![beat(166, 230)],
         ];
         toward_lead_median(&mut per_lead, &cfg);
-        let on: Vec<usize> = per_lead
-            .iter()
-            .map(|l| l[0].qrs_on.unwrap().sample)
-            .collect();
-        let end: Vec<usize> = per_lead
-            .iter()
-            .map(|l| l[0].qrs_end.unwrap().sample)
-            .collect();
-        // 153.5, 155.5 round half away from zero.
+        let get = |f: fn(&BeatMarks) -> Option<Mark>| -> Vec<usize> {
+            per_lead.iter().map(|l| f(&l[0]).unwrap().sample).collect()
+        };
+        (get(|b| b.qrs_on), get(|b| b.qrs_end), per_lead)
+    }
+
+    #[test]
+    fn marks_move_the_configured_fraction_toward_the_median() {
+        // Onset median 157, end median 200. Oracle: own + 0.5 (median -
+        // own), rounded; 153.5, 155.5 round half away from zero.
+        let (on, end, per_lead) = shrink_four(0.5);
         assert_eq!(on, [154, 156, 159, 162]);
         assert_eq!(end, [195, 200, 200, 215]);
         assert!(per_lead.iter().all(|l| l[0].p_on == m(100)));
@@ -233,33 +235,11 @@ mod tests {
 
     #[test]
     fn onsets_move_toward_the_configured_quantile_and_ends_toward_the_median() {
-        let cfg = DelineateConfig {
-            lead_shrink_qrs: 0.5,
-            lead_shrink_qrs_on_quantile: 0.3,
-            lead_shrink_p: 0.0,
-            lead_shrink_t: 0.0,
-            lead_shrink_min_leads: 3,
-            ..DelineateConfig::default()
-        };
         // Oracle: the 0.3 quantile of 150, 154, 160, 166 at position
         // 0.3 · 3 = 0.9 is 150 + 0.9 · 4 = 153.6 (numpy's default `linear`
         // quantile gives the same); own + 0.5 (153.6 - own) = 151.8, 153.8,
         // 156.8, 159.8. Ends keep the median, 200.
-        let mut per_lead = vec![
-            vec![beat(150, 190)],
-            vec![beat(154, 200)],
-            vec![beat(160, 200)],
-            vec![beat(166, 230)],
-        ];
-        toward_lead_median(&mut per_lead, &cfg);
-        let on: Vec<usize> = per_lead
-            .iter()
-            .map(|l| l[0].qrs_on.unwrap().sample)
-            .collect();
-        let end: Vec<usize> = per_lead
-            .iter()
-            .map(|l| l[0].qrs_end.unwrap().sample)
-            .collect();
+        let (on, end, _) = shrink_four(0.3);
         assert_eq!(on, [152, 154, 157, 160]);
         assert_eq!(end, [195, 200, 200, 215]);
         // The ends of the quantile range are the extreme leads, 0.5 the median.
