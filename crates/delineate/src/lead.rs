@@ -287,16 +287,9 @@ impl LeadAnalysis {
                     // Midway between the centres of W[i] (i + 1/2) and W[i+1].
                     return Some(i as f64 + 1.0);
                 }
-                // Signed along the maximum: a >= thr > b, the crossing
                 // `f` of the way back from the centre of W[i+1]; f = 1/2
                 // gives the midpoint above.
-                let s = w[m].signum();
-                let (a, b) = (s * w[i + 1], s * w[i]);
-                let f = if a > b {
-                    ((a - thr) / (a - b)).clamp(0.0, 1.0)
-                } else {
-                    0.5
-                };
+                let f = crossing_fraction(w[m].signum(), w[i + 1], w[i], thr);
                 return Some(i as f64 + 1.5 - f);
             }
             if w[i - 1].abs() >= v {
@@ -329,15 +322,9 @@ impl LeadAnalysis {
                 if !interpolate {
                     return Some(i as f64);
                 }
-                // Signed along the maximum: a >= thr > b. W[j] is centred
-                // at j + 1/2, so the midpoint rule above returns i at f = 1/2.
-                let s = w[m].signum();
-                let (a, b) = (s * w[i - 1], s * w[i]);
-                let f = if a > b {
-                    ((a - thr) / (a - b)).clamp(0.0, 1.0)
-                } else {
-                    0.5
-                };
+                // W[j] is centred at j + 1/2, so the midpoint rule above
+                // returns i at f = 1/2.
+                let f = crossing_fraction(w[m].signum(), w[i - 1], w[i], thr);
                 return Some(i as f64 - 0.5 + f);
             }
             if w[i + 1].abs() >= v {
@@ -1246,6 +1233,20 @@ impl LeadAnalysis {
 /// The extrema of `w` at `lo..=hi` (`1 <= lo`, `hi <= w.len() - 2`) written
 /// to `out` from index `count` on, one test per sample, each index written
 /// and kept only when the test holds; returns the new count.
+/// Where between two W_k samples, the last at or above the threshold
+/// (`inside`) and the first below it (`outside`), the line joining them
+/// meets `thr`, as the fraction 0..1 of the way from `inside`; both read
+/// signed along the maximum's sign `s` (so a >= thr > b). 1/2 when the two
+/// do not fall (the midpoint rule).
+fn crossing_fraction(s: f64, inside: f64, outside: f64, thr: f64) -> f64 {
+    let (a, b) = (s * inside, s * outside);
+    if a > b {
+        ((a - thr) / (a - b)).clamp(0.0, 1.0)
+    } else {
+        0.5
+    }
+}
+
 fn extrema_scalar(w: &[f64], lo: usize, hi: usize, out: &mut [usize], mut count: usize) -> usize {
     for (i, t) in (lo..=hi).zip(w[lo - 1..=hi + 1].windows(3)) {
         let (a, b, c) = (t[0], t[1], t[2]);
