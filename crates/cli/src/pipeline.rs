@@ -520,11 +520,12 @@ pub fn process_record(
         let dropped = tendline_detect::exclude_missing(&mut det, gaps, fs, &cfg.detect);
         let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
         let del = tendline_delineate::delineate_paced(&leads, fs, &qrs, stimuli, &cfg.delineate);
-        let meas = tendline_measure::measure_record(
+        let meas = tendline_measure::measure_record_paced(
             &leads,
             &names,
             fs,
             &det,
+            stimuli,
             sex,
             &cfg.measure,
             &cfg.delineate,

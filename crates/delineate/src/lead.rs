@@ -806,7 +806,14 @@ impl LeadAnalysis {
         } else {
             cfg.qrs_xi_end_neg
         };
-        let end_thr = (xi_end * w2[last].abs()).max(cfg.qrs_xi_end_rel * m_all);
+        let mut end_thr = xi_end * w2[last].abs();
+        // Not above a few times the lead's noise (see `qrs_end_noise_cap_k`),
+        // but never below the floor relative to the whole complex, which
+        // holds where there is no noise (a noise-free signal, a median beat).
+        if cfg.qrs_end_noise_cap_k > 0.0 {
+            end_thr = end_thr.min(cfg.qrs_end_noise_cap_k * self.noise(2));
+        }
+        let end_thr = end_thr.max(cfg.qrs_xi_end_rel * m_all);
         let end_hi = if last as isize > region_hi {
             wide_hi
         } else {
@@ -1658,6 +1665,86 @@ mod tests {
         }
         let m = (peaks.len() - 2) as f64;
         (on / m, end / m)
+    }
+
+    /// Slow oracle of the QRS end under `qrs_end_noise_cap_k`: on the W_2 of
+    /// one Gaussian R wave (the last lobe is the largest |W_2| after the
+    /// peak), the end is where |W_2| falls below max(min(ξ_end·|W_2[last]|,
+    /// k·noise), `qrs_xi_end_rel`·max|W_2|), linearly interpolated with
+    /// W_2[j] centred at j + 1/2.
+    fn oracle_qrs_end(la: &LeadAnalysis, peak: usize, cfg: &DelineateConfig) -> f64 {
+        let w2 = &la.w[1];
+        let span = la.ms_i(40.0) as usize;
+        let m_all = (peak - span..peak + span)
+            .map(|i| w2[i].abs())
+            .fold(0.0, f64::max);
+        let last = (peak..peak + span)
+            .max_by(|&a, &b| w2[a].abs().total_cmp(&w2[b].abs()))
+            .unwrap();
+        let xi = if w2[last] > 0.0 {
+            cfg.qrs_xi_end_pos
+        } else {
+            cfg.qrs_xi_end_neg
+        };
+        let mut thr = xi * w2[last].abs();
+        if cfg.qrs_end_noise_cap_k > 0.0 {
+            thr = thr.min(cfg.qrs_end_noise_cap_k * la.noise(2));
+        }
+        let thr = thr.max(cfg.qrs_xi_end_rel * m_all);
+        let i = (last + 1..).find(|&i| w2[i].abs() < thr).unwrap();
+        let (a, b) = (w2[i - 1].abs(), w2[i].abs());
+        i as f64 - 0.5 + (a - thr) / (a - b)
+    }
+
+    #[test]
+    fn qrs_end_threshold_is_capped_at_a_multiple_of_the_noise() {
+        // The invented beats of `noisy_beats` with 0.005 mV of noise: for the
+        // 1-mV R wave the relative threshold lies above 3 times the W_2
+        // noise, so the cap binds and the end moves later (measured: one
+        // sample on every inner beat; 0.3 sample on average at 0.01 mV).
+        let (la, peaks, mut cfg) = noisy_beats(0.005);
+        let mut moved = 0.0;
+        for k in 1..peaks.len() - 1 {
+            let (p, n) = (Some(peaks[k - 1]), Some(peaks[k + 1]));
+            let end = |cfg: &DelineateConfig| {
+                la.beat(peaks[k], p, n, None, None, cfg)
+                    .qrs_end
+                    .expect("QRS end")
+                    .sample as f64
+            };
+            cfg.qrs_end_noise_cap_k = 3.0;
+            let capped = end(&cfg);
+            let want = oracle_qrs_end(&la, peaks[k], &cfg);
+            assert!(
+                (capped - want).abs() <= 0.5 + 1e-9,
+                "beat {k}: {capped} vs {want}"
+            );
+            cfg.qrs_end_noise_cap_k = 0.0;
+            let free = end(&cfg);
+            let want = oracle_qrs_end(&la, peaks[k], &cfg);
+            assert!(
+                (free - want).abs() <= 0.5 + 1e-9,
+                "beat {k}: {free} vs {want}"
+            );
+            moved += capped - free;
+        }
+        let moved = moved / (peaks.len() - 2) as f64;
+        assert!(moved >= 0.75, "mean move {moved} samples");
+        // Noise-free: the floor relative to the complex holds, so the end
+        // stays where `qrs_xi_end_rel` puts it instead of running on.
+        let (clean, peaks, mut cfg) = noisy_beats(0.0);
+        cfg.qrs_end_noise_cap_k = 3.0;
+        let (p, n) = (Some(peaks[3]), Some(peaks[5]));
+        let e = clean
+            .beat(peaks[4], p, n, None, None, &cfg)
+            .qrs_end
+            .unwrap();
+        let want = oracle_qrs_end(&clean, peaks[4], &cfg);
+        assert!(
+            (e.sample as f64 - want).abs() <= 0.5 + 1e-9,
+            "{} vs {want}",
+            e.sample
+        );
     }
 
     #[test]

@@ -90,6 +90,7 @@ mod test_marks {
 }
 
 pub use config::{DelineateConfig, PairRule, PeakCrossing};
+pub use paced::onsets_after_stimuli;
 
 use serde::{Deserialize, Serialize};
 

@@ -16,8 +16,9 @@
 use crate::{BeatMarks, DelineateConfig, Mark};
 
 /// Apply the rule of the module docs to the beats of one lead (or the
-/// global marks) at input rate `fs`.
-pub(crate) fn onsets_after_stimuli(
+/// global marks) at input rate `fs`. Public for the median beats of the
+/// measurement stage, whose stimulus ends are in median-beat samples.
+pub fn onsets_after_stimuli(
     marks: &mut [BeatMarks],
     stimulus_ends: &[usize],
     fs: f64,

@@ -154,7 +154,8 @@ fn qtdb_global_marks_against_annotator_1() {
         // 3.5 -> 4.1 ms, SD 21.4 -> 20.6 ms; with the multi-lead envelope
         // bounds (`global_env_qrs_end_*`, `global_env_qrs_scale` 3, pair rule
         // `confident`): mean 3.54, SD 18.16 ms. With the wide-complex
-        // extension (`qrs_post_wide_ms` 160): mean 4.74, SD 15.97 ms.
+        // extension (`qrs_post_wide_ms` 160): mean 4.74, SD 15.97 ms. With
+        // `qrs_end_noise_cap_k` 3: mean 4.45, SD 15.04 ms.
         ("qrs_end", 99.8, 5.0, 15.6),
         // T peak and T ends with `t_window_early_after_qrs_end_ms` 20: T peak
         // Se 99.72 %, mean 5.1, SD 36.8 ms; T end Se 99.66 %, mean 0.3, SD

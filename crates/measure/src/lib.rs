@@ -265,7 +265,42 @@ pub fn measure_record(
     cfg: &MeasureConfig,
     dcfg: &tendline_delineate::DelineateConfig,
 ) -> Result<RecordMeasures, MeasureError> {
-    measure_record_with(
+    measure_record_paced(leads, lead_names, fs, detection, &[], sex, cfg, dcfg)
+}
+
+/// [`measure_record`] for a record with pacing stimuli: `stimulus_ends`
+/// (input samples one past each stimulus, sorted ascending, as the
+/// delineation stage's `delineate_paced` takes them). A median beat built
+/// from paced beats holds their stimulus at the median of the beats'
+/// stimulus-to-fiducial offsets, and its QRS onsets are held after it by the
+/// delineation stage's rule (`tendline_delineate::onsets_after_stimuli`,
+/// `qrs_stimulus_latency_ms`).
+#[allow(clippy::too_many_arguments)]
+pub fn measure_record_paced(
+    leads: &[&[f64]],
+    lead_names: &[String],
+    fs: f64,
+    detection: &Detection,
+    stimulus_ends: &[usize],
+    sex: Option<Sex>,
+    cfg: &MeasureConfig,
+    dcfg: &tendline_delineate::DelineateConfig,
+) -> Result<RecordMeasures, MeasureError> {
+    let median_cfg;
+    let dcfg = if dcfg.median_beat_noise_caps {
+        dcfg
+    } else {
+        // See `median_beat_noise_caps`.
+        median_cfg = tendline_delineate::DelineateConfig {
+            qrs_end_noise_cap_k: 0.0,
+            ..dcfg.clone()
+        };
+        &median_cfg
+    };
+    let hold = |m: &mut BeatMarks, stimulus_end: usize| {
+        tendline_delineate::onsets_after_stimuli(std::slice::from_mut(m), &[stimulus_end], fs, dcfg)
+    };
+    measure_record_inner(
         leads,
         lead_names,
         fs,
@@ -273,7 +308,18 @@ pub fn measure_record(
         sex,
         cfg,
         |x, fs, qrs, i| tendline_delineate::delineate_lead_beat(x, fs, qrs, i, dcfg),
+        Pacing {
+            stimulus_ends,
+            hold: &hold,
+        },
     )
+}
+
+/// Pacing stimuli of a record and the rule that holds a median beat's QRS
+/// onset after its stimulus (`hold(marks, stimulus end in median-beat samples)`).
+struct Pacing<'a> {
+    stimulus_ends: &'a [usize],
+    hold: &'a dyn Fn(&mut BeatMarks, usize),
 }
 
 /// [`measure_record`] with any single-lead delineator `delineate(x, fs, qrs, i) -> marks of
@@ -286,7 +332,31 @@ pub fn measure_record_with<D>(
     detection: &Detection,
     sex: Option<Sex>,
     cfg: &MeasureConfig,
+    delineate: D,
+) -> Result<RecordMeasures, MeasureError>
+where
+    D: FnMut(&[f64], f64, &[usize], usize) -> BeatMarks,
+{
+    let none = |_: &mut BeatMarks, _: usize| {};
+    let pacing = Pacing {
+        stimulus_ends: &[],
+        hold: &none,
+    };
+    measure_record_inner(
+        leads, lead_names, fs, detection, sex, cfg, delineate, pacing,
+    )
+}
+
+#[allow(clippy::too_many_arguments)]
+fn measure_record_inner<D>(
+    leads: &[&[f64]],
+    lead_names: &[String],
+    fs: f64,
+    detection: &Detection,
+    sex: Option<Sex>,
+    cfg: &MeasureConfig,
     mut delineate: D,
+    pacing: Pacing,
 ) -> Result<RecordMeasures, MeasureError>
 where
     D: FnMut(&[f64], f64, &[usize], usize) -> BeatMarks,
@@ -340,6 +410,7 @@ where
         cfg,
         usable: &usable,
         n,
+        pacing,
     };
     let mut windows = Vec::new();
     let w = (cfg.window_s * fs).round() as usize;
@@ -368,6 +439,7 @@ struct Ctx<'a> {
     cfg: &'a MeasureConfig,
     usable: &'a [bool],
     n: usize,
+    pacing: Pacing<'a>,
 }
 
 /// Whether every value is finite. The exponent test without early exit
@@ -598,6 +670,8 @@ where
     let used_beats: Vec<usize> = accepted.iter().map(|&k| candidates[keep_pos[k]]).collect();
     let used_pos: Vec<f64> = accepted.iter().map(|&k| pos[keep_pos[k]]).collect();
 
+    let stimulus_in_median = median_stimulus_end(ctx.pacing.stimulus_ends, &used_pos, before);
+
     let rr_samples = if irregular {
         let v: Vec<f64> = used_beats.iter().filter_map(|&i| prev_rr(i)).collect();
         (!v.is_empty()).then(|| v.iter().sum::<f64>() / v.len() as f64)
@@ -643,6 +717,9 @@ where
                 continue;
             }
             lm.marks = delineate_median(&m, before, tile_rr, fs, delineate);
+            if let Some(e) = stimulus_in_median {
+                (ctx.pacing.hold)(&mut lm.marks, e);
+            }
             let d = |a: &Option<Mark>, b: &Option<Mark>| {
                 a.zip(*b)
                     .map(|(a, b)| (b.sample as f64 - a.sample as f64) / fs * 1000.0)
@@ -744,6 +821,32 @@ where
         leads: leads_out,
         median,
     }
+}
+
+/// Where the pacing stimulus of a median beat ends, in median-beat samples
+/// (the fiducial at `before`): for each beat of the median (aligned fiducial
+/// `pos`, input samples), the latest stimulus end at or before its fiducial
+/// and at most `before` samples before it. When more than half of the beats
+/// have one, the median of their fiducial-minus-stimulus-end offsets, rounded,
+/// counted back from `before`; else None (a median of mostly unpaced beats
+/// has no stimulus to hold its onset after).
+fn median_stimulus_end(stimulus_ends: &[usize], pos: &[f64], before: usize) -> Option<usize> {
+    if stimulus_ends.is_empty() || pos.is_empty() {
+        return None;
+    }
+    let mut offsets: Vec<f64> = pos
+        .iter()
+        .filter_map(|&p| {
+            let k = stimulus_ends.partition_point(|&e| e as f64 <= p);
+            let e = *stimulus_ends.get(k.checked_sub(1)?)? as f64;
+            (p - e <= before as f64).then_some(p - e)
+        })
+        .collect();
+    if 2 * offsets.len() <= pos.len() {
+        return None;
+    }
+    let off = align::median(&mut offsets);
+    Some((before as f64 - off).round().max(0.0) as usize)
 }
 
 /// Flag each window with a lead whose rate-corrected QT departs from the same

@@ -724,3 +724,89 @@ fn broadband_noise_counts_only_the_beat_outside_its_qrs() {
     // Nothing left to measure: none.
     assert_eq!(residual_noise(&m, refs(), (40, 45), Some((30, 60))), None);
 }
+
+#[test]
+fn median_stimulus_end_is_the_median_offset_of_the_paced_beats() {
+    // Hand-worked: stimuli end 30, 30 and 31 samples before the aligned
+    // fiducials, so 170 of a median beat whose fiducial is at 200.
+    let ends = [100, 600, 1100];
+    assert_eq!(
+        median_stimulus_end(&ends, &[130.0, 630.0, 1131.0], 200),
+        Some(170)
+    );
+    // Two of three beats paced (more than half): their median offset 30.5 rounds to 31 back.
+    assert_eq!(
+        median_stimulus_end(&[100, 600], &[130.0, 631.0, 1400.0], 200),
+        Some(170)
+    );
+    // A stimulus further back than the median beat's start belongs to no beat;
+    // one paced beat of three (not more than half): no stimulus.
+    assert_eq!(
+        median_stimulus_end(&[100], &[130.0, 630.0, 1130.0], 200),
+        None
+    );
+    assert_eq!(median_stimulus_end(&[100], &[400.0], 200), None);
+    assert_eq!(median_stimulus_end(&[], &[130.0], 200), None);
+}
+
+#[test]
+fn median_beat_qrs_onsets_are_held_after_the_pacing_stimulus() {
+    // Invented paced record: every beat's stimulus ends 7 samples (14 ms) before
+    // its QRS peak, while the stand-in delineator puts the onset where the
+    // Gaussian QRS crosses 5 % of its peak, K·σ before it (19.6 / 22.0 ms, about
+    // 10 / 11 samples, for the two leads' σ of 8 / 9 ms).
+    let sh = shapes();
+    let r = record(10.0, 0.8, 0.003, &sh, 11);
+    let ends: Vec<usize> = r
+        .times
+        .iter()
+        .map(|&c| (c * FS).round() as usize - 7)
+        .collect();
+    let with_peak = |x: &[f64], fs: f64, qrs: &[usize], i: usize| {
+        let mut b = threshold_beat(x, fs, qrs, i);
+        b.qrs_peak = b.qrs_on.map(|_| Mark {
+            sample: qrs[i],
+            confidence: 1.0,
+        });
+        b
+    };
+    let leads: Vec<&[f64]> = r.leads.iter().map(|l| l.as_slice()).collect();
+    let cfg = MeasureConfig::default();
+    let dcfg = tendline_delineate::DelineateConfig::default();
+    let hold = |m: &mut BeatMarks, e: usize| {
+        tendline_delineate::onsets_after_stimuli(std::slice::from_mut(m), &[e], FS, &dcfg)
+    };
+    let measure = |stimulus_ends: &[usize]| {
+        measure_record_inner(
+            &leads,
+            &names(leads.len()),
+            FS,
+            &r.det,
+            None,
+            &cfg,
+            with_peak,
+            Pacing {
+                stimulus_ends,
+                hold: &hold,
+            },
+        )
+        .unwrap()
+    };
+    let before = ms_to_samples(cfg.beat_before_ms, FS);
+    let (free, paced) = (measure(&[]), measure(&ends));
+    let w = (&free.windows[0], &paced.windows[0]);
+    for (l, s) in sh.iter().enumerate() {
+        let on = |w: &WindowMeasure| w.leads[l].marks.qrs_on.unwrap().sample;
+        let free_on = before - (K * s.qrs_sigma * FS).round() as usize;
+        assert!(on(w.0).abs_diff(free_on) <= 1, "{} {free_on}", on(w.0));
+        assert!(on(w.1).abs_diff(before - 7) <= 1, "{}", on(w.1));
+        // The end of the complex and the T end do not move.
+        assert_eq!(w.0.leads[l].marks.t_end, w.1.leads[l].marks.t_end);
+    }
+    // The QRS duration (earliest onset across leads) and the QT shorten by the
+    // earliest onset's move: from about 11 to 7 samples before the peak, 8 ms
+    // (±1 sample each side).
+    let d = w.0.qrs_ms.unwrap() - w.1.qrs_ms.unwrap();
+    assert!((d - 8.0).abs() <= 4.0 + 1e-9, "{d}");
+    assert!(w.0.qt_ms.unwrap() > w.1.qt_ms.unwrap());
+}
