@@ -166,7 +166,7 @@ def test_annotation_files_read_with_wfdb(run):
 def test_pacing_spikes_match_the_raw_signal(run):
     # LUDB record 8's header says "UNIpolar ventricular pacing"; record 7 is not
     # paced. Each stored stretch is checked on the samples as the `wfdb` package
-    # reads them: in at least 3/4 of the leads some sample departs by >= 0.1 mV
+    # reads them: in at least half of the leads some sample departs by >= 0.1 mV
     # from the line joining the samples on either side (filter.pacing_min_mv and
     # filter.pacing_min_lead_fraction, defaults). Each lead's stretch is at most
     # 6 ms (filter.pacing_max_width_ms); the stored one is the union over leads
@@ -184,7 +184,7 @@ def test_pacing_spikes_match_the_raw_signal(run):
         k = np.arange(1, e - s + 1) / (e - s + 1)
         line = x[s - 1][None, :] + (x[e] - x[s - 1])[None, :] * k[:, None]
         dev = np.abs(x[s:e] - line).max(axis=0)
-        assert (dev >= 0.1).sum() >= 0.75 * x.shape[1], (s, e, dev)
+        assert (dev >= 0.1).sum() >= 0.5 * x.shape[1], (s, e, dev)
     with open(out / "summary.csv") as fh:
         rows = {r["record"]: r for r in csv.DictReader(fh)}
     assert rows["7"]["pacing_spikes"] == "0"

@@ -35,8 +35,9 @@
 //! of about ten milliseconds (LUDB 74 has one of 12 ms: six samples at
 //! 500 Hz, about 0.7 mV in every lead), abrupt at both ends, which no wave is.
 //!
-//! A stretch is a pacing spike when at least `min_lead_fraction` of the leads
-//! hold a spike within one sample of it. Every lead is then blanked over the
+//! A stretch is a pacing spike when at least `min_lead_fraction` of the leads,
+//! and at least `min_leads` of them (or all, when there are fewer), hold a
+//! spike within one sample of it. Every lead is then blanked over the
 //! union of those stretches: the samples are replaced by the straight line
 //! between the last sample before and the first sample after.
 //!
@@ -54,6 +55,9 @@ pub struct SpikeRule {
     pub flank_ratio: f64,
     /// Share of the leads that must hold the spike (0 to 1).
     pub min_lead_fraction: f64,
+    /// Fewest leads that must hold the spike, whatever the share (capped at
+    /// the number of leads): a lone lead's spike may be noise.
+    pub min_leads: usize,
     /// Length of the quiet flanks on either side, in ms (at least one sample).
     pub flank_ms: f64,
     /// Smallest step into the spike, as a fraction of its departure.
@@ -204,9 +208,9 @@ pub fn find_spikes(leads: &[&[f64]], fs: f64, rule: &SpikeRule) -> Vec<Spike> {
         all.extend(lead_spikes(x, fs, rule).into_iter().map(|(s, e)| (s, e, l)));
     }
     all.sort_unstable();
-    let need = (rule.min_lead_fraction * leads.len() as f64)
-        .ceil()
-        .max(1.0) as usize;
+    let need = ((rule.min_lead_fraction * leads.len() as f64).ceil() as usize)
+        .max(rule.min_leads.min(leads.len()))
+        .max(1);
     let mut out = Vec::new();
     let mut i = 0;
     while i < all.len() {
@@ -261,6 +265,7 @@ mod tests {
             min_mv: 0.1,
             flank_ratio: 0.3,
             min_lead_fraction,
+            min_leads: 1,
             flank_ms: 4.0,
             min_jump_ratio: 0.5,
             max_pulse_ms: 0.0,
@@ -374,6 +379,26 @@ mod tests {
         assert!(find_spikes(&leads, 500.0, &rule(6.0, 0.75)).is_empty());
         assert_eq!(
             find_spikes(&leads, 500.0, &rule(6.0, 0.5)),
+            vec![Spike { start: 12, end: 13 }]
+        );
+        // ... but not with two leads asked for (`min_leads`).
+        let two = SpikeRule {
+            min_leads: 2,
+            ..rule(6.0, 0.5)
+        };
+        assert!(find_spikes(&leads, 500.0, &two).is_empty());
+        // Twelve leads, half of them asked for: a spike in six is one, in five
+        // is none; a lone lead of a single-lead record needs only itself.
+        let twelve = |n: usize| -> Vec<Spike> {
+            let leads: Vec<&[f64]> = (0..12)
+                .map(|l| if l < n { x.as_slice() } else { flat.as_slice() })
+                .collect();
+            find_spikes(&leads, 500.0, &two)
+        };
+        assert_eq!(twelve(6), vec![Spike { start: 12, end: 13 }]);
+        assert!(twelve(5).is_empty());
+        assert_eq!(
+            find_spikes(&[x.as_slice()], 500.0, &two),
             vec![Spike { start: 12, end: 13 }]
         );
         // One sample apart in the two leads: one spike covering both.

@@ -26,6 +26,12 @@
 //! - Beats labelled unclassified by detection are averaged with the normal beats
 //!   (`use_unclassified_beats`), ventricular beats never; both pass the same RR and
 //!   correlation tests.
+//! - Paced records ([`measure_record_paced`]): stimulus ends are input samples one
+//!   past each stimulus; a median beat whose beats are mostly paced holds its
+//!   stimulus at the median stimulus-to-fiducial offset, and its QRS onsets are
+//!   held after it by the delineation stage's rule. Median beats are delineated
+//!   without the QRS-end noise cap (`median_beat_noise_caps`): their noise is what
+//!   averaging left.
 
 pub mod align;
 pub mod classify;
