@@ -303,9 +303,6 @@ pub fn measure_record_paced(
         };
         &median_cfg
     };
-    let hold = |m: &mut BeatMarks, stimulus_end: usize| {
-        tendline_delineate::onsets_after_stimuli(std::slice::from_mut(m), &[stimulus_end], fs, dcfg)
-    };
     measure_record_inner(
         leads,
         lead_names,
@@ -316,16 +313,17 @@ pub fn measure_record_paced(
         |x, fs, qrs, i| tendline_delineate::delineate_lead_beat(x, fs, qrs, i, dcfg),
         Pacing {
             stimulus_ends,
-            hold: &hold,
+            rule: dcfg,
         },
     )
 }
 
-/// Pacing stimuli of a record and the rule that holds a median beat's QRS
-/// onset after its stimulus (`hold(marks, stimulus end in median-beat samples)`).
+/// Pacing stimuli of a record and the delineation settings of the rule that
+/// holds a median beat's QRS onset after its stimulus
+/// (`tendline_delineate::onsets_after_stimuli`).
 struct Pacing<'a> {
     stimulus_ends: &'a [usize],
-    hold: &'a dyn Fn(&mut BeatMarks, usize),
+    rule: &'a tendline_delineate::DelineateConfig,
 }
 
 /// [`measure_record`] with any single-lead delineator `delineate(x, fs, qrs, i) -> marks of
@@ -343,10 +341,11 @@ pub fn measure_record_with<D>(
 where
     D: FnMut(&[f64], f64, &[usize], usize) -> BeatMarks,
 {
-    let none = |_: &mut BeatMarks, _: usize| {};
+    // No stimuli: the rule is never applied, its settings are the defaults.
+    let rule = tendline_delineate::DelineateConfig::default();
     let pacing = Pacing {
         stimulus_ends: &[],
-        hold: &none,
+        rule: &rule,
     };
     measure_record_inner(
         leads, lead_names, fs, detection, sex, cfg, delineate, pacing,
@@ -724,7 +723,12 @@ where
             }
             lm.marks = delineate_median(&m, before, tile_rr, fs, delineate);
             if let Some(e) = stimulus_in_median {
-                (ctx.pacing.hold)(&mut lm.marks, e);
+                tendline_delineate::onsets_after_stimuli(
+                    std::slice::from_mut(&mut lm.marks),
+                    &[e],
+                    fs,
+                    ctx.pacing.rule,
+                );
             }
             let d = |a: &Option<Mark>, b: &Option<Mark>| {
                 a.zip(*b)

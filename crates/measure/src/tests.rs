@@ -773,9 +773,6 @@ fn median_beat_qrs_onsets_are_held_after_the_pacing_stimulus() {
     let leads: Vec<&[f64]> = r.leads.iter().map(|l| l.as_slice()).collect();
     let cfg = MeasureConfig::default();
     let dcfg = tendline_delineate::DelineateConfig::default();
-    let hold = |m: &mut BeatMarks, e: usize| {
-        tendline_delineate::onsets_after_stimuli(std::slice::from_mut(m), &[e], FS, &dcfg)
-    };
     let measure = |stimulus_ends: &[usize]| {
         measure_record_inner(
             &leads,
@@ -787,7 +784,7 @@ fn median_beat_qrs_onsets_are_held_after_the_pacing_stimulus() {
             with_peak,
             Pacing {
                 stimulus_ends,
-                hold: &hold,
+                rule: &dcfg,
             },
         )
         .unwrap()
