@@ -197,6 +197,38 @@ fn best_lead(cands: &[(usize, Mark)]) -> Option<(usize, Mark)> {
 /// otherwise the candidate inside them nearest `expect` (or the most
 /// confident one); otherwise `chosen` unchanged. `expect` is called only
 /// when `chosen` lies outside.
+/// The T peak of the lead whose T stands tallest above its isoelectric
+/// level, among those above it (`global_t_peak_tallest`); `None` when no
+/// lead's T peak lies above its level or the leads' signals are not at hand.
+fn tallest_t(
+    t_peaks: &[(usize, Mark)],
+    beats: &[&BeatMarks],
+    leads: &[Option<&LeadAnalysis>],
+    fs: f64,
+    cfg: &DelineateConfig,
+) -> Option<(usize, Mark)> {
+    let gate = cfg.global_t_peak_tallest_gate_ms * fs / 1000.0;
+    let median = (t_peaks.len() >= 3).then(|| {
+        let mut v: Vec<f64> = t_peaks.iter().map(|(_, m)| m.sample as f64).collect();
+        v.sort_by(f64::total_cmp);
+        let h = v.len() / 2;
+        if v.len() % 2 == 1 {
+            v[h]
+        } else {
+            0.5 * (v[h - 1] + v[h])
+        }
+    });
+    t_peaks
+        .iter()
+        .filter(|(_, m)| median.is_none_or(|c| (m.sample as f64 - c).abs() <= gate))
+        .filter_map(|&(l, m)| {
+            let h = leads.get(l).copied().flatten()?.t_height(beats[l], cfg)?;
+            (h > 0.0).then_some((h, (l, m)))
+        })
+        .max_by(|a, b| a.0.total_cmp(&b.0))
+        .map(|(_, t)| t)
+}
+
 fn inside_or(
     chosen: Option<(usize, Mark)>,
     cands: &[(usize, Mark)],
@@ -455,13 +487,20 @@ pub(crate) fn combine(
             } else {
                 None
             };
-            let t_peak_lead = match t_expect {
-                Some(e) => t_peaks.iter().copied().min_by(|a, b| {
+            // The tallest upright T, when one is (`global_t_peak_tallest`).
+            let tallest = if cfg.global_t_peak_tallest && t_peaks.len() >= 2 {
+                tallest_t(&t_peaks, &beats, leads, fs, cfg)
+            } else {
+                None
+            };
+            let t_peak_lead = match (tallest, t_expect) {
+                (Some(t), _) => Some(t),
+                (None, Some(e)) => t_peaks.iter().copied().min_by(|a, b| {
                     (a.1.sample as f64 - e)
                         .abs()
                         .total_cmp(&(b.1.sample as f64 - e).abs())
                 }),
-                _ => best_lead(&t_peaks),
+                (None, None) => best_lead(&t_peaks),
             };
             // Boundaries and peak come from possibly different leads; a peak
             // outside its own boundaries (a lead that took another wave) is
@@ -1225,5 +1264,151 @@ mod tests {
                 .sample,
             530
         );
+    }
+    /// Two leads with a T wave (Gaussian, 0.2 mV at sample 600 on lead 0 and
+    /// `h1` mV at 640 on lead 1) on a baseline of `base` mV, the lead marks
+    /// read from them: T ends 40 and 50 samples after the peaks, 60 ms
+    /// apart (beyond `global_outlier_ms`).
+    fn t_leads(h1: f64, base: f64) -> (Vec<Vec<f64>>, Vec<Vec<BeatMarks>>) {
+        let g = |i: usize, c: usize, a: f64| {
+            let t = (i as f64 - c as f64) / 12.0;
+            base + a * (-0.5 * t * t).exp()
+        };
+        let sig = vec![
+            (0..1000).map(|i| g(i, 600, 0.2)).collect(),
+            (0..1000).map(|i| g(i, 640, h1)).collect(),
+        ];
+        let beat = |pk: usize, end: usize, conf: f32, morph| BeatMarks {
+            t_peak: Some(m(pk, conf)),
+            t_end: Some(m(end, conf)),
+            t_end_wavelet: Some(m(end, conf)),
+            t_end_tangent: Some(m(end, conf)),
+            t_end_area: Some(m(end, conf)),
+            t_morphology: morph,
+            ..qrs_beat(500, 480, 520)
+        };
+        let inv = if h1 < 0.0 {
+            TMorphology::Inverted
+        } else {
+            TMorphology::Upright
+        };
+        // Lead 0 is the more confident one, so the confidence rule (no
+        // neighbouring beats to give an expected place) would keep it.
+        let per_lead = vec![
+            vec![beat(600, 640, 0.9, TMorphology::Upright)],
+            vec![beat(640, 690, 0.6, inv)],
+        ];
+        (sig, per_lead)
+    }
+
+    #[test]
+    fn height_of_the_t_peak_is_read_above_the_pr_level() {
+        let cfg = DelineateConfig::default();
+        let (sig, per_lead) = t_leads(0.5, 0.1);
+        let la = LeadAnalysis::new(&sig[1], 250.0, &cfg);
+        // Oracle: the sample at the peak minus the median of the 20 ms (5
+        // samples at 250 Hz) before the QRS onset (480); the Gaussian is
+        // 0 there to 1e-30, so the level is the 0.1 mV baseline.
+        let h = la.t_height(&per_lead[1][0], &cfg).unwrap();
+        assert!((h - 0.5).abs() < 1e-9, "{h}");
+        let mut no_on = per_lead[1][0].clone();
+        no_on.qrs_on = None;
+        assert_eq!(la.t_height(&no_on, &cfg), None);
+    }
+
+    #[test]
+    fn tallest_upright_t_gives_the_global_peak() {
+        let run = |h1: f64, cfg: &DelineateConfig| {
+            let (sig, per_lead) = t_leads(h1, 0.1);
+            let las: Vec<LeadAnalysis> = sig
+                .iter()
+                .map(|x| LeadAnalysis::new(x, 250.0, cfg))
+                .collect();
+            let refs: Vec<Option<&LeadAnalysis>> = las.iter().map(Some).collect();
+            let g = combine(&per_lead, &refs, 1, 250.0, cfg)[0].clone();
+            (g.t_peak.unwrap().sample, g.t_end.unwrap().sample)
+        };
+        // The T ends 60 samples apart are both kept as the latest (outer
+        // rule), so only the peak's choice is seen.
+        let on = DelineateConfig {
+            global_pair_t: PairRule::Outer,
+            ..DelineateConfig::default()
+        };
+        let run_neg = |cfg: &DelineateConfig| {
+            let (sig, mut per_lead) = t_leads(-0.5, 0.1);
+            // Lead 0 mirrored about its 0.1 mV baseline: both T waves inverted.
+            let mut sig = sig;
+            sig[0] = sig[0].iter().map(|v| 0.2 - v).collect();
+            for l in per_lead.iter_mut() {
+                l[0].t_morphology = TMorphology::Inverted;
+            }
+            let las: Vec<LeadAnalysis> = sig
+                .iter()
+                .map(|x| LeadAnalysis::new(x, 250.0, cfg))
+                .collect();
+            let refs: Vec<Option<&LeadAnalysis>> = las.iter().map(Some).collect();
+            combine(&per_lead, &refs, 1, 250.0, cfg)[0]
+                .t_peak
+                .unwrap()
+                .sample
+        };
+        // Lead 1's T (0.5 mV) is the taller: its peak, inside the span that
+        // the T ends leave (the latest, with the outer pair rule).
+        assert_eq!(run(0.5, &on), (640, 690));
+        // Lead 1 lower (0.1 mV): lead 0's peak.
+        assert_eq!(run(0.1, &on), (600, 690));
+        // Lead 1 inverted (-0.5 mV, larger in size): the upright lead 0.
+        assert_eq!(run(-0.5, &on), (600, 690));
+        // Rule off: the more confident lead 0.
+        let off = DelineateConfig {
+            global_t_peak_tallest: false,
+            ..on.clone()
+        };
+        assert_eq!(run(0.5, &off), (600, 690));
+        // No T upright on any lead: the rule has nothing to choose from and
+        // the confidence rule gives lead 0's (less confident inverted) peak.
+        assert_eq!(run_neg(&on), 600);
+    }
+
+    #[test]
+    fn with_three_leads_only_peaks_near_their_median_compete() {
+        let cfg = DelineateConfig::default();
+        let pk = |s: usize, c: f32| (0usize, m(s, c));
+        // Median 600; gate 10 ms = 2.5 samples at 250 Hz.
+        let t_peaks = [pk(600, 0.9), (1, m(602, 0.9)), (2, m(640, 0.9))];
+        let sig: Vec<Vec<f64>> = [(600, 0.2), (602, 0.3), (640, 0.9)]
+            .iter()
+            .map(|&(c, a)| {
+                (0..1000)
+                    .map(|i| {
+                        let t = (i as f64 - c as f64) / 12.0;
+                        a * (-0.5 * t * t).exp()
+                    })
+                    .collect()
+            })
+            .collect();
+        let las: Vec<LeadAnalysis> = sig
+            .iter()
+            .map(|x| LeadAnalysis::new(x, 250.0, &cfg))
+            .collect();
+        let refs: Vec<Option<&LeadAnalysis>> = las.iter().map(Some).collect();
+        let beats: Vec<BeatMarks> = t_peaks
+            .iter()
+            .map(|&(_, p)| BeatMarks {
+                t_peak: Some(p),
+                ..qrs_beat(500, 480, 520)
+            })
+            .collect();
+        let b: Vec<&BeatMarks> = beats.iter().collect();
+        // The tallest (lead 2) lies 40 samples from the median: out; of the
+        // two near it, lead 1 is the taller.
+        let got = tallest_t(&t_peaks, &b, &refs, 250.0, &cfg).unwrap();
+        assert_eq!(got.0, 1);
+        // Without the gate (a wide one), lead 2.
+        let wide = DelineateConfig {
+            global_t_peak_tallest_gate_ms: 1000.0,
+            ..DelineateConfig::default()
+        };
+        assert_eq!(tallest_t(&t_peaks, &b, &refs, 250.0, &wide).unwrap().0, 2);
     }
 }

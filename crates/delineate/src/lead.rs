@@ -556,6 +556,19 @@ impl LeadAnalysis {
         }
     }
 
+    /// Height (mV) of the beat's T peak above the isoelectric level, the
+    /// median of the `baseline_window_ms` before its QRS onset (the level
+    /// the tangent method uses); negative below it. `None` without a T peak
+    /// or a QRS onset.
+    pub(crate) fn t_height(&self, b: &BeatMarks, cfg: &DelineateConfig) -> Option<f64> {
+        let peak = (b.t_peak?.sample as f64 / self.ratio).round() as isize;
+        let on = (b.qrs_on?.sample as f64 / self.ratio).floor() as isize;
+        let level = self.level(on - self.ms_i(cfg.baseline_window_ms), on)?;
+        (0..self.len())
+            .contains(&peak)
+            .then(|| self.x[peak as usize] - level)
+    }
+
     /// Median level of the signal in `[a, b)` (isoelectric estimate).
     fn level(&self, a: isize, b: isize) -> Option<f64> {
         let a = a.max(0) as usize;
