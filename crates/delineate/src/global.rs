@@ -208,6 +208,35 @@ fn tallest_t(
     cfg: &DelineateConfig,
 ) -> Option<(usize, Mark)> {
     let gate = cfg.global_t_peak_tallest_gate_ms * fs / 1000.0;
+    tallest(t_peaks, gate, &|l| {
+        leads.get(l).copied().flatten()?.t_height(beats[l], cfg)
+    })
+}
+
+/// The same rule for the P wave (`global_p_peak_tallest`): the P peak of the
+/// lead whose P stands tallest above the level before its onset.
+fn tallest_p(
+    p_peaks: &[(usize, Mark)],
+    beats: &[&BeatMarks],
+    leads: &[Option<&LeadAnalysis>],
+    fs: f64,
+    cfg: &DelineateConfig,
+) -> Option<(usize, Mark)> {
+    let gate = cfg.global_p_peak_tallest_gate_ms * fs / 1000.0;
+    tallest(p_peaks, gate, &|l| {
+        leads.get(l).copied().flatten()?.p_height(beats[l], cfg)
+    })
+}
+
+/// Of `peaks` (lead, mark), the one whose `height(lead)` is the largest
+/// positive value; with three leads or more only peaks within `gate`
+/// samples of the median peak take part.
+fn tallest(
+    peaks: &[(usize, Mark)],
+    gate: f64,
+    height: &dyn Fn(usize) -> Option<f64>,
+) -> Option<(usize, Mark)> {
+    let t_peaks = peaks;
     let median = (t_peaks.len() >= 3).then(|| {
         let mut v: Vec<f64> = t_peaks.iter().map(|(_, m)| m.sample as f64).collect();
         v.sort_by(f64::total_cmp);
@@ -222,7 +251,7 @@ fn tallest_t(
         .iter()
         .filter(|(_, m)| median.is_none_or(|c| (m.sample as f64 - c).abs() <= gate))
         .filter_map(|&(l, m)| {
-            let h = leads.get(l).copied().flatten()?.t_height(beats[l], cfg)?;
+            let h = height(l)?;
             (h > 0.0).then_some((h, (l, m)))
         })
         .max_by(|a, b| a.0.total_cmp(&b.0))
@@ -527,8 +556,19 @@ pub(crate) fn combine(
                 g.t_morphology = beats[l].t_morphology;
             }
             let p_peaks = gather_l(&|m| m.p_peak);
-            g.p_peak =
-                inside_or(best_lead(&p_peaks), &p_peaks, g.p_on, g.p_end, &|| None).map(|x| x.1);
+            let p_tallest = if cfg.global_p_peak_tallest && p_peaks.len() >= 2 {
+                tallest_p(&p_peaks, &beats, leads, fs, cfg)
+            } else {
+                None
+            };
+            g.p_peak = inside_or(
+                p_tallest.or_else(|| best_lead(&p_peaks)),
+                &p_peaks,
+                g.p_on,
+                g.p_end,
+                &|| None,
+            )
+            .map(|x| x.1);
             let q_peaks = gather_l(&|m| m.qrs_peak);
             g.qrs_peak = inside_or(best_lead(&q_peaks), &q_peaks, g.qrs_on, g.qrs_end, &|| None)
                 .map(|x| x.1);
@@ -1410,5 +1450,60 @@ mod tests {
             ..DelineateConfig::default()
         };
         assert_eq!(tallest_t(&t_peaks, &b, &refs, 250.0, &wide).unwrap().0, 2);
+    }
+
+    #[test]
+    fn tallest_upright_p_gives_the_global_p_peak() {
+        // Two leads on a 0.1 mV baseline: a P wave (Gaussian) of 0.05 mV at
+        // sample 400 on lead 0 and of `h1` mV at 410 on lead 1; onsets 380
+        // and 390, ends 420 and 430; lead 0 the more confident.
+        let run = |h1: f64, cfg: &DelineateConfig| {
+            let g = |i: usize, c: usize, a: f64| {
+                let t = (i as f64 - c as f64) / 5.0;
+                0.1 + a * (-0.5 * t * t).exp()
+            };
+            let sig: Vec<Vec<f64>> = vec![
+                (0..1000).map(|i| g(i, 400, 0.05)).collect(),
+                (0..1000).map(|i| g(i, 410, h1)).collect(),
+            ];
+            let beat = |on: usize, pk: usize, end: usize, conf: f32| BeatMarks {
+                p_on: Some(m(on, conf)),
+                p_peak: Some(m(pk, conf)),
+                p_end: Some(m(end, conf)),
+                ..qrs_beat(500, 480, 520)
+            };
+            let per_lead = vec![
+                vec![beat(380, 400, 420, 0.9)],
+                vec![beat(390, 410, 430, 0.6)],
+            ];
+            let las: Vec<LeadAnalysis> = sig
+                .iter()
+                .map(|x| LeadAnalysis::new(x, 250.0, cfg))
+                .collect();
+            // Oracle of the height: the peak sample minus the median of the
+            // 20 ms (5 samples at 250 Hz, 385..390) before the onset; the
+            // Gaussian rises there, so the median is the middle one, 387.
+            let h = las[1].p_height(&per_lead[1][0], cfg).unwrap();
+            let want = g(410, 410, h1) - g(387, 410, h1);
+            assert!((h - want).abs() < 1e-12, "{h} vs {want}");
+            let refs: Vec<Option<&LeadAnalysis>> = las.iter().map(Some).collect();
+            combine(&per_lead, &refs, 1, 250.0, cfg)[0]
+                .p_peak
+                .unwrap()
+                .sample
+        };
+        let on = DelineateConfig::default();
+        // Lead 1's P (0.15 mV) is the taller: its peak.
+        assert_eq!(run(0.15, &on), 410);
+        // Lead 1's P lower (0.02 mV): lead 0's.
+        assert_eq!(run(0.02, &on), 400);
+        // Lead 1 inverted: the upright lead 0.
+        assert_eq!(run(-0.15, &on), 400);
+        // Rule off: the more confident lead 0 whatever the heights.
+        let off = DelineateConfig {
+            global_p_peak_tallest: false,
+            ..DelineateConfig::default()
+        };
+        assert_eq!(run(0.15, &off), 400);
     }
 }

@@ -569,6 +569,18 @@ impl LeadAnalysis {
             .then(|| self.x[peak as usize] - level)
     }
 
+    /// Height (mV) of the beat's P peak above the level of the
+    /// `baseline_window_ms` before its P onset (the end of the TP segment);
+    /// negative below it. `None` without a P peak or a P onset.
+    pub(crate) fn p_height(&self, b: &BeatMarks, cfg: &DelineateConfig) -> Option<f64> {
+        let peak = (b.p_peak?.sample as f64 / self.ratio).round() as isize;
+        let on = (b.p_on?.sample as f64 / self.ratio).floor() as isize;
+        let level = self.level(on - self.ms_i(cfg.baseline_window_ms), on)?;
+        (0..self.len())
+            .contains(&peak)
+            .then(|| self.x[peak as usize] - level)
+    }
+
     /// Median level of the signal in `[a, b)` (isoelectric estimate).
     fn level(&self, a: isize, b: isize) -> Option<f64> {
         let a = a.max(0) as usize;
