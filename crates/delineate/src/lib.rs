@@ -36,8 +36,12 @@
 //!   and for T ends an upright T is favoured, `global_t_upright_bonus_ms`;
 //!   for QRS ends a multi-lead wavelet envelope bounds how late a lead's
 //!   end may be and how early the global end may be, `global_env_qrs_*`);
-//!   peaks and the T morphology come from the lead with the highest
-//!   confidence for that mark. A lead P wave whose peak lies outside the
+//!   the P and T peaks (and the T morphology) come from the lead whose wave
+//!   stands tallest above its isoelectric level among the upright ones
+//!   (`global_p_peak_tallest`, `global_t_peak_tallest`; with three leads or
+//!   more among those near the leads' median peak), else, like the QRS
+//!   peak, from the lead with the highest confidence for that mark (T:
+//!   nearest where the neighbouring beats put it, `global_pair_t`). A lead P wave whose peak lies outside the
 //!   global P span is searched again near the other leads' P
 //!   (`lead_p_within_global`); each lead's P and QRS boundaries are then
 //!   held to the median offsets of the lead's neighbouring beats
