@@ -193,52 +193,48 @@ fn best_lead(cands: &[(usize, Mark)]) -> Option<(usize, Mark)> {
         })
 }
 
-/// `chosen` if it lies strictly between `on` and `end` (where given);
-/// otherwise the candidate inside them nearest `expect` (or the most
-/// confident one); otherwise `chosen` unchanged. `expect` is called only
-/// when `chosen` lies outside.
-/// The T peak of the lead whose T stands tallest above its isoelectric
-/// level, among those above it (`global_t_peak_tallest`); `None` when no
-/// lead's T peak lies above its level or the leads' signals are not at hand.
-fn tallest_t(
-    t_peaks: &[(usize, Mark)],
-    beats: &[&BeatMarks],
-    leads: &[Option<&LeadAnalysis>],
-    fs: f64,
-    cfg: &DelineateConfig,
-) -> Option<(usize, Mark)> {
-    let gate = cfg.global_t_peak_tallest_gate_ms * fs / 1000.0;
-    tallest(t_peaks, gate, &|l| {
-        leads.get(l).copied().flatten()?.t_height(beats[l], cfg)
-    })
+/// Which wave [`tallest`] reads.
+#[derive(Clone, Copy)]
+enum Wave {
+    P,
+    T,
 }
 
-/// The same rule for the P wave (`global_p_peak_tallest`): the P peak of the
-/// lead whose P stands tallest above the level before its onset.
-fn tallest_p(
-    p_peaks: &[(usize, Mark)],
-    beats: &[&BeatMarks],
-    leads: &[Option<&LeadAnalysis>],
-    fs: f64,
-    cfg: &DelineateConfig,
-) -> Option<(usize, Mark)> {
-    let gate = cfg.global_p_peak_tallest_gate_ms * fs / 1000.0;
-    tallest(p_peaks, gate, &|l| {
-        leads.get(l).copied().flatten()?.p_height(beats[l], cfg)
-    })
-}
-
-/// Of `peaks` (lead, mark), the one whose `height(lead)` is the largest
-/// positive value; with three leads or more only peaks within `gate`
-/// samples of the median peak take part.
+/// The peak of the lead whose wave stands tallest above its isoelectric
+/// level (`LeadAnalysis::height_above_level`: the P wave above the level
+/// before its onset, the T wave above the PR-segment level before the QRS
+/// onset), among the leads whose peak lies above it
+/// (`global_p_peak_tallest`, `global_t_peak_tallest`); with three leads or
+/// more only peaks within the wave's gate (`global_p_peak_tallest_gate_ms`,
+/// `global_t_peak_tallest_gate_ms`) of the leads' median peak take part.
+/// `None` when no lead's peak lies above its level or the leads' signals
+/// are not at hand.
 fn tallest(
     peaks: &[(usize, Mark)],
-    gate: f64,
-    height: &dyn Fn(usize) -> Option<f64>,
+    beats: &[&BeatMarks],
+    leads: &[Option<&LeadAnalysis>],
+    wave: Wave,
+    fs: f64,
+    cfg: &DelineateConfig,
 ) -> Option<(usize, Mark)> {
-    let t_peaks = peaks;
-    let median = (t_peaks.len() >= 3).then(|| {
-        let mut v: Vec<f64> = t_peaks.iter().map(|(_, m)| m.sample as f64).collect();
+    let gate_ms = match wave {
+        Wave::P => cfg.global_p_peak_tallest_gate_ms,
+        Wave::T => cfg.global_t_peak_tallest_gate_ms,
+    };
+    let onset = |b: &BeatMarks| match wave {
+        Wave::P => b.p_on,
+        Wave::T => b.qrs_on,
+    };
+    let gate = gate_ms * fs / 1000.0;
+    let height = |l: usize, m: Mark| {
+        leads
+            .get(l)
+            .copied()
+            .flatten()?
+            .height_above_level(Some(m), onset(beats.get(l)?), cfg)
+    };
+    let median = (peaks.len() >= 3).then(|| {
+        let mut v: Vec<f64> = peaks.iter().map(|(_, m)| m.sample as f64).collect();
         v.sort_by(f64::total_cmp);
         let h = v.len() / 2;
         if v.len() % 2 == 1 {
@@ -247,17 +243,21 @@ fn tallest(
             0.5 * (v[h - 1] + v[h])
         }
     });
-    t_peaks
+    peaks
         .iter()
         .filter(|(_, m)| median.is_none_or(|c| (m.sample as f64 - c).abs() <= gate))
         .filter_map(|&(l, m)| {
-            let h = height(l)?;
+            let h = height(l, m)?;
             (h > 0.0).then_some((h, (l, m)))
         })
         .max_by(|a, b| a.0.total_cmp(&b.0))
         .map(|(_, t)| t)
 }
 
+/// `chosen` if it lies strictly between `on` and `end` (where given);
+/// otherwise the candidate inside them nearest `expect` (or the most
+/// confident one); otherwise `chosen` unchanged. `expect` is called only
+/// when `chosen` lies outside.
 fn inside_or(
     chosen: Option<(usize, Mark)>,
     cands: &[(usize, Mark)],
@@ -517,12 +517,12 @@ pub(crate) fn combine(
                 None
             };
             // The tallest upright T, when one is (`global_t_peak_tallest`).
-            let tallest = if cfg.global_t_peak_tallest && t_peaks.len() >= 2 {
-                tallest_t(&t_peaks, &beats, leads, fs, cfg)
+            let t_tallest = if cfg.global_t_peak_tallest && t_peaks.len() >= 2 {
+                tallest(&t_peaks, &beats, leads, Wave::T, fs, cfg)
             } else {
                 None
             };
-            let t_peak_lead = match (tallest, t_expect) {
+            let t_peak_lead = match (t_tallest, t_expect) {
                 (Some(t), _) => Some(t),
                 (None, Some(e)) => t_peaks.iter().copied().min_by(|a, b| {
                     (a.1.sample as f64 - e)
@@ -557,7 +557,7 @@ pub(crate) fn combine(
             }
             let p_peaks = gather_l(&|m| m.p_peak);
             let p_tallest = if cfg.global_p_peak_tallest && p_peaks.len() >= 2 {
-                tallest_p(&p_peaks, &beats, leads, fs, cfg)
+                tallest(&p_peaks, &beats, leads, Wave::P, fs, cfg)
             } else {
                 None
             };
@@ -1349,11 +1349,11 @@ mod tests {
         // Oracle: the sample at the peak minus the median of the 20 ms (5
         // samples at 250 Hz) before the QRS onset (480); the Gaussian is
         // 0 there to 1e-30, so the level is the 0.1 mV baseline.
-        let h = la.t_height(&per_lead[1][0], &cfg).unwrap();
+        let b = &per_lead[1][0];
+        let h = la.height_above_level(b.t_peak, b.qrs_on, &cfg).unwrap();
         assert!((h - 0.5).abs() < 1e-9, "{h}");
-        let mut no_on = per_lead[1][0].clone();
-        no_on.qrs_on = None;
-        assert_eq!(la.t_height(&no_on, &cfg), None);
+        assert_eq!(la.height_above_level(b.t_peak, None, &cfg), None);
+        assert_eq!(la.height_above_level(None, b.qrs_on, &cfg), None);
     }
 
     #[test]
@@ -1442,14 +1442,19 @@ mod tests {
         let b: Vec<&BeatMarks> = beats.iter().collect();
         // The tallest (lead 2) lies 40 samples from the median: out; of the
         // two near it, lead 1 is the taller.
-        let got = tallest_t(&t_peaks, &b, &refs, 250.0, &cfg).unwrap();
+        let got = tallest(&t_peaks, &b, &refs, Wave::T, 250.0, &cfg).unwrap();
         assert_eq!(got.0, 1);
         // Without the gate (a wide one), lead 2.
         let wide = DelineateConfig {
             global_t_peak_tallest_gate_ms: 1000.0,
             ..DelineateConfig::default()
         };
-        assert_eq!(tallest_t(&t_peaks, &b, &refs, 250.0, &wide).unwrap().0, 2);
+        assert_eq!(
+            tallest(&t_peaks, &b, &refs, Wave::T, 250.0, &wide)
+                .unwrap()
+                .0,
+            2
+        );
     }
 
     #[test]
@@ -1483,7 +1488,8 @@ mod tests {
             // Oracle of the height: the peak sample minus the median of the
             // 20 ms (5 samples at 250 Hz, 385..390) before the onset; the
             // Gaussian rises there, so the median is the middle one, 387.
-            let h = las[1].p_height(&per_lead[1][0], cfg).unwrap();
+            let b = &per_lead[1][0];
+            let h = las[1].height_above_level(b.p_peak, b.p_on, cfg).unwrap();
             let want = g(410, 410, h1) - g(387, 410, h1);
             assert!((h - want).abs() < 1e-12, "{h} vs {want}");
             let refs: Vec<Option<&LeadAnalysis>> = las.iter().map(Some).collect();

@@ -556,25 +556,18 @@ impl LeadAnalysis {
         }
     }
 
-    /// Height (mV) of the beat's T peak above the isoelectric level, the
-    /// median of the `baseline_window_ms` before its QRS onset (the level
-    /// the tangent method uses); negative below it. `None` without a T peak
-    /// or a QRS onset.
-    pub(crate) fn t_height(&self, b: &BeatMarks, cfg: &DelineateConfig) -> Option<f64> {
-        let peak = (b.t_peak?.sample as f64 / self.ratio).round() as isize;
-        let on = (b.qrs_on?.sample as f64 / self.ratio).floor() as isize;
-        let level = self.level(on - self.ms_i(cfg.baseline_window_ms), on)?;
-        (0..self.len())
-            .contains(&peak)
-            .then(|| self.x[peak as usize] - level)
-    }
-
-    /// Height (mV) of the beat's P peak above the level of the
-    /// `baseline_window_ms` before its P onset (the end of the TP segment);
-    /// negative below it. `None` without a P peak or a P onset.
-    pub(crate) fn p_height(&self, b: &BeatMarks, cfg: &DelineateConfig) -> Option<f64> {
-        let peak = (b.p_peak?.sample as f64 / self.ratio).round() as isize;
-        let on = (b.p_on?.sample as f64 / self.ratio).floor() as isize;
+    /// Height (mV) of the signal at `peak` above its level before `onset`,
+    /// the median of the `baseline_window_ms` there (before the QRS onset:
+    /// the PR-segment level the tangent method uses; before the P onset: the
+    /// end of the TP segment); negative below it. `None` without either mark.
+    pub(crate) fn height_above_level(
+        &self,
+        peak: Option<Mark>,
+        onset: Option<Mark>,
+        cfg: &DelineateConfig,
+    ) -> Option<f64> {
+        let peak = (peak?.sample as f64 / self.ratio).round() as isize;
+        let on = (onset?.sample as f64 / self.ratio).floor() as isize;
         let level = self.level(on - self.ms_i(cfg.baseline_window_ms), on)?;
         (0..self.len())
             .contains(&peak)
