@@ -1305,10 +1305,11 @@ mod tests {
             530
         );
     }
+
     /// Two leads with a T wave (Gaussian, 0.2 mV at sample 600 on lead 0 and
-    /// `h1` mV at 640 on lead 1) on a baseline of `base` mV, the lead marks
-    /// read from them: T ends 40 and 50 samples after the peaks, 60 ms
-    /// apart (beyond `global_outlier_ms`).
+    /// `h1` mV at 640 on lead 1) on a baseline of `base` mV, and the lead
+    /// marks read from them: T ends at 640 and 690, 200 ms apart (beyond
+    /// `global_outlier_ms`).
     fn t_leads(h1: f64, base: f64) -> (Vec<Vec<f64>>, Vec<Vec<BeatMarks>>) {
         let g = |i: usize, c: usize, a: f64| {
             let t = (i as f64 - c as f64) / 12.0;
@@ -1368,8 +1369,9 @@ mod tests {
             let g = combine(&per_lead, &refs, 1, 250.0, cfg)[0].clone();
             (g.t_peak.unwrap().sample, g.t_end.unwrap().sample)
         };
-        // The T ends 60 samples apart are both kept as the latest (outer
-        // rule), so only the peak's choice is seen.
+        // Of the T ends 50 samples apart the latest is kept (outer pair
+        // rule) whichever lead gives the peak, so only the peak's choice is
+        // seen.
         let on = DelineateConfig {
             global_pair_t: PairRule::Outer,
             ..DelineateConfig::default()
@@ -1406,16 +1408,15 @@ mod tests {
         };
         assert_eq!(run(0.5, &off), (600, 690));
         // No T upright on any lead: the rule has nothing to choose from and
-        // the confidence rule gives lead 0's (less confident inverted) peak.
+        // the confidence rule gives the more confident lead 0's peak.
         assert_eq!(run_neg(&on), 600);
     }
 
     #[test]
     fn with_three_leads_only_peaks_near_their_median_compete() {
         let cfg = DelineateConfig::default();
-        let pk = |s: usize, c: f32| (0usize, m(s, c));
-        // Median 600; gate 10 ms = 2.5 samples at 250 Hz.
-        let t_peaks = [pk(600, 0.9), (1, m(602, 0.9)), (2, m(640, 0.9))];
+        // Median 602; gate 10 ms = 2.5 samples at 250 Hz.
+        let t_peaks = [(0, m(600, 0.9)), (1, m(602, 0.9)), (2, m(640, 0.9))];
         let sig: Vec<Vec<f64>> = [(600, 0.2), (602, 0.3), (640, 0.9)]
             .iter()
             .map(|&(c, a)| {
@@ -1440,7 +1441,7 @@ mod tests {
             })
             .collect();
         let b: Vec<&BeatMarks> = beats.iter().collect();
-        // The tallest (lead 2) lies 40 samples from the median: out; of the
+        // The tallest (lead 2) lies 38 samples from the median: out; of the
         // two near it, lead 1 is the taller.
         let got = tallest(&t_peaks, &b, &refs, Wave::T, 250.0, &cfg).unwrap();
         assert_eq!(got.0, 1);
