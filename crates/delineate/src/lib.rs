@@ -41,10 +41,11 @@
 //!   (`global_p_peak_tallest`, `global_t_peak_tallest`; with three leads or
 //!   more among those near the leads' median peak), else, like the QRS
 //!   peak, from the lead with the highest confidence for that mark (T:
-//!   nearest where the neighbouring beats put it, `global_pair_t`). A lead P wave whose peak lies outside the
-//!   global P span is searched again near the other leads' P
-//!   (`lead_p_within_global`); each lead's P and QRS boundaries are then
-//!   held to the median offsets of the lead's neighbouring beats
+//!   nearest where the neighbouring beats put it, `global_pair_t`). A lead
+//!   P wave whose peak lies outside the global P span is searched again
+//!   near the other leads' P (`lead_p_within_global`); each lead's P and
+//!   QRS boundaries are then held to the median offsets of the lead's
+//!   neighbouring beats
 //!   (`lead_ensemble_*`, module `ensemble`; the global QRS onset and end
 //!   likewise, `global_ensemble_qrs`), held within the global span of their
 //!   wave (`lead_marks_within_global`), and moved part of the way toward the
