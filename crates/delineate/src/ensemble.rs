@@ -22,7 +22,7 @@
 //! elsewhere in the atria. A move that would break
 //! the order of the beat's waves (previous T end, P, QRS onset, QRS peak,
 //! T onset or peak) is not made. The global QRS onset and end take the same
-//! rule (`global_ensemble_qrs`); the global P does not. Positions are samples of the input rate;
+//! rule (`global_ensemble_qrs`), and so do the global P marks (`global_ensemble_p`). Positions are samples of the input rate;
 //! a median of an even count is the mean of the two middle values, and every
 //! centre is rounded to the sample.
 
@@ -119,14 +119,15 @@ fn premature(qrs: &[usize], b: usize, lo: usize, hi: usize, frac: f64, buf: &mut
 }
 
 /// Apply the rule of the module docs to every lead (`lead_ensemble_beats` 0:
-/// nothing changes); the P marks only with `with_p` (the global marks take
-/// the QRS part alone, `global_ensemble_qrs`).
+/// nothing changes); the P marks only with `with_p`, the QRS marks only with
+/// `with_qrs` (the global marks: `global_ensemble_p`, `global_ensemble_qrs`).
 pub(crate) fn hold_to_neighbours(
     per_lead: &mut [Vec<BeatMarks>],
     qrs: &[usize],
     fs: f64,
     cfg: &DelineateConfig,
     with_p: bool,
+    with_qrs: bool,
 ) {
     let half = cfg.lead_ensemble_beats;
     if half == 0 || !(fs.is_finite() && fs > 0.0) {
@@ -182,7 +183,9 @@ pub(crate) fn hold_to_neighbours(
                 }
             }
             // QRS onset and end (the peak stays: it is the lead's own extremum).
-            if let (Some(on), Some(pk), Some(en)) = (own.qrs_on, own.qrs_peak, own.qrs_end) {
+            if let (true, Some(on), Some(pk), Some(en)) =
+                (with_qrs, own.qrs_on, own.qrs_peak, own.qrs_end)
+            {
                 if let Some(d) = centre_offsets(&q_off, lo, hi, min_beats, 0.5, &mut buf) {
                     let (s_on, s_en) = (at(d[0]), at(d[2]));
                     let floor = lead[b].p_end.map_or(0, |m| m.sample);
@@ -244,7 +247,7 @@ mod tests {
         let jitter = [0, 3, -4, 2, 0, -1, 30, 0, 1, -2, 0];
         let (marks, qrs) = lead(&jitter);
         let mut per_lead = vec![marks.clone()];
-        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true);
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true, true);
         for (b, (got, q)) in per_lead[0].iter().zip(&qrs).enumerate() {
             // 30 samples = 60 ms: beyond the 40-ms QRS gate, within the P gate.
             let qrs_end = if b == 6 { q + 70 } else { q + 40 };
@@ -253,18 +256,23 @@ mod tests {
             assert_eq!(got.qrs_peak, marks[b].qrs_peak);
             assert_eq!(got.p_on.unwrap().confidence, 0.5);
         }
-        // Without the P part (the global marks): P stays, the QRS moves.
+        // Without the P part: P stays, the QRS moves; without the QRS part
+        // the reverse.
         let mut per_lead = vec![marks.clone()];
-        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, false);
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, false, true);
         assert_eq!(per_lead[0][1].p_on, marks[1].p_on);
         assert_eq!(per_lead[0][1].qrs_end.unwrap().sample, qrs[1] + 40);
+        let mut per_lead = vec![marks.clone()];
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true, false);
+        assert_eq!(per_lead[0][1].p_on.unwrap().sample, qrs[1] - 100);
+        assert_eq!(per_lead[0][1].qrs_end, marks[1].qrs_end);
         // Off: nothing moves.
         let off = DelineateConfig {
             lead_ensemble_beats: 0,
             ..cfg.clone()
         };
         let mut per_lead = vec![marks.clone()];
-        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &off, true);
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &off, true, true);
         assert_eq!(per_lead[0], marks);
     }
 
@@ -280,7 +288,7 @@ mod tests {
         marks[4].p_peak = m(qrs[4] - 110);
         marks[4].p_end = m(qrs[4] - 90);
         let mut per_lead = vec![marks.clone()];
-        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true);
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true, true);
         assert_eq!(per_lead[0][4].p_end, marks[4].p_end);
         assert_eq!(per_lead[0][4].p_on, marks[4].p_on);
         assert_eq!(per_lead[0][3].p_on.unwrap().sample, qrs[3] - 100);
@@ -345,7 +353,7 @@ mod tests {
         let cfg = DelineateConfig::default();
         assert_eq!(cfg.lead_ensemble_p_trim, 0.25);
         let mut per_lead = vec![marks.clone()];
-        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true);
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true, true);
         assert_eq!(per_lead[0][6].p_on.unwrap().sample, qrs[6] - 96);
         // No trim: the plain mean of the 13 offsets, -100 - 19/13 = -101.46.
         // All of it (0.5): the median, -100.
@@ -355,7 +363,7 @@ mod tests {
                 ..cfg.clone()
             };
             let mut per_lead = vec![marks.clone()];
-            hold_to_neighbours(&mut per_lead, &qrs, 500.0, &c, true);
+            hold_to_neighbours(&mut per_lead, &qrs, 500.0, &c, true, true);
             assert_eq!(
                 per_lead[0][6].p_on.unwrap().sample,
                 qrs[6] - want,
@@ -389,7 +397,7 @@ mod tests {
         let cfg = DelineateConfig::default();
         assert_eq!(cfg.lead_ensemble_premature_frac, 0.85);
         let mut per_lead = vec![marks.clone()];
-        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true);
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true, true);
         assert_eq!(per_lead[0][5].p_on, marks[5].p_on);
         // Beat 6 follows the premature beat (RR 650): not premature, held.
         assert_eq!(per_lead[0][6].p_on.unwrap().sample, qrs[6] - 100);
@@ -398,7 +406,7 @@ mod tests {
             ..cfg.clone()
         };
         let mut per_lead = vec![marks.clone()];
-        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &off, true);
+        hold_to_neighbours(&mut per_lead, &qrs, 500.0, &off, true, true);
         assert_eq!(per_lead[0][5].p_on.unwrap().sample, qrs[5] - 100);
     }
 }

@@ -46,8 +46,9 @@
 //!   near the other leads' P (`lead_p_within_global`); each lead's P and
 //!   QRS boundaries are then held to the median offsets of the lead's
 //!   neighbouring beats
-//!   (`lead_ensemble_*`, module `ensemble`; the global QRS onset and end
-//!   likewise, `global_ensemble_qrs`), held within the global span of their
+//!   (`lead_ensemble_*`, module `ensemble`; the global QRS and P marks
+//!   likewise, `global_ensemble_qrs`, `global_ensemble_p`), held within the
+//!   global span of their
 //!   wave (`lead_marks_within_global`), and moved part of the way toward the
 //!   median of all leads for the beat (`lead_shrink_*`, module `shrink`;
 //!   QRS onsets toward a lower quantile, `lead_shrink_qrs_on_quantile`).
@@ -564,10 +565,17 @@ fn across_leads(
     }
     // The multi-lead envelope may put the global onset on the stimulus too.
     paced::onsets_after_stimuli(&mut global, stimulus_ends, fs, cfg);
-    ensemble::hold_to_neighbours(&mut per_lead, qrs, fs, cfg, true);
-    if cfg.global_ensemble_qrs {
+    ensemble::hold_to_neighbours(&mut per_lead, qrs, fs, cfg, true, true);
+    if cfg.global_ensemble_qrs || cfg.global_ensemble_p {
         let mut g = [std::mem::take(&mut global)];
-        ensemble::hold_to_neighbours(&mut g, qrs, fs, cfg, false);
+        ensemble::hold_to_neighbours(
+            &mut g,
+            qrs,
+            fs,
+            cfg,
+            cfg.global_ensemble_p,
+            cfg.global_ensemble_qrs,
+        );
         [global] = g;
     }
     if cfg.lead_marks_within_global {
