@@ -138,8 +138,22 @@ pub(crate) fn hold_to_neighbours(
     let min_beats = cfg.lead_ensemble_min_beats;
     let p_trim = cfg.lead_ensemble_p_trim;
     let mut buf = Vec::with_capacity(2 * half + 1);
+    // Premature beats depend on the beat times alone: worked out once for
+    // the leads' common beat count (again only for a lead with fewer beats).
+    let early_of = |n: usize, buf: &mut Vec<f64>| -> Vec<bool> {
+        (0..n)
+            .map(|b| {
+                let (lo, hi) = (b.saturating_sub(half), (b + half + 1).min(n));
+                with_p && premature(qrs, b, lo, hi, cfg.lead_ensemble_premature_frac, buf)
+            })
+            .collect()
+    };
+    let mut early: Vec<bool> = Vec::new();
     for lead in per_lead.iter_mut() {
         let n = lead.len().min(qrs.len());
+        if early.len() != n {
+            early = early_of(n, &mut buf);
+        }
         let p_off = offsets(&lead[..n], qrs, |m| [m.p_on, m.p_peak, m.p_end]);
         let q_off = offsets(&lead[..n], qrs, |m| [m.qrs_on, m.qrs_peak, m.qrs_end]);
         for b in 0..n {
@@ -155,10 +169,8 @@ pub(crate) fn hold_to_neighbours(
             // and its neighbours' offsets were taken before any move.
             let own = lead[b].clone();
             // P onset, peak and end together.
-            let early =
-                with_p && premature(qrs, b, lo, hi, cfg.lead_ensemble_premature_frac, &mut buf);
             if let (false, true, Some(on), Some(pk), Some(en)) =
-                (early, with_p, own.p_on, own.p_peak, own.p_end)
+                (early[b], with_p, own.p_on, own.p_peak, own.p_end)
             {
                 if let Some(d) = centre_offsets(&p_off, lo, hi, min_beats, p_trim, &mut buf) {
                     let (s_on, s_pk, s_en) = (at(d[0]), at(d[1]), at(d[2]));
