@@ -732,8 +732,9 @@ pub struct DelineateConfig {
     /// and the 150-ms gate: P onset 15.02 -> 14.87 (13.42 -> 13.39 / 16.55
     /// -> 16.28), P peak 13.52 -> 13.32 (12.16 -> 12.17 / 14.83 -> 14.45), P
     /// end 14.32 -> 14.21 (13.41 -> 13.43 / 15.23 -> 15.00); 0.8 / 0.9: P
-    /// onset 14.88 / 14.83. QTDB global marks unchanged (the rule moves
-    /// lead marks only).
+    /// onset 14.88 / 14.83. QTDB global marks unchanged (measured on the
+    /// lead marks alone, before `global_ensemble_p` applied the rule to the
+    /// global P too).
     pub lead_ensemble_premature_frac: f64,
     /// Per-lead QRS onset and end moved this fraction of the way toward the
     /// median of the same mark across the record's leads for the beat (module
