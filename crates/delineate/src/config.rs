@@ -724,17 +724,23 @@ pub struct DelineateConfig {
     pub lead_ensemble_p_trim: f64,
     /// See `lead_ensemble_beats`: a beat whose preceding RR interval is
     /// shorter than this fraction of the median RR interval of the window's
-    /// beats keeps its own P marks (0 = off). Why: a premature atrial beat
-    /// starts elsewhere in the atria, so its P wave has neither the shape
-    /// nor the PR interval of its neighbours (common practice), whatever the
-    /// distance of its marks (`lead_ensemble_p_gate_ms`). Default 0.85: LUDB
+    /// beats keeps its own P and QRS marks (0 = off; the global marks too).
+    /// Why: a premature atrial beat starts elsewhere in the atria, so its P
+    /// wave has neither the shape nor the PR interval of its neighbours
+    /// (common practice), whatever the distance of its marks
+    /// (`lead_ensemble_p_gate_ms`); a premature beat may also be conducted
+    /// aberrantly or arise in the ventricles, with a QRS of its own. Default 0.85: LUDB
     /// per-lead SD (ms; odd- / even-numbered records), with the trimmed mean
     /// and the 150-ms gate: P onset 15.02 -> 14.87 (13.42 -> 13.39 / 16.55
     /// -> 16.28), P peak 13.52 -> 13.32 (12.16 -> 12.17 / 14.83 -> 14.45), P
     /// end 14.32 -> 14.21 (13.41 -> 13.43 / 15.23 -> 15.00); 0.8 / 0.9: P
     /// onset 14.88 / 14.83. QTDB global marks unchanged (measured on the
     /// lead marks alone, before `global_ensemble_p` applied the rule to the
-    /// global P too).
+    /// global P too). Extended to the QRS marks (the P marks only before):
+    /// LUDB per-lead QRS onset 3.75 +/- 9.99 -> 3.76 +/- 9.94 ms (9.98 ->
+    /// 9.89 / 10.00 -> 9.98), QRS end 11.41 -> 11.37 (11.46 -> 11.42 /
+    /// 11.37 -> 11.31), LUDB global QRS end 11.71 -> 11.61; QTDB global QRS
+    /// onset 12.99 -> 13.00, end 14.75 -> 14.78 ms.
     pub lead_ensemble_premature_frac: f64,
     /// Per-lead QRS onset and end moved this fraction of the way toward the
     /// median of the same mark across the record's leads for the beat (module

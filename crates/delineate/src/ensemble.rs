@@ -18,8 +18,9 @@
 //! (`lead_ensemble_p_gate_ms`, `lead_ensemble_qrs_gate_ms`) keeps them: an
 //! ectopic beat, a changed conduction. A premature beat (preceding RR interval
 //! below `lead_ensemble_premature_frac` of the window's median RR) keeps its
-//! own P marks whatever their distance: a premature atrial beat starts
-//! elsewhere in the atria. A move that would break
+//! own P and QRS marks whatever their distance: a premature atrial beat
+//! starts elsewhere in the atria, and a premature beat may be conducted
+//! aberrantly or arise in the ventricles. A move that would break
 //! the order of the beat's waves (previous T end, P, QRS onset, QRS peak,
 //! T onset or peak) is not made. The global QRS onset and end take the same
 //! rule (`global_ensemble_qrs`), and so do the global P marks (`global_ensemble_p`). Positions are samples of the input rate;
@@ -144,7 +145,7 @@ pub(crate) fn hold_to_neighbours(
         (0..n)
             .map(|b| {
                 let (lo, hi) = (b.saturating_sub(half), (b + half + 1).min(n));
-                with_p && premature(qrs, b, lo, hi, cfg.lead_ensemble_premature_frac, buf)
+                premature(qrs, b, lo, hi, cfg.lead_ensemble_premature_frac, buf)
             })
             .collect()
     };
@@ -195,8 +196,8 @@ pub(crate) fn hold_to_neighbours(
                 }
             }
             // QRS onset and end (the peak stays: it is the lead's own extremum).
-            if let (true, Some(on), Some(pk), Some(en)) =
-                (with_qrs, own.qrs_on, own.qrs_peak, own.qrs_end)
+            if let (false, true, Some(on), Some(pk), Some(en)) =
+                (early[b], with_qrs, own.qrs_on, own.qrs_peak, own.qrs_end)
             {
                 if let Some(d) = centre_offsets(&q_off, lo, hi, min_beats, 0.5, &mut buf) {
                     let (s_on, s_en) = (at(d[0]), at(d[2]));
@@ -385,23 +386,30 @@ mod tests {
     }
 
     #[test]
-    fn a_premature_beat_keeps_its_own_p() {
+    fn a_premature_beat_keeps_its_own_p_and_qrs() {
         // Beats every 500 samples but beat 5, which comes 150 samples early
         // (RR 350 = 0.7 of the median 500, below 0.85): its P onset 20
-        // samples (40 ms) early is its own P wave and stays; with the rule
-        // off it is moved to the neighbours' -100.
+        // samples (40 ms) early and its QRS end 10 samples (20 ms, within
+        // the 40-ms QRS gate) late are its own and stay; with the rule off
+        // they are moved to the neighbours' -100 and +40. Beat 6 follows
+        // the premature beat (RR 650): not premature, so its jittered marks
+        // (P onset -106, QRS end +46) are held.
         let (mut marks, mut qrs) = lead(&[0; 11]);
         qrs[5] -= 150;
         for (b, m) in marks.iter_mut().enumerate() {
             let q = qrs[b];
-            let j = if b == 5 { 20 } else { 0 };
+            let (jp, jq) = match b {
+                5 => (20, 10),
+                6 => (6, 6),
+                _ => (0, 0),
+            };
             *m = BeatMarks {
-                p_on: crate::test_marks::m(q - 100 - j),
+                p_on: crate::test_marks::m(q - 100 - jp),
                 p_peak: crate::test_marks::m(q - 80),
                 p_end: crate::test_marks::m(q - 60),
                 qrs_on: crate::test_marks::m(q - 20),
                 qrs_peak: crate::test_marks::m(q),
-                qrs_end: crate::test_marks::m(q + 40),
+                qrs_end: crate::test_marks::m(q + 40 + jq),
                 t_peak: crate::test_marks::m(q + 150),
                 ..Default::default()
             };
@@ -411,8 +419,9 @@ mod tests {
         let mut per_lead = vec![marks.clone()];
         hold_to_neighbours(&mut per_lead, &qrs, 500.0, &cfg, true, true);
         assert_eq!(per_lead[0][5].p_on, marks[5].p_on);
-        // Beat 6 follows the premature beat (RR 650): not premature, held.
+        assert_eq!(per_lead[0][5].qrs_end, marks[5].qrs_end);
         assert_eq!(per_lead[0][6].p_on.unwrap().sample, qrs[6] - 100);
+        assert_eq!(per_lead[0][6].qrs_end.unwrap().sample, qrs[6] + 40);
         let off = DelineateConfig {
             lead_ensemble_premature_frac: 0.0,
             ..cfg.clone()
@@ -420,5 +429,6 @@ mod tests {
         let mut per_lead = vec![marks.clone()];
         hold_to_neighbours(&mut per_lead, &qrs, 500.0, &off, true, true);
         assert_eq!(per_lead[0][5].p_on.unwrap().sample, qrs[5] - 100);
+        assert_eq!(per_lead[0][5].qrs_end.unwrap().sample, qrs[5] + 40);
     }
 }
