@@ -125,6 +125,13 @@ pub fn load_from_str(text: &str, origin: &str, overrides: &[String]) -> Result<P
     for o in overrides {
         apply_override(&mut tree, o)?;
     }
+    // A bad value may come from the file or from a --set: name both.
+    let label = if overrides.is_empty() {
+        origin.to_string()
+    } else {
+        format!("{origin} with --set {}", overrides.join(", --set "))
+    };
+    let origin = label.as_str();
     let known = toml::Value::try_from(PipelineConfig::default()).expect("defaults serialize");
     let mut unknown = Vec::new();
     unknown_keys(&tree, &known, "", &mut unknown);
@@ -236,7 +243,9 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(
-            e.contains("filter.highpass_hz") && e.contains("got -3"),
+            e.contains("filter.highpass_hz")
+                && e.contains("got -3")
+                && e.contains("x.toml with --set filter.highpass_hz=-3"),
             "{e}"
         );
     }
