@@ -173,9 +173,51 @@ fn rerun_reuses_complete_records_and_force_redoes_them() {
     };
     let first = run(&[]);
     assert!(first.contains("\"status\": \"done\""), "{first}");
+    // Time by stage: six stages, none negative, together within the record's
+    // own wall time (one chunk: the stages run one after the other), and the
+    // run's totals are the sum over the records processed.
+    let stages = [
+        "read",
+        "condition",
+        "detect",
+        "delineate",
+        "measure",
+        "assemble",
+    ];
+    let json: serde_json::Value = serde_json::from_str(&first).unwrap();
+    let rec = &json["records"][0];
+    let per: Vec<f64> = stages
+        .iter()
+        .map(|k| rec["stage_seconds"][k].as_f64().unwrap())
+        .collect();
+    assert!(per.iter().all(|&v| v >= 0.0), "{rec}");
+    let wall: f64 = rec["detail"]
+        .as_str()
+        .unwrap()
+        .trim_end_matches(" s")
+        .parse()
+        .unwrap();
+    assert!(per.iter().sum::<f64>() <= wall + 0.002, "{rec}");
+    assert!(
+        per[2] > 0.0 && per[3] > 0.0,
+        "detection and delineation took no time: {rec}"
+    );
+    for (k, v) in stages.iter().zip(&per) {
+        let total = json["stage_seconds"][k].as_f64().unwrap();
+        assert!((total - v).abs() < 1e-9, "{k}: {total} vs {v}");
+    }
     let mark = std::fs::read(out.path().join("annotations/4.mark")).unwrap();
     let second = run(&[]);
     assert!(second.contains("\"status\": \"reused\""), "{second}");
+    // Nothing was processed again: no stage time.
+    let json: serde_json::Value = serde_json::from_str(&second).unwrap();
+    assert!(
+        json["records"][0].get("stage_seconds").is_none(),
+        "{second}"
+    );
+    assert!(stages
+        .iter()
+        .all(|k| json["stage_seconds"][k].as_f64() == Some(0.0)));
     assert_eq!(
         std::fs::read(out.path().join("annotations/4.mark")).unwrap(),
         mark

@@ -185,6 +185,19 @@ fn cmd_run(a: RunArgs) -> Result<ExitCode> {
             report.seconds,
             opts.out.display()
         );
+        let (stages, n) = report.stage_totals();
+        let sum: f64 = stages.named().iter().map(|(_, v)| v).sum();
+        if n > 0 && sum > 0.0 {
+            let parts: Vec<String> = stages
+                .named()
+                .iter()
+                .map(|(k, v)| format!("{k} {v:.1} s ({:.0} %)", 100.0 * v / sum))
+                .collect();
+            eprintln!(
+                "time by stage over the {n} record(s) processed (run.json `stage_seconds`): {}",
+                parts.join(", ")
+            );
+        }
     }
     if failures.is_empty() {
         Ok(ExitCode::SUCCESS)

@@ -50,6 +50,52 @@ pub struct Processed {
     pub marks: Vec<Annotation>,
     pub leadmarks: Vec<Annotation>,
     pub n_samples: u64,
+    pub stages: StageSeconds,
+}
+
+/// Wall time one record spent in each stage (seconds, on the thread that ran
+/// it; the chunks of a long record run side by side, so their times add up to
+/// more than the record's wall time). For engineers who tune thresholds or
+/// look for the slow stage: written to `run.json`, summed over the run.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct StageSeconds {
+    /// Reading the input and checking it (missing samples, non-ECG signals).
+    pub read: f64,
+    /// Amplitude check, pacing-stimulus search and the conditioning filters.
+    pub condition: f64,
+    /// QRS detection and beat labels.
+    pub detect: f64,
+    /// Wave delineation, per lead and global.
+    pub delineate: f64,
+    /// Windows, median beats, QT and QTc.
+    pub measure: f64,
+    /// The record's results tree and annotation lists.
+    pub assemble: f64,
+}
+
+impl StageSeconds {
+    /// The stages with their names, in pipeline order.
+    pub fn named(&self) -> [(&'static str, f64); 6] {
+        [
+            ("read", self.read),
+            ("condition", self.condition),
+            ("detect", self.detect),
+            ("delineate", self.delineate),
+            ("measure", self.measure),
+            ("assemble", self.assemble),
+        ]
+    }
+}
+
+impl std::ops::AddAssign for StageSeconds {
+    fn add_assign(&mut self, o: Self) {
+        self.read += o.read;
+        self.condition += o.condition;
+        self.detect += o.detect;
+        self.delineate += o.delineate;
+        self.measure += o.measure;
+        self.assemble += o.assemble;
+    }
 }
 
 /// Reject records no stage can work on, naming the problem.
@@ -225,6 +271,7 @@ struct Stretch {
     windows: Vec<tendline_measure::WindowMeasure>,
     notch: Option<f64>,
     dropped: usize,
+    stages: StageSeconds,
 }
 
 /// One chunk of a long record: `core` is what it contributes, `ext` the
@@ -287,6 +334,7 @@ fn join_chunks(parts: Vec<(&Chunk, Stretch)>, fs: f64, n_leads: usize) -> Stretc
     let mut windows = Vec::new();
     let mut notches = Vec::new();
     let mut dropped = 0;
+    let mut stages = StageSeconds::default();
     let total: usize = parts.iter().map(|(c, _)| c.core.1 - c.core.0).sum();
     for (c, part) in parts {
         let off = c.ext.0;
@@ -330,6 +378,7 @@ fn join_chunks(parts: Vec<(&Chunk, Stretch)>, fs: f64, n_leads: usize) -> Stretc
         }
         notches.push(part.notch);
         dropped += part.dropped;
+        stages += part.stages;
     }
     // The power-line frequency found most often (chunks of one recording agree
     // unless the interference comes and goes).
@@ -344,6 +393,7 @@ fn join_chunks(parts: Vec<(&Chunk, Stretch)>, fs: f64, n_leads: usize) -> Stretc
         windows,
         notch,
         dropped,
+        stages,
     }
 }
 
@@ -451,6 +501,7 @@ pub fn process_record(
     checksums: &[(String, String)],
     on_chunk: &mut dyn FnMut(ChunkProgress),
 ) -> Result<Processed> {
+    let clock = std::time::Instant::now();
     let opts = tendline_formats::ReadOptions { csv_fs: ctx.csv_fs };
     let mut rec = tendline_formats::read_record(&input.path, &opts)
         // Every format error already names the file it read.
@@ -475,6 +526,8 @@ pub fn process_record(
     if let Some(s) = subject {
         s.apply(&mut rec.meta);
     }
+    let read_s = clock.elapsed().as_secs_f64();
+    let clock = std::time::Instant::now();
     let cfg = &ctx.config;
     let filter = ctx
         .filters
@@ -511,15 +564,20 @@ pub fn process_record(
     let (fs, sex) = (rec.fs, rec.meta.sex);
     // Taken before a long record's samples leave `rec` (`RawLeads`).
     let n_samples = rec.n_samples();
+    let before_chunks = clock.elapsed().as_secs_f64();
     // Filter, detect, delineate and measure one stretch of the record.
     let analyse = |raw: &[&[f64]], gaps: &[(usize, usize)], stimuli: &[usize]| -> Result<Stretch> {
+        let mut lap = Lap::start();
         let (cond, notch) = filter.filter_record(raw);
+        let condition = lap.next();
         let leads: Vec<&[f64]> = cond.iter().map(Vec::as_slice).collect();
         let mut det = tendline_detect::detect(&leads, fs, &cfg.detect)
             .with_context(|| format!("{}: beat detection", input.name))?;
         let dropped = tendline_detect::exclude_missing(&mut det, gaps, fs, &cfg.detect);
         let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
+        let detect = lap.next();
         let del = tendline_delineate::delineate_paced(&leads, fs, &qrs, stimuli, &cfg.delineate);
+        let delineate = lap.next();
         let meas = tendline_measure::measure_record_paced(
             &leads,
             &names,
@@ -534,12 +592,20 @@ pub fn process_record(
         let mut windows = meas.windows;
         let p_present: Vec<bool> = del.global.iter().map(|b| b.p_on.is_some()).collect();
         tendline_measure::drop_absent_p(&mut windows, &qrs, &p_present, &cfg.measure);
+        let stages = StageSeconds {
+            condition,
+            detect,
+            delineate,
+            measure: lap.next(),
+            ..StageSeconds::default()
+        };
         Ok(Stretch {
             det,
             del,
             windows,
             notch,
             dropped,
+            stages,
         })
     };
     let plan = chunk_plan(n_samples, rec.leads.len(), fs, &cfg.measure);
@@ -604,7 +670,11 @@ pub fn process_record(
         windows,
         notch,
         dropped,
+        mut stages,
     } = whole;
+    stages.read = read_s;
+    stages.condition += before_chunks;
+    let clock = std::time::Instant::now();
     if dropped > 0 {
         rec.warnings.push(format!(
             "{dropped} beat(s) within {} ms of a stretch missing in every lead dropped \
@@ -616,6 +686,8 @@ pub fn process_record(
     mark_paced_windows(&mut windows, &spikes, fs);
     let summary = tendline_measure::summarize(&windows, sex, &cfg.measure);
     let meas = tendline_measure::RecordMeasures { windows, summary };
+    stages.measure += clock.elapsed().as_secs_f64();
+    let clock = std::time::Instant::now();
     let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
 
     let mut g = Group::default();
@@ -652,12 +724,31 @@ pub fn process_record(
         .flat_map(|(i, l)| beat_annotations(l, &qrs, &labels, i as u8))
         .collect();
     leadmarks.sort_by_key(|a| (a.sample, a.chan));
+    stages.assemble = clock.elapsed().as_secs_f64();
     Ok(Processed {
         group: g,
         marks,
         leadmarks,
         n_samples: (n_samples * rec.leads.len()) as u64,
+        stages,
     })
+}
+
+/// Seconds between successive calls, for [`StageSeconds`].
+struct Lap(std::time::Instant);
+
+impl Lap {
+    fn start() -> Self {
+        Lap(std::time::Instant::now())
+    }
+
+    /// Seconds since the start or the previous call.
+    fn next(&mut self) -> f64 {
+        let now = std::time::Instant::now();
+        let s = now.duration_since(self.0).as_secs_f64();
+        self.0 = now;
+        s
+    }
 }
 
 /// The warning for a record whose typical range (`range`, in the unit its

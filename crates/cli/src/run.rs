@@ -48,9 +48,16 @@ pub struct RunOptions {
 /// How one record ended.
 #[derive(Debug, Clone)]
 pub enum Outcome {
-    Done { seconds: f64, samples: u64 },
+    Done {
+        seconds: f64,
+        samples: u64,
+        /// Time by stage ([`crate::pipeline::StageSeconds`]).
+        stages: crate::pipeline::StageSeconds,
+    },
     Reused,
-    Failed { error: String },
+    Failed {
+        error: String,
+    },
 }
 
 /// The run's result, for the caller to print and set the exit code.
@@ -61,6 +68,20 @@ pub struct RunReport {
 }
 
 impl RunReport {
+    /// Stage times summed over the records processed in this run, with their
+    /// count (records reused from an earlier run or failed are not in it).
+    pub fn stage_totals(&self) -> (crate::pipeline::StageSeconds, usize) {
+        let mut total = crate::pipeline::StageSeconds::default();
+        let mut n = 0;
+        for (_, o) in &self.outcomes {
+            if let Outcome::Done { stages, .. } = o {
+                total += *stages;
+                n += 1;
+            }
+        }
+        (total, n)
+    }
+
     pub fn failures(&self) -> Vec<(&RecordInput, &str)> {
         self.outcomes
             .iter()
@@ -390,6 +411,7 @@ fn process_one(
             Outcome::Done {
                 seconds: t0.elapsed().as_secs_f64(),
                 samples: processed.n_samples,
+                stages: processed.stages,
             },
             part,
             staged,
@@ -701,7 +723,9 @@ fn run_records(
         if plain {
             let _g = log.lock();
             let what = match &r.0 {
-                Outcome::Done { seconds, samples } => {
+                Outcome::Done {
+                    seconds, samples, ..
+                } => {
                     format!("done, {samples} samples in {seconds:.2} s")
                 }
                 Outcome::Reused => "unchanged, kept".to_string(),

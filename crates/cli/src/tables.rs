@@ -260,6 +260,14 @@ pub fn write_manifest(
     report: &RunReport,
     subjects_file: Option<&Path>,
 ) -> Result<()> {
+    let stage_json = |st: &crate::pipeline::StageSeconds| {
+        serde_json::Value::Object(
+            st.named()
+                .iter()
+                .map(|(k, v)| (k.to_string(), serde_json::json!((v * 1e4).round() / 1e4)))
+                .collect(),
+        )
+    };
     let records: Vec<serde_json::Value> = report
         .outcomes
         .iter()
@@ -269,7 +277,11 @@ pub fn write_manifest(
                 Outcome::Reused => ("reused", String::new()),
                 Outcome::Failed { error } => ("failed", error.clone()),
             };
-            serde_json::json!({"record": r.name, "path": r.path.display().to_string(), "status": status, "detail": detail})
+            let mut v = serde_json::json!({"record": r.name, "path": r.path.display().to_string(), "status": status, "detail": detail});
+            if let Outcome::Done { stages, .. } = o {
+                v["stage_seconds"] = stage_json(stages);
+            }
+            v
         })
         .collect();
     let v = serde_json::json!({
@@ -279,6 +291,10 @@ pub fn write_manifest(
         "config_sha256": ctx.config_sha256,
         "config_toml": ctx.config_toml,
         "seconds": report.seconds,
+        // Summed over the records processed in this run (not those reused),
+        // on whichever thread ran each: with several jobs the sum exceeds
+        // `seconds`, the run's wall time.
+        "stage_seconds": stage_json(&report.stage_totals().0),
         "subjects_file": subjects_file.map(|p| p.display().to_string()),
         "records": records,
     });
