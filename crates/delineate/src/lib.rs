@@ -674,21 +674,24 @@ pub fn delineate_prepared(
 /// Beats on either side of a beat that [`delineate_prepared`] must also
 /// delineate for that beat's marks to equal the full run's under `cfg`.
 pub fn context_margin(cfg: &DelineateConfig) -> usize {
-    // Global combination looks `global_context_beats` either side; the second
-    // T pass looks as far again; one more for the previous T end of the P search.
-    let recheck = if cfg.t_recheck_ms > 0.0 {
-        cfg.global_context_beats
-    } else {
-        0
-    };
-    // The P presence test looks `p_pr_context_beats` either side of a beat
-    // whose P marks then feed the global marks of beats that far again.
+    // Every step that reads neighbouring beats widens the reach of the steps
+    // after it, so the margin is the sum of their reaches, in the order of
+    // `delineate_analysed` and `across_leads`: one beat for the previous T
+    // end that bounds the P search; the second T pass (`t_recheck_ms`, the
+    // neighbours' T peaks); the P presence test (`p_pr_context_beats`); the
+    // global combination (`global_context_beats`), combined again after the
+    // leads' waves were searched again against it (`within_global`); the
+    // neighbour holds (`lead_ensemble_beats`, lead and global marks).
+    let g = cfg.global_context_beats;
+    let recheck = if cfg.t_recheck_ms > 0.0 { g } else { 0 };
     let p_test = if cfg.p_max_pr_mad_ms > 0.0 {
         cfg.p_pr_context_beats
     } else {
         0
     };
-    cfg.global_context_beats + recheck + p_test + 1
+    let again = cfg.lead_p_within_global || cfg.lead_t_within_global || cfg.lead_t_near_global;
+    let second = if again { g } else { 0 };
+    1 + recheck + p_test + g + second + cfg.lead_ensemble_beats
 }
 
 #[cfg(test)]
