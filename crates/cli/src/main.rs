@@ -191,7 +191,7 @@ fn cmd_run(a: RunArgs) -> Result<ExitCode> {
             let parts: Vec<String> = stages
                 .named()
                 .iter()
-                .map(|(k, v)| format!("{k} {v:.1} s ({:.0} %)", 100.0 * v / sum))
+                .map(|(k, v)| format!("{k} {v:.2} s ({:.0} %)", 100.0 * v / sum))
                 .collect();
             eprintln!(
                 "time by stage over the {n} record(s) processed (run.json `stage_seconds`): {}",
