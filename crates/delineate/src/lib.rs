@@ -44,8 +44,8 @@
 //!   nearest where the neighbouring beats put it, `global_pair_t`). A lead
 //!   P wave whose peak lies outside the global P span is searched again
 //!   near the other leads' P (`lead_p_within_global`); each lead's P and
-//!   QRS boundaries are then held to the median offsets of the lead's
-//!   neighbouring beats
+//!   QRS boundaries are then held to the centre of their offsets over the
+//!   lead's neighbouring beats (the median for QRS, a trimmed mean for P)
 //!   (`lead_ensemble_*`, module `ensemble`; the global QRS and P marks
 //!   likewise, `global_ensemble_qrs`, `global_ensemble_p`), held within the
 //!   global span of their
