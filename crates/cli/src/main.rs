@@ -259,7 +259,28 @@ fn tune_allocator() {
     // other thread exists.
     unsafe { libmimalloc_sys::mi_option_set(MI_OPTION_PURGE_DELAY, -1) };
     tune_glibc_allocator();
+    disable_transparent_huge_pages();
 }
+
+/// No transparent huge pages for this process. mimalloc asks the kernel for
+/// them on its arenas (`madvise`), and each first touch of a 2 MiB region
+/// then zeroes all of it, used or not. Measured over QTDB (release build,
+/// three runs each, identical outputs): system time with one worker
+/// 0.64-0.93 s -> 0.31-0.34 s, with two workers 1.40-1.81 s -> 0.36-0.44 s
+/// and wall time 4.79-4.90 s -> 4.19-4.41 s, user time unchanged. mimalloc's
+/// own option (`allow_thp`) is read before `main` runs, so the process flag
+/// is set here instead.
+#[cfg(target_os = "linux")]
+fn disable_transparent_huge_pages() {
+    // SAFETY: prctl with PR_SET_THP_DISABLE only sets a flag of this
+    // process's memory map; a kernel without it returns an error, ignored.
+    unsafe {
+        libc::prctl(libc::PR_SET_THP_DISABLE, 1, 0, 0, 0);
+    }
+}
+
+#[cfg(not(target_os = "linux"))]
+fn disable_transparent_huge_pages() {}
 
 #[cfg(all(target_os = "linux", target_env = "gnu"))]
 fn tune_glibc_allocator() {
@@ -324,5 +345,14 @@ mod tests {
             )
         };
         assert_eq!((purge, next), (1000, 0));
+    }
+
+    #[cfg(target_os = "linux")]
+    #[test]
+    fn transparent_huge_pages_are_off_for_the_process() {
+        super::disable_transparent_huge_pages();
+        // SAFETY: PR_GET_THP_DISABLE only reads the process flag.
+        let flag = unsafe { libc::prctl(libc::PR_GET_THP_DISABLE, 0, 0, 0, 0) };
+        assert_eq!(flag, 1, "PR_GET_THP_DISABLE after the call");
     }
 }
