@@ -17,6 +17,13 @@
 //! (346 MB) 533 MB; 6 hours (2.07 GB) 2.37 GB; 24 hours (8.29 GB) 9.10 GB. The
 //! estimates for these are 161 MB, 316 MB, 639 MB, 2.57 GB and 9.54 GB.
 //!
+//! Those records are WFDB records, and since the chunked ones are processed
+//! from their digital samples ([`defers`], the `deferred` module), a chunked
+//! WFDB record holds [`deferred_factor`] times its samples instead of
+//! [`READ_FACTOR`]: 6 hours 1.23 GB (estimate 1.50), 24 hours 4.94 GB (5.26),
+//! with `--jobs 2` 1.41 GB and 5.15 GB (1.70 and 5.46). [`READ_FACTOR`]
+//! still holds for the other formats.
+//!
 //! The budget is `--max-memory` (MiB) or else three quarters of the memory
 //! available when the run starts ([`available_bytes`]: the kernel's
 //! `MemAvailable`, or less under a container's memory limit); without either
@@ -85,24 +92,59 @@ pub fn read_need(samples: u64) -> u64 {
     (samples as f64 * READ_FACTOR) as u64 + (16 << 20)
 }
 
+/// Memory held by a WFDB record processed in chunks from its digital samples
+/// (the `deferred` module), per byte of its samples as `f64`, when it has
+/// `leads` signals: the digital samples (4 bytes of 8) and, during the
+/// passes over the whole record, one lead in physical units. Measured (peak
+/// of `tendline run --jobs 1`, `/usr/bin/time`) on the 24-hour 12-lead
+/// record of the module docs: 4 974 232 KiB, 0.58 times its 8.29 GB of
+/// samples once the chunk's working memory and [`BASE_BYTES`] are taken off
+/// (0.5 + 1/12 = 0.583); 0.02 more covers the program and the allocator's
+/// slack, as [`READ_FACTOR`] does for a record read whole.
+pub fn deferred_factor(leads: usize) -> f64 {
+    0.52 + 1.0 / leads.max(1) as f64
+}
+
 /// Estimated peak memory of processing a record of `samples` bytes
 /// ([`sample_bytes`]) in a run of `threads` worker threads whose chunks hold
 /// `chunk_samples` samples over all leads (`measure.chunk_mega_samples` ×
 /// 10⁶; 0 = never chunked). A chunked record runs up to `threads` chunks at
-/// once.
-pub fn need(samples: u64, chunk_samples: u64, threads: usize) -> u64 {
+/// once. `deferred`: the record's number of signals when a chunked record of
+/// its kind is processed from its digital samples ([`defers`]).
+pub fn need(samples: u64, chunk_samples: u64, threads: usize, deferred: Option<usize>) -> u64 {
     let s = samples as f64;
     let chunk = chunk_samples as f64 * 8.0;
     let chunked = chunk_samples > 0 && s > chunk;
     let (at_once, held) = if chunked {
         (
             chunk * CHUNK_EXTENT * threads.max(1) as f64,
-            s * READ_FACTOR,
+            s * deferred.map_or(READ_FACTOR, deferred_factor),
         )
     } else {
         (s, 0.0)
     };
     (at_once * STAGE_FACTOR + held) as u64 + BASE_BYTES
+}
+
+/// The number of signals of a WFDB record whose signals share one rate: a
+/// record the run processes from its digital samples when it is long enough
+/// to be chunked (`tendline_formats::read_record_deferred`). `None` for
+/// other records, and for a multi-segment record (conservatively: its
+/// segments' layout is not read here).
+pub fn defers(input: &RecordInput) -> Option<usize> {
+    let path = &input.path;
+    let ext = path
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase());
+    if matches!(ext.as_deref(), Some("edf" | "bdf" | "ecg" | "csv" | "xml")) {
+        return None;
+    }
+    let hea = tendline_formats::wfdb::header_path_of(path);
+    let text = std::fs::read_to_string(&hea).ok()?;
+    let h = tendline_formats::wfdb::parse_header(&text, &hea).ok()?;
+    let first = h.signals.first()?.samples_per_frame;
+    (!h.is_multi_segment() && h.signals.iter().all(|s| s.samples_per_frame == first))
+        .then_some(h.signals.len())
 }
 
 /// `measure.chunk_mega_samples` as samples (the `chunk_samples` of [`need`]).
@@ -266,9 +308,10 @@ mod tests {
             problem: None,
         };
         assert_eq!(sample_bytes(&input), 12 * 5000 * 8);
+        assert_eq!(defers(&input), Some(12));
         // 60 000 samples: one piece under the default 2 M-sample chunks.
         assert_eq!(
-            need(sample_bytes(&input), 2_000_000, 4),
+            need(sample_bytes(&input), 2_000_000, 4, defers(&input)),
             (12.0 * 5000.0 * 8.0 * STAGE_FACTOR) as u64 + BASE_BYTES
         );
     }
@@ -279,7 +322,7 @@ mod tests {
     #[test]
     fn chunks_bound_the_working_memory_of_a_long_record() {
         let day = 86_400_000u64 * 12 * 8; // 24 h, 12 leads at 1000 Hz, as f64
-        let chunked = need(day, chunk_samples(2.0), 1);
+        let chunked = need(day, chunk_samples(2.0), 1, None);
         let chunk_work = (2e6 * 8.0 * CHUNK_EXTENT * STAGE_FACTOR) as u64;
         assert_eq!(
             chunked,
@@ -291,13 +334,21 @@ mod tests {
             chunked >= measured && chunked <= measured / 10 * 11,
             "{chunked}"
         );
-        assert!(need(day, 0, 1) > 7 * day);
+        assert!(need(day, 0, 1, None) > 7 * day);
         // Twice the samples, at most twice (and a bit) the need, once chunked.
-        assert!(need(2 * day, chunk_samples(2.0), 1) < 2 * chunked);
+        assert!(need(2 * day, chunk_samples(2.0), 1, None) < 2 * chunked);
         // Two threads run two chunks of it at once: one more chunk's work
         // (measured with `--jobs 2`: 9.31 GB).
-        assert_eq!(need(day, chunk_samples(2.0), 2), chunked + chunk_work);
-        assert!(need(day, chunk_samples(2.0), 2) >= 9_314_356 * 1024);
+        assert_eq!(need(day, chunk_samples(2.0), 2, None), chunked + chunk_work);
+        assert!(need(day, chunk_samples(2.0), 2, None) >= 9_314_356 * 1024);
+        // The same record as WFDB, processed from its digital samples: within
+        // 10 % above the measured peaks (`--jobs 1`: 4 974 232 KiB; `--jobs 2`:
+        // 5 179 732 KiB).
+        for (threads, kib) in [(1, 4_974_232u64), (2, 5_179_732)] {
+            let d = need(day, chunk_samples(2.0), threads, Some(12));
+            let measured = kib * 1024;
+            assert!(d >= measured && d <= measured / 10 * 11, "{threads}: {d}");
+        }
     }
 
     #[test]

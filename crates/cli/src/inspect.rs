@@ -444,7 +444,12 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
                     a.checksums,
                     subjects.get(&r.name),
                     &siblings,
-                    crate::budget::need(samples, default_chunk, default_jobs),
+                    crate::budget::need(
+                        samples,
+                        default_chunk,
+                        default_jobs,
+                        crate::budget::defers(r),
+                    ),
                 )
             }))
             .unwrap_or_else(|p| Row {

@@ -3,6 +3,7 @@
 
 mod budget;
 mod config;
+mod deferred;
 mod h5layout;
 mod inputs;
 mod inspect;

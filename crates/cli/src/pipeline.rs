@@ -12,6 +12,7 @@ use tendline_dsp::amplitude::AmplitudeClass;
 use tendline_dsp::filter::FilterCache;
 use tendline_formats::annotation::{boundary_annotations, Annotation, WaveMarks};
 use tendline_formats::subjects::SubjectRow;
+use tendline_formats::wfdb::deferred::Loaded;
 use tendline_formats::Record;
 use tendline_store::{Attr, Data, Group};
 
@@ -29,6 +30,10 @@ pub struct Context {
     /// other jobs of its pool meanwhile, so a record started there beneath a
     /// waiting one could wait for the budget the suspended record holds.
     pub chunk_pool: Option<rayon::ThreadPool>,
+    /// Keep a WFDB record that will be processed in chunks digital until
+    /// each chunk is converted (`deferred`); off, it is read whole in
+    /// physical units (the oracle of the tests).
+    pub defer_long_records: bool,
 }
 
 impl Context {
@@ -40,6 +45,7 @@ impl Context {
             filters: FilterCache::new(config.filter.clone()),
             csv_fs,
             chunk_pool: None,
+            defer_long_records: true,
         })
     }
 }
@@ -150,7 +156,7 @@ pub(crate) fn check_record(rec: &Record, path: &Path) -> Result<()> {
 /// ECG lead has no sample: gaps of the recording itself (null segments, EDF+D
 /// gaps), as opposed to one lead's dropout, which the other leads cover. Found
 /// before the gaps are bridged, so that detection can leave them out.
-fn missing_in_every_lead(rec: &Record) -> Vec<(usize, usize)> {
+pub(crate) fn missing_in_every_lead(rec: &Record) -> Vec<(usize, usize)> {
     let ecg: Vec<&[f64]> = rec
         .leads
         .iter()
@@ -398,7 +404,9 @@ fn join_chunks(parts: Vec<(&Chunk, Stretch)>, fs: f64, n_leads: usize) -> Stretc
 }
 
 /// A long record's raw leads, moved out of the record, whose samples that no
-/// later chunk reaches are handed back to the kernel as the chunks go.
+/// later chunk reaches are handed back to the kernel as the chunks go. (A
+/// WFDB record never gets here whole in physical units when it can be
+/// processed from its digital samples: `crate::deferred`.)
 ///
 /// Why: a 24-hour 12-lead 1000-Hz recording holds 8.3 GB of raw samples
 /// (8 bytes per sample and lead); kept whole until the last chunk while the
@@ -451,9 +459,22 @@ impl RawLeads {
     }
 }
 
+/// Where a long record's chunks take their samples from: the physical
+/// samples as read, or a deferred record's digital ones (`deferred`).
+enum Samples {
+    Raw(RawLeads),
+    Deferred(crate::deferred::DeferredLeads),
+}
+
+/// Sample types for which all-zero bits are a valid value (what a released
+/// page reads as).
+pub(crate) trait ZeroBits: Copy {}
+impl ZeroBits for f64 {}
+impl ZeroBits for i32 {}
+
 /// Returns the whole memory pages inside `x` to the kernel.
 #[cfg(target_os = "linux")]
-fn release_pages(x: &mut [f64]) {
+pub(crate) fn release_pages<T: ZeroBits>(x: &mut [T]) {
     // SAFETY: sysconf only reads a system constant.
     let page = match unsafe { libc::sysconf(libc::_SC_PAGESIZE) } {
         p if p > 0 => p as usize,
@@ -466,8 +487,8 @@ fn release_pages(x: &mut [f64]) {
         // SAFETY: [a, b) lies inside `x`, which we borrow mutably, so no other
         // reference to it exists. Heap memory is private anonymous memory, for
         // which Linux's MADV_DONTNEED frees the pages and maps zero-filled
-        // ones on the next touch: the same as writing zeros (0.0 is all zero
-        // bits in f64), without touching the pages. A failed call changes
+        // ones on the next touch: the same as writing zeros (valid values of
+        // `T`: `ZeroBits`), without touching the pages. A failed call changes
         // nothing, so its result needs no check.
         unsafe {
             libc::madvise(a as *mut libc::c_void, b - a, libc::MADV_DONTNEED);
@@ -477,7 +498,7 @@ fn release_pages(x: &mut [f64]) {
 
 /// Elsewhere the memory is kept (the samples are simply not read again).
 #[cfg(not(target_os = "linux"))]
-fn release_pages(x: &mut [f64]) {
+pub(crate) fn release_pages<T: ZeroBits>(x: &mut [T]) {
     let _ = x;
 }
 
@@ -502,13 +523,43 @@ pub fn process_record(
     on_chunk: &mut dyn FnMut(ChunkProgress),
 ) -> Result<Processed> {
     let clock = std::time::Instant::now();
+    let cfg = &ctx.config;
     let opts = tendline_formats::ReadOptions { csv_fs: ctx.csv_fs };
-    let mut rec = tendline_formats::read_record(&input.path, &opts)
+    // A record that will be processed in chunks keeps its samples digital
+    // where the format allows (`deferred`): never whole in physical units.
+    let defer = |fs: f64, n: usize, leads: usize| {
+        ctx.defer_long_records && chunk_plan(n, leads, fs, &cfg.measure).len() > 1
+    };
+    let loaded = tendline_formats::read_record_deferred(&input.path, &opts, &defer)
         // Every format error already names the file it read.
         .context("reading the input")?;
-    check_record(&rec, &input.path)?;
-    let gaps = missing_in_every_lead(&rec);
-    let missing = fill_missing(&mut rec);
+    let (mut rec, digital) = match loaded {
+        Loaded::Physical(rec) => (rec, None),
+        Loaded::Deferred(d) => (d.record, Some(d.leads)),
+    };
+    let filter = ctx
+        .filters
+        .get(rec.fs)
+        .with_context(|| format!("{}: filter design", input.name));
+    let (gaps, missing, scan) = match digital {
+        None => {
+            check_record(&rec, &input.path)?;
+            let gaps = missing_in_every_lead(&rec);
+            let missing = fill_missing(&mut rec);
+            (gaps, missing, None)
+        }
+        Some(leads) => {
+            let filter = filter.as_ref().map_err(|e| anyhow::anyhow!("{e:#}"))?;
+            let mut s = crate::deferred::scan(&rec, leads, &input.path, filter, &cfg.filter)?;
+            (
+                std::mem::take(&mut s.gaps),
+                std::mem::take(&mut s.missing),
+                Some(s),
+            )
+        }
+    };
+    // Taken before a long record's samples leave `rec` (`RawLeads`).
+    let n_samples = scan.as_ref().map_or(rec.n_samples(), |s| s.leads.n());
     let bridged: Vec<String> = rec
         .leads
         .iter()
@@ -528,14 +579,12 @@ pub fn process_record(
     }
     let read_s = clock.elapsed().as_secs_f64();
     let clock = std::time::Instant::now();
-    let cfg = &ctx.config;
-    let filter = ctx
-        .filters
-        .get(rec.fs)
-        .with_context(|| format!("{}: filter design", input.name))?;
+    let filter = filter?;
     // Over the whole record (before any chunking), on the ECG leads only:
     // the other signals are held at zero and would never hold a spike.
-    let (amplitude, spikes) = {
+    let (amplitude, spikes) = if let Some(s) = &scan {
+        (s.amplitude, s.spikes.clone())
+    } else {
         let ecg = ecg_leads(&rec, &excluded);
         let amplitude = tendline_dsp::amplitude::assess(&ecg, rec.fs, &cfg.filter);
         // Samples far larger than millivolts make noise pass the spike rule's
@@ -562,8 +611,6 @@ pub fn process_record(
     stimulus_ends.sort_unstable();
     let names: Vec<String> = rec.leads.iter().map(|l| l.name.clone()).collect();
     let (fs, sex) = (rec.fs, rec.meta.sex);
-    // Taken before a long record's samples leave `rec` (`RawLeads`).
-    let n_samples = rec.n_samples();
     let before_chunks = clock.elapsed().as_secs_f64();
     // Filter, detect, delineate and measure one stretch of the record.
     let analyse = |raw: &[&[f64]], gaps: &[(usize, usize)], stimuli: &[usize]| -> Result<Stretch> {
@@ -610,7 +657,11 @@ pub fn process_record(
     };
     let plan = chunk_plan(n_samples, rec.leads.len(), fs, &cfg.measure);
     let whole = if plan.len() <= 1 {
-        let raw: Vec<&[f64]> = rec.leads.iter().map(|l| l.samples.as_slice()).collect();
+        let converted = scan.as_ref().map(|s| s.leads.stretch(0, n_samples));
+        let raw: Vec<&[f64]> = match &converted {
+            Some(c) => c.iter().map(Vec::as_slice).collect(),
+            None => rec.leads.iter().map(|l| l.samples.as_slice()).collect(),
+        };
         analyse(&raw, &gaps, &stimulus_ends)?
     } else {
         rec.warnings.push(format!(
@@ -620,7 +671,10 @@ pub fn process_record(
             (plan[0].core.1 - plan[0].core.0) as f64 / fs,
             (plan[0].ext.1 - plan[0].core.1) as f64 / fs,
         ));
-        let mut raw = RawLeads::take(&mut rec.leads);
+        let mut raw = match scan {
+            Some(s) => Samples::Deferred(s.leads),
+            None => Samples::Raw(RawLeads::take(&mut rec.leads)),
+        };
         let n_leads = rec.leads.len();
         // Chunks are independent: a wave of as many as the chunk pool has
         // threads runs at once, so one long record alone still uses every
@@ -643,7 +697,14 @@ pub fn process_record(
                     .filter(|&&e| e > c.ext.0 && e <= c.ext.1)
                     .map(|&e| e - c.ext.0)
                     .collect();
-                analyse(&held.slices(c.ext.0, c.ext.1), &local, &stimuli)
+                match held {
+                    Samples::Raw(r) => analyse(&r.slices(c.ext.0, c.ext.1), &local, &stimuli),
+                    Samples::Deferred(d) => {
+                        let x = d.stretch(c.ext.0, c.ext.1);
+                        let x: Vec<&[f64]> = x.iter().map(Vec::as_slice).collect();
+                        analyse(&x, &local, &stimuli)
+                    }
+                }
             };
             let stretches: Vec<Result<Stretch>> = match (&ctx.chunk_pool, group.len()) {
                 (Some(pool), 2..) => pool.install(|| group.par_iter().map(one).collect()),
@@ -659,7 +720,10 @@ pub fn process_record(
                 });
             }
             if let Some(next) = plan.get((w + 1) * wave) {
-                raw.release_before(next.ext.0);
+                match &mut raw {
+                    Samples::Raw(r) => r.release_before(next.ext.0),
+                    Samples::Deferred(d) => d.release_before(next.ext.0),
+                }
             }
         }
         join_chunks(parts, fs, rec.leads.len())
@@ -1225,6 +1289,68 @@ mod chunk_tests {
                 raw.release_before(next.ext.0);
                 assert_eq!(raw.released, next.ext.0);
             }
+        }
+    }
+
+    /// A long WFDB record processed from its digital samples (`deferred`)
+    /// against the oracle, the same record read whole in physical units
+    /// (`defer_long_records` off): the same store tree and annotations. The
+    /// record is QT Database sel100 (../shared/data) with stretches of
+    /// invalid samples written in (in both leads, in one lead, at the start,
+    /// across chunk boundaries) and processed in chunks of 0.1 M samples,
+    /// both one chunk at a time and two at once.
+    #[test]
+    fn a_deferred_record_gives_the_results_of_the_whole_record() {
+        let src =
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("../../../shared/data/qtdb/sel100.hea");
+        let mut rec = tendline_formats::read_record(&src, &Default::default())
+            .expect("../shared/data/qtdb/sel100 (see ../shared/data/README.md)");
+        rec.name = "gappy".into();
+        let n = rec.n_samples();
+        for (lead, a, b) in [
+            (0, 0, 300),
+            (1, 0, 120),
+            (0, 40_000, 40_900),
+            (1, 40_500, 41_000),
+            (1, 99_990, 100_700),
+            (0, n - 50, n),
+        ] {
+            rec.leads[lead].samples[a..b]
+                .iter_mut()
+                .for_each(|v| *v = f64::NAN);
+        }
+        let dir = tempfile::tempdir().unwrap();
+        let hea = tendline_formats::wfdb::write_record(dir.path(), &rec, 200.0).unwrap();
+        let input = RecordInput {
+            name: "gappy".into(),
+            path: hea,
+            problem: None,
+        };
+        let mut config = PipelineConfig::default();
+        config.measure.chunk_mega_samples = 0.1;
+        for threads in [1, 2] {
+            let run = |defer: bool| {
+                let mut ctx = Context::new(&config, None).unwrap();
+                ctx.defer_long_records = defer;
+                ctx.chunk_pool = (threads > 1).then(|| {
+                    rayon::ThreadPoolBuilder::new()
+                        .num_threads(threads)
+                        .build()
+                        .unwrap()
+                });
+                let mut chunks = 0;
+                let p = process_record(&input, &ctx, None, &[], &mut |_| chunks += 1).unwrap();
+                (p, chunks)
+            };
+            let ((a, ca), (b, cb)) = (run(true), run(false));
+            assert!(ca >= 4 && ca == cb, "chunks {ca} / {cb}");
+            assert!(a.marks.len() > 500, "{} beat marks", a.marks.len());
+            assert_eq!(a.marks, b.marks);
+            assert_eq!(a.leadmarks, b.leadmarks);
+            assert_eq!(a.n_samples, b.n_samples);
+            // Debug text: NaN fields (absent values) compare equal there, and
+            // every other float prints in a form that reads back exactly.
+            assert!(format!("{:?}", a.group) == format!("{:?}", b.group));
         }
     }
 

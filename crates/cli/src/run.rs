@@ -375,7 +375,12 @@ fn process_one(
         }
         let processed = {
             let chunk = crate::budget::chunk_samples(ctx.config.measure.chunk_mega_samples);
-            let _share = budget.acquire(crate::budget::need(progress.bytes, chunk, opts.jobs));
+            let _share = budget.acquire(crate::budget::need(
+                progress.bytes,
+                chunk,
+                opts.jobs,
+                crate::budget::defers(input),
+            ));
             pipeline::process_record(input, ctx, subject, &checksums, &mut |p| {
                 report.chunk(&input.name, p, progress)
             })?
@@ -396,7 +401,7 @@ fn process_one(
         };
         // The files are written here, in parallel with the other records; their
         // fsync and rename (slow on a real disk) wait for the committer thread.
-        let staged = stage_all(vec![
+        let mut staged = stage_all(vec![
             encode(
                 ann_dir.join(format!("{}.mark", input.name)),
                 &processed.marks,
@@ -405,8 +410,17 @@ fn process_one(
                 ann_dir.join(format!("{}.leadmark", input.name)),
                 &processed.leadmarks,
             )?,
-            (part_path.clone(), part.to_json(&part_path)?),
         ])?;
+        // Serialized straight to its file: a long record's part is large.
+        match part.stage_json(&part_path) {
+            Ok(tmp) => staged.push((tmp, part_path.clone())),
+            Err(e) => {
+                for (t, _) in &staged {
+                    let _ = std::fs::remove_file(t);
+                }
+                return Err(e.into());
+            }
+        }
         Ok((
             Outcome::Done {
                 seconds: t0.elapsed().as_secs_f64(),
@@ -623,7 +637,13 @@ fn note_budget(opts: &RunOptions, budget: &Budget, sizes: &[u64]) {
         .iter()
         .zip(sizes)
         .filter(|(r, _)| r.problem.is_none())
-        .map(|(r, &b)| (crate::budget::need(b, chunk, opts.jobs), r.name.as_str()))
+        .map(|(r, &b)| {
+            let deferred = crate::budget::defers(r);
+            (
+                crate::budget::need(b, chunk, opts.jobs, deferred),
+                r.name.as_str(),
+            )
+        })
         .collect();
     needs.sort_unstable_by_key(|n| std::cmp::Reverse(n.0));
     if let Some(note) = needs

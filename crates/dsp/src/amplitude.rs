@@ -113,8 +113,28 @@ pub fn assess(
     fs: f64,
     cfg: &crate::filter::FilterConfig,
 ) -> Option<(f64, AmplitudeClass)> {
-    let block = (cfg.amplitude_block_s * fs).round() as usize;
+    let block = block_samples(fs, cfg);
     record_range(leads, block).map(|r| (r, classify(r, cfg.amplitude_min_mv, cfg.amplitude_max_mv)))
+}
+
+/// The block of [`assess`] in samples at `fs` Hz.
+pub fn block_samples(fs: f64, cfg: &crate::filter::FilterConfig) -> usize {
+    (cfg.amplitude_block_s * fs).round() as usize
+}
+
+/// [`assess`] from each lead's [`typical_range`] (blocks of
+/// [`block_samples`]), for a caller that sees one lead at a time.
+pub fn assess_ranges(
+    ranges: &[Option<f64>],
+    cfg: &crate::filter::FilterConfig,
+) -> Option<(f64, AmplitudeClass)> {
+    let mut r: Vec<f64> = ranges
+        .iter()
+        .flatten()
+        .copied()
+        .filter(|&r| r > 0.0)
+        .collect();
+    median(&mut r).map(|r| (r, classify(r, cfg.amplitude_min_mv, cfg.amplitude_max_mv)))
 }
 
 #[cfg(test)]

@@ -1484,6 +1484,23 @@ impl ConditioningFilter {
         find_spikes(leads, self.fs, &self.cfg.spike_rule())
     }
 
+    /// One lead's part of [`Self::pacing_spikes`] (its own spike stretches,
+    /// before the coincidence rule across leads); none when blanking is off.
+    pub fn lead_pacing_spikes(&self, x: &[f64]) -> Vec<(usize, usize)> {
+        if !self.cfg.pacing_blank {
+            return Vec::new();
+        }
+        crate::pacing::lead_spikes(x, self.fs, &self.cfg.spike_rule())
+    }
+
+    /// [`Self::pacing_spikes`] from every lead's [`Self::lead_pacing_spikes`].
+    pub fn join_pacing_spikes(&self, per_lead: &[Vec<(usize, usize)>]) -> Vec<Spike> {
+        if !self.cfg.pacing_blank {
+            return Vec::new();
+        }
+        crate::pacing::join_spikes(per_lead, &self.cfg.spike_rule())
+    }
+
     /// Conditions all leads of a record: pacing spikes blanked
     /// ([`Self::pacing_spikes`]), then [`Self::filter_record`]. Returns the
     /// filtered leads and the notch used.

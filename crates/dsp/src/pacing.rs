@@ -199,24 +199,33 @@ pub fn lead_spikes(x: &[f64], fs: f64, rule: &SpikeRule) -> Vec<(usize, usize)> 
 /// `min_lead_fraction` of the leads (each lead's spike within one sample),
 /// as the union of the leads' stretches, in increasing order.
 pub fn find_spikes(leads: &[&[f64]], fs: f64, rule: &SpikeRule) -> Vec<Spike> {
-    if leads.is_empty() {
+    let per_lead: Vec<Vec<(usize, usize)>> =
+        leads.iter().map(|x| lead_spikes(x, fs, rule)).collect();
+    join_spikes(&per_lead, rule)
+}
+
+/// The record's spikes from each lead's [`lead_spikes`] (one entry per lead,
+/// every lead of [`find_spikes`]), for a caller that sees one lead at a time.
+pub fn join_spikes(per_lead: &[Vec<(usize, usize)>], rule: &SpikeRule) -> Vec<Spike> {
+    let n_leads = per_lead.len();
+    if n_leads == 0 {
         return Vec::new();
     }
     // Every lead's stretches, widened by one sample for the coincidence test.
     let mut all: Vec<(usize, usize, usize)> = Vec::new();
-    for (l, x) in leads.iter().enumerate() {
-        all.extend(lead_spikes(x, fs, rule).into_iter().map(|(s, e)| (s, e, l)));
+    for (l, x) in per_lead.iter().enumerate() {
+        all.extend(x.iter().map(|&(s, e)| (s, e, l)));
     }
     all.sort_unstable();
-    let need = ((rule.min_lead_fraction * leads.len() as f64).ceil() as usize)
-        .max(rule.min_leads.min(leads.len()))
+    let need = ((rule.min_lead_fraction * n_leads as f64).ceil() as usize)
+        .max(rule.min_leads.min(n_leads))
         .max(1);
     let mut out = Vec::new();
     let mut i = 0;
     while i < all.len() {
         // A cluster: stretches that touch or overlap once widened by a sample.
         let (mut start, mut end) = (all[i].0, all[i].1);
-        let mut seen = vec![false; leads.len()];
+        let mut seen = vec![false; n_leads];
         let mut j = i;
         while j < all.len() && all[j].0 <= end + 1 {
             start = start.min(all[j].0);

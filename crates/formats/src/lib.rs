@@ -136,6 +136,31 @@ impl ReadOptions {
     }
 }
 
+/// [`read_record`], except that a WFDB record for which `defer(fs,
+/// n_samples, n_leads)` is true keeps its samples digital
+/// ([`wfdb::deferred`]): a caller that works through a long record in
+/// stretches converts one stretch at a time. Other formats, and WFDB records
+/// that cannot be deferred (several rates, variable layout), are read whole.
+pub fn read_record_deferred(
+    path: &Path,
+    opts: &ReadOptions,
+    defer: &dyn Fn(f64, usize, usize) -> bool,
+) -> Result<wfdb::deferred::Loaded, FormatError> {
+    let ext = path
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase());
+    let wfdb = match ext.as_deref() {
+        Some("hea") => true,
+        Some("edf" | "bdf" | "ecg" | "csv" | "xml") => false,
+        _ => wfdb::header_path_of(path).is_file(),
+    };
+    if wfdb {
+        wfdb::deferred::read_record_deferred(path, defer)
+    } else {
+        read_record(path, opts).map(wfdb::deferred::Loaded::Physical)
+    }
+}
+
 /// Read a record, choosing the reader by extension: `.hea` (or a path without
 /// extension that has a sibling `.hea`) → WFDB, `.edf` → EDF/EDF+, `.bdf` →
 /// BDF/BDF+ (24-bit EDF), `.ecg` → ISHNE Holter ([`ishne`]), `.csv` → CSV,

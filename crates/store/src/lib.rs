@@ -46,6 +46,15 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), StoreError> {
 /// [`commit`] finishes the write, possibly on another thread: `path` itself is not
 /// touched until then, so a reader never sees a half-written file.
 pub fn stage(path: &Path, bytes: &[u8]) -> Result<PathBuf, StoreError> {
+    stage_with(path, &mut |f| f.write_all(bytes))
+}
+
+/// [`stage`] with the content written by `write` (through a buffer), so that
+/// large content never needs to be held whole in memory.
+pub fn stage_with(
+    path: &Path,
+    write: &mut dyn FnMut(&mut dyn std::io::Write) -> std::io::Result<()>,
+) -> Result<PathBuf, StoreError> {
     use std::io::Write;
     let io = |source| StoreError::Io {
         path: path.to_path_buf(),
@@ -57,7 +66,11 @@ pub fn stage(path: &Path, bytes: &[u8]) -> Result<PathBuf, StoreError> {
         .unwrap_or(Path::new("."));
     std::fs::create_dir_all(dir).map_err(io)?;
     let tmp = tmp_sibling(path);
-    let written = std::fs::File::create(&tmp).and_then(|mut f| f.write_all(bytes));
+    let written = std::fs::File::create(&tmp).and_then(|f| {
+        let mut w = std::io::BufWriter::with_capacity(1 << 20, f);
+        write(&mut w)?;
+        w.flush()
+    });
     if let Err(e) = written {
         let _ = std::fs::remove_file(&tmp);
         return Err(io(e));
@@ -102,14 +115,16 @@ pub struct Part {
 impl Part {
     /// Save atomically as JSON.
     pub fn save(&self, path: &Path) -> Result<(), StoreError> {
-        write_atomic(path, &self.to_json(path)?)
+        let tmp = self.stage_json(path)?;
+        commit(&tmp, path)
     }
 
-    /// The JSON bytes [`Part::save`] writes (`path` names the file in errors).
-    pub fn to_json(&self, path: &Path) -> Result<Vec<u8>, StoreError> {
-        serde_json::to_vec(self).map_err(|e| StoreError::Invalid {
-            path: path.to_path_buf(),
-            message: e.to_string(),
+    /// [`stage`] for the part's JSON, written as it is serialized: a long
+    /// record's part (close to 1 GB of JSON for a 24-hour 12-lead record)
+    /// is never held whole in memory.
+    pub fn stage_json(&self, path: &Path) -> Result<PathBuf, StoreError> {
+        stage_with(path, &mut |w| {
+            serde_json::to_writer(w, self).map_err(std::io::Error::other)
         })
     }
 

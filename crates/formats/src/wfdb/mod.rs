@@ -46,6 +46,7 @@
 //! one) become NaN in physical units, as the `wfdb` Python package does.
 
 mod decode;
+pub mod deferred;
 mod flac;
 mod header;
 mod layout;
