@@ -22,7 +22,7 @@ use std::path::Path;
 use tendline_dsp::amplitude::{self, AmplitudeClass};
 use tendline_dsp::filter::{ConditioningFilter, FilterConfig};
 use tendline_dsp::pacing::Spike;
-use tendline_formats::wfdb::deferred::DigitalLead;
+use tendline_formats::wfdb::deferred::{DigitalLead, SamplesMut};
 use tendline_formats::Record;
 
 /// A run of missing samples `start..end` of one lead and the samples on
@@ -300,10 +300,14 @@ impl DeferredLeads {
         if lo <= self.released {
             return;
         }
+        let from = self.released;
         for d in &mut self.leads {
-            let x = d.samples_mut();
-            let end = lo.min(x.len());
-            crate::pipeline::release_pages(&mut x[self.released.min(end)..end]);
+            let end = lo.min(d.len());
+            let start = from.min(end);
+            match d.samples_mut() {
+                SamplesMut::I16(x) => crate::pipeline::release_pages(&mut x[start..end]),
+                SamplesMut::I32(x) => crate::pipeline::release_pages(&mut x[start..end]),
+            }
         }
         self.released = lo;
     }

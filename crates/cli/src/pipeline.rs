@@ -471,6 +471,7 @@ enum Samples {
 pub(crate) trait ZeroBits: Copy {}
 impl ZeroBits for f64 {}
 impl ZeroBits for i32 {}
+impl ZeroBits for i16 {}
 
 /// Returns the whole memory pages inside `x` to the kernel.
 #[cfg(target_os = "linux")]

@@ -1,10 +1,13 @@
 //! A WFDB record whose samples stay digital until a stretch of them is asked
 //! for, so that a long recording is never held whole in physical units.
 //!
-//! Why: physical samples take 8 bytes each (`f64`), digital ones 4 (`i32`):
-//! a 24-hour 12-lead 1000-Hz recording is 8.3 GB as read by
-//! [`super::read_record`] and 4.1 GB here. A caller that works through a
-//! long record in stretches converts only the stretch it works on.
+//! Why: physical samples take 8 bytes each (`f64`), digital ones 2 (`i16`,
+//! for the formats of up to 16 bits that need no accumulation: 16, 61, 80,
+//! 160, 212, 310, 311) or else 4 (`i32`): a 24-hour 12-lead 1000-Hz
+//! recording in format 16 is 8.3 GB as read by [`super::read_record`] and
+//! 2.1 GB here, and it is decoded into 16 bits directly, never held wider. A
+//! caller that works through a long record in stretches converts only the
+//! stretch it works on.
 //!
 //! [`DigitalLead::physical`] gives exactly the values [`super::read_record`]
 //! gives for the same samples: the same operations in the same order
@@ -13,14 +16,28 @@
 //! whose signals share one rate are deferred: a slower signal would need the
 //! interpolation of [`super::read_record`] first.
 
-use super::{invalid_value, record_from_signals, to_mv_factor, WfdbSignals};
+use super::{invalid_value, record_from_signals, to_mv_factor, Digital, WfdbSignals};
 use crate::{FormatError, Lead, Metadata, Record};
 use std::path::Path;
+
+/// Digital samples in the narrowest type that holds their format.
+#[derive(Debug, Clone, PartialEq)]
+enum Store {
+    I16(Vec<i16>),
+    I32(Vec<i32>),
+}
+
+/// A lead's digital samples, mutable, for a caller that hands the memory of
+/// samples it has done with back to the system ([`DigitalLead::samples_mut`]).
+pub enum SamplesMut<'a> {
+    I16(&'a mut [i16]),
+    I32(&'a mut [i32]),
+}
 
 /// One signal's digital samples and what converts them to physical units.
 #[derive(Debug, Clone, PartialEq)]
 pub struct DigitalLead {
-    samples: Vec<i32>,
+    samples: Store,
     baseline: f64,
     gain: f64,
     /// Factor to millivolts; `None` when the units are mV or not a voltage
@@ -39,6 +56,27 @@ impl DigitalLead {
         factor: Option<f64>,
         invalid: Option<i32>,
     ) -> Self {
+        Self::with_store(Store::I32(samples), baseline, gain, factor, invalid)
+    }
+
+    /// [`DigitalLead::new`] for samples held in 16 bits.
+    pub fn new_i16(
+        samples: Vec<i16>,
+        baseline: f64,
+        gain: f64,
+        factor: Option<f64>,
+        invalid: Option<i32>,
+    ) -> Self {
+        Self::with_store(Store::I16(samples), baseline, gain, factor, invalid)
+    }
+
+    fn with_store(
+        samples: Store,
+        baseline: f64,
+        gain: f64,
+        factor: Option<f64>,
+        invalid: Option<i32>,
+    ) -> Self {
         Self {
             samples,
             baseline,
@@ -50,18 +88,28 @@ impl DigitalLead {
 
     /// Number of samples.
     pub fn len(&self) -> usize {
-        self.samples.len()
+        match &self.samples {
+            Store::I16(x) => x.len(),
+            Store::I32(x) => x.len(),
+        }
     }
 
     /// Whether the lead holds no sample.
     pub fn is_empty(&self) -> bool {
-        self.samples.is_empty()
+        self.len() == 0
     }
 
     /// Physical values of samples `a..b` (clamped to the lead).
     pub fn physical(&self, a: usize, b: usize) -> Vec<f64> {
-        let b = b.min(self.samples.len());
+        let b = b.min(self.len());
         let a = a.min(b);
+        match &self.samples {
+            Store::I16(x) => self.convert(&x[a..b]),
+            Store::I32(x) => self.convert(&x[a..b]),
+        }
+    }
+
+    fn convert<T: super::Digital>(&self, x: &[T]) -> Vec<f64> {
         let (base, gain) = (self.baseline, self.gain);
         let bad = self.invalid;
         let conv = |d: i32| {
@@ -72,20 +120,26 @@ impl DigitalLead {
             }
         };
         match self.factor {
-            None => self.samples[a..b].iter().map(|&d| conv(d)).collect(),
-            Some(f) => self.samples[a..b].iter().map(|&d| conv(d) * f).collect(),
+            None => x.iter().map(|&d| conv(d.to_i32())).collect(),
+            Some(f) => x.iter().map(|&d| conv(d.to_i32()) * f).collect(),
         }
     }
 
     /// The digital samples themselves, for a caller that hands the memory of
     /// samples it has done with back to the system as it goes.
-    pub fn samples_mut(&mut self) -> &mut [i32] {
-        &mut self.samples
+    pub fn samples_mut(&mut self) -> SamplesMut<'_> {
+        match &mut self.samples {
+            Store::I16(x) => SamplesMut::I16(x),
+            Store::I32(x) => SamplesMut::I32(x),
+        }
     }
 
     /// Bytes the digital samples take.
     pub fn bytes(&self) -> usize {
-        std::mem::size_of_val(self.samples.as_slice())
+        match &self.samples {
+            Store::I16(x) => std::mem::size_of_val(x.as_slice()),
+            Store::I32(x) => std::mem::size_of_val(x.as_slice()),
+        }
     }
 }
 
@@ -135,11 +189,56 @@ pub fn read_record_deferred(
     if header.is_multi_segment() && super::variable_layout_segment(&header).is_some() {
         return super::layout::read_variable_layout(&path, header).map(Loaded::Physical);
     }
+    // Formats of at most 16 bits are held in 16 bits from the start: the
+    // record is never held wider, even while it is read.
+    if !header.is_multi_segment()
+        && !header.signals.is_empty()
+        && header.signals.iter().all(|s| i16::holds(s.format))
+    {
+        let w: WfdbSignals<i16> = super::read_single(&path, header)?;
+        return Ok(if deferrable(&w, defer) {
+            Loaded::Deferred(deferred_from_signals(w, Store::I16))
+        } else {
+            Loaded::Physical(record_from_signals(widen(w)))
+        });
+    }
     let w = if header.is_multi_segment() {
         super::read_multi_segment(&path, header)?
     } else {
         super::read_single(&path, header)?
     };
+    Ok(if deferrable(&w, defer) {
+        Loaded::Deferred(deferred_from_signals(w, Store::I32))
+    } else {
+        Loaded::Physical(record_from_signals(w))
+    })
+}
+
+/// Signals held in 16 bits, widened one at a time (each freed as soon as its
+/// wide copy exists), for the record read whole.
+fn widen(mut w: WfdbSignals<i16>) -> WfdbSignals {
+    let signals = std::mem::take(&mut w.signals)
+        .into_iter()
+        .map(|s| super::DigitalSignal {
+            spec: s.spec,
+            samples: s.samples.into_iter().map(i32::from).collect(),
+        })
+        .collect();
+    WfdbSignals {
+        header: w.header,
+        fs: w.fs,
+        n_frames: w.n_frames,
+        signals,
+        files: w.files,
+        warnings: w.warnings,
+    }
+}
+
+/// Whether signals that share one rate should stay digital (`defer`).
+fn deferrable<T: super::Digital>(
+    w: &WfdbSignals<T>,
+    defer: &dyn Fn(f64, usize, usize) -> bool,
+) -> bool {
     let one_rate = w
         .signals
         .windows(2)
@@ -149,14 +248,15 @@ pub fn read_record_deferred(
         .signals
         .first()
         .map_or(1, |s| s.spec.samples_per_frame.max(1));
-    if !one_rate || !defer(w.fs * spf as f64, n, w.signals.len()) {
-        return Ok(Loaded::Physical(record_from_signals(w)));
-    }
-    Ok(Loaded::Deferred(deferred_from_signals(w)))
+    one_rate && defer(w.fs * spf as f64, n, w.signals.len())
 }
 
-/// The deferred form of signals that share one rate.
-fn deferred_from_signals(mut w: WfdbSignals) -> DeferredRecord {
+/// The deferred form of signals that share one rate; `store` holds one
+/// signal's samples.
+fn deferred_from_signals<T: super::Digital>(
+    mut w: WfdbSignals<T>,
+    store: fn(Vec<T>) -> Store,
+) -> DeferredRecord {
     let spf = w
         .signals
         .first()
@@ -175,8 +275,8 @@ fn deferred_from_signals(mut w: WfdbSignals) -> DeferredRecord {
             },
             samples: Vec::new(),
         });
-        digital.push(DigitalLead::new(
-            s.samples,
+        digital.push(DigitalLead::with_store(
+            store(s.samples),
             s.spec.baseline as f64,
             s.spec.adc_gain,
             factor,

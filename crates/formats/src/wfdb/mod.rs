@@ -64,23 +64,61 @@ use crate::{FormatError, Lead, Metadata, Record};
 
 /// One signal as stored: its header line and its digital samples.
 #[derive(Debug, Clone, PartialEq)]
-pub struct DigitalSignal {
+pub struct DigitalSignal<T = i32> {
     /// The signal's header line (for a multi-segment record, the first segment's).
     pub spec: SignalSpec,
     /// Digital samples, `n_frames × samples_per_frame` of them.
-    pub samples: Vec<i32>,
+    pub samples: Vec<T>,
+}
+
+/// Integer types digital samples are held in: `i32` holds every format;
+/// `i16` the formats of at most 16 bits whose values need no accumulation
+/// ([`Digital::holds`]), at half the memory.
+pub trait Digital: Copy + Send + Sync + std::fmt::Debug + PartialEq + 'static {
+    /// The value of a decoded sample (within the type's range for the
+    /// formats it [`Digital::holds`]).
+    fn from_i32(v: i32) -> Self;
+    fn to_i32(self) -> i32;
+    /// Whether every sample of signal format `format` fits this type.
+    fn holds(format: u32) -> bool;
+}
+
+impl Digital for i32 {
+    fn from_i32(v: i32) -> Self {
+        v
+    }
+    fn to_i32(self) -> i32 {
+        self
+    }
+    fn holds(_: u32) -> bool {
+        true
+    }
+}
+
+impl Digital for i16 {
+    fn from_i32(v: i32) -> Self {
+        v as i16
+    }
+    fn to_i32(self) -> i32 {
+        self as i32
+    }
+    /// Format 8 (first differences) is left out: its running sum is not
+    /// bounded to 16 bits; the FLAC formats go through their own decoder.
+    fn holds(format: u32) -> bool {
+        matches!(format, 16 | 61 | 80 | 160 | 212 | 310 | 311)
+    }
 }
 
 /// Digital content of a WFDB record, each signal at its own rate.
 #[derive(Debug, Clone, PartialEq)]
-pub struct WfdbSignals {
+pub struct WfdbSignals<T = i32> {
     /// The record's own header (for a multi-segment record: the master header).
     pub header: Header,
     /// Frame frequency in Hz; signal `i` has `fs × samples_per_frame` samples per second.
     pub fs: f64,
     /// Number of frames read.
     pub n_frames: u64,
-    pub signals: Vec<DigitalSignal>,
+    pub signals: Vec<DigitalSignal<T>>,
     /// Every file read (headers and signal files).
     pub files: Vec<PathBuf>,
     /// Checksum and initial-value mismatches, invalid-sample notes.
@@ -176,7 +214,7 @@ struct FileGroup {
     tspf: u64,
 }
 
-fn read_single(path: &Path, header: Header) -> Result<WfdbSignals, FormatError> {
+fn read_single<T: Digital>(path: &Path, header: Header) -> Result<WfdbSignals<T>, FormatError> {
     let dir = path.parent().unwrap_or(Path::new(""));
     // Group signals by file, in order of first appearance.
     let mut groups: Vec<FileGroup> = Vec::new();
@@ -302,14 +340,23 @@ fn read_single(path: &Path, header: Header) -> Result<WfdbSignals, FormatError> 
             _ => 0,
         },
     };
-    let mut signals: Vec<Option<DigitalSignal>> = vec![None; header.signals.len()];
+    if let Some(s) = header.signals.iter().find(|s| !T::holds(s.format)) {
+        return Err(unsupported(
+            path,
+            format!(
+                "line {}: format {} does not fit the sample type asked for",
+                s.line, s.format
+            ),
+        ));
+    }
+    let mut signals: Vec<Option<DigitalSignal<T>>> = vec![None; header.signals.len()];
     for ((g, (fpath, mut f, avail)), lay) in groups.iter().zip(opened).zip(&flac_layouts) {
         if let Some(lay) = lay {
             let outs = flac::read_signals(&fpath, f, lay, n_frames)?;
             for (&i, out) in g.signals.iter().zip(outs) {
                 signals[i] = Some(DigitalSignal {
                     spec: header.signals[i].clone(),
-                    samples: out,
+                    samples: out.into_iter().map(T::from_i32).collect(),
                 });
             }
             files.push(fpath);
@@ -349,7 +396,7 @@ fn read_single(path: &Path, header: Header) -> Result<WfdbSignals, FormatError> 
         }
         files.push(fpath);
     }
-    let signals: Vec<DigitalSignal> = signals.into_iter().flatten().collect();
+    let signals: Vec<DigitalSignal<T>> = signals.into_iter().flatten().collect();
     for (i, s) in signals.iter().enumerate() {
         check_signal(path, i, s, &mut warnings);
     }
@@ -410,13 +457,13 @@ fn slots_of(header: &Header, signals: &[usize]) -> Vec<Slot> {
 ///
 /// Returns one vector per slot with `n_frames × spf` samples. Samples that skew
 /// places past the end of the file are the format's invalid value.
-fn demux<R: Read>(
+fn demux<R: Read, T: Digital>(
     format: u32,
     r: &mut R,
     avail: u64,
     n_frames: u64,
     slots: &[Slot],
-) -> std::io::Result<Vec<Vec<i32>>> {
+) -> std::io::Result<Vec<Vec<T>>> {
     let tspf: usize = slots.iter().map(|s| s.spf).sum();
     let max_skew = slots.iter().map(|s| s.skew).max().unwrap_or(0);
     let total_frames = n_frames.saturating_add(max_skew);
@@ -425,8 +472,8 @@ fn demux<R: Read>(
     let stream_frames = avail_samples.div_ceil(tspf.max(1));
     // A multiple of 6 frames keeps block starts on 212/310/311 group boundaries.
     let block_frames = 6 * (8192 / tspf.max(1)).max(1);
-    let bad = invalid_value(format).unwrap_or(i32::MIN);
-    let mut outs: Vec<Vec<i32>> = slots
+    let bad = T::from_i32(invalid_value(format).unwrap_or(i32::MIN));
+    let mut outs: Vec<Vec<T>> = slots
         .iter()
         .map(|s| Vec::with_capacity(n_frames as usize * s.spf))
         .collect();
@@ -466,7 +513,11 @@ fn demux<R: Read>(
             }
             let first = (f0 + skew) * tspf + sl.pos - s0;
             if tspf == 1 {
-                out.extend_from_slice(&sbuf[first..first + (f1 - f0)]);
+                out.extend(
+                    sbuf[first..first + (f1 - f0)]
+                        .iter()
+                        .map(|&v| T::from_i32(v)),
+                );
             } else if sl.spf == 1 {
                 // The last frame of the stream may be partial: pad what it lacks.
                 let want = out.len() + (f1 - f0);
@@ -475,14 +526,15 @@ fn demux<R: Read>(
                         .unwrap_or(&[])
                         .iter()
                         .step_by(tspf)
-                        .take(f1 - f0),
+                        .take(f1 - f0)
+                        .map(|&v| T::from_i32(v)),
                 );
                 out.resize(want, bad);
             } else {
                 for fr in 0..f1 - f0 {
                     let base = first + fr * tspf;
                     for j in 0..sl.spf {
-                        out.push(sbuf.get(base + j).copied().unwrap_or(bad));
+                        out.push(sbuf.get(base + j).map_or(bad, |&v| T::from_i32(v)));
                     }
                 }
             }
@@ -496,7 +548,12 @@ fn demux<R: Read>(
 }
 
 /// Verify checksum and initial value of one signal; note invalid samples.
-fn check_signal(path: &Path, i: usize, s: &DigitalSignal, warnings: &mut Vec<String>) {
+fn check_signal<T: Digital>(
+    path: &Path,
+    i: usize,
+    s: &DigitalSignal<T>,
+    warnings: &mut Vec<String>,
+) {
     let spec = &s.spec;
     let who = format!(
         "{}: line {} (signal {i}, `{}`)",
@@ -508,7 +565,7 @@ fn check_signal(path: &Path, i: usize, s: &DigitalSignal, warnings: &mut Vec<Str
         let sum = s
             .samples
             .iter()
-            .fold(0i64, |a, &v| a.wrapping_add(v as i64));
+            .fold(0i64, |a, &v| a.wrapping_add(v.to_i32() as i64));
         // The checksum is the 16-bit sum; headers write it signed or unsigned.
         if sum.rem_euclid(65536) != c.rem_euclid(65536) {
             warnings.push(format!(
@@ -517,7 +574,7 @@ fn check_signal(path: &Path, i: usize, s: &DigitalSignal, warnings: &mut Vec<Str
             ));
         }
     }
-    if let (Some(iv), Some(&first)) = (spec.init_value, s.samples.first()) {
+    if let (Some(iv), Some(first)) = (spec.init_value, s.samples.first().map(|v| v.to_i32())) {
         if spec.format != 8 && iv != first as i64 {
             warnings.push(format!(
                 "{who}: initial value mismatch: header {iv}, first sample {first}"
@@ -525,7 +582,7 @@ fn check_signal(path: &Path, i: usize, s: &DigitalSignal, warnings: &mut Vec<Str
         }
     }
     if let Some(bad) = invalid_value(spec.format) {
-        let n = s.samples.iter().filter(|&&v| v == bad).count();
+        let n = s.samples.iter().filter(|&&v| v.to_i32() == bad).count();
         if n > 0 {
             warnings.push(format!("{who}: {n} invalid (missing) samples, read as NaN"));
         }
@@ -997,6 +1054,7 @@ mod tests {
             x ^= x << 17;
             x
         };
+        let mut narrow16 = 0;
         for case in 0..300 {
             let format = [8, 16, 24, 32, 61, 80, 160, 212, 310, 311][case % 10];
             let nsig = 1 + (next() % 4) as usize;
@@ -1029,7 +1087,7 @@ mod tests {
                 next() % (max_frames + 1)
             } as usize;
             let want = demux_simple(format, &bytes, n_frames, &slots);
-            let got = demux(
+            let got: Vec<Vec<i32>> = demux(
                 format,
                 &mut &bytes[..],
                 nbytes as u64,
@@ -1041,6 +1099,24 @@ mod tests {
                 got, want,
                 "case {case}: format {format}, slots {slots:?}, {nbytes} bytes, {n_frames} frames"
             );
+            // The same samples held in 16 bits, for the formats that fit.
+            if i16::holds(format) {
+                let narrow: Vec<Vec<i16>> = demux(
+                    format,
+                    &mut &bytes[..],
+                    nbytes as u64,
+                    n_frames as u64,
+                    &slots,
+                )
+                .unwrap();
+                let wide: Vec<Vec<i32>> = narrow
+                    .iter()
+                    .map(|x| x.iter().map(|&v| i32::from(v)).collect())
+                    .collect();
+                assert_eq!(wide, want, "case {case}: format {format} in 16 bits");
+                narrow16 += 1;
+            }
         }
+        assert_eq!(narrow16, 210, "cases read in 16 bits");
     }
 }
