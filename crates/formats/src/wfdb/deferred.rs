@@ -189,18 +189,36 @@ pub fn read_record_deferred(
     if header.is_multi_segment() && super::variable_layout_segment(&header).is_some() {
         return super::layout::read_variable_layout(&path, header).map(Loaded::Physical);
     }
-    // Formats of at most 16 bits are held in 16 bits from the start: the
-    // record is never held wider, even while it is read.
-    if !header.is_multi_segment()
-        && !header.signals.is_empty()
-        && header.signals.iter().all(|s| i16::holds(s.format))
-    {
-        let w: WfdbSignals<i16> = super::read_single(&path, header)?;
-        return Ok(if deferrable(&w, defer) {
-            Loaded::Deferred(deferred_from_signals(w, Store::I16))
-        } else {
-            Loaded::Physical(record_from_signals(widen(w)))
-        });
+    if !header.is_multi_segment() {
+        if let Some(frames) = header.n_frames {
+            // Decided from the header, so that a record read whole is read
+            // exactly as `read_record` reads it.
+            let spf = header
+                .signals
+                .first()
+                .map_or(1, |s| s.samples_per_frame.max(1));
+            let one_rate = header
+                .signals
+                .iter()
+                .all(|s| s.samples_per_frame.max(1) == spf);
+            let n = frames.saturating_mul(spf as u64) as usize;
+            let deferred = one_rate
+                && !header.signals.is_empty()
+                && defer(header.fs * spf as f64, n, header.signals.len());
+            if !deferred {
+                return Ok(Loaded::Physical(record_from_signals(super::read_single(
+                    &path, header,
+                )?)));
+            }
+            // Formats of at most 16 bits are held in 16 bits from the start:
+            // the record is never held wider, even while it is read.
+            if header.signals.iter().all(|s| i16::holds(s.format)) {
+                let w: WfdbSignals<i16> = super::read_single(&path, header)?;
+                return Ok(Loaded::Deferred(deferred_from_signals(w, Store::I16)));
+            }
+            let w: WfdbSignals = super::read_single(&path, header)?;
+            return Ok(Loaded::Deferred(deferred_from_signals(w, Store::I32)));
+        }
     }
     let w = if header.is_multi_segment() {
         super::read_multi_segment(&path, header)?
@@ -212,26 +230,6 @@ pub fn read_record_deferred(
     } else {
         Loaded::Physical(record_from_signals(w))
     })
-}
-
-/// Signals held in 16 bits, widened one at a time (each freed as soon as its
-/// wide copy exists), for the record read whole.
-fn widen(mut w: WfdbSignals<i16>) -> WfdbSignals {
-    let signals = std::mem::take(&mut w.signals)
-        .into_iter()
-        .map(|s| super::DigitalSignal {
-            spec: s.spec,
-            samples: s.samples.into_iter().map(i32::from).collect(),
-        })
-        .collect();
-    WfdbSignals {
-        header: w.header,
-        fs: w.fs,
-        n_frames: w.n_frames,
-        signals,
-        files: w.files,
-        warnings: w.warnings,
-    }
 }
 
 /// Whether signals that share one rate should stay digital (`defer`).
