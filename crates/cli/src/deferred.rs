@@ -131,16 +131,7 @@ pub(crate) fn scan(
     filter: &ConditioningFilter,
     cfg: &FilterConfig,
 ) -> Result<Scan> {
-    if leads.is_empty() {
-        bail!("{}: record has no signals", path.display());
-    }
-    if !(rec.fs.is_finite() && rec.fs > 0.0) {
-        bail!(
-            "{}: sampling frequency must be positive, got {}",
-            path.display(),
-            rec.fs
-        );
-    }
+    crate::pipeline::check_shape(leads.len(), rec.fs, path)?;
     let n = leads[0].len();
     if n == 0 {
         bail!("{}: record is empty (0 samples)", path.display());
@@ -501,36 +492,29 @@ mod tests {
         let f = tendline_dsp::filter::FilterCache::new(FilterConfig::default())
             .get(250.0)
             .unwrap();
-        let none: Vec<DigitalLead> = (0..5)
+        let err = |leads: Vec<DigitalLead>| {
+            scan(
+                &shell,
+                leads,
+                Path::new("x.hea"),
+                &f,
+                &FilterConfig::default(),
+            )
+            .err()
+            .unwrap()
+            .to_string()
+        };
+        let none = (0..5)
             .map(|_| DigitalLead::new(vec![-32768; 10], 0.0, 200.0, None, Some(-32768)))
             .collect();
-        let e = scan(
-            &shell,
-            none,
-            Path::new("x.hea"),
-            &f,
-            &FilterConfig::default(),
-        )
-        .err()
-        .unwrap()
-        .to_string();
+        let e = err(none);
         assert!(
             e.contains("x.hea") && e.contains("every sample of every lead is missing"),
             "{e}"
         );
-        let empty: Vec<DigitalLead> = (0..5)
+        let e = err((0..5)
             .map(|_| DigitalLead::new(vec![], 0.0, 200.0, None, None))
-            .collect();
-        let e = scan(
-            &shell,
-            empty,
-            Path::new("x.hea"),
-            &f,
-            &FilterConfig::default(),
-        )
-        .err()
-        .unwrap()
-        .to_string();
+            .collect());
         assert!(e.contains("record is empty"), "{e}");
     }
 }

@@ -104,18 +104,24 @@ impl std::ops::AddAssign for StageSeconds {
     }
 }
 
-/// Reject records no stage can work on, naming the problem.
-pub(crate) fn check_record(rec: &Record, path: &Path) -> Result<()> {
-    if rec.leads.is_empty() {
+/// The first checks of [`check_record`]: at least one signal, a usable
+/// sampling rate.
+pub(crate) fn check_shape(n_leads: usize, fs: f64, path: &Path) -> Result<()> {
+    if n_leads == 0 {
         bail!("{}: record has no signals", path.display());
     }
-    if !(rec.fs.is_finite() && rec.fs > 0.0) {
+    if !(fs.is_finite() && fs > 0.0) {
         bail!(
-            "{}: sampling frequency must be positive, got {}",
-            path.display(),
-            rec.fs
+            "{}: sampling frequency must be positive, got {fs}",
+            path.display()
         );
     }
+    Ok(())
+}
+
+/// Reject records no stage can work on, naming the problem.
+pub(crate) fn check_record(rec: &Record, path: &Path) -> Result<()> {
+    check_shape(rec.leads.len(), rec.fs, path)?;
     let n = rec.n_samples();
     if n == 0 {
         bail!("{}: record is empty (0 samples)", path.display());

@@ -1087,33 +1087,28 @@ mod tests {
                 next() % (max_frames + 1)
             } as usize;
             let want = demux_simple(format, &bytes, n_frames, &slots);
-            let got: Vec<Vec<i32>> = demux(
-                format,
-                &mut &bytes[..],
-                nbytes as u64,
-                n_frames as u64,
-                &slots,
-            )
-            .unwrap();
+            fn widened<T: Digital>(out: Vec<Vec<T>>) -> Vec<Vec<i32>> {
+                out.into_iter()
+                    .map(|x| x.into_iter().map(T::to_i32).collect())
+                    .collect()
+            }
+            let run = |narrow: bool| {
+                let mut r = &bytes[..];
+                let (a, n) = (nbytes as u64, n_frames as u64);
+                if narrow {
+                    widened(demux::<_, i16>(format, &mut r, a, n, &slots).unwrap())
+                } else {
+                    widened(demux::<_, i32>(format, &mut r, a, n, &slots).unwrap())
+                }
+            };
             assert_eq!(
-                got, want,
+                run(false),
+                want,
                 "case {case}: format {format}, slots {slots:?}, {nbytes} bytes, {n_frames} frames"
             );
             // The same samples held in 16 bits, for the formats that fit.
             if i16::holds(format) {
-                let narrow: Vec<Vec<i16>> = demux(
-                    format,
-                    &mut &bytes[..],
-                    nbytes as u64,
-                    n_frames as u64,
-                    &slots,
-                )
-                .unwrap();
-                let wide: Vec<Vec<i32>> = narrow
-                    .iter()
-                    .map(|x| x.iter().map(|&v| i32::from(v)).collect())
-                    .collect();
-                assert_eq!(wide, want, "case {case}: format {format} in 16 bits");
+                assert_eq!(run(true), want, "case {case}: format {format} in 16 bits");
                 narrow16 += 1;
             }
         }
