@@ -59,17 +59,6 @@ impl DigitalLead {
         Self::with_store(Store::I32(samples), baseline, gain, factor, invalid)
     }
 
-    /// [`DigitalLead::new`] for samples held in 16 bits.
-    pub fn new_i16(
-        samples: Vec<i16>,
-        baseline: f64,
-        gain: f64,
-        factor: Option<f64>,
-        invalid: Option<i32>,
-    ) -> Self {
-        Self::with_store(Store::I16(samples), baseline, gain, factor, invalid)
-    }
-
     fn with_store(
         samples: Store,
         baseline: f64,
@@ -131,14 +120,6 @@ impl DigitalLead {
         match &mut self.samples {
             Store::I16(x) => SamplesMut::I16(x),
             Store::I32(x) => SamplesMut::I32(x),
-        }
-    }
-
-    /// Bytes the digital samples take.
-    pub fn bytes(&self) -> usize {
-        match &self.samples {
-            Store::I16(x) => std::mem::size_of_val(x.as_slice()),
-            Store::I32(x) => std::mem::size_of_val(x.as_slice()),
         }
     }
 }
