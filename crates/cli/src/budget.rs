@@ -4,7 +4,7 @@
 //! records in flight and all).
 //!
 //! A record's need is estimated before it is read, from its header or file
-//! size ([`sample_bytes`]: its samples as `f64`, 8 bytes per sample and lead)
+//! size ([`estimate`]: its samples as `f64`, 8 bytes per sample and lead)
 //! and the chunk size of the run ([`need`]): the stages hold about
 //! [`STAGE_FACTOR`] times the samples they process at once (the whole record,
 //! or one chunk with its overlap), and a record processed in chunks also
@@ -18,7 +18,7 @@
 //! estimates for these are 161 MB, 316 MB, 639 MB, 2.57 GB and 9.54 GB.
 //!
 //! Those records are WFDB records (format 16), and since the chunked ones are
-//! processed from their digital samples ([`defers`], the `deferred` module),
+//! processed from their digital samples ([`Estimate::deferred`], the `deferred` module),
 //! a chunked WFDB record holds [`deferred_factor`] times its samples instead
 //! of [`READ_FACTOR`]: 6 hours 1.09 GB (estimate 1.33), 24 hours 4.13 GB
 //! (4.57), with `--jobs 2` 1.38 GB and 4.07 GB (1.53 and 4.77), less the
@@ -49,24 +49,40 @@ pub const CHUNK_EXTENT: f64 = 1.75;
 /// buffers of the stages.
 pub const BASE_BYTES: u64 = 48 << 20;
 
-/// Bytes a record's samples take as `f64`, estimated without decoding it:
-/// from a WFDB header's frame count, else from the file sizes (binary formats
-/// store 2 to 3 bytes per sample, text about 8 characters per value).
-pub fn sample_bytes(input: &RecordInput) -> u64 {
+/// What the budget knows of a record before reading it.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Estimate {
+    /// Its samples as `f64`, estimated without decoding it: from a WFDB
+    /// header's frame count, else from the file sizes (binary formats store 2
+    /// to 3 bytes per sample, text about 8 characters per value).
+    pub bytes: u64,
+    /// For a WFDB record the run processes from its digital samples when it
+    /// is long enough to be chunked (`tendline_formats::read_record_deferred`:
+    /// one segment, one rate, a length in the header), its
+    /// [`deferred_factor`]; `None` otherwise.
+    pub deferred: Option<f64>,
+}
+
+/// A record's [`Estimate`], reading at most its header or file size, once.
+pub fn estimate(input: &RecordInput) -> Estimate {
     let path = &input.path;
     let ext = path
         .extension()
         .map(|e| e.to_string_lossy().to_ascii_lowercase());
     let size = |p: &Path| std::fs::metadata(p).map(|m| m.len()).unwrap_or(0);
-    match ext.as_deref() {
+    let bytes = match ext.as_deref() {
         Some("edf") | Some("ecg") => size(path) * 4,
         Some("bdf") => size(path) * 8 / 3,
         Some("csv") | Some("xml") => size(path),
-        _ => wfdb_sample_bytes(path).unwrap_or(0),
+        _ => return wfdb_estimate(path).unwrap_or_default(),
+    };
+    Estimate {
+        bytes,
+        deferred: None,
     }
 }
 
-fn wfdb_sample_bytes(path: &Path) -> Option<u64> {
+fn wfdb_estimate(path: &Path) -> Option<Estimate> {
     let hea = tendline_formats::wfdb::header_path_of(path);
     let text = std::fs::read_to_string(&hea).ok()?;
     let h = tendline_formats::wfdb::parse_header(&text, &hea).ok()?;
@@ -77,7 +93,19 @@ fn wfdb_sample_bytes(path: &Path) -> Option<u64> {
         .max()
         .unwrap_or(1);
     let n_sig = h.n_sig.max(h.signals.len()) as u64;
-    Some(h.n_frames? * spf * n_sig * 8)
+    let one_rate = h
+        .signals
+        .iter()
+        .all(|s| u64::from(s.samples_per_frame.max(1)) == spf);
+    let narrow = h
+        .signals
+        .iter()
+        .all(|s| <i16 as tendline_formats::wfdb::Digital>::holds(s.format));
+    Some(Estimate {
+        bytes: h.n_frames? * spf * n_sig * 8,
+        deferred: (!h.is_multi_segment() && one_rate && !h.signals.is_empty())
+            .then(|| deferred_factor(h.signals.len(), if narrow { 2 } else { 4 })),
+    })
 }
 
 /// Memory held while a record is read, per byte of its samples as `f64`:
@@ -87,7 +115,7 @@ fn wfdb_sample_bytes(path: &Path) -> Option<u64> {
 /// one (8.29 GB), 1.12 and 1.08 times the samples less the program's 34 MB.
 pub const READ_FACTOR: f64 = 1.12;
 
-/// Estimated peak memory of reading a record of `samples` bytes ([`sample_bytes`])
+/// Estimated peak memory of reading a record of `samples` bytes ([`estimate`])
 /// without processing it (bytes).
 pub fn read_need(samples: u64) -> u64 {
     (samples as f64 * READ_FACTOR) as u64 + (16 << 20)
@@ -111,12 +139,12 @@ pub fn deferred_factor(leads: usize, bytes: usize) -> f64 {
 }
 
 /// Estimated peak memory of processing a record of `samples` bytes
-/// ([`sample_bytes`]) in a run of `threads` worker threads whose chunks hold
+/// ([`estimate`]) in a run of `threads` worker threads whose chunks hold
 /// `chunk_samples` samples over all leads (`measure.chunk_mega_samples` ×
 /// 10⁶; 0 = never chunked). A chunked record runs up to `threads` chunks at
 /// once. `deferred`: what such a record holds per byte of its samples as
 /// `f64` when a chunked record of its kind is processed from its digital
-/// samples ([`defers`]).
+/// samples ([`Estimate::deferred`]).
 pub fn need(samples: u64, chunk_samples: u64, threads: usize, deferred: Option<f64>) -> u64 {
     let s = samples as f64;
     let chunk = chunk_samples as f64 * 8.0;
@@ -130,31 +158,6 @@ pub fn need(samples: u64, chunk_samples: u64, threads: usize, deferred: Option<f
         (s, 0.0)
     };
     (at_once * STAGE_FACTOR + held) as u64 + BASE_BYTES
-}
-
-/// For a WFDB record whose signals share one rate, a record the run
-/// processes from its digital samples when it is long enough to be chunked
-/// (`tendline_formats::read_record_deferred`): its [`deferred_factor`].
-/// `None` for other records, and for a multi-segment record
-/// (conservatively: its segments' layout is not read here).
-pub fn defers(input: &RecordInput) -> Option<f64> {
-    let path = &input.path;
-    let ext = path
-        .extension()
-        .map(|e| e.to_string_lossy().to_ascii_lowercase());
-    if matches!(ext.as_deref(), Some("edf" | "bdf" | "ecg" | "csv" | "xml")) {
-        return None;
-    }
-    let hea = tendline_formats::wfdb::header_path_of(path);
-    let text = std::fs::read_to_string(&hea).ok()?;
-    let h = tendline_formats::wfdb::parse_header(&text, &hea).ok()?;
-    let first = h.signals.first()?.samples_per_frame;
-    let narrow = h
-        .signals
-        .iter()
-        .all(|s| <i16 as tendline_formats::wfdb::Digital>::holds(s.format));
-    (!h.is_multi_segment() && h.signals.iter().all(|s| s.samples_per_frame == first))
-        .then(|| deferred_factor(h.signals.len(), if narrow { 2 } else { 4 }))
 }
 
 /// `measure.chunk_mega_samples` as samples (the `chunk_samples` of [`need`]).
@@ -317,15 +320,20 @@ mod tests {
             path,
             problem: None,
         };
-        assert_eq!(sample_bytes(&input), 12 * 5000 * 8);
+        assert_eq!(estimate(&input).bytes, 12 * 5000 * 8);
         // Format 16: held in 2 bytes; the results' floor of 0.5 applies.
-        assert_eq!(defers(&input), Some(deferred_factor(12, 2)));
+        assert_eq!(estimate(&input).deferred, Some(deferred_factor(12, 2)));
         assert_eq!(deferred_factor(12, 2), 0.52);
         assert!((deferred_factor(12, 4) - (0.5 + 1.0 / 12.0 + 0.02)).abs() < 1e-12);
         assert!((deferred_factor(2, 2) - 0.77).abs() < 1e-12);
         // 60 000 samples: one piece under the default 2 M-sample chunks.
         assert_eq!(
-            need(sample_bytes(&input), 2_000_000, 4, defers(&input)),
+            need(
+                estimate(&input).bytes,
+                2_000_000,
+                4,
+                estimate(&input).deferred
+            ),
             (12.0 * 5000.0 * 8.0 * STAGE_FACTOR) as u64 + BASE_BYTES
         );
     }

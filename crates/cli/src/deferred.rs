@@ -73,7 +73,6 @@ pub(crate) struct Scan {
     /// Missing samples per lead.
     pub missing: Vec<usize>,
     pub amplitude: Option<(f64, AmplitudeClass)>,
-    pub spikes: Vec<Spike>,
 }
 
 /// Runs of NaN in `x`, as half-open ranges in order.
@@ -207,7 +206,6 @@ pub(crate) fn scan(
         gaps: intersect(&ecg_runs),
         missing,
         amplitude,
-        spikes: spikes.clone(),
         leads: DeferredLeads {
             leads,
             fills,
@@ -223,6 +221,11 @@ impl DeferredLeads {
     /// Samples per lead.
     pub(crate) fn n(&self) -> usize {
         self.n
+    }
+
+    /// The record's pacing spikes, blanked in every stretch.
+    pub(crate) fn spikes(&self) -> &[Spike] {
+        &self.spikes
     }
 
     /// Samples `a..b` of every lead in physical units, missing samples
@@ -438,7 +441,7 @@ mod tests {
         );
         assert_eq!(s.missing, missing);
         assert_eq!(s.amplitude, amp);
-        assert_eq!(s.spikes, spikes);
+        assert_eq!(s.leads.spikes(), spikes);
         assert!(spikes.len() >= 3, "pacing-like steps found: {spikes:?}");
         let n = whole.n_samples();
         let mut cuts: Vec<(usize, usize)> = vec![(0, n), (0, 1), (n - 1, n), (5, 5)];

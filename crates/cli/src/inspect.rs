@@ -433,7 +433,8 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
     let rows: Vec<Row> = records
         .par_iter()
         .map(|r| {
-            let samples = crate::budget::sample_bytes(r);
+            let est = crate::budget::estimate(r);
+            let samples = est.bytes;
             let _share = budget.acquire(crate::budget::read_need(samples));
             // A reader that panics on one file must not end the listing: that
             // record is listed as failed, as a run would record it.
@@ -444,12 +445,7 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
                     a.checksums,
                     subjects.get(&r.name),
                     &siblings,
-                    crate::budget::need(
-                        samples,
-                        default_chunk,
-                        default_jobs,
-                        crate::budget::defers(r),
-                    ),
+                    crate::budget::need(samples, default_chunk, default_jobs, est.deferred),
                 )
             }))
             .unwrap_or_else(|p| Row {

@@ -590,7 +590,7 @@ pub fn process_record(
     // Over the whole record (before any chunking), on the ECG leads only:
     // the other signals are held at zero and would never hold a spike.
     let (amplitude, spikes) = if let Some(s) = &scan {
-        (s.amplitude, s.spikes.clone())
+        (s.amplitude, s.leads.spikes().to_vec())
     } else {
         let ecg = ecg_leads(&rec, &excluded);
         let amplitude = tendline_dsp::amplitude::assess(&ecg, rec.fs, &cfg.filter);

@@ -235,7 +235,7 @@ fn stage_all(files: Vec<(PathBuf, Vec<u8>)>) -> Result<Staged> {
 /// Progress of the batch as records and chunks of long records finish: the
 /// bar (terminal) or lines (otherwise), and the sample rate. The bar counts
 /// samples (each record's estimated from its header or size before it runs,
-/// [`crate::budget::sample_bytes`]), so its ETA follows a long record's chunks.
+/// [`crate::budget::estimate`]), so its ETA follows a long record's chunks.
 struct Reporter<'a> {
     pb: &'a ProgressBar,
     /// Lines instead of the bar (stderr is not a terminal and not `--quiet`).
@@ -253,8 +253,11 @@ struct Reporter<'a> {
 #[derive(Debug, Default)]
 struct RecordProgress {
     /// Its samples as 8-byte values, estimated before it runs from its header
-    /// or size ([`crate::budget::sample_bytes`], read once per record).
+    /// or size ([`crate::budget::estimate`], read once per record).
     bytes: u64,
+    /// How a chunked record of its kind holds its samples
+    /// ([`crate::budget::Estimate::deferred`]).
+    deferred: Option<f64>,
     /// Its samples over all leads, the same estimate (bar units, at least 1,
     /// so that every record moves the bar).
     estimate: u64,
@@ -379,7 +382,7 @@ fn process_one(
                 progress.bytes,
                 chunk,
                 opts.jobs,
-                crate::budget::defers(input),
+                progress.deferred,
             ));
             pipeline::process_record(input, ctx, subject, &checksums, &mut |p| {
                 report.chunk(&input.name, p, progress)
@@ -498,11 +501,12 @@ fn progress_bar(total: u64, quiet: bool) -> ProgressBar {
 }
 
 impl RecordProgress {
-    /// A record about to run whose samples take `bytes` as 8-byte values.
-    fn new(bytes: u64) -> Self {
+    /// A record about to run, as the budget estimated it.
+    fn new(est: crate::budget::Estimate) -> Self {
         Self {
-            bytes,
-            estimate: (bytes / 8).max(1),
+            bytes: est.bytes,
+            deferred: est.deferred,
+            estimate: (est.bytes / 8).max(1),
             ..Default::default()
         }
     }
@@ -526,14 +530,11 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
             .or_else(|| crate::budget::available_bytes().map(|a| a / 4 * 3)),
     );
     // Each record's size, from its header or file size, read once.
-    let sizes: Vec<u64> = opts
-        .records
-        .iter()
-        .map(crate::budget::sample_bytes)
-        .collect();
+    let sizes: Vec<crate::budget::Estimate> =
+        opts.records.iter().map(crate::budget::estimate).collect();
     note_budget(opts, &budget, &sizes);
     let pb = progress_bar(
-        sizes.iter().map(|&b| RecordProgress::new(b).estimate).sum(),
+        sizes.iter().map(|&e| RecordProgress::new(e).estimate).sum(),
         opts.quiet,
     );
     pb.set_message(format!("0/{n} records"));
@@ -629,20 +630,17 @@ pub fn run(opts: &RunOptions) -> Result<RunReport> {
 /// Say when the memory budget will keep records from running side by side
 /// (the largest `jobs` records together need more than it), and warn when a
 /// record needs more memory than the machine has available.
-/// `sizes`: each record's samples as 8-byte values ([`crate::budget::sample_bytes`]).
-fn note_budget(opts: &RunOptions, budget: &Budget, sizes: &[u64]) {
+/// `sizes`: each record's [`crate::budget::estimate`].
+fn note_budget(opts: &RunOptions, budget: &Budget, sizes: &[crate::budget::Estimate]) {
     let chunk = crate::budget::chunk_samples(opts.config.measure.chunk_mega_samples);
     let mut needs: Vec<(u64, &str)> = opts
         .records
         .iter()
         .zip(sizes)
         .filter(|(r, _)| r.problem.is_none())
-        .map(|(r, &b)| {
-            let deferred = crate::budget::defers(r);
-            (
-                crate::budget::need(b, chunk, opts.jobs, deferred),
-                r.name.as_str(),
-            )
+        .map(|(r, e)| {
+            let need = crate::budget::need(e.bytes, chunk, opts.jobs, e.deferred);
+            (need, r.name.as_str())
         })
         .collect();
     needs.sort_unstable_by_key(|n| std::cmp::Reverse(n.0));
@@ -696,7 +694,7 @@ fn run_records(
     opts: &RunOptions,
     budget: &Budget,
     ctx: &Context,
-    sizes: &[u64],
+    sizes: &[crate::budget::Estimate],
     samples: &AtomicU64,
     done: &AtomicU64,
     log: &Mutex<()>,

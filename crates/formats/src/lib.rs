@@ -146,18 +146,23 @@ pub fn read_record_deferred(
     opts: &ReadOptions,
     defer: &dyn Fn(f64, usize, usize) -> bool,
 ) -> Result<wfdb::deferred::Loaded, FormatError> {
-    let ext = path
-        .extension()
-        .map(|e| e.to_string_lossy().to_ascii_lowercase());
-    let wfdb = match ext.as_deref() {
-        Some("hea") => true,
-        Some("edf" | "bdf" | "ecg" | "csv" | "xml") => false,
-        _ => wfdb::header_path_of(path).is_file(),
-    };
-    if wfdb {
+    if is_wfdb_input(path) {
         wfdb::deferred::read_record_deferred(path, defer)
     } else {
         read_record(path, opts).map(wfdb::deferred::Loaded::Physical)
+    }
+}
+
+/// Whether [`read_record`] reads `path` as a WFDB record.
+fn is_wfdb_input(path: &Path) -> bool {
+    match path
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase())
+        .as_deref()
+    {
+        Some("hea") => true,
+        Some("edf" | "bdf" | "ecg" | "csv" | "xml") => false,
+        _ => wfdb::header_path_of(path).is_file(),
     }
 }
 
@@ -166,16 +171,17 @@ pub fn read_record_deferred(
 /// BDF/BDF+ (24-bit EDF), `.ecg` → ISHNE Holter ([`ishne`]), `.csv` → CSV,
 /// `.xml` → HL7 aECG ([`aecg`]).
 pub fn read_record(path: &Path, opts: &ReadOptions) -> Result<Record, FormatError> {
+    if is_wfdb_input(path) {
+        return wfdb::read_record(path);
+    }
     let ext = path
         .extension()
         .map(|e| e.to_string_lossy().to_ascii_lowercase());
     match ext.as_deref() {
-        Some("hea") => wfdb::read_record(path),
         Some("edf" | "bdf") => edf::read_edf(path),
         Some("ecg") => ishne::read_ishne(path),
         Some("csv") => csv::read_csv(path, opts.csv_fs),
         Some("xml") => aecg::read_aecg(path),
-        _ if wfdb::header_path_of(path).is_file() => wfdb::read_record(path),
         _ => Err(FormatError::Invalid {
             path: path.to_path_buf(),
             message:

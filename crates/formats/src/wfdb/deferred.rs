@@ -12,11 +12,12 @@
 //! [`DigitalLead::physical`] gives exactly the values [`super::read_record`]
 //! gives for the same samples: the same operations in the same order
 //! (`(d − baseline) / gain`, then the factor to millivolts when the units are
-//! a voltage other than mV; invalid-sample markers become NaN). Only records
-//! whose signals share one rate are deferred: a slower signal would need the
-//! interpolation of [`super::read_record`] first.
+//! a voltage other than mV; invalid-sample markers become NaN). Only
+//! single-segment records with their length in the header and one rate for
+//! every signal are deferred: a slower signal would need the interpolation of
+//! [`super::read_record`] first, and the other records are read whole.
 
-use super::{invalid_value, record_from_signals, to_mv_factor, Digital, WfdbSignals};
+use super::{invalid_value, to_mv_factor, Digital, WfdbSignals};
 use crate::{FormatError, Lead, Metadata, Record};
 use std::path::Path;
 
@@ -158,8 +159,8 @@ pub enum Loaded {
 }
 
 /// Read a WFDB record, deferring the conversion to physical units when
-/// `defer(fs, n_samples, n_leads)` says so and the record allows it (one
-/// rate for every signal, not a variable-layout multi-segment record);
+/// `defer(fs, n_samples, n_leads)` says so and the record allows it (a
+/// single segment, its length in the header, one rate for every signal);
 /// otherwise the record [`super::read_record`] returns.
 pub fn read_record_deferred(
     header_path: &Path,
@@ -167,67 +168,38 @@ pub fn read_record_deferred(
 ) -> Result<Loaded, FormatError> {
     let path = super::header_path_of(header_path);
     let header = super::read_header(&path)?;
-    if header.is_multi_segment() && super::variable_layout_segment(&header).is_some() {
-        return super::layout::read_variable_layout(&path, header).map(Loaded::Physical);
-    }
-    if !header.is_multi_segment() {
-        if let Some(frames) = header.n_frames {
-            // Decided from the header, so that a record read whole is read
-            // exactly as `read_record` reads it.
-            let spf = header
-                .signals
-                .first()
-                .map_or(1, |s| s.samples_per_frame.max(1));
-            let one_rate = header
-                .signals
-                .iter()
-                .all(|s| s.samples_per_frame.max(1) == spf);
-            let n = frames.saturating_mul(spf as u64) as usize;
-            let deferred = one_rate
-                && !header.signals.is_empty()
-                && defer(header.fs * spf as f64, n, header.signals.len());
-            if !deferred {
-                return Ok(Loaded::Physical(record_from_signals(super::read_single(
-                    &path, header,
-                )?)));
-            }
-            // Formats of at most 16 bits are held in 16 bits from the start:
-            // the record is never held wider, even while it is read.
-            if header.signals.iter().all(|s| i16::holds(s.format)) {
-                let w: WfdbSignals<i16> = super::read_single(&path, header)?;
-                return Ok(Loaded::Deferred(deferred_from_signals(w, Store::I16)));
-            }
-            let w: WfdbSignals = super::read_single(&path, header)?;
-            return Ok(Loaded::Deferred(deferred_from_signals(w, Store::I32)));
-        }
-    }
-    let w = if header.is_multi_segment() {
-        super::read_multi_segment(&path, header)?
-    } else {
-        super::read_single(&path, header)?
-    };
-    Ok(if deferrable(&w, defer) {
-        Loaded::Deferred(deferred_from_signals(w, Store::I32))
-    } else {
-        Loaded::Physical(record_from_signals(w))
-    })
-}
-
-/// Whether signals that share one rate should stay digital (`defer`).
-fn deferrable<T: super::Digital>(
-    w: &WfdbSignals<T>,
-    defer: &dyn Fn(f64, usize, usize) -> bool,
-) -> bool {
-    let one_rate = w
-        .signals
-        .windows(2)
-        .all(|p| p[0].spec.samples_per_frame == p[1].spec.samples_per_frame);
-    let n = w.signals.first().map_or(0, |s| s.samples.len());
-    let spf = w
+    // Decided from the header, so that a record read whole is read exactly
+    // as `read_record` reads it; only a single-segment record with its length
+    // in the header is deferred.
+    let frames = header.n_frames.filter(|_| !header.is_multi_segment());
+    let spf = header
         .signals
         .first()
-        .map_or(1, |s| s.spec.samples_per_frame.max(1));
-    one_rate && defer(w.fs * spf as f64, n, w.signals.len())
+        .map_or(1, |s| s.samples_per_frame.max(1));
+    let deferred = frames.is_some_and(|frames| {
+        !header.signals.is_empty()
+            && header
+                .signals
+                .iter()
+                .all(|s| s.samples_per_frame.max(1) == spf)
+            && defer(
+                header.fs * spf as f64,
+                frames.saturating_mul(spf as u64) as usize,
+                header.signals.len(),
+            )
+    });
+    if !deferred {
+        return super::read_record_with(&path, header).map(Loaded::Physical);
+    }
+    // Formats of at most 16 bits are held in 16 bits from the start: the
+    // record is never held wider, even while it is read.
+    Ok(Loaded::Deferred(
+        if header.signals.iter().all(|s| i16::holds(s.format)) {
+            deferred_from_signals(super::read_single::<i16>(&path, header)?, Store::I16)
+        } else {
+            deferred_from_signals(super::read_single::<i32>(&path, header)?, Store::I32)
+        },
+    ))
 }
 
 /// The deferred form of signals that share one rate; `store` holds one

@@ -733,13 +733,18 @@ pub fn to_physical(s: &DigitalSignal) -> Vec<f64> {
 pub fn read_record(header_path: &Path) -> Result<Record, FormatError> {
     let path = header_path_of(header_path);
     let header = read_header(&path)?;
+    read_record_with(&path, header)
+}
+
+/// [`read_record`] of the record whose header, at `path`, has been read.
+fn read_record_with(path: &Path, header: Header) -> Result<Record, FormatError> {
     if header.is_multi_segment() && variable_layout_segment(&header).is_some() {
-        return layout::read_variable_layout(&path, header);
+        return layout::read_variable_layout(path, header);
     }
     let w = if header.is_multi_segment() {
-        read_multi_segment(&path, header)?
+        read_multi_segment(path, header)?
     } else {
-        read_single(&path, header)?
+        read_single(path, header)?
     };
     Ok(record_from_signals(w))
 }
