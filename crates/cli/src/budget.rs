@@ -19,7 +19,7 @@
 //!
 //! Those records are WFDB records (format 16), and since the chunked ones are
 //! processed from their digital samples ([`Estimate::deferred`], the `deferred` module),
-//! a chunked WFDB record holds [`deferred_factor`] times its samples instead
+//! a chunked WFDB, EDF, BDF or ISHNE record holds [`deferred_factor`] times its samples instead
 //! of [`READ_FACTOR`]: 6 hours 1.09 GB (estimate 1.33), 24 hours 4.13 GB
 //! (4.57), with `--jobs 2` 1.38 GB and 4.07 GB (1.53 and 4.77), less the
 //! program's 34 MB as above. [`READ_FACTOR`] still holds for the other
@@ -56,10 +56,12 @@ pub struct Estimate {
     /// header's frame count, else from the file sizes (binary formats store 2
     /// to 3 bytes per sample, text about 8 characters per value).
     pub bytes: u64,
-    /// For a WFDB record the run processes from its digital samples when it
-    /// is long enough to be chunked (`tendline_formats::read_record_deferred`:
-    /// one segment, one rate, a length in the header), its
-    /// [`deferred_factor`]; `None` otherwise.
+    /// For a WFDB, EDF, BDF or ISHNE record the run processes from its
+    /// digital samples when it is long enough to be chunked
+    /// (`tendline_formats::read_record_deferred`: WFDB with one segment, one
+    /// rate and a length in the header; continuous EDF or BDF with one rate
+    /// for its ordinary signals; every ISHNE file), its [`deferred_factor`];
+    /// `None` otherwise.
     pub deferred: Option<f64>,
 }
 
@@ -76,10 +78,23 @@ pub fn estimate(input: &RecordInput) -> Estimate {
         Some("csv") | Some("xml") => size(path),
         _ => return wfdb_estimate(path).unwrap_or_default(),
     };
-    Estimate {
-        bytes,
-        deferred: None,
-    }
+    // EDF holds 2-byte samples, BDF's 3-byte ones are kept in 4.
+    let deferred = match ext.as_deref() {
+        Some("edf") => edf_deferred(path, 2),
+        Some("bdf") => edf_deferred(path, 4),
+        Some("ecg") => tendline_formats::ishne::read_ishne_header(path)
+            .ok()
+            .map(|(_, _, leads)| deferred_factor(leads, 2)),
+        _ => None,
+    };
+    Estimate { bytes, deferred }
+}
+
+/// The [`deferred_factor`] of an EDF or BDF file whose samples are held in
+/// `bytes` bytes each, when the file can be deferred (its header alone says).
+fn edf_deferred(path: &Path, bytes: usize) -> Option<f64> {
+    let (_, deferrable) = tendline_formats::edf::read_edf_header(path).ok()?;
+    deferrable.map(|(_, _, leads)| deferred_factor(leads, bytes))
 }
 
 fn wfdb_estimate(path: &Path) -> Option<Estimate> {
@@ -116,9 +131,14 @@ fn wfdb_estimate(path: &Path) -> Option<Estimate> {
 pub const READ_FACTOR: f64 = 1.12;
 
 /// Estimated peak memory of reading a record of `samples` bytes ([`estimate`])
-/// without processing it (bytes).
-pub fn read_need(samples: u64) -> u64 {
-    (samples as f64 * READ_FACTOR) as u64 + (16 << 20)
+/// without processing it (bytes), when a record a run would process in chunks
+/// of `chunk_samples` samples is read from its digital samples if `deferred`
+/// says it can be (as [`need`] counts it; `tendline inspect` reads such
+/// records so).
+pub fn read_need(samples: u64, chunk_samples: u64, deferred: Option<f64>) -> u64 {
+    let chunked = chunk_samples > 0 && samples > chunk_samples * 8;
+    let factor = deferred.filter(|_| chunked).unwrap_or(READ_FACTOR);
+    (samples as f64 * factor) as u64 + (16 << 20)
 }
 
 /// Memory held by a WFDB record processed in chunks from its digital samples
@@ -336,6 +356,45 @@ mod tests {
             ),
             (12.0 * 5000.0 * 8.0 * STAGE_FACTOR) as u64 + BASE_BYTES
         );
+    }
+
+    /// An EDF file written by the crate's writer (EDF+C, one rate for its
+    /// leads) is processed from its digital samples when chunked: 2 bytes a
+    /// sample; a CSV file never is.
+    #[test]
+    fn an_edf_file_is_deferred_from_its_header() {
+        let dir = std::env::temp_dir().join(format!("tendline-budget-{}", std::process::id()));
+        std::fs::create_dir_all(&dir).unwrap();
+        let lead = |name: &str| tendline_formats::Lead {
+            name: name.into(),
+            units: "mV".into(),
+            samples: (0..5000).map(|i| (i as f64 * 0.01).sin()).collect(),
+        };
+        let rec = tendline_formats::Record {
+            name: "e".into(),
+            fs: 500.0,
+            leads: vec![lead("I"), lead("II"), lead("V1")],
+            meta: Default::default(),
+            files: vec![],
+            warnings: vec![],
+        };
+        let path = dir.join("e.edf");
+        tendline_formats::edf::write_edf(&path, &rec).unwrap();
+        let input = RecordInput {
+            name: "e".into(),
+            path: path.clone(),
+            problem: None,
+        };
+        let e = estimate(&input);
+        assert_eq!(e.deferred, Some(deferred_factor(3, 2)));
+        assert_eq!(e.bytes, std::fs::metadata(&path).unwrap().len() * 4);
+        let csv = RecordInput {
+            name: "c".into(),
+            path: dir.join("c.csv"),
+            problem: None,
+        };
+        assert_eq!(estimate(&csv).deferred, None);
+        std::fs::remove_dir_all(&dir).unwrap();
     }
 
     /// A long record's need grows with its samples as read, not with the

@@ -1,11 +1,12 @@
-//! A long WFDB record processed from its digital samples: the whole-record
+//! A long WFDB, EDF or BDF record processed from its digital samples: the whole-record
 //! passes of the pipeline run one lead at a time, and each chunk is
 //! converted to physical units only when its turn comes.
 //!
 //! Why: a record processed in chunks used to be read whole in physical
 //! units first (8 bytes per sample): a 24-hour 12-lead 1000-Hz recording
-//! peaked at 9.1 GB. Its digital samples take half of that
-//! ([`tendline_formats::wfdb::deferred`]), and the passes over the whole
+//! peaked at 9.1 GB (WFDB) or more (EDF: the file's bytes were held too
+//! while it was decoded). Its digital samples take a quarter to half of that
+//! ([`tendline_formats::deferred`]), and the passes over the whole
 //! record (missing samples, amplitude, pacing spikes) need one lead in
 //! physical units at a time.
 //!
@@ -17,12 +18,12 @@
 //! stretch holds exactly the values the whole record would hold there
 //! (tested against those passes as the oracle).
 
-use anyhow::{bail, Result};
+use anyhow::Result;
 use std::path::Path;
 use tendline_dsp::amplitude::{self, AmplitudeClass};
 use tendline_dsp::filter::{ConditioningFilter, FilterConfig};
 use tendline_dsp::pacing::Spike;
-use tendline_formats::wfdb::deferred::{DigitalLead, SamplesMut};
+use tendline_formats::deferred::{DigitalLead, SamplesMut};
 use tendline_formats::Record;
 
 /// A run of missing samples `start..end` of one lead and the samples on
@@ -132,32 +133,14 @@ pub(crate) fn scan(
 ) -> Result<Scan> {
     crate::pipeline::check_shape(leads.len(), rec.fs, path)?;
     let n = leads[0].len();
-    if n == 0 {
-        bail!("{}: record is empty (0 samples)", path.display());
-    }
+    crate::pipeline::check_not_empty(n, path)?;
     let block = amplitude::block_samples(rec.fs, cfg);
     let k = leads.len();
     let (mut fills, mut zero, mut missing) = (Vec::with_capacity(k), vec![false; k], vec![0; k]);
     let (mut ecg_runs, mut ranges, mut lead_spikes) = (Vec::new(), Vec::new(), Vec::new());
     for (i, (d, l)) in leads.iter().zip(&rec.leads).enumerate() {
-        if d.len() != n {
-            bail!(
-                "{}: lead {} `{}` has {} samples, lead 0 has {n}",
-                path.display(),
-                i,
-                l.name,
-                d.len()
-            );
-        }
-        let mut x = d.physical(0, n);
-        if let Some(k) = x.iter().position(|v| v.is_infinite()) {
-            bail!(
-                "{}: lead {} `{}` has an infinite value at sample {k}",
-                path.display(),
-                i,
-                l.name
-            );
-        }
+        let mut x = d.physical(0, d.len());
+        crate::pipeline::check_lead(i, &l.name, &x, n, path)?;
         let runs = nan_runs(&x);
         missing[i] = runs.iter().map(|(a, b)| b - a).sum();
         let lead_fills: Vec<Fill> = if missing[i] == n {
@@ -192,10 +175,7 @@ pub(crate) fn scan(
         fills.push(lead_fills);
     }
     if missing.iter().all(|&m| m == n) {
-        bail!(
-            "{}: every sample of every lead is missing (NaN)",
-            path.display()
-        );
+        return Err(crate::pipeline::all_missing(path));
     }
     let amplitude = amplitude::assess_ranges(&ranges, cfg);
     let spikes = match amplitude {

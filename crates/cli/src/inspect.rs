@@ -15,7 +15,9 @@
 //! others are still listed), 2 when no input resolves to a record at all.
 
 use crate::inputs::{self, RecordInput};
-use crate::pipeline::{amplitude_warning, check_record, ecg_leads, non_ecg_leads};
+use crate::pipeline::{
+    amplitude_warning, check_lead, check_not_empty, check_shape, chunk_plan, non_ecg_leads,
+};
 use crate::run::{input_files, panic_text, sha256_file};
 use crate::tables::csv_cell;
 use anyhow::{Context, Result};
@@ -23,6 +25,7 @@ use rayon::prelude::*;
 use std::collections::BTreeSet;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
+use tendline_formats::deferred::{DigitalLead, Loaded};
 use tendline_formats::subjects::SubjectRow;
 
 #[derive(clap::Args)]
@@ -171,6 +174,7 @@ fn inspect_one(
     subject: Option<&SubjectRow>,
     siblings: &Siblings,
     need: u64,
+    defer_long_records: bool,
 ) -> Row {
     let mut row = Row {
         name: input.name.clone(),
@@ -197,57 +201,90 @@ fn inspect_one(
     row.annotations = annotation_exts(&input.path, &files, siblings);
     row.files = files;
     let opts = tendline_formats::ReadOptions { csv_fs };
-    let mut rec = match tendline_formats::read_record(&input.path, &opts) {
-        Ok(r) => r,
-        Err(e) => {
-            row.error = Some(e.to_string());
-            return row;
-        }
+    // A record a run would process in chunks is read as a run reads it,
+    // digital until each lead's turn comes (`tendline_formats::deferred`).
+    let measure = crate::config::PipelineConfig::default().measure;
+    let defer = |fs: f64, n: usize, leads: usize| {
+        defer_long_records && chunk_plan(n, leads, fs, &measure).len() > 1
     };
+    let (mut rec, digital) =
+        match tendline_formats::read_record_deferred(&input.path, &opts, &defer) {
+            Ok(Loaded::Physical(r)) => (r, None),
+            Ok(Loaded::Deferred(d)) => (d.record, Some(d.leads)),
+            Err(e) => {
+                row.error = Some(e.to_string());
+                return row;
+            }
+        };
     if let Some(s) = subject {
         s.apply(&mut rec.meta);
     }
+    let n = digital
+        .as_ref()
+        .map_or(rec.n_samples(), |d| d.first().map_or(0, DigitalLead::len));
     row.fs = Some(rec.fs);
-    row.n_samples = Some(rec.n_samples());
-    row.leads = rec
-        .leads
-        .iter()
-        .map(|l| {
-            (
-                l.name.clone(),
-                l.units.clone(),
-                tendline_formats::signals::non_ecg_reason(&l.name, &l.units),
-                l.samples.iter().filter(|v| v.is_nan()).count(),
-            )
-        })
-        .collect();
-    row.signal_sha256 = Some(signal_digest(&rec));
-    row.flat = rec
-        .leads
-        .iter()
-        .filter(|l| {
-            let mut v = l.samples.iter().filter(|x| x.is_finite());
-            v.next().is_some_and(|first| v.all(|x| x == first))
-        })
-        .map(|l| l.name.clone())
-        .collect();
+    row.n_samples = Some(n);
     row.sex = rec.meta.sex.map(|s| s.code());
     row.age = rec.meta.age;
     row.subject = rec.meta.subject.clone();
     row.timepoint = rec.meta.timepoint.clone();
     row.arm = rec.meta.arm.clone();
     row.warnings = rec.warnings.clone();
-    // The run's own checks, so the message is the one a run would record.
-    match check_record(&rec, &input.path).and_then(|()| non_ecg_leads(&mut rec, &input.path)) {
-        Err(e) => {
+    // One lead at a time, in physical units: the listing, the digest and the
+    // run's own checks (`check_record`, `non_ecg_leads`, in their order, so
+    // the message is the one a run would record) need no more.
+    let path = input.path.as_path();
+    let mut error = check_shape(rec.leads.len(), rec.fs, path)
+        .and_then(|()| check_not_empty(n, path))
+        .err();
+    let cfg = tendline_dsp::filter::FilterConfig::default();
+    let block = tendline_dsp::amplitude::block_samples(rec.fs, &cfg);
+    let mut digest = SignalDigest::new(rec.fs, rec.leads.len());
+    let (mut ranges, mut all_missing, mut any_ecg) = (Vec::new(), true, false);
+    for (i, l) in rec.leads.iter().enumerate() {
+        let converted;
+        let x: &[f64] = match &digital {
+            None => &l.samples,
+            Some(d) => {
+                converted = d[i].physical(0, d[i].len());
+                &converted
+            }
+        };
+        let why = tendline_formats::signals::non_ecg_reason(&l.name, &l.units);
+        let nan = x.iter().filter(|v| v.is_nan()).count();
+        let mut finite = x.iter().filter(|v| v.is_finite());
+        if finite
+            .next()
+            .is_some_and(|first| finite.all(|v| v == first))
+        {
+            row.flat.push(l.name.clone());
+        }
+        digest.lead(x);
+        if error.is_none() {
+            error = check_lead(i, &l.name, x, n, path).err();
+        }
+        all_missing &= nan == x.len();
+        if why.is_none() {
+            any_ecg = true;
+            ranges.push(tendline_dsp::amplitude::typical_range(x, block));
+        }
+        row.leads.push((l.name.clone(), l.units.clone(), why, nan));
+    }
+    row.signal_sha256 = Some(digest.finish());
+    if error.is_none() && all_missing {
+        error = Some(crate::pipeline::all_missing(path));
+    }
+    if error.is_none() && !any_ecg {
+        error = non_ecg_leads(&mut rec, path).err();
+    }
+    match error {
+        Some(e) => {
             row.error.get_or_insert(format!("{e:#}"));
         }
-        Ok(excluded) => {
-            // The default configuration's span, as for the memory estimate
-            // (`inspect` takes no pipeline.toml).
-            let cfg = tendline_dsp::filter::FilterConfig::default();
-            let ecg = ecg_leads(&rec, &excluded);
-            if let Some((r, c)) = tendline_dsp::amplitude::assess(&ecg, rec.fs, &cfg) {
+        // The default configuration's span, as for the memory estimate
+        // (`inspect` takes no pipeline.toml).
+        None => {
+            if let Some((r, c)) = tendline_dsp::amplitude::assess_ranges(&ranges, &cfg) {
                 row.amplitude_mv = Some(r);
                 row.warnings.extend(amplitude_warning(r, c, &cfg));
             }
@@ -256,21 +293,37 @@ fn inspect_one(
     row
 }
 
-fn signal_digest(rec: &tendline_formats::Record) -> String {
-    use sha2::{Digest, Sha256};
-    let mut h = Sha256::new();
-    h.update(rec.fs.to_le_bytes());
-    h.update((rec.leads.len() as u64).to_le_bytes());
-    let mut buf = Vec::new();
-    for l in &rec.leads {
-        buf.clear();
-        buf.extend(l.samples.iter().flat_map(|v| {
-            let v = if v.is_nan() { f64::NAN } else { *v };
-            v.to_le_bytes()
-        }));
-        h.update(&buf);
+/// SHA-256 of a decoded signal (sampling rate, number of leads, then every
+/// lead's samples as little-endian `f64`, NaN in one canonical form), fed one
+/// lead at a time.
+struct SignalDigest(sha2::Sha256, Vec<u8>);
+
+impl SignalDigest {
+    fn new(fs: f64, leads: usize) -> Self {
+        use sha2::Digest;
+        let mut h = sha2::Sha256::new();
+        h.update(fs.to_le_bytes());
+        h.update((leads as u64).to_le_bytes());
+        Self(h, Vec::new())
     }
-    hex::encode(h.finalize())
+
+    fn lead(&mut self, x: &[f64]) {
+        use sha2::Digest;
+        // In blocks, so that a long lead is not copied whole once more.
+        for part in x.chunks(1 << 16) {
+            self.1.clear();
+            self.1.extend(part.iter().flat_map(|v| {
+                let v = if v.is_nan() { f64::NAN } else { *v };
+                v.to_le_bytes()
+            }));
+            self.0.update(&self.1);
+        }
+    }
+
+    fn finish(self) -> String {
+        use sha2::Digest;
+        hex::encode(self.0.finalize())
+    }
 }
 
 /// Groups of two or more records with the same decoded signal.
@@ -435,7 +488,11 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
         .map(|r| {
             let est = crate::budget::estimate(r);
             let samples = est.bytes;
-            let _share = budget.acquire(crate::budget::read_need(samples));
+            let _share = budget.acquire(crate::budget::read_need(
+                samples,
+                default_chunk,
+                est.deferred,
+            ));
             // A reader that panics on one file must not end the listing: that
             // record is listed as failed, as a run would record it.
             std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
@@ -446,6 +503,7 @@ pub fn cmd_inspect(a: InspectArgs) -> Result<ExitCode> {
                     subjects.get(&r.name),
                     &siblings,
                     crate::budget::need(samples, default_chunk, default_jobs, est.deferred),
+                    true,
                 )
             }))
             .unwrap_or_else(|p| Row {
@@ -546,6 +604,88 @@ fn list_some(v: &[&str]) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A long record (one a run would process in chunks) read lead by lead
+    /// from its digital samples against the oracle, the same record read
+    /// whole (`defer_long_records` off): the same row, field for field. The
+    /// records: a WFDB record of 800 000 samples at 500 Hz with missing
+    /// samples in one lead, a flat lead and a respiration signal, the same
+    /// without its missing samples as EDF, and one whose every sample is
+    /// missing (the same error).
+    #[test]
+    fn a_long_record_is_listed_as_when_read_whole() {
+        let n = 800_000;
+        let wave = |k: usize| -> Vec<f64> {
+            (0..n)
+                .map(|i| {
+                    let t = i as f64 / 500.0;
+                    (1.0 + k as f64 * 0.3) * (std::f64::consts::TAU * 1.1 * t).sin().powi(15)
+                        + 0.01 * ((i * 7919 + k) % 17) as f64
+                })
+                .collect()
+        };
+        let lead = |name: &str, samples: Vec<f64>| tendline_formats::Lead {
+            name: name.into(),
+            units: "mV".into(),
+            samples,
+        };
+        let mut gappy = wave(1);
+        gappy[1000..1500].iter_mut().for_each(|v| *v = f64::NAN);
+        let mut rec = tendline_formats::Record {
+            name: "long".into(),
+            fs: 500.0,
+            leads: vec![
+                lead("I", wave(0)),
+                lead("II", gappy),
+                lead("V1", vec![0.25; n]),
+                lead("RESP", wave(2)),
+            ],
+            meta: Default::default(),
+            files: vec![],
+            warnings: vec![],
+        };
+        let dir = tempfile::tempdir().unwrap();
+        let hea = tendline_formats::wfdb::write_record(dir.path(), &rec, 1000.0).unwrap();
+        rec.leads[1].samples = wave(1);
+        let edf = dir.path().join("long_edf.edf");
+        tendline_formats::edf::write_edf(&edf, &rec).unwrap();
+        rec.name = "void".into();
+        rec.leads
+            .iter_mut()
+            .for_each(|l| l.samples.iter_mut().for_each(|v| *v = f64::NAN));
+        let void = tendline_formats::wfdb::write_record(dir.path(), &rec, 1000.0).unwrap();
+        let measure = crate::config::PipelineConfig::default().measure;
+        let defer = |fs: f64, n: usize, leads: usize| chunk_plan(n, leads, fs, &measure).len() > 1;
+        for path in [hea, edf, void] {
+            let input = RecordInput {
+                name: "long".into(),
+                path: path.clone(),
+                problem: None,
+            };
+            let siblings = list_siblings(std::slice::from_ref(&input));
+            let row = |defer| inspect_one(&input, None, true, None, &siblings, 7, defer);
+            let (a, b) = (row(true), row(false));
+            assert!(
+                matches!(
+                    tendline_formats::read_record_deferred(&path, &Default::default(), &defer),
+                    Ok(Loaded::Deferred(_))
+                ),
+                "{}: not deferred",
+                path.display()
+            );
+            assert_eq!(format!("{a:?}"), format!("{b:?}"), "{}", path.display());
+            if path.ends_with("void.hea") {
+                assert!(a.error.unwrap().contains("every sample"));
+            } else {
+                assert_eq!(a.error, None, "{}", path.display());
+                assert_eq!(a.flat, vec!["V1".to_string()]);
+                assert!(a.amplitude_mv.is_some());
+                assert!(a.leads[3].2.is_some(), "RESP is not ECG");
+                let gap = if path.ends_with("long.hea") { 500 } else { 0 };
+                assert_eq!(a.leads[1].3, gap, "{}", path.display());
+            }
+        }
+    }
 
     #[test]
     fn durations_read_as_seconds_minutes_or_hours() {

@@ -11,8 +11,8 @@ use tendline_detect::Detection;
 use tendline_dsp::amplitude::AmplitudeClass;
 use tendline_dsp::filter::FilterCache;
 use tendline_formats::annotation::{boundary_annotations, Annotation, WaveMarks};
+use tendline_formats::deferred::Loaded;
 use tendline_formats::subjects::SubjectRow;
-use tendline_formats::wfdb::deferred::Loaded;
 use tendline_formats::Record;
 use tendline_store::{Attr, Data, Group};
 
@@ -123,39 +123,58 @@ pub(crate) fn check_shape(n_leads: usize, fs: f64, path: &Path) -> Result<()> {
 pub(crate) fn check_record(rec: &Record, path: &Path) -> Result<()> {
     check_shape(rec.leads.len(), rec.fs, path)?;
     let n = rec.n_samples();
-    if n == 0 {
-        bail!("{}: record is empty (0 samples)", path.display());
-    }
+    check_not_empty(n, path)?;
     for (i, l) in rec.leads.iter().enumerate() {
-        if l.samples.len() != n {
-            bail!(
-                "{}: lead {} `{}` has {} samples, lead 0 has {n}",
-                path.display(),
-                i,
-                l.name,
-                l.samples.len()
-            );
-        }
-        if let Some(k) = l.samples.iter().position(|v| v.is_infinite()) {
-            bail!(
-                "{}: lead {} `{}` has an infinite value at sample {k}",
-                path.display(),
-                i,
-                l.name
-            );
-        }
+        check_lead(i, &l.name, &l.samples, n, path)?;
     }
     if rec
         .leads
         .iter()
         .all(|l| l.samples.iter().all(|v| v.is_nan()))
     {
+        return Err(all_missing(path));
+    }
+    Ok(())
+}
+
+/// The record-length check of [`check_record`].
+pub(crate) fn check_not_empty(n: usize, path: &Path) -> Result<()> {
+    if n == 0 {
+        bail!("{}: record is empty (0 samples)", path.display());
+    }
+    Ok(())
+}
+
+/// The per-lead checks of [`check_record`] on lead `i` (`name`, samples `x`)
+/// of a record of `n` samples per lead, for callers that hold one lead at a
+/// time.
+pub(crate) fn check_lead(i: usize, name: &str, x: &[f64], n: usize, path: &Path) -> Result<()> {
+    if x.len() != n {
         bail!(
-            "{}: every sample of every lead is missing (NaN)",
-            path.display()
+            "{}: lead {} `{}` has {} samples, lead 0 has {n}",
+            path.display(),
+            i,
+            name,
+            x.len()
+        );
+    }
+    if let Some(k) = x.iter().position(|v| v.is_infinite()) {
+        bail!(
+            "{}: lead {} `{}` has an infinite value at sample {k}",
+            path.display(),
+            i,
+            name
         );
     }
     Ok(())
+}
+
+/// The error of [`check_record`] for a record without a single sample.
+pub(crate) fn all_missing(path: &Path) -> anyhow::Error {
+    anyhow::anyhow!(
+        "{}: every sample of every lead is missing (NaN)",
+        path.display()
+    )
 }
 
 /// The stretches (half-open sample ranges) where every signal that can be an
@@ -290,7 +309,7 @@ struct Stretch {
 /// samples it is processed with (the core and overlap on either side);
 /// half-open sample ranges.
 #[derive(Debug, Clone, Copy, PartialEq)]
-struct Chunk {
+pub(crate) struct Chunk {
     core: (usize, usize),
     ext: (usize, usize),
 }
@@ -300,7 +319,7 @@ struct Chunk {
 /// samples over all leads. Chunk cores are whole measurement windows, so the
 /// windows of every chunk fall on the record's own window grid; overlaps are
 /// rounded up to whole windows.
-fn chunk_plan(
+pub(crate) fn chunk_plan(
     n: usize,
     n_leads: usize,
     fs: f64,
@@ -1333,8 +1352,40 @@ mod chunk_tests {
             path: hea,
             problem: None,
         };
+        deferred_equals_whole(&input);
+    }
+
+    /// The same for an EDF file (16-bit samples, no invalid marker): QT
+    /// Database sel100 written by the crate's EDF writer.
+    #[test]
+    fn a_deferred_edf_file_gives_the_results_of_the_whole_file() {
+        let src =
+            Path::new(env!("CARGO_MANIFEST_DIR")).join("../../../shared/data/qtdb/sel100.hea");
+        let rec = tendline_formats::read_record(&src, &Default::default())
+            .expect("../shared/data/qtdb/sel100 (see ../shared/data/README.md)");
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("sel100.edf");
+        tendline_formats::edf::write_edf(&path, &rec).unwrap();
+        let input = RecordInput {
+            name: "sel100".into(),
+            path,
+            problem: None,
+        };
+        deferred_equals_whole(&input);
+    }
+
+    /// `input` processed in chunks of 0.1 M samples, one and two at a time,
+    /// from its digital samples and read whole: the same results; and it was
+    /// indeed deferred.
+    fn deferred_equals_whole(input: &RecordInput) {
         let mut config = PipelineConfig::default();
         config.measure.chunk_mega_samples = 0.1;
+        let defer =
+            |fs: f64, n: usize, leads: usize| chunk_plan(n, leads, fs, &config.measure).len() > 1;
+        let loaded =
+            tendline_formats::read_record_deferred(&input.path, &Default::default(), &defer)
+                .unwrap();
+        assert!(matches!(loaded, Loaded::Deferred(_)), "{}", input.name);
         for threads in [1, 2] {
             let run = |defer: bool| {
                 let mut ctx = Context::new(&config, None).unwrap();
@@ -1346,7 +1397,7 @@ mod chunk_tests {
                         .unwrap()
                 });
                 let mut chunks = 0;
-                let p = process_record(&input, &ctx, None, &[], &mut |_| chunks += 1).unwrap();
+                let p = process_record(input, &ctx, None, &[], &mut |_| chunks += 1).unwrap();
                 (p, chunks)
             };
             let ((a, ca), (b, cb)) = (run(true), run(false));

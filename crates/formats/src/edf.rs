@@ -10,8 +10,13 @@
 //! in the same layout; BDF+ (as edflib writes it: reserved field `BDF+C`, a
 //! `BDF Annotations` channel) is BDF with the EDF+ fields and TALs.
 //!
-//! # Reading ([`read_edf`], [`read_edf_annotations`], [`parse_edf`])
+//! # Reading ([`read_edf`], [`read_edf_annotations`], [`parse_edf`], [`read_edf_deferred`])
 //!
+//! * [`read_edf`] reads the whole file, then decodes it. [`read_edf_deferred`]
+//!   reads a long continuous file whose ordinary signals share one rate data
+//!   record by data record into digital samples ([`crate::deferred`]: 2 bytes
+//!   a sample for EDF, 4 for BDF, instead of the file's bytes and 8 bytes a
+//!   sample in physical units), with the same values once converted.
 //! * Accepted: EDF, EDF+ (`EDF+C` and `EDF+D`), BDF and BDF+ (`BDF+C`,
 //!   `BDF+D`). In a discontinuous file (`+D`) each data record is placed at
 //!   the onset of its time-keeping annotation, counted from the first record's;
@@ -70,6 +75,7 @@
 use std::path::Path;
 
 use crate::annotation::write_atomic;
+use crate::deferred::{DeferredRecord, DigitalLead, Extent, Loaded, Scale, Store};
 use crate::{FormatError, Lead, Metadata, Record, Sex};
 
 /// Label of the EDF+ annotation channel.
@@ -206,6 +212,159 @@ pub fn read_edf(path: &Path) -> Result<Record, FormatError> {
     edf_to_record(file, path)
 }
 
+/// The header of an EDF or BDF file, read without its data records; when
+/// [`read_edf_deferred`] would keep the file's samples digital, also the
+/// (rate in Hz, samples per signal, ordinary signals) it would ask its
+/// `defer` about.
+pub fn read_edf_header(path: &Path) -> Result<(EdfHeader, Option<Extent>), FormatError> {
+    let (head, _) = open_head(path)?;
+    let deferrable = head.deferrable();
+    Ok((head.header, deferrable))
+}
+
+/// Open `path` and parse its header, reading no more of the file; the file
+/// is returned positioned after the header.
+fn open_head(path: &Path) -> Result<(EdfHead, std::fs::File), FormatError> {
+    use std::io::Read;
+    let io = |source| FormatError::Io {
+        path: path.to_path_buf(),
+        source,
+    };
+    let mut file = std::fs::File::open(path).map_err(io)?;
+    let file_len = file.metadata().map_err(io)?.len();
+    let mut bytes = Vec::with_capacity(256);
+    (&mut file).take(256).read_to_end(&mut bytes).map_err(io)?;
+    // The number of signals sets the header's length; a field that does not
+    // parse is reported by `parse_head`, which needs no more bytes for it.
+    let ns = bytes
+        .get(252..256)
+        .and_then(|b| field_text(b).parse::<u64>().ok())
+        .unwrap_or(0);
+    let want = 256u64.saturating_mul(ns.saturating_add(1)).min(file_len);
+    (&mut file)
+        .take(want.saturating_sub(bytes.len() as u64))
+        .read_to_end(&mut bytes)
+        .map_err(io)?;
+    let file_len = usize::try_from(file_len).unwrap_or(usize::MAX);
+    let head = parse_head(&bytes, file_len).map_err(|m| invalid(path, m))?;
+    Ok((head, file))
+}
+
+/// [`read_edf`], except that a file for which `defer(fs, n_samples,
+/// n_leads)` is true keeps its samples digital ([`crate::deferred`]: 16 bits
+/// for EDF, 32 for BDF), read data record by data record without holding
+/// the file's bytes. Only continuous files whose ordinary signals share one
+/// rate are deferred (a discontinuous file needs its gaps placed, a signal
+/// at another rate its resampling, as [`read_edf`] does); the others are
+/// read whole. [`crate::deferred::DigitalLead::physical`] then gives exactly
+/// the values of [`read_edf`], and the record carries the same name, rate,
+/// lead names and units, metadata and warnings; a damaged annotation list is
+/// the same error.
+pub fn read_edf_deferred(
+    path: &Path,
+    defer: &dyn Fn(f64, usize, usize) -> bool,
+) -> Result<Loaded, FormatError> {
+    use std::io::Read;
+    let (head, file) = open_head(path)?;
+    if !head
+        .deferrable()
+        .is_some_and(|(fs, n, leads)| defer(fs, n, leads))
+    {
+        return read_edf(path).map(Loaded::Physical);
+    }
+    let h = &head.header;
+    let bdf = head.width == 3;
+    let mut narrow: Vec<Vec<i16>> = Vec::new();
+    let mut wide: Vec<Vec<i32>> = Vec::new();
+    // One store per header signal (annotation signals keep an empty one).
+    let cap = |s: &EdfSignalHeader| {
+        if s.is_annotation() {
+            0
+        } else {
+            s.samples_per_record * h.n_records
+        }
+    };
+    if bdf {
+        wide = h
+            .signals
+            .iter()
+            .map(|s| Vec::with_capacity(cap(s)))
+            .collect();
+    } else {
+        narrow = h
+            .signals
+            .iter()
+            .map(|s| Vec::with_capacity(cap(s)))
+            .collect();
+    }
+    // Data records in blocks of about 1 MiB.
+    let per_block = ((1usize << 20) / head.record_bytes.max(1)).max(1);
+    let mut reader = file;
+    let mut block = vec![0u8; per_block * head.record_bytes];
+    let mut annotations = Vec::new();
+    let mut r = 0;
+    while r < h.n_records {
+        let m = per_block.min(h.n_records - r);
+        let bytes = &mut block[..m * head.record_bytes];
+        reader.read_exact(bytes).map_err(|e| {
+            invalid(
+                path,
+                format!(
+                    "data record {}: {e} (the file changed while it was read?)",
+                    r + 1
+                ),
+            )
+        })?;
+        for (i, record) in bytes.chunks_exact(head.record_bytes).enumerate() {
+            head.walk_record(r + i, record, &mut annotations, |k, chunk| {
+                if bdf {
+                    wide[k].extend(chunk.chunks_exact(3).map(bdf_sample));
+                } else {
+                    narrow[k].extend(
+                        chunk
+                            .chunks_exact(2)
+                            .map(|p| i16::from_le_bytes([p[0], p[1]])),
+                    );
+                }
+            })
+            .map_err(|m| invalid(path, m))?;
+            // Only the check matters here: `read_edf` leaves annotations out
+            // of the record too.
+            annotations.clear();
+        }
+        r += m;
+    }
+    let mut stores: Vec<Store> = if bdf {
+        wide.into_iter().map(Store::I32).collect()
+    } else {
+        narrow.into_iter().map(Store::I16).collect()
+    };
+    let EdfHead { header, .. } = head;
+    let mut leads = Vec::new();
+    for (s, store) in header.signals.iter().zip(stores.drain(..)) {
+        if s.is_annotation() {
+            continue;
+        }
+        let scale = Scale::Edf {
+            dig_min: s.dig_min as f64,
+            gain: (s.phys_max - s.phys_min) / (s.dig_max - s.dig_min) as f64,
+            phys_min: s.phys_min,
+        };
+        leads.push(DigitalLead::with_store(store, scale, unit_to_mv(&s.units)));
+    }
+    // The record's name, rate, leads, metadata and warnings come from the
+    // same conversion as `read_edf`'s, on empty samples.
+    let samples = vec![Vec::new(); header.signals.len()];
+    let file = EdfFile {
+        header,
+        samples,
+        annotations: Vec::new(),
+        warnings: Vec::new(),
+    };
+    let record = edf_to_record(file, path)?;
+    Ok(Loaded::Deferred(DeferredRecord { record, leads }))
+}
+
 /// Read the annotations of an EDF+ file (empty for plain EDF).
 pub fn read_edf_annotations(path: &Path) -> Result<Vec<EdfAnnotation>, FormatError> {
     let bytes = read_bytes(path)?;
@@ -254,15 +413,142 @@ pub fn parse_edf(bytes: &[u8], path: &Path) -> Result<EdfFile, FormatError> {
 }
 
 fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
-    if bytes.is_empty() {
+    let head = parse_head(bytes, bytes.len())?;
+    let data = &bytes[head.header_len..];
+    let mut samples: Vec<Vec<f64>> = head
+        .header
+        .signals
+        .iter()
+        .map(|s| {
+            if s.is_annotation() {
+                Vec::new()
+            } else {
+                Vec::with_capacity(s.samples_per_record * head.header.n_records)
+            }
+        })
+        .collect();
+    let mut annotations = Vec::new();
+    let mut record_onsets: Vec<Option<f64>> = vec![None; head.header.n_records];
+    let bdf = head.width == 3;
+    for (r, record_onset) in record_onsets.iter_mut().enumerate() {
+        let record = &data[r * head.record_bytes..(r + 1) * head.record_bytes];
+        *record_onset = head.walk_record(r, record, &mut annotations, |k, chunk| {
+            let s = &head.header.signals[k];
+            let gain = (s.phys_max - s.phys_min) / (s.dig_max - s.dig_min) as f64;
+            let out = &mut samples[k];
+            if bdf {
+                for p in chunk.chunks_exact(3) {
+                    let d = bdf_sample(p) as f64;
+                    out.push((d - s.dig_min as f64) * gain + s.phys_min);
+                }
+            } else {
+                for p in chunk.chunks_exact(2) {
+                    let d = i16::from_le_bytes([p[0], p[1]]) as f64;
+                    out.push((d - s.dig_min as f64) * gain + s.phys_min);
+                }
+            }
+        })?;
+    }
+    let EdfHead { header, .. } = head;
+    let mut warnings = Vec::new();
+    if header.variant.is_discontinuous() {
+        place_records(
+            &header.signals,
+            header.record_duration_s,
+            &record_onsets,
+            &mut samples,
+            &mut warnings,
+        )?;
+    }
+    Ok(EdfFile {
+        warnings,
+        header,
+        samples,
+        annotations,
+    })
+}
+
+/// A 24-bit little-endian two's-complement BDF sample.
+fn bdf_sample(p: &[u8]) -> i32 {
+    let sign = if p[2] & 0x80 != 0 { 0xff } else { 0 };
+    i32::from_le_bytes([p[0], p[1], p[2], sign])
+}
+
+/// A parsed header and the layout of the data records after it.
+struct EdfHead {
+    header: EdfHeader,
+    /// Bytes of the header (256 per signal plus 256).
+    header_len: usize,
+    /// Bytes per stored sample (2 EDF, 3 BDF).
+    width: usize,
+    /// Bytes per data record.
+    record_bytes: usize,
+}
+
+impl EdfHead {
+    /// Go through data record `r` (its bytes in `record`): each ordinary
+    /// signal's bytes to `signal(k, bytes)`, each annotation signal's TALs
+    /// parsed into `annotations`. Returns the record's onset (the first TAL
+    /// of the first annotation signal, the time-keeping TAL of EDF+).
+    fn walk_record(
+        &self,
+        r: usize,
+        record: &[u8],
+        annotations: &mut Vec<EdfAnnotation>,
+        mut signal: impl FnMut(usize, &[u8]),
+    ) -> Result<Option<f64>, String> {
+        let mut onset = None;
+        let mut first_ann = true;
+        let mut off = 0;
+        for (k, s) in self.header.signals.iter().enumerate() {
+            let n = s.samples_per_record * self.width;
+            let chunk = &record[off..off + n];
+            off += n;
+            if s.is_annotation() {
+                let o = parse_tals(chunk, annotations).map_err(|m| {
+                    format!("data record {} annotation signal {}: {m}", r + 1, k + 1)
+                })?;
+                if std::mem::take(&mut first_ann) {
+                    onset = o;
+                }
+            } else {
+                signal(k, chunk);
+            }
+        }
+        Ok(onset)
+    }
+
+    /// When the record can be read with its samples kept digital
+    /// ([`read_edf_deferred`]): continuous, with at least one data record of
+    /// positive duration, and every ordinary signal at one rate (nothing to
+    /// resample). Then its (rate in Hz, samples per signal, ordinary signals).
+    fn deferrable(&self) -> Option<Extent> {
+        let h = &self.header;
+        let mut ordinary = h.signals.iter().filter(|s| !s.is_annotation());
+        let spr = ordinary.next()?.samples_per_record;
+        let one_rate = ordinary.all(|s| s.samples_per_record == spr);
+        (one_rate && !h.variant.is_discontinuous() && h.n_records > 0 && h.record_duration_s > 0.0)
+            .then(|| {
+                (
+                    spr as f64 / h.record_duration_s,
+                    h.n_records * spr,
+                    h.signals.iter().filter(|s| !s.is_annotation()).count(),
+                )
+            })
+    }
+}
+
+/// Parse the header of an EDF or BDF file from `bytes`, the first bytes of
+/// a file of `file_len` bytes (at least its header when the file holds one).
+fn parse_head(bytes: &[u8], file_len: usize) -> Result<EdfHead, String> {
+    if file_len == 0 {
         return Err("empty file, not an EDF file".into());
     }
     let bdf = bytes[0] == 0xff;
     let kind = if bdf { "BDF" } else { "EDF" };
-    if bytes.len() < 256 {
+    if file_len < 256 {
         return Err(format!(
-            "truncated {kind} header: {} bytes, the fixed header alone has 256",
-            bytes.len()
+            "truncated {kind} header: {file_len} bytes, the fixed header alone has 256"
         ));
     }
     let mut c = Cursor { bytes, pos: 0 };
@@ -335,10 +621,9 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
         ));
     }
     let header_len = expected_header as usize;
-    if bytes.len() < header_len {
+    if file_len < header_len {
         return Err(format!(
-            "truncated EDF header: {} bytes, {ns} signals need {header_len}",
-            bytes.len()
+            "truncated EDF header: {file_len} bytes, {ns} signals need {header_len}"
         ));
     }
     let mut cols: Vec<Vec<String>> = Vec::new();
@@ -400,7 +685,7 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
     let record_bytes = record_samples
         .checked_mul(width)
         .ok_or("data record size overflows")?;
-    let data_len = bytes.len() - header_len;
+    let data_len = file_len - header_len;
     let n_records = if n_records_field == -1 {
         if !data_len.is_multiple_of(record_bytes) {
             return Err(format!(
@@ -427,66 +712,7 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
         }
         n
     };
-
-    let mut samples: Vec<Vec<f64>> = signals
-        .iter()
-        .map(|s| {
-            if s.is_annotation() {
-                Vec::new()
-            } else {
-                Vec::with_capacity(s.samples_per_record * n_records)
-            }
-        })
-        .collect();
-    let mut annotations = Vec::new();
-    let data = &bytes[header_len..];
-    // The onset of each data record: the first TAL of the first annotation
-    // signal (the time-keeping TAL of EDF+).
-    let first_ann = signals.iter().position(EdfSignalHeader::is_annotation);
-    let mut record_onsets: Vec<Option<f64>> = vec![None; n_records];
-    for (r, record_onset) in record_onsets.iter_mut().enumerate() {
-        let mut off = r * record_bytes;
-        for (k, s) in signals.iter().enumerate() {
-            let n = s.samples_per_record * width;
-            let chunk = &data[off..off + n];
-            off += n;
-            if s.is_annotation() {
-                let onset = parse_tals(chunk, &mut annotations).map_err(|m| {
-                    format!("data record {} annotation signal {}: {m}", r + 1, k + 1)
-                })?;
-                if Some(k) == first_ann {
-                    *record_onset = onset;
-                }
-                continue;
-            }
-            let gain = (s.phys_max - s.phys_min) / (s.dig_max - s.dig_min) as f64;
-            let out = &mut samples[k];
-            if bdf {
-                for p in chunk.chunks_exact(3) {
-                    let sign = if p[2] & 0x80 != 0 { 0xff } else { 0 };
-                    let d = i32::from_le_bytes([p[0], p[1], p[2], sign]) as f64;
-                    out.push((d - s.dig_min as f64) * gain + s.phys_min);
-                }
-            } else {
-                for p in chunk.chunks_exact(2) {
-                    let d = i16::from_le_bytes([p[0], p[1]]) as f64;
-                    out.push((d - s.dig_min as f64) * gain + s.phys_min);
-                }
-            }
-        }
-    }
-    let mut warnings = Vec::new();
-    if variant.is_discontinuous() {
-        place_records(
-            &signals,
-            record_duration_s,
-            &record_onsets,
-            &mut samples,
-            &mut warnings,
-        )?;
-    }
-    Ok(EdfFile {
-        warnings,
+    Ok(EdfHead {
         header: EdfHeader {
             variant,
             patient,
@@ -497,8 +723,9 @@ fn parse_inner(bytes: &[u8]) -> Result<EdfFile, String> {
             record_duration_s,
             signals,
         },
-        samples,
-        annotations,
+        header_len,
+        width,
+        record_bytes,
     })
 }
 

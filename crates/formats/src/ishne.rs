@@ -41,6 +41,7 @@
 
 use std::path::Path;
 
+use crate::deferred::{DeferredRecord, DigitalLead, Extent, Loaded, Scale, Store};
 use crate::{FormatError, Lead, Metadata, Record, Sex};
 
 const MAGIC: &[u8; 8] = b"ISHNE1.0";
@@ -135,6 +136,53 @@ pub fn read_ishne(path: &Path) -> Result<Record, FormatError> {
 
 /// Decode ISHNE bytes; `path` names the file in errors and in the record.
 pub fn parse_ishne(b: &[u8], path: &Path) -> Result<Record, FormatError> {
+    let head = parse_head(b, b.len(), path)?;
+    let (nl, n) = (head.gains.len(), head.n);
+    let data = &b[head.ecg_offset..head.ecg_offset + n * nl * 2];
+    let mut samples: Vec<Vec<f64>> = (0..nl).map(|_| Vec::with_capacity(n)).collect();
+    for frame in data.chunks_exact(2 * nl) {
+        for (k, lead) in samples.iter_mut().enumerate() {
+            let d = i16::from_le_bytes([frame[2 * k], frame[2 * k + 1]]);
+            lead.push(f64::from(d) * head.gains[k]);
+        }
+    }
+    Ok(head.into_record(path, samples))
+}
+
+/// The header of an ISHNE file: what it announces and the record it makes.
+struct IshneHead {
+    fs: f64,
+    names: Vec<String>,
+    /// Per lead, millivolts per digital unit.
+    gains: Vec<f64>,
+    /// Samples per lead.
+    n: usize,
+    ecg_offset: usize,
+    meta: Metadata,
+    warnings: Vec<String>,
+}
+
+impl IshneHead {
+    /// The record with these `samples` (one vector per lead, in mV).
+    fn into_record(self, path: &Path, samples: Vec<Vec<f64>>) -> Record {
+        let leads = self
+            .names
+            .into_iter()
+            .zip(samples)
+            .map(|(name, samples)| Lead {
+                name,
+                units: "mV".into(),
+                samples,
+            })
+            .collect();
+        Record::from_file(path, self.fs, leads, self.meta, self.warnings)
+    }
+}
+
+/// Parse the header of an ISHNE file from `b`, its first bytes (at least
+/// up to its ECG block when the file holds that many), the file having
+/// `file_len` bytes in all.
+fn parse_head(b: &[u8], file_len: usize, path: &Path) -> Result<IshneHead, FormatError> {
     if b.len() >= 8 && &b[..8] == ANN_MAGIC {
         return Err(invalid(
             path,
@@ -148,13 +196,10 @@ pub fn parse_ishne(b: &[u8], path: &Path) -> Result<Record, FormatError> {
             format!("not an ISHNE Holter file: magic number {got:?}, expected \"ISHNE1.0\""),
         ));
     }
-    if b.len() < FIXED {
+    if file_len < FIXED {
         return Err(invalid(
             path,
-            format!(
-                "truncated ISHNE header: {} bytes, the fixed header alone has {FIXED}",
-                b.len()
-            ),
+            format!("truncated ISHNE header: {file_len} bytes, the fixed header alone has {FIXED}"),
         ));
     }
     let var_size = i32_at(b, 10);
@@ -207,22 +252,21 @@ pub fn parse_ishne(b: &[u8], path: &Path) -> Result<Record, FormatError> {
         .checked_mul(nl * 2)
         .and_then(|x| x.checked_add(ecg_offset))
         .ok_or_else(|| invalid(path, "announced size overflows"))?;
-    if b.len() < need {
+    if file_len < need {
         return Err(invalid(
             path,
             format!(
                 "truncated ISHNE file: the header announces {n} samples of {nl} leads ({need} \
-                 bytes in all), the file has {}",
-                b.len()
+                 bytes in all), the file has {file_len}"
             ),
         ));
     }
     let mut warnings = Vec::new();
-    if b.len() > need {
+    if file_len > need {
         warnings.push(format!(
             "{}: {} bytes after the {n} announced samples per lead are ignored",
             path.display(),
-            b.len() - need
+            file_len - need
         ));
     }
     let stored_crc = u16::from_le_bytes([b[8], b[9]]);
@@ -257,22 +301,6 @@ pub fn parse_ishne(b: &[u8], path: &Path) -> Result<Record, FormatError> {
         names.push(name);
         gains.push(f64::from(res) * 1e-6);
     }
-    let data = &b[ecg_offset..need];
-    let mut leads: Vec<Lead> = names
-        .into_iter()
-        .map(|name| Lead {
-            name,
-            units: "mV".into(),
-            samples: Vec::with_capacity(n),
-        })
-        .collect();
-    for frame in data.chunks_exact(2 * nl) {
-        for (k, lead) in leads.iter_mut().enumerate() {
-            let d = i16::from_le_bytes([frame[2 * k], frame[2 * k + 1]]);
-            lead.samples.push(f64::from(d) * gains[k]);
-        }
-    }
-
     let mut meta = Metadata {
         sex: match i16_at(b, 128) {
             1 => Some(Sex::Male),
@@ -292,11 +320,95 @@ pub fn parse_ishne(b: &[u8], path: &Path) -> Result<Record, FormatError> {
     if !recorder.is_empty() {
         meta.comments.push(format!("recorder: {recorder}"));
     }
-    Ok(Record::from_file(
-        path,
-        f64::from(fs),
-        leads,
+    Ok(IshneHead {
+        fs: f64::from(fs),
+        names,
+        gains,
+        n,
+        ecg_offset,
         meta,
         warnings,
-    ))
+    })
+}
+
+/// The (sampling rate in Hz, samples per lead, leads) an ISHNE file's
+/// header announces, read without its samples.
+pub fn read_ishne_header(path: &Path) -> Result<Extent, FormatError> {
+    let (head, _) = open_head(path)?;
+    Ok((head.fs, head.n, head.gains.len()))
+}
+
+/// Open `path` and parse its header, reading no further than its ECG block;
+/// the file is returned positioned there.
+fn open_head(path: &Path) -> Result<(IshneHead, std::fs::File), FormatError> {
+    use std::io::Read;
+    let io = |source| FormatError::Io {
+        path: path.to_path_buf(),
+        source,
+    };
+    let mut file = std::fs::File::open(path).map_err(io)?;
+    let file_len = file.metadata().map_err(io)?.len();
+    let mut b = Vec::with_capacity(FIXED);
+    (&mut file)
+        .take(FIXED as u64)
+        .read_to_end(&mut b)
+        .map_err(io)?;
+    // The header runs to the ECG block (its CRC covers the bytes before it).
+    let ecg_offset = if b.len() >= FIXED {
+        u64::try_from(i32_at(&b, 22)).unwrap_or(0)
+    } else {
+        0
+    };
+    (&mut file)
+        .take(ecg_offset.min(file_len).saturating_sub(b.len() as u64))
+        .read_to_end(&mut b)
+        .map_err(io)?;
+    let file_len = usize::try_from(file_len).unwrap_or(usize::MAX);
+    let head = parse_head(&b, file_len, path)?;
+    Ok((head, file))
+}
+
+/// [`read_ishne`], except that a file for which `defer(fs, n_samples,
+/// n_leads)` is true keeps its 16-bit samples digital
+/// ([`crate::deferred`]), read in blocks without holding the file's bytes;
+/// [`crate::deferred::DigitalLead::physical`] then gives exactly the values
+/// of [`read_ishne`], and the record carries the same name, rate, leads,
+/// metadata and warnings.
+pub fn read_ishne_deferred(
+    path: &Path,
+    defer: &dyn Fn(f64, usize, usize) -> bool,
+) -> Result<Loaded, FormatError> {
+    use std::io::Read;
+    let (head, mut file) = open_head(path)?;
+    let nl = head.gains.len();
+    if !defer(head.fs, head.n, nl) {
+        drop(file);
+        return read_ishne(path).map(Loaded::Physical);
+    }
+    let mut digital: Vec<Vec<i16>> = (0..nl).map(|_| Vec::with_capacity(head.n)).collect();
+    // Frames in blocks of about 1 MiB.
+    let frame = 2 * nl;
+    let mut block = vec![0u8; (1 << 20) / frame * frame];
+    let mut left = head.n;
+    while left > 0 {
+        let m = left.min(block.len() / frame);
+        let bytes = &mut block[..m * frame];
+        file.read_exact(bytes).map_err(|source| FormatError::Io {
+            path: path.to_path_buf(),
+            source,
+        })?;
+        for f in bytes.chunks_exact(frame) {
+            for (k, lead) in digital.iter_mut().enumerate() {
+                lead.push(i16::from_le_bytes([f[2 * k], f[2 * k + 1]]));
+            }
+        }
+        left -= m;
+    }
+    let leads = digital
+        .into_iter()
+        .zip(&head.gains)
+        .map(|(d, &gain)| DigitalLead::with_store(Store::I16(d), Scale::Linear { gain }, None))
+        .collect();
+    let record = head.into_record(path, vec![Vec::new(); nl]);
+    Ok(Loaded::Deferred(DeferredRecord { record, leads }))
 }

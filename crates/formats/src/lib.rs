@@ -24,6 +24,7 @@
 pub mod aecg;
 pub mod annotation;
 pub mod csv;
+pub mod deferred;
 pub mod edf;
 pub mod error;
 mod frames;
@@ -136,20 +137,28 @@ impl ReadOptions {
     }
 }
 
-/// [`read_record`], except that a WFDB record for which `defer(fs,
-/// n_samples, n_leads)` is true keeps its samples digital
-/// ([`wfdb::deferred`]): a caller that works through a long record in
-/// stretches converts one stretch at a time. Other formats, and WFDB records
-/// that cannot be deferred (several rates, variable layout), are read whole.
+/// [`read_record`], except that a WFDB, EDF, BDF or ISHNE record for which
+/// `defer(fs, n_samples, n_leads)` is true keeps its samples digital
+/// ([`deferred`]; [`wfdb::deferred`], [`edf::read_edf_deferred`],
+/// [`ishne::read_ishne_deferred`]): a caller
+/// that works through a long record in stretches converts one stretch at a
+/// time. Other formats, and records that cannot be deferred (several rates,
+/// variable layout, a discontinuous EDF+), are read whole.
 pub fn read_record_deferred(
     path: &Path,
     opts: &ReadOptions,
     defer: &dyn Fn(f64, usize, usize) -> bool,
-) -> Result<wfdb::deferred::Loaded, FormatError> {
+) -> Result<deferred::Loaded, FormatError> {
     if is_wfdb_input(path) {
-        wfdb::deferred::read_record_deferred(path, defer)
-    } else {
-        read_record(path, opts).map(wfdb::deferred::Loaded::Physical)
+        return wfdb::deferred::read_record_deferred(path, defer);
+    }
+    let ext = path
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase());
+    match ext.as_deref() {
+        Some("edf" | "bdf") => edf::read_edf_deferred(path, defer),
+        Some("ecg") => ishne::read_ishne_deferred(path, defer),
+        _ => read_record(path, opts).map(deferred::Loaded::Physical),
     }
 }
 

@@ -1,162 +1,19 @@
-//! A WFDB record whose samples stay digital until a stretch of them is asked
-//! for, so that a long recording is never held whole in physical units.
-//!
-//! Why: physical samples take 8 bytes each (`f64`), digital ones 2 (`i16`,
-//! for the formats of up to 16 bits that need no accumulation: 16, 61, 80,
-//! 160, 212, 310, 311) or else 4 (`i32`): a 24-hour 12-lead 1000-Hz
-//! recording in format 16 is 8.3 GB as read by [`super::read_record`] and
-//! 2.1 GB here, and it is decoded into 16 bits directly, never held wider. A
-//! caller that works through a long record in stretches converts only the
-//! stretch it works on.
+//! WFDB records read with their samples kept digital ([`crate::deferred`]):
+//! 16 bits for the formats of up to 16 bits that need no accumulation (16,
+//! 61, 80, 160, 212, 310, 311), decoded into 16 bits directly and never held
+//! wider; 32 bits for the others.
 //!
 //! [`DigitalLead::physical`] gives exactly the values [`super::read_record`]
-//! gives for the same samples: the same operations in the same order
-//! (`(d − baseline) / gain`, then the factor to millivolts when the units are
-//! a voltage other than mV; invalid-sample markers become NaN). Only
-//! single-segment records with their length in the header and one rate for
-//! every signal are deferred: a slower signal would need the interpolation of
-//! [`super::read_record`] first, and the other records are read whole.
+//! gives for the same samples. Only single-segment records with their length
+//! in the header and one rate for every signal are deferred: a slower signal
+//! would need the interpolation of [`super::read_record`] first, and the
+//! other records are read whole.
 
 use super::{invalid_value, to_mv_factor, Digital, WfdbSignals};
+pub use crate::deferred::{DeferredRecord, DigitalLead, Loaded, SamplesMut};
+use crate::deferred::{Scale, Store};
 use crate::{FormatError, Lead, Metadata, Record};
 use std::path::Path;
-
-/// Digital samples in the narrowest type that holds their format.
-#[derive(Debug, Clone, PartialEq)]
-enum Store {
-    I16(Vec<i16>),
-    I32(Vec<i32>),
-}
-
-/// A lead's digital samples, mutable, for a caller that hands the memory of
-/// samples it has done with back to the system ([`DigitalLead::samples_mut`]).
-pub enum SamplesMut<'a> {
-    I16(&'a mut [i16]),
-    I32(&'a mut [i32]),
-}
-
-/// One signal's digital samples and what converts them to physical units.
-#[derive(Debug, Clone, PartialEq)]
-pub struct DigitalLead {
-    samples: Store,
-    baseline: f64,
-    gain: f64,
-    /// Factor to millivolts; `None` when the units are mV or not a voltage
-    /// (no multiplication, as in [`super::read_record`]).
-    factor: Option<f64>,
-    invalid: Option<i32>,
-}
-
-impl DigitalLead {
-    /// A lead from its digital samples: physical value `(d − baseline) / gain`,
-    /// times `factor` when given; a sample equal to `invalid` is missing (NaN).
-    pub fn new(
-        samples: Vec<i32>,
-        baseline: f64,
-        gain: f64,
-        factor: Option<f64>,
-        invalid: Option<i32>,
-    ) -> Self {
-        Self::with_store(Store::I32(samples), baseline, gain, factor, invalid)
-    }
-
-    fn with_store(
-        samples: Store,
-        baseline: f64,
-        gain: f64,
-        factor: Option<f64>,
-        invalid: Option<i32>,
-    ) -> Self {
-        Self {
-            samples,
-            baseline,
-            gain,
-            factor: factor.filter(|&f| f != 1.0),
-            invalid,
-        }
-    }
-
-    /// Number of samples.
-    pub fn len(&self) -> usize {
-        match &self.samples {
-            Store::I16(x) => x.len(),
-            Store::I32(x) => x.len(),
-        }
-    }
-
-    /// Whether the lead holds no sample.
-    pub fn is_empty(&self) -> bool {
-        self.len() == 0
-    }
-
-    /// Physical values of samples `a..b` (clamped to the lead).
-    pub fn physical(&self, a: usize, b: usize) -> Vec<f64> {
-        let b = b.min(self.len());
-        let a = a.min(b);
-        match &self.samples {
-            Store::I16(x) => self.convert(&x[a..b]),
-            Store::I32(x) => self.convert(&x[a..b]),
-        }
-    }
-
-    fn convert<T: super::Digital>(&self, x: &[T]) -> Vec<f64> {
-        let (base, gain) = (self.baseline, self.gain);
-        let bad = self.invalid;
-        let conv = |d: i32| {
-            if Some(d) == bad {
-                f64::NAN
-            } else {
-                (d as f64 - base) / gain
-            }
-        };
-        match self.factor {
-            None => x.iter().map(|&d| conv(d.to_i32())).collect(),
-            Some(f) => x.iter().map(|&d| conv(d.to_i32()) * f).collect(),
-        }
-    }
-
-    /// The digital samples themselves, for a caller that hands the memory of
-    /// samples it has done with back to the system as it goes.
-    pub fn samples_mut(&mut self) -> SamplesMut<'_> {
-        match &mut self.samples {
-            Store::I16(x) => SamplesMut::I16(x),
-            Store::I32(x) => SamplesMut::I32(x),
-        }
-    }
-}
-
-/// A record whose samples are [`DigitalLead`]s: `record` carries everything
-/// else (name, rate, lead names and units, metadata, files, warnings), its
-/// leads without samples.
-#[derive(Debug, Clone, PartialEq)]
-pub struct DeferredRecord {
-    pub record: Record,
-    pub leads: Vec<DigitalLead>,
-}
-
-impl DeferredRecord {
-    /// Number of samples per lead.
-    pub fn n_samples(&self) -> usize {
-        self.leads.first().map_or(0, DigitalLead::len)
-    }
-
-    /// The whole record in physical units, as [`super::read_record`] returns it.
-    pub fn into_record(self) -> Record {
-        let n = self.n_samples();
-        let mut rec = self.record;
-        for (l, d) in rec.leads.iter_mut().zip(self.leads) {
-            l.samples = d.physical(0, n);
-        }
-        rec
-    }
-}
-
-/// A record as read: in physical units, or deferred.
-#[derive(Debug, Clone, PartialEq)]
-pub enum Loaded {
-    Physical(Record),
-    Deferred(DeferredRecord),
-}
 
 /// Read a WFDB record, deferring the conversion to physical units when
 /// `defer(fs, n_samples, n_leads)` says so and the record allows it (a
@@ -226,13 +83,12 @@ fn deferred_from_signals<T: super::Digital>(
             },
             samples: Vec::new(),
         });
-        digital.push(DigitalLead::with_store(
-            store(s.samples),
-            s.spec.baseline as f64,
-            s.spec.adc_gain,
-            factor,
-            invalid_value(s.spec.format),
-        ));
+        let scale = Scale::Wfdb {
+            baseline: s.spec.baseline as f64,
+            gain: s.spec.adc_gain,
+            invalid: invalid_value(s.spec.format),
+        };
+        digital.push(DigitalLead::with_store(store(s.samples), scale, factor));
     }
     let meta = Metadata::from_comments(&w.header.comments);
     DeferredRecord {
@@ -332,20 +188,5 @@ mod tests {
             deferred >= 20,
             "only {deferred} records deferred ({physical} stayed physical)"
         );
-    }
-
-    /// Invalid markers become NaN and the unit factor applies after the
-    /// division, as `to_physical` and `read_record` do (worked by hand:
-    /// (1100 − 100) / 200 = 5 mV, in µV units 5 · 10⁻³ mV).
-    #[test]
-    fn conversion_follows_the_header_formula() {
-        let l = DigitalLead::new(vec![1100, -32768, 100], 100.0, 200.0, None, Some(-32768));
-        let v = l.physical(0, 3);
-        assert_eq!(v[0], 5.0);
-        assert!(v[1].is_nan());
-        assert_eq!(v[2], 0.0);
-        let u = DigitalLead::new(vec![1100], 100.0, 200.0, Some(1e-3), None);
-        assert_eq!(u.physical(0, 1), vec![5.0 * 1e-3]);
-        assert_eq!(u.physical(3, 9), Vec::<f64>::new());
     }
 }
