@@ -1,14 +1,14 @@
 #!/usr/bin/env bash
 # Long-recording benchmark (a measurement, not a test): one 12-lead 1000-Hz
 # record of each length in HOURS (default "1 6 24") and each format in
-# FORMATS (default "wfdb edf") run alone with --jobs 1 and --jobs 2; wall
+# FORMATS (default "wfdb edf"; "ishne" too) run alone with --jobs 1 and --jobs 2; wall
 # time and peak resident memory (/usr/bin/time). Writes bench/long.md.
 #
 # The records are LUDB record 1 (../shared/data/ludb/1, 10 s, 12 leads at
 # 500 Hz) resampled to 1000 Hz (scipy.signal.resample_poly) and repeated to
 # the length, written as WFDB format 16 at 1000 ADU/mV and as EDF (1-s data
 # records, digital -32768..32767 over -32.768..32.767 mV, so the same 1-uV
-# steps) in a temporary folder (a 24-hour record takes 2.07 GB of disk there
+# steps) and as ISHNE Holter (1000 nV per unit) in a temporary folder (a 24-hour record takes 2.07 GB of disk there
 # in each format; TMPDIR chooses the place).
 set -euo pipefail
 cd "$(dirname "$0")/.."
@@ -73,12 +73,33 @@ for h in hours:
             f.write(head)
             for _ in range(h):
                 f.write(hour_edf)
+    if "ishne" in formats:
+        d = out / f"i{h}"
+        d.mkdir()
+        head = bytearray(522)
+        head[0:8] = b"ISHNE1.0"
+        i4 = lambda at, v: head.__setitem__(slice(at, at + 4), int(v).to_bytes(4, "little", signed=True))
+        i2 = lambda at, v: head.__setitem__(slice(at, at + 2), int(v).to_bytes(2, "little", signed=True))
+        i4(10, 0), i4(14, n), i4(18, 522), i4(22, 522), i2(26, 1), i2(156, 12), i2(272, 1000)
+        for k in range(12):
+            i2(158 + 2 * k, 5 + k)  # I, II, III, aVR, aVL, aVF, V1..V6 (LUDB's order)
+            i2(206 + 2 * k, 1000)  # nV per unit
+        crc = 0xFFFF  # CRC-16/CCITT-FALSE of bytes 10..522
+        for b in head[10:]:
+            crc ^= b << 8
+            for _ in range(8):
+                crc = ((crc << 1) ^ 0x1021) & 0xFFFF if crc & 0x8000 else (crc << 1) & 0xFFFF
+        head[8:10] = crc.to_bytes(2, "little")
+        with open(d / f"i{h}.ecg", "wb") as f:
+            f.write(bytes(head))
+            for _ in range(h):
+                f.write(hour)
 PY
 
 rows=""
 for h in $hours; do
   for fmt in $formats; do
-    case $fmt in wfdb) rec=h$h; label="WFDB 16" ;; edf) rec=e$h; label=EDF ;; esac
+    case $fmt in wfdb) rec=h$h; label="WFDB 16" ;; edf) rec=e$h; label=EDF ;; ishne) rec=i$h; label=ISHNE ;; esac
     for j in 1 2; do
       /usr/bin/time -f "%e %M" -o "$tmp/time" "$bin" run "$tmp/$rec" --out "$tmp/o$rec-$j" --jobs "$j" --quiet --force >/dev/null 2>"$tmp/err" \
         || { cat "$tmp/err"; exit 1; }

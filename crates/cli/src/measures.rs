@@ -9,10 +9,11 @@ fn opt(v: Option<f64>) -> f64 {
     v.unwrap_or(f64::NAN)
 }
 
-/// Add `windows/` and the summary attributes to a record group.
+/// Add `windows/` and the summary attributes to a record group. The median
+/// beats move from `m` into the group (no copy); `m` keeps everything else.
 pub fn windows_group(
     g: &mut Group,
-    m: &RecordMeasures,
+    m: &mut RecordMeasures,
     names: &[String],
     fs: f64,
     cfg: &MeasureConfig,
@@ -89,14 +90,14 @@ pub fn windows_group(
         "caution",
         Attr::Text(tendline_measure::classify::CAUTION.into()),
     );
-    for (k, x) in w.iter().enumerate() {
+    for (k, x) in m.windows.iter_mut().enumerate() {
         let mg = wg.group("medians").group(&format!("{k:03}"));
         mg.attr("fiducial", Attr::Int(x.median.fiducial as i64));
         mg.attr("fs", Attr::Float(fs));
         mg.attr("start_s", Attr::Float(x.start_s));
-        let len = x.median.per_lead.first().map_or(0, Vec::len);
-        let values: Vec<f32> = x.median.per_lead.iter().flatten().copied().collect();
-        mg.dataset_with_units("beat", Data::F32Matrix { cols: len, values }, "mV");
+        let values = std::mem::take(&mut x.median.values);
+        let cols = if values.is_empty() { 0 } else { x.median.len };
+        mg.dataset_with_units("beat", Data::F32Matrix { cols, values }, "mV");
         mg.dataset(
             "beats_used",
             Data::I64(x.beats.iter().map(|&b| b as i64).collect()),

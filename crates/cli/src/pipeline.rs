@@ -775,7 +775,7 @@ pub fn process_record(
     let mut windows = windows;
     mark_paced_windows(&mut windows, &spikes, fs);
     let summary = tendline_measure::summarize(&windows, sex, &cfg.measure);
-    let meas = tendline_measure::RecordMeasures { windows, summary };
+    let mut meas = tendline_measure::RecordMeasures { windows, summary };
     stages.measure += clock.elapsed().as_secs_f64();
     let clock = std::time::Instant::now();
     let qrs: Vec<usize> = det.beats.iter().map(|b| b.sample).collect();
@@ -801,7 +801,7 @@ pub fn process_record(
         lg.attr("channel", Attr::Int(i as i64));
         marks_group(lg, lead);
     }
-    crate::measures::windows_group(&mut g, &meas, &names, rec.fs, &cfg.measure);
+    crate::measures::windows_group(&mut g, &mut meas, &names, rec.fs, &cfg.measure);
 
     let labels: Vec<&str> = det.beats.iter().map(|b| b.label.symbol()).collect();
     let marks = beat_annotations(&del.global, &qrs, &labels, 0);

@@ -215,9 +215,10 @@ fn windows_qt_rr_and_qtc_on_a_regular_record() {
         // Two valid leads: fewer than the default minimum of three for a dispersion.
         assert_eq!(w.qt_valid_leads, 2);
         assert_eq!(w.qt_dispersion_ms, None);
-        assert_eq!(w.median.per_lead.len(), 2);
+        assert_eq!(w.median.n_leads(), 2);
         assert_eq!(w.median.fiducial, 200);
-        assert_eq!(w.median.per_lead[0].len(), 200 + 450 + 1);
+        assert_eq!(w.median.lead(0).len(), 200 + 450 + 1);
+        assert_eq!(w.median.values.len(), 2 * (200 + 450 + 1));
     }
     assert_eq!(m.summary.n_measured, 3);
     assert!(m.summary.caution == CAUTION && !m.summary.unknown_sex);
@@ -249,7 +250,7 @@ fn median_beat_matches_template_despite_jitter() {
     let mean_true = used_true.iter().sum::<f64>() / used_true.len() as f64 * FS;
     let off = (mean_true - mean_pos) / FS;
     for (l, s) in sh.iter().enumerate() {
-        for (k, &v) in w.median.per_lead[l].iter().enumerate() {
+        for (k, &v) in w.median.lead(l).iter().enumerate() {
             let t = (k as f64 - w.median.fiducial as f64) / FS - off;
             // The neighbours are jittered independently, so only this beat's own span
             // (P wave to past the T wave) is compared.
@@ -425,7 +426,7 @@ fn beats_over_a_gap_are_left_out() {
     r.leads[1][s + 10] = f64::NAN;
     let w = &run(&r, &MeasureConfig::default(), None).windows[0];
     assert!(!w.beats.contains(&s));
-    assert!(w.median.per_lead.iter().flatten().all(|v| v.is_finite()));
+    assert!(w.median.values.iter().all(|v| v.is_finite()));
     assert!(w.qt_ms.is_some());
 }
 
