@@ -20,10 +20,10 @@
 //! Those records are WFDB records (format 16), and since the chunked ones are
 //! processed from their digital samples ([`Estimate::deferred`], the `deferred` module),
 //! a chunked WFDB, EDF, BDF or ISHNE record holds [`deferred_factor`] times its samples instead
-//! of [`READ_FACTOR`]: 6 hours 1.09 GB (estimate 1.33), 24 hours 4.13 GB
-//! (4.57), with `--jobs 2` 1.38 GB and 4.07 GB (1.53 and 4.77), less the
-//! program's 34 MB as above. [`READ_FACTOR`] still holds for the other
-//! formats.
+//! of [`READ_FACTOR`]: 6 hours 0.99 GB (estimate 1.27), 24 hours 3.94 GB
+//! (4.32), with `--jobs 2` 1.27 GB and 4.18 GB (1.47 and 4.52; `dist`
+//! binary, `scripts/bench_long.sh`, `bench/long.md`). [`READ_FACTOR`] still
+//! holds for the records read whole.
 //!
 //! The budget is `--max-memory` (MiB) or else three quarters of the memory
 //! available when the run starts ([`available_bytes`]: the kernel's
@@ -141,21 +141,22 @@ pub fn read_need(samples: u64, chunk_samples: u64, deferred: Option<f64>) -> u64
     (samples as f64 * factor) as u64 + (16 << 20)
 }
 
-/// Memory held by a WFDB record processed in chunks from its digital samples
-/// (the `deferred` module), per byte of its samples as `f64`, when it has
-/// `leads` signals stored in `bytes` bytes each (2 for formats of up to 16
-/// bits, else 4): while the whole-record passes run, the digital samples and
-/// one lead in physical units (`bytes`/8 + 1/`leads`); at the end, the
-/// results of the chunks gathered and turned into the record's tree, which
-/// take about half of the samples' `f64` bytes for 12 leads at 1000 Hz;
-/// whichever is larger, and 0.02 more for the program and the allocator's
-/// slack (as in [`READ_FACTOR`]). Measured (peak of `tendline run --jobs 1`,
-/// `/usr/bin/time`) on the 24-hour 12-lead format-16 record of the module
-/// docs: 4 159 452 KiB, the peak reached while the results are assembled;
-/// the estimate is 0.52 × 8.29 GB plus a chunk's working memory and
-/// [`BASE_BYTES`], 4.57 GB.
+/// Memory held by a WFDB, EDF, BDF or ISHNE record processed in chunks from
+/// its digital samples (the `deferred` module), per byte of its samples as
+/// `f64`, when it has `leads` signals stored in `bytes` bytes each (2 for
+/// EDF, ISHNE and the WFDB formats of up to 16 bits, else 4): while the
+/// whole-record passes run, the digital samples and one lead in physical
+/// units (`bytes`/8 + 1/`leads`); at the end, the results of the chunks
+/// gathered and turned into the record's tree, which take 0.47 of the
+/// samples' `f64` bytes for 12 leads at 1000 Hz; whichever is larger, and
+/// 0.02 more for the program and the allocator's slack (as in
+/// [`READ_FACTOR`]). Measured (peak of `tendline run`, `/usr/bin/time`,
+/// `dist` binary) on the 24-hour 12-lead format-16 record of the module
+/// docs: 3762 MiB with one worker, 3986 MiB with two, the peak reached while
+/// the results are assembled; the estimates are 0.49 × 8.29 GB plus one or
+/// two chunks' working memory and [`BASE_BYTES`], 4.32 and 4.52 GB.
 pub fn deferred_factor(leads: usize, bytes: usize) -> f64 {
-    (bytes as f64 / 8.0 + 1.0 / leads.max(1) as f64).max(0.5) + 0.02
+    (bytes as f64 / 8.0 + 1.0 / leads.max(1) as f64).max(0.47) + 0.02
 }
 
 /// Estimated peak memory of processing a record of `samples` bytes
@@ -341,9 +342,9 @@ mod tests {
             problem: None,
         };
         assert_eq!(estimate(&input).bytes, 12 * 5000 * 8);
-        // Format 16: held in 2 bytes; the results' floor of 0.5 applies.
+        // Format 16: held in 2 bytes; the results' floor of 0.47 applies.
         assert_eq!(estimate(&input).deferred, Some(deferred_factor(12, 2)));
-        assert_eq!(deferred_factor(12, 2), 0.52);
+        assert!((deferred_factor(12, 2) - 0.49).abs() < 1e-12);
         assert!((deferred_factor(12, 4) - (0.5 + 1.0 / 12.0 + 0.02)).abs() < 1e-12);
         assert!((deferred_factor(2, 2) - 0.77).abs() < 1e-12);
         // 60 000 samples: one piece under the default 2 M-sample chunks.
@@ -423,11 +424,12 @@ mod tests {
         assert_eq!(need(day, chunk_samples(2.0), 2, None), chunked + chunk_work);
         assert!(need(day, chunk_samples(2.0), 2, None) >= 9_314_356 * 1024);
         // The same record as WFDB format 16, processed from its digital
-        // samples: within 15 % above the measured peaks (`--jobs 1`:
-        // 4 159 452 KiB; `--jobs 2`: 4 101 932 KiB). The peak comes at the
-        // end, when no chunk runs, so the second chunk's working memory that
-        // the estimate counts for two threads is not used then.
-        for (threads, kib) in [(1, 4_159_452u64), (2, 4_101_932)] {
+        // samples: within 15 % above the largest measured peaks (`dist`
+        // binary, 2026-12-05: `--jobs 1` 3 888 524 KiB at 22:17Z and 3762 MiB
+        // at 22:41Z; `--jobs 2` 3 511 300 KiB and 3986 MiB). The peak comes
+        // at the end, when no chunk runs, so the second chunk's working
+        // memory that the estimate counts for two threads is not used then.
+        for (threads, kib) in [(1, 3_888_524u64), (2, 3986 * 1024)] {
             let d = need(
                 day,
                 chunk_samples(2.0),

@@ -17,11 +17,42 @@
 //! the units are a voltage other than mV).
 
 use crate::wfdb::Digital;
-use crate::Record;
+use crate::{FormatError, Record};
+use std::io::Read;
+use std::path::Path;
 
 /// What a reader asks its `defer` about a record, from its header alone:
 /// (sampling rate in Hz, samples per lead, leads).
 pub type Extent = (f64, usize, usize);
+
+/// The start of the file at `path` for a reader that parses its header
+/// before deciding how to read the rest: the first `first` bytes, then as
+/// many more as `total` (given those) says the header holds, never past the
+/// end of the file. Returns those bytes, the file positioned after them, and
+/// the file's length.
+pub(crate) fn read_head(
+    path: &Path,
+    first: u64,
+    total: impl FnOnce(&[u8]) -> u64,
+) -> Result<(Vec<u8>, std::fs::File, usize), FormatError> {
+    let io = |source| FormatError::Io {
+        path: path.to_path_buf(),
+        source,
+    };
+    let mut file = std::fs::File::open(path).map_err(io)?;
+    let file_len = file.metadata().map_err(io)?.len();
+    let mut bytes = Vec::new();
+    (&mut file)
+        .take(first)
+        .read_to_end(&mut bytes)
+        .map_err(io)?;
+    let want = total(&bytes).min(file_len);
+    (&mut file)
+        .take(want.saturating_sub(bytes.len() as u64))
+        .read_to_end(&mut bytes)
+        .map_err(io)?;
+    Ok((bytes, file, usize::try_from(file_len).unwrap_or(usize::MAX)))
+}
 
 /// Digital samples in the narrowest type that holds their format.
 #[derive(Debug, Clone, PartialEq)]
@@ -170,6 +201,44 @@ impl DeferredRecord {
     /// Number of samples per lead.
     pub fn n_samples(&self) -> usize {
         self.leads.first().map_or(0, DigitalLead::len)
+    }
+
+    /// Where this record differs from `whole`, the same record as its
+    /// format's whole-record reader returns it: everything but the samples,
+    /// then every lead's values bit for bit over the whole record and over
+    /// stretches of it. `None` when they are the same. The readers' tests
+    /// use it with the whole-record reader as the oracle.
+    pub fn first_difference(&self, whole: &Record) -> Option<String> {
+        let mut bare = whole.clone();
+        bare.leads.iter_mut().for_each(|l| l.samples = Vec::new());
+        if self.record != bare {
+            return Some(format!("record {:?} against {:?}", self.record, bare));
+        }
+        let n = whole.n_samples();
+        if self.n_samples() != n || self.leads.len() != whole.leads.len() {
+            return Some(format!(
+                "{} leads of {} samples against {} of {n}",
+                self.leads.len(),
+                self.n_samples(),
+                whole.leads.len()
+            ));
+        }
+        let same = |a: &[f64], b: &[f64]| {
+            a.len() == b.len() && a.iter().zip(b).all(|(x, y)| x.to_bits() == y.to_bits())
+        };
+        for (l, w) in self.leads.iter().zip(&whole.leads) {
+            for (a, b) in [
+                (0, n),
+                (0, n / 3),
+                (n / 3, n / 2 + 1),
+                (n.saturating_sub(7), n),
+            ] {
+                if !same(&l.physical(a, b), &w.samples[a..b]) {
+                    return Some(format!("lead {:?}, samples {a}..{b}", w.name));
+                }
+            }
+        }
+        None
     }
 
     /// The whole record in physical units, as the whole-record reader returns it.

@@ -225,27 +225,15 @@ pub fn read_edf_header(path: &Path) -> Result<(EdfHeader, Option<Extent>), Forma
 /// Open `path` and parse its header, reading no more of the file; the file
 /// is returned positioned after the header.
 fn open_head(path: &Path) -> Result<(EdfHead, std::fs::File), FormatError> {
-    use std::io::Read;
-    let io = |source| FormatError::Io {
-        path: path.to_path_buf(),
-        source,
-    };
-    let mut file = std::fs::File::open(path).map_err(io)?;
-    let file_len = file.metadata().map_err(io)?.len();
-    let mut bytes = Vec::with_capacity(256);
-    (&mut file).take(256).read_to_end(&mut bytes).map_err(io)?;
     // The number of signals sets the header's length; a field that does not
     // parse is reported by `parse_head`, which needs no more bytes for it.
-    let ns = bytes
-        .get(252..256)
-        .and_then(|b| field_text(b).parse::<u64>().ok())
-        .unwrap_or(0);
-    let want = 256u64.saturating_mul(ns.saturating_add(1)).min(file_len);
-    (&mut file)
-        .take(want.saturating_sub(bytes.len() as u64))
-        .read_to_end(&mut bytes)
-        .map_err(io)?;
-    let file_len = usize::try_from(file_len).unwrap_or(usize::MAX);
+    let (bytes, file, file_len) = crate::deferred::read_head(path, 256, |b| {
+        let ns = b
+            .get(252..256)
+            .and_then(|b| field_text(b).parse::<u64>().ok())
+            .unwrap_or(0);
+        256u64.saturating_mul(ns.saturating_add(1))
+    })?;
     let head = parse_head(&bytes, file_len).map_err(|m| invalid(path, m))?;
     Ok((head, file))
 }

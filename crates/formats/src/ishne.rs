@@ -341,29 +341,14 @@ pub fn read_ishne_header(path: &Path) -> Result<Extent, FormatError> {
 /// Open `path` and parse its header, reading no further than its ECG block;
 /// the file is returned positioned there.
 fn open_head(path: &Path) -> Result<(IshneHead, std::fs::File), FormatError> {
-    use std::io::Read;
-    let io = |source| FormatError::Io {
-        path: path.to_path_buf(),
-        source,
-    };
-    let mut file = std::fs::File::open(path).map_err(io)?;
-    let file_len = file.metadata().map_err(io)?.len();
-    let mut b = Vec::with_capacity(FIXED);
-    (&mut file)
-        .take(FIXED as u64)
-        .read_to_end(&mut b)
-        .map_err(io)?;
     // The header runs to the ECG block (its CRC covers the bytes before it).
-    let ecg_offset = if b.len() >= FIXED {
-        u64::try_from(i32_at(&b, 22)).unwrap_or(0)
-    } else {
-        0
-    };
-    (&mut file)
-        .take(ecg_offset.min(file_len).saturating_sub(b.len() as u64))
-        .read_to_end(&mut b)
-        .map_err(io)?;
-    let file_len = usize::try_from(file_len).unwrap_or(usize::MAX);
+    let (b, file, file_len) = crate::deferred::read_head(path, FIXED as u64, |b| {
+        if b.len() >= FIXED {
+            u64::try_from(i32_at(b, 22)).unwrap_or(0)
+        } else {
+            0
+        }
+    })?;
     let head = parse_head(&b, file_len, path)?;
     Ok((head, file))
 }
