@@ -1,7 +1,9 @@
 //! The reader contract: every signal reader behind [`read_record`] (WFDB, EDF,
 //! BDF, ISHNE Holter, CSV, HL7 aECG) passes the same invariants on what it returns and the same
-//! bad-input cases. A new format adds one entry to [`formats`] and passes this
-//! file unchanged.
+//! bad-input cases, and its form for long records (`read_record_deferred`,
+//! digital samples where the format allows) gives the same record bit for
+//! bit and the same errors. A new format adds one entry to [`formats`] and
+//! passes this file unchanged.
 //!
 //! Valid inputs: a small record written by the test in each format (WFDB and EDF
 //! through the crate's writers, CSV and aECG as text), plus, when
@@ -19,7 +21,10 @@ mod ishne_util;
 
 use std::path::{Path, PathBuf};
 
-use tendline_formats::{edf, read_record, wfdb, Lead, Metadata, ReadOptions, Record};
+use tendline_formats::deferred::Loaded;
+use tendline_formats::{
+    edf, read_record, read_record_deferred, wfdb, Lead, Metadata, ReadOptions, Record,
+};
 
 /// Small synthetic record: 3 leads, 500 Hz, 2 s (invented test signal).
 fn synthetic() -> Record {
@@ -264,6 +269,7 @@ fn every_reader_satisfies_the_contract_on_written_files() {
         let r = read_record(&w.input, &ReadOptions::default())
             .unwrap_or_else(|e| panic!("{}: {e}", w.format));
         check_contract(&w.input, &r);
+        same_when_deferred(&w.input, &r, w.format);
         // The same signal comes back from every format: names, rate, length, and
         // values within each format's quantisation (WFDB/aECG 1 uV, CSV 1e-6 mV,
         // EDF 16-bit over the signal's range: < 1e-4 mV here).
@@ -317,6 +323,30 @@ fn every_reader_satisfies_the_contract_on_reference_data() {
     assert!(read >= 2, "expected at least the two WFDB records to read");
 }
 
+/// Read with every record deferred that its format allows
+/// (`read_record_deferred`, the path of long records): the same record as
+/// `read_record` gives, bit for bit, whether it comes back digital (WFDB,
+/// EDF, BDF, ISHNE) or read whole (CSV, aECG); or the same error.
+fn same_when_deferred(input: &Path, whole: &Record, format: &str) {
+    match read_record_deferred(input, &ReadOptions::default(), &|_, _, _| true).unwrap() {
+        Loaded::Deferred(d) => assert_eq!(d.first_difference(whole), None, "{format}"),
+        Loaded::Physical(r) => {
+            assert!(matches!(format, "CSV" | "aECG"), "{format} not deferred");
+            assert_eq!(&r, whole, "{format}");
+        }
+    }
+}
+
+/// The deferred read of a bad input fails with `read_record`'s message.
+fn same_error_when_deferred(input: &Path, format: &str) {
+    let opts = ReadOptions::default();
+    let a = read_record(input, &opts).unwrap_err().to_string();
+    let b = read_record_deferred(input, &opts, &|_, _, _| true)
+        .unwrap_err()
+        .to_string();
+    assert_eq!(a, b, "{format}");
+}
+
 fn expect_error_naming(
     path: &Path,
     res: Result<Record, tendline_formats::FormatError>,
@@ -361,12 +391,14 @@ fn every_reader_rejects_the_same_bad_inputs() {
             "truncated",
             w.format,
         );
+        same_error_when_deferred(&w.input, w.format);
 
         // Empty: the file handed to the reader holds no bytes.
         std::fs::write(&w.data_file, &orig).unwrap();
         let kept = std::fs::read(&w.input).unwrap();
         std::fs::write(&w.input, b"").unwrap();
         expect_error_naming(&w.input, read_record(&w.input, &opts), "empty", w.format);
+        same_error_when_deferred(&w.input, w.format);
         std::fs::write(&w.input, &kept).unwrap();
 
         // Unknown extension: the same bytes under a name no reader claims.
