@@ -31,44 +31,12 @@ fn put(g: &mut Group, path: &str, ds: Dataset) {
 /// Stack one dataset across windows: `[W, n]` when every window that has it holds
 /// `n` values (windows without it filled with −1 / NaN / ""; text is stored flat with
 /// a `shape` attribute), else the values concatenated with an `offsets` attribute
-/// (window `w` owns `offsets[w]..offsets[w+1]`). A per-window matrix (the median
-/// beat, leads × samples) becomes `[W, leads, samples]`.
+/// (window `w` owns `offsets[w]..offsets[w+1]`). Per-window matrices go to
+/// [`stack_matrices`] instead.
 fn stack(per_window: &[Option<&Dataset>]) -> Dataset {
     let w = per_window.len();
     let present: Vec<&Dataset> = per_window.iter().flatten().copied().collect();
     let mut attrs = present.first().map(|d| d.attrs.clone()).unwrap_or_default();
-    if let Some(Data::F32Matrix { .. }) = present.first().map(|d| &d.data) {
-        let shapes: BTreeSet<(usize, usize)> = present
-            .iter()
-            .filter_map(|d| match &d.data {
-                Data::F32Matrix { cols, values } if *cols > 0 => Some((values.len() / cols, *cols)),
-                _ => None,
-            })
-            .collect();
-        let (rows, cols) = if shapes.len() == 1 {
-            *shapes.iter().next().expect("one shape")
-        } else {
-            (0, 0)
-        };
-        let mut values = Vec::with_capacity(w * rows * cols);
-        for d in per_window {
-            match d.map(|d| &d.data) {
-                Some(Data::F32Matrix { cols: c, values: v })
-                    if *c == cols && v.len() == rows * cols && cols > 0 =>
-                {
-                    values.extend_from_slice(v)
-                }
-                _ => values.extend(std::iter::repeat_n(f32::NAN, rows * cols)),
-            }
-        }
-        return Dataset {
-            data: Data::F32Nd {
-                shape: vec![w, rows, cols],
-                values,
-            },
-            attrs,
-        };
-    }
     let lens: BTreeSet<usize> = present.iter().map(|d| d.data.rows()).collect();
     let fixed = (lens.len() == 1).then(|| *lens.iter().next().expect("one length"));
     let mut offsets = vec![0.0];
@@ -142,14 +110,80 @@ fn stack(per_window: &[Option<&Dataset>]) -> Dataset {
     Dataset { data, attrs }
 }
 
+/// One window's matrix: its column count and values (row-major).
+type Matrix = (usize, Vec<f32>);
+
+/// Every per-window matrix (`F32Matrix`) below `g`, taken out (its values
+/// left empty) with its path relative to `g` and its column count.
+fn take_matrices(g: &mut Group, prefix: &str, out: &mut Vec<(String, usize, Vec<f32>)>) {
+    for (k, d) in g.datasets.iter_mut() {
+        if let Data::F32Matrix { cols, values } = &mut d.data {
+            out.push((format!("{prefix}{k}"), *cols, std::mem::take(values)));
+        }
+    }
+    for (k, sub) in g.groups.iter_mut() {
+        take_matrices(sub, &format!("{prefix}{k}/"), out);
+    }
+}
+
+/// Per-window matrices (leads × samples; `None` where a window lacks one)
+/// as one `[W, leads, samples]` stack whose blocks are the windows' own
+/// vectors, moved, not copied; a window whose matrix is missing or empty is
+/// filled with NaN, and matrices of more than one shape give `[W, 0, 0]`.
+fn stack_matrices(
+    blocks: Vec<Option<(usize, Vec<f32>)>>,
+    attrs: BTreeMap<String, Attr>,
+) -> Dataset {
+    let shapes: BTreeSet<(usize, usize)> = blocks
+        .iter()
+        .flatten()
+        .filter(|(cols, _)| *cols > 0)
+        .map(|(cols, v)| (v.len() / cols, *cols))
+        .collect();
+    let (rows, cols) = if shapes.len() == 1 {
+        *shapes.iter().next().expect("one shape")
+    } else {
+        (0, 0)
+    };
+    let w = blocks.len();
+    let blocks = blocks
+        .into_iter()
+        .map(|b| match b {
+            Some((c, v)) if c == cols && v.len() == rows * cols && cols > 0 => v,
+            _ => vec![f32::NAN; rows * cols],
+        })
+        .collect();
+    Dataset {
+        data: Data::F32Stack {
+            shape: [w, rows, cols],
+            blocks,
+        },
+        attrs,
+    }
+}
+
 /// Replace `windows/medians/<WWW>/…` by stacked arrays `windows/medians/…`.
 pub fn stack_medians(record: &mut Group) {
     let Some(windows) = record.groups.get_mut("windows") else {
         return;
     };
-    let Some(medians) = windows.groups.remove("medians") else {
+    let Some(mut medians) = windows.groups.remove("medians") else {
         return;
     };
+    // The median beats are the bulk of a long record's results (a 24-hour
+    // 12-lead record: 0.54 GB): they move into the stack instead of being
+    // copied.
+    let n_windows = medians.groups.len();
+    let mut matrices: BTreeMap<String, Vec<Option<Matrix>>> = BTreeMap::new();
+    for (k, g) in medians.groups.values_mut().enumerate() {
+        let mut taken = Vec::new();
+        take_matrices(g, "", &mut taken);
+        for (path, cols, values) in taken {
+            matrices
+                .entry(path)
+                .or_insert_with(|| vec![None; n_windows])[k] = Some((cols, values));
+        }
+    }
     let wins: Vec<&Group> = medians.groups.values().collect();
     let mut paths: BTreeSet<String> = BTreeSet::new();
     let flat: Vec<BTreeMap<String, &Dataset>> = wins
@@ -164,7 +198,14 @@ pub fn stack_medians(record: &mut Group) {
     let mut out = Group::default();
     for p in &paths {
         let per: Vec<Option<&Dataset>> = flat.iter().map(|m| m.get(p).copied()).collect();
-        put(&mut out, p, stack(&per));
+        let ds = match matrices.remove(p) {
+            Some(blocks) => {
+                let attrs = per.iter().flatten().next().map(|d| d.attrs.clone());
+                stack_matrices(blocks, attrs.unwrap_or_default())
+            }
+            None => stack(&per),
+        };
+        put(&mut out, p, ds);
     }
     // Window attributes: the same in every window become group attributes; others columns.
     if let Some(first) = wins.first() {
@@ -217,6 +258,33 @@ mod tests {
         g
     }
 
+    /// Windows without a matrix or with an empty one are NaN blocks; the
+    /// others keep their values; matrices of two shapes give `[W, 0, 0]`.
+    #[test]
+    fn matrices_stack_by_window_with_nan_fill() {
+        let a = vec![1.0, 2.0, 3.0, 4.0, 5.0, 6.0];
+        let blocks = vec![
+            Some((3, a.clone())),
+            None,
+            Some((0, Vec::new())),
+            Some((3, a.clone())),
+        ];
+        let d = stack_matrices(blocks, BTreeMap::new());
+        let Data::F32Stack { shape, blocks } = d.data else {
+            panic!("a stack expected");
+        };
+        assert_eq!(shape, [4, 2, 3]);
+        assert_eq!(blocks[0], a);
+        assert_eq!(blocks[3], a);
+        for b in &blocks[1..3] {
+            assert!(b.len() == 6 && b.iter().all(|x| x.is_nan()));
+        }
+        let d = stack_matrices(vec![Some((3, a.clone())), Some((2, a))], BTreeMap::new());
+        assert!(
+            matches!(d.data, Data::F32Stack { shape: [2, 0, 0], blocks } if blocks.iter().all(Vec::is_empty))
+        );
+    }
+
     #[test]
     fn windows_are_stacked_with_fill_and_offsets() {
         let mut rec = Group::default();
@@ -232,7 +300,7 @@ mod tests {
         assert!(matches!(&m.datasets["qt_ms"].data,
             Data::F64Nd { shape, values } if shape == &vec![2, 2] && values[..3] == [400.0, 410.0, 420.0] && values[3].is_nan()));
         assert!(
-            matches!(&m.datasets["beat"].data, Data::F32Nd { shape, .. } if shape == &vec![2, 2, 3])
+            matches!(&m.datasets["beat"].data, Data::F32Stack { shape, blocks } if shape == &[2, 2, 3] && blocks.iter().all(|b| b == &vec![1.0; 6]))
         );
         // Ragged: concatenated with offsets 0, 2, 5.
         let used = &m.datasets["beats_used"];

@@ -392,11 +392,6 @@ fn process_one(
             processed.n_samples.saturating_sub(progress.counted),
             Ordering::Relaxed,
         );
-        let encode = |path: PathBuf, anns: &[tendline_formats::Annotation]| {
-            tendline_formats::annotation::encode_annotations(anns)
-                .map(|bytes| (path.clone(), bytes))
-                .map_err(|m| anyhow::anyhow!("{}: {m}", path.display()))
-        };
         let part = Part {
             record: input.name.clone(),
             key,
@@ -405,14 +400,14 @@ fn process_one(
         // The files are written here, in parallel with the other records; their
         // fsync and rename (slow on a real disk) wait for the committer thread.
         let mut staged = stage_all(vec![
-            encode(
+            (
                 ann_dir.join(format!("{}.mark", input.name)),
-                &processed.marks,
-            )?,
-            encode(
+                processed.marks,
+            ),
+            (
                 ann_dir.join(format!("{}.leadmark", input.name)),
-                &processed.leadmarks,
-            )?,
+                processed.leadmarks,
+            ),
         ])?;
         // Serialized straight to its file: a long record's part is large.
         match part.stage_json(&part_path) {

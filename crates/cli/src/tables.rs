@@ -99,9 +99,11 @@ fn cell_of(d: &Data, i: usize) -> String {
             .map(|x| format!("{x:.3}"))
             .unwrap_or_default(),
         Data::Text(v) => v.get(i).map(|s| csv_cell(s)).unwrap_or_default(),
-        Data::F32Matrix { .. } | Data::I64Nd { .. } | Data::F64Nd { .. } | Data::F32Nd { .. } => {
-            String::new()
-        }
+        Data::F32Matrix { .. }
+        | Data::I64Nd { .. }
+        | Data::F64Nd { .. }
+        | Data::F32Nd { .. }
+        | Data::F32Stack { .. } => String::new(),
     }
 }
 

@@ -408,10 +408,113 @@ fn parse_custom_label(s: &str, index: usize) -> Result<CustomLabel, String> {
 
 /// Encode annotations in the MIT format (see the module docs for the rules).
 pub fn encode_annotations(anns: &[Annotation]) -> Result<Vec<u8>, String> {
-    encode_annotation_file(&AnnotationFile {
-        annotations: anns.to_vec(),
-        ..Default::default()
-    })
+    let mut enc = AnnotationEncoder::new();
+    for a in anns {
+        enc.push(a)?;
+    }
+    Ok(enc.finish())
+}
+
+/// An MIT-format annotation file written one annotation at a time, so that
+/// a long record's annotations need never be held all at once: the bytes are
+/// exactly those of [`encode_annotations`] over the same annotations (which
+/// is built on it). Annotations must come in sample order.
+#[derive(Debug, Clone, Default)]
+pub struct AnnotationEncoder {
+    out: Vec<u8>,
+    prev_t: i64,
+    chan: u8,
+    num: i8,
+    count: usize,
+}
+
+impl AnnotationEncoder {
+    /// An empty file without definitions.
+    pub fn new() -> Self {
+        Self::default()
+    }
+
+    /// Appends one annotation; errors name it by its position in the file
+    /// (negative sample, out of order, a code that is no annotation type,
+    /// aux text over 255 bytes), and nothing is written for it.
+    pub fn push(&mut self, a: &Annotation) -> Result<(), String> {
+        let k = self.count;
+        if a.sample < 0 {
+            return Err(format!(
+                "annotation {k}: negative sample {} cannot be written",
+                a.sample
+            ));
+        }
+        if a.sample < self.prev_t {
+            return Err(format!(
+                "annotations not sorted by sample: annotation {k} at sample {} follows sample {}",
+                a.sample, self.prev_t
+            ));
+        }
+        if a.code == 0 || a.code >= SKIP {
+            return Err(format!(
+                "annotation {k}: code {} is not an annotation type (allowed 1 to 58)",
+                a.code
+            ));
+        }
+        let aux = a.aux.as_ref().filter(|x| !x.is_empty());
+        if let Some(aux) = aux.filter(|x| x.len() > 255) {
+            return Err(format!(
+                "annotation {k}: aux of {} bytes exceeds the 255-byte limit",
+                aux.len()
+            ));
+        }
+        let out = &mut self.out;
+        let push = |out: &mut Vec<u8>, code: u8, value: u16| {
+            out.extend_from_slice(&(((code as u16) << 10) | (value & 0x3ff)).to_le_bytes());
+        };
+        let mut d = a.sample - self.prev_t;
+        while d > 0x3ff {
+            let n = d.min(i32::MAX as i64);
+            let nb = (n as i32).to_le_bytes();
+            push(out, SKIP, 0);
+            out.extend_from_slice(&[nb[2], nb[3], nb[0], nb[1]]);
+            d -= n;
+        }
+        push(out, a.code, d as u16);
+        if a.subtype != 0 {
+            push(out, SUB, a.subtype as u8 as u16);
+        }
+        if a.chan != self.chan {
+            push(out, CHN, a.chan as u16);
+            self.chan = a.chan;
+        }
+        if a.num != self.num {
+            push(out, NUM, a.num as u8 as u16);
+            self.num = a.num;
+        }
+        if let Some(aux) = aux {
+            push(out, AUX, aux.len() as u16);
+            out.extend_from_slice(aux);
+            if aux.len() % 2 == 1 {
+                out.push(0);
+            }
+        }
+        self.prev_t = a.sample;
+        self.count += 1;
+        Ok(())
+    }
+
+    /// Annotations written so far.
+    pub fn len(&self) -> usize {
+        self.count
+    }
+
+    /// Whether no annotation was written.
+    pub fn is_empty(&self) -> bool {
+        self.count == 0
+    }
+
+    /// The file's bytes, with its end-of-file marker.
+    pub fn finish(mut self) -> Vec<u8> {
+        self.out.extend_from_slice(&[0, 0]);
+        self.out
+    }
 }
 
 fn push_note_at_zero(out: &mut Vec<u8>, text: &str) -> Result<(), String> {
@@ -461,68 +564,14 @@ pub fn encode_annotation_file(file: &AnnotationFile) -> Result<Vec<u8>, String> 
     if has_defs {
         out.extend_from_slice(&[0, (SKIP << 2), 0xff, 0xff, 0xff, 0xff, 1, 0]);
     }
-    let mut prev_t: i64 = 0;
-    let mut chan: u8 = 0;
-    let mut num: i8 = 0;
-    let push = |out: &mut Vec<u8>, code: u8, value: u16| {
-        out.extend_from_slice(&(((code as u16) << 10) | (value & 0x3ff)).to_le_bytes());
+    let mut enc = AnnotationEncoder {
+        out,
+        ..AnnotationEncoder::default()
     };
-    for (k, a) in anns.iter().enumerate() {
-        if a.sample < 0 {
-            return Err(format!(
-                "annotation {k}: negative sample {} cannot be written",
-                a.sample
-            ));
-        }
-        if a.sample < prev_t {
-            return Err(format!(
-                "annotations not sorted by sample: annotation {k} at sample {} follows sample {prev_t}",
-                a.sample
-            ));
-        }
-        if a.code == 0 || a.code >= SKIP {
-            return Err(format!(
-                "annotation {k}: code {} is not an annotation type (allowed 1 to 58)",
-                a.code
-            ));
-        }
-        let mut d = a.sample - prev_t;
-        while d > 0x3ff {
-            let n = d.min(i32::MAX as i64);
-            let nb = (n as i32).to_le_bytes();
-            push(&mut out, SKIP, 0);
-            out.extend_from_slice(&[nb[2], nb[3], nb[0], nb[1]]);
-            d -= n;
-        }
-        push(&mut out, a.code, d as u16);
-        if a.subtype != 0 {
-            push(&mut out, SUB, a.subtype as u8 as u16);
-        }
-        if a.chan != chan {
-            push(&mut out, CHN, a.chan as u16);
-            chan = a.chan;
-        }
-        if a.num != num {
-            push(&mut out, NUM, a.num as u8 as u16);
-            num = a.num;
-        }
-        if let Some(aux) = a.aux.as_ref().filter(|x| !x.is_empty()) {
-            if aux.len() > 255 {
-                return Err(format!(
-                    "annotation {k}: aux of {} bytes exceeds the 255-byte limit",
-                    aux.len()
-                ));
-            }
-            push(&mut out, AUX, aux.len() as u16);
-            out.extend_from_slice(aux);
-            if aux.len() % 2 == 1 {
-                out.push(0);
-            }
-        }
-        prev_t = a.sample;
+    for a in anns {
+        enc.push(a)?;
     }
-    out.extend_from_slice(&[0, 0]);
-    Ok(out)
+    Ok(enc.finish())
 }
 
 /// One wave of one beat in the open databases' boundary convention: `(` at the

@@ -298,6 +298,16 @@ pub enum Data {
         #[serde(with = "f32_packed")]
         values: Vec<f32>,
     },
+    /// A 3-D f32 array `[shape[0], shape[1], shape[2]]` held as one block of
+    /// `shape[1] · shape[2]` values per index of its leading axis, written to
+    /// HDF5 without joining the blocks (the median beats of a long record's
+    /// windows are hundreds of MB; joining them would hold them twice). Built
+    /// only on the way into `results.h5`, never in part files.
+    #[serde(skip)]
+    F32Stack {
+        shape: [usize; 3],
+        blocks: Vec<Vec<f32>>,
+    },
 }
 
 impl Data {
@@ -312,6 +322,7 @@ impl Data {
             Data::I64Nd { shape, .. } | Data::F64Nd { shape, .. } | Data::F32Nd { shape, .. } => {
                 shape.first().copied().unwrap_or(0)
             }
+            Data::F32Stack { shape, .. } => shape[0],
         }
     }
 }
