@@ -1110,9 +1110,9 @@ const ANNOTATION_BLOCK_BEATS: usize = 4096;
 /// sorted by (sample, channel) and encoded, which the tests keep as the
 /// oracle.
 ///
-/// Why blocks: a 24-hour 12-lead record has about 7.5 million per-lead
-/// annotations, 0.8 GB as annotation structures, which was the largest part
-/// of its peak memory. The annotations are built [`ANNOTATION_BLOCK_BEATS`]
+/// Why blocks: a 24-hour 12-lead record has about 7.2 million per-lead
+/// annotations (`bench/long.md`), which as annotation structures added 0.8
+/// GB to its peak memory at the end of the run. The annotations are built [`ANNOTATION_BLOCK_BEATS`]
 /// beats at a time; those that no later beat's marks can precede (the lower
 /// bound being the earliest mark of every later beat) are written, the rest
 /// wait for the next block.
