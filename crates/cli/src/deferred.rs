@@ -138,15 +138,14 @@ pub(crate) fn scan(
     let k = leads.len();
     let (mut fills, mut zero, mut missing) = (Vec::with_capacity(k), vec![false; k], vec![0; k]);
     let (mut ecg_runs, mut ranges, mut lead_spikes) = (Vec::new(), Vec::new(), Vec::new());
-    // The last lead's physical samples (8 bytes each: 0.69 GB for a 24-hour
-    // 1000-Hz lead), handed back to the system once the scan is done: the
-    // allocator keeps freed memory for reuse (`tune_allocator` in `main`),
-    // and this would otherwise stay resident beside the digital samples for
-    // the whole run.
-    let mut last: Vec<f64> = Vec::new();
+    // One buffer for every lead's physical samples (8 bytes each: 0.69 GB
+    // for a 24-hour 1000-Hz lead), handed back to the system once the scan
+    // is done: the allocator keeps freed memory for reuse (`tune_allocator`
+    // in `main`), and it would otherwise stay resident beside the digital
+    // samples for the whole run.
+    let mut x: Vec<f64> = Vec::new();
     for (i, (d, l)) in leads.iter().zip(&rec.leads).enumerate() {
-        drop(std::mem::take(&mut last));
-        let mut x = d.physical(0, d.len());
+        d.physical_into(0, d.len(), &mut x);
         crate::pipeline::check_lead(i, &l.name, &x, n, path)?;
         let runs = nan_runs(&x);
         missing[i] = runs.iter().map(|(a, b)| b - a).sum();
@@ -180,10 +179,9 @@ pub(crate) fn scan(
             zero[i] = true;
         }
         fills.push(lead_fills);
-        last = x;
     }
-    crate::pipeline::release_pages(&mut last);
-    drop(last);
+    crate::pipeline::release_pages(&mut x);
+    drop(x);
     if missing.iter().all(|&m| m == n) {
         return Err(crate::pipeline::all_missing(path));
     }

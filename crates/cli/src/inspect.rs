@@ -241,12 +241,14 @@ fn inspect_one(
     let block = tendline_dsp::amplitude::block_samples(rec.fs, &cfg);
     let mut digest = SignalDigest::new(rec.fs, rec.leads.len());
     let (mut ranges, mut all_missing, mut any_ecg) = (Vec::new(), true, false);
+    // One buffer for every lead converted from digital samples (a fresh one
+    // per lead costs the kernel's zeroing of every page).
+    let mut converted = Vec::new();
     for (i, l) in rec.leads.iter().enumerate() {
-        let converted;
         let x: &[f64] = match &digital {
             None => &l.samples,
             Some(d) => {
-                converted = d[i].physical(0, d[i].len());
+                d[i].physical_into(0, d[i].len(), &mut converted);
                 &converted
             }
         };
